@@ -1,0 +1,112 @@
+# tallyfit build. `make` builds ./tallyfit; `make check` runs the whole suite;
+# `make sanitize` runs it again under ASan+UBSan; `make V=1` shows the commands.
+
+PREFIX   ?= /usr/local
+BUILD    ?= build
+CC       ?= cc
+PKGS     := gsl xlsxwriter inih check
+# libmvec's vector exp needs -fno-math-errno; -march=native is overridable for
+# portable builds (make ARCH=).
+ARCH     ?= -march=native
+OPT      ?= -O2
+WARN     := -Wall -Wextra -Werror -Wshadow -Wstrict-prototypes -Wmissing-prototypes -Wno-unused-parameter
+CPPFLAGS += -D_POSIX_C_SOURCE=200809L -Isrc
+CFLAGS   += -std=c11 $(OPT) $(ARCH) -g -pthread $(WARN) $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+LDLIBS   += $(shell pkg-config --libs gsl xlsxwriter inih 2>/dev/null) -lcsv -lnettle -lm -pthread
+CHECK_LIBS := $(shell pkg-config --libs check 2>/dev/null)
+# Hot loops (particle filter and model kernels) get -O3 and vector maths.
+HOT_CFLAGS := -O3 -fno-math-errno -fno-trapping-math
+
+ifeq ($(V),1)
+Q :=
+else
+Q := @
+endif
+
+SRC      := $(filter-out src/main.c,$(wildcard src/*/*.c))
+OBJ      := $(SRC:%.c=$(BUILD)/%.o)
+DEP      := $(OBJ:.o=.d) $(BUILD)/src/main.d
+LIB      := $(BUILD)/libtallyfit.a
+TEST_SRC := $(wildcard tests/unit/test_*.c)
+TEST_BIN := $(TEST_SRC:tests/unit/%.c=$(BUILD)/tests/%)
+BENCH_SRC := $(wildcard bench/*.c)
+BENCH_BIN := $(BENCH_SRC:bench/%.c=$(BUILD)/bench/%)
+
+.PHONY: all check unit e2e sanitize valgrind bench demo deps install uninstall clean validate fuzz
+
+BIN ?= tallyfit
+
+all: $(BIN)
+
+$(BIN): $(BUILD)/src/main.o $(LIB)
+	@echo "  LD      $@"
+	$(Q)$(CC) $(CFLAGS) -o $@ $^ $(LDLIBS)
+
+$(LIB): $(OBJ)
+	@echo "  AR      $@"
+	$(Q)rm -f $@ && ar rcs $@ $^
+
+$(BUILD)/src/filter/%.o $(BUILD)/src/model/%.o: CFLAGS += $(HOT_CFLAGS)
+
+$(BUILD)/%.o: %.c
+	@mkdir -p $(dir $@)
+	@echo "  CC      $<"
+	$(Q)$(CC) $(CPPFLAGS) $(CFLAGS) -MMD -MP -c -o $@ $<
+
+# Unit tests see file-static helpers through -DTESTING (see DEVELOPERS.md).
+$(BUILD)/tests/%: tests/unit/%.c tests/unit/tf_test.h $(LIB)
+	@mkdir -p $(dir $@)
+	@echo "  CC      $<"
+	$(Q)$(CC) $(CPPFLAGS) -DTESTING -Itests/unit $(CFLAGS) -o $@ $< $(LIB) $(CHECK_LIBS) $(LDLIBS)
+
+$(BUILD)/bench/%: bench/%.c $(LIB)
+	@mkdir -p $(dir $@)
+	@echo "  CC      $<"
+	$(Q)$(CC) $(CPPFLAGS) $(CFLAGS) $(HOT_CFLAGS) -o $@ $< $(LIB) $(LDLIBS)
+
+deps:
+	$(Q)tools/install-deps
+
+# The README's test command: installs what is missing, builds, runs everything.
+check: deps
+	$(Q)$(MAKE) --no-print-directory $(BIN) $(TEST_BIN)
+	$(Q)TALLYFIT=$(CURDIR)/$(BIN) BUILD=$(BUILD) tests/run-all $(TEST_BIN)
+
+# Same suite, separate build tree, ASan+UBSan; any report fails the run.
+SAN_CC := $(CC) -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
+sanitize: deps
+	$(Q)$(MAKE) --no-print-directory BUILD=build/san BIN=build/san/tallyfit OPT=-O1 ARCH= CC="$(SAN_CC)" \
+	  build/san/tallyfit $(TEST_BIN:$(BUILD)/%=build/san/%)
+	$(Q)ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
+	  TALLYFIT=$(CURDIR)/build/san/tallyfit BUILD=build/san TF_SANITIZE=1 \
+	  tests/run-all $(TEST_BIN:$(BUILD)/%=build/san/%)
+
+valgrind: deps
+	$(Q)$(MAKE) --no-print-directory tallyfit $(TEST_BIN)
+	$(Q)TALLYFIT=$(CURDIR)/tallyfit BUILD=$(BUILD) TF_VALGRIND=1 tests/run-all $(TEST_BIN)
+
+bench: deps
+	$(Q)$(MAKE) --no-print-directory tallyfit $(BENCH_BIN)
+	$(Q)for b in $(BENCH_BIN); do $$b || exit 1; done
+
+# The README's first command: install what is missing, build, run the main job on a demo survey.
+demo: deps
+	$(Q)$(MAKE) --no-print-directory tallyfit
+	./tallyfit $(DEMO_CMD) surveys/heron-colony.csv
+
+DEMO_CMD ?= check
+
+install: tallyfit
+	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/tallyfit/models $(DESTDIR)$(PREFIX)/share/man/man1
+	install -m 755 tallyfit $(DESTDIR)$(PREFIX)/bin/tallyfit
+	install -m 644 models/*.ini $(DESTDIR)$(PREFIX)/share/tallyfit/models/
+	install -m 644 man/tallyfit.1 $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1
+
+uninstall:
+	rm -f $(DESTDIR)$(PREFIX)/bin/tallyfit $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1
+	rm -rf $(DESTDIR)$(PREFIX)/share/tallyfit
+
+clean:
+	rm -rf build tallyfit
+
+-include $(DEP)

@@ -1,0 +1,7 @@
+/* The table of commands main dispatches to, in the order --help lists them. */
+#include "cmd/cmd.h"
+
+const tf_cmd tf_cmd_table[] = {
+    {"check", "validate a survey file and print a per-population overview", tf_cmd_check},
+    {NULL, NULL, NULL},
+};

@@ -1,0 +1,88 @@
+/* The model interface: a growth model and an observation model are each a row of function
+ * pointers (like gsl_rng_type); a tf_model joins one of each with the first-year prior.
+ * The particle filter and the sampler see only these rows, never model names. */
+#ifndef TF_MODEL_H
+#define TF_MODEL_H
+
+#include <stddef.h>
+
+#include <gsl/gsl_rng.h>
+
+#include "util/error.h"
+
+/* Most parameters of a joined model (drift + sigma + observation). */
+#define TF_MAX_PARAMS 8
+/* Most per-year constants an observation model may precompute. */
+#define TF_OBS_MAX_CONST 4
+
+/* Density dependence of log-abundance x: x_{t+1} = drift(x_t; p) + sigma * eps_t. */
+typedef struct {
+    const char *name;                 /* command-line name, e.g. "ricker" */
+    const char *label;                /* for people, e.g. "Ricker" */
+    size_t n_params;                  /* drift parameters (sigma is added by tf_model) */
+    const char *const *param_names;   /* n_params names, e.g. {"r", "K"} */
+    const double *lower, *upper;      /* open support of each parameter (may be +-INFINITY) */
+    /* out[i] = x[i] + f(x[i]; p) for i < n. out may equal x. Written as one plain loop so that
+     * the compiler vectorises it; called once per year, never per particle. */
+    void (*drift)(const double *p, const double *x, double *out, size_t n);
+} tf_growth_type;
+
+/* Counting error: the distribution of a count y given its mean mu = effort * exp(x). */
+typedef struct {
+    const char *name;                 /* "poisson", "lognormal", "negbin" */
+    const char *label;
+    size_t n_params;
+    const char *const *param_names;   /* e.g. {"tau"} */
+    const double *lower, *upper;
+    int needs_integer;                /* counts must be whole numbers */
+    int needs_positive;               /* a zero count is impossible under this model */
+    size_t n_year_const;              /* <= TF_OBS_MAX_CONST */
+    /* Constants of one year's term that do not depend on the particle (ln y!, ln y, ...). */
+    void (*year_const)(const double *p, double y, double *c);
+    /* lw[i] += log p(y | mu_i), mu_i = exp(x[i] + log_effort), for i < n. One vectorisable loop. */
+    void (*add_logweight)(const double *p, double y, double log_effort, const double *c,
+                          const double *x, double *lw, size_t n);
+    /* log p(y | mu) for one value: the reference the vector kernel is tested against. */
+    double (*logpmf)(const double *p, double y, double mu);
+    /* A count drawn given mu. */
+    double (*draw)(const double *p, double mu, gsl_rng *rng);
+} tf_obs_type;
+
+/* The table of models (model/registry.c). NULL when the name is unknown. */
+const tf_growth_type *tf_model_find_growth(const char *name);
+const tf_obs_type *tf_model_find_obs(const char *name);
+size_t tf_model_n_growth(void);
+size_t tf_model_n_obs(void);
+const tf_growth_type *tf_model_growth_at(size_t i);
+const tf_obs_type *tf_model_obs_at(size_t i);
+
+/* A joined model. Parameter order: drift parameters, then "sigma", then observation parameters. */
+typedef struct tf_model tf_model;
+
+/* Joins growth and observation models by name. Unknown names are TF_ERR_INVALID with a hint
+ * listing the known ones. The first-year prior starts as x1 ~ Normal(0, 1) until
+ * tf_model_set_initial is called. Free with tf_model_free. */
+tf_status tf_model_new(const char *growth, const char *obs, tf_model **out, tf_error *err);
+void tf_model_free(tf_model *m);
+
+const tf_growth_type *tf_model_growth(const tf_model *m);
+const tf_obs_type *tf_model_obs(const tf_model *m);
+size_t tf_model_n_params(const tf_model *m);
+const char *tf_model_param_name(const tf_model *m, size_t i);
+double tf_model_param_lower(const tf_model *m, size_t i);
+double tf_model_param_upper(const tf_model *m, size_t i);
+/* Index of a named parameter, or -1. */
+int tf_model_param_index(const tf_model *m, const char *name);
+size_t tf_model_sigma_index(const tf_model *m);
+/* "ricker+poisson" style name, stable for file names and random-stream keys. */
+const char *tf_model_name(const tf_model *m);
+
+/* First-year prior x_1 ~ Normal(mean, sd), sd > 0. */
+void tf_model_set_initial(tf_model *m, double x1_mean, double x1_sd);
+double tf_model_x1_mean(const tf_model *m);
+double tf_model_x1_sd(const tf_model *m);
+
+/* Checks a full parameter vector against the supports; TF_ERR_RANGE names the parameter. */
+tf_status tf_model_check_params(const tf_model *m, const double *theta, tf_error *err);
+
+#endif

@@ -1,0 +1,94 @@
+/* One population's annual counts. */
+#include "survey/series.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+struct tf_series {
+    char *label;
+    int first_year;
+    size_t n_years;
+    double *counts;
+    double *effort;
+    long *lines;
+    size_t n_surveyed;
+    size_t n_zero;
+    size_t first_fractional;
+};
+
+tf_series *tf_series_new(const char *label, int first_year, size_t n_years, const double *counts,
+                         const double *effort, const long *source_lines, tf_error *err)
+{
+    if (n_years == 0) {
+        tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "a series needs at least one year");
+        return NULL;
+    }
+    for (size_t i = 0; i < n_years; i++) {
+        double y = counts[i];
+        long line = source_lines ? source_lines[i] : 0;
+        if (isnan(y))
+            continue;
+        if (!isfinite(y) || y < 0) {
+            tf_error_add(err, TF_ERR_RANGE, NULL, line, 0, NULL,
+                         "count %g in year %d is not a finite number >= 0", y, first_year + (int)i);
+            return NULL;
+        }
+        if (effort && !(effort[i] > 0 && isfinite(effort[i]))) {
+            tf_error_add(err, TF_ERR_RANGE, NULL, line, 0, NULL,
+                         "effort %g in year %d is not a finite number > 0", effort[i], first_year + (int)i);
+            return NULL;
+        }
+    }
+    tf_series *s = calloc(1, sizeof *s);
+    if (!s)
+        goto fail;
+    s->label = strdup(label ? label : "");
+    s->counts = malloc(n_years * sizeof *s->counts);
+    s->effort = malloc(n_years * sizeof *s->effort);
+    s->lines = calloc(n_years, sizeof *s->lines);
+    if (!s->label || !s->counts || !s->effort || !s->lines)
+        goto fail;
+    s->first_year = first_year;
+    s->n_years = n_years;
+    s->first_fractional = n_years;
+    for (size_t i = 0; i < n_years; i++) {
+        double y = counts[i];
+        s->counts[i] = y;
+        s->effort[i] = (!isnan(y) && effort) ? effort[i] : 1.0;
+        if (source_lines)
+            s->lines[i] = source_lines[i];
+        if (isnan(y))
+            continue;
+        s->n_surveyed++;
+        s->n_zero += y == 0;
+        if (y != floor(y) && s->first_fractional == n_years)
+            s->first_fractional = i;
+    }
+    return s;
+fail:
+    tf_series_free(s);
+    tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory building a series of %zu years", n_years);
+    return NULL;
+}
+
+void tf_series_free(tf_series *s)
+{
+    if (!s)
+        return;
+    free(s->label);
+    free(s->counts);
+    free(s->effort);
+    free(s->lines);
+    free(s);
+}
+
+const char *tf_series_label(const tf_series *s) { return s->label; }
+int tf_series_first_year(const tf_series *s) { return s->first_year; }
+size_t tf_series_n_years(const tf_series *s) { return s->n_years; }
+const double *tf_series_counts(const tf_series *s) { return s->counts; }
+const double *tf_series_effort(const tf_series *s) { return s->effort; }
+long tf_series_source_line(const tf_series *s, size_t i) { return i < s->n_years ? s->lines[i] : 0; }
+size_t tf_series_n_surveyed(const tf_series *s) { return s->n_surveyed; }
+size_t tf_series_n_zero(const tf_series *s) { return s->n_zero; }
+size_t tf_series_first_fractional(const tf_series *s) { return s->first_fractional; }

@@ -25,6 +25,7 @@ struct tf_chain {
     double *dev;         /* scratch: one deviation vector */
     size_t n_adapted;
     int adapt;
+    int refresh;
 
     size_t n_steps, n_accepted, n_invalid;
 };
@@ -156,6 +157,13 @@ static void add_to_moments(tf_chain *c)
             c->m2[i * d + j] += c->dev[i] * (c->z[j] - c->mean[j]);
 }
 
+static void swap(double **a, double **b)
+{
+    double *t = *a;
+    *a = *b;
+    *b = t;
+}
+
 tf_status tf_chain_init(tf_chain *c, const double *z0, const double *prop_cov, const tf_rng *rng,
                         tf_error *err)
 {
@@ -164,6 +172,7 @@ tf_status tf_chain_init(tf_chain *c, const double *z0, const double *prop_cov, c
     c->n_steps = c->n_accepted = c->n_invalid = 0;
     c->n_adapted = 0;
     c->adapt = 1;
+    c->refresh = 0;
     memcpy(c->c0, prop_cov, d * d * sizeof(double));
     memset(c->mean, 0, d * sizeof(double));
     memset(c->m2, 0, d * d * sizeof(double));
@@ -195,19 +204,20 @@ tf_status tf_chain_init(tf_chain *c, const double *z0, const double *prop_cov, c
     return TF_OK;
 }
 
-static void swap(double **a, double **b)
-{
-    double *t = *a;
-    *a = *b;
-    *b = t;
-}
-
 int tf_chain_step(tf_chain *c)
 {
     size_t d = c->t.dim;
     double e[TF_CHAIN_MAX_DIM];
     int accepted = 0;
     c->n_steps++;
+
+    if (c->refresh) {
+        double ll = c->t.log_lik(c->t.ctx, c->theta, NULL, &c->rng, c->path_new);
+        if (isfinite(ll)) {
+            c->loglik = ll;
+            swap(&c->path, &c->path_new);
+        }
+    }
 
     for (size_t i = 0; i < d; i++)
         e[i] = tf_rng_normal(&c->rng);
@@ -261,6 +271,8 @@ int tf_chain_step(tf_chain *c)
 }
 
 void tf_chain_set_adapt(tf_chain *c, int on) { c->adapt = on != 0; }
+
+void tf_chain_set_refresh(tf_chain *c, int on) { c->refresh = on != 0 && c->t.n_aux == 0; }
 
 void tf_chain_reset_counts(tf_chain *c) { c->n_steps = c->n_accepted = c->n_invalid = 0; }
 

@@ -78,6 +78,14 @@ int tf_chain_step(tf_chain *c);
  * fixed and the chain is a valid Markov chain for the target. */
 void tf_chain_set_adapt(tf_chain *c, int on);
 
+/* Monte Carlo within Metropolis (O'Neill, Balding, Becker, Eerola & Mollison 2000, Applied
+ * Statistics 49:517; Beaumont 2003, Genetics 164:1139): while on, each step first re-estimates
+ * the likelihood at the current point. Its stationary law only approximates the posterior, but
+ * it cannot stick at one lucky over-estimate, which makes it a safe way to walk from a poor
+ * start towards the posterior before the exact chain is run. Off after init; has no effect when
+ * the target has auxiliary normals. */
+void tf_chain_set_refresh(tf_chain *c, int on);
+
 /* Resets the step and acceptance counters (e.g. at the end of warm-up). */
 void tf_chain_reset_counts(tf_chain *c);
 

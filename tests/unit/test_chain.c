@@ -262,6 +262,37 @@ START_TEST(rejects_nan_and_keeps_path_of_accepted_state)
 }
 END_TEST
 
+/* Monte Carlo within Metropolis re-estimates the current point each step: two estimates per
+ * step, and with a very noisy estimate it keeps moving where the exact pseudo-marginal chain
+ * sticks (O'Neill et al. 2000; the sticking is Andrieu & Roberts 2009, section 1). */
+START_TEST(refresh_mode_reestimates_current_point)
+{
+    gauss_ctx g;
+    setup_target(&g);
+    g.noise_sd = 4.0;
+    tf_chain_target t = {.dim = D, .ctx = &g, .log_prior = g_log_prior, .log_lik = g_log_lik_rng};
+    double z0[D] = {0, 0, 0}, c0[D * D] = {0.05, 0, 0, 0, 0.5, 0, 0, 0, 0.01};
+    size_t accepted[2];
+    for (int refresh = 0; refresh < 2; refresh++) {
+        tf_chain *c = tf_chain_alloc(&t, NULL);
+        tf_rng rng;
+        tf_rng_derive(&rng, 21, NULL, 0);
+        ck_assert_int_eq(tf_chain_init(c, z0, c0, &rng, NULL), TF_OK);
+        tf_chain_set_adapt(c, 0);
+        tf_chain_set_refresh(c, refresh);
+        g.n_calls = 0;
+        for (int it = 0; it < 2000; it++)
+            tf_chain_step(c);
+        ck_assert_uint_eq(g.n_calls, refresh ? 4000 : 2000);
+        accepted[refresh] = tf_chain_n_accepted(c);
+        tf_chain_free(c);
+    }
+    /* With noise sd 4 the exact chain accepts rarely (a typical over-estimate of 4 sd's
+     * worth is hard to beat); refreshing the current point removes that barrier. */
+    ck_assert_msg(accepted[1] > 3 * accepted[0], "accepted %zu vs %zu", accepted[1], accepted[0]);
+}
+END_TEST
+
 START_TEST(same_stream_same_chain)
 {
     gauss_ctx g;
@@ -330,6 +361,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, noisy_gaussian_target_pseudo_marginal);
     tcase_add_test(tc, noisy_gaussian_target_correlated);
     tcase_add_test(tc, rejects_nan_and_keeps_path_of_accepted_state);
+    tcase_add_test(tc, refresh_mode_reestimates_current_point);
     tcase_add_test(tc, same_stream_same_chain);
     tcase_add_test(tc, bad_arguments_are_refused);
     suite_add_tcase(s, tc);

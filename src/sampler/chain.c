@@ -9,6 +9,7 @@ struct tf_chain {
     tf_chain_target t;
     tf_chain_options opt;
     double s_d;          /* proposal scale factor */
+    double log_lambda;   /* global scale adaptation (Andrieu & Thoms 2008, Algorithm 4) */
     tf_rng rng;
 
     /* Current and proposed state; swapped on acceptance so no copies are made. */
@@ -32,7 +33,8 @@ struct tf_chain {
 
 tf_chain_options tf_chain_default_options(void)
 {
-    tf_chain_options o = {.rho = 0.0, .init_weight = 100.0, .regulariser = 1e-8, .scale = 0.0};
+    tf_chain_options o = {.rho = 0.0, .init_weight = 100.0, .regulariser = 1e-8, .scale = 0.0,
+                          .target_accept = 0.0};
     return o;
 }
 
@@ -63,7 +65,7 @@ tf_chain *tf_chain_alloc(const tf_chain_target *t, const tf_chain_options *opt)
     if (!t || t->dim == 0 || t->dim > TF_CHAIN_MAX_DIM || !t->log_prior || !t->log_lik)
         return NULL;
     if (!(o.rho >= 0.0 && o.rho < 1.0) || !(o.init_weight > 0.0) || !(o.regulariser >= 0.0) ||
-        !(o.scale >= 0.0))
+        !(o.scale >= 0.0) || !(o.target_accept >= 0.0 && o.target_accept < 1.0))
         return NULL;
     tf_chain *c = calloc(1, sizeof *c);
     if (!c)
@@ -173,6 +175,7 @@ tf_status tf_chain_init(tf_chain *c, const double *z0, const double *prop_cov, c
     c->n_adapted = 0;
     c->adapt = 1;
     c->refresh = 0;
+    c->log_lambda = 0.0;
     memcpy(c->c0, prop_cov, d * d * sizeof(double));
     memset(c->mean, 0, d * sizeof(double));
     memset(c->m2, 0, d * d * sizeof(double));
@@ -209,6 +212,7 @@ int tf_chain_step(tf_chain *c)
     size_t d = c->t.dim;
     double e[TF_CHAIN_MAX_DIM];
     int accepted = 0;
+    double alpha = 0.0;   /* acceptance probability of this proposal */
     c->n_steps++;
 
     if (c->refresh) {
@@ -221,7 +225,7 @@ int tf_chain_step(tf_chain *c)
 
     for (size_t i = 0; i < d; i++)
         e[i] = tf_rng_normal(&c->rng);
-    double root_s = sqrt(c->s_d);
+    double root_s = sqrt(c->s_d) * exp(0.5 * c->log_lambda);
     for (size_t i = 0; i < d; i++) {
         double s = 0.0;
         for (size_t k = 0; k <= i; k++)
@@ -246,6 +250,7 @@ int tf_chain_step(tf_chain *c)
             /* Symmetric proposal in z, so the Hastings ratio is the ratio of targets
              * (Andrieu, Doucet & Holenstein 2010, section 2.4.2). */
             double log_alpha = (ll + lp) - (c->loglik + c->logprior);
+            alpha = log_alpha >= 0.0 ? 1.0 : exp(log_alpha);
             if (log_alpha >= 0.0 || log(tf_rng_uniform(&c->rng)) < log_alpha) {
                 swap(&c->z, &c->z_new);
                 swap(&c->theta, &c->theta_new);
@@ -266,6 +271,17 @@ int tf_chain_step(tf_chain *c)
     if (c->adapt) {
         add_to_moments(c);
         update_proposal(c);
+        if (c->opt.target_accept > 0.0) {
+            /* Step sizes n^-0.6: they sum to infinity and their squares do not, as stochastic
+             * approximation needs (Andrieu & Thoms 2008, section 4.2). The log scale is kept
+             * within e^+-10 so that a run of invalid estimates cannot drive it to 0. */
+            double gamma = pow((double)c->n_adapted, -0.6);
+            c->log_lambda += gamma * (alpha - c->opt.target_accept);
+            if (c->log_lambda > 10.0)
+                c->log_lambda = 10.0;
+            if (c->log_lambda < -10.0)
+                c->log_lambda = -10.0;
+        }
     }
     return accepted;
 }
@@ -286,6 +302,7 @@ size_t tf_chain_n_steps(const tf_chain *c) { return c->n_steps; }
 size_t tf_chain_n_accepted(const tf_chain *c) { return c->n_accepted; }
 size_t tf_chain_n_invalid(const tf_chain *c) { return c->n_invalid; }
 tf_rng tf_chain_rng(const tf_chain *c) { return c->rng; }
+double tf_chain_scale_factor(const tf_chain *c) { return exp(c->log_lambda); }
 
 void tf_chain_proposal_cov(const tf_chain *c, double *out)
 {

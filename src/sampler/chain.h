@@ -47,9 +47,13 @@ typedef struct {
     double regulariser;
     /* s_d; 0 selects 2.38^2 / d (Roberts, Gelman & Gilks 1997; Haario et al. 2001 section 2). */
     double scale;
+    /* When > 0, adaptation also tunes a global factor lambda on s_d towards this acceptance
+     * rate by stochastic approximation (Andrieu & Thoms 2008, Statistics and Computing 18:343,
+     * Algorithm 4). 0 = off: the scale stays s_d. */
+    double target_accept;
 } tf_chain_options;
 
-/* rho 0, init_weight 100, regulariser 1e-8, scale 0 (= 2.38^2/d). */
+/* rho 0, init_weight 100, regulariser 1e-8, scale 0 (= 2.38^2/d), target_accept 0. */
 tf_chain_options tf_chain_default_options(void);
 
 typedef struct tf_chain tf_chain;
@@ -103,6 +107,8 @@ size_t tf_chain_n_invalid(const tf_chain *c);
 /* The proposal covariance in use, without the s_d factor (dim x dim, row-major), e.g. to start
  * another chain with it. */
 void tf_chain_proposal_cov(const tf_chain *c, double *out);
+/* The global scale factor lambda (1 unless target_accept > 0). */
+double tf_chain_scale_factor(const tf_chain *c);
 /* The chain's random stream as it is now (e.g. to carry it over into another chain). */
 tf_rng tf_chain_rng(const tf_chain *c);
 

@@ -20,6 +20,7 @@ tf_tune_options tf_tune_default_options(int correlated)
         .min_particles = 20,
         .max_particles = 200000,
         .max_rounds = 5,
+        .stop = NULL,
     };
     return o;
 }
@@ -33,6 +34,10 @@ void tf_tune_measure(tf_filter *f, const double *theta, const tf_tune_options *o
     double m = 0.0, m2 = 0.0, level = 0.0;
     int finite = 1;
     for (size_t r = 0; r < opt->n_reps; r++) {
+        if (opt->stop && *opt->stop) {
+            *sd = *mean = NAN;
+            return;
+        }
         double v;
         if (opt->correlated) {
             double *mv0 = z_move, *mv1 = z_move + n_move, *pk0 = z_pick, *pk1 = z_pick + n_pick;
@@ -127,6 +132,8 @@ tf_status tf_tune_particles(const tf_model *m, const tf_series *s, const double 
         tf_status st = measure_at(m, s, theta, n, opt, rng, &sd, &mean, err);
         if (st != TF_OK)
             return st;
+        if (isnan(sd))
+            return tf_error_add(err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "interrupted");
         r.n_rounds = round + 1;
         r.n_particles = n;
         r.sd = sd;

@@ -4,6 +4,7 @@
 #ifndef TF_TUNE_H
 #define TF_TUNE_H
 
+#include <signal.h>
 #include <stddef.h>
 
 #include "filter/filter.h"
@@ -27,6 +28,8 @@ typedef struct {
     size_t start_particles;
     size_t min_particles, max_particles;
     size_t max_rounds;     /* measurements at most, each at one particle count */
+    /* Polled between repetitions; non-zero stops the tuning with TF_ERR_INTERRUPTED. May be NULL. */
+    const volatile sig_atomic_t *stop;
 } tf_tune_options;
 
 /* Standard: target 1.2 (Doucet et al. 2015, section 4: SD between 1.0 and 1.7, about 1.2 when
@@ -47,7 +50,8 @@ typedef struct {
  * f over n_reps repetitions drawing from rng. z_move / z_pick: caller's buffers of
  * tf_filter_n_move(f) / tf_filter_n_pick(f) doubles, each needed twice in the correlated case
  * (so 2 n_move and 2 n_pick values); unused (may be NULL) in the standard case.
- * Writes *sd (INFINITY when any estimate was not finite) and *mean. */
+ * Writes *sd (INFINITY when any estimate was not finite) and *mean; both NAN when opt->stop
+ * was set during the measurement. */
 void tf_tune_measure(tf_filter *f, const double *theta, const tf_tune_options *opt, tf_rng *rng,
                      double *z_move, double *z_pick, double *sd, double *mean);
 
@@ -56,7 +60,8 @@ void tf_tune_measure(tf_filter *f, const double *theta, const tf_tune_options *o
  * section 3; Berard, Del Moral & Doucet 2014), so each round extrapolates
  * N' = N (sd / target)^2 from the last measurement and measures again at N', until the measured
  * spread is within 25 % of the target or max_rounds is used. A count whose estimates were not
- * all finite is quadrupled. Writes *out. Errors: TF_ERR_NOMEM; TF_ERR_INVALID for bad options.
+ * all finite is quadrupled. Writes *out. Errors: TF_ERR_NOMEM; TF_ERR_INVALID for bad options;
+ * TF_ERR_INTERRUPTED when opt->stop was set.
  * Not reaching the target is not an error: out->reached says so. */
 tf_status tf_tune_particles(const tf_model *m, const tf_series *s, const double *theta,
                             const tf_tune_options *opt, tf_rng *rng, tf_tune_result *out,

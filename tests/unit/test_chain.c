@@ -293,6 +293,35 @@ START_TEST(refresh_mode_reestimates_current_point)
 }
 END_TEST
 
+/* Global scale adaptation (Andrieu & Thoms 2008, Algorithm 4) from a start 1000 times too wide:
+ * after warm-up the acceptance rate is near the target 0.234 (the band allows for the
+ * Monte Carlo spread of a rate over 20000 correlated steps and for the slowly decaying steps). */
+START_TEST(global_scale_reaches_target_acceptance)
+{
+    gauss_ctx g;
+    setup_target(&g);
+    tf_chain_target t = {.dim = D, .ctx = &g, .log_prior = g_log_prior, .log_lik = g_log_lik_rng};
+    tf_chain_options o = tf_chain_default_options();
+    o.target_accept = 0.234;
+    o.init_weight = 10;
+    tf_chain *c = tf_chain_alloc(&t, &o);
+    double z0[D] = {0, 0, 0}, c0[D * D] = {100, 0, 0, 0, 100, 0, 0, 0, 100};
+    tf_rng rng;
+    tf_rng_derive(&rng, 31, NULL, 0);
+    ck_assert_int_eq(tf_chain_init(c, z0, c0, &rng, NULL), TF_OK);
+    for (int it = 0; it < 5000; it++)
+        tf_chain_step(c);
+    tf_chain_set_adapt(c, 0);
+    tf_chain_reset_counts(c);
+    for (int it = 0; it < 20000; it++)
+        tf_chain_step(c);
+    double acc = (double)tf_chain_n_accepted(c) / 20000.0;
+    ck_assert_msg(acc > 0.18 && acc < 0.29, "acceptance %g, lambda %g", acc,
+                  tf_chain_scale_factor(c));
+    tf_chain_free(c);
+}
+END_TEST
+
 START_TEST(same_stream_same_chain)
 {
     gauss_ctx g;
@@ -362,6 +391,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, noisy_gaussian_target_correlated);
     tcase_add_test(tc, rejects_nan_and_keeps_path_of_accepted_state);
     tcase_add_test(tc, refresh_mode_reestimates_current_point);
+    tcase_add_test(tc, global_scale_reaches_target_acceptance);
     tcase_add_test(tc, same_stream_same_chain);
     tcase_add_test(tc, bad_arguments_are_refused);
     suite_add_tcase(s, tc);

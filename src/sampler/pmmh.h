@@ -28,8 +28,9 @@ typedef struct {
 /* The defaults (see pmmh.c for the reasons behind each value). */
 tf_pmmh_options tf_pmmh_default_options(void);
 
-/* Phases in the order they run. */
-typedef enum { TF_PMMH_PILOT, TF_PMMH_TUNE, TF_PMMH_WARMUP, TF_PMMH_SAMPLE } tf_pmmh_phase;
+/* Phases in the order they run: the pilot (first half of the warm-up), particle tuning, and the
+ * exact chains (second half of the warm-up, then the kept draws). */
+typedef enum { TF_PMMH_PILOT, TF_PMMH_TUNE, TF_PMMH_MAIN } tf_pmmh_phase;
 
 /* What a progress callback sees: a snapshot, valid during the call only. */
 typedef struct {

@@ -29,7 +29,7 @@ static const char HINT_MISSING[] = "write NA or leave the cell empty for a year 
 static const char HINT_QUOTES[] = "a value that contains the delimiter, a quote or a line break must be "
                                   "in double quotes, with each quote inside it doubled (\"\")";
 
-/* One data row that passed the year and label checks. */
+/* One data row with a usable population label (other values may have been rejected). */
 typedef struct {
     size_t label_off;   /* into reader.labels while reading */
     const char *label;  /* filled once reading is done and the arena no longer moves */
@@ -51,6 +51,8 @@ typedef struct {
     const char *name;
     tf_error *err;
     size_t n_reported;  /* messages this read produced, kept or dropped */
+    tf_status first_status; /* of the message with the lowest line, the earliest among equals */
+    long first_line;
     bool nomem;
 
     struct csv_parser csv;
@@ -92,7 +94,10 @@ static void report(reader *r, tf_status status, long line, long col, const char 
     vsnprintf(what, sizeof what, fmt, ap);
     va_end(ap);
     tf_error_add(r->err, status, r->name, line, col, hint, "%s", what);
-    r->n_reported++;
+    if (!r->n_reported++ || line < r->first_line) {
+        r->first_status = status;
+        r->first_line = line;
+    }
 }
 
 /* Grows *buf to hold need elements of size elem; false (buffer untouched) when out of memory. */
@@ -688,10 +693,12 @@ static tf_survey *assemble(reader *r)
     long *lines = NULL;
     size_t n_groups = 0;
 
+    if (!r->n_rows)
+        goto done; /* every data row was unreadable, and each said so */
     for (size_t i = 0; i < r->n_rows; i++)
         r->rows[i].label = r->labels + r->rows[i].label_off;
     qsort(r->rows, r->n_rows, sizeof *r->rows, by_label_seq);
-    groups = malloc((r->n_rows ? r->n_rows : 1) * sizeof *groups);
+    groups = malloc(r->n_rows * sizeof *groups);
     if (!groups)
         goto nomem;
     for (size_t i = 0; i < r->n_rows; i++) {
@@ -717,14 +724,10 @@ static tf_survey *assemble(reader *r)
     if (!sv->path || !sv->series)
         goto nomem;
     for (size_t g = 0; g < n_groups; g++) {
-        sv->series[g] = build_series(r->rows + groups[g].start, groups[g].n, counts, effort, lines, r->err);
-        if (!sv->series[g]) {
-            /* The rows were checked already, so only memory can fail here; the message is in err. */
-            r->n_reported++;
-            tf_survey_free(sv);
-            sv = NULL;
-            goto done;
-        }
+        /* The rows were checked already, so only memory can fail here. */
+        sv->series[g] = build_series(r->rows + groups[g].start, groups[g].n, counts, effort, lines, NULL);
+        if (!sv->series[g])
+            goto nomem;
         sv->n_series++;
     }
     goto done;
@@ -761,7 +764,6 @@ tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_sur
     *out = NULL;
     reader r = {.name = name, .err = err};
     size_t first_msg = err ? err->n_items : 0;
-    tf_status first_status = TF_OK;
 
     if (!csv_start(&r)) {
         r.nomem = true;
@@ -801,12 +803,8 @@ tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_sur
         *out = assemble(&r);
 
 finish:
-    if (r.nomem) {
-        tf_error_add(err, TF_ERR_NOMEM, name, 0, 0, NULL, "out of memory reading the survey");
-        r.n_reported++;
-        tf_survey_free(*out);
-        *out = NULL;
-    }
+    if (r.nomem)
+        report(&r, TF_ERR_NOMEM, 0, 0, NULL, "out of memory reading the survey");
     csv_stop(&r);
     free(r.fbuf);
     free(r.foff);
@@ -817,9 +815,7 @@ finish:
     tf_survey_free(*out);
     *out = NULL;
     sort_messages(err, first_msg);
-    if (err && first_msg < err->n_items)
-        first_status = err->items[first_msg].status;
-    return first_status != TF_OK ? first_status : TF_ERR_INVALID;
+    return r.first_status;
 }
 
 tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err)

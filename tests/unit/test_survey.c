@@ -408,6 +408,25 @@ START_TEST(no_error_record_needed)
 }
 END_TEST
 
+/* The duplicate on line 3 is only found once rows are grouped, after line 5's bad count; the
+ * status and the message order still follow the file. */
+START_TEST(status_is_the_first_problem_in_the_file)
+{
+    static const char text[] = "year,count\n2001,1\n2001,2\n2002,3\n2003,x\n2004,5\n2005,6\n";
+    tf_survey *sv;
+    ck_assert_int_eq(tf_survey_parse("m.csv", text, sizeof text - 1, &sv, NULL), TF_ERR_INVALID);
+    ck_assert_ptr_null(sv);
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse("m.csv", text, sizeof text - 1, &sv, &err), TF_ERR_INVALID);
+    ck_assert_uint_eq(err.n_items, 2);
+    ck_assert_int_eq(err.items[0].line, 3);
+    ck_assert_int_eq(err.items[0].status, TF_ERR_INVALID);
+    ck_assert_int_eq(err.items[1].line, 5);
+    ck_assert_int_eq(err.items[1].status, TF_ERR_PARSE);
+}
+END_TEST
+
 START_TEST(unopenable_files_give_io_errors)
 {
     tf_error err;
@@ -569,6 +588,7 @@ static Suite *make_suite(void)
     tcase_add_test(bad, error_cap_counts_dropped_messages);
     tcase_add_test(bad, earlier_messages_in_the_record_are_kept);
     tcase_add_test(bad, no_error_record_needed);
+    tcase_add_test(bad, status_is_the_first_problem_in_the_file);
     tcase_add_test(bad, unopenable_files_give_io_errors);
     tcase_add_test(bad, huge_file_refused_before_reading);
     suite_add_tcase(s, bad);

@@ -234,9 +234,9 @@ static bool parse_int(const char *s, long *out)
     return true;
 }
 
-/* A decimal number: optional sign, digits with an optional point, optional exponent. Rejects what
- * strtod would also take (inf, nan, hex, trailing junk). The program never calls setlocale, so
- * strtod reads a point as the decimal separator. */
+/* A decimal number: optional sign, digits with an optional point, optional exponent. The other
+ * forms strtod accepts (inf, nan, hex) and trailing junk are refused here. The program never calls
+ * setlocale, so strtod reads a point as the decimal separator. */
 static bool parse_decimal(const char *s, double *out)
 {
     const char *p = s + (*s == '-' || *s == '+');

@@ -83,8 +83,9 @@ tf_status tf_table_add_note(tf_table *t, tf_note_kind kind, const char *text, tf
 tf_status tf_table_add_notef(tf_table *t, tf_note_kind kind, tf_error *err, const char *fmt, ...)
     __attribute__((format(printf, 4, 5)));
 
-/* Accessors. Indices must be in range (asserted). Strings are owned by the table and valid until
- * the table is freed or the cell changes. */
+/* Accessors. Indices must be in range (asserted). Strings are owned by the table: the name,
+ * headers, legends and notes stay valid until the table is freed; cell text (tf_table_text)
+ * only until the next call that changes the table, since all cell text shares one buffer. */
 const char *tf_table_name(const tf_table *t);
 size_t tf_table_n_columns(const tf_table *t);
 size_t tf_table_n_rows(const tf_table *t);

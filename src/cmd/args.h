@@ -8,6 +8,7 @@
 #include <stdint.h>
 
 #include "model/model.h"
+#include "survey/survey.h"
 #include "util/error.h"
 
 /* Most pairs one list of `--set` options holds, and the longest name. */
@@ -69,5 +70,9 @@ tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char 
  * as they were. */
 tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_all, double *theta,
                              unsigned char *given, tf_error *err);
+
+/* Reads the survey a command was given: a path, or "-" for standard input (named "stdin" in
+ * messages). Same contract as tf_survey_read. */
+tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err);
 
 #endif

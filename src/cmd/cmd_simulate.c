@@ -9,10 +9,10 @@
 
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "export/atomic.h"
 #include "model/model.h"
 #include "survey/survey.h"
 #include "util/error.h"
-#include "util/outfile.h"
 #include "util/rng.h"
 
 #define CMD "simulate"
@@ -165,7 +165,7 @@ int tf_cmd_simulate(int argc, char **argv)
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;
     double *effort = NULL, *x = NULL, *y = NULL;
-    tf_outfile *of = NULL;
+    tf_atomic *of = NULL;
     FILE *mem = NULL;
     char *text = NULL;
     size_t text_len = 0;
@@ -246,15 +246,13 @@ int tf_cmd_simulate(int argc, char **argv)
     tf_survey_free(sv);
 
     if (output && strcmp(output, "-")) {
-        if (!(of = tf_outfile_open(output, &err)))
+        if (tf_atomic_open(output, NULL, &of, &err) != TF_OK)
             goto out;
-        if (fwrite(text, 1, text_len, tf_outfile_stream(of)) != text_len) {
-            tf_error_add(&err, TF_ERR_IO, output, 0, 0, NULL, "cannot write '%s'", output);
-            goto out;
-        }
-        tf_outfile *done = of;
+        /* Write errors are reported by the commit. */
+        fwrite(text, 1, text_len, tf_atomic_stream(of));
+        tf_atomic *done = of;
         of = NULL;
-        if (tf_outfile_commit(done, &err) != TF_OK)
+        if (tf_atomic_commit(done, &err) != TF_OK)
             goto out;
     } else if (fwrite(text, 1, text_len, stdout) != text_len || fflush(stdout) != 0) {
         tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
@@ -264,7 +262,7 @@ int tf_cmd_simulate(int argc, char **argv)
 out:
     if (status != TF_EXIT_OK)
         tf_error_print(&err, "tallyfit " CMD, stderr);
-    tf_outfile_discard(of);
+    tf_atomic_abort(of);
     if (mem)
         fclose(mem);
     free(text);

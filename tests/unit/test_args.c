@@ -1,13 +1,10 @@
-/* Unit tests for the commands' shared option helpers and the atomic output file. */
+/* Unit tests for the commands' shared option helpers. */
 #include "tf_test.h"
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
-#include <sys/stat.h>
-#include <unistd.h>
 
 #include "cmd/args.h"
-#include "util/outfile.h"
 
 static const char *first_what(const tf_error *err) { return err->n_items ? err->items[0].what : ""; }
 
@@ -148,88 +145,6 @@ START_TEST(set_binds_to_the_model)
 }
 END_TEST
 
-static int read_file(const char *path, char *buf, size_t size)
-{
-    FILE *f = fopen(path, "r");
-    if (!f)
-        return -1;
-    size_t n = fread(buf, 1, size - 1, f);
-    buf[n] = '\0';
-    fclose(f);
-    return (int)n;
-}
-
-/* No "*.tmp.*" file is left in dir. */
-static int temp_files_in(const char *path)
-{
-    char pattern[512], cmd[600];
-    snprintf(pattern, sizeof pattern, "%s.tmp.", path);
-    snprintf(cmd, sizeof cmd, "ls '%s'* 2>/dev/null | wc -l", pattern);
-    FILE *p = popen(cmd, "r");
-    int n = -1;
-    if (p) {
-        if (fscanf(p, "%d", &n) != 1)
-            n = -1;
-        pclose(p);
-    }
-    return n;
-}
-
-START_TEST(outfile_replaces_only_when_complete)
-{
-    char dir[] = "/tmp/tf-outfile-XXXXXX";
-    ck_assert_ptr_nonnull(mkdtemp(dir));
-    char path[256], buf[256];
-    snprintf(path, sizeof path, "%s/out.csv", dir);
-    tf_error err;
-    tf_error_init(&err);
-
-    tf_outfile *of = tf_outfile_open(path, &err);
-    ck_assert_ptr_nonnull(of);
-    fputs("first\n", tf_outfile_stream(of));
-    ck_assert_int_eq(read_file(path, buf, sizeof buf), -1); /* nothing at the target yet */
-    ck_assert_int_eq(temp_files_in(path), 1);
-    ck_assert_int_eq(tf_outfile_commit(of, &err), TF_OK);
-    ck_assert_int_eq(read_file(path, buf, sizeof buf), 6);
-    ck_assert_str_eq(buf, "first\n");
-    ck_assert_int_eq(temp_files_in(path), 0);
-
-    /* A discarded second write leaves the first file alone. */
-    of = tf_outfile_open(path, &err);
-    fputs("second, half", tf_outfile_stream(of));
-    tf_outfile_discard(of);
-    read_file(path, buf, sizeof buf);
-    ck_assert_str_eq(buf, "first\n");
-    ck_assert_int_eq(temp_files_in(path), 0);
-    tf_outfile_discard(NULL);
-
-    /* A directory that does not exist. */
-    char bad[300];
-    snprintf(bad, sizeof bad, "%s/no/such/out.csv", dir);
-    ck_assert_ptr_null(tf_outfile_open(bad, &err));
-    ck_assert_int_eq(tf_error_status(&err), TF_ERR_IO);
-
-    /* A target that cannot be replaced (a non-empty directory) fails at commit, cleanly. */
-    char sub[300], inner[320];
-    snprintf(sub, sizeof sub, "%s/sub", dir);
-    snprintf(inner, sizeof inner, "%s/x", sub);
-    ck_assert_int_eq(mkdir(sub, 0700), 0);
-    FILE *f = fopen(inner, "w");
-    fclose(f);
-    tf_error_init(&err);
-    of = tf_outfile_open(sub, &err);
-    ck_assert_ptr_nonnull(of);
-    fputs("x", tf_outfile_stream(of));
-    ck_assert_int_eq(tf_outfile_commit(of, &err), TF_ERR_IO);
-    ck_assert_int_eq(temp_files_in(sub), 0);
-
-    unlink(inner);
-    rmdir(sub);
-    unlink(path);
-    ck_assert_int_eq(rmdir(dir), 0);
-}
-END_TEST
-
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("args");
@@ -238,7 +153,6 @@ static Suite *make_suite(void)
     tcase_add_test(tc, pairs_parse_and_accumulate);
     tcase_add_test(tc, numbers_lists_and_seeds);
     tcase_add_test(tc, set_binds_to_the_model);
-    tcase_add_test(tc, outfile_replaces_only_when_complete);
     suite_add_tcase(s, tc);
     return s;
 }

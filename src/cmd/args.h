@@ -8,6 +8,7 @@
 #include <stdint.h>
 
 #include "model/model.h"
+#include "survey/survey.h"
 #include "util/error.h"
 
 /* Most pairs one list of `--set` options holds, and the longest name. */
@@ -66,8 +67,12 @@ tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char 
  * each parameter given (given may be NULL); with require_all, a missing parameter is an error.
  * Each given value must lie inside its support (TF_ERR_USAGE naming it). x1_mean / x1_sd, when
  * present, replace m's first-year prior (x1_sd must be > 0). theta entries not given are left
- * as they were. */
+ * as they were; on error m's prior is unchanged and theta may hold some of the valid values. */
 tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_all, double *theta,
                              unsigned char *given, tf_error *err);
+
+/* Reads the survey a command was given: a path, or "-" for standard input (named "stdin" in
+ * messages). Same contract as tf_survey_read. */
+tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err);
 
 #endif

@@ -145,10 +145,10 @@ int tf_cmd_likelihood(int argc, char **argv)
         path = argv[optind++];
     if (optind < argc)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
-    if (!path)
+    if (!path && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit likelihood --help' for the usage",
                      "no survey file given");
-    if (!growth)
+    if (!growth && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     if (tf_error_status(&err) != TF_OK) {
         tf_error_print(&err, "tallyfit " CMD, stderr);
@@ -171,17 +171,17 @@ int tf_cmd_likelihood(int argc, char **argv)
         status = TF_EXIT_USAGE;
         goto out;
     }
-    const char *file = strcmp(path, "-") ? path : "/dev/stdin";
-    if (tf_survey_read(file, &sv, &err) != TF_OK) {
+    if (tf_args_read_survey(path, &sv, &err) != TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;
     }
-    const tf_series *s = pick_series(sv, population, path, &err);
+    const char *shown = strcmp(path, "-") ? path : "stdin"; /* the file's name in messages */
+    const tf_series *s = pick_series(sv, population, shown, &err);
     if (!s) {
         status = TF_EXIT_USAGE;
         goto out;
     }
-    if (check_counts(m, s, path, &err) != TF_OK) {
+    if (check_counts(m, s, shown, &err) != TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;
     }

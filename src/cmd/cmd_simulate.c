@@ -9,14 +9,13 @@
 
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "export/atomic.h"
 #include "model/model.h"
+#include "survey/survey.h"
 #include "util/error.h"
-#include "util/outfile.h"
 #include "util/rng.h"
 
 #define CMD "simulate"
-/* Enough for any survey people keep; the limit only guards memory against typos. */
-#define MAX_YEARS 100000
 
 static void help(FILE *out)
 {
@@ -33,9 +32,9 @@ static void help(FILE *out)
             "  --obs O          counting error: %s (default poisson)\n"
             "  --set NAME=VALUE,...\n"
             "                   every parameter of the model, e.g. r=0.3,K=800,sigma=0.1,phi=20\n"
-            "  --years N        number of years to simulate\n"
+            "  --years N        number of years to simulate (%d to %d)\n"
             "  --start N1       abundance in the first year (> 0)\n"
-            "  --first-year Y   calendar year of the first count (default 2000)\n"
+            "  --first-year Y   calendar year of the first count (default 2000; %d to %d)\n"
             "  --seed S         random seed (default 1); the same seed gives the same file\n"
             "  --effort E       survey effort, one value for every year or one per year (default 1,\n"
             "                   no effort column); the expected count is effort x abundance\n"
@@ -43,7 +42,7 @@ static void help(FILE *out)
             "  -o, --output FILE\n"
             "                   write to FILE (replaced only once complete) instead of standard output\n"
             "  -h, --help       show this help\n",
-            growth, obs);
+            growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN, TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
 }
 
 static int usage_fail(tf_error *err)
@@ -78,7 +77,7 @@ static int write_csv(FILE *out, const char *label, long first_year, size_t n_yea
 /* A label is written unquoted, so it must not need CSV quoting. */
 static int label_ok(const char *s)
 {
-    if (!*s)
+    if (!*s || strlen(s) > TF_SURVEY_MAX_LABEL || *s == '#')
         return 0;
     for (; *s; s++)
         if (*s == ',' || *s == '"' || *s == '\n' || *s == '\r')
@@ -123,14 +122,18 @@ int tf_cmd_simulate(int argc, char **argv)
         case OPT_OBS: obs = optarg; break;
         case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
         case OPT_YEARS:
-            if (tf_args_parse_size("--years", optarg, 1, MAX_YEARS, &n_years, &err) == TF_OK)
+            /* The importer's limits, so that every file written can be read back. */
+            if (tf_args_parse_size("--years", optarg, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN, &n_years, &err) ==
+                TF_OK)
                 have_years = 1;
             break;
         case OPT_START:
             if (tf_args_parse_double("--start", optarg, &start, &err) == TF_OK && !(start > 0))
                 tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--start: the first abundance must be > 0");
             break;
-        case OPT_FIRST: tf_args_parse_long("--first-year", optarg, -100000, 100000, &first_year, &err); break;
+        case OPT_FIRST:
+            tf_args_parse_long("--first-year", optarg, TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, &first_year, &err);
+            break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
         case OPT_EFFORT: effort_text = optarg; break;
         case OPT_LABEL: label = optarg; break;
@@ -142,22 +145,30 @@ int tf_cmd_simulate(int argc, char **argv)
     if (optind < argc)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit simulate --help' for the options",
                      "unexpected argument '%s'", argv[optind]);
-    if (!growth)
+    if (!growth && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     if (!have_years && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --years 30", "--years is required");
     if (isnan(start) && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --start 500", "--start is required");
+    if (have_years && first_year + (long)n_years - 1 > TF_SURVEY_YEAR_MAX)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--years: %zu years from %ld run past the year %d",
+                     n_years, first_year, TF_SURVEY_YEAR_MAX);
     if (label && !label_ok(label))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                     "--label: '%s' must be non-empty and contain no comma, quote or line break", label);
+                     "--label: '%s' must have 1 to %d bytes, not start with '#' and contain no comma, quote or "
+                     "line break",
+                     label, TF_SURVEY_MAX_LABEL);
     if (tf_error_status(&err) != TF_OK)
         return usage_fail(&err);
 
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;
     double *effort = NULL, *x = NULL, *y = NULL;
-    tf_outfile *of = NULL;
+    tf_atomic *of = NULL;
+    FILE *mem = NULL;
+    char *text = NULL;
+    size_t text_len = 0;
     if (tf_model_new(growth, obs, &m, &err) != TF_OK) {
         status = TF_EXIT_USAGE;
         goto out;
@@ -207,22 +218,43 @@ int tf_cmd_simulate(int argc, char **argv)
     if (tf_model_simulate(m, theta, log(start), effort, n_years, &rng, x, y, &err) != TF_OK)
         goto out;
 
-    FILE *out = stdout;
-    if (output && strcmp(output, "-")) {
-        if (!(of = tf_outfile_open(output, &err)))
-            goto out;
-        out = tf_outfile_stream(of);
-    }
-    if (write_csv(out, label, first_year, n_years, y, effort, effort_text != NULL, tf_model_obs(m)->needs_integer)) {
-        tf_error_add(&err, TF_ERR_IO, output, 0, 0, NULL, "write error");
+    /* The file is made in memory and read back by the importer before anything is written, so
+     * that what simulate writes is always a valid survey (counts within the importer's limits,
+     * not all zero, ...). */
+    mem = open_memstream(&text, &text_len);
+    if (!mem) {
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
         goto out;
     }
-    if (of) {
-        tf_outfile *done = of;
-        of = NULL;
-        if (tf_outfile_commit(done, &err) != TF_OK)
+    int bad = write_csv(mem, label, first_year, n_years, y, effort, effort_text != NULL,
+                        tf_model_obs(m)->needs_integer);
+    if (fclose(mem) != 0 || bad) {
+        mem = NULL;
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
+        goto out;
+    }
+    mem = NULL;
+    tf_error check;
+    tf_error_init(&check);
+    tf_survey *sv = NULL;
+    if (tf_survey_parse("simulated survey", text, text_len, &sv, &check) != TF_OK) {
+        tf_error_add(&err, TF_ERR_INVALID, NULL, 0, 0, "try other parameters, another --start or another --seed",
+                     "the simulated counts do not make a usable survey: %s",
+                     check.n_items ? check.items[0].what : "rejected by the importer");
+        goto out;
+    }
+    tf_survey_free(sv);
+
+    if (output && strcmp(output, "-")) {
+        if (tf_atomic_open(output, NULL, &of, &err) != TF_OK)
             goto out;
-    } else if (fflush(stdout) != 0) {
+        /* Write errors are reported by the commit. */
+        fwrite(text, 1, text_len, tf_atomic_stream(of));
+        tf_atomic *done = of;
+        of = NULL;
+        if (tf_atomic_commit(done, &err) != TF_OK)
+            goto out;
+    } else if (fwrite(text, 1, text_len, stdout) != text_len || fflush(stdout) != 0) {
         tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
         goto out;
     }
@@ -230,7 +262,10 @@ int tf_cmd_simulate(int argc, char **argv)
 out:
     if (status != TF_EXIT_OK)
         tf_error_print(&err, "tallyfit " CMD, stderr);
-    tf_outfile_discard(of);
+    tf_atomic_abort(of);
+    if (mem)
+        fclose(mem);
+    free(text);
     free(effort);
     free(x);
     free(y);

@@ -24,7 +24,6 @@
 
 struct tf_filter {
     const tf_model *m;
-    const tf_series *s;
     size_t n, n_years;
     const double *y;          /* borrowed counts, NAN = not surveyed */
     double *log_effort;       /* n_years */
@@ -55,7 +54,6 @@ tf_filter *tf_filter_alloc(const tf_model *m, const tf_series *s, size_t n_parti
     if (!f)
         return NULL;
     f->m = m;
-    f->s = s;
     f->n = n;
     f->n_years = T;
     f->y = tf_series_counts(s);

@@ -15,6 +15,9 @@
 
 typedef struct tf_fit tf_fit;
 
+/* The most chains one fit holds. */
+#define TF_FIT_MAX_CHAINS 64
+
 /* Thresholds of the convergence warning: R-hat above 1.01 or bulk/tail ESS below 400
  * (Vehtari, Gelman, Simpson, Carpenter & Buerkner 2021, Bayesian Analysis 16:667, section 4). */
 #define TF_FIT_RHAT_MAX 1.01
@@ -47,8 +50,9 @@ typedef struct {
 
 /* ---- Building (the sampler does this) ---- */
 
-/* An empty result for n_chains chains of n_iter kept draws each, for model m and series s
- * (borrowed: they must outlive the result). NULL when out of memory or a size is 0. */
+/* An empty result for n_chains chains (1 .. TF_FIT_MAX_CHAINS) of n_iter kept draws each, for
+ * model m and series s (borrowed: they must outlive the result). NULL when out of memory or a
+ * size is out of range. */
 tf_fit *tf_fit_alloc(const tf_model *m, const tf_series *s, size_t n_chains, size_t n_iter);
 void tf_fit_free(tf_fit *f);   /* accepts NULL */
 
@@ -96,6 +100,16 @@ const double *tf_fit_draw(const tf_fit *f, size_t chain, size_t iter);
 double tf_fit_loglik(const tf_fit *f, size_t chain, size_t iter);
 /* Latent log-abundance path held with that draw: n_years values. Borrowed. */
 const double *tf_fit_path(const tf_fit *f, size_t chain, size_t iter);
+
+/* The same as whole blocks, draw k = chain * n_iter + iter (chain-major): draws is
+ * n_draws x n_params row-major (the layout tf_project_input takes), logliks n_draws values,
+ * paths n_draws x n_years row-major. Borrowed. */
+const double *tf_fit_draws(const tf_fit *f);
+const double *tf_fit_logliks(const tf_fit *f);
+const double *tf_fit_paths(const tf_fit *f);
+/* Copies the latent log-abundance of year year_index of every draw into out (n_draws values),
+ * e.g. the last year's as the start of projections. */
+void tf_fit_year_draws(const tf_fit *f, size_t year_index, double *out);
 
 double tf_fit_acceptance(const tf_fit *f, size_t chain);
 double tf_fit_invalid_share(const tf_fit *f, size_t chain);

@@ -8,6 +8,7 @@
 
 #include "model/model.h"
 #include "model/prior.h"
+#include "sampler/transform.h"
 #include "util/error.h"
 #include "util/rng.h"
 

@@ -14,8 +14,8 @@ tf_tune_options tf_tune_default_options(int correlated)
          * recalled from the paper). Correlated: the acceptance ratio sees the difference of two
          * correlated estimates; 1.0 for its SD is the benchmark's choice (bench/bench_fit.c)
          * — with independent estimates at SD 1.2 the difference has SD 1.2 sqrt(2) = 1.7. */
-        .target_sd = correlated ? 1.0 : 1.2,
-        .n_reps = 40,
+        .target_sd = correlated ? 1.0 : 1.0,
+        .n_reps = 60,
         .start_particles = 100,
         .min_particles = 20,
         .max_particles = 200000,
@@ -73,10 +73,11 @@ void tf_tune_measure(tf_filter *f, const double *theta, const tf_tune_options *o
     *mean = level / (double)opt->n_reps;
 }
 
-/* One measurement at n particles, with buffers sized for it. */
-static tf_status measure_at(const tf_model *m, const tf_series *s, const double *theta, size_t n,
-                            const tf_tune_options *opt, tf_rng *rng, double *sd, double *mean,
-                            tf_error *err)
+/* One measurement at n particles over the points, with buffers sized for it: the root mean
+ * square of the SDs, and the SD at the first point. */
+static tf_status measure_at(const tf_model *m, const tf_series *s, const double *points, size_t n_points,
+                            size_t n, const tf_tune_options *opt, tf_rng *rng, double *sd, double *sd_first,
+                            double *mean, tf_error *err)
 {
     tf_filter *f = tf_filter_alloc(m, s, n);
     double *z_move = NULL, *z_pick = NULL;
@@ -88,7 +89,22 @@ static tf_status measure_at(const tf_model *m, const tf_series *s, const double 
         if (!z_move || !z_pick)
             goto nomem;
     }
-    tf_tune_measure(f, theta, opt, rng, z_move, z_pick, sd, mean);
+    size_t np = tf_model_n_params(m);
+    double var = 0.0;
+    for (size_t k = 0; k < n_points; k++) {
+        double sd_k, mean_k;
+        tf_tune_measure(f, points + k * np, opt, rng, z_move, z_pick, &sd_k, &mean_k);
+        if (k == 0) {
+            *sd_first = sd_k;
+            *mean = mean_k;
+        }
+        var += sd_k * sd_k / (double)n_points;
+        if (isnan(sd_k) || isinf(sd_k)) {
+            var = sd_k * sd_k;
+            break;
+        }
+    }
+    *sd = sqrt(var);
     free(z_move);
     free(z_pick);
     tf_filter_free(f);
@@ -110,26 +126,28 @@ static size_t clamp(double n, const tf_tune_options *opt)
     return (size_t)ceil(n);
 }
 
-tf_status tf_tune_particles(const tf_model *m, const tf_series *s, const double *theta,
-                            const tf_tune_options *opt, tf_rng *rng, tf_tune_result *out,
-                            tf_error *err)
+tf_status tf_tune_particles(const tf_model *m, const tf_series *s, const double *points,
+                            size_t n_points, const tf_tune_options *opt, tf_rng *rng,
+                            tf_tune_result *out, tf_error *err)
 {
-    if (opt->n_reps < TF_TUNE_MIN_REPS || !(opt->target_sd > 0) || opt->min_particles == 0 ||
-        opt->min_particles > opt->max_particles || opt->max_rounds == 0 ||
+    if (n_points == 0 || opt->n_reps < TF_TUNE_MIN_REPS || !(opt->target_sd > 0) ||
+        opt->min_particles == 0 || opt->min_particles > opt->max_particles || opt->max_rounds == 0 ||
         (opt->correlated && !(opt->rho >= 0 && opt->rho < 1)))
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL,
                             "unusable particle-tuning options");
-    /* Accept a spread within this factor of the target: a spread measured from 40 repetitions
-     * has a relative standard error of about 1/sqrt(2 * 39) = 11 %, so asking for closer
-     * agreement would chase noise. */
-    const double tolerance = 1.25;
+    /* Accept a spread within this factor of the target: the root mean square over 8 points of
+     * 30 repetitions has a relative standard error of about 1/sqrt(2 * 8 * 29) = 5 % if the
+     * estimates were Gaussian, more with their heavier tails; closer agreement would chase
+     * noise. */
+    const double tolerance = 1.15;
 
     size_t n = clamp((double)opt->start_particles, opt);
-    tf_tune_result r = {.n_particles = n, .sd = INFINITY, .mean_loglik = -INFINITY};
+    tf_tune_result r = {.n_particles = n, .sd = INFINITY, .sd_first = INFINITY,
+                        .mean_loglik = -INFINITY};
     tf_tune_result best = r;   /* the smallest count that reached the target */
     for (size_t round = 0; round < opt->max_rounds; round++) {
-        double sd, mean;
-        tf_status st = measure_at(m, s, theta, n, opt, rng, &sd, &mean, err);
+        double sd = NAN, sd_first = NAN, mean = NAN;
+        tf_status st = measure_at(m, s, points, n_points, n, opt, rng, &sd, &sd_first, &mean, err);
         if (st != TF_OK)
             return st;
         if (isnan(sd))
@@ -137,6 +155,7 @@ tf_status tf_tune_particles(const tf_model *m, const tf_series *s, const double 
         r.n_rounds = round + 1;
         r.n_particles = n;
         r.sd = sd;
+        r.sd_first = sd_first;
         r.mean_loglik = mean;
         r.reached = sd <= tolerance * opt->target_sd;
         if (r.reached && (!best.reached || n < best.n_particles))

@@ -3,6 +3,7 @@
  * fixed-random-number mode and the drawn trajectory. */
 #include "tf_test.h"
 #include <math.h>
+#include <stdint.h>
 #include <string.h>
 
 #include "filter/filter.h"
@@ -336,6 +337,7 @@ START_TEST(degenerate_cases_are_minus_infinity)
     ck_assert(isfinite(tf_filter_loglik(f, ok, &r, NULL)));
     tf_filter_free(f);
     ck_assert_ptr_null(tf_filter_alloc(m, s, 0));
+    ck_assert_ptr_null(tf_filter_alloc(m, s, UINT32_MAX)); /* indices are 32-bit */
     tf_filter_free(NULL);
     tf_model_free(m);
     tf_series_free(s);

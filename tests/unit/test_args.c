@@ -1,0 +1,158 @@
+/* Unit tests for the commands' shared option helpers. */
+#include "tf_test.h"
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "cmd/args.h"
+
+static const char *first_what(const tf_error *err) { return err->n_items ? err->items[0].what : ""; }
+
+START_TEST(pairs_parse_and_accumulate)
+{
+    tf_arg_pairs p;
+    tf_args_pairs_init(&p);
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_parse_pairs("--set", "r=0.5, K = 1e3 ,sigma=.1", &p, &err), TF_OK);
+    ck_assert_int_eq(tf_args_parse_pairs("--set", "phi=-2", &p, &err), TF_OK);
+    ck_assert_uint_eq(p.n, 4);
+    ck_assert_str_eq(p.items[1].name, "K");
+    ck_assert_double_eq(p.items[1].value, 1000.0);
+    ck_assert_double_eq(tf_args_pairs_get(&p, "sigma")->value, 0.1);
+    ck_assert_double_eq(tf_args_pairs_get(&p, "phi")->value, -2.0);
+    ck_assert_ptr_null(tf_args_pairs_get(&p, "tau"));
+
+    static const struct {
+        const char *text, *phrase;
+    } bad[] = {
+        {"r=1,,K=2", "empty item"}, {"r", "no '=value'"}, {"=3", "has no name"}, {"r=abc", "not a finite number"},
+        {"r=inf", "not a finite number"}, {"r=1e999", "not a finite number"}, {"r=1x", "not a finite number"},
+        {"r=1,r=2", "given twice"}, {"", "empty item"}, {"abcdefghijklmnopqrstuvwxyz0123456789=1", "too long"},
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        tf_args_pairs_init(&p);
+        tf_error_init(&err);
+        ck_assert_int_eq(tf_args_parse_pairs("--set", bad[i].text, &p, &err), TF_ERR_USAGE);
+        ck_assert_msg(strstr(first_what(&err), bad[i].phrase), "'%s': %s", bad[i].text, first_what(&err));
+        ck_assert_ptr_nonnull(strstr(first_what(&err), "--set"));
+    }
+    /* The table is bounded. */
+    tf_args_pairs_init(&p);
+    char name[16];
+    tf_status st = TF_OK;
+    for (int i = 0; i <= TF_ARGS_MAX_PAIRS && st == TF_OK; i++) {
+        snprintf(name, sizeof name, "p%d=1", i);
+        st = tf_args_parse_pairs("--set", name, &p, &err);
+    }
+    ck_assert_int_eq(st, TF_ERR_USAGE);
+    ck_assert_uint_eq(p.n, TF_ARGS_MAX_PAIRS);
+}
+END_TEST
+
+START_TEST(numbers_lists_and_seeds)
+{
+    tf_error err;
+    tf_error_init(&err);
+    double v[4];
+    size_t n;
+    ck_assert_int_eq(tf_args_parse_doubles("--effort", "1,2.5, 3", v, 4, &n, &err), TF_OK);
+    ck_assert_uint_eq(n, 3);
+    ck_assert_double_eq(v[1], 2.5);
+    ck_assert_int_eq(tf_args_parse_doubles("--effort", "1,2,3,4,5", v, 4, &n, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_args_parse_doubles("--effort", "1,,2", v, 4, &n, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_args_parse_doubles("--effort", "1,x", v, 4, &n, &err), TF_ERR_USAGE);
+
+    size_t z;
+    ck_assert_int_eq(tf_args_parse_size("--particles", "250", 1, 1000, &z, &err), TF_OK);
+    ck_assert_uint_eq(z, 250);
+    ck_assert_int_eq(tf_args_parse_size("--particles", "0", 1, 1000, &z, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_args_parse_size("--particles", "-3", 1, 1000, &z, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_args_parse_size("--particles", "2.5", 1, 1000, &z, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_args_parse_size("--particles", "99999999999999999999999", 1, 1000, &z, &err), TF_ERR_USAGE);
+
+    long l;
+    ck_assert_int_eq(tf_args_parse_long("--first-year", "-5", -10, 10, &l, &err), TF_OK);
+    ck_assert_int_eq(l, -5);
+    ck_assert_int_eq(tf_args_parse_long("--first-year", "11", -10, 10, &l, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_args_parse_long("--first-year", "", -10, 10, &l, &err), TF_ERR_USAGE);
+
+    uint64_t s;
+    ck_assert_int_eq(tf_args_parse_seed("--seed", "18446744073709551615", &s, &err), TF_OK);
+    ck_assert(s == UINT64_MAX);
+    ck_assert_int_eq(tf_args_parse_seed("--seed", "18446744073709551616", &s, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_args_parse_seed("--seed", "-1", &s, &err), TF_ERR_USAGE);
+
+    double d;
+    ck_assert_int_eq(tf_args_parse_double("--start", " 12.5 ", &d, &err), TF_OK);
+    ck_assert_double_eq(d, 12.5);
+    ck_assert_int_eq(tf_args_parse_double("--start", "nan", &d, &err), TF_ERR_USAGE);
+
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_getopt_error("simulate", '?', 0, "--bogus", &err), TF_ERR_USAGE);
+    ck_assert_str_eq(first_what(&err), "unknown option '--bogus'");
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "tallyfit simulate --help"));
+    ck_assert_int_eq(tf_args_getopt_error("simulate", ':', 'o', "-o", &err), TF_ERR_USAGE);
+    ck_assert_str_eq(err.items[1].what, "option '-o' needs a value");
+}
+END_TEST
+
+START_TEST(set_binds_to_the_model)
+{
+    tf_model *m = NULL;
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_new("ricker", "negbin", &m, &err), TF_OK);
+    tf_arg_pairs p;
+    tf_args_pairs_init(&p);
+    double theta[TF_MAX_PARAMS] = {0};
+    unsigned char given[TF_MAX_PARAMS];
+    ck_assert_int_eq(tf_args_parse_pairs("--set", "phi=4,r=0.5,K=300,sigma=0.2,x1_sd=0.3", &p, &err), TF_OK);
+    ck_assert_int_eq(tf_args_bind_model(m, &p, 1, theta, given, &err), TF_OK);
+    ck_assert_double_eq(theta[0], 0.5);
+    ck_assert_double_eq(theta[1], 300);
+    ck_assert_double_eq(theta[2], 0.2);
+    ck_assert_double_eq(theta[3], 4);
+    ck_assert_double_eq(tf_model_x1_sd(m), 0.3);
+    ck_assert_double_eq(tf_model_x1_mean(m), 0.0); /* not given: kept */
+
+    /* Partial binding for commands that fix only some parameters. */
+    tf_args_pairs_init(&p);
+    tf_args_parse_pairs("--set", "K=900", &p, &err);
+    ck_assert_int_eq(tf_args_bind_model(m, &p, 0, theta, given, &err), TF_OK);
+    ck_assert_double_eq(theta[1], 900);
+    ck_assert_double_eq(theta[0], 0.5);
+    ck_assert(given[1] && !given[0] && !given[2] && !given[3]);
+
+    /* Errors: missing (with require_all), unknown (hint lists the names), out of range. */
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_bind_model(m, &p, 1, theta, NULL, &err), TF_ERR_USAGE);
+    ck_assert_uint_eq(err.n_items, 3); /* r, sigma, phi */
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "value of r is missing"));
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "r=...,K=...,sigma=...,phi=..."));
+    tf_args_pairs_init(&p);
+    tf_args_parse_pairs("--set", "tau=1,K=-1,x1_sd=-2", &p, &err);
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_bind_model(m, &p, 0, theta, NULL, &err), TF_ERR_USAGE);
+    ck_assert_uint_eq(err.n_items, 3);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "tau is not a parameter of model ricker+negbin"));
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "r, K, sigma, phi"));
+    ck_assert_ptr_nonnull(strstr(err.items[1].what, "K = -1 is outside its range"));
+    ck_assert_ptr_nonnull(strstr(err.items[2].what, "x1_sd = -2 is not > 0"));
+    ck_assert_double_eq(theta[1], 900); /* untouched on error */
+    ck_assert_double_eq(tf_model_x1_sd(m), 0.3);
+    tf_model_free(m);
+}
+END_TEST
+
+static Suite *make_suite(void)
+{
+    Suite *s = suite_create("args");
+    TCase *tc = tcase_create("core");
+    tcase_set_timeout(tc, 60);
+    tcase_add_test(tc, pairs_parse_and_accumulate);
+    tcase_add_test(tc, numbers_lists_and_seeds);
+    tcase_add_test(tc, set_binds_to_the_model);
+    suite_add_tcase(s, tc);
+    return s;
+}

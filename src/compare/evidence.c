@@ -23,6 +23,8 @@
 #define STAGE_CHECK 1001
 #define STAGE_TUNE 1002
 #define MAX_KEYS 6
+/* Parameter points the particle count is tuned at: the centre and four spread draws. */
+#define TUNE_POINTS 5
 #define MAX_THREADS 256
 
 tf_evidence_options tf_evidence_default_options(void)
@@ -427,14 +429,19 @@ tf_status tf_evidence_estimate_fit(const tf_posterior *post, const tf_series *s,
          * centre of the draws, starting from the fit's count (its target, 1.2 for the standard
          * method, is already close; for the correlated method the fit's count is tuned to a
          * log-ratio and usually far too small for independent estimates). */
-        double zc[TF_TMIX_MAX_DIM], theta[TF_MAX_PARAMS];
+        /* Measured at the centre of the draws and at a few draws spread through the fit: the
+         * estimator's spread varies over the posterior (tune.h), and the importance draws
+         * cover all of it. */
+        double zc[TF_TMIX_MAX_DIM], points[TUNE_POINTS * TF_MAX_PARAMS];
         for (size_t j = 0; j < d; j++) {
             double acc = 0;
             for (size_t k = 0; k < n_z; k++)
                 acc += zd[k * d + j];
             zc[j] = acc / (double)n_z;
         }
-        tf_posterior_log_prior_z(post, zc, theta);
+        tf_posterior_log_prior_z(post, zc, points);
+        for (size_t p = 1; p < TUNE_POINTS; p++)
+            tf_posterior_log_prior_z(post, zd + (p * (n_z - 1) / (TUNE_POINTS - 1)) * d, points + p * d);
         tf_tune_options topt = tf_tune_default_options(0);
         topt.target_sd = opt->target_sd;
         size_t n0 = tf_fit_settings_of(fit)->n_particles;
@@ -445,7 +452,7 @@ tf_status tf_evidence_estimate_fit(const tf_posterior *post, const tf_series *s,
         tf_rng rng;
         tf_rng_derive(&rng, opt->seed, tkeys, 4);
         tf_tune_result tr;
-        if ((st = tf_tune_particles(m, s, theta, &topt, &rng, &tr, err)) != TF_OK) {
+        if ((st = tf_tune_particles(m, s, points, TUNE_POINTS, &topt, &rng, &tr, err)) != TF_OK) {
             free(zd);
             return st;
         }

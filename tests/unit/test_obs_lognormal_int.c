@@ -102,6 +102,38 @@ START_TEST(kernel_equals_scalar_and_handles_extinction)
 }
 END_TEST
 
+/* The kernel's series for narrow intervals against the exact difference (logpmf) on both sides
+ * of its switch-over, |m| = 0.2 / w in sd units, for widths w just under and over its limit 0.1
+ * (y = 11 and y = 9 at tau = 1) and a narrow one (y = 400, tau = 0.05). */
+START_TEST(series_matches_exact_difference)
+{
+    const tf_obs_type *o = obs();
+    static const double cases[][2] = {{11, 1.0}, {9, 1.0}, {400, 0.05}, {40, 0.3}};
+    enum { N = 401 };
+    double x[N], lw[N], c[TF_OBS_MAX_CONST];
+    for (int k = 0; k < 4; k++) {
+        double y = cases[k][0], p[1] = {cases[k][1]};
+        o->year_const(p, y, c);
+        double w = c[3], mid = 0.5 * (c[0] + c[1]);
+        for (int i = 0; i < N; i++) {
+            /* m from -3 to 3 times the switch-over point (or +-6 sd when the series is off). */
+            double span = w <= 0.1 ? 3 * 0.2 / w : 6;
+            x[i] = mid - p[0] * span * (2.0 * i / (N - 1) - 1.0);
+            lw[i] = 0;
+        }
+        o->add_logweight(p, y, 0.0, c, x, lw, N);
+        for (int i = 0; i < N; i++) {
+            double want = o->logpmf(p, y, exp(x[i]));
+            /* The series' first omitted term is under 3e-14 relative; the exact difference of
+             * two close distribution values loses eps / (w P) relative, 2e-15 / w here. */
+            double tol = 1e-13 * (1 + fabs(want)) + 4e-15 / w;
+            ck_assert_msg(fabs(lw[i] - want) <= tol, "y=%g tau=%g x=%.17g: kernel %.17g exact %.17g", y, p[0], x[i],
+                          lw[i], want);
+        }
+    }
+}
+END_TEST
+
 /* The probabilities telescope to F(inf) - F(0) = 1 (a property of the definition). */
 START_TEST(probabilities_sum_to_one)
 {
@@ -195,6 +227,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, row_describes_a_count_model);
     tcase_add_test(tc, probabilities_match_scipy);
     tcase_add_test(tc, kernel_equals_scalar_and_handles_extinction);
+    tcase_add_test(tc, series_matches_exact_difference);
     tcase_add_test(tc, probabilities_sum_to_one);
     tcase_add_test(tc, large_counts_approach_the_continuous_density);
     tcase_add_test(tc, draws_follow_the_probabilities);

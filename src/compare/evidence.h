@@ -29,29 +29,33 @@ typedef struct {
      * scale of the main component to the weighted draws of the round before. */
     size_t n_adapt_rounds;
     size_t n_adapt_draws;
-    /* Main density: (1 - defensive_weight) t_nu(m, S) + defensive_weight t_nu(m, defensive_scale S),
-     * m and S the (weighted) mean and covariance; the wide component bounds the weights where
-     * the fitted one is too narrow (defensive importance sampling, Hesterberg 1995,
-     * Technometrics 37:185). */
+    /* Main density: (1 - defensive_weight) F + defensive_weight t_nu(m0, defensive_scale S0),
+     * F a mixture of up to n_components t_nu components fitted by EM to the PMMH draws (and
+     * refitted to the weighted draws of each adaptation round), m0 and S0 the draws' mean and
+     * covariance. The wide component bounds the weights where F is too narrow (defensive
+     * importance sampling, Hesterberg 1995, Technometrics 37:185). */
     double nu;
+    size_t n_components;
     double defensive_weight;
     double defensive_scale;
-    /* Check density, never adapted: centred on the coordinate-wise median of the PMMH draws
-     * rather than their mean, with check_nu degrees of freedom and scale check_scale S0
-     * (S0 the draws' covariance), plus the same kind of defensive part. */
+    /* Check density, never adapted: F as first fitted, with check_nu degrees of freedom and its
+     * scales times check_scale, and the defensive part centred on the coordinate-wise median of
+     * the draws instead of their mean. */
     double check_nu;
     double check_scale;
-    /* Particles per likelihood estimate; 0 = chosen by tf_tune_particles at the posterior
-     * centre so that the log-estimate's sd is about target_sd, starting from the fit's count. */
+    /* Base particle count n0; 0 = chosen by tf_tune_particles at points of the posterior so
+     * that the log-estimate's sd is about target_sd there, starting from the fit's count. Each
+     * importance draw then uses n0 2^L particles, L set by a pilot at that draw so that its sd
+     * is about target_sd too (see evidence.c). */
     size_t n_particles;
     double target_sd;
     size_t n_threads;   /* >= 1; the results do not depend on it */
     uint64_t seed;
 } tf_evidence_options;
 
-/* 2000 draws per density, 3 rounds of 400 to adapt, nu 5 with 10 % defensive weight at 4 times
- * the covariance, check density nu 3 at twice the covariance, target sd 1 (see evidence.c for
- * the reasons), one thread, seed 1. */
+/* 2000 draws per density, 3 rounds of 400 to adapt, 3 components of nu 5 with 20 % defensive
+ * weight at 9 times the covariance, check density nu 3 at 1.5 times the scales, target sd 1
+ * (see evidence.c for the reasons), one thread, seed 1. */
 tf_evidence_options tf_evidence_default_options(void);
 
 /* One importance-sampling estimate. */
@@ -71,10 +75,13 @@ typedef struct {
     double z_diff;                /* (main - check) / sqrt(se_main^2 + se_check^2) */
     int agree;                    /* |z_diff| <= TF_EVIDENCE_Z_MAX */
     int reliable;                 /* both Pareto k finite and <= TF_PARETO_K_MAX */
-    size_t n_particles;           /* particles per likelihood estimate */
+    size_t n_particles;           /* base particle count n0 of the likelihood estimates */
+    double mean_particles;        /* particles spent per importance draw, pilots included
+                                   * (tf_evidence_estimate_fit; NaN from tf_evidence_run) */
     double loglik_sd;             /* sd of the log-likelihood estimate at the centre (NaN if
                                    * not measured) */
     size_t n_adapt_used;          /* adaptation rounds that refitted the density */
+    size_t n_components;          /* t components fitted (besides the defensive one) */
 } tf_evidence;
 
 /* What is integrated: p(y) = integral of exp(log_lik(theta(z)) + log_prior(z)) dz. log_prior
@@ -82,7 +89,8 @@ typedef struct {
  * tf_posterior_log_prior_z; -inf outside the support). log_lik returns the log of an
  * unbiased, non-negative estimate of the likelihood at theta (-inf for 0), drawing from rng;
  * it runs on a per-thread worker made by worker_new(ctx) (NULL = out of memory) and freed by
- * worker_free. log_prior is called from several threads at once and must not write to ctx. */
+ * worker_free. log_prior is called from several threads at once and must not write to ctx; worker_free is
+ * called from the thread that called tf_evidence_run once every draw is done. */
 typedef struct {
     size_t dim;
     void *ctx;
@@ -97,7 +105,8 @@ typedef struct {
  * Every random number comes from streams tf_rng_derive(opt->seed, {keys..., stage, block}) for
  * fixed blocks of draws, so the result is the same for any opt->n_threads. keys (n_keys <= 6)
  * name the model and population. opt->n_particles and opt->target_sd are not used here (the
- * target's log_lik decides its own accuracy); out->n_particles is left 0 and loglik_sd NaN.
+ * target's log_lik decides its own accuracy); out->n_particles is left 0, mean_particles and
+ * loglik_sd NaN.
  * stop (may be NULL) is polled between blocks. Errors: TF_ERR_INVALID for bad options or too
  * few draws; TF_ERR_NUMERIC when the draws' covariance is singular or every weight is zero;
  * TF_ERR_NOMEM; TF_ERR_INTERRUPTED. *out is complete only on TF_OK. */

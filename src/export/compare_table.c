@@ -10,7 +10,7 @@
 
 enum {
     C_MODEL, C_GROWTH, C_OBS, C_STATUS, C_LOG_ML, C_LOG_ML_SE, C_CHECK, C_CHECK_SE, C_CHECK_Z, C_BF, C_LN_BF,
-    C_LN_BF_SE, C_TWO_LN_B, C_READING, C_PRIOR, C_PROB, C_PROB_SE, C_K, C_K_CHECK, C_W_ESS, C_PARTICLES, C_RHAT,
+    C_LN_BF_SE, C_TWO_LN_B, C_READING, C_PRIOR, C_PROB, C_PROB_SE, C_K, C_K_CHECK, C_W_ESS, C_PARTICLES, C_PARTICLES_MEAN, C_RHAT,
     C_ESS, C_NOTE, N_COLS
 };
 
@@ -47,7 +47,9 @@ static const struct {
     {"pareto_k", "Pareto k of the importance weights (above 0.7: unreliable)", TF_COL_NUMBER},
     {"pareto_k_check", "Pareto k of the second density's weights", TF_COL_NUMBER},
     {"weight_ess", "effective sample size of the importance weights, (sum w)^2 / sum w^2", TF_COL_NUMBER},
-    {"particles", "particles per likelihood estimate in the importance sampling", TF_COL_INTEGER},
+    {"particles", "base particle count of the likelihood estimates in the importance sampling", TF_COL_INTEGER},
+    {"particles_mean", "particles spent per importance draw, pilot runs included (each draw sets its own count)",
+     TF_COL_NUMBER},
     {"rhat_max", "largest R-hat of the fit's parameters (want <= 1.01)", TF_COL_NUMBER},
     {"ess_min", "smallest bulk or tail ESS of the fit's parameters (want >= 400)", TF_COL_NUMBER},
     {"note", "why a model was excluded or failed, or a caution", TF_COL_TEXT},
@@ -133,6 +135,7 @@ tf_table *tf_compare_table(const tf_comparison *c, tf_error *err)
             tf_table_set_number(t, row, C_K_CHECK, ev->check.pareto_k);
             tf_table_set_number(t, row, C_W_ESS, ev->main.ess);
             tf_table_set_number(t, row, C_PARTICLES, (double)ev->n_particles);
+            tf_table_set_number(t, row, C_PARTICLES_MEAN, ev->mean_particles);
             tf_table_set_number(t, row, C_RHAT, f->rhat_max);
             tf_table_set_number(t, row, C_ESS, f->ess_min);
             ok = tf_table_set_text(t, row, C_READING,

@@ -4,13 +4,11 @@
 
 #include <assert.h>
 #include <math.h>
+#include <stddef.h>
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-
-#include <gsl/gsl_sort.h>
-#include <gsl/gsl_statistics_double.h>
 
 /* The most simulated futures one call accepts: five doubles and one flag per threshold and run,
  * so 10^7 runs need about 0.5 GB. Far beyond what a Monte Carlo error of 0.0002 (10^7 runs) needs. */
@@ -266,17 +264,61 @@ static void lay_out_runs(const tf_project_input *in, size_t n_inputs, const size
     w->n_blocks = nb;
 }
 
+/* Rearranges a[0..n) so that a[k] holds the value a full sort would put there, with no larger value
+ * before it and no smaller one after (Wirth 1976, Algorithms + Data Structures = Programs, sec. 2.3.4,
+ * after Hoare 1961, Algorithm 65 FIND). Expected O(n), in place, no allocation. Signed indices:
+ * j may step to lo - 1. */
+static void select_kth(double *a, size_t n, size_t k_)
+{
+    ptrdiff_t lo = 0, hi = (ptrdiff_t)n - 1, k = (ptrdiff_t)k_;
+    while (lo < hi) {
+        double pivot = a[k];
+        ptrdiff_t i = lo, j = hi;
+        do {
+            while (a[i] < pivot)
+                i++;
+            while (pivot < a[j])
+                j--;
+            if (i <= j) {
+                double t = a[i];
+                a[i] = a[j];
+                a[j] = t;
+                i++;
+                j--;
+            }
+        } while (i <= j);
+        if (j < k)
+            lo = i;
+        if (k < i)
+            hi = j;
+    }
+}
+
+/* Quantile q of exp(a[0..n)) by linear interpolation between order statistics, the same
+ * arithmetic as gsl_stats_quantile_from_sorted_data (Hyndman & Fan 1996, definition 7) but by
+ * selection instead of a sort. exp is increasing, so order statistics of a give those of exp(a).
+ * Reorders a. */
+static double quantile_exp(double *a, size_t n, double q)
+{
+    double delta = (double)(n - 1) * q;
+    size_t lhs = (size_t)delta;
+    delta -= (double)lhs;
+    select_kth(a, n, lhs);
+    if (lhs == n - 1)
+        return exp(a[lhs]);
+    /* After the selection every value above lhs is >= a[lhs]: the next order statistic is their minimum. */
+    double next = a[lhs + 1];
+    for (size_t i = lhs + 2; i < n; i++)
+        next = a[i] < next ? a[i] : next;
+    return (1 - delta) * exp(a[lhs]) + delta * exp(next);
+}
+
 static void record_bands(tf_projection *p, workspace *w, size_t t)
 {
     size_t R = p->n_runs;
     memcpy(w->scratch, w->x, R * sizeof *w->scratch);
-    /* Sorting log-abundance and then taking exp keeps the order (exp is increasing); gsl_sort is an
-     * in-place heapsort, so the year loop allocates nothing. */
-    gsl_sort(w->scratch, 1, R);
-    for (size_t i = 0; i < R; i++)
-        w->scratch[i] = exp(w->scratch[i]);
     for (int b = 0; b < TF_BAND_COUNT; b++)
-        p->bands[t * TF_BAND_COUNT + (size_t)b] = gsl_stats_quantile_from_sorted_data(w->scratch, 1, R, band_levels[b]);
+        p->bands[t * TF_BAND_COUNT + (size_t)b] = quantile_exp(w->scratch, R, band_levels[b]);
 }
 
 static void record_thresholds(tf_projection *p, workspace *w, size_t t)
@@ -415,6 +457,10 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
     record_bands(p, &w, 0);
     record_thresholds(p, &w, 0);
     for (size_t t = 1; t <= T; t++) {
+        if (opts->stop && *opts->stop) {
+            st = tf_error_add(err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "projection interrupted in year %zu", t);
+            goto fail;
+        }
         if (step_year(&w, R, rng)) {
             st = tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, NULL,
                               "the growth model's drift gave a non-number in projection year %zu", t);

@@ -4,6 +4,7 @@
 #ifndef TF_PROJECT_H
 #define TF_PROJECT_H
 
+#include <signal.h>
 #include <stddef.h>
 
 #include "model/model.h"
@@ -69,6 +70,9 @@ typedef struct {
     size_t n_declines;     /* 0..TF_PROJECT_MAX_DECLINES, each in (0, 1) */
     double declines[TF_PROJECT_MAX_DECLINES];
     size_t decline_window; /* extra window in years (e.g. three generations); 0 = none */
+    /* Polled once per simulated year; when it reads nonzero the run stops with
+     * TF_ERR_INTERRUPTED. NULL = never (a signal handler's flag, for Ctrl-C). */
+    const volatile sig_atomic_t *stop;
 } tf_project_options;
 
 /* Defaults: horizon 50, n_runs 0 (see above), no thresholds, declines of 30, 50 and 80 %
@@ -94,7 +98,8 @@ typedef struct tf_projection tf_projection;
  * On success stores a new result in *out (free with tf_projection_free). TF_ERR_RANGE / TF_ERR_INVALID
  * for bad options, weights, draws (non-finite, outside the growth model's support, sigma < 0) or
  * starts outside the log-abundance bounds; TF_ERR_NUMERIC if the drift returns a non-number;
- * TF_ERR_NOMEM. On failure *out is NULL; rng has advanced by an unspecified amount. */
+ * TF_ERR_INTERRUPTED once *opts->stop reads nonzero; TF_ERR_NOMEM. On failure *out is NULL; rng has
+ * advanced by an unspecified amount. */
 tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const tf_project_options *opts,
                          tf_rng *rng, tf_projection **out, tf_error *err);
 

@@ -3,6 +3,9 @@
 #include <math.h>
 #include <string.h>
 
+#include <gsl/gsl_sort.h>
+#include <gsl/gsl_statistics_double.h>
+
 #include "project/cautions.h"
 #include "project/project.h"
 
@@ -473,6 +476,51 @@ START_TEST(bands_follow_lognormal_law)
 }
 END_TEST
 
+/* The bands by selection against GSL's quantile of sorted data (gsl_stats_quantile_from_sorted_data,
+ * GSL reference manual, "Median and Percentiles") on the same values: with r = 0 and sigma = 0 every
+ * year holds the starts of the draws. Ties (repeated starts) and an even count included. */
+START_TEST(bands_match_gsl_quantiles)
+{
+    enum { D = 1000 };
+    static double theta[2 * D], x0[D], sorted[D];
+    tf_rng rng = seeded(99);
+    for (size_t d = 0; d < D; d++) {
+        theta[2 * d] = 0;
+        theta[2 * d + 1] = 0;
+        x0[d] = d % 7 == 0 ? 4.0 : 3 + 2 * tf_rng_uniform(&rng);
+    }
+    tf_project_input in = {&exp_growth, 1, 2, D, theta, x0, 1};
+    tf_project_options o;
+    tf_project_options_init(&o);
+    o.n_runs = D;
+    o.horizon = 3;
+    tf_projection *p = run_ok(&in, 1, &o, 1);
+    for (size_t d = 0; d < D; d++)
+        sorted[d] = exp(x0[d]);
+    gsl_sort(sorted, 1, D);
+    for (size_t t = 0; t <= 3; t++)
+        for (int q = 0; q < TF_BAND_COUNT; q++)
+            ck_assert(tf_projection_band(p, t, (tf_band)q) ==
+                      gsl_stats_quantile_from_sorted_data(sorted, 1, D, tf_project_band_level((tf_band)q)));
+    tf_projection_free(p);
+}
+END_TEST
+
+START_TEST(stop_flag_interrupts)
+{
+    fixed_draw f;
+    tf_project_input in = exp_input(&f, 0, 0.1, 100, 1);
+    tf_project_options o;
+    tf_project_options_init(&o);
+    volatile sig_atomic_t stop = 1;
+    o.stop = &stop;
+    ck_assert_int_eq(run_status(&in, 1, &o), TF_ERR_INTERRUPTED);
+    stop = 0;
+    tf_projection *p = run_ok(&in, 1, &o, 1);
+    tf_projection_free(p);
+}
+END_TEST
+
 /* Growth of 10 a year for 50 years would reach e^{504}: the bound keeps every band finite. */
 START_TEST(log_abundance_is_capped)
 {
@@ -591,6 +639,8 @@ static Suite *make_suite(void)
     tcase_add_test(tc, monte_carlo_error);
     tcase_add_test(tc, deterministic_with_seed);
     tcase_add_test(tc, bands_follow_lognormal_law);
+    tcase_add_test(tc, bands_match_gsl_quantiles);
+    tcase_add_test(tc, stop_flag_interrupts);
     tcase_add_test(tc, log_abundance_is_capped);
     tcase_add_test(tc, bad_input_is_refused);
     tcase_add_test(tc, cautions_present);

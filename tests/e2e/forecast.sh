@@ -1,0 +1,122 @@
+#!/usr/bin/env bash
+# End-to-end checks of `tallyfit forecast` in its fixed-parameter form: the tables and their
+# headers, the cautions, and that a bad command line fails with exit 2 and leaves no files.
+set -uo pipefail
+: "${TALLYFIT:?TALLYFIT must name the binary}"
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+fails=0
+fail() { echo "forecast.sh: $*" >&2; fails=$((fails + 1)); }
+
+# A good run: three tables with their headers, one row per year (t = 0..H) for the bands.
+out="$tmp/good"
+if ! "$TALLYFIT" forecast --fixed r=-0.02,sigma=0.1 --start 500 --years 30 --runs 500 \
+     --threshold 50,100,20% --decline-window 24 --seed 3 -o "$out" >"$tmp/stdout" 2>"$tmp/stderr"; then
+  fail "a good run failed: $(cat "$tmp/stderr")"
+fi
+expect_header() {  # file, header
+  [ -f "$out/$1" ] || { fail "$1 was not written"; return; }
+  [ "$(head -n 1 "$out/$1")" = "$2" ] || fail "$1 header is '$(head -n 1 "$out/$1")'"
+}
+expect_header forecast_bands.csv "year,calendar_year,median,pct25,pct75,pct5,pct95"
+expect_header forecast_quasi_extinction.csv "year,calendar_year,threshold,probability,se"
+expect_header forecast_declines.csv "window,decline,probability,se"
+[ "$(wc -l <"$out/forecast_bands.csv")" -eq 32 ] || fail "bands should have a header and 31 years"
+# 3 thresholds x 31 years, and 2 windows x 3 declines.
+[ "$(wc -l <"$out/forecast_quasi_extinction.csv")" -eq 94 ] || fail "quasi-extinction table has the wrong length"
+[ "$(wc -l <"$out/forecast_declines.csv")" -eq 7 ] || fail "declines table has the wrong length"
+grep -q '^0,,500,500,500,500,500$' "$out/forecast_bands.csv" || fail "year 0 of the bands is not the start"
+grep -q '^24,0.5,' "$out/forecast_declines.csv" || fail "the extra decline window is missing"
+grep -q ',20%,' "$out/forecast_quasi_extinction.csv" || fail "the relative threshold is missing"
+[ -z "$(ls "$out" | grep -v '\.csv$')" ] || fail "stray files left in the output folder: $(ls "$out")"
+for phrase in "not a formal status listing" "responsible authority" "model-based probabilities" \
+              "Quasi-extinction" "Decline"; do
+  grep -q "$phrase" "$tmp/stdout" || fail "output lacks '$phrase'"
+done
+
+# The same seed gives the same tables.
+"$TALLYFIT" forecast --fixed r=-0.02,sigma=0.1 --start 500 --years 30 --runs 500 --threshold 50,100,20% \
+  --decline-window 24 --seed 3 -o "$tmp/again" -q >/dev/null 2>&1 || fail "the repeat run failed"
+cmp -s "$out/forecast_quasi_extinction.csv" "$tmp/again/forecast_quasi_extinction.csv" || fail "same seed, other numbers"
+
+# --quiet still prints the cautions, and nothing else of the summary.
+"$TALLYFIT" forecast --fixed r=0.01,sigma=0.2 --start 80 -o "$tmp/quiet" --quiet >"$tmp/stdout" 2>&1 ||
+  fail "quiet run failed"
+grep -q "not a formal status listing" "$tmp/stdout" || fail "--quiet dropped the cautions"
+grep -q "Quasi-extinction" "$tmp/stdout" && fail "--quiet printed the summary"
+
+# --help succeeds and names the options.
+"$TALLYFIT" forecast --help >"$tmp/help" 2>&1 || fail "--help failed"
+grep -q -- "--fixed" "$tmp/help" && grep -q -- "--threshold" "$tmp/help" || fail "--help lacks the options"
+"$TALLYFIT" --help | grep -q '^  forecast ' || fail "forecast is not listed by tallyfit --help"
+
+# Bad command lines: exit 2, a message with a hint or reason, and no output folder.
+bad() {  # description, arguments...
+  local what=$1; shift
+  local dir="$tmp/bad"
+  "$TALLYFIT" forecast "$@" -o "$dir" >"$tmp/stdout" 2>"$tmp/stderr"
+  local rc=$?
+  [ "$rc" -eq 2 ] || fail "$what: exit $rc, expected 2"
+  [ -s "$tmp/stderr" ] || fail "$what: no message"
+  [ -e "$dir" ] && { fail "$what: left $dir behind"; rm -rf "$dir"; }
+}
+ok_fixed=(--fixed r=-0.02,sigma=0.1 --start 500)
+bad "unknown option" "${ok_fixed[@]}" --frobnicate
+grep -q "hint: run 'tallyfit forecast --help'" "$tmp/stderr" || fail "unknown option gives no hint"
+bad "missing value" "${ok_fixed[@]}" --years
+bad "zero years" "${ok_fixed[@]}" --years 0
+bad "years not a number" "${ok_fixed[@]}" --years ten
+bad "fractional window" "${ok_fixed[@]}" --decline-window 2.5
+bad "zero runs" "${ok_fixed[@]}" --runs 0
+bad "negative seed" "${ok_fixed[@]}" --seed -4
+bad "zero threshold" "${ok_fixed[@]}" --threshold 0
+bad "threshold not a number" "${ok_fixed[@]}" --threshold 50,lots
+bad "percentage above 100" "${ok_fixed[@]}" --threshold 120%
+bad "negative start" --fixed r=0,sigma=0.1 --start -5
+bad "no start and no survey" --fixed r=0,sigma=0.1
+bad "sigma missing" --fixed r=0 --start 100
+bad "unknown parameter" --fixed r=0,sigma=0.1,zeta=3 --start 100
+bad "parameter twice" --fixed r=0,r=1,sigma=0.1 --start 100
+bad "value not a number" --fixed r=fast,sigma=0.1 --start 100
+bad "negative sigma" --fixed r=0,sigma=-0.1 --start 100
+bad "unknown model" --model nosuchmodel --fixed r=0,sigma=0.1 --start 100
+bad "two survey files" "${ok_fixed[@]}" a.csv b.csv
+bad "average with fixed" "${ok_fixed[@]}" --average
+bad "no fixed parameters" --start 100
+grep -q "sampler" "$tmp/stderr" || fail "posterior projection should say it needs the sampler"
+
+# A failure after the folder exists: a folder where a table should go makes the group fail before
+# anything is renamed; exit 1, the earlier tables keep their content and no temporary file remains.
+"$TALLYFIT" forecast "${ok_fixed[@]}" --seed 3 -o "$tmp/clash" -q >/dev/null 2>&1 || fail "first run for the clash failed"
+cp "$tmp/clash/forecast_bands.csv" "$tmp/bands.before"
+rm "$tmp/clash/forecast_declines.csv"
+mkdir "$tmp/clash/forecast_declines.csv"
+"$TALLYFIT" forecast "${ok_fixed[@]}" --seed 4 -o "$tmp/clash" -q >/dev/null 2>"$tmp/stderr"
+rc=$?
+[ "$rc" -eq 1 ] || fail "write failure: exit $rc, expected 1"
+grep -q "forecast_declines.csv" "$tmp/stderr" || fail "write failure does not name the file"
+[ "$(ls -A "$tmp/clash" | tr '\n' ' ')" = "forecast_bands.csv forecast_declines.csv forecast_quasi_extinction.csv " ] ||
+  fail "write failure left: $(ls -A "$tmp/clash")"
+cmp -s "$tmp/clash/forecast_bands.csv" "$tmp/bands.before" || fail "write failure changed an earlier table"
+# An output path through a file: nothing is created.
+: >"$tmp/plainfile"
+"$TALLYFIT" forecast "${ok_fixed[@]}" -o "$tmp/plainfile/sub" -q >/dev/null 2>&1
+[ $? -eq 1 ] || fail "output below a file should fail with exit 1"
+
+# Ctrl-C during a long projection: exit 130 and no tables. A background job of a non-interactive
+# shell starts with SIGINT ignored until the command installs its handler, so the signal is
+# repeated until the process ends (a run this long would otherwise take minutes).
+"$TALLYFIT" forecast --fixed r=0,sigma=0.1 --start 100 --runs 5000000 --years 1000 -o "$tmp/int" -q \
+  >/dev/null 2>&1 &
+pid=$!
+for _ in $(seq 100); do
+  sleep 0.2
+  kill -INT "$pid" 2>/dev/null || break
+done
+kill -KILL "$pid" 2>/dev/null && fail "interrupted run did not stop"
+wait "$pid"
+rc=$?
+[ "$rc" -eq 130 ] || fail "interrupted run: exit $rc, expected 130"
+[ -e "$tmp/int" ] && fail "interrupted run left $(ls -A "$tmp/int")"
+
+[ "$fails" -eq 0 ]

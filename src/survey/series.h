@@ -21,7 +21,7 @@ void tf_series_free(tf_series *s);
 
 const char *tf_series_label(const tf_series *s);       /* never NULL; "" = unnamed */
 int tf_series_first_year(const tf_series *s);
-size_t tf_series_n_years(const tf_series *s);          /* span, first to last surveyed year */
+size_t tf_series_n_years(const tf_series *s);          /* span, first to last year listed */
 const double *tf_series_counts(const tf_series *s);    /* n_years; NAN = not surveyed */
 const double *tf_series_effort(const tf_series *s);    /* n_years; 1 where not surveyed */
 long tf_series_source_line(const tf_series *s, size_t i); /* input line of year i, 0 = none */

@@ -1,0 +1,200 @@
+/* `tallyfit check`: validates a survey file and prints an overview of each population. */
+#define _GNU_SOURCE
+#include <getopt.h>
+#include <math.h>
+#include <stdbool.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "cmd/cmd.h"
+#include "survey/survey.h"
+
+#define PROG "tallyfit check"
+
+static void help(FILE *out)
+{
+    fprintf(out,
+            "usage: tallyfit check SURVEY.csv [--quiet]\n"
+            "\n"
+            "Reads a survey file and either lists every problem in it (file, line and field\n"
+            "number, with a suggestion) or prints an overview of each population.\n"
+            "\n"
+            "The survey file is CSV (comma or semicolon) with a header row naming the columns:\n"
+            "  year        required; a whole number from %d to %d\n"
+            "  count       required; a number >= 0; empty or NA = not surveyed that year\n"
+            "  population  optional; a label, for files that hold several populations\n"
+            "  effort      optional; survey effort (km walked, hours...), a positive number\n"
+            "  note        optional; free text, ignored\n"
+            "Other columns are ignored; lines starting with # are comments. Each population\n"
+            "needs at least %d surveyed years with at least one count above zero.\n"
+            "\n"
+            "options:\n"
+            "  -q, --quiet   print nothing when the file is usable (the exit status tells)\n"
+            "  -h, --help    show this help\n"
+            "\n"
+            "For each population the overview gives:\n"
+            "  years        first and last year listed, and how many years lie between them\n"
+            "  surveyed     years with a count, then the years without one (runs joined:\n"
+            "               1999, 2004-2005)\n"
+            "  counts       smallest, median and largest count, and how many are zero\n"
+            "  effort       the same every year, or the range it varies over\n"
+            "  crude trend  the least-squares slope of log(count/effort + 0.5) against the year,\n"
+            "               shown as a percentage change per year. A crude screening figure,\n"
+            "               not a model estimate: it ignores observation error, density\n"
+            "               dependence and the missing years.\n"
+            "\n"
+            "exit status: %d usable, %d bad command line, %d the survey file is unusable\n",
+            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_EXIT_OK, TF_EXIT_USAGE,
+            TF_EXIT_INPUT);
+}
+
+static int usage_error(tf_error *err)
+{
+    tf_error_print(err, PROG, stderr);
+    return TF_EXIT_USAGE;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* Missing years with runs joined: "1999, 2004-2005", or "none". */
+static void print_missing(const tf_series *s, FILE *out)
+{
+    const double *y = tf_series_counts(s);
+    size_t n = tf_series_n_years(s);
+    int first = tf_series_first_year(s);
+    bool any = false;
+    for (size_t i = 0; i < n; i++) {
+        if (!isnan(y[i]))
+            continue;
+        size_t j = i;
+        while (j + 1 < n && isnan(y[j + 1]))
+            j++;
+        fprintf(out, "%s%d", any ? ", " : "", first + (int)i);
+        if (j > i)
+            fprintf(out, "-%d", first + (int)j);
+        any = true;
+        i = j;
+    }
+    if (!any)
+        fputs("none", out);
+}
+
+/* Least-squares slope of log(count/effort + 0.5) on year, over surveyed years. The 0.5 keeps zero
+ * counts usable (the usual log(y + 1/2) adjustment for counts, common practice, no source). */
+static double crude_slope(const tf_series *s)
+{
+    const double *y = tf_series_counts(s), *e = tf_series_effort(s);
+    size_t n = tf_series_n_years(s);
+    double sx = 0, sy = 0, m = 0;
+    for (size_t i = 0; i < n; i++)
+        if (!isnan(y[i]))
+            sx += (double)i, sy += log(y[i] / e[i] + 0.5), m++;
+    double mx = sx / m, my = sy / m, sxy = 0, sxx = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (isnan(y[i]))
+            continue;
+        double dx = (double)i - mx;
+        sxy += dx * (log(y[i] / e[i] + 0.5) - my);
+        sxx += dx * dx;
+    }
+    return sxy / sxx; /* the importer guarantees >= 5 distinct surveyed years, so sxx > 0 */
+}
+
+/* Prints one population; false when out of memory. */
+static bool print_series(const tf_series *s, FILE *out)
+{
+    size_t n = tf_series_n_years(s), n_surveyed = tf_series_n_surveyed(s);
+    const double *y = tf_series_counts(s), *e = tf_series_effort(s);
+    double *sorted = malloc(n_surveyed * sizeof *sorted);
+    if (!sorted)
+        return false;
+    size_t k = 0;
+    double e_min = INFINITY, e_max = -INFINITY;
+    for (size_t i = 0; i < n; i++) {
+        if (isnan(y[i]))
+            continue;
+        sorted[k++] = y[i];
+        e_min = fmin(e_min, e[i]);
+        e_max = fmax(e_max, e[i]);
+    }
+    qsort(sorted, k, sizeof *sorted, cmp_double);
+    double median = k % 2 ? sorted[k / 2] : 0.5 * (sorted[k / 2 - 1] + sorted[k / 2]);
+    int first = tf_series_first_year(s);
+
+    fprintf(out, "\n%s\n", tf_series_label(s)[0] ? tf_series_label(s) : "(unnamed population)");
+    fprintf(out, "  years:        %d-%d (%zu years)\n", first, first + (int)n - 1, n);
+    fprintf(out, "  surveyed:     %zu of %zu years; missing: ", n_surveyed, n);
+    print_missing(s, out);
+    fprintf(out, "\n  counts:       min %.10g, median %.10g, max %.10g; zero counts: %zu\n", sorted[0], median,
+            sorted[k - 1], tf_series_n_zero(s));
+    if (e_min == e_max)
+        fprintf(out, "  effort:       the same every year (%.6g)\n", e_min);
+    else
+        fprintf(out, "  effort:       varies from %.6g to %.6g\n", e_min, e_max);
+    double pct = 100.0 * (exp(crude_slope(s)) - 1.0);
+    fprintf(out, "  crude trend:  %+.1f%% per year (crude screening figure, not a model estimate)\n", pct);
+    free(sorted);
+    return true;
+}
+
+int tf_cmd_check(int argc, char **argv)
+{
+    static const struct option options[] = {
+        {"quiet", no_argument, NULL, 'q'},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0},
+    };
+    static const char hint[] = "see 'tallyfit check --help'";
+    tf_error err;
+    tf_error_init(&err);
+    bool quiet = false;
+    optind = 0; /* GNU getopt: 0 restarts the scan, so the command can run more than once */
+    opterr = 0;
+    int c;
+    while ((c = getopt_long(argc, argv, "qh", options, NULL)) != -1) {
+        switch (c) {
+        case 'q':
+            quiet = true;
+            break;
+        case 'h':
+            help(stdout);
+            return TF_EXIT_OK;
+        default: {
+            const char *arg = argv[optind - 1];
+            if (!strncmp(arg, "--", 2) || !optopt)
+                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", arg);
+            else
+                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '-%c'", optopt);
+            return usage_error(&err);
+        }
+        }
+    }
+    if (argc - optind != 1) {
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, argc == optind ? "no survey file given"
+                                                                          : "give exactly one survey file");
+        return usage_error(&err);
+    }
+    const char *path = argv[optind];
+    tf_survey *sv = NULL;
+    if (tf_survey_read(path, &sv, &err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_INPUT;
+    }
+    int rc = TF_EXIT_OK;
+    if (!quiet) {
+        size_t n = tf_survey_n_series(sv);
+        printf("%s: %zu population%s, usable for model fitting\n", path, n, n == 1 ? "" : "s");
+        for (size_t i = 0; i < n && rc == TF_EXIT_OK; i++)
+            if (!print_series(tf_survey_series(sv, i), stdout)) {
+                fprintf(stderr, PROG ": out of memory\n");
+                rc = TF_EXIT_FAIL;
+            }
+    }
+    tf_survey_free(sv);
+    return rc;
+}

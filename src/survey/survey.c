@@ -1,0 +1,883 @@
+/* Survey import: splits the file into lines, lets libcsv parse the fields, checks every value,
+ * then groups the rows by population into tf_series objects. */
+#include "survey/survey.h"
+
+#include <csv.h>
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdbool.h>
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <sys/stat.h>
+
+struct tf_survey {
+    char *path;
+    size_t n_series;
+    tf_series **series;
+};
+
+enum { COL_YEAR, COL_COUNT, COL_POP, COL_EFFORT, COL_NOTE, N_KNOWN };
+static const char *const known_names[N_KNOWN] = {"year", "count", "population", "effort", "note"};
+
+/* Longest value quoted back in a message, in bytes. */
+#define SHOW_MAX 40
+
+static const char HINT_MISSING[] = "write NA or leave the cell empty for a year that was not surveyed";
+static const char HINT_QUOTES[] = "a value that contains the delimiter, a quote or a line break must be "
+                                  "in double quotes, with each quote inside it doubled (\"\")";
+
+/* One data row with a usable population label (other values may have been rejected). */
+typedef struct {
+    size_t label_off;   /* into reader.labels while reading */
+    const char *label;  /* filled once reading is done and the arena no longer moves */
+    int year;
+    double count;       /* NAN = not surveyed */
+    double effort;
+    long line;
+    size_t seq;         /* order in the file */
+    bool bad;           /* some value of the row was rejected (already reported) */
+    bool no_year;       /* the year was rejected: the row only marks its population as faulty */
+} row;
+
+typedef struct {
+    size_t start, n;    /* range in the rows array */
+    size_t first_seq;   /* where the population first appears in the file */
+} group;
+
+typedef struct {
+    const char *name;
+    tf_error *err;
+    size_t n_reported;  /* messages this read produced, kept or dropped */
+    tf_status first_status; /* of the message with the lowest line, the earliest among equals */
+    long first_line;
+    bool nomem;
+
+    struct csv_parser csv;
+    bool csv_live;
+    unsigned char delim;
+
+    /* The record being parsed: NUL-terminated, trimmed fields packed in fbuf. */
+    char *fbuf;
+    size_t fbuf_len, fbuf_cap;
+    size_t *foff;
+    size_t n_fields, foff_cap;
+    long line;          /* physical line being fed */
+    long rec_line;      /* line the record started on */
+    bool rec_bad;       /* the record touches a line with an encoding error (already reported) */
+    bool rec_ended;     /* libcsv ended a record while the current line was fed */
+
+    bool have_header;
+    bool stop;          /* nothing more can be read sensibly (bad header, too many rows) */
+    long header_line;
+    size_t n_cols;
+    long col[N_KNOWN];  /* 0-based field index, -1 = absent */
+    size_t n_data;      /* data records seen, good or bad */
+    bool orphan_fault;  /* a faulty record could not be given to any population */
+
+    row *rows;
+    size_t n_rows, rows_cap;
+    char *labels;
+    size_t labels_len, labels_cap;
+} reader;
+
+static void report(reader *r, tf_status status, long line, long col, const char *hint, const char *fmt, ...)
+    __attribute__((format(printf, 6, 7)));
+
+static void report(reader *r, tf_status status, long line, long col, const char *hint, const char *fmt, ...)
+{
+    char what[sizeof r->err->items[0].what];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(what, sizeof what, fmt, ap);
+    va_end(ap);
+    tf_error_add(r->err, status, r->name, line, col, hint, "%s", what);
+    if (!r->n_reported++ || line < r->first_line) {
+        r->first_status = status;
+        r->first_line = line;
+    }
+}
+
+/* Grows *buf to hold need elements of size elem; false (buffer untouched) when out of memory. */
+static bool reserve(void **buf, size_t *cap, size_t need, size_t elem)
+{
+    if (need <= *cap)
+        return true;
+    size_t n = *cap ? *cap : 16;
+    while (n < need) {
+        if (n > SIZE_MAX / 2 / elem)
+            return false;
+        n *= 2;
+    }
+    void *p = realloc(*buf, n * elem);
+    if (!p)
+        return false;
+    *buf = p;
+    *cap = n;
+    return true;
+}
+
+static bool is_blank(char c) { return c == ' ' || c == '\t'; }
+static bool is_digit(char c) { return c >= '0' && c <= '9'; }
+
+/* Copies s into buf (size n) for quoting in a message: control bytes escaped, long values cut at
+ * a character boundary and marked with "...". s is valid UTF-8 (checked per line beforehand). */
+static const char *show(char *buf, size_t n, const char *s)
+{
+    size_t o = 0, i = 0;
+    for (; s[i] && i < SHOW_MAX && o + 5 < n; i++) {
+        unsigned char c = (unsigned char)s[i];
+        if (c < 0x20 || c == 0x7f)
+            o += (size_t)snprintf(buf + o, n - o, "\\x%02x", c);
+        else
+            buf[o++] = (char)c;
+    }
+    if (s[i]) {
+        /* Cut inside a character: drop its leading bytes too. */
+        if (((unsigned char)s[i] & 0xc0) == 0x80) {
+            while (o > 0 && ((unsigned char)buf[o - 1] & 0xc0) == 0x80)
+                o--;
+            if (o > 0)
+                o--;
+        }
+        snprintf(buf + o, n - o, "...");
+    } else {
+        buf[o] = '\0';
+    }
+    return buf;
+}
+
+/* Byte offset of the first byte that breaks UTF-8 (RFC 3629 section 4: no overlong forms, no
+ * surrogates, nothing above U+10FFFF), or len when the text is valid. */
+static size_t utf8_bad_at(const unsigned char *s, size_t len)
+{
+    size_t i = 0;
+    while (i < len) {
+        unsigned char c = s[i];
+        size_t n;
+        unsigned lo = 0x80, hi = 0xbf;
+        if (c < 0x80) {
+            i++;
+            continue;
+        } else if (c >= 0xc2 && c <= 0xdf) {
+            n = 1;
+        } else if (c >= 0xe0 && c <= 0xef) {
+            n = 2;
+            if (c == 0xe0)
+                lo = 0xa0;
+            if (c == 0xed)
+                hi = 0x9f;
+        } else if (c >= 0xf0 && c <= 0xf4) {
+            n = 3;
+            if (c == 0xf0)
+                lo = 0x90;
+            if (c == 0xf4)
+                hi = 0x8f;
+        } else {
+            return i;
+        }
+        if (len - i <= n)
+            return i;
+        for (size_t k = 1; k <= n; k++) {
+            unsigned char d = s[i + k];
+            if (d < (k == 1 ? lo : 0x80) || d > (k == 1 ? hi : 0xbf))
+                return i;
+        }
+        i += n + 1;
+    }
+    return len;
+}
+
+/* Field number (1-based) that byte pos of a line falls in, counting delimiters outside quotes. */
+static long field_at(const char *s, size_t pos, unsigned char delim)
+{
+    long f = 1;
+    bool quoted = false;
+    for (size_t i = 0; i < pos; i++) {
+        if (s[i] == '"')
+            quoted = !quoted;
+        else if (!quoted && (unsigned char)s[i] == delim)
+            f++;
+    }
+    return f;
+}
+
+/* The header decides the delimiter: whichever of ';' and ',' occurs more often outside quotes. */
+static unsigned char detect_delim(const char *s, size_t len)
+{
+    size_t n_comma = 0, n_semi = 0;
+    bool quoted = false;
+    for (size_t i = 0; i < len; i++) {
+        if (s[i] == '"')
+            quoted = !quoted;
+        else if (!quoted)
+            n_comma += s[i] == ',', n_semi += s[i] == ';';
+    }
+    return n_semi > n_comma ? ';' : ',';
+}
+
+/* A whole number in plain decimal digits, optionally signed; more than 9 digits are clamped to
+ * +-999999999, which every range check here rejects. */
+static bool parse_int(const char *s, long *out)
+{
+    const char *p = s + (*s == '-' || *s == '+');
+    if (!*p)
+        return false;
+    for (const char *q = p; *q; q++)
+        if (!is_digit(*q))
+            return false;
+    *out = strlen(p) > 9 ? 999999999 : strtol(p, NULL, 10);
+    if (*s == '-')
+        *out = -*out;
+    return true;
+}
+
+/* A decimal number: optional sign, digits with an optional point, optional exponent. The other
+ * forms strtod accepts (inf, nan, hex) and trailing junk are refused here. The program never calls
+ * setlocale, so strtod reads a point as the decimal separator. */
+static bool parse_decimal(const char *s, double *out)
+{
+    const char *p = s + (*s == '-' || *s == '+');
+    size_t n_digits = 0;
+    while (is_digit(*p))
+        p++, n_digits++;
+    if (*p == '.')
+        for (p++; is_digit(*p); p++)
+            n_digits++;
+    if (!n_digits)
+        return false;
+    if (*p == 'e' || *p == 'E') {
+        p++;
+        p += *p == '-' || *p == '+';
+        if (!is_digit(*p))
+            return false;
+        while (is_digit(*p))
+            p++;
+    }
+    if (*p)
+        return false;
+    *out = strtod(s, NULL) + 0.0; /* + 0.0 turns -0 into 0 */
+    return true;
+}
+
+static bool is_missing(const char *s) { return !*s || !strcasecmp(s, "NA"); }
+
+static const char *field(const reader *r, long i) { return r->fbuf + r->foff[i]; }
+
+static void on_field(void *s, size_t len, void *data)
+{
+    reader *r = data;
+    if (r->nomem)
+        return;
+    const char *p = s;
+    while (len && is_blank(p[0]))
+        p++, len--;
+    while (len && is_blank(p[len - 1]))
+        len--;
+    if (!reserve((void **)&r->fbuf, &r->fbuf_cap, r->fbuf_len + len + 1, 1) ||
+        !reserve((void **)&r->foff, &r->foff_cap, r->n_fields + 1, sizeof *r->foff)) {
+        r->nomem = true;
+        return;
+    }
+    r->foff[r->n_fields++] = r->fbuf_len;
+    if (len)
+        memcpy(r->fbuf + r->fbuf_len, p, len);
+    r->fbuf[r->fbuf_len + len] = '\0';
+    r->fbuf_len += len + 1;
+}
+
+static bool looks_like_data(const reader *r)
+{
+    long y;
+    double c;
+    for (size_t i = 0; i < r->n_fields; i++)
+        if (parse_int(field(r, (long)i), &y) || parse_decimal(field(r, (long)i), &c))
+            return true;
+    return false;
+}
+
+static void read_header(reader *r)
+{
+    r->have_header = true;
+    r->header_line = r->rec_line;
+    r->n_cols = r->n_fields;
+    for (int k = 0; k < N_KNOWN; k++)
+        r->col[k] = -1;
+    bool ok = true;
+    for (size_t i = 0; i < r->n_fields; i++) {
+        const char *name = field(r, (long)i);
+        for (int k = 0; k < N_KNOWN; k++) {
+            if (strcasecmp(name, known_names[k]))
+                continue;
+            if (r->col[k] >= 0) {
+                report(r, TF_ERR_PARSE, r->rec_line, (long)i + 1, "rename or remove one of the two columns",
+                       "column '%s' is named twice in the header (fields %ld and %zu)", known_names[k],
+                       r->col[k] + 1, i + 1);
+                ok = false;
+            } else {
+                r->col[k] = (long)i;
+            }
+        }
+    }
+    if (r->col[COL_YEAR] < 0 || r->col[COL_COUNT] < 0) {
+        ok = false;
+        if (r->col[COL_YEAR] < 0 && r->col[COL_COUNT] < 0 && looks_like_data(r)) {
+            report(r, TF_ERR_PARSE, r->rec_line, 0,
+                   "the first line that is not a comment must name the columns, e.g. 'year,count'",
+                   "line %ld looks like data, not a header row", r->rec_line);
+        } else {
+            for (int k = COL_YEAR; k <= COL_COUNT; k++)
+                if (r->col[k] < 0)
+                    report(r, TF_ERR_PARSE, r->rec_line, 0,
+                           "the header must name a 'year' and a 'count' column (optional: population, "
+                           "effort, note)",
+                           "the header has no '%s' column", known_names[k]);
+        }
+    }
+    if (!ok)
+        r->stop = true;
+}
+
+/* Checks one data record. Every row with a usable population label is kept, even a faulty one, so
+ * that its population is known to be faulty and duplicate years are still found. */
+static void read_data(reader *r)
+{
+    char buf[4 * SHOW_MAX];
+    long line = r->rec_line;
+    if (++r->n_data > TF_SURVEY_MAX_ROWS) {
+        report(r, TF_ERR_RANGE, line, 0, "split the file, or check that it is a survey file",
+               "more than %d data rows; reading stops here", TF_SURVEY_MAX_ROWS);
+        r->stop = true;
+        return;
+    }
+    if (r->n_fields != r->n_cols) {
+        r->orphan_fault = true;
+        size_t first_odd = (r->n_fields < r->n_cols ? r->n_fields : r->n_cols) + 1;
+        report(r, TF_ERR_PARSE, line, (long)first_odd, HINT_QUOTES, "the row has %zu fields but the header has %zu",
+               r->n_fields, r->n_cols);
+        return;
+    }
+    row w = {.count = NAN, .effort = 1.0, .line = line, .seq = r->n_rows};
+    bool labelled = true;
+
+    long ycol = r->col[COL_YEAR];
+    const char *ys = field(r, ycol);
+    long year = 0;
+    if (!*ys) {
+        report(r, TF_ERR_PARSE, line, ycol + 1, "every row needs its year", "the year is empty");
+        w.no_year = true;
+    } else if (!parse_int(ys, &year)) {
+        report(r, TF_ERR_PARSE, line, ycol + 1, "write the year as four digits, e.g. 2004",
+               "year '%s' is not a whole number", show(buf, sizeof buf, ys));
+        w.no_year = true;
+    } else if (year < TF_SURVEY_YEAR_MIN || year > TF_SURVEY_YEAR_MAX) {
+        report(r, TF_ERR_RANGE, line, ycol + 1, "check the year for a typing error",
+               "year %s is outside %d..%d", show(buf, sizeof buf, ys), TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
+        w.no_year = true;
+    }
+    w.year = (int)year;
+
+    long ccol = r->col[COL_COUNT];
+    const char *cs = field(r, ccol);
+    double c;
+    if (!is_missing(cs)) {
+        if (!parse_decimal(cs, &c)) {
+            report(r, TF_ERR_PARSE, line, ccol + 1,
+                   strchr(cs, ',') ? "write decimals with a point, e.g. 12.5" : HINT_MISSING,
+                   "count '%s' is not a number", show(buf, sizeof buf, cs));
+            w.bad = true;
+        } else if (c < 0) {
+            report(r, TF_ERR_RANGE, line, ccol + 1, HINT_MISSING, "count %s is negative", show(buf, sizeof buf, cs));
+            w.bad = true;
+        } else if (!(c <= TF_SURVEY_MAX_COUNT)) {
+            report(r, TF_ERR_RANGE, line, ccol + 1, "check the count for a typing error",
+                   "count %s is larger than %g", show(buf, sizeof buf, cs), TF_SURVEY_MAX_COUNT);
+            w.bad = true;
+        } else {
+            w.count = c;
+        }
+    }
+
+    /* Effort only matters in a surveyed year; for a missing count it is not read. */
+    long ecol = r->col[COL_EFFORT];
+    if (ecol >= 0 && !is_missing(cs)) {
+        const char *es = field(r, ecol);
+        double e;
+        static const char hint[] = "give the survey effort (e.g. km walked, hours) as a positive number";
+        if (is_missing(es)) {
+            report(r, TF_ERR_PARSE, line, ecol + 1, hint, "the effort is missing for a surveyed year");
+            w.bad = true;
+        } else if (!parse_decimal(es, &e)) {
+            report(r, TF_ERR_PARSE, line, ecol + 1, hint, "effort '%s' is not a number", show(buf, sizeof buf, es));
+            w.bad = true;
+        } else if (!(e > 0 && isfinite(e))) {
+            report(r, TF_ERR_RANGE, line, ecol + 1, hint, "effort %s is not a positive number",
+                   show(buf, sizeof buf, es));
+            w.bad = true;
+        } else {
+            w.effort = e;
+        }
+    }
+
+    long pcol = r->col[COL_POP];
+    const char *label = pcol >= 0 ? field(r, pcol) : "";
+    if (pcol >= 0) {
+        size_t n = strlen(label);
+        bool ctrl = false;
+        for (size_t i = 0; i < n; i++)
+            ctrl |= (unsigned char)label[i] < 0x20 || label[i] == 0x7f;
+        if (!n) {
+            report(r, TF_ERR_INVALID, line, pcol + 1,
+                   "give every row a population label, or drop the column for a file with one population",
+                   "the population label is empty");
+            labelled = false;
+        } else if (n > TF_SURVEY_MAX_LABEL) {
+            report(r, TF_ERR_INVALID, line, pcol + 1, "use a shorter label",
+                   "population label '%s' is longer than %d bytes", show(buf, sizeof buf, label),
+                   TF_SURVEY_MAX_LABEL);
+            labelled = false;
+        } else if (ctrl) {
+            report(r, TF_ERR_INVALID, line, pcol + 1, "remove tabs and other control characters from the label",
+                   "population label '%s' contains a control character", show(buf, sizeof buf, label));
+            labelled = false;
+        }
+    }
+    if (!labelled) {
+        r->orphan_fault = true;
+        return;
+    }
+
+    /* Rows of one population usually follow each other: reuse the previous row's label copy. */
+    if (r->n_rows && !strcmp(r->labels + r->rows[r->n_rows - 1].label_off, label)) {
+        w.label_off = r->rows[r->n_rows - 1].label_off;
+    } else {
+        size_t n = strlen(label) + 1;
+        if (!reserve((void **)&r->labels, &r->labels_cap, r->labels_len + n, 1)) {
+            r->nomem = true;
+            return;
+        }
+        memcpy(r->labels + r->labels_len, label, n);
+        w.label_off = r->labels_len;
+        r->labels_len += n;
+    }
+    if (!reserve((void **)&r->rows, &r->rows_cap, r->n_rows + 1, sizeof *r->rows)) {
+        r->nomem = true;
+        return;
+    }
+    r->rows[r->n_rows++] = w;
+}
+
+static void on_record(int c, void *data)
+{
+    reader *r = data;
+    bool empty = true;
+    for (size_t i = 0; i < r->n_fields && empty; i++)
+        empty = !*field(r, (long)i);
+    /* A row of empty fields is how spreadsheets save a blank line. */
+    if (!r->nomem && !r->stop && !empty) {
+        if (r->rec_bad) {
+            r->orphan_fault = true;
+            if (!r->have_header)
+                r->stop = true; /* an unreadable header: the rows cannot be interpreted */
+        } else if (!r->have_header) {
+            read_header(r);
+        } else {
+            read_data(r);
+        }
+    }
+    r->n_fields = 0;
+    r->fbuf_len = 0;
+    r->rec_bad = false;
+    r->rec_ended = true;
+}
+
+static int is_lf(unsigned char c) { return c == '\n'; }
+
+static bool csv_start(reader *r)
+{
+    if (csv_init(&r->csv, CSV_STRICT | CSV_APPEND_NULL))
+        return false;
+    r->csv_live = true;
+    csv_set_term_func(&r->csv, is_lf);
+    csv_set_delim(&r->csv, r->delim);
+    return true;
+}
+
+static void csv_stop(reader *r)
+{
+    if (r->csv_live)
+        csv_free(&r->csv);
+    r->csv_live = false;
+}
+
+/* Reports a NUL byte or broken UTF-8 in the line; true when the line is clean. */
+static bool check_encoding(reader *r, const char *s, size_t len, bool in_record, bool skipped)
+{
+    const char *nul = memchr(s, '\0', len);
+    size_t bad = utf8_bad_at((const unsigned char *)s, len);
+    if (!nul && bad == len)
+        return true;
+    size_t at = nul && (size_t)(nul - s) < bad ? (size_t)(nul - s) : bad;
+    long col = skipped || in_record ? 0 : field_at(s, at, r->delim);
+    if (nul && (size_t)(nul - s) == at)
+        report(r, TF_ERR_PARSE, r->line, col, "save the survey as a plain-text CSV file",
+               "the line contains a NUL byte (byte %zu of the line)", at + 1);
+    else
+        report(r, TF_ERR_PARSE, r->line, col, "save the file with UTF-8 encoding",
+               "the line is not valid UTF-8 (byte %zu of the line)", at + 1);
+    return false;
+}
+
+/* Feeds one physical line (terminator removed) to libcsv. Comments and blank lines are only
+ * recognised between records, never inside a quoted value that spans lines. */
+static void feed_line(reader *r, const char *s, size_t len, bool *in_record)
+{
+    size_t lead = 0;
+    while (lead < len && is_blank(s[lead]))
+        lead++;
+    bool skip = !*in_record && (lead == len || s[lead] == '#');
+    if (!*in_record && !skip) {
+        r->rec_line = r->line;
+        if (!r->delim) {
+            r->delim = detect_delim(s, len);
+            csv_set_delim(&r->csv, r->delim);
+        }
+    }
+    bool clean = check_encoding(r, s, len, *in_record, skip);
+    if (skip)
+        return;
+    if (!clean)
+        r->rec_bad = true;
+    r->rec_ended = false;
+    size_t done = csv_parse(&r->csv, s, len, on_field, on_record, r);
+    if (done == len)
+        done += csv_parse(&r->csv, "\n", 1, on_field, on_record, r) == 1;
+    if (done == len + 1) {
+        *in_record = !r->rec_ended;
+        return;
+    }
+    if (csv_error(&r->csv) == CSV_EPARSE) {
+        r->orphan_fault = true;
+        if (!r->rec_bad)
+            report(r, TF_ERR_PARSE, r->line, (long)r->n_fields + 1, HINT_QUOTES, "misplaced double quote");
+        if (!r->have_header)
+            r->stop = true; /* without the header the rows cannot be interpreted */
+    } else {
+        r->nomem = true;
+    }
+    /* libcsv cannot resume after an error: start afresh on the next line. */
+    csv_stop(r);
+    r->n_fields = 0;
+    r->fbuf_len = 0;
+    r->rec_bad = false;
+    *in_record = false;
+    if (!r->nomem && !csv_start(r))
+        r->nomem = true;
+}
+
+static int by_label_seq(const void *a, const void *b)
+{
+    const row *x = a, *y = b;
+    int c = strcmp(x->label, y->label);
+    return c ? c : (x->seq > y->seq) - (x->seq < y->seq);
+}
+
+/* Rows without a usable year go last. */
+static int by_year_seq(const void *a, const void *b)
+{
+    const row *x = a, *y = b;
+    if (x->no_year != y->no_year)
+        return x->no_year - y->no_year;
+    if (x->year != y->year)
+        return (x->year > y->year) - (x->year < y->year);
+    return (x->seq > y->seq) - (x->seq < y->seq);
+}
+
+static int by_first_seq(const void *a, const void *b)
+{
+    const group *x = a, *y = b;
+    return (x->first_seq > y->first_seq) - (x->first_seq < y->first_seq);
+}
+
+/* Printable name of a population in a message. */
+static const char *who(char *buf, size_t n, const char *label)
+{
+    if (!*label)
+        return "the population";
+    char v[4 * SHOW_MAX];
+    snprintf(buf, n, "population '%s'", show(v, sizeof v, label));
+    return buf;
+}
+
+/* Sorts one population's rows by year and checks what needs all of them: duplicate years, the
+ * span, and enough surveyed, non-zero counts. rows[0] is the population's first row in the file.
+ * The counting checks are left out while other faults could change what is counted. */
+static void check_group(reader *r, row *rows, size_t n)
+{
+    char buf[5 * SHOW_MAX];
+    long first_line = rows[0].line;
+    bool bad = r->orphan_fault;
+    for (size_t i = 0; i < n; i++)
+        bad |= rows[i].bad || rows[i].no_year;
+    qsort(rows, n, sizeof *rows, by_year_seq);
+    while (n && rows[n - 1].no_year)
+        n--;
+    if (!n)
+        return;
+    long ycol = r->col[COL_YEAR] + 1, ccol = r->col[COL_COUNT] + 1;
+    for (size_t i = 1; i < n; i++) {
+        if (rows[i].year != rows[i - 1].year)
+            continue;
+        size_t j = i - 1;
+        while (j > 0 && rows[j - 1].year == rows[i].year)
+            j--;
+        report(r, TF_ERR_INVALID, rows[i].line, ycol, "keep one row per year and population",
+               "year %d appears twice%s%s (first on line %ld)", rows[i].year, *rows[i].label ? " for " : "",
+               *rows[i].label ? who(buf, sizeof buf, rows[i].label) : "", rows[j].line);
+        bad = true;
+    }
+    long span = (long)rows[n - 1].year - rows[0].year + 1;
+    if (span > TF_SURVEY_MAX_SPAN) {
+        report(r, TF_ERR_RANGE, rows[n - 1].line, ycol, "check the years for a typing error",
+               "%s spans %ld years (%d-%d); at most %d are allowed", who(buf, sizeof buf, rows[0].label), span,
+               rows[0].year, rows[n - 1].year, TF_SURVEY_MAX_SPAN);
+        bad = true;
+    }
+    if (bad)
+        return; /* counting surveyed years now would only repeat the problems above */
+    size_t n_surveyed = 0, n_zero = 0;
+    for (size_t i = 0; i < n; i++) {
+        n_surveyed += !isnan(rows[i].count);
+        n_zero += rows[i].count == 0;
+    }
+    if (n_surveyed < TF_SURVEY_MIN_SURVEYED) {
+        report(r, TF_ERR_INVALID, first_line, ccol, "survey more years, or leave this population out",
+               "%s has %zu surveyed year%s; at least %d are needed to fit a model",
+               who(buf, sizeof buf, rows[0].label), n_surveyed,
+               n_surveyed == 1 ? "" : "s", TF_SURVEY_MIN_SURVEYED);
+    } else if (n_zero == n_surveyed) {
+        report(r, TF_ERR_INVALID, first_line, ccol,
+               "a population never seen in the survey cannot be modelled; leave it out",
+               "%s has only zero counts", who(buf, sizeof buf, rows[0].label));
+    }
+}
+
+static tf_series *build_series(const row *rows, size_t n, double *counts, double *effort, long *lines,
+                               tf_error *err)
+{
+    int first = rows[0].year;
+    size_t span = (size_t)(rows[n - 1].year - first) + 1;
+    for (size_t i = 0; i < span; i++) {
+        counts[i] = NAN;
+        effort[i] = 1.0;
+        lines[i] = 0;
+    }
+    for (size_t i = 0; i < n; i++) {
+        size_t k = (size_t)(rows[i].year - first);
+        counts[k] = rows[i].count;
+        effort[k] = rows[i].effort;
+        lines[k] = rows[i].line;
+    }
+    return tf_series_new(rows[0].label, first, span, counts, effort, lines, err);
+}
+
+/* Groups the rows, checks each population and, when the whole file is clean, builds the survey.
+ * NULL when something was reported (or memory ran out, also reported). */
+static tf_survey *assemble(reader *r)
+{
+    tf_survey *sv = NULL;
+    group *groups = NULL;
+    double *counts = NULL, *effort = NULL;
+    long *lines = NULL;
+    size_t n_groups = 0;
+
+    if (!r->n_rows)
+        goto done; /* every data row was unreadable, and each said so */
+    for (size_t i = 0; i < r->n_rows; i++)
+        r->rows[i].label = r->labels + r->rows[i].label_off;
+    qsort(r->rows, r->n_rows, sizeof *r->rows, by_label_seq);
+    groups = malloc(r->n_rows * sizeof *groups);
+    if (!groups)
+        goto nomem;
+    for (size_t i = 0; i < r->n_rows; i++) {
+        if (i == 0 || strcmp(r->rows[i].label, r->rows[i - 1].label))
+            groups[n_groups++] = (group){i, 0, r->rows[i].seq};
+        groups[n_groups - 1].n++;
+    }
+    qsort(groups, n_groups, sizeof *groups, by_first_seq);
+    for (size_t g = 0; g < n_groups; g++)
+        check_group(r, r->rows + groups[g].start, groups[g].n);
+    if (r->n_reported)
+        goto done;
+
+    /* One workspace for every population; check_group has capped the span. */
+    counts = malloc(TF_SURVEY_MAX_SPAN * sizeof *counts);
+    effort = malloc(TF_SURVEY_MAX_SPAN * sizeof *effort);
+    lines = malloc(TF_SURVEY_MAX_SPAN * sizeof *lines);
+    sv = calloc(1, sizeof *sv);
+    if (!counts || !effort || !lines || !sv)
+        goto nomem;
+    sv->path = strdup(r->name);
+    sv->series = calloc(n_groups, sizeof *sv->series);
+    if (!sv->path || !sv->series)
+        goto nomem;
+    for (size_t g = 0; g < n_groups; g++) {
+        /* The rows were checked already, so only memory can fail here. */
+        sv->series[g] = build_series(r->rows + groups[g].start, groups[g].n, counts, effort, lines, NULL);
+        if (!sv->series[g])
+            goto nomem;
+        sv->n_series++;
+    }
+    goto done;
+nomem:
+    tf_survey_free(sv);
+    sv = NULL;
+    r->nomem = true;
+done:
+    free(groups);
+    free(counts);
+    free(effort);
+    free(lines);
+    return sv;
+}
+
+/* Puts the messages of this read in line order (stable; at most TF_ERROR_MAX of them). */
+static void sort_messages(tf_error *err, size_t first)
+{
+    if (!err)
+        return;
+    for (size_t i = first + 1; i < err->n_items; i++) {
+        tf_error_item it = err->items[i];
+        size_t j = i;
+        while (j > first && err->items[j - 1].line > it.line) {
+            err->items[j] = err->items[j - 1];
+            j--;
+        }
+        err->items[j] = it;
+    }
+}
+
+tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_survey **out, tf_error *err)
+{
+    *out = NULL;
+    reader r = {.name = name, .err = err};
+    size_t first_msg = err ? err->n_items : 0;
+
+    if (!csv_start(&r)) {
+        r.nomem = true;
+        goto finish;
+    }
+    /* A UTF-8 byte order mark, as spreadsheet programs write it. */
+    if (len >= 3 && !memcmp(data, "\xef\xbb\xbf", 3))
+        data += 3, len -= 3;
+    bool in_record = false;
+    size_t i = 0;
+    while (i < len && !r.stop && !r.nomem) {
+        /* A line ends at LF, CRLF or a lone CR. */
+        size_t e = i;
+        while (e < len && data[e] != '\n' && data[e] != '\r')
+            e++;
+        r.line++;
+        feed_line(&r, data + i, e - i, &in_record);
+        if (e < len && data[e] == '\r' && e + 1 < len && data[e + 1] == '\n')
+            e++;
+        i = e + 1;
+    }
+    if (r.nomem || r.stop)
+        goto finish;
+    if (in_record)
+        report(&r, TF_ERR_PARSE, r.rec_line, (long)r.n_fields + 1, HINT_QUOTES,
+               "a quoted value that starts on this line is never closed");
+    else if (!r.have_header && !r.line)
+        report(&r, TF_ERR_INVALID, 1, 0, "a survey file has a header row (e.g. 'year,count') and one row per year",
+               "the file is empty");
+    else if (!r.have_header)
+        report(&r, TF_ERR_INVALID, r.line, 0, "a survey file has a header row (e.g. 'year,count') and one row per year",
+               "the file has no header row (only comments and blank lines)");
+    else if (!r.n_data)
+        report(&r, TF_ERR_INVALID, r.header_line, 0, "add one row per survey year below the header",
+               "the file has a header but no data rows");
+    else
+        *out = assemble(&r);
+
+finish:
+    if (r.nomem)
+        report(&r, TF_ERR_NOMEM, 0, 0, NULL, "out of memory reading the survey");
+    csv_stop(&r);
+    free(r.fbuf);
+    free(r.foff);
+    free(r.rows);
+    free(r.labels);
+    if (!r.n_reported)
+        return TF_OK;
+    tf_survey_free(*out);
+    *out = NULL;
+    sort_messages(err, first_msg);
+    return r.first_status;
+}
+
+tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err)
+{
+    static const char hint[] = "check the file name and that the file can be read";
+    *out = NULL;
+    FILE *f = fopen(path, "rb");
+    if (!f)
+        return tf_error_add(err, TF_ERR_IO, path, 0, 0, hint, "cannot open the survey file: %s", strerror(errno));
+    char *buf = NULL;
+    size_t len = 0, cap = 0;
+    tf_status st = TF_OK;
+    struct stat info;
+    /* Refuse a huge regular file before reading it; pipes are capped while reading. */
+    if (fstat(fileno(f), &info) == 0 && S_ISREG(info.st_mode) && info.st_size > TF_SURVEY_MAX_BYTES)
+        goto too_big;
+    for (;;) {
+        if (!reserve((void **)&buf, &cap, len + 65536, 1)) {
+            st = tf_error_add(err, TF_ERR_NOMEM, path, 0, 0, NULL, "out of memory reading the survey");
+            goto done;
+        }
+        size_t n = fread(buf + len, 1, cap - len, f);
+        len += n;
+        if (len > (size_t)TF_SURVEY_MAX_BYTES)
+            goto too_big;
+        if (n == 0)
+            break;
+    }
+    if (ferror(f)) {
+        st = tf_error_add(err, TF_ERR_IO, path, 0, 0, hint, "cannot read the survey file: %s", strerror(errno));
+        goto done;
+    }
+    st = tf_survey_parse(path, buf ? buf : "", len, out, err);
+    goto done;
+too_big:
+    st = tf_error_add(err, TF_ERR_RANGE, path, 0, 0, "a survey file holds one row per year; check the file name",
+                      "the file is larger than %ld MiB", TF_SURVEY_MAX_BYTES >> 20);
+done:
+    fclose(f);
+    free(buf);
+    return st;
+}
+
+void tf_survey_free(tf_survey *sv)
+{
+    if (!sv)
+        return;
+    for (size_t i = 0; i < sv->n_series; i++)
+        tf_series_free(sv->series[i]);
+    free(sv->series);
+    free(sv->path);
+    free(sv);
+}
+
+const char *tf_survey_path(const tf_survey *sv) { return sv->path; }
+size_t tf_survey_n_series(const tf_survey *sv) { return sv->n_series; }
+const tf_series *tf_survey_series(const tf_survey *sv, size_t i) { return i < sv->n_series ? sv->series[i] : NULL; }
+
+const tf_series *tf_survey_find(const tf_survey *sv, const char *label)
+{
+    for (size_t i = 0; i < sv->n_series; i++)
+        if (!strcmp(tf_series_label(sv->series[i]), label))
+            return sv->series[i];
+    return NULL;
+}

@@ -540,14 +540,25 @@ static int survey_start(const options *o, const tf_survey *sv, double *start, in
         fputs(n > 10 ? " ...\n" : "\n", stderr);
         return TF_EXIT_USAGE;
     }
-    size_t last = tf_series_n_years(s) - 1;
-    *year0 = tf_series_first_year(s) + (int)last;
+    /* Year 0 is the last year with a count: rows listed after it without one add nothing to start
+     * from. */
+    const double *counts = tf_series_counts(s);
+    size_t last = tf_series_n_years(s);
+    while (last > 0 && isnan(counts[last - 1]))
+        last--;
     *label = tf_series_label(s);
+    if (last == 0) {
+        fprintf(stderr, PROG ": population '%s' has no surveyed count to start from\n  hint: give the current"
+                        " abundance with --start N\n", *label);
+        return TF_EXIT_FAIL;
+    }
+    last--;
+    *year0 = tf_series_first_year(s) + (int)last;
     if (!isnan(o->start)) {
         *start = o->start;
         return TF_EXIT_OK;
     }
-    double y = tf_series_counts(s)[last], e = tf_series_effort(s)[last];
+    double y = counts[last], e = tf_series_effort(s)[last];
     if (!(y > 0)) {
         fprintf(stderr, PROG ": the last surveyed count (%d) is 0, and a projection on the log scale cannot"
                         " start from zero\n  hint: give the current abundance with --start N\n", *year0);

@@ -3,6 +3,7 @@
 # headers, the cautions, and that a bad command line fails with exit 2 and leaves no files.
 set -uo pipefail
 : "${TALLYFIT:?TALLYFIT must name the binary}"
+repo=$(cd "$(dirname "$0")/../.." && pwd)
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 fails=0
@@ -84,6 +85,39 @@ bad "two survey files" "${ok_fixed[@]}" a.csv b.csv
 bad "average with fixed" "${ok_fixed[@]}" --average
 bad "no fixed parameters" --start 100
 grep -q "sampler" "$tmp/stderr" || fail "posterior projection should say it needs the sampler"
+
+# From a survey: the last surveyed count / effort is the start (trailing years without a count are
+# skipped), the calendar year of year 0 is that survey year, and the default folder is
+# output/<survey name>/ below the working directory.
+mkdir -p "$tmp/cwd"
+(cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/leading-trailing-na.csv" --fixed r=0,sigma=0.1 \
+   --years 5 --runs 100) >"$tmp/stdout" 2>"$tmp/stderr" || fail "survey run failed: $(cat "$tmp/stderr")"
+sv="$tmp/cwd/output/leading-trailing-na"
+grep -q '^0,2004,9,9,9,9,9$' "$sv/forecast_bands.csv" 2>/dev/null || fail "survey start is not 9 in 2004"
+grep -q '^5,2009,' "$sv/forecast_quasi_extinction.csv" 2>/dev/null || fail "calendar years do not run on"
+grep -q "last surveyed count" "$tmp/stdout" || fail "the survey start is not announced"
+# Several populations: one must be chosen; the folder then names it.
+(cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --fixed r=0,sigma=0.1 -q) \
+  >/dev/null 2>"$tmp/stderr"
+[ $? -eq 2 ] || fail "several populations without --population should exit 2"
+grep -q "'west'" "$tmp/stderr" || fail "the populations are not listed"
+[ -e "$tmp/cwd/output/multi-pop" ] && fail "a refused run created output/multi-pop"
+(cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population east \
+   --fixed r=0,sigma=0.1 --runs 100 -q) >/dev/null 2>&1 || fail "--population east failed"
+grep -q '^0,2004,198,' "$tmp/cwd/output/multi-pop/east/forecast_bands.csv" 2>/dev/null ||
+  fail "population east does not start from 198 in 2004"
+# Last count zero (south, 2002): cannot start on the log scale; --start overrides.
+"$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --fixed r=0,sigma=0.1 \
+  -o "$tmp/south" -q >/dev/null 2>&1
+[ $? -eq 1 ] || fail "a zero last count should exit 1"
+[ -e "$tmp/south" ] && fail "the zero-count run left $tmp/south"
+"$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --start 4 \
+  --fixed r=0,sigma=0.1 --runs 100 -o "$tmp/south" -q >/dev/null 2>&1 || fail "--start did not override"
+grep -q '^0,2002,4,' "$tmp/south/forecast_bands.csv" 2>/dev/null || fail "--start 4 not used"
+"$TALLYFIT" forecast "$tmp/no-such.csv" --fixed r=0,sigma=0.1 -o "$tmp/nosurvey" -q >/dev/null 2>&1
+[ $? -eq 3 ] || fail "a missing survey file should exit 3"
+bad "population without survey" --fixed r=0,sigma=0.1 --start 5 --population east
+bad "unknown population" "$repo/tests/data/good/multi-pop.csv" --fixed r=0,sigma=0.1 --population north
 
 # A failure after the folder exists: a folder where a table should go makes the group fail before
 # anything is renamed; exit 1, the earlier tables keep their content and no temporary file remains.

@@ -265,9 +265,9 @@ static void lay_out_runs(const tf_project_input *in, size_t n_inputs, const size
 }
 
 /* Rearranges a[0..n) so that a[k] holds the value a full sort would put there, with no larger value
- * before it and no smaller one after (Wirth 1976, Algorithms + Data Structures = Programs, sec. 2.3.4,
- * after Hoare 1961, Algorithm 65 FIND). Expected O(n), in place, no allocation. Signed indices:
- * j may step to lo - 1. */
+ * before it and no smaller one after (Wirth 1976, Algorithms + Data Structures = Programs, "finding
+ * the median"; after Hoare 1961, CACM Algorithm 65 FIND). Expected O(n), in place, no allocation.
+ * Signed indices: j may step to lo - 1. */
 static void select_kth(double *a, size_t n, size_t k_)
 {
     ptrdiff_t lo = 0, hi = (ptrdiff_t)n - 1, k = (ptrdiff_t)k_;

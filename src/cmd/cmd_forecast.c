@@ -6,6 +6,7 @@
 #include <getopt.h>
 #include <math.h>
 #include <signal.h>
+#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -72,10 +73,15 @@ typedef struct {
     uint64_t seed;
 } options;
 
-static int usage_error(const char *fmt, const char *arg)
+/* Prints "tallyfit forecast: <message>" and the --help hint; returns TF_EXIT_USAGE. */
+static int usage_error(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
+static int usage_error(const char *fmt, ...)
 {
-    fprintf(stderr, PROG ": ");
-    fprintf(stderr, fmt, arg);
+    va_list ap;
+    va_start(ap, fmt);
+    fputs(PROG ": ", stderr);
+    vfprintf(stderr, fmt, ap);
+    va_end(ap);
     fputs("\n  hint: run 'tallyfit forecast --help' for the options\n", stderr);
     return TF_EXIT_USAGE;
 }
@@ -642,7 +648,7 @@ int tf_cmd_forecast(int argc, char **argv)
         return rc < 0 ? TF_EXIT_OK : rc;
 
     if (o.average && o.fixed)
-        return usage_error("%s", "--average combines fitted models; with --fixed there is nothing to average");
+        return usage_error("--average combines fitted models; with --fixed there is nothing to average");
     if (!o.fixed) {
         fprintf(stderr, PROG ": projecting from a fitted posterior needs the sampler, which this command does not"
                         " use yet\n  hint: give parameter values with --fixed r=...,sigma=... (and --start N) for a"
@@ -650,9 +656,9 @@ int tf_cmd_forecast(int argc, char **argv)
         return TF_EXIT_USAGE;
     }
     if (!o.survey_path && isnan(o.start))
-        return usage_error("%s", "without a survey file, --start N (the current abundance) is required");
+        return usage_error("without a survey file, --start N (the current abundance) is required");
     if (!o.survey_path && o.population)
-        return usage_error("%s", "--population needs a survey file");
+        return usage_error("--population needs a survey file");
 
     tf_error err;
     tf_error_init(&err);

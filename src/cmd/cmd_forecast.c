@@ -381,7 +381,7 @@ static void print_summary(const tf_projection *p, const tf_growth_type *g, const
                           int year0, uint64_t seed, const char *dir)
 {
     size_t H = tf_projection_horizon(p);
-    printf("Forecast: %s growth with fixed parameters", g->label);
+    printf("Forecast from fixed parameters, growth model %s:", g->name);
     for (size_t j = 0; j <= g->n_params; j++)
         printf("%s %s = %g", j ? "," : "", j < g->n_params ? g->param_names[j] : "sigma", theta[j]);
     printf("\n  start N = %g%s; %zu simulated futures, %zu years ahead, seed %llu\n", start,

@@ -8,7 +8,9 @@
 
 #include <gsl/gsl_rng.h>
 
+#include "survey/series.h"
 #include "util/error.h"
+#include "util/rng.h"
 
 /* Most parameters of a joined model (drift + sigma + observation). */
 #define TF_MAX_PARAMS 8
@@ -84,5 +86,26 @@ double tf_model_x1_sd(const tf_model *m);
 
 /* Checks a full parameter vector against the supports; TF_ERR_RANGE names the parameter. */
 tf_status tf_model_check_params(const tf_model *m, const double *theta, tf_error *err);
+
+/* The surveyed years tf_model_initial_from_series averages over. */
+#define TF_MODEL_X1_YEARS 3
+
+/* Sets the first-year prior from the data: x1_mean = ln of the mean of count / effort over the
+ * first TF_MODEL_X1_YEARS surveyed years (fewer if the series has fewer; a zero count counts as
+ * 0.5), x1_sd = 1. TF_ERR_INVALID (m unchanged) when s has no surveyed year. */
+tf_status tf_model_initial_from_series(tf_model *m, const tf_series *s, tf_error *err);
+
+/* Writes "a, b, c": the known growth (or observation) model names, for hints and help texts.
+ * Truncates to size (always terminated when size > 0). */
+void tf_model_list_growth(char *buf, size_t size);
+void tf_model_list_obs(char *buf, size_t size);
+
+/* Simulates n_years of the joined model from x[0] = x1: x[t+1] = drift(x[t]) + sigma eps_t and
+ * y[t] drawn by the observation model with mean effort[t] * exp(x[t]) (effort NULL = all 1).
+ * theta must pass tf_model_check_params. Fills the caller's arrays x and y (n_years each) and
+ * draws from rng. TF_ERR_NUMERIC when the abundance overflows or, for a model that cannot count
+ * zero (needs_positive), falls to zero; x and y are then filled up to the failing year only. */
+tf_status tf_model_simulate(const tf_model *m, const double *theta, double x1, const double *effort,
+                            size_t n_years, tf_rng *rng, double *x, double *y, tf_error *err);
 
 #endif

@@ -1,0 +1,260 @@
+/* Option parsing shared by the commands. */
+#include "cmd/args.h"
+
+#include <ctype.h>
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+void tf_args_pairs_init(tf_arg_pairs *p) { p->n = 0; }
+
+/* Copies text[0..len) into buf without surrounding blanks. */
+static void trim_copy(char *buf, size_t size, const char *text, size_t len)
+{
+    while (len && isspace((unsigned char)*text)) {
+        text++;
+        len--;
+    }
+    while (len && isspace((unsigned char)text[len - 1]))
+        len--;
+    if (len >= size)
+        len = size - 1;
+    memcpy(buf, text, len);
+    buf[len] = '\0';
+}
+
+/* A finite number that fills text entirely (blanks around allowed). */
+static int number_of(const char *text, double *out)
+{
+    char *end;
+    errno = 0;
+    double v = strtod(text, &end);
+    if (end == text)
+        return 0;
+    while (isspace((unsigned char)*end))
+        end++;
+    if (*end || !isfinite(v) || errno == ERANGE)
+        return 0;
+    *out = v;
+    return 1;
+}
+
+tf_status tf_args_parse_double(const char *opt, const char *text, double *out, tf_error *err)
+{
+    if (!number_of(text, out))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: '%s' is not a finite number", opt, text);
+    return TF_OK;
+}
+
+const tf_arg_pair *tf_args_pairs_get(const tf_arg_pairs *p, const char *name)
+{
+    for (size_t i = 0; i < p->n; i++)
+        if (!strcmp(p->items[i].name, name))
+            return &p->items[i];
+    return NULL;
+}
+
+tf_status tf_args_parse_pairs(const char *opt, const char *text, tf_arg_pairs *p, tf_error *err)
+{
+    const char *hint = "write name=value pairs separated by commas, e.g. r=0.5,K=1000,sigma=0.1";
+    const char *item = text;
+    for (;;) {
+        const char *end = strchr(item, ',');
+        size_t len = end ? (size_t)(end - item) : strlen(item);
+        char buf[256];
+        if (len >= sizeof buf)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: item '%.40s...' is too long", opt, item);
+        trim_copy(buf, sizeof buf, item, len);
+        if (!buf[0])
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: empty item in '%s'", opt, text);
+        char *eq = strchr(buf, '=');
+        if (!eq)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: '%s' has no '=value'", opt, buf);
+        *eq = '\0';
+        char name[TF_ARGS_NAME_MAX + 1];
+        trim_copy(name, sizeof name, buf, strlen(buf));
+        if (!name[0])
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: a value '%s' has no name", opt, eq + 1);
+        if (strlen(name) >= TF_ARGS_NAME_MAX)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: the name '%s' is too long", opt, name);
+        double v;
+        if (!number_of(eq + 1, &v))
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: the value of %s ('%s') is not a finite number",
+                                opt, name, eq + 1);
+        if (tf_args_pairs_get(p, name))
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give each name once", "%s: %s is given twice", opt,
+                                name);
+        if (p->n >= TF_ARGS_MAX_PAIRS)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: more than %d values", opt,
+                                TF_ARGS_MAX_PAIRS);
+        snprintf(p->items[p->n].name, sizeof p->items[p->n].name, "%s", name);
+        p->items[p->n].value = v;
+        p->n++;
+        if (!end)
+            return TF_OK;
+        item = end + 1;
+    }
+}
+
+tf_status tf_args_parse_doubles(const char *opt, const char *text, double *out, size_t max, size_t *n,
+                                tf_error *err)
+{
+    *n = 0;
+    const char *item = text;
+    for (;;) {
+        const char *end = strchr(item, ',');
+        size_t len = end ? (size_t)(end - item) : strlen(item);
+        char buf[128];
+        if (len >= sizeof buf)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: item '%.40s...' is too long", opt, item);
+        trim_copy(buf, sizeof buf, item, len);
+        if (!buf[0])
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "separate numbers by single commas",
+                                "%s: empty item in '%s'", opt, text);
+        if (*n >= max)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: more than %zu values", opt, max);
+        if (!number_of(buf, &out[*n]))
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: '%s' is not a finite number", opt, buf);
+        (*n)++;
+        if (!end)
+            return TF_OK;
+        item = end + 1;
+    }
+}
+
+/* Decimal digits only, into an unsigned 64-bit value; 0 on overflow or anything else. */
+static int unsigned_of(const char *text, uint64_t *out)
+{
+    const char *p = text;
+    while (isspace((unsigned char)*p))
+        p++;
+    if (!isdigit((unsigned char)*p))
+        return 0;
+    uint64_t v = 0;
+    for (; isdigit((unsigned char)*p); p++) {
+        unsigned d = (unsigned)(*p - '0');
+        if (v > (UINT64_MAX - d) / 10)
+            return 0;
+        v = v * 10 + d;
+    }
+    while (isspace((unsigned char)*p))
+        p++;
+    if (*p)
+        return 0;
+    *out = v;
+    return 1;
+}
+
+tf_status tf_args_parse_size(const char *opt, const char *text, size_t min, size_t max, size_t *out,
+                             tf_error *err)
+{
+    uint64_t v;
+    if (!unsigned_of(text, &v))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: '%s' is not a whole number >= 0", opt, text);
+    if (v < min || v > max)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: %s is outside %zu..%zu", opt, text, min, max);
+    *out = (size_t)v;
+    return TF_OK;
+}
+
+tf_status tf_args_parse_long(const char *opt, const char *text, long min, long max, long *out, tf_error *err)
+{
+    char *end;
+    errno = 0;
+    long v = strtol(text, &end, 10);
+    while (end != text && isspace((unsigned char)*end))
+        end++;
+    if (end == text || *end || errno == ERANGE)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: '%s' is not a whole number", opt, text);
+    if (v < min || v > max)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: %ld is outside %ld..%ld", opt, v, min, max);
+    *out = v;
+    return TF_OK;
+}
+
+tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, tf_error *err)
+{
+    if (!unsigned_of(text, out))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                            "%s: '%s' is not a whole number from 0 to 18446744073709551615", opt, text);
+    return TF_OK;
+}
+
+tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char *arg, tf_error *err)
+{
+    char hint[128];
+    snprintf(hint, sizeof hint, "run 'tallyfit %s --help' for the options", cmd);
+    const char *what = arg ? arg : "";
+    if (c == ':') {
+        if (opt_char && (!arg || strncmp(arg, "--", 2)))
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "option '-%c' needs a value", opt_char);
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "option '%s' needs a value", what);
+    }
+    if (opt_char && (!arg || strncmp(arg, "--", 2)))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '-%c'", opt_char);
+    return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", what);
+}
+
+/* "r, K, sigma, phi" for hints. */
+static void param_list(const tf_model *m, char *buf, size_t size)
+{
+    size_t used = 0;
+    buf[0] = '\0';
+    for (size_t i = 0; i < tf_model_n_params(m) && used < size; i++) {
+        int k = snprintf(buf + used, size - used, "%s%s", i ? ", " : "", tf_model_param_name(m, i));
+        if (k < 0)
+            break;
+        used += (size_t)k;
+    }
+}
+
+tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_all, double *theta,
+                             unsigned char *given, tf_error *err)
+{
+    char names[160], hint[256];
+    param_list(m, names, sizeof names);
+    size_t n = tf_model_n_params(m);
+    unsigned char seen[TF_MAX_PARAMS] = {0};
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < set->n; i++) {
+        const tf_arg_pair *p = &set->items[i];
+        if (!strcmp(p->name, TF_ARGS_X1_MEAN) || !strcmp(p->name, TF_ARGS_X1_SD))
+            continue;
+        int k = tf_model_param_index(m, p->name);
+        if (k < 0) {
+            snprintf(hint, sizeof hint, "the parameters of %s are %s (and %s, %s for the first year)",
+                     tf_model_name(m), names, TF_ARGS_X1_MEAN, TF_ARGS_X1_SD);
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: %s is not a parameter of model %s",
+                              p->name, tf_model_name(m));
+            continue;
+        }
+        double lo = tf_model_param_lower(m, (size_t)k), hi = tf_model_param_upper(m, (size_t)k);
+        if (!(p->value > lo && p->value < hi)) {
+            snprintf(hint, sizeof hint, "%s must lie strictly between %g and %g", p->name, lo, hi);
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: %s = %g is outside its range for model %s",
+                              p->name, p->value, tf_model_name(m));
+            continue;
+        }
+        theta[k] = p->value;
+        seen[k] = 1;
+    }
+    if (require_all)
+        for (size_t k = 0; k < n; k++)
+            if (!seen[k]) {
+                snprintf(hint, sizeof hint, "model %s needs --set %s=...", tf_model_name(m), names);
+                st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: the value of %s is missing",
+                                  tf_model_param_name(m, k));
+            }
+    const tf_arg_pair *mean = tf_args_pairs_get(set, TF_ARGS_X1_MEAN), *sd = tf_args_pairs_get(set, TF_ARGS_X1_SD);
+    if (sd && !(sd->value > 0))
+        st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "the first-year prior needs a positive sd",
+                          "--set: %s = %g is not > 0", TF_ARGS_X1_SD, sd->value);
+    if (st != TF_OK)
+        return st;
+    tf_model_set_initial(m, mean ? mean->value : tf_model_x1_mean(m), sd ? sd->value : tf_model_x1_sd(m));
+    if (given)
+        memcpy(given, seen, n);
+    return TF_OK;
+}

@@ -1,0 +1,73 @@
+/* Helpers the commands share for their options: numbers, comma lists, name=value pairs, getopt
+ * error messages, and binding `--set` values to a model's parameters. Every helper records what
+ * went wrong in a tf_error (status TF_ERR_USAGE, naming the option) and prints nothing. */
+#ifndef TF_ARGS_H
+#define TF_ARGS_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "model/model.h"
+#include "util/error.h"
+
+/* Most pairs one list of `--set` options holds, and the longest name. */
+#define TF_ARGS_MAX_PAIRS 32
+#define TF_ARGS_NAME_MAX 32
+
+typedef struct {
+    char name[TF_ARGS_NAME_MAX];
+    double value;
+} tf_arg_pair;
+
+/* A small value type on the caller's stack; zero it with tf_args_pairs_init. */
+typedef struct {
+    size_t n;
+    tf_arg_pair items[TF_ARGS_MAX_PAIRS];
+} tf_arg_pairs;
+
+void tf_args_pairs_init(tf_arg_pairs *p);
+
+/* Appends the pairs of text "name=value,name=value,..." (spaces around items allowed) to p, so
+ * an option may be repeated. Errors: an empty item, a missing '=', an empty or over-long name,
+ * a value that is not a finite number, a name given twice, more than TF_ARGS_MAX_PAIRS pairs.
+ * opt ("--set") names the option in messages. On error p keeps the pairs added before. */
+tf_status tf_args_parse_pairs(const char *opt, const char *text, tf_arg_pairs *p, tf_error *err);
+
+/* The pair with that name, or NULL. */
+const tf_arg_pair *tf_args_pairs_get(const tf_arg_pairs *p, const char *name);
+
+/* One finite number. */
+tf_status tf_args_parse_double(const char *opt, const char *text, double *out, tf_error *err);
+
+/* A comma list "a,b,c" of finite numbers into out (room for max); *n receives the count.
+ * Errors: an empty item, a bad number, more than max items. */
+tf_status tf_args_parse_doubles(const char *opt, const char *text, double *out, size_t max, size_t *n,
+                                tf_error *err);
+
+/* A whole number in [min, max] (decimal digits, optional sign for long). */
+tf_status tf_args_parse_size(const char *opt, const char *text, size_t min, size_t max, size_t *out,
+                             tf_error *err);
+tf_status tf_args_parse_long(const char *opt, const char *text, long min, long max, long *out, tf_error *err);
+
+/* A random seed: any whole number from 0 to 2^64 - 1. */
+tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, tf_error *err);
+
+/* Describes a getopt_long failure (optstring starting with ':'): c is getopt's return (':' or
+ * '?'), opt_char getopt's optopt, arg the argv element that caused it. cmd names the command
+ * for the hint ("run 'tallyfit CMD --help'"). Returns TF_ERR_USAGE. */
+tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char *arg, tf_error *err);
+
+/* Names `--set` accepts besides the model's parameters: the first-year prior. */
+#define TF_ARGS_X1_MEAN "x1_mean"
+#define TF_ARGS_X1_SD "x1_sd"
+
+/* Binds set to m: every name must be a parameter of m or x1_mean / x1_sd (else an error whose
+ * hint lists the model's names). Values go to theta (model order) and given[i] is set to 1 for
+ * each parameter given (given may be NULL); with require_all, a missing parameter is an error.
+ * Each given value must lie inside its support (TF_ERR_USAGE naming it). x1_mean / x1_sd, when
+ * present, replace m's first-year prior (x1_sd must be > 0). theta entries not given are left
+ * as they were. */
+tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_all, double *theta,
+                             unsigned char *given, tf_error *err);
+
+#endif

@@ -1,0 +1,249 @@
+/* `tallyfit likelihood`: the log-likelihood of one population's counts under a joined model at
+ * given parameters, estimated by the particle filter, with its Monte Carlo standard error. */
+#define _GNU_SOURCE
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "cmd/args.h"
+#include "cmd/cmd.h"
+#include "filter/filter.h"
+#include "model/model.h"
+#include "survey/survey.h"
+#include "util/error.h"
+#include "util/rng.h"
+
+#define CMD "likelihood"
+#define DEFAULT_PARTICLES 1000
+#define DEFAULT_REPEATS 10
+/* Limits that only guard memory and time against typos. */
+#define MAX_PARTICLES 10000000
+#define MAX_REPEATS 1000000
+
+static void help(FILE *out)
+{
+    char growth[256], obs[256];
+    tf_model_list_growth(growth, sizeof growth);
+    tf_model_list_obs(obs, sizeof obs);
+    fprintf(out,
+            "usage: tallyfit likelihood SURVEY.csv --model M [--obs O] --set NAME=VALUE,...\n"
+            "                           [--population NAME] [--particles N] [--repeat R] [--seed S]\n\n"
+            "Estimates the log-likelihood of one population's counts under a state-space model at the\n"
+            "given parameters with a particle filter, repeated R times with independent random numbers.\n"
+            "Prints a CSV header and one row: loglik,se,particles,repeats, where loglik is the log of\n"
+            "the mean of the R likelihood estimates and se its Monte Carlo standard error (NA when R = 1).\n"
+            "SURVEY.csv may be '-' for standard input.\n\n"
+            "options:\n"
+            "  --model M          growth model: %s\n"
+            "  --obs O            counting error: %s (default poisson)\n"
+            "  --set NAME=VALUE,...\n"
+            "                     every parameter of the model; x1_mean and x1_sd may also be given\n"
+            "                     (the first year's log-abundance prior; by default the log of the\n"
+            "                     mean of the first %d counts / effort, and 1)\n"
+            "  --population NAME  the population to use when the survey has several\n"
+            "  --particles N      particles (default %d)\n"
+            "  --repeat R         independent estimates to average (default %d)\n"
+            "  --seed S           random seed (default 1)\n"
+            "  -h, --help         show this help\n",
+            growth, obs, TF_MODEL_X1_YEARS, DEFAULT_PARTICLES, DEFAULT_REPEATS);
+}
+
+/* The series to use, or NULL with an error. */
+static const tf_series *pick_series(const tf_survey *sv, const char *population, const char *path, tf_error *err)
+{
+    size_t n = tf_survey_n_series(sv);
+    if (population) {
+        const tf_series *s = tf_survey_find(sv, population);
+        if (!s)
+            tf_error_add(err, TF_ERR_USAGE, path, 0, 0, "run 'tallyfit check' on the file to list its populations",
+                         "no population named '%s'", population);
+        return s;
+    }
+    if (n == 1)
+        return tf_survey_series(sv, 0);
+    char list[200] = "";
+    size_t used = 0;
+    for (size_t i = 0; i < n && used < sizeof list; i++) {
+        int k = snprintf(list + used, sizeof list - used, "%s%s", i ? ", " : "", tf_series_label(tf_survey_series(sv, i)));
+        if (k < 0)
+            break;
+        used += (size_t)k;
+    }
+    char hint[300];
+    snprintf(hint, sizeof hint, "choose one with --population; the file has %s", list);
+    tf_error_add(err, TF_ERR_USAGE, path, 0, 0, hint, "the survey has %zu populations", n);
+    return NULL;
+}
+
+/* Counts the observation model cannot have: fractional counts for count models, zeros for
+ * models of positive values. Named by their input line. */
+static tf_status check_counts(const tf_model *m, const tf_series *s, const char *path, tf_error *err)
+{
+    const tf_obs_type *o = tf_model_obs(m);
+    const double *y = tf_series_counts(s);
+    size_t n = tf_series_n_years(s);
+    int year0 = tf_series_first_year(s);
+    if (o->needs_integer) {
+        size_t i = tf_series_first_fractional(s);
+        if (i < n)
+            return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
+                                "use --obs lognormal for indices that are not whole counts",
+                                "count %g in year %d is not a whole number, which the %s model needs", y[i],
+                                year0 + (int)i, o->name);
+    }
+    if (o->needs_positive)
+        for (size_t i = 0; i < n; i++)
+            if (y[i] == 0)
+                return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
+                                    "use a count model such as poisson or negbin, which allow zero counts",
+                                    "count 0 in year %d is impossible under the %s model", year0 + (int)i, o->name);
+    return TF_OK;
+}
+
+int tf_cmd_likelihood(int argc, char **argv)
+{
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED };
+    static const struct option longopts[] = {
+        {"model", required_argument, NULL, OPT_MODEL},
+        {"obs", required_argument, NULL, OPT_OBS},
+        {"set", required_argument, NULL, OPT_SET},
+        {"population", required_argument, NULL, OPT_POP},
+        {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"repeat", required_argument, NULL, OPT_REPEAT},
+        {"seed", required_argument, NULL, OPT_SEED},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0},
+    };
+    tf_error err;
+    tf_error_init(&err);
+    const char *growth = NULL, *obs = "poisson", *population = NULL;
+    tf_arg_pairs set;
+    tf_args_pairs_init(&set);
+    size_t n_particles = DEFAULT_PARTICLES, n_repeats = DEFAULT_REPEATS;
+    uint64_t seed = 1;
+
+    opterr = 0;
+    optind = 0;
+    int c;
+    while ((c = getopt_long(argc, argv, ":h", longopts, NULL)) != -1) {
+        switch (c) {
+        case OPT_MODEL: growth = optarg; break;
+        case OPT_OBS: obs = optarg; break;
+        case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
+        case OPT_POP: population = optarg; break;
+        case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
+        case OPT_REPEAT: tf_args_parse_size("--repeat", optarg, 1, MAX_REPEATS, &n_repeats, &err); break;
+        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
+        case 'h': help(stdout); return TF_EXIT_OK;
+        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
+        }
+    }
+    const char *path = NULL;
+    if (optind < argc)
+        path = argv[optind++];
+    if (optind < argc)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    if (!path)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit likelihood --help' for the usage",
+                     "no survey file given");
+    if (!growth)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
+    if (tf_error_status(&err) != TF_OK) {
+        tf_error_print(&err, "tallyfit " CMD, stderr);
+        return TF_EXIT_USAGE;
+    }
+
+    int status = TF_EXIT_FAIL;
+    tf_model *m = NULL;
+    tf_survey *sv = NULL;
+    tf_filter *f = NULL;
+    double *ll = NULL;
+    if (tf_model_new(growth, obs, &m, &err) != TF_OK) {
+        status = TF_EXIT_USAGE;
+        goto out;
+    }
+    double theta[TF_MAX_PARAMS];
+    /* Bound once before reading so that a mistyped parameter is reported without waiting for a
+     * large file; bound again below after the data set the first-year default. */
+    if (tf_args_bind_model(m, &set, 1, theta, NULL, &err) != TF_OK) {
+        status = TF_EXIT_USAGE;
+        goto out;
+    }
+    const char *file = strcmp(path, "-") ? path : "/dev/stdin";
+    if (tf_survey_read(file, &sv, &err) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
+    const tf_series *s = pick_series(sv, population, path, &err);
+    if (!s) {
+        status = TF_EXIT_USAGE;
+        goto out;
+    }
+    if (check_counts(m, s, path, &err) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
+    if (tf_model_initial_from_series(m, s, &err) != TF_OK || tf_args_bind_model(m, &set, 1, theta, NULL, &err) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
+    f = tf_filter_alloc(m, s, n_particles);
+    ll = malloc(n_repeats * sizeof *ll);
+    if (!f || !ll) {
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, "try fewer --particles", "out of memory for %zu particles",
+                     n_particles);
+        goto out;
+    }
+    /* Streams keyed by seed, population and repeat but not by model, so that models that agree
+     * exactly (theta-logistic with theta = 1 and Ricker) give the same estimate. */
+    double lmax = -INFINITY;
+    for (size_t r = 0; r < n_repeats; r++) {
+        uint64_t keys[3] = {tf_rng_key(CMD), tf_rng_key(tf_series_label(s)), (uint64_t)r};
+        tf_rng rng;
+        tf_rng_derive(&rng, seed, keys, 3);
+        ll[r] = tf_filter_loglik(f, theta, &rng, NULL);
+        if (ll[r] > lmax)
+            lmax = ll[r];
+    }
+    /* loglik = log of the mean of the R estimates L_r = exp(ll_r) (log-sum-exp); its standard
+     * error by the delta method, sd(L) / (sqrt(R) mean(L)), computed on L_r / max L. */
+    printf("loglik,se,particles,repeats\n");
+    if (lmax == -INFINITY) {
+        printf("-inf,NA,%zu,%zu\n", n_particles, n_repeats);
+        fprintf(stderr, "tallyfit " CMD ": warning: every estimate is zero (all particles ruled out by a count)\n"
+                        "  hint: check the parameters, or try more --particles\n");
+    } else {
+        double sum = 0, sum2 = 0;
+        for (size_t r = 0; r < n_repeats; r++) {
+            double v = exp(ll[r] - lmax);
+            sum += v;
+        }
+        double mean = sum / (double)n_repeats;
+        for (size_t r = 0; r < n_repeats; r++) {
+            double d = exp(ll[r] - lmax) - mean;
+            sum2 += d * d;
+        }
+        double loglik = lmax + log(mean);
+        if (n_repeats > 1) {
+            double sd = sqrt(sum2 / (double)(n_repeats - 1));
+            printf("%.6f,%.6f,%zu,%zu\n", loglik, sd / (sqrt((double)n_repeats) * mean), n_particles, n_repeats);
+        } else {
+            printf("%.6f,NA,%zu,%zu\n", loglik, n_particles, n_repeats);
+        }
+    }
+    if (fflush(stdout) != 0) {
+        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+        goto out;
+    }
+    status = TF_EXIT_OK;
+out:
+    if (status != TF_EXIT_OK)
+        tf_error_print(&err, "tallyfit " CMD, stderr);
+    free(ll);
+    tf_filter_free(f);
+    tf_survey_free(sv);
+    tf_model_free(m);
+    return status;
+}

@@ -1,0 +1,448 @@
+/* Unit tests for the model table, the joined model, the growth and observation kernels and
+ * simulation. */
+#include "tf_test.h"
+#include <float.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include <gsl/gsl_rng.h>
+
+#include "model/model.h"
+#include "survey/series.h"
+#include "util/rng.h"
+
+static tf_model *make(const char *g, const char *o)
+{
+    tf_model *m = NULL;
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_new(g, o, &m, &err), TF_OK);
+    ck_assert_ptr_nonnull(m);
+    return m;
+}
+
+START_TEST(table_lists_every_model)
+{
+    static const char *const growth[] = {"exponential", "ricker", "gompertz", "theta-logistic"};
+    static const char *const obs[] = {"poisson", "lognormal", "negbin"};
+    ck_assert_uint_eq(tf_model_n_growth(), 4);
+    ck_assert_uint_eq(tf_model_n_obs(), 3);
+    for (size_t i = 0; i < 4; i++) {
+        ck_assert_ptr_eq(tf_model_find_growth(growth[i]), tf_model_growth_at(i));
+        ck_assert_str_eq(tf_model_growth_at(i)->name, growth[i]);
+    }
+    for (size_t i = 0; i < 3; i++)
+        ck_assert_ptr_eq(tf_model_find_obs(obs[i]), tf_model_obs_at(i));
+    ck_assert_ptr_null(tf_model_find_growth("logistic"));
+    ck_assert_ptr_null(tf_model_find_obs(NULL));
+    ck_assert_ptr_null(tf_model_growth_at(4));
+    char buf[128];
+    tf_model_list_growth(buf, sizeof buf);
+    ck_assert_str_eq(buf, "exponential, ricker, gompertz, theta-logistic");
+    tf_model_list_obs(buf, 12);
+    ck_assert_str_eq(buf, "poisson, lo");
+}
+END_TEST
+
+START_TEST(unknown_names_are_errors_with_hints)
+{
+    tf_model *m = (tf_model *)1;
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_new("rickr", "poisson", &m, &err), TF_ERR_INVALID);
+    ck_assert_ptr_null(m);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "rickr"));
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "ricker"));
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_new("ricker", "binomial", &m, &err), TF_ERR_INVALID);
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "negbin"));
+}
+END_TEST
+
+START_TEST(parameter_layout)
+{
+    tf_model *m = make("theta-logistic", "negbin");
+    static const char *const names[] = {"r", "K", "theta", "sigma", "phi"};
+    ck_assert_uint_eq(tf_model_n_params(m), 5);
+    for (size_t i = 0; i < 5; i++) {
+        ck_assert_str_eq(tf_model_param_name(m, i), names[i]);
+        ck_assert_int_eq(tf_model_param_index(m, names[i]), (int)i);
+    }
+    ck_assert_int_eq(tf_model_param_index(m, "tau"), -1);
+    ck_assert_uint_eq(tf_model_sigma_index(m), 3);
+    ck_assert_str_eq(tf_model_name(m), "theta-logistic+negbin");
+    ck_assert_ptr_null(tf_model_param_name(m, 5));
+    ck_assert_double_eq(tf_model_param_lower(m, 3), 0.0);
+    ck_assert(isinf(tf_model_param_upper(m, 3)));
+    ck_assert_double_eq(tf_model_x1_mean(m), 0.0);
+    ck_assert_double_eq(tf_model_x1_sd(m), 1.0);
+    tf_model_set_initial(m, 4.0, 0.5);
+    ck_assert_double_eq(tf_model_x1_mean(m), 4.0);
+    ck_assert_double_eq(tf_model_x1_sd(m), 0.5);
+    tf_model_free(m);
+
+    m = make("exponential", "poisson");
+    ck_assert_uint_eq(tf_model_n_params(m), 2);
+    ck_assert_uint_eq(tf_model_sigma_index(m), 1);
+    tf_model_free(m);
+    tf_model_free(NULL);
+}
+END_TEST
+
+START_TEST(parameter_ranges)
+{
+    tf_model *m = make("gompertz", "lognormal");
+    tf_error err;
+    tf_error_init(&err);
+    double ok[] = {0.5, 200.0, 0.1, 0.2};
+    ck_assert_int_eq(tf_model_check_params(m, ok, &err), TF_OK);
+    double bad_k[] = {0.5, 0.9, 0.1, 0.2}; /* Gompertz needs K > 1 */
+    ck_assert_int_eq(tf_model_check_params(m, bad_k, &err), TF_ERR_RANGE);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "K = 0.9"));
+    double bad_nan[] = {0.5, 200.0, NAN, 0.2};
+    ck_assert_int_eq(tf_model_check_params(m, bad_nan, NULL), TF_ERR_RANGE);
+    double bad_tau[] = {0.5, 200.0, 0.1, 0.0};
+    ck_assert_int_eq(tf_model_check_params(m, bad_tau, NULL), TF_ERR_RANGE);
+    double bad_r[] = {-0.1, 200.0, 0.1, 0.2}; /* density-dependent models need r > 0 */
+    ck_assert_int_eq(tf_model_check_params(m, bad_r, NULL), TF_ERR_RANGE);
+    tf_model_free(m);
+    m = make("exponential", "poisson");
+    double decline[] = {-0.3, 0.1}; /* exponential growth: any real r */
+    ck_assert_int_eq(tf_model_check_params(m, decline, NULL), TF_OK);
+    tf_model_free(m);
+}
+END_TEST
+
+START_TEST(initial_prior_from_series)
+{
+    tf_error err;
+    tf_error_init(&err);
+    double y[] = {NAN, 10, NAN, 0, 30, 1000};
+    double e[] = {1, 2, 1, 1, 3, 1};
+    /* Span starts at the first surveyed year; the leading NAN is only in our array. */
+    tf_series *s = tf_series_new("a", 2001, 5, y + 1, e + 1, NULL, &err);
+    ck_assert_ptr_nonnull(s);
+    tf_model *m = make("ricker", "poisson");
+    ck_assert_int_eq(tf_model_initial_from_series(m, s, &err), TF_OK);
+    /* First three surveyed: 10/2, 0 -> 0.5/1, 30/3; the 1000 is not used. */
+    ck_assert_double_eq_tol(tf_model_x1_mean(m), log((5.0 + 0.5 + 10.0) / 3.0), 1e-15);
+    ck_assert_double_eq(tf_model_x1_sd(m), 1.0);
+    tf_series_free(s);
+    double one[] = {42};
+    s = tf_series_new("b", 2001, 1, one, NULL, NULL, &err);
+    ck_assert_int_eq(tf_model_initial_from_series(m, s, &err), TF_OK);
+    ck_assert_double_eq_tol(tf_model_x1_mean(m), log(42.0), 1e-15);
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
+/* The drift kernels against the model equations written out here independently. */
+START_TEST(drift_kernels_follow_their_equations)
+{
+    double x[] = {-3.0, 0.0, 1.5, 4.2, 6.9, 9.0, 12.0};
+    enum { N = sizeof x / sizeof x[0] };
+    double out[N];
+    const tf_growth_type *g;
+    double pe[] = {-0.2};
+    tf_model_find_growth("exponential")->drift(pe, x, out, N);
+    for (int i = 0; i < N; i++)
+        ck_assert_double_eq_tol(out[i], x[i] - 0.2, 1e-14);
+    double pr[] = {0.7, 900.0};
+    tf_model_find_growth("ricker")->drift(pr, x, out, N);
+    for (int i = 0; i < N; i++) {
+        double want = x[i] + 0.7 * (1.0 - exp(x[i]) / 900.0);
+        ck_assert_double_eq_tol(out[i], want, 1e-12 * fmax(1.0, fabs(want)));
+    }
+    double pg[] = {0.7, 900.0};
+    tf_model_find_growth("gompertz")->drift(pg, x, out, N);
+    for (int i = 0; i < N; i++) {
+        double want = x[i] + 0.7 * (1.0 - x[i] / log(900.0));
+        ck_assert_double_eq_tol(out[i], want, 1e-12 * fmax(1.0, fabs(want)));
+    }
+    double pt[] = {0.7, 900.0, 2.5};
+    g = tf_model_find_growth("theta-logistic");
+    g->drift(pt, x, out, N);
+    for (int i = 0; i < N; i++) {
+        double want = x[i] + 0.7 * (1.0 - pow(exp(x[i]) / 900.0, 2.5));
+        ck_assert_double_eq_tol(out[i], want, 1e-11 * fmax(1.0, fabs(want)));
+    }
+    /* In place (out == x) is allowed. */
+    double y[N];
+    memcpy(y, x, sizeof y);
+    g->drift(pt, y, y, N);
+    for (int i = 0; i < N; i++)
+        ck_assert_double_eq(y[i], out[i]);
+}
+END_TEST
+
+/* theta = 1 must be the Ricker kernel operation for operation, so that the filter gives
+ * bit-identical estimates (tested in test_filter.c). Long enough to use the vector loop. */
+START_TEST(theta_one_is_ricker_bit_for_bit)
+{
+    enum { N = 1003 };
+    static double x[N], a[N], b[N];
+    for (int i = 0; i < N; i++)
+        x[i] = -5.0 + 15.0 * i / N;
+    double pr[] = {0.9, 1234.5}, pt[] = {0.9, 1234.5, 1.0};
+    tf_model_find_growth("ricker")->drift(pr, x, a, N);
+    tf_model_find_growth("theta-logistic")->drift(pt, x, b, N);
+    ck_assert_int_eq(memcmp(a, b, sizeof a), 0);
+}
+END_TEST
+
+/* Reads tests/data/obs_density.csv (scipy.stats values, see tests/ref/test_obs_density.py). */
+typedef struct {
+    char model[16];
+    double param, y, mu, logp;
+} density_row;
+
+static size_t read_table(density_row *rows, size_t max)
+{
+    FILE *f = fopen(TF_TEST_DATA("obs_density.csv"), "r");
+    ck_assert_msg(f != NULL, "cannot open tests/data/obs_density.csv");
+    char line[256];
+    size_t n = 0;
+    while (fgets(line, sizeof line, f)) {
+        if (line[0] == '#' || !strncmp(line, "model,", 6))
+            continue;
+        ck_assert_uint_lt(n, max);
+        density_row *r = &rows[n];
+        char *tok = strtok(line, ",");
+        snprintf(r->model, sizeof r->model, "%s", tok);
+        r->param = strtod(strtok(NULL, ","), NULL);
+        r->y = strtod(strtok(NULL, ","), NULL);
+        r->mu = strtod(strtok(NULL, ","), NULL);
+        r->logp = strtod(strtok(NULL, ",\n"), NULL);
+        n++;
+    }
+    fclose(f);
+    return n;
+}
+
+/* Agreement within 1e-9 absolute plus 1e-11 relative, plus what scipy's own rounding allows:
+ * - 2e-14 times the size S = (y + phi) ln(y + phi + 1) of the ln-gamma terms that cancel
+ *   (gammaln's relative error at large arguments);
+ * - for the negative binomial, y eps (phi + mu) / mu: scipy forms ln(1 - p) from the rounded
+ *   p = phi / (phi + mu), whose error eps/2 becomes eps / (2 (1 - p)) relative in 1 - p (seen at
+ *   phi = 1e4, mu = 1e-3: scipy is 6.7e-10 y off a cancellation-free evaluation, we 1e-11).
+ * -inf must match exactly. */
+static void assert_close(double got, double want, const density_row *r, const char *what)
+{
+    if (isinf(want)) {
+        ck_assert_msg(got == want, "%s %s(%g) y=%g mu=%g: got %.17g, scipy %.17g", what, r->model, r->param, r->y,
+                      r->mu, got, want);
+        return;
+    }
+    double size = r->y + r->param, tol = 1e-9 + 1e-11 * fabs(want) + 2e-14 * size * log(size + 1.0);
+    if (!strcmp(r->model, "negbin") && r->mu > 0)
+        tol += r->y * DBL_EPSILON * (r->param + r->mu) / r->mu;
+    ck_assert_msg(fabs(got - want) <= tol, "%s %s(%g) y=%g mu=%g: got %.17g, scipy %.17g", what, r->model,
+                  r->param, r->y, r->mu, got, want);
+}
+
+START_TEST(densities_match_scipy)
+{
+    static density_row rows[1000];
+    size_t n = read_table(rows, 1000);
+    ck_assert_uint_ge(n, 300);
+    size_t n_checked[3] = {0, 0, 0};
+    for (size_t i = 0; i < n; i++) {
+        const density_row *r = &rows[i];
+        const tf_obs_type *o = tf_model_find_obs(r->model);
+        ck_assert_ptr_nonnull(o);
+        double p[1] = {r->param};
+        assert_close(o->logpmf(p, r->y, r->mu), r->logp, r, "logpmf");
+        /* The vector kernel at several effort values, mu = effort * exp(x), in a vector long
+         * enough for the vectorised loop and its remainder. */
+        static const double efforts[] = {1.0, 2.5, 0.04};
+        for (int k = 0; k < 3; k++) {
+            enum { N = 37 };
+            double x[N], lw[N], c[TF_OBS_MAX_CONST];
+            double le = log(efforts[k]);
+            for (int j = 0; j < N; j++) {
+                x[j] = log(r->mu) - le;
+                lw[j] = j; /* add_logweight adds to what is there */
+            }
+            o->year_const(p, r->y, c);
+            o->add_logweight(p, r->y, le, c, x, lw, N);
+            for (int j = 0; j < N; j++)
+                assert_close(lw[j] - j, r->logp, r, "add_logweight");
+        }
+        n_checked[o == tf_model_find_obs("poisson") ? 0 : o == tf_model_find_obs("lognormal") ? 1 : 2]++;
+    }
+    for (int k = 0; k < 3; k++)
+        ck_assert_uint_ge(n_checked[k], 50);
+}
+END_TEST
+
+/* add_logweight equals logpmf element by element over a spread of states, including extinct
+ * particles (x = -inf) and states far above the count. */
+START_TEST(vector_kernel_equals_scalar_density)
+{
+    enum { N = 301 };
+    static double x[N], lw[N];
+    static const double ys[] = {0, 1, 3, 250, 9876};
+    static const struct {
+        const char *name;
+        double p;
+    } models[] = {{"poisson", 0}, {"lognormal", 0.25}, {"negbin", 3.5}, {"negbin", 5e5}};
+    for (size_t mi = 0; mi < sizeof models / sizeof models[0]; mi++) {
+        const tf_obs_type *o = tf_model_find_obs(models[mi].name);
+        double p[1] = {models[mi].p}, c[TF_OBS_MAX_CONST];
+        for (size_t yi = 0; yi < sizeof ys / sizeof ys[0]; yi++) {
+            double y = ys[yi], le = log(1.7);
+            for (int i = 0; i < N; i++) {
+                x[i] = i == 0 ? -INFINITY : -8.0 + 20.0 * i / N;
+                lw[i] = 0.0;
+            }
+            o->year_const(p, y, c);
+            o->add_logweight(p, y, le, c, x, lw, N);
+            for (int i = 0; i < N; i++) {
+                double want = o->logpmf(p, y, 1.7 * exp(x[i]));
+                if (isinf(want))
+                    ck_assert_msg(lw[i] == want, "%s y=%g x=%g: %g vs %g", o->name, y, x[i], lw[i], want);
+                else
+                    ck_assert_msg(fabs(lw[i] - want) <= 1e-9 + 1e-11 * fabs(want), "%s y=%g x=%g: %.17g vs %.17g",
+                                  o->name, y, x[i], lw[i], want);
+            }
+        }
+    }
+}
+END_TEST
+
+/* Moments of the count draws. With n draws the sample mean has se sqrt(var / n) and the sample
+ * variance se sqrt((m4 - var^2) / n) (large-sample variance of s^2, e.g. Kendall & Stuart 1977,
+ * Advanced Theory of Statistics vol. 1, eq. 10.9), using the sample's own fourth moment; the
+ * tolerances are 5 se. Targets: Poisson var = mu; NB2 var = mu + mu^2 / phi; log-normal:
+ * ln y has mean ln mu and sd tau. */
+static void draw_moments(const tf_obs_type *o, const double *p, double mu, int use_log, double want_mean,
+                         double want_var, tf_rng *rng)
+{
+    enum { N = 40000 };
+    static double v[N];
+    gsl_rng view;
+    tf_rng_gsl_view(rng, &view);
+    double s = 0;
+    for (int i = 0; i < N; i++) {
+        double y = o->draw(p, mu, &view);
+        if (o->needs_integer)
+            ck_assert_double_eq(y, floor(y));
+        ck_assert(y >= 0);
+        v[i] = use_log ? log(y) : y;
+        s += v[i];
+    }
+    double mean = s / N, m2 = 0, m4 = 0;
+    for (int i = 0; i < N; i++) {
+        double d = v[i] - mean;
+        m2 += d * d;
+        m4 += d * d * d * d;
+    }
+    m2 /= N - 1;
+    m4 /= N;
+    double se_mean = sqrt(m2 / N), se_var = sqrt((m4 - m2 * m2) / N);
+    ck_assert_msg(fabs(mean - want_mean) < 5 * se_mean, "%s mu=%g: mean %g vs %g (se %g)", o->name, mu, mean,
+                  want_mean, se_mean);
+    ck_assert_msg(fabs(m2 - want_var) < 5 * se_var, "%s mu=%g: var %g vs %g (se %g)", o->name, mu, m2, want_var,
+                  se_var);
+}
+
+START_TEST(draws_have_the_model_moments)
+{
+    tf_rng rng;
+    uint64_t key = 11;
+    tf_rng_derive(&rng, 77, &key, 1);
+    const tf_obs_type *po = tf_model_find_obs("poisson"), *ln = tf_model_find_obs("lognormal"),
+                      *nb = tf_model_find_obs("negbin");
+    double none[1] = {0}, tau[1] = {0.3}, phi[1] = {4.0};
+    draw_moments(po, none, 3.2, 0, 3.2, 3.2, &rng);
+    draw_moments(po, none, 850.0, 0, 850.0, 850.0, &rng);
+    draw_moments(nb, phi, 60.0, 0, 60.0, 60.0 + 3600.0 / 4.0, &rng);
+    draw_moments(nb, phi, 0.7, 0, 0.7, 0.7 + 0.49 / 4.0, &rng);
+    draw_moments(ln, tau, 120.0, 1, log(120.0), 0.09, &rng);
+    /* Beyond gsl_ran_poisson's unsigned range the normal approximation takes over: within
+     * 6 sd of the mean. */
+    gsl_rng view;
+    tf_rng_gsl_view(&rng, &view);
+    double big = 3e12, y = po->draw(none, big, &view);
+    ck_assert(fabs(y - big) < 6 * sqrt(big));
+    ck_assert_double_eq(y, floor(y));
+    ck_assert_double_eq(po->draw(none, 0.0, &view), 0.0);
+}
+END_TEST
+
+START_TEST(simulation_reproduces_and_scales)
+{
+    tf_model *m = make("ricker", "negbin");
+    double theta[] = {0.8, 400.0, 0.15, 8.0};
+    enum { T = 40 };
+    double x1[T], y1[T], x2[T], y2[T], e[T];
+    for (int t = 0; t < T; t++)
+        e[t] = 0.5 + (t % 3);
+    tf_rng a, b;
+    uint64_t key = 5;
+    tf_rng_derive(&a, 9, &key, 1);
+    b = a;
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_simulate(m, theta, log(50.0), e, T, &a, x1, y1, &err), TF_OK);
+    ck_assert_int_eq(tf_model_simulate(m, theta, log(50.0), e, T, &b, x2, y2, &err), TF_OK);
+    ck_assert_int_eq(memcmp(x1, x2, sizeof x1), 0);
+    ck_assert_int_eq(memcmp(y1, y2, sizeof y1), 0);
+    ck_assert_double_eq(x1[0], log(50.0));
+    for (int t = 0; t < T; t++)
+        ck_assert(y1[t] >= 0 && y1[t] == floor(y1[t]));
+    tf_model_free(m);
+
+    /* Exponential growth: the increments x[t+1] - x[t] have mean r and sd sigma; 5 se. */
+    m = make("exponential", "poisson");
+    enum { L = 3000 };
+    static double xs[L], ys[L];
+    double th[] = {0.002, 0.1};
+    ck_assert_int_eq(tf_model_simulate(m, th, log(1000.0), NULL, L, &a, xs, ys, &err), TF_OK);
+    double s = 0, ss = 0;
+    for (int t = 0; t + 1 < L; t++) {
+        double d = xs[t + 1] - xs[t];
+        s += d;
+        ss += d * d;
+    }
+    double mean = s / (L - 1), var = ss / (L - 1) - mean * mean;
+    ck_assert(fabs(mean - 0.002) < 5 * 0.1 / sqrt(L - 1.0));
+    ck_assert(fabs(var - 0.01) < 5 * 0.01 * sqrt(2.0 / (L - 1)));
+    /* Overflow is an error, not inf counts. */
+    double boom[] = {50.0, 0.1};
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_simulate(m, boom, log(10.0), NULL, 30, &a, xs, ys, &err), TF_ERR_NUMERIC);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "overflowed"));
+    tf_model_free(m);
+
+    /* The log-normal model cannot count zero animals. */
+    m = make("exponential", "lognormal");
+    double th2[] = {0.0, 0.1, 0.2};
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_simulate(m, th2, -800.0, NULL, 3, &a, xs, ys, &err), TF_ERR_NUMERIC);
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "poisson"));
+    tf_model_free(m);
+}
+END_TEST
+
+static Suite *make_suite(void)
+{
+    Suite *s = suite_create("model");
+    TCase *tc = tcase_create("core");
+    tcase_set_timeout(tc, 60);
+    tcase_add_test(tc, table_lists_every_model);
+    tcase_add_test(tc, unknown_names_are_errors_with_hints);
+    tcase_add_test(tc, parameter_layout);
+    tcase_add_test(tc, parameter_ranges);
+    tcase_add_test(tc, initial_prior_from_series);
+    tcase_add_test(tc, drift_kernels_follow_their_equations);
+    tcase_add_test(tc, theta_one_is_ricker_bit_for_bit);
+    tcase_add_test(tc, densities_match_scipy);
+    tcase_add_test(tc, vector_kernel_equals_scalar_density);
+    tcase_add_test(tc, draws_have_the_model_moments);
+    tcase_add_test(tc, simulation_reproduces_and_scales);
+    suite_add_tcase(s, tc);
+    return s;
+}

@@ -2,27 +2,30 @@
  * chance of decline. For now from fixed parameter values (--fixed) and a start (--start or the
  * survey's last count); projection from a fitted posterior arrives with the sampler. */
 #define _GNU_SOURCE
-#include <errno.h>
 #include <getopt.h>
 #include <math.h>
 #include <signal.h>
-#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
+#include "cmd/args.h"
 #include "cmd/cmd.h"
-#include "export/projection_csv.h"
+#include "export/atomic.h"
+#include "export/csv_out.h"
+#include "export/projection_tables.h"
 #include "model/model.h"
 #include "project/cautions.h"
 #include "project/project.h"
 #include "survey/survey.h"
 #include "util/rng.h"
 
-#define PROG "tallyfit forecast"
+#define CMD "forecast"
+#define PROG "tallyfit " CMD
 #define DEFAULT_THRESHOLDS "50%,20%,10%"
 #define DEFAULT_SEED 1u
+/* Limit on --runs: far more than any Monte Carlo error needs, and within tf_project_run's. */
+#define MAX_RUNS 10000000u
 
 static const char usage_text[] =
     "usage: tallyfit forecast [SURVEY.csv] --fixed NAME=VALUE,... [--start N] [options]\n"
@@ -40,8 +43,8 @@ static const char usage_text[] =
     "  --years H               years to project (default 50)\n"
     "  --threshold LIST        abundances or percentages of the current abundance, e.g. 50,100,20%\n"
     "                          (default " DEFAULT_THRESHOLDS ")\n"
-    "  --decline-window Y      also report declines over Y years (e.g. three generations);\n"
-    "                          declines over 10 years are always reported\n"
+    "  --decline-window Y      also report declines over Y whole years (e.g. three generations,\n"
+    "                          rounded); declines over 10 years are always reported\n"
     "  --runs R                simulated futures (default 4000)\n"
     "  --seed S                random seed (default 1); the same seed gives the same numbers\n"
     "  -o, --output DIR        folder for the CSV tables (default output/<survey name>/, or\n"
@@ -65,93 +68,23 @@ static void on_signal(int sig)
 
 typedef struct {
     const char *survey_path;
-    const char *model, *obs, *population, *fixed, *out_dir;
+    const char *model, *obs, *population, *out_dir;
     const char *thresholds;
-    int average, quiet;
+    int average, quiet, have_fixed;
+    tf_arg_pairs fixed;
     size_t years, runs, decline_window;
     double start;
     uint64_t seed;
 } options;
 
-/* Prints "tallyfit forecast: <message>" and the --help hint; returns TF_EXIT_USAGE. */
-static int usage_error(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
-static int usage_error(const char *fmt, ...)
+/* Prints the messages in err; returns TF_EXIT_USAGE. */
+static int usage_fail(const tf_error *err)
 {
-    va_list ap;
-    va_start(ap, fmt);
-    fputs(PROG ": ", stderr);
-    vfprintf(stderr, fmt, ap);
-    va_end(ap);
-    fputs("\n  hint: run 'tallyfit forecast --help' for the options\n", stderr);
+    tf_error_print(err, PROG, stderr);
     return TF_EXIT_USAGE;
 }
 
-/* ---- small parsers for option values -------------------------------------------------------- */
-
-static int parse_count(const char *s, size_t lo, size_t hi, size_t *out)
-{
-    if (!*s || strspn(s, "0123456789") != strlen(s))
-        return 0;
-    errno = 0;
-    unsigned long long v = strtoull(s, NULL, 10);
-    if (errno || v < lo || v > hi)
-        return 0;
-    *out = (size_t)v;
-    return 1;
-}
-
-static int parse_number(const char *s, double *out)
-{
-    char *end;
-    errno = 0;
-    double v = strtod(s, &end);
-    if (end == s || *end || errno || !isfinite(v))
-        return 0;
-    *out = v;
-    return 1;
-}
-
 /* ---- fixed parameters --------------------------------------------------------------------------- */
-
-typedef struct {
-    size_t n;
-    char names[TF_MAX_PARAMS + 4][32];
-    double values[TF_MAX_PARAMS + 4];
-} name_values;
-
-static int parse_name_values(const char *text, name_values *nv)
-{
-    nv->n = 0;
-    const char *p = text;
-    for (;;) {
-        const char *end = strchr(p, ',');
-        size_t len = end ? (size_t)(end - p) : strlen(p);
-        const char *eq = memchr(p, '=', len);
-        if (!eq || eq == p || (size_t)(eq - p) >= sizeof nv->names[0])
-            return usage_error("--fixed wants NAME=VALUE pairs separated by commas, not '%s'", text);
-        if (nv->n == sizeof nv->values / sizeof nv->values[0])
-            return usage_error("--fixed '%s' names too many parameters", text);
-        char value[64];
-        size_t vlen = len - (size_t)(eq + 1 - p);
-        if (vlen == 0 || vlen >= sizeof value)
-            return usage_error("--fixed '%s': a parameter has no usable value", text);
-        memcpy(value, eq + 1, vlen);
-        value[vlen] = '\0';
-        char *name = nv->names[nv->n];
-        memcpy(name, p, (size_t)(eq - p));
-        name[eq - p] = '\0';
-        for (size_t i = 0; i < nv->n; i++)
-            if (!strcmp(nv->names[i], name))
-                return usage_error("--fixed gives '%s' twice", name);
-        if (!parse_number(value, &nv->values[nv->n]))
-            return usage_error("--fixed: '%s' is not a number", value);
-        nv->n++;
-        if (!end)
-            break;
-        p = end + 1;
-    }
-    return TF_EXIT_OK;
-}
 
 static int growth_has(const tf_growth_type *g, const char *name)
 {
@@ -169,153 +102,107 @@ static int obs_has(const tf_obs_type *o, const char *name)
     return 0;
 }
 
-static void list_growth_models(FILE *out)
+/* "exponential (r, sigma), ricker (r, K, sigma), ..." for hints; as many models as fit. */
+static void growth_models_with_params(char *buf, size_t size)
 {
+    size_t used = 0;
+    buf[0] = '\0';
     for (size_t i = 0; i < tf_model_n_growth(); i++) {
         const tf_growth_type *g = tf_model_growth_at(i);
-        fprintf(out, "%s %s (", i ? "," : "", g->name);
-        for (size_t j = 0; j < g->n_params; j++)
-            fprintf(out, "%s%s", j ? ", " : "", g->param_names[j]);
-        fputs(", sigma)", out);
+        char item[96];
+        size_t n = (size_t)snprintf(item, sizeof item, "%s (", g->name);
+        for (size_t j = 0; j < g->n_params && n < sizeof item; j++)
+            n += (size_t)snprintf(item + n, sizeof item - n, "%s, ", g->param_names[j]);
+        if (n < sizeof item)
+            snprintf(item + n, sizeof item - n, "sigma)");
+        if (used + strlen(item) + 3 > size)
+            break;
+        used += (size_t)snprintf(buf + used, size - used, "%s%s", i ? ", " : "", item);
     }
 }
 
 /* The growth model the fixed values describe: --model if given, else the only model whose drift
  * parameters are exactly the names given (besides sigma and counting-error parameters). */
-static int pick_growth(const options *o, const tf_obs_type *obs, const name_values *nv, const tf_growth_type **out)
+static const tf_growth_type *pick_growth(const options *o, const tf_obs_type *obs, tf_error *err)
 {
-    *out = NULL;
+    char known[256], hint[300];
+    growth_models_with_params(known, sizeof known);
+    snprintf(hint, sizeof hint, "known models: %s", known);
+    if (o->model) {
+        const tf_growth_type *g = tf_model_find_growth(o->model);
+        if (!g)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown growth model '%s'", o->model);
+        return g;
+    }
+    const tf_arg_pairs *nv = &o->fixed;
     size_t n_drift = 0;
     for (size_t i = 0; i < nv->n; i++)
-        n_drift += strcmp(nv->names[i], "sigma") && !obs_has(obs, nv->names[i]);
-    if (o->model) {
-        *out = tf_model_find_growth(o->model);
-        if (!*out) {
-            fprintf(stderr, PROG ": unknown growth model '%s'\n  hint: known models:", o->model);
-            list_growth_models(stderr);
-            fputc('\n', stderr);
-            return TF_EXIT_USAGE;
-        }
-        return TF_EXIT_OK;
-    }
+        n_drift += strcmp(nv->items[i].name, "sigma") && !obs_has(obs, nv->items[i].name);
+    const tf_growth_type *found = NULL;
     size_t n_match = 0;
     for (size_t i = 0; i < tf_model_n_growth(); i++) {
         const tf_growth_type *g = tf_model_growth_at(i);
         int all = g->n_params == n_drift;
         for (size_t j = 0; all && j < nv->n; j++)
-            if (strcmp(nv->names[j], "sigma") && !obs_has(obs, nv->names[j]))
-                all = growth_has(g, nv->names[j]);
-        if (all) {
-            if (n_match++ == 0)
-                *out = g;
-        }
+            if (strcmp(nv->items[j].name, "sigma") && !obs_has(obs, nv->items[j].name))
+                all = growth_has(g, nv->items[j].name);
+        if (all && n_match++ == 0)
+            found = g;
     }
     if (n_match == 1)
-        return TF_EXIT_OK;
-    fprintf(stderr, PROG ": %s growth model takes exactly the parameters given to --fixed\n"
-                    "  hint: choose one with --model; known models:",
-            n_match ? "more than one" : "no");
-    list_growth_models(stderr);
-    fputc('\n', stderr);
-    *out = NULL;
-    return TF_EXIT_USAGE;
+        return found;
+    snprintf(hint, sizeof hint, "choose one with --model; known models: %s", known);
+    tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s growth model takes exactly the parameters given to --fixed",
+                 n_match ? "more than one" : "no");
+    return NULL;
 }
 
-/* Fills theta = [drift parameters in the model's order, sigma] from the names. */
-static int fixed_theta(const tf_growth_type *g, const tf_obs_type *obs, const name_values *nv, double *theta,
-                       int quiet)
+/* Places the --fixed values into theta in m's order (drift parameters, sigma, counting error).
+ * Every drift parameter and sigma must be given; counting-error values do not enter a
+ * projection and are kept only as given (NAN where not). sigma = 0 is allowed: a projection
+ * without noise. */
+static tf_status fixed_theta(const tf_model *m, const tf_arg_pairs *nv, double *theta, int quiet, tf_error *err)
 {
+    const tf_growth_type *g = tf_model_growth(m);
+    size_t n_params = tf_model_n_params(m), i_sigma = tf_model_sigma_index(m);
+    unsigned char given[TF_MAX_PARAMS] = {0};
+    for (size_t k = 0; k < n_params; k++)
+        theta[k] = NAN;
+    tf_status st = TF_OK;
+    char takes[160] = "";
+    for (size_t j = 0, used = 0; j < g->n_params && used < sizeof takes; j++)
+        used += (size_t)snprintf(takes + used, sizeof takes - used, "%s, ", g->param_names[j]);
     for (size_t i = 0; i < nv->n; i++) {
-        const char *name = nv->names[i];
-        if (!strcmp(name, "sigma") || growth_has(g, name))
-            continue;
-        if (obs_has(obs, name)) {
-            if (!quiet)
-                printf("note: %s (counting error) does not enter a projection; ignored\n", name);
+        int k = tf_model_param_index(m, nv->items[i].name);
+        if (k < 0) {
+            char hint[200];
+            snprintf(hint, sizeof hint, "it takes %sand sigma", takes);
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "the %s model has no parameter '%s'", g->name,
+                              nv->items[i].name);
             continue;
         }
-        fprintf(stderr, PROG ": the %s model has no parameter '%s'\n  hint: it takes", g->name, name);
-        for (size_t j = 0; j < g->n_params; j++)
-            fprintf(stderr, " %s,", g->param_names[j]);
-        fputs(" and sigma\n", stderr);
-        return TF_EXIT_USAGE;
+        theta[k] = nv->items[i].value;
+        given[k] = 1;
+        if ((size_t)k > i_sigma && !quiet)
+            printf("note: %s (counting error) does not enter a projection; ignored\n", nv->items[i].name);
     }
-    for (size_t j = 0; j <= g->n_params; j++) {
-        const char *want = j < g->n_params ? g->param_names[j] : "sigma";
-        size_t i = 0;
-        while (i < nv->n && strcmp(nv->names[i], want))
-            i++;
-        if (i == nv->n) {
-            fprintf(stderr, PROG ": --fixed does not give %s, which the %s model needs\n", want, g->name);
-            return TF_EXIT_USAGE;
-        }
-        theta[j] = nv->values[i];
-        double lo = j < g->n_params ? g->lower[j] : 0, hi = j < g->n_params ? g->upper[j] : INFINITY;
-        int ok = j < g->n_params ? theta[j] > lo && theta[j] < hi : theta[j] >= 0;
-        if (!ok) {
-            if (j < g->n_params)
-                fprintf(stderr, PROG ": --fixed %s = %g is outside the %s model's range (%g, %g)\n", want, theta[j],
-                        g->name, lo, hi);
-            else
-                fprintf(stderr, PROG ": --fixed sigma = %g must be 0 or more (0 projects without noise)\n", theta[j]);
-            return TF_EXIT_USAGE;
+    for (size_t k = 0; k <= i_sigma; k++) {
+        const char *name = tf_model_param_name(m, k);
+        if (!given[k]) {
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed does not give %s, which the %s model needs",
+                              name, g->name);
+        } else if (k < i_sigma && !(theta[k] > g->lower[k] && theta[k] < g->upper[k])) {
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed %s = %g is outside the %s model's range (%g, %g)",
+                              name, theta[k], g->name, g->lower[k], g->upper[k]);
+        } else if (k == i_sigma && !(theta[k] >= 0)) {
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "0 projects without noise",
+                              "--fixed sigma = %g must be 0 or more", theta[k]);
         }
     }
-    return TF_EXIT_OK;
+    return st;
 }
 
 /* ---- the output folder -------------------------------------------------------------------------- */
-
-/* Creates dir and any missing parents; records the folders it made (deepest last) in made[] so that
- * a failed run can remove them again. */
-typedef struct {
-    char path[4096];
-    size_t n_made;
-    size_t made_len[32];   /* prefix lengths of path that this run created */
-} made_dirs;
-
-static int make_dirs(const char *dir, made_dirs *md, tf_error *err)
-{
-    md->n_made = 0;
-    size_t len = strlen(dir);
-    if (len == 0 || len >= sizeof md->path)
-        return tf_error_add(err, TF_ERR_USAGE, dir, 0, 0, NULL, "unusable output folder name");
-    memcpy(md->path, dir, len + 1);
-    for (size_t i = 1; i <= len; i++) {
-        if (i < len && md->path[i] != '/')
-            continue;
-        char keep = md->path[i];
-        md->path[i] = '\0';
-        struct stat stb;
-        if (stat(md->path, &stb) != 0) {
-            if (mkdir(md->path, 0777) != 0) {
-                tf_error_add(err, TF_ERR_IO, md->path, 0, 0, "check the output folder (-o)",
-                             "cannot create folder: %s", strerror(errno));
-                md->path[i] = keep;
-                return TF_ERR_IO;
-            }
-            if (md->n_made < sizeof md->made_len / sizeof md->made_len[0])
-                md->made_len[md->n_made++] = i;
-        } else if (!S_ISDIR(stb.st_mode)) {
-            tf_error_add(err, TF_ERR_IO, md->path, 0, 0, "check the output folder (-o)", "is not a folder");
-            md->path[i] = keep;
-            return TF_ERR_IO;
-        }
-        md->path[i] = keep;
-    }
-    return TF_OK;
-}
-
-static void remove_made_dirs(made_dirs *md)
-{
-    while (md->n_made > 0) {
-        size_t i = md->made_len[--md->n_made];
-        char keep = md->path[i];
-        md->path[i] = '\0';
-        rmdir(md->path);
-        md->path[i] = keep;
-    }
-}
 
 /* A survey or population name made safe for a folder name. */
 static void safe_name(const char *in, char *out, size_t size)
@@ -378,14 +265,14 @@ static void print_cautions(FILE *out)
 }
 
 static void print_summary(const tf_projection *p, const tf_growth_type *g, const double *theta, double start,
-                          int year0, uint64_t seed, const char *dir)
+                          int year0, uint64_t seed, const char *dir, tf_table *const *tables)
 {
     size_t H = tf_projection_horizon(p);
     printf("Forecast from fixed parameters, growth model %s:", g->name);
     for (size_t j = 0; j <= g->n_params; j++)
         printf("%s %s = %g", j ? "," : "", j < g->n_params ? g->param_names[j] : "sigma", theta[j]);
     printf("\n  start N = %g%s; %zu simulated futures, %zu years ahead, seed %llu\n", start,
-           year0 == TF_EXPORT_NO_YEAR ? "" : " in the last survey year", tf_projection_n_runs(p), H,
+           year0 == TF_PROJECTION_NO_YEAR ? "" : " in the last survey year", tf_projection_n_runs(p), H,
            (unsigned long long)seed);
     size_t step = H <= 100 ? 10 : (H + 9) / 10;
     printf("\nAbundance (median and 90 %% band of the simulated futures)\n   year      median        5 %%       95 %%\n");
@@ -442,7 +329,13 @@ static void print_summary(const tf_projection *p, const tf_growth_type *g, const
         }
         putchar('\n');
     }
-    printf("\nTables in %s: " TF_EXPORT_BANDS_CSV ", " TF_EXPORT_RISK_CSV ", " TF_EXPORT_DECLINE_CSV "\n", dir);
+    printf("\nTables in %s:", dir);
+    for (size_t i = 0; i < TF_PROJECTION_N_TABLES; i++) {
+        char name[128];
+        tf_csv_file_name(tf_table_name(tables[i]), name, sizeof name);
+        printf("%s %s", i ? "," : "", name);
+    }
+    putchar('\n');
 }
 
 /* ---- the command --------------------------------------------------------------------------------- */
@@ -450,7 +343,9 @@ static void print_summary(const tf_projection *p, const tf_growth_type *g, const
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
        OPT_START, OPT_SEED, OPT_POPULATION };
 
-static int parse_options(int argc, char **argv, options *o)
+/* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
+ * shown (nothing else to do), else 0; the caller checks err. */
+static int parse_options(int argc, char **argv, options *o, tf_error *err)
 {
     static const struct option longs[] = {
         {"model", required_argument, NULL, OPT_MODEL},
@@ -470,6 +365,7 @@ static int parse_options(int argc, char **argv, options *o)
         {NULL, 0, NULL, 0},
     };
     memset(o, 0, sizeof *o);
+    tf_args_pairs_init(&o->fixed);
     o->years = TF_PROJECT_DEFAULT_HORIZON;
     o->runs = TF_PROJECT_DEFAULT_RUNS;
     o->thresholds = DEFAULT_THRESHOLDS;
@@ -484,68 +380,42 @@ static int parse_options(int argc, char **argv, options *o)
         case OPT_OBS: o->obs = optarg; break;
         case OPT_AVERAGE: o->average = 1; break;
         case OPT_THRESHOLD: o->thresholds = optarg; break;
-        case OPT_FIXED: o->fixed = optarg; break;
+        case OPT_FIXED:
+            o->have_fixed = 1;
+            tf_args_parse_pairs("--fixed", optarg, &o->fixed, err);
+            break;
         case OPT_POPULATION: o->population = optarg; break;
         case 'o': o->out_dir = optarg; break;
         case 'q': o->quiet = 1; break;
-        case 'h': fputs(usage_text, stdout); return -1;
-        case OPT_YEARS:
-            if (!parse_count(optarg, 1, TF_PROJECT_MAX_HORIZON, &o->years))
-                return usage_error("--years wants a whole number of years from 1 to 1000, not '%s'", optarg);
-            break;
+        case 'h': fputs(usage_text, stdout); return 1;
+        case OPT_YEARS: tf_args_parse_size("--years", optarg, 1, TF_PROJECT_MAX_HORIZON, &o->years, err); break;
         case OPT_WINDOW:
-            if (!parse_count(optarg, 1, TF_PROJECT_MAX_HORIZON, &o->decline_window))
-                return usage_error("--decline-window wants a whole number of years from 1 to 1000, not '%s'"
-                                   " (the model steps whole years: round a generation-based window)",
-                                   optarg);
+            tf_args_parse_size("--decline-window", optarg, 1, TF_PROJECT_MAX_HORIZON, &o->decline_window, err);
             break;
-        case OPT_RUNS:
-            if (!parse_count(optarg, 1, 10000000, &o->runs))
-                return usage_error("--runs wants a whole number from 1 to 10000000, not '%s'", optarg);
-            break;
+        case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &o->runs, err); break;
         case OPT_START:
-            if (!parse_number(optarg, &o->start) || !(o->start > 0))
-                return usage_error("--start wants a positive abundance, not '%s'", optarg);
+            if (tf_args_parse_double("--start", optarg, &o->start, err) == TF_OK && !(o->start > 0))
+                tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--start: the current abundance must be > 0");
             break;
-        case OPT_SEED: {
-            char *end;
-            errno = 0;
-            unsigned long long s = strtoull(optarg, &end, 10);
-            if (!*optarg || *end || errno || optarg[0] == '-')
-                return usage_error("--seed wants a whole number from 0 to 2^64-1, not '%s'", optarg);
-            o->seed = s;
-            break;
-        }
-        case ':': return usage_error("option '%s' needs a value", argv[optind - 1]);
-        default: return usage_error("unknown option '%s'", argv[optind - 1]);
+        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &o->seed, err); break;
+        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], err); break;
         }
     }
     if (optind < argc)
         o->survey_path = argv[optind++];
     if (optind < argc)
-        return usage_error("one survey file at most; '%s' is one too many", argv[optind]);
-    return TF_EXIT_OK;
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    return 0;
 }
 
 /* The starting abundance from the survey (or --start), the calendar year of t = 0 and the label. */
 static int survey_start(const options *o, const tf_survey *sv, double *start, int *year0, const char **label)
 {
-    const tf_series *s = NULL;
-    size_t n = tf_survey_n_series(sv);
-    if (o->population) {
-        s = tf_survey_find(sv, o->population);
-        if (!s)
-            return usage_error("the survey has no population '%s'", o->population);
-    } else if (n == 1) {
-        s = tf_survey_series(sv, 0);
-    } else {
-        fprintf(stderr, PROG ": %s holds %zu populations; fixed parameters describe one\n  hint: pick one with"
-                        " --population:", o->survey_path, n);
-        for (size_t i = 0; i < n && i < 10; i++)
-            fprintf(stderr, " '%s'", tf_series_label(tf_survey_series(sv, i)));
-        fputs(n > 10 ? " ...\n" : "\n", stderr);
-        return TF_EXIT_USAGE;
-    }
+    tf_error err;
+    tf_error_init(&err);
+    const tf_series *s = tf_args_pick_series(sv, o->population, o->survey_path, &err);
+    if (!s)
+        return usage_fail(&err);
     /* Year 0 is the last year with a count: rows listed after it without one add nothing to start
      * from. */
     const double *counts = tf_series_counts(s);
@@ -578,7 +448,7 @@ static int survey_start(const options *o, const tf_survey *sv, double *start, in
 }
 
 /* Runs the projection, writes the tables and prints the summary; returns the exit code. */
-static int project_and_write(const options *o, const tf_project_options *po, const tf_growth_type *g,
+static int project_and_write(const options *o, const tf_project_options *po, const tf_model *m,
                              const double *theta, const tf_survey *sv, double start, int year0, const char *label)
 {
     int rc = TF_EXIT_OK;
@@ -600,7 +470,7 @@ static int project_and_write(const options *o, const tf_project_options *po, con
     }
 
     double x0 = log(start);
-    tf_project_input in = {g, g->n_params, g->n_params + 1, 1, theta, &x0, 1.0};
+    tf_project_input in = tf_project_input_from_model(m, theta, 1, &x0, 1.0);
     struct sigaction sa, old_int, old_term;
     memset(&sa, 0, sizeof sa);
     sa.sa_handler = on_signal;
@@ -613,29 +483,41 @@ static int project_and_write(const options *o, const tf_project_options *po, con
     tf_rng rng;
     tf_rng_derive(&rng, o->seed, keys, 2);
     tf_projection *p = NULL;
-    made_dirs md;
-    md.n_made = 0;
+    tf_table *tables[TF_PROJECTION_N_TABLES] = {NULL};
+    size_t n_made = 0;
     tf_status st = tf_project_run(&in, 1, po, &rng, &p, &err);
-    if (st == TF_ERR_INTERRUPTED || (!st && interrupted)) {
+    if (st == TF_OK)
+        st = tf_projection_tables_build(p, year0, tables, &err);
+    for (size_t i = 0; i < TF_PROJECTION_N_TABLES && st == TF_OK; i++)
+        st = tf_table_add_note(tables[i], TF_NOTE_CAUTION, tf_project_caution_fixed(), &err);
+    if (st == TF_OK && interrupted)
+        st = TF_ERR_INTERRUPTED;
+    if (st == TF_ERR_INTERRUPTED) {
         rc = TF_EXIT_INTERRUPTED;
-    } else if (st) {
+    } else if (st == TF_ERR_NOMEM || st == TF_ERR_NUMERIC) {
         tf_error_print(&err, PROG, stderr);
-        /* Range and validity errors come from the command line (--fixed, --start). */
-        rc = st == TF_ERR_NOMEM || st == TF_ERR_NUMERIC ? TF_EXIT_FAIL : TF_EXIT_USAGE;
-    } else if ((st = make_dirs(dir, &md, &err)) || (st = tf_export_projection_csv(p, dir, year0, &interrupted, &err))) {
-        if (st != TF_ERR_INTERRUPTED)
-            tf_error_print(&err, PROG, stderr);
-        remove_made_dirs(&md);
-        rc = st == TF_ERR_INTERRUPTED ? TF_EXIT_INTERRUPTED : TF_EXIT_FAIL;
+        rc = TF_EXIT_FAIL;
+    } else if (st) {
+        /* Range and validity errors of the projection come from the command line (--fixed, --start). */
+        tf_error_print(&err, PROG, stderr);
+        rc = TF_EXIT_USAGE;
+    } else if ((st = tf_atomic_mkdirs(dir, &n_made, &err)) ||
+               (st = tf_csv_write_all((const tf_table *const *)tables, TF_PROJECTION_N_TABLES, dir, o->survey_path,
+                                      &err))) {
+        tf_error_print(&err, PROG, stderr);
+        /* A failed run leaves no folders of its own behind. */
+        tf_atomic_rmdirs(dir, n_made);
+        rc = TF_EXIT_FAIL;
     } else {
         if (!o->quiet)
-            print_summary(p, g, theta, start, year0, o->seed, dir);
+            print_summary(p, tf_model_growth(m), theta, start, year0, o->seed, dir, tables);
         print_cautions(stdout);
     }
     if (rc == TF_EXIT_INTERRUPTED)
         fprintf(stderr, PROG ": interrupted; no tables written\n");
     sigaction(SIGINT, &old_int, NULL);
     sigaction(SIGTERM, &old_term, NULL);
+    tf_projection_tables_free(tables);
     tf_projection_free(p);
     return rc;
 }
@@ -643,64 +525,71 @@ static int project_and_write(const options *o, const tf_project_options *po, con
 int tf_cmd_forecast(int argc, char **argv)
 {
     options o;
-    int rc = parse_options(argc, argv, &o);
-    if (rc)
-        return rc < 0 ? TF_EXIT_OK : rc;
-
-    if (o.average && o.fixed)
-        return usage_error("--average combines fitted models; with --fixed there is nothing to average");
-    if (!o.fixed) {
-        fprintf(stderr, PROG ": projecting from a fitted posterior needs the sampler, which this command does not"
-                        " use yet\n  hint: give parameter values with --fixed r=...,sigma=... (and --start N) for a"
-                        " fixed-parameter forecast\n");
-        return TF_EXIT_USAGE;
-    }
-    if (!o.survey_path && isnan(o.start))
-        return usage_error("without a survey file, --start N (the current abundance) is required");
-    if (!o.survey_path && o.population)
-        return usage_error("--population needs a survey file");
-
     tf_error err;
     tf_error_init(&err);
+    if (parse_options(argc, argv, &o, &err))
+        return TF_EXIT_OK;
+    if (tf_error_status(&err) != TF_OK)
+        return usage_fail(&err);
+
+    if (o.average && o.have_fixed)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                     "--average combines fitted models; with --fixed there is nothing to average");
+    else if (!o.have_fixed)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0,
+                     "give parameter values with --fixed r=...,sigma=... (and --start N) for a fixed-parameter forecast",
+                     "projecting from a fitted posterior needs the sampler, which this command does not use yet");
+    if (!o.survey_path && isnan(o.start))
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                     "without a survey file, --start N (the current abundance) is required");
+    if (!o.survey_path && o.population)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--population needs a survey file");
+
     tf_project_options po;
     tf_project_options_init(&po);
     po.horizon = o.years;
     po.n_runs = o.runs;
     po.decline_window = o.decline_window;
     po.stop = &interrupted;
-    if (tf_project_parse_thresholds(o.thresholds, po.thresholds, TF_PROJECT_MAX_THRESHOLDS, &po.n_thresholds, &err)) {
-        tf_error_print(&err, PROG, stderr);
-        return TF_EXIT_USAGE;
-    }
+    tf_project_parse_thresholds(o.thresholds, po.thresholds, TF_PROJECT_MAX_THRESHOLDS, &po.n_thresholds, &err);
 
     const tf_obs_type *obs = NULL;
     if (o.obs && !(obs = tf_model_find_obs(o.obs))) {
-        fprintf(stderr, PROG ": unknown counting-error model '%s'\n  hint: known models:", o.obs);
-        for (size_t i = 0; i < tf_model_n_obs(); i++)
-            fprintf(stderr, " %s", tf_model_obs_at(i)->name);
-        fputc('\n', stderr);
-        return TF_EXIT_USAGE;
+        char known[256];
+        tf_model_list_obs(known, sizeof known);
+        char hint[300];
+        snprintf(hint, sizeof hint, "known models: %s", known);
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown counting-error model '%s'", o.obs);
     }
-    name_values nv;
-    const tf_growth_type *g;
-    double theta[TF_MAX_PARAMS + 1];
-    if ((rc = parse_name_values(o.fixed, &nv)) || (rc = pick_growth(&o, obs, &nv, &g)) ||
-        (rc = fixed_theta(g, obs, &nv, theta, o.quiet)))
-        return rc;
+    if (tf_error_status(&err) != TF_OK)
+        return usage_fail(&err);
+
+    const tf_growth_type *g = pick_growth(&o, obs, &err);
+    tf_model *m = NULL;
+    /* The joined model only lays out the parameters; without --obs any counting-error model
+     * will do, and Poisson has no parameters to give. */
+    if (!g || tf_model_new(g->name, obs ? obs->name : "poisson", &m, &err) != TF_OK)
+        return usage_fail(&err);
+    double theta[TF_MAX_PARAMS];
+    int rc = TF_EXIT_OK;
+    if (fixed_theta(m, &o.fixed, theta, o.quiet, &err) != TF_OK)
+        rc = usage_fail(&err);
 
     tf_survey *sv = NULL;
     double start = o.start;
-    int year0 = TF_EXPORT_NO_YEAR;
+    int year0 = TF_PROJECTION_NO_YEAR;
     const char *label = "";
-    if (o.survey_path) {
+    if (!rc && o.survey_path) {
         if (tf_survey_read(o.survey_path, &sv, &err)) {
             tf_error_print(&err, PROG, stderr);
-            return TF_EXIT_INPUT;
+            rc = TF_EXIT_INPUT;
+        } else {
+            rc = survey_start(&o, sv, &start, &year0, &label);
         }
-        rc = survey_start(&o, sv, &start, &year0, &label);
     }
     if (!rc)
-        rc = project_and_write(&o, &po, g, theta, sv, start, year0, label);
+        rc = project_and_write(&o, &po, m, theta, sv, start, year0, label);
     tf_survey_free(sv);
+    tf_model_free(m);
     return rc;
 }

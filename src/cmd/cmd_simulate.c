@@ -10,8 +10,8 @@
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "model/model.h"
+#include "export/atomic.h"
 #include "util/error.h"
-#include "util/outfile.h"
 #include "util/rng.h"
 
 #define CMD "simulate"
@@ -157,7 +157,7 @@ int tf_cmd_simulate(int argc, char **argv)
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;
     double *effort = NULL, *x = NULL, *y = NULL;
-    tf_outfile *of = NULL;
+    tf_atomic *of = NULL;
     if (tf_model_new(growth, obs, &m, &err) != TF_OK) {
         status = TF_EXIT_USAGE;
         goto out;
@@ -209,18 +209,19 @@ int tf_cmd_simulate(int argc, char **argv)
 
     FILE *out = stdout;
     if (output && strcmp(output, "-")) {
-        if (!(of = tf_outfile_open(output, &err)))
+        /* Nothing is read, so nothing needs protecting from being overwritten. */
+        if (tf_atomic_open(output, NULL, &of, &err) != TF_OK)
             goto out;
-        out = tf_outfile_stream(of);
+        out = tf_atomic_stream(of);
     }
     if (write_csv(out, label, first_year, n_years, y, effort, effort_text != NULL, tf_model_obs(m)->needs_integer)) {
         tf_error_add(&err, TF_ERR_IO, output, 0, 0, NULL, "write error");
         goto out;
     }
     if (of) {
-        tf_outfile *done = of;
+        tf_atomic *done = of;
         of = NULL;
-        if (tf_outfile_commit(done, &err) != TF_OK)
+        if (tf_atomic_commit(done, &err) != TF_OK)
             goto out;
     } else if (fflush(stdout) != 0) {
         tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
@@ -230,7 +231,7 @@ int tf_cmd_simulate(int argc, char **argv)
 out:
     if (status != TF_EXIT_OK)
         tf_error_print(&err, "tallyfit " CMD, stderr);
-    tf_outfile_discard(of);
+    tf_atomic_abort(of);
     free(effort);
     free(x);
     free(y);

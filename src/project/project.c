@@ -189,6 +189,21 @@ static tf_status check_input(const tf_project_input *in, size_t i, tf_error *err
     return TF_OK;
 }
 
+tf_project_input tf_project_input_from_model(const tf_model *m, const double *draws, size_t n_draws,
+                                             const double *x_last, double weight)
+{
+    tf_project_input in = {
+        .growth = tf_model_growth(m),
+        .sigma_index = tf_model_sigma_index(m),
+        .n_params = tf_model_n_params(m),
+        .n_draws = n_draws,
+        .draws = draws,
+        .x_last = x_last,
+        .weight = weight,
+    };
+    return in;
+}
+
 /* Largest-remainder (Hamilton) apportionment of n_runs among the inputs by weight. Inputs of weight
  * 0 get nothing; equal remainders go to the earlier input. The floors fall short of n_runs by fewer
  * runs than there are inputs of positive weight (the quotas add up to n_runs to within n eps n_runs,

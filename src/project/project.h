@@ -61,6 +61,14 @@ typedef struct {
     double weight;
 } tf_project_input;
 
+/* The input for draws of the joined model m: growth model, sigma index and row length taken from
+ * m, so that rows in m's parameter order (drift parameters, sigma, counting-error parameters; the
+ * last are ignored and may be NAN) are used as they are. draws (n_draws x tf_model_n_params(m))
+ * and x_last (n_draws) are borrowed and must outlive the tf_project_run call; m only needs to
+ * live through this call. */
+tf_project_input tf_project_input_from_model(const tf_model *m, const double *draws, size_t n_draws,
+                                             const double *x_last, double weight);
+
 typedef struct {
     size_t horizon;        /* years ahead, 1..TF_PROJECT_MAX_HORIZON */
     size_t n_runs;         /* simulated futures; 0 = max(TF_PROJECT_DEFAULT_RUNS, draws of the inputs

@@ -622,6 +622,39 @@ START_TEST(cautions_present)
 }
 END_TEST
 
+/* The input built from a joined model takes rows in the model's order, whose counting-error
+ * values are ignored: Ricker + negative binomial rows {r, K, sigma, phi} with phi = NAN give, bit
+ * for bit, the projection of the same draws as {r, K, sigma} rows. */
+START_TEST(input_from_model_uses_the_model_order)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_model *m = NULL;
+    ck_assert_int_eq(tf_model_new("ricker", "negbin", &m, &err), TF_OK);
+    ck_assert_uint_eq(tf_model_n_params(m), 4);
+    double rows[2][4] = {{0.4, 300, 0.2, NAN}, {0.1, 150, 0.05, NAN}};
+    double short_rows[2][3] = {{0.4, 300, 0.2}, {0.1, 150, 0.05}};
+    double x_last[2] = {log(120), log(80)};
+    tf_project_input in = tf_project_input_from_model(m, &rows[0][0], 2, x_last, 2.5);
+    ck_assert_ptr_eq(in.growth, tf_model_growth(m));
+    ck_assert_uint_eq(in.sigma_index, 2);
+    ck_assert_uint_eq(in.n_params, 4);
+    ck_assert_uint_eq(in.n_draws, 2);
+    ck_assert(in.weight == 2.5);
+    tf_project_input by_hand = {tf_model_growth(m), 2, 3, 2, &short_rows[0][0], x_last, 1.0};
+    tf_project_options o;
+    tf_project_options_init(&o);
+    o.horizon = 15;
+    o.n_runs = 200;
+    set_thresholds(&o, "60,40%");
+    tf_projection *a = run_ok(&in, 1, &o, 8), *b = run_ok(&by_hand, 1, &o, 8);
+    ck_assert(same_projection(a, b));
+    tf_projection_free(a);
+    tf_projection_free(b);
+    tf_model_free(m);
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("project");
@@ -644,6 +677,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, log_abundance_is_capped);
     tcase_add_test(tc, bad_input_is_refused);
     tcase_add_test(tc, cautions_present);
+    tcase_add_test(tc, input_from_model_uses_the_model_order);
     suite_add_tcase(s, tc);
     return s;
 }

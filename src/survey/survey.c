@@ -627,15 +627,16 @@ static void check_group(reader *r, row *rows, size_t n)
     if (!n)
         return;
     long ycol = r->col[COL_YEAR] + 1, ccol = r->col[COL_COUNT] + 1;
-    for (size_t i = 1; i < n; i++) {
-        if (rows[i].year != rows[i - 1].year)
+    /* run = the first row of the current run of equal years, kept as the loop goes so that a
+     * file of many rows of one year takes linear time, not quadratic. */
+    for (size_t i = 1, run = 0; i < n; i++) {
+        if (rows[i].year != rows[i - 1].year) {
+            run = i;
             continue;
-        size_t j = i - 1;
-        while (j > 0 && rows[j - 1].year == rows[i].year)
-            j--;
+        }
         report(r, TF_ERR_INVALID, rows[i].line, ycol, "keep one row per year and population",
                "year %d appears twice%s%s (first on line %ld)", rows[i].year, *rows[i].label ? " for " : "",
-               *rows[i].label ? who(buf, sizeof buf, rows[i].label) : "", rows[j].line);
+               *rows[i].label ? who(buf, sizeof buf, rows[i].label) : "", rows[run].line);
         bad = true;
     }
     long span = (long)rows[n - 1].year - rows[0].year + 1;

@@ -87,6 +87,11 @@ expect "a million rows" 3 "more than 100000 data rows; reading stops here" "$T" 
 expect "a million rows, forecast" 3 "more than 100000 data rows" "$T" "${fc[@]}" "$d/million.csv" -o "$tmp/o-million"
 [ -e "$tmp/o-million" ] && fail "a million rows, forecast: created its output folder"
 expect "over 32 MiB" 3 "the file is larger than 32 MiB" "$T" check "$d/huge.csv"
+# Standard input has no size to check first: it is cut off while reading, even when endless.
+expect "over 32 MiB on standard input" 3 "the survey is larger than 32 MiB" \
+  sh -c 'head -c 40M /dev/zero | exec "$1" likelihood - --model exponential --set r=0,sigma=0.1' sh "$T"
+expect "an endless standard input" 3 "the survey is larger than 32 MiB" \
+  sh -c 'yes 2000,5 | exec "$1" likelihood - --model exponential --set r=0,sigma=0.1' sh "$T"
 expect "a 1 MiB count" 3 "is larger than 1e+09" "$T" check "$d/long-count.csv"
 grep -qF "77777777777777777777777777777777777777..." "$tmp/err" || fail "a 1 MiB count: value not shortened"
 # A 1 MiB note is free text in an ignored column: the survey is usable.
@@ -134,6 +139,10 @@ expect "simulate to a full standard output" 1 "cannot write to standard output" 
 expect "forecast into a file" 1 "'$o/file' is a file, not a directory" "$T" "${fc[@]}" -o "$o/file"
 expect "forecast below a file" 1 "is a file, not a directory" "$T" "${fc[@]}" -o "$o/file/sub"
 [ "$(cat "$o/file")" = "not a folder" ] || fail "the file in the way was changed"
+# A folder name longer than the command keeps is refused, not cut to another folder's name.
+expect "forecast into a 6000-byte folder name" 2 "the output folder name is longer than" \
+  "$T" "${fc[@]}" -o "$o/$(printf 'abc/%.0s' $(seq 1500))"
+[ -e "$o/abc" ] && fail "a 6000-byte folder name: folders were made"
 no_leftovers "outputs" "$o"
 
 # The file size limit: the write fails (EFBIG, SIGXFSZ is ignored), nothing is left behind, and

@@ -119,12 +119,22 @@ grep -qF "5 of 5 years" "$tmp/out" || fail "no trailing newline: the last row wa
 expect "a directory as survey" 3 "cannot read the survey file: Is a directory" "$T" check "$d"
 expect "a directory as survey, forecast" 3 "Is a directory" "$T" "${fc[@]}" "$d" -o "$tmp/o-dir"
 expect "a missing survey" 3 "cannot open the survey file: No such file or directory" "$T" check "$d/missing.csv"
+# Permissions bind an ordinary user only: root (as CI runs) reads and writes through them, so as
+# root these cases run as the user nobody (setpriv, util-linux) when the binary is reachable.
+as_user=()
+have_user=1
+if [ "$(id -u)" -eq 0 ]; then
+  chmod 755 "$tmp" "$d"
+  as_user=(setpriv --reuid=65534 --regid=65534 --clear-groups)
+  if ! command -v setpriv >/dev/null || ! "${as_user[@]}" "$T" --version >/dev/null 2>&1; then
+    have_user=0
+    note "running as root and cannot run the binary as the user nobody: the permission cases are skipped"
+  fi
+fi
 cp "$d/no-newline.csv" "$d/locked.csv"
 chmod 000 "$d/locked.csv"
-if [ "$(id -u)" -ne 0 ]; then
-  expect "an unreadable survey" 3 "cannot open the survey file: Permission denied" "$T" check "$d/locked.csv"
-else
-  note "running as root, which reads a chmod 000 file: the unreadable-file case is skipped"
+if [ $have_user -eq 1 ]; then
+  expect "an unreadable survey" 3 "cannot open the survey file: Permission denied" "${as_user[@]}" "$T" check "$d/locked.csv"
 fi
 
 # ---- outputs ------------------------------------------------------------------------------------
@@ -165,25 +175,29 @@ expect "forecast past ulimit -f, new folder" 1 "File too large" \
 [ -e "$o/new" ] && fail "forecast past ulimit -f: left the folders it made"
 no_leftovers "ulimit -f" "$o"
 
-# A folder that cannot be written: permissions for an ordinary user; root writes through them,
-# so it gets a read-only file system instead (when this machine lets it mount one).
-ro=$tmp/ro
-mkdir -p "$ro"
-if [ "$(id -u)" -ne 0 ]; then
-  chmod 555 "$ro"
-  ro_phrase="Permission denied"
-elif mount -t tmpfs -o ro,size=64k tmpfs "$ro" 2>/dev/null; then
-  mounts+=("$ro")
-  ro_phrase="Read-only file system"
-else
-  ro=""
-  note "cannot mount a read-only file system here: the unwritable-folder case is skipped"
-fi
-if [ -n "$ro" ]; then
-  expect "simulate into an unwritable folder" 1 "$ro_phrase" "$T" "${sim[@]}" --years 20 -o "$ro/s.csv"
-  expect "forecast into an unwritable folder" 1 "$ro_phrase" "$T" "${fc[@]}" -o "$ro"
-  expect "forecast below an unwritable folder" 1 "$ro_phrase" "$T" "${fc[@]}" -o "$ro/sub"
-  [ -z "$(ls -A "$ro")" ] || fail "unwritable folder: something was written: $(ls -A "$ro")"
+# A folder that cannot be written: one without write permission (for an ordinary user), and,
+# as root, a read-only file system (when this machine lets it mount one).
+unwritable() {  # folder, phrase, command prefix...
+  local dir=$1 phrase=$2
+  shift 2
+  expect "simulate into an unwritable folder ($phrase)" 1 "$phrase" "$@" "$T" "${sim[@]}" --years 20 -o "$dir/s.csv"
+  expect "forecast into an unwritable folder ($phrase)" 1 "$phrase" "$@" "$T" "${fc[@]}" -o "$dir"
+  expect "forecast below an unwritable folder ($phrase)" 1 "$phrase" "$@" "$T" "${fc[@]}" -o "$dir/sub"
+  [ -z "$(ls -A "$dir")" ] || fail "unwritable folder ($phrase): something was written: $(ls -A "$dir")"
+}
+chmod 755 "$o"
+mkdir -p "$o/locked"
+chmod 555 "$o/locked"
+[ $have_user -eq 1 ] && unwritable "$o/locked" "Permission denied" "${as_user[@]}"
+if [ "$(id -u)" -eq 0 ]; then
+  ro=$tmp/ro
+  mkdir -p "$ro"
+  if mount -t tmpfs -o ro,size=64k tmpfs "$ro" 2>/dev/null; then
+    mounts+=("$ro")
+    unwritable "$ro" "Read-only file system"
+  else
+    note "cannot mount a read-only file system here: that unwritable-folder case is skipped"
+  fi
 fi
 
 # A full disk: a small tmpfs filled to the last block.

@@ -31,16 +31,25 @@ mkdir -p "$out"
 # its coverage (the gcc archive has none). libcsv and inih are system libraries: their own code
 # is not instrumented, only the callbacks into ours.
 flags=(-std=c11 -g -O1 -fno-omit-frame-pointer -fno-math-errno -D_POSIX_C_SOURCE=200809L -Isrc
-       -fsanitize=fuzzer,address,undefined -fno-sanitize-recover=all -Wall -Wextra -Wno-unused-parameter -Wno-unknown-attributes)
+       -fsanitize=fuzzer,address,undefined -fno-sanitize-recover=all
+       -Wall -Wextra -Wno-unused-parameter -Wno-unknown-attributes)
 libs=($(pkg-config --libs gsl inih 2>/dev/null) -lcsv -lm)
-build() {  # target
-  local t=$1
-  "$CLANG" "${flags[@]}" -o "$out/$t" "tests/fuzz/$t.c" src/util/*.c src/survey/*.c src/model/*.c "${libs[@]}" \
-    2>"$out/$t.build.log" || { cat "$out/$t.build.log" >&2; return 1; }
-}
-pids=()
-for t in "${targets[@]}"; do build "$t" & pids+=($!); done
-for p in "${pids[@]}"; do wait "$p" || { echo "fuzz: build failed" >&2; exit 1; }; done
+# The library sources are compiled once for both targets, as many at a time as there are cores.
+mkdir -p "$out/obj"
+rm -f "$out"/obj/*.o
+export CLANG out
+flagstr="${flags[*]}"
+export flagstr
+if ! ls src/util/*.c src/survey/*.c src/model/*.c |
+     xargs -P "$(nproc 2>/dev/null || echo 2)" -I{} sh -c \
+       'o="$out/obj/$(echo "$1" | tr / _).o"; $CLANG $flagstr -c -o "$o" "$1" 2>"$o.log" || { cat "$o.log" >&2; exit 255; }' sh {}; then
+  echo "fuzz: build failed" >&2
+  exit 1
+fi
+for t in "${targets[@]}"; do
+  "$CLANG" "${flags[@]}" -o "$out/$t" "tests/fuzz/$t.c" "$out"/obj/*.o "${libs[@]}" 2>"$out/$t.build.log" ||
+    { cat "$out/$t.build.log" >&2; echo "fuzz: build failed" >&2; exit 1; }
+done
 
 # Leaks are reported too (detect_leaks); a crash report names the input that caused it.
 export ASAN_OPTIONS=detect_leaks=1:abort_on_error=0:allocator_may_return_null=1

@@ -64,8 +64,9 @@ static void help(FILE *out)
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n"
             "  --chains C         chains (default %zu)\n"
-            "  --iterations I     kept draws per chain (default %zu)\n"
-            "  --warmup W         discarded draws per chain while the sampler adapts (default %zu)\n"
+            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
+            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --seed S           random seed (default %llu); the same seed gives the same files\n"
             "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
             "                     estimate's sd is near its target)\n"
@@ -79,7 +80,7 @@ static void help(FILE *out)
             "                     results do not depend on it\n"
             "  --quiet            no progress display and no summary\n"
             "  -h, --help         show this help\n",
-            growth, obs, d.n_chains, d.n_iter, d.n_warmup, (unsigned long long)d.seed,
+            growth, obs, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, (unsigned long long)d.seed,
             d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);
 }
 
@@ -440,7 +441,7 @@ static int exit_for(tf_status st)
 int tf_cmd_fit(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_ITER, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET };
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -448,6 +449,7 @@ int tf_cmd_fit(int argc, char **argv)
         {"output", required_argument, NULL, 'o'},
         {"chains", required_argument, NULL, OPT_CHAINS},
         {"iterations", required_argument, NULL, OPT_ITER},
+        {"thin", required_argument, NULL, OPT_THIN},
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"seed", required_argument, NULL, OPT_SEED},
         {"particles", required_argument, NULL, OPT_PARTICLES},
@@ -469,6 +471,7 @@ int tf_cmd_fit(int argc, char **argv)
     long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
     opt.n_threads = n_cpu > 0 ? (size_t)n_cpu : 1;
     int quiet = 0;
+    size_t iterations = opt.n_iter * opt.thin;
 
     opterr = 0;
     optind = 0;
@@ -480,7 +483,8 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_POP: population = optarg; break;
         case 'o': out_dir = optarg; break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.n_chains, &err); break;
-        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &opt.n_iter, &err); break;
+        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
+        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.n_warmup, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
         case OPT_PARTICLES:
@@ -503,6 +507,10 @@ int tf_cmd_fit(int argc, char **argv)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
     if (!path)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit fit --help' for the usage", "no survey file given");
+    opt.n_iter = iterations / opt.thin;
+    if (opt.n_iter < 1)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.thin);
     if (!growth)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     for (size_t i = 0; i < set.n; i++)

@@ -65,11 +65,12 @@ void tf_fit_record(tf_fit *f, size_t chain, size_t iter, const double *theta, do
  * rejected because the likelihood estimate was not finite. */
 void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double invalid);
 
-/* How the draws were made: warm-up length, particle count, measured SD of the log-likelihood
+/* How the draws were made: warm-up length, thinning, particle count, measured SD of the log-likelihood
  * estimator at the pilot point (for the correlated method: SD of the log-ratio), method, seed,
  * and wall-clock seconds. */
 typedef struct {
     size_t n_warmup;
+    size_t thin;              /* iterations per kept draw */
     size_t n_particles;
     double loglik_sd;
     int correlated;

@@ -21,8 +21,13 @@ tf_pmmh_options tf_pmmh_default_options(void)
         /* Four chains: the number split R-hat is designed around (Vehtari et al. 2021,
          * section 4). */
         .n_chains = 4,
-        .n_iter = 2500,
-        .n_warmup = 2000,
+        /* 20000 iterations per chain after a warm-up of 5000, every 4th kept: on the demo
+         * surveys every model reaches bulk and tail ESS above 400 with R-hat below 1.01 in a few
+         * seconds (bench/bench_fit.c); thinning only trims the output, since draws 4 apart are
+         * still strongly correlated at these acceptance rates. */
+        .n_iter = 5000,
+        .thin = 4,
+        .n_warmup = 5000,
         .n_threads = 1,
         .seed = 1,
         .n_particles = 0,
@@ -240,9 +245,11 @@ static tf_status run_main(job *j)
     tf_chain_reset_counts(j->chain);
     reset_phase_counts(j);
     for (size_t it = 0; it < r->opt.n_iter; it++) {
-        if (worker_stopped(r))
-            return TF_ERR_INTERRUPTED;
-        count_step(j, tf_chain_step(j->chain));
+        for (size_t k = 0; k < r->opt.thin; k++) {
+            if (worker_stopped(r))
+                return TF_ERR_INTERRUPTED;
+            count_step(j, tf_chain_step(j->chain));
+        }
         tf_fit_record(r->fit, j->index, it, tf_chain_theta(j->chain), tf_chain_loglik(j->chain),
                       tf_chain_path(j->chain));
     }
@@ -301,7 +308,7 @@ static void report(run *r, progress_state *ps)
         ps->acceptance[c] = steps ? (double)acc / (double)steps : NAN;
     }
     tf_pmmh_progress p = {.phase = r->phase, .n_chains = r->opt.n_chains, .done = ps->done,
-                          .total = r->opt.n_warmup + r->opt.n_iter,
+                          .total = r->opt.n_warmup + r->opt.n_iter * r->opt.thin,
                           .acceptance = ps->acceptance, .n_particles = r->n_particles,
                           .seconds = now_seconds() - ps->t0};
     ps->fn(ps->ctx, &p);
@@ -452,7 +459,8 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
                       void *progress_ctx, tf_fit **out, tf_error *err)
 {
     *out = NULL;
-    if (opt->n_chains == 0 || opt->n_chains > TF_FIT_MAX_CHAINS || opt->n_iter == 0 || opt->n_threads == 0 || opt->n_warmup < 20 ||
+    if (opt->n_chains == 0 || opt->n_chains > TF_FIT_MAX_CHAINS || opt->n_iter == 0 || opt->thin == 0 ||
+        opt->n_threads == 0 || opt->n_warmup < 20 ||
         opt->pilot_particles == 0 || !(opt->rho >= 0 && opt->rho < 1))
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0,
                             "chains, iterations and threads must be >= 1, warm-up >= 20, rho in [0, 1)",
@@ -541,7 +549,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     if ((st = run_phase(&r, run_main, &ps, err)) != TF_OK)
         goto fail;
 
-    tf_fit_settings fs = {.n_warmup = opt->n_warmup, .n_particles = r.n_particles,
+    tf_fit_settings fs = {.n_warmup = opt->n_warmup, .thin = opt->thin, .n_particles = r.n_particles,
                           .loglik_sd = tr.sd, .correlated = opt->correlated, .rho = opt->rho,
                           .seed = opt->seed, .seconds = now_seconds() - t0};
     tf_fit_set_settings(r.fit, &fs);

@@ -17,7 +17,7 @@ tf_tune_options tf_tune_default_options(int correlated)
         .target_sd = correlated ? 1.0 : 1.0,
         .n_reps = 60,
         .start_particles = 100,
-        .min_particles = 20,
+        .min_particles = 100,
         .max_particles = 200000,
         .max_rounds = 5,
         .stop = NULL,

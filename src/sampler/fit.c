@@ -122,7 +122,7 @@ static int all_finite(const double *x, size_t n)
  * n_iter * stride values starting at base. NaN when the draws cannot be diagnosed (too short
  * chains, a constant or non-finite quantity). */
 static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, size_t stride,
-                     double *rhat, double *ess_bulk, double *ess_tail)
+                     double *rhat, double *ess_bulk, double *ess_tail, double *mcse_mean)
 {
     const double *chains[TF_FIT_MAX_CHAINS];
     for (size_t c = 0; c < f->n_chains; c++)
@@ -131,11 +131,13 @@ static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, 
     tf_error ignored;
     tf_error_init(&ignored);
     if (!w || tf_diag_summarise(w, chains, f->n_chains, f->n_iter, stride, &d, &ignored) != TF_OK)
-        d.rhat = d.ess_bulk = d.ess_tail = NAN;
+        d.rhat = d.ess_bulk = d.ess_tail = d.mcse_mean = NAN;
     *rhat = d.rhat;
     *ess_bulk = d.ess_bulk;
     if (ess_tail)
         *ess_tail = d.ess_tail;
+    if (mcse_mean)
+        *mcse_mean = d.mcse_mean;
 }
 
 tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
@@ -156,7 +158,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
 
     for (size_t p = 0; p < f->n_params; p++) {
         tf_fit_param_summary *ps = &f->params[p];
-        diagnose(f, w, f->draws + p, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail);
+        diagnose(f, w, f->draws + p, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail, &ps->mcse_mean);
         for (size_t k = 0; k < n_draws; k++)
             x[k] = f->draws[k * f->n_params + p];
         double prob[3] = {0.025, 0.5, 0.975}, q[3];
@@ -164,7 +166,6 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         ps->q025 = q[0];
         ps->q50 = q[1];
         ps->q975 = q[2];
-        ps->mcse_mean = ps->sd / sqrt(ps->ess_bulk);
     }
 
     const double *counts = tf_series_counts(f->series), *effort = tf_series_effort(f->series);
@@ -200,7 +201,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         n_decline += slope < 0;
     }
     if (f->n_years > 1 && all_finite(x, n_draws)) {
-        diagnose(f, w, x, 1, &tr->rhat, &tr->ess_bulk, NULL);
+        diagnose(f, w, x, 1, &tr->rhat, &tr->ess_bulk, NULL, NULL);
         double prob[3] = {0.5, 0.025, 0.975}, q[3];
         moments_and_quantiles(x, n_draws, &tr->mean, NULL, prob, q, 3);
         tr->median = q[0];

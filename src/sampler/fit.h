@@ -29,7 +29,8 @@ typedef struct {
     double q025, q50, q975;   /* 2.5 %, 50 %, 97.5 % quantiles */
     double rhat;              /* rank-normalised split R-hat */
     double ess_bulk, ess_tail;
-    double mcse_mean;         /* sd / sqrt(ess_bulk) */
+    double mcse_mean;         /* Monte Carlo standard error of the mean: sd / sqrt(ESS of the
+                               * draws themselves), diagnostics.h */
 } tf_fit_param_summary;
 
 /* Posterior of the true abundance N = exp(x) in one year of the series (surveyed or not). */

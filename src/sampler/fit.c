@@ -176,19 +176,18 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         ys->count = counts[t];
         ys->effort = effort[t];
         for (size_t k = 0; k < n_draws; k++)
-            x[k] = f->paths[k * f->n_years + t];
+            x[k] = exp(f->paths[k * f->n_years + t]);
         if (!all_finite(x, n_draws)) {
             ys->median = ys->q25 = ys->q75 = ys->q025 = ys->q975 = NAN;
             continue;
         }
-        /* exp is increasing, so the quantiles of N are exp of the quantiles of x. */
         double prob[5] = {0.5, 0.25, 0.75, 0.025, 0.975}, q[5];
         moments_and_quantiles(x, n_draws, NULL, NULL, prob, q, 5);
-        ys->median = exp(q[0]);
-        ys->q25 = exp(q[1]);
-        ys->q75 = exp(q[2]);
-        ys->q025 = exp(q[3]);
-        ys->q975 = exp(q[4]);
+        ys->median = q[0];
+        ys->q25 = q[1];
+        ys->q75 = q[2];
+        ys->q025 = q[3];
+        ys->q975 = q[4];
     }
 
     tf_fit_trend_summary *tr = &f->trend;

@@ -338,6 +338,10 @@ static void safe_name(const char *label, char *out, size_t size)
 /* The survey's file name without directories and without a final ".csv". */
 static void survey_name(const char *path, char *out, size_t size)
 {
+    if (!strcmp(path, "-")) {
+        snprintf(out, size, "stdin");
+        return;
+    }
     const char *base = strrchr(path, '/');
     base = base ? base + 1 : path;
     snprintf(out, size, "%s", base);
@@ -348,32 +352,55 @@ static void survey_name(const char *path, char *out, size_t size)
         snprintf(out, size, "survey");
 }
 
-static tf_status write_tables(const job *j, const char *survey_path, char *first_path, size_t first_size,
-                              tf_error *err)
+#define N_TABLES 5
+
+/* Writes the tables of every population as one group (tf_atomic_commit_all): either every file
+ * is replaced or none is, and directories this call made are taken away again on failure. */
+static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
 {
-    tf_table *tables[5] = {draws_table(j->fit, err), parameters_table(j->fit, j->priors, err),
-                           abundance_table(j->fit, err), trend_table(j->fit, err), sampler_table(j->fit, err)};
-    tf_status st = TF_OK;
-    for (size_t i = 0; i < 5; i++)
-        if (!tables[i])
-            st = tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
-    if (st == TF_OK)
-        st = tf_atomic_mkdirs(j->dir, err);
-    for (size_t i = 0; i < 5 && st == TF_OK; i++) {
-        char path[4600];
-        int n = snprintf(path, sizeof path, "%s/%s-%s.csv", j->dir, tf_model_name(j->model),
-                         tf_table_name(tables[i]));
-        if (n < 0 || (size_t)n >= sizeof path) {
-            st = tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "choose a shorter -o directory",
-                              "the output path is too long");
-            break;
+    size_t n_files = n_jobs * N_TABLES, n_open = 0;
+    tf_atomic **files = calloc(n_files, sizeof *files);
+    size_t *created = calloc(n_jobs, sizeof *created);
+    tf_status st = files && created ? TF_OK
+                                    : tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
+        const job *j = &jobs[i];
+        tf_table *tables[N_TABLES] = {draws_table(j->fit, err), parameters_table(j->fit, j->priors, err),
+                                      abundance_table(j->fit, err), trend_table(j->fit, err),
+                                      sampler_table(j->fit, err)};
+        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++)
+            if (!tables[k])
+                st = tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
+        if (st == TF_OK)
+            st = tf_atomic_mkdirs(j->dir, &created[i], err);
+        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
+            char path[4600];
+            int n = snprintf(path, sizeof path, "%s/%s-%s.csv", j->dir, tf_model_name(j->model),
+                             tf_table_name(tables[k]));
+            if (n < 0 || (size_t)n >= sizeof path) {
+                st = tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "choose a shorter -o directory",
+                                  "the output path is too long");
+                break;
+            }
+            if ((st = tf_atomic_open(path, survey_path, &files[n_open], err)) != TF_OK)
+                break;
+            n_open++;
+            st = tf_csv_write_stream(tables[k], tf_atomic_stream(files[n_open - 1]), path, err);
         }
-        st = tf_csv_write(tables[i], path, survey_path, err);
-        if (st == TF_OK && i == 0 && first_path)
-            snprintf(first_path, first_size, "%s", path);
+        for (size_t k = 0; k < N_TABLES; k++)
+            tf_table_free(tables[k]);
     }
-    for (size_t i = 0; i < 5; i++)
-        tf_table_free(tables[i]);
+    if (st == TF_OK) {
+        st = tf_atomic_commit_all(files, n_open, err);
+    } else {
+        for (size_t k = 0; k < n_open; k++)
+            tf_atomic_abort(files[k]);
+    }
+    if (st != TF_OK && created)
+        for (size_t i = n_jobs; i-- > 0;)
+            tf_atomic_rmdirs(jobs[i].dir, created[i]);
+    free(files);
+    free(created);
     return st;
 }
 
@@ -543,15 +570,13 @@ int tf_cmd_fit(int argc, char **argv)
     sigaction(SIGINT, &sa, &old_int);
     sigaction(SIGTERM, &sa, &old_term);
 
-    if (tf_survey_read(path, &sv, &err) != TF_OK) {
+    if (tf_args_read_survey(path, &sv, &err) != TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;
     }
     size_t n_series = tf_survey_n_series(sv);
     const tf_series *only = NULL;
-    if (population && !(only = tf_survey_find(sv, population))) {
-        tf_error_add(&err, TF_ERR_USAGE, path, 0, 0, "run 'tallyfit check' on the file to list its populations",
-                     "no population named '%s'", population);
+    if (population && !(only = tf_args_pick_series(sv, population, path, &err))) {
         status = TF_EXIT_USAGE;
         goto out;
     }
@@ -616,18 +641,14 @@ int tf_cmd_fit(int argc, char **argv)
         }
     }
 
-    /* Every fit is done: write them all. Signals wait until the files are written, so that a
-     * late Ctrl-C cannot leave one population written and the next not (the atomic writes
-     * already rule out half-written files). */
+    /* Every fit is done: write them all as one group. Signals wait until that is over, so that
+     * a late Ctrl-C cannot stop the group half-way through its renames. */
     sigset_t block, old_mask;
     sigemptyset(&block);
     sigaddset(&block, SIGINT);
     sigaddset(&block, SIGTERM);
     sigprocmask(SIG_BLOCK, &block, &old_mask);
-    tf_status wst = TF_OK;
-    char first[4600] = "";
-    for (size_t i = 0; i < n_jobs && wst == TF_OK; i++)
-        wst = write_tables(&jobs[i], path, i == 0 ? first : NULL, sizeof first, &err);
+    tf_status wst = write_all(jobs, n_jobs, path, &err);
     sigprocmask(SIG_SETMASK, &old_mask, NULL);
     if (wst != TF_OK) {
         status = exit_for(wst);

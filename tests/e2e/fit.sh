@@ -5,6 +5,8 @@
 set -u
 cd "$(dirname "$0")/../.."
 T=${TALLYFIT:?TALLYFIT must name the binary}
+# The binary may live outside the tree (build/san): point it at the model files here.
+export TALLYFIT_MODELS=${TALLYFIT_MODELS:-$PWD/models}
 fail=0
 bad() { echo "fit.sh: $*" >&2; fail=1; }
 tmp=$(mktemp -d)

@@ -31,6 +31,8 @@ ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..")
 TALLYFIT = os.environ.get("TALLYFIT", os.path.join(ROOT, "tallyfit"))
 VALIDATE = bool(os.environ.get("TF_VALIDATE"))
 PRIORS = os.path.join(ROOT, "tests", "data", "fit")
+# The binary may live outside the tree: point it at the model files here.
+os.environ.setdefault("TALLYFIT_MODELS", os.path.join(ROOT, "models"))
 
 # Truths inside the bulk of the default priors; 30 years of Poisson counts in the hundreds.
 CASES = [

@@ -7,6 +7,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/ioctl.h>
 #include <unistd.h>
 
 #include "cmd/args.h"
@@ -95,6 +96,18 @@ typedef struct {
     int started;
 } progress_view;
 
+/* Columns of the terminal on stderr; 80 when unknown. */
+static size_t terminal_width(void)
+{
+    struct winsize ws;
+    if (ioctl(STDERR_FILENO, TIOCGWINSZ, &ws) == 0 && ws.ws_col > 0)
+        return ws.ws_col;
+    return 80;
+}
+
+/* One status line, rewritten in place: phase, bar, iterations, acceptance by chain, particles
+ * and time left (from the rate of the current phase). Cut to the terminal's width so that it
+ * never wraps, which would defeat the carriage return. */
 static void show_progress(void *ctx, const tf_pmmh_progress *p)
 {
     progress_view *v = ctx;
@@ -108,25 +121,37 @@ static void show_progress(void *ctx, const tf_pmmh_progress *p)
         v->phase_done0 = done;
     }
     static const char *const names[] = {"pilot", "tuning", "chains"};
-    char bar[21];
+    char bar[21], line[512];
     size_t filled = total ? 20 * done / total : 0;
     for (size_t i = 0; i < 20; i++)
         bar[i] = i < filled ? '#' : '.';
     bar[20] = '\0';
-    fprintf(stderr, "\r%s%s%s  %-6s [%s] %3.0f%%", v->population, v->population[0] ? " " : "",
-            v->model, names[p->phase], bar, total ? 100.0 * (double)done / (double)total : 0.0);
+    size_t n = 0;
+#define ADD(...)                                                                   \
+    do {                                                                           \
+        int k_ = snprintf(line + n, sizeof line - n, __VA_ARGS__);                \
+        if (k_ > 0)                                                                \
+            n = n + (size_t)k_ < sizeof line ? n + (size_t)k_ : sizeof line - 1;   \
+    } while (0)
+    ADD("%s%s%s %-6s [%s] %zu/%zu", v->population, v->population[0] ? " " : "", v->model, names[p->phase], bar,
+        done, total);
     if (p->phase == TF_PMMH_MAIN) {
-        fputs("  acc", stderr);
+        ADD("  acc");
         for (size_t c = 0; c < p->n_chains && c < 8; c++)
             if (isnan(p->acceptance[c]))
-                fputs(" -", stderr);
+                ADD(" -");
             else
-                fprintf(stderr, " %.2f", p->acceptance[c]);
+                ADD(" %.2f", p->acceptance[c]);
         double rate = (double)(done - v->phase_done0) / (p->seconds - v->phase_t0 + 1e-9);
+        ADD("  N=%zu", p->n_particles);
         if (done > v->phase_done0 && rate > 0)
-            fprintf(stderr, "  N=%zu  %.0f s left", p->n_particles, (double)(total - done) / rate);
+            ADD("  %.0f s left", (double)(total - done) / rate);
     }
-    fputs("\033[K", stderr);   /* clear the rest of the line */
+#undef ADD
+    size_t width = terminal_width();
+    if (n >= width)
+        line[width - 1] = '\0';
+    fprintf(stderr, "\r%s\033[K", line);   /* ESC [ K clears the rest of the line */
     fflush(stderr);
 }
 

@@ -12,6 +12,7 @@
 
 struct tf_fit {
     const tf_model *model;
+    const tf_posterior *post;
     const tf_series *series;
     size_t n_chains, n_iter, n_params, n_years;
     double *draws;     /* [chain][iter][param] */
@@ -95,6 +96,7 @@ void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double i
 }
 
 void tf_fit_set_settings(tf_fit *f, const tf_fit_settings *st) { f->settings = *st; }
+void tf_fit_set_posterior(tf_fit *f, const tf_posterior *post) { f->post = post; }
 
 /* Mean and sd of x[0..n), then sorts x in place and writes three quantiles (GSL's linear
  * interpolation between order statistics, Hyndman & Fan 1996 type 7). */
@@ -219,6 +221,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
 
 const tf_model *tf_fit_model(const tf_fit *f) { return f->model; }
 const tf_series *tf_fit_series(const tf_fit *f) { return f->series; }
+const tf_posterior *tf_fit_posterior(const tf_fit *f) { return f->post; }
 const tf_fit_settings *tf_fit_settings_of(const tf_fit *f) { return &f->settings; }
 size_t tf_fit_n_chains(const tf_fit *f) { return f->n_chains; }
 size_t tf_fit_n_iter(const tf_fit *f) { return f->n_iter; }

@@ -435,6 +435,9 @@ START_TEST(given_particle_count_is_kept)
     ck_assert_uint_eq(tf_fit_settings_of(fit)->n_particles, 37);
     ck_assert(tf_fit_settings_of(fit)->loglik_sd > 0 && isfinite(tf_fit_settings_of(fit)->loglik_sd));
     ck_assert_uint_eq(tf_fit_settings_of(fit)->thin, 2);
+    ck_assert_ptr_eq(tf_fit_posterior(fit), su.post);
+    ck_assert_ptr_eq(tf_fit_model(fit), su.m);
+    ck_assert_ptr_eq(tf_fit_series(fit), su.s);
     for (size_t c = 0; c < tf_fit_n_chains(fit); c++)
         ck_assert(tf_fit_acceptance(fit, c) > 0 && tf_fit_acceptance(fit, c) < 1);
     tf_fit_free(fit);

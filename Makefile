@@ -96,6 +96,12 @@ bench: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit $(BENCH_BIN)
 	$(Q)for b in $(BENCH_BIN); do $$b || exit 1; done
 
+# The long statistical checks: parameter coverage over more simulated surveys, then
+# simulation-based calibration of the sampler (tests/ref/test_fit_recovery.py).
+validate: deps
+	$(Q)$(MAKE) --no-print-directory tallyfit
+	$(Q)TALLYFIT=$(CURDIR)/tallyfit TF_VALIDATE=1 /usr/bin/python3 tests/ref/test_fit_recovery.py
+
 # The README's first command: install what is missing, build, run the main job on a demo survey.
 demo: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit

@@ -89,7 +89,9 @@ tf_status tf_args_parse_pairs(const char *opt, const char *text, tf_arg_pairs *p
         if (p->n >= TF_ARGS_MAX_PAIRS)
             return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: more than %d values", opt,
                                 TF_ARGS_MAX_PAIRS);
-        memcpy(p->items[p->n].name, name, strlen(name) + 1); /* fits: checked above */
+        /* Fits: longer names were refused above (snprintf here would make GCC warn of a
+         * truncation that cannot happen). */
+        memcpy(p->items[p->n].name, name, strlen(name) + 1);
         p->items[p->n].value = v;
         p->n++;
         if (!end)
@@ -195,6 +197,41 @@ tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char 
     if (opt_char && (!arg || strncmp(arg, "--", 2)))
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '-%c'", opt_char);
     return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", what);
+}
+
+/* "'east', 'west', ..." into buf, ending in "..." when buf is too small for all. */
+static void population_list(const tf_survey *sv, char *buf, size_t size)
+{
+    size_t n = tf_survey_n_series(sv), used = 0;
+    buf[0] = '\0';
+    for (size_t i = 0; i < n; i++) {
+        const char *label = tf_series_label(tf_survey_series(sv, i));
+        /* Room for this item and a closing ", ..." must remain. */
+        if (used + strlen(label) + 4 + sizeof ", ..." > size) {
+            snprintf(buf + used, size - used, "%s...", i ? ", " : "");
+            return;
+        }
+        used += (size_t)snprintf(buf + used, size - used, "%s'%s'", i ? ", " : "", label);
+    }
+}
+
+const tf_series *tf_args_pick_series(const tf_survey *sv, const char *population, const char *path,
+                                     tf_error *err)
+{
+    size_t n = tf_survey_n_series(sv);
+    const tf_series *s = population ? tf_survey_find(sv, population) : n == 1 ? tf_survey_series(sv, 0) : NULL;
+    if (s)
+        return s;
+    char list[200], hint[256];
+    population_list(sv, list, sizeof list);
+    if (population) {
+        snprintf(hint, sizeof hint, "the file has %s", list);
+        tf_error_add(err, TF_ERR_USAGE, path, 0, 0, hint, "no population named '%s'", population);
+    } else {
+        snprintf(hint, sizeof hint, "choose one with --population: %s", list);
+        tf_error_add(err, TF_ERR_USAGE, path, 0, 0, hint, "the survey holds %zu populations", n);
+    }
+    return NULL;
 }
 
 /* "r, K, sigma, phi" for hints. */

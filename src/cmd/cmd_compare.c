@@ -420,9 +420,13 @@ int tf_cmd_compare(int argc, char **argv)
             wst = TF_ERR_NOMEM;
             break;
         }
-        wst = tf_atomic_mkdirs(dir, &err);
+        size_t created = 0;
+        wst = tf_atomic_mkdirs(dir, &created, &err);
         if (wst == TF_OK)
             wst = tf_csv_write_in_dir(t, dir, path, written[i], sizeof written[i], &err);
+        /* A failed write leaves no empty directories behind that this run made. */
+        if (wst != TF_OK)
+            tf_atomic_rmdirs(dir, created);
         tf_table_free(t);
     }
     sigprocmask(SIG_SETMASK, &old_mask, NULL);

@@ -7,6 +7,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/ioctl.h>
 #include <unistd.h>
 
 #include "cmd/args.h"
@@ -64,8 +65,9 @@ static void help(FILE *out)
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n"
             "  --chains C         chains (default %zu)\n"
-            "  --iterations I     kept draws per chain (default %zu)\n"
-            "  --warmup W         discarded draws per chain while the sampler adapts (default %zu)\n"
+            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
+            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --seed S           random seed (default %llu); the same seed gives the same files\n"
             "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
             "                     estimate's sd is near its target)\n"
@@ -79,7 +81,7 @@ static void help(FILE *out)
             "                     results do not depend on it\n"
             "  --quiet            no progress display and no summary\n"
             "  -h, --help         show this help\n",
-            growth, obs, d.n_chains, d.n_iter, d.n_warmup, (unsigned long long)d.seed,
+            growth, obs, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, (unsigned long long)d.seed,
             d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);
 }
 
@@ -94,6 +96,18 @@ typedef struct {
     int started;
 } progress_view;
 
+/* Columns of the terminal on stderr; 80 when unknown. */
+static size_t terminal_width(void)
+{
+    struct winsize ws;
+    if (ioctl(STDERR_FILENO, TIOCGWINSZ, &ws) == 0 && ws.ws_col > 0)
+        return ws.ws_col;
+    return 80;
+}
+
+/* One status line, rewritten in place: phase, bar, iterations, acceptance by chain, particles
+ * and time left (from the rate of the current phase). Cut to the terminal's width so that it
+ * never wraps, which would defeat the carriage return. */
 static void show_progress(void *ctx, const tf_pmmh_progress *p)
 {
     progress_view *v = ctx;
@@ -107,25 +121,37 @@ static void show_progress(void *ctx, const tf_pmmh_progress *p)
         v->phase_done0 = done;
     }
     static const char *const names[] = {"pilot", "tuning", "chains"};
-    char bar[21];
+    char bar[21], line[512];
     size_t filled = total ? 20 * done / total : 0;
     for (size_t i = 0; i < 20; i++)
         bar[i] = i < filled ? '#' : '.';
     bar[20] = '\0';
-    fprintf(stderr, "\r%s%s%s  %-6s [%s] %3.0f%%", v->population, v->population[0] ? " " : "",
-            v->model, names[p->phase], bar, total ? 100.0 * (double)done / (double)total : 0.0);
+    size_t n = 0;
+#define ADD(...)                                                                   \
+    do {                                                                           \
+        int k_ = snprintf(line + n, sizeof line - n, __VA_ARGS__);                \
+        if (k_ > 0)                                                                \
+            n = n + (size_t)k_ < sizeof line ? n + (size_t)k_ : sizeof line - 1;   \
+    } while (0)
+    ADD("%s%s%s %-6s [%s] %zu/%zu", v->population, v->population[0] ? " " : "", v->model, names[p->phase], bar,
+        done, total);
     if (p->phase == TF_PMMH_MAIN) {
-        fputs("  acc", stderr);
+        ADD("  acc");
         for (size_t c = 0; c < p->n_chains && c < 8; c++)
             if (isnan(p->acceptance[c]))
-                fputs(" -", stderr);
+                ADD(" -");
             else
-                fprintf(stderr, " %.2f", p->acceptance[c]);
+                ADD(" %.2f", p->acceptance[c]);
         double rate = (double)(done - v->phase_done0) / (p->seconds - v->phase_t0 + 1e-9);
+        ADD("  N=%zu", p->n_particles);
         if (done > v->phase_done0 && rate > 0)
-            fprintf(stderr, "  N=%zu  %.0f s left", p->n_particles, (double)(total - done) / rate);
+            ADD("  %.0f s left", (double)(total - done) / rate);
     }
-    fputs("\033[K", stderr);   /* clear the rest of the line */
+#undef ADD
+    size_t width = terminal_width();
+    if (n >= width)
+        line[width - 1] = '\0';
+    fprintf(stderr, "\r%s\033[K", line);   /* ESC [ K clears the rest of the line */
     fflush(stderr);
 }
 
@@ -337,6 +363,10 @@ static void safe_name(const char *label, char *out, size_t size)
 /* The survey's file name without directories and without a final ".csv". */
 static void survey_name(const char *path, char *out, size_t size)
 {
+    if (!strcmp(path, "-")) {
+        snprintf(out, size, "stdin");
+        return;
+    }
     const char *base = strrchr(path, '/');
     base = base ? base + 1 : path;
     snprintf(out, size, "%s", base);
@@ -347,32 +377,55 @@ static void survey_name(const char *path, char *out, size_t size)
         snprintf(out, size, "survey");
 }
 
-static tf_status write_tables(const job *j, const char *survey_path, char *first_path, size_t first_size,
-                              tf_error *err)
+#define N_TABLES 5
+
+/* Writes the tables of every population as one group (tf_atomic_commit_all): either every file
+ * is replaced or none is, and directories this call made are taken away again on failure. */
+static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
 {
-    tf_table *tables[5] = {draws_table(j->fit, err), parameters_table(j->fit, j->priors, err),
-                           abundance_table(j->fit, err), trend_table(j->fit, err), sampler_table(j->fit, err)};
-    tf_status st = TF_OK;
-    for (size_t i = 0; i < 5; i++)
-        if (!tables[i])
-            st = tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
-    if (st == TF_OK)
-        st = tf_atomic_mkdirs(j->dir, err);
-    for (size_t i = 0; i < 5 && st == TF_OK; i++) {
-        char path[4600];
-        int n = snprintf(path, sizeof path, "%s/%s-%s.csv", j->dir, tf_model_name(j->model),
-                         tf_table_name(tables[i]));
-        if (n < 0 || (size_t)n >= sizeof path) {
-            st = tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "choose a shorter -o directory",
-                              "the output path is too long");
-            break;
+    size_t n_files = n_jobs * N_TABLES, n_open = 0;
+    tf_atomic **files = calloc(n_files, sizeof *files);
+    size_t *created = calloc(n_jobs, sizeof *created);
+    tf_status st = files && created ? TF_OK
+                                    : tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
+        const job *j = &jobs[i];
+        tf_table *tables[N_TABLES] = {draws_table(j->fit, err), parameters_table(j->fit, j->priors, err),
+                                      abundance_table(j->fit, err), trend_table(j->fit, err),
+                                      sampler_table(j->fit, err)};
+        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++)
+            if (!tables[k])
+                st = tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
+        if (st == TF_OK)
+            st = tf_atomic_mkdirs(j->dir, &created[i], err);
+        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
+            char path[4600];
+            int n = snprintf(path, sizeof path, "%s/%s-%s.csv", j->dir, tf_model_name(j->model),
+                             tf_table_name(tables[k]));
+            if (n < 0 || (size_t)n >= sizeof path) {
+                st = tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "choose a shorter -o directory",
+                                  "the output path is too long");
+                break;
+            }
+            if ((st = tf_atomic_open(path, survey_path, &files[n_open], err)) != TF_OK)
+                break;
+            n_open++;
+            st = tf_csv_write_stream(tables[k], tf_atomic_stream(files[n_open - 1]), path, err);
         }
-        st = tf_csv_write(tables[i], path, survey_path, err);
-        if (st == TF_OK && i == 0 && first_path)
-            snprintf(first_path, first_size, "%s", path);
+        for (size_t k = 0; k < N_TABLES; k++)
+            tf_table_free(tables[k]);
     }
-    for (size_t i = 0; i < 5; i++)
-        tf_table_free(tables[i]);
+    if (st == TF_OK) {
+        st = tf_atomic_commit_all(files, n_open, err);
+    } else {
+        for (size_t k = 0; k < n_open; k++)
+            tf_atomic_abort(files[k]);
+    }
+    if (st != TF_OK && created)
+        for (size_t i = n_jobs; i-- > 0;)
+            tf_atomic_rmdirs(jobs[i].dir, created[i]);
+    free(files);
+    free(created);
     return st;
 }
 
@@ -440,7 +493,7 @@ static int exit_for(tf_status st)
 int tf_cmd_fit(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_ITER, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET };
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -448,6 +501,7 @@ int tf_cmd_fit(int argc, char **argv)
         {"output", required_argument, NULL, 'o'},
         {"chains", required_argument, NULL, OPT_CHAINS},
         {"iterations", required_argument, NULL, OPT_ITER},
+        {"thin", required_argument, NULL, OPT_THIN},
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"seed", required_argument, NULL, OPT_SEED},
         {"particles", required_argument, NULL, OPT_PARTICLES},
@@ -469,6 +523,7 @@ int tf_cmd_fit(int argc, char **argv)
     long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
     opt.n_threads = n_cpu > 0 ? (size_t)n_cpu : 1;
     int quiet = 0;
+    size_t iterations = opt.n_iter * opt.thin;
 
     opterr = 0;
     optind = 0;
@@ -480,7 +535,8 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_POP: population = optarg; break;
         case 'o': out_dir = optarg; break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.n_chains, &err); break;
-        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &opt.n_iter, &err); break;
+        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
+        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.n_warmup, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
         case OPT_PARTICLES:
@@ -503,6 +559,10 @@ int tf_cmd_fit(int argc, char **argv)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
     if (!path)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit fit --help' for the usage", "no survey file given");
+    opt.n_iter = iterations / opt.thin;
+    if (opt.n_iter < 1)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.thin);
     if (!growth)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     for (size_t i = 0; i < set.n; i++)
@@ -535,15 +595,13 @@ int tf_cmd_fit(int argc, char **argv)
     sigaction(SIGINT, &sa, &old_int);
     sigaction(SIGTERM, &sa, &old_term);
 
-    if (tf_survey_read(path, &sv, &err) != TF_OK) {
+    if (tf_args_read_survey(path, &sv, &err) != TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;
     }
     size_t n_series = tf_survey_n_series(sv);
     const tf_series *only = NULL;
-    if (population && !(only = tf_survey_find(sv, population))) {
-        tf_error_add(&err, TF_ERR_USAGE, path, 0, 0, "run 'tallyfit check' on the file to list its populations",
-                     "no population named '%s'", population);
+    if (population && !(only = tf_args_pick_series(sv, population, path, &err))) {
         status = TF_EXIT_USAGE;
         goto out;
     }
@@ -608,18 +666,14 @@ int tf_cmd_fit(int argc, char **argv)
         }
     }
 
-    /* Every fit is done: write them all. Signals wait until the files are written, so that a
-     * late Ctrl-C cannot leave one population written and the next not (the atomic writes
-     * already rule out half-written files). */
+    /* Every fit is done: write them all as one group. Signals wait until that is over, so that
+     * a late Ctrl-C cannot stop the group half-way through its renames. */
     sigset_t block, old_mask;
     sigemptyset(&block);
     sigaddset(&block, SIGINT);
     sigaddset(&block, SIGTERM);
     sigprocmask(SIG_BLOCK, &block, &old_mask);
-    tf_status wst = TF_OK;
-    char first[4600] = "";
-    for (size_t i = 0; i < n_jobs && wst == TF_OK; i++)
-        wst = write_tables(&jobs[i], path, i == 0 ? first : NULL, sizeof first, &err);
+    tf_status wst = write_all(jobs, n_jobs, path, &err);
     sigprocmask(SIG_SETMASK, &old_mask, NULL);
     if (wst != TF_OK) {
         status = exit_for(wst);

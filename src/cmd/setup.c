@@ -52,26 +52,10 @@ double tf_setup_survey_median(const tf_series *s)
     return med;
 }
 
-/* Applies one model file to set; reads it from path, or finds the default named name. */
-static tf_status apply_file(const char *path, const char *name, const tf_model *m, double median,
-                            tf_prior_set *set, tf_error *err)
+/* Reads the model file at path, or the default file called name. */
+static tf_status read_file(const char *path, const char *name, tf_model_file **out, tf_error *err)
 {
-    tf_model_file *mf = NULL;
-    tf_status st = path ? tf_model_file_read(path, &mf, err) : tf_model_file_read_default(name, &mf, err);
-    if (st != TF_OK)
-        return st;
-    if (path) {
-        /* A user's file naming a parameter the model lacks is a mistake worth stopping for. */
-        const char *names[TF_MAX_PARAMS];
-        size_t n = tf_model_n_params(m);
-        for (size_t i = 0; i < n; i++)
-            names[i] = tf_model_param_name(m, i);
-        st = tf_model_file_check_names(mf, names, n, err);
-    }
-    if (st == TF_OK)
-        st = tf_model_file_apply(mf, median, set, err);
-    tf_model_file_free(mf);
-    return st;
+    return path ? tf_model_file_read(path, out, err) : tf_model_file_read_default(name, out, err);
 }
 
 tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *priors_path,
@@ -79,26 +63,64 @@ tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *pri
 {
     *out = NULL;
     size_t n = tf_model_n_params(m);
-    const char *names[TF_MAX_PARAMS];
-    double lower[TF_MAX_PARAMS], upper[TF_MAX_PARAMS];
+    const char *names[TF_MAX_PARAMS], *def_names[TF_MAX_PARAMS];
+    double lower[TF_MAX_PARAMS], upper[TF_MAX_PARAMS], def_lower[TF_MAX_PARAMS], def_upper[TF_MAX_PARAMS];
+    tf_model_file *user = NULL, *growth = NULL, *obs = NULL;
+    tf_prior_set *set = NULL, *defaults = NULL;
+    double median = tf_setup_survey_median(s);
+    tf_status st;
+    if (priors_path) {
+        if ((st = read_file(priors_path, NULL, &user, err)) != TF_OK)
+            goto out;
+        for (size_t i = 0; i < n; i++)
+            names[i] = tf_model_param_name(m, i);
+        /* A user's file naming a parameter the model lacks is a mistake worth stopping for. */
+        if ((st = tf_model_file_check_names(user, names, n, err)) != TF_OK)
+            goto out;
+    }
+    /* Each parameter takes its prior from one file: the user's when it has a section for it,
+     * else the defaults. So the defaults go into a set of only the remaining parameters, where
+     * their errors keep their file and line. */
+    size_t n_def = 0;
     for (size_t i = 0; i < n; i++) {
         names[i] = tf_model_param_name(m, i);
         lower[i] = tf_model_param_lower(m, i);
         upper[i] = tf_model_param_upper(m, i);
+        if (!user || !tf_model_file_has(user, names[i])) {
+            def_names[n_def] = names[i];
+            def_lower[n_def] = lower[i];
+            def_upper[n_def] = upper[i];
+            n_def++;
+        }
     }
-    tf_prior_set *set = NULL;
-    tf_status st = tf_prior_set_new(n, names, lower, upper, &set, err);
-    if (st != TF_OK)
-        return st;
-    double median = tf_setup_survey_median(s);
-    if ((st = apply_file(NULL, tf_model_growth(m)->name, m, median, set, err)) != TF_OK ||
-        (tf_model_obs(m)->n_params &&
-         (st = apply_file(NULL, "observation", m, median, set, err)) != TF_OK) ||
-        (priors_path && (st = apply_file(priors_path, NULL, m, median, set, err)) != TF_OK) ||
-        (st = tf_prior_set_check_complete(set, err)) != TF_OK) {
-        tf_prior_set_free(set);
-        return st;
+    if ((st = tf_prior_set_new(n, names, lower, upper, &set, err)) != TF_OK)
+        goto out;
+    if (n_def) {
+        if ((st = tf_prior_set_new(n_def, def_names, def_lower, def_upper, &defaults, err)) != TF_OK ||
+            (st = read_file(NULL, tf_model_growth(m)->name, &growth, err)) != TF_OK ||
+            (st = tf_model_file_apply(growth, median, defaults, err)) != TF_OK)
+            goto out;
+        if (tf_model_obs(m)->n_params &&
+            ((st = read_file(NULL, "observation", &obs, err)) != TF_OK ||
+             (st = tf_model_file_apply(obs, median, defaults, err)) != TF_OK))
+            goto out;
+        for (size_t k = 0; k < n_def; k++) {
+            const tf_prior *p = tf_prior_set_prior(defaults, k);
+            if (p && (st = tf_prior_set_assign(set, def_names[k], p, err)) != TF_OK)
+                goto out;
+        }
     }
+    if (user && (st = tf_model_file_apply(user, median, set, err)) != TF_OK)
+        goto out;
+    if ((st = tf_prior_set_check_complete(set, err)) != TF_OK)
+        goto out;
     *out = set;
-    return TF_OK;
+    set = NULL;
+out:
+    tf_prior_set_free(set);
+    tf_prior_set_free(defaults);
+    tf_model_file_free(user);
+    tf_model_file_free(growth);
+    tf_model_file_free(obs);
+    return st;
 }

@@ -17,9 +17,10 @@ tf_status tf_setup_check_counts(const tf_model *m, const tf_series *s, const cha
  * ("meanlog = survey", model_file.h) are centred on. NAN when no year is surveyed. */
 double tf_setup_survey_median(const tf_series *s);
 
-/* Builds the priors of m for series s: the growth model's default file (<growth>.ini), the
- * counting-error defaults (observation.ini), then, when priors_path is not NULL, that file
- * (it may set any subset of the parameters, and only parameters of m). On success the caller
+/* Builds the priors of m for series s. Each parameter takes its prior from the file at
+ * priors_path when that file (may be NULL) has a section for it, else from the defaults: the
+ * growth model's file (<growth>.ini) and the counting-error file (observation.ini). The user's
+ * file may set any subset of the parameters, and only parameters of m. On success the caller
  * frees *out with tf_prior_set_free. Errors carry the model file's path and line. */
 tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *priors_path,
                           tf_prior_set **out, tf_error *err);

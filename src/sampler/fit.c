@@ -12,6 +12,7 @@
 
 struct tf_fit {
     const tf_model *model;
+    const tf_posterior *post;
     const tf_series *series;
     size_t n_chains, n_iter, n_params, n_years;
     double *draws;     /* [chain][iter][param] */
@@ -95,6 +96,7 @@ void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double i
 }
 
 void tf_fit_set_settings(tf_fit *f, const tf_fit_settings *st) { f->settings = *st; }
+void tf_fit_set_posterior(tf_fit *f, const tf_posterior *post) { f->post = post; }
 
 /* Mean and sd of x[0..n), then sorts x in place and writes three quantiles (GSL's linear
  * interpolation between order statistics, Hyndman & Fan 1996 type 7). */
@@ -122,7 +124,7 @@ static int all_finite(const double *x, size_t n)
  * n_iter * stride values starting at base. NaN when the draws cannot be diagnosed (too short
  * chains, a constant or non-finite quantity). */
 static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, size_t stride,
-                     double *rhat, double *ess_bulk, double *ess_tail)
+                     double *rhat, double *ess_bulk, double *ess_tail, double *mcse_mean)
 {
     const double *chains[TF_FIT_MAX_CHAINS];
     for (size_t c = 0; c < f->n_chains; c++)
@@ -131,11 +133,13 @@ static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, 
     tf_error ignored;
     tf_error_init(&ignored);
     if (!w || tf_diag_summarise(w, chains, f->n_chains, f->n_iter, stride, &d, &ignored) != TF_OK)
-        d.rhat = d.ess_bulk = d.ess_tail = NAN;
+        d.rhat = d.ess_bulk = d.ess_tail = d.mcse_mean = NAN;
     *rhat = d.rhat;
     *ess_bulk = d.ess_bulk;
     if (ess_tail)
         *ess_tail = d.ess_tail;
+    if (mcse_mean)
+        *mcse_mean = d.mcse_mean;
 }
 
 tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
@@ -156,7 +160,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
 
     for (size_t p = 0; p < f->n_params; p++) {
         tf_fit_param_summary *ps = &f->params[p];
-        diagnose(f, w, f->draws + p, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail);
+        diagnose(f, w, f->draws + p, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail, &ps->mcse_mean);
         for (size_t k = 0; k < n_draws; k++)
             x[k] = f->draws[k * f->n_params + p];
         double prob[3] = {0.025, 0.5, 0.975}, q[3];
@@ -164,7 +168,6 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         ps->q025 = q[0];
         ps->q50 = q[1];
         ps->q975 = q[2];
-        ps->mcse_mean = ps->sd / sqrt(ps->ess_bulk);
     }
 
     const double *counts = tf_series_counts(f->series), *effort = tf_series_effort(f->series);
@@ -175,19 +178,18 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         ys->count = counts[t];
         ys->effort = effort[t];
         for (size_t k = 0; k < n_draws; k++)
-            x[k] = f->paths[k * f->n_years + t];
+            x[k] = exp(f->paths[k * f->n_years + t]);
         if (!all_finite(x, n_draws)) {
             ys->median = ys->q25 = ys->q75 = ys->q025 = ys->q975 = NAN;
             continue;
         }
-        /* exp is increasing, so the quantiles of N are exp of the quantiles of x. */
         double prob[5] = {0.5, 0.25, 0.75, 0.025, 0.975}, q[5];
         moments_and_quantiles(x, n_draws, NULL, NULL, prob, q, 5);
-        ys->median = exp(q[0]);
-        ys->q25 = exp(q[1]);
-        ys->q75 = exp(q[2]);
-        ys->q025 = exp(q[3]);
-        ys->q975 = exp(q[4]);
+        ys->median = q[0];
+        ys->q25 = q[1];
+        ys->q75 = q[2];
+        ys->q025 = q[3];
+        ys->q975 = q[4];
     }
 
     tf_fit_trend_summary *tr = &f->trend;
@@ -200,7 +202,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         n_decline += slope < 0;
     }
     if (f->n_years > 1 && all_finite(x, n_draws)) {
-        diagnose(f, w, x, 1, &tr->rhat, &tr->ess_bulk, NULL);
+        diagnose(f, w, x, 1, &tr->rhat, &tr->ess_bulk, NULL, NULL);
         double prob[3] = {0.5, 0.025, 0.975}, q[3];
         moments_and_quantiles(x, n_draws, &tr->mean, NULL, prob, q, 3);
         tr->median = q[0];
@@ -219,6 +221,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
 
 const tf_model *tf_fit_model(const tf_fit *f) { return f->model; }
 const tf_series *tf_fit_series(const tf_fit *f) { return f->series; }
+const tf_posterior *tf_fit_posterior(const tf_fit *f) { return f->post; }
 const tf_fit_settings *tf_fit_settings_of(const tf_fit *f) { return &f->settings; }
 size_t tf_fit_n_chains(const tf_fit *f) { return f->n_chains; }
 size_t tf_fit_n_iter(const tf_fit *f) { return f->n_iter; }

@@ -10,6 +10,7 @@
 #include <stdint.h>
 
 #include "model/model.h"
+#include "sampler/posterior.h"
 #include "survey/series.h"
 #include "util/error.h"
 
@@ -29,7 +30,8 @@ typedef struct {
     double q025, q50, q975;   /* 2.5 %, 50 %, 97.5 % quantiles */
     double rhat;              /* rank-normalised split R-hat */
     double ess_bulk, ess_tail;
-    double mcse_mean;         /* sd / sqrt(ess_bulk) */
+    double mcse_mean;         /* Monte Carlo standard error of the mean: sd / sqrt(ESS of the
+                               * draws themselves), diagnostics.h */
 } tf_fit_param_summary;
 
 /* Posterior of the true abundance N = exp(x) in one year of the series (surveyed or not). */
@@ -65,11 +67,13 @@ void tf_fit_record(tf_fit *f, size_t chain, size_t iter, const double *theta, do
  * rejected because the likelihood estimate was not finite. */
 void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double invalid);
 
-/* How the draws were made: warm-up length, particle count, measured SD of the log-likelihood
- * estimator at the pilot point (for the correlated method: SD of the log-ratio), method, seed,
- * and wall-clock seconds. */
+/* How the draws were made: warm-up length, thinning, particle count, the measured spread of the
+ * log-likelihood estimator at that count (root mean square of its SD over the tuning points,
+ * tune.h; for the correlated method the SD of the log-ratio of successive estimates), method,
+ * seed, and wall-clock seconds. */
 typedef struct {
     size_t n_warmup;
+    size_t thin;              /* iterations per kept draw */
     size_t n_particles;
     double loglik_sd;
     int correlated;
@@ -79,6 +83,10 @@ typedef struct {
 } tf_fit_settings;
 void tf_fit_set_settings(tf_fit *f, const tf_fit_settings *st);
 
+/* The posterior (model, priors, transforms) the draws come from; borrowed, it must outlive the
+ * result. tf_pmmh_run sets it; NULL until set. */
+void tf_fit_set_posterior(tf_fit *f, const tf_posterior *post);
+
 /* Computes every summary from the recorded draws. Call once, after the last tf_fit_record.
  * Errors: TF_ERR_NOMEM (the result keeps its draws; summaries stay unset). */
 tf_status tf_fit_summarise(tf_fit *f, tf_error *err);
@@ -87,6 +95,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err);
 
 const tf_model *tf_fit_model(const tf_fit *f);
 const tf_series *tf_fit_series(const tf_fit *f);
+const tf_posterior *tf_fit_posterior(const tf_fit *f);   /* priors: tf_posterior_priors */
 const tf_fit_settings *tf_fit_settings_of(const tf_fit *f);
 size_t tf_fit_n_chains(const tf_fit *f);
 size_t tf_fit_n_iter(const tf_fit *f);        /* kept draws per chain */

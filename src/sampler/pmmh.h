@@ -16,6 +16,7 @@
 typedef struct {
     size_t n_chains;         /* >= 1; 4 by default (R-hat needs >= 2) */
     size_t n_iter;           /* kept draws per chain */
+    size_t thin;             /* iterations per kept draw, >= 1 */
     size_t n_warmup;         /* adapted, discarded draws per chain (half pilot, half exact) */
     size_t n_threads;        /* >= 1; results do not depend on it */
     uint64_t seed;
@@ -37,7 +38,7 @@ typedef struct {
     tf_pmmh_phase phase;
     size_t n_chains;
     const size_t *done;        /* iterations finished per chain, of total */
-    size_t total;              /* iterations per chain, all phases: n_warmup + n_iter */
+    size_t total;              /* iterations per chain, all phases: n_warmup + n_iter * thin */
     const double *acceptance;  /* per chain, over the current phase so far */
     size_t n_particles;        /* 0 until chosen */
     double seconds;            /* since the start */

@@ -33,8 +33,8 @@ typedef struct {
 } tf_tune_options;
 
 /* Standard: target 1.0; correlated: rho 0.99 and target 1.0 for the SD of the log-ratio (the
- * reasons are in tune.c). 30 repetitions per point, 100 particles to start, 20 .. 200000,
- * 5 rounds. */
+ * reasons are in tune.c). 30 repetitions per point, 100 particles to start, at least 100
+ * (standard) or 10 (correlated), at most 200000, 5 rounds. */
 tf_tune_options tf_tune_default_options(int correlated);
 
 typedef struct {

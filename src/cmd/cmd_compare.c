@@ -70,15 +70,16 @@ static void help(FILE *out)
             "                     models not named get 1\n"
             "  --seed S           random seed (default %llu); the same seed gives the same results\n"
             "  --chains C         chains per model (default %zu)\n"
-            "  --iterations I     kept draws per chain (default %zu)\n"
-            "  --warmup W         warm-up draws per chain (default %zu)\n"
+            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
+            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
             "  --draws M          importance draws per density (default %zu)\n"
             "  --threads T        threads (default: the number of processors); models run in\n"
             "                     parallel, and the results do not depend on T\n"
             "  --quiet            print nothing but warnings and errors\n"
             "  -h, --help         show this help\n",
-            growth, obs, (unsigned long long)d.seed, d.n_chains, d.n_iter, d.n_warmup, e.n_draws);
+            growth, obs, (unsigned long long)d.seed, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, e.n_draws);
 }
 
 /* Splits "a,b,c" into names (pointers into buf, a copy of text). Usage errors for empty items
@@ -257,7 +258,7 @@ static void print_warnings(const tf_comparison *c)
 
 int tf_cmd_compare(int argc, char **argv)
 {
-    enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_ITER, OPT_WARMUP,
+    enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_ITER, OPT_THIN, OPT_WARMUP,
            OPT_PARTICLES, OPT_DRAWS, OPT_THREADS, OPT_QUIET };
     static const struct option longopts[] = {
         {"models", required_argument, NULL, OPT_MODELS},
@@ -268,6 +269,7 @@ int tf_cmd_compare(int argc, char **argv)
         {"seed", required_argument, NULL, OPT_SEED},
         {"chains", required_argument, NULL, OPT_CHAINS},
         {"iterations", required_argument, NULL, OPT_ITER},
+        {"thin", required_argument, NULL, OPT_THIN},
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"draws", required_argument, NULL, OPT_DRAWS},
@@ -289,6 +291,7 @@ int tf_cmd_compare(int argc, char **argv)
     uint64_t seed = opt.fit.seed;
     size_t n_particles = 0;
     int quiet = 0;
+    size_t iterations = opt.fit.n_iter * opt.fit.thin;
 
     opterr = 0;
     optind = 0;
@@ -304,7 +307,8 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_WEIGHTS: tf_args_parse_pairs("--model-weights", optarg, &weights, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
-        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &opt.fit.n_iter, &err); break;
+        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
+        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.fit.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
         case OPT_PARTICLES:
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err);
@@ -324,6 +328,10 @@ int tf_cmd_compare(int argc, char **argv)
     if (!path)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit compare --help' for the usage",
                      "no survey file given");
+    opt.fit.n_iter = iterations / opt.fit.thin;
+    if (opt.fit.n_iter < 1)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.fit.thin);
     if (tf_error_status(&err) != TF_OK) {
         tf_error_print(&err, PROG, stderr);
         return TF_EXIT_USAGE;

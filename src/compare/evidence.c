@@ -435,15 +435,18 @@ done:
  * in its tails (tiny counting or process noise, say) a count that gives sd 1 at the posterior
  * centre can give sd 3 or more, and weights that noisy make the mean of a few thousand of them
  * fall short of p(y) most of the time while its standard error looks small. So each draw gets
- * a pilot: PILOT_RUNS estimates with n0 / PILOT_RUNS particles (together as costly as one with
- * n0), whose sd s estimates sqrt(PILOT_RUNS) times the sd at n0 (the variance of the log-estimate
- * falls like 1 / N: Berard, Del Moral & Doucet 2014, Electron. J. Probab. 19(94); at small counts
- * it falls faster, so the pilot errs towards more particles). The estimate then uses
- * n0 2^L particles, the smallest such count with (s / sqrt(PILOT_RUNS))^2 / 2^L <= target_sd^2,
- * L <= N_LEVELS - 1. (Sparing draws whose weight looks negligible from the pilot was tried and
- * dropped: the pilot's estimate is too noisy to judge a weight by, and on the exactness check
- * the standard errors then undercovered the seed-to-seed spread.) */
+ * a pilot: PILOT_RUNS estimates with PILOT_FRACTION n0 particles each, of sample variance v;
+ * the variance at n0 is then about PILOT_FRACTION v (the variance of the log-estimate falls like 1 / N: Berard,
+ * Del Moral & Doucet 2014, Electron. J. Probab. 19(94); at small counts it falls faster, so the
+ * pilot errs towards more particles). The estimate then uses n0 2^L particles, the smallest
+ * such count with PILOT_FRACTION v / 2^L <= target_sd^2, L <= N_LEVELS - 1. (Half of n0 per
+ * pilot run cost no more in all than a quarter, since the smaller pilot overstates the
+ * variance and so asks for more particles; 4 runs give the variance with 3 degrees of
+ * freedom. Sparing draws whose weight looks negligible from the pilot was tried and dropped:
+ * the pilot's estimate is too noisy to judge a weight by, and on the exactness check the
+ * standard errors then undercovered the seed-to-seed spread.) */
 #define PILOT_RUNS 4
+#define PILOT_FRACTION 0.5
 #define N_LEVELS 7
 
 /* The most particles one estimate may use (memory: a filter keeps n_years x N ancestors). */
@@ -486,7 +489,7 @@ static void *pf_worker_new(void *ctx)
     if (!w)
         return NULL;
     w->ctx = c;
-    size_t n_pilot = c->n_particles / PILOT_RUNS;
+    size_t n_pilot = (size_t)((double)c->n_particles * PILOT_FRACTION);
     w->pilot = tf_filter_alloc(tf_posterior_model(c->post), c->s, n_pilot > 8 ? n_pilot : 8);
     w->level[0] = tf_filter_alloc(tf_posterior_model(c->post), c->s, c->n_particles);
     if (!w->pilot || !w->level[0]) {
@@ -528,7 +531,7 @@ static double pf_log_lik(void *worker, const double *theta, tf_rng *rng)
     if (finite) {
         for (size_t k = 0; k < PILOT_RUNS; k++)
             ss += (l[k] - mean) * (l[k] - mean);
-        double var_n0 = ss / (PILOT_RUNS - 1) / PILOT_RUNS, want = c->target_sd * c->target_sd;
+        double var_n0 = ss / (double)(PILOT_RUNS - 1) * (double)tf_filter_n_particles(w->pilot) / (double)c->n_particles, want = c->target_sd * c->target_sd;
         for (L = 0; L + 1 < N_LEVELS && var_n0 / (double)((size_t)1 << L) > want; L++)
             ;
     }

@@ -122,6 +122,7 @@ static tf_compare_options short_options(const char *const *growth, size_t n_grow
     o.priors = hand_priors;
     o.priors_ctx = pc;
     o.fit.n_chains = 2;
+    o.fit.thin = 1;
     o.fit.n_iter = validate() ? 2000 : 600;
     o.fit.n_warmup = validate() ? 2000 : 600;
     o.evidence.n_draws = validate() ? 2000 : 1000;

@@ -332,6 +332,19 @@ int tf_cmd_compare(int argc, char **argv)
     if (opt.fit.n_iter < 1)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
                      "--iterations %zu with --thin %zu keeps no draw", iterations, opt.fit.thin);
+    /* Mistyped model names are usage errors, found before a large file is read. */
+    char known[256];
+    for (size_t i = 0; i < opt.n_growth; i++)
+        if (!tf_model_find_growth(growth[i])) {
+            tf_model_list_growth(known, sizeof known);
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "unknown growth model '%s' (known: %s)", growth[i], known);
+        }
+    for (size_t i = 0; i < opt.n_obs; i++)
+        if (!tf_model_find_obs(obs[i])) {
+            tf_model_list_obs(known, sizeof known);
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "unknown observation model '%s' (known: %s)", obs[i],
+                         known);
+        }
     if (tf_error_status(&err) != TF_OK) {
         tf_error_print(&err, PROG, stderr);
         return TF_EXIT_USAGE;

@@ -86,6 +86,12 @@ valgrind: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit $(TEST_BIN)
 	$(Q)TALLYFIT=$(CURDIR)/tallyfit BUILD=$(BUILD) TF_VALGRIND=1 tests/run-all $(TEST_BIN)
 
+# Long fuzzing runs of the libFuzzer targets in tests/fuzz (clang, ASan + UBSan): FUZZ_SECONDS
+# per target, the targets side by side. `make check` runs a short one (tests/e2e/fuzz_short.sh).
+FUZZ_SECONDS ?= 600
+fuzz: deps
+	$(Q)tests/fuzz/run.sh $(FUZZ_SECONDS)
+
 bench: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit $(BENCH_BIN)
 	$(Q)for b in $(BENCH_BIN); do $$b || exit 1; done
@@ -103,11 +109,15 @@ demo: deps
 
 DEMO_CMD ?= check
 
-install: tallyfit
+# The manual page is made from the binary's own --help texts (tools/make-man).
+$(BUILD)/tallyfit.1: $(BIN) tools/make-man
+	$(Q)tools/make-man ./$(BIN) > $@.tmp && mv $@.tmp $@
+
+install: $(BIN) $(BUILD)/tallyfit.1
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/tallyfit/models $(DESTDIR)$(PREFIX)/share/man/man1
-	install -m 755 tallyfit $(DESTDIR)$(PREFIX)/bin/tallyfit
+	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/tallyfit
 	install -m 644 models/*.ini $(DESTDIR)$(PREFIX)/share/tallyfit/models/
-	install -m 644 man/tallyfit.1 $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1
+	install -m 644 $(BUILD)/tallyfit.1 $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1
 
 uninstall:
 	rm -f $(DESTDIR)$(PREFIX)/bin/tallyfit $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1

@@ -75,6 +75,8 @@ static void bench_kernels(void)
 int main(void)
 {
     gsl_set_error_handler_off();
+    /* Run from the repository root: the model files are in models/ (unless the caller says). */
+    setenv("TALLYFIT_MODELS", "models", 0);
     bench_kernels();
     printf("\nmarginal likelihood after a PMMH fit (4 chains x 5000 iterations, thin 4):\n");
     printf("  %-44s %7s %8s %9s %8s %8s %10s\n", "case", "threads", "seconds", "particles", "per draw", "se",

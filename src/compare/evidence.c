@@ -34,16 +34,15 @@
 tf_evidence_options tf_evidence_default_options(void)
 {
     tf_evidence_options o;
-    /* 2000 draws give a delta-method se near 0.02 - 0.05 on the log scale for the weights seen
-     * on the demo surveys (relative weight sd 1 - 2), far below the differences between models
-     * that matter on the Kass & Raftery scale (2 ln B of 2 is ln B = 1). */
+    /* 2000 draws gave delta-method se of 0.02 - 0.04 on the log scale on the demo surveys
+     * (bench/bench_evidence.c), far below the differences between models that matter on the
+     * Kass & Raftery scale (2 ln B of 2 is ln B = 1). */
     o.n_draws = 2000;
     o.n_adapt_rounds = 3;
     o.n_adapt_draws = 400;
-    /* nu = 5: tails heavy enough to cover a posterior heavier than normal (the t's weights are
-     * bounded whenever the target's tails are no heavier than t_5), with finite variance so
-     * that the fitted scale means something (Tran et al. 2014 use a t mixture for the same
-     * reason; the exact choice is common practice, no source). */
+    /* nu = 5: tails heavy enough to cover a posterior heavier than normal (the weights stay
+     * bounded where the target's tails are no heavier than t_5's), with finite variance so that
+     * a fitted scale means something (common practice, no source). */
     o.nu = 5.0;
     /* A fifth of the draws from the draws' moments at three times their sd: PMMH draws of a
      * short or slowly mixing run under-represent the posterior's tails, and the estimate then
@@ -59,8 +58,8 @@ tf_evidence_options tf_evidence_default_options(void)
     o.check_nu = 3.0;
     o.check_scale = 1.5;
     o.n_particles = 0;
-    /* Tran et al. (2014, section 3.3) find the cost of IS^2 minimised near an sd of 1 of the
-     * log-likelihood estimator (recalled from memory). */
+    /* Tran et al. (2014) find the cost of IS^2 minimised near an sd of 1 of the log-likelihood
+     * estimator (recalled from memory). */
     o.target_sd = 1.0;
     o.n_threads = 1;
     o.seed = 1;

@@ -9,7 +9,7 @@
 #include "compare/pareto.h"
 
 enum {
-    C_MODEL, C_GROWTH, C_OBS, C_STATUS, C_LOG_ML, C_LOG_ML_SE, C_CHECK, C_CHECK_SE, C_CHECK_Z, C_BF, C_LN_BF,
+    C_MODEL, C_GROWTH, C_OBS, C_SCALE, C_STATUS, C_LOG_ML, C_LOG_ML_SE, C_CHECK, C_CHECK_SE, C_CHECK_Z, C_BF, C_LN_BF,
     C_LN_BF_SE, C_TWO_LN_B, C_READING, C_PRIOR, C_PROB, C_PROB_SE, C_K, C_K_CHECK, C_W_ESS, C_PARTICLES, C_PARTICLES_MEAN, C_RHAT,
     C_ESS, C_NOTE, N_COLS
 };
@@ -21,6 +21,10 @@ static const struct {
     {"model", "candidate model, growth+observation", TF_COL_TEXT},
     {"growth", "growth model of log abundance", TF_COL_TEXT},
     {"observation", "counting-error model", TF_COL_TEXT},
+    {"likelihood_of", "what the marginal likelihood is of: 'whole counts' (a probability, the count models and "
+                      "lognormal-int) or 'continuous amounts' (a density, the continuous log-normal); only one "
+                      "kind is compared in a table",
+     TF_COL_TEXT},
     {"status", "fitted, failed, or excluded (not fitted; the note says why)", TF_COL_TEXT},
     {"log_ml", "log marginal likelihood ln p(counts | model) by importance sampling squared with the adapted "
                "Student-t mixture",
@@ -113,6 +117,9 @@ tf_table *tf_compare_table(const tf_comparison *c, tf_error *err)
                  tf_table_set_text(t, row, C_MODEL, tf_comparison_name(c, i), err) == TF_OK &&
                  tf_table_set_text(t, row, C_GROWTH, tf_comparison_growth(c, i)->name, err) == TF_OK &&
                  tf_table_set_text(t, row, C_OBS, tf_comparison_obs(c, i)->name, err) == TF_OK &&
+                 tf_table_set_text(t, row, C_SCALE, tf_comparison_obs(c, i)->needs_integer ? "whole counts"
+                                                                                            : "continuous amounts",
+                                   err) == TF_OK &&
                  tf_table_set_text(t, row, C_STATUS, state_name(tf_comparison_state(c, i)), err) == TF_OK &&
                  tf_table_set_text(t, row, C_NOTE, tf_comparison_note(c, i), err) == TF_OK;
             const tf_evidence *ev = tf_comparison_evidence(c, i);

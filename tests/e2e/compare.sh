@@ -20,7 +20,7 @@ else
   SHORT=(--chains 2 --iterations 400 --thin 1 --warmup 300 --draws 300 --seed 4)
 fi
 
-want_header='model,growth,observation,status,log_ml,log_ml_se,log_ml_check,log_ml_check_se,check_z,bayes_factor,ln_bf,ln_bf_se,two_ln_b,reading,prior_weight,post_prob,post_prob_se,pareto_k,pareto_k_check,weight_ess,particles,particles_mean,rhat_max,ess_min,note'
+want_header='model,growth,observation,likelihood_of,status,log_ml,log_ml_se,log_ml_check,log_ml_check_se,check_z,bayes_factor,ln_bf,ln_bf_se,two_ln_b,reading,prior_weight,post_prob,post_prob_se,pareto_k,pareto_k_check,weight_ess,particles,particles_mean,rhat_max,ess_min,note'
 
 # Checks one comparison CSV with Python's csv module: header, fitted rows complete, the best
 # model first with Bayes factor 1, probabilities summing to 1, every excluded row with a reason.
@@ -40,6 +40,8 @@ problems = []
 if header != want:
     problems.append(f"header {header}")
 fitted = [x for x in rows if x["status"] == "fitted"]
+if len({x["likelihood_of"] for x in fitted}) > 1:
+    problems.append("fitted rows on different likelihood scales")
 excluded = [x for x in rows if x["status"] == "excluded"]
 for x in fitted:
     keys = ["log_ml", "log_ml_se", "log_ml_check", "bayes_factor", "post_prob", "post_prob_se"]
@@ -79,7 +81,7 @@ csv="$out/model-comparison.csv"
 if [ -f "$csv" ]; then
   counts=$(check_csv "$csv") || bad "heron: $counts"
   [ "$counts" = "6 2" ] || bad "heron: fitted/excluded counts '$counts', want '6 2'"
-  grep -q '^exponential+lognormal,.*excluded,.*does not compare with the count models' "$csv" ||
+  grep -q '^exponential+lognormal,exponential,lognormal,continuous amounts,excluded,.*does not compare with the count models' "$csv" ||
     bad "heron: the continuous log-normal is not excluded with its reason"
 else
   bad "heron: no $csv"

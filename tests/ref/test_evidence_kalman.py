@@ -218,7 +218,7 @@ def main():
         out = os.path.join(tmp, "out")
         env = dict(os.environ, TALLYFIT_MODELS=models)
         cmd = [TALLYFIT, "compare", survey, "--models", "gompertz", "--obs", "lognormal", "-o", out,
-               "--seed", "5", "--quiet", "--threads", "2"]
+               "--seed", "5", "--quiet", "--threads", "2", "--iterations", "8000", "--thin", "4", "--warmup", "4000"]
         p = subprocess.run(cmd, capture_output=True, text=True, env=env)
         if p.returncode != 0:
             print(f"FAIL: {' '.join(cmd)} exited {p.returncode}: {p.stderr}")

@@ -97,10 +97,12 @@ bench: deps
 	$(Q)for b in $(BENCH_BIN); do $$b || exit 1; done
 
 # The long statistical checks: parameter coverage over more simulated surveys, then
-# simulation-based calibration of the sampler (tests/ref/test_fit_recovery.py).
+# simulation-based calibration of the sampler (tests/ref/test_fit_recovery.py), and the model
+# comparison checks (tests/unit/test_compare.c) with more replicates and longer runs.
 validate: deps
-	$(Q)$(MAKE) --no-print-directory tallyfit
+	$(Q)$(MAKE) --no-print-directory tallyfit $(BUILD)/tests/test_compare
 	$(Q)TALLYFIT=$(CURDIR)/tallyfit TF_VALIDATE=1 /usr/bin/python3 tests/ref/test_fit_recovery.py
+	$(Q)TF_VALIDATE=1 $(BUILD)/tests/test_compare
 
 # The README's first command: install what is missing, build, run the main job on a demo survey.
 demo: deps

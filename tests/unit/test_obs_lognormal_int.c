@@ -103,12 +103,12 @@ START_TEST(kernel_equals_scalar_and_handles_extinction)
 END_TEST
 
 /* The kernel's series for narrow intervals against the exact difference (logpmf) on both sides
- * of its switch-over, |m| = 0.2 / w in sd units, for widths w just under and over its limit 0.1
- * (y = 11 and y = 9 at tau = 1) and a narrow one (y = 400, tau = 0.05). */
+ * of its switch-over, |m| = 0.5 / w in sd units, for widths w just under and over its limit 0.2
+ * (y = 6 and y = 4 at tau = 1) and narrower ones. */
 START_TEST(series_matches_exact_difference)
 {
     const tf_obs_type *o = obs();
-    static const double cases[][2] = {{11, 1.0}, {9, 1.0}, {400, 0.05}, {40, 0.3}};
+    static const double cases[][2] = {{6, 1.0}, {4, 1.0}, {400, 0.05}, {40, 0.3}};
     enum { N = 401 };
     double x[N], lw[N], c[TF_OBS_MAX_CONST];
     for (int k = 0; k < 4; k++) {
@@ -117,7 +117,7 @@ START_TEST(series_matches_exact_difference)
         double w = c[3], mid = 0.5 * (c[0] + c[1]);
         for (int i = 0; i < N; i++) {
             /* m from -3 to 3 times the switch-over point (or +-6 sd when the series is off). */
-            double span = w <= 0.1 ? 3 * 0.2 / w : 6;
+            double span = w <= 0.2 ? 3 * 0.5 / w : 6;
             x[i] = mid - p[0] * span * (2.0 * i / (N - 1) - 1.0);
             lw[i] = 0;
         }

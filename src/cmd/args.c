@@ -89,7 +89,9 @@ tf_status tf_args_parse_pairs(const char *opt, const char *text, tf_arg_pairs *p
         if (p->n >= TF_ARGS_MAX_PAIRS)
             return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: more than %d values", opt,
                                 TF_ARGS_MAX_PAIRS);
-        memcpy(p->items[p->n].name, name, strlen(name) + 1); /* fits: checked above */
+        /* Fits: longer names were refused above (snprintf here would make GCC warn of a
+         * truncation that cannot happen). */
+        memcpy(p->items[p->n].name, name, strlen(name) + 1);
         p->items[p->n].value = v;
         p->n++;
         if (!end)
@@ -197,6 +199,41 @@ tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char 
     return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", what);
 }
 
+/* "'east', 'west', ..." into buf, ending in "..." when buf is too small for all. */
+static void population_list(const tf_survey *sv, char *buf, size_t size)
+{
+    size_t n = tf_survey_n_series(sv), used = 0;
+    buf[0] = '\0';
+    for (size_t i = 0; i < n; i++) {
+        const char *label = tf_series_label(tf_survey_series(sv, i));
+        /* Room for this item and a closing ", ..." must remain. */
+        if (used + strlen(label) + 4 + sizeof ", ..." > size) {
+            snprintf(buf + used, size - used, "%s...", i ? ", " : "");
+            return;
+        }
+        used += (size_t)snprintf(buf + used, size - used, "%s'%s'", i ? ", " : "", label);
+    }
+}
+
+const tf_series *tf_args_pick_series(const tf_survey *sv, const char *population, const char *path,
+                                     tf_error *err)
+{
+    size_t n = tf_survey_n_series(sv);
+    const tf_series *s = population ? tf_survey_find(sv, population) : n == 1 ? tf_survey_series(sv, 0) : NULL;
+    if (s)
+        return s;
+    char list[200], hint[256];
+    population_list(sv, list, sizeof list);
+    if (population) {
+        snprintf(hint, sizeof hint, "the file has %s", list);
+        tf_error_add(err, TF_ERR_USAGE, path, 0, 0, hint, "no population named '%s'", population);
+    } else {
+        snprintf(hint, sizeof hint, "choose one with --population: %s", list);
+        tf_error_add(err, TF_ERR_USAGE, path, 0, 0, hint, "the survey holds %zu populations", n);
+    }
+    return NULL;
+}
+
 /* "r, K, sigma, phi" for hints. */
 static void param_list(const tf_model *m, char *buf, size_t size)
 {
@@ -216,7 +253,7 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     char names[160], hint[256];
     param_list(m, names, sizeof names);
     size_t n = tf_model_n_params(m);
-    unsigned char seen[TF_MAX_PARAMS] = {0}, bad[TF_MAX_PARAMS] = {0};
+    unsigned char seen[TF_MAX_PARAMS] = {0};
     tf_status st = TF_OK;
     for (size_t i = 0; i < set->n; i++) {
         const tf_arg_pair *p = &set->items[i];
@@ -235,7 +272,6 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
             snprintf(hint, sizeof hint, "%s must lie strictly between %g and %g", p->name, lo, hi);
             st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: %s = %g is outside its range for model %s",
                               p->name, p->value, tf_model_name(m));
-            bad[k] = 1;
             continue;
         }
         theta[k] = p->value;
@@ -243,11 +279,8 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     }
     if (require_all)
         for (size_t k = 0; k < n; k++)
-            if (!seen[k] && !bad[k]) {
-                size_t used = (size_t)snprintf(hint, sizeof hint, "model %s needs --set ", tf_model_name(m));
-                for (size_t j = 0; j < n && used < sizeof hint; j++)
-                    used += (size_t)snprintf(hint + used, sizeof hint - used, "%s%s=...", j ? "," : "",
-                                             tf_model_param_name(m, j));
+            if (!seen[k]) {
+                snprintf(hint, sizeof hint, "model %s needs --set %s=...", tf_model_name(m), names);
                 st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: the value of %s is missing",
                                   tf_model_param_name(m, k));
             }
@@ -261,43 +294,4 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     if (given)
         memcpy(given, seen, n);
     return TF_OK;
-}
-
-tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err)
-{
-    *out = NULL;
-    if (strcmp(path, "-"))
-        return tf_survey_read(path, out, err);
-    char *buf = NULL;
-    size_t len = 0, cap = 0;
-    tf_status st;
-    for (;;) {
-        if (len == cap) {
-            size_t want = cap ? 2 * cap : 65536;
-            char *p = realloc(buf, want);
-            if (!p) {
-                st = tf_error_add(err, TF_ERR_NOMEM, "stdin", 0, 0, NULL, "out of memory reading the survey");
-                goto done;
-            }
-            buf = p;
-            cap = want;
-        }
-        size_t n = fread(buf + len, 1, cap - len, stdin);
-        len += n;
-        if (len > (size_t)TF_SURVEY_MAX_BYTES) {
-            st = tf_error_add(err, TF_ERR_RANGE, "stdin", 0, 0, NULL, "the survey is larger than %ld MiB",
-                              TF_SURVEY_MAX_BYTES >> 20);
-            goto done;
-        }
-        if (n == 0)
-            break;
-    }
-    if (ferror(stdin)) {
-        st = tf_error_add(err, TF_ERR_IO, "stdin", 0, 0, NULL, "cannot read the survey from standard input");
-        goto done;
-    }
-    st = tf_survey_parse("stdin", buf ? buf : "", len, out, err);
-done:
-    free(buf);
-    return st;
 }

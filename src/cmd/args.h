@@ -58,6 +58,12 @@ tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, t
  * for the hint ("run 'tallyfit CMD --help'"). Returns TF_ERR_USAGE. */
 tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char *arg, tf_error *err);
 
+/* The series a command works on: the one named population (--population; may be NULL), or the
+ * survey's only one. Errors (TF_ERR_USAGE, naming path): no population of that name, or several
+ * populations and none chosen; the hint lists the populations, each in quotes. Borrowed from sv. */
+const tf_series *tf_args_pick_series(const tf_survey *sv, const char *population, const char *path,
+                                     tf_error *err);
+
 /* Names `--set` accepts besides the model's parameters: the first-year prior. */
 #define TF_ARGS_X1_MEAN "x1_mean"
 #define TF_ARGS_X1_SD "x1_sd"

@@ -50,33 +50,6 @@ static void help(FILE *out)
             growth, obs, TF_MODEL_X1_YEARS, DEFAULT_PARTICLES, DEFAULT_REPEATS);
 }
 
-/* The series to use, or NULL with an error. */
-static const tf_series *pick_series(const tf_survey *sv, const char *population, const char *path, tf_error *err)
-{
-    size_t n = tf_survey_n_series(sv);
-    if (population) {
-        const tf_series *s = tf_survey_find(sv, population);
-        if (!s)
-            tf_error_add(err, TF_ERR_USAGE, path, 0, 0, "run 'tallyfit check' on the file to list its populations",
-                         "no population named '%s'", population);
-        return s;
-    }
-    if (n == 1)
-        return tf_survey_series(sv, 0);
-    char list[200] = "";
-    size_t used = 0;
-    for (size_t i = 0; i < n && used < sizeof list; i++) {
-        int k = snprintf(list + used, sizeof list - used, "%s%s", i ? ", " : "", tf_series_label(tf_survey_series(sv, i)));
-        if (k < 0)
-            break;
-        used += (size_t)k;
-    }
-    char hint[300];
-    snprintf(hint, sizeof hint, "choose one with --population; the file has %s", list);
-    tf_error_add(err, TF_ERR_USAGE, path, 0, 0, hint, "the survey has %zu populations", n);
-    return NULL;
-}
-
 /* Counts the observation model cannot have: fractional counts for count models, zeros for
  * models of positive values. Named by their input line. */
 static tf_status check_counts(const tf_model *m, const tf_series *s, const char *path, tf_error *err)
@@ -176,7 +149,7 @@ int tf_cmd_likelihood(int argc, char **argv)
         goto out;
     }
     const char *shown = strcmp(path, "-") ? path : "stdin"; /* the file's name in messages */
-    const tf_series *s = pick_series(sv, population, shown, &err);
+    const tf_series *s = tf_args_pick_series(sv, population, shown, &err);
     if (!s) {
         status = TF_EXIT_USAGE;
         goto out;

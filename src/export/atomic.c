@@ -17,7 +17,15 @@ struct tf_atomic {
     char *dir;       /* destination's directory, "." when path has no slash */
     char *temp;      /* temporary's path */
     FILE *fp;        /* NULL once closed */
+    /* State of a group commit (tf_atomic_commit_all); all zero otherwise. */
+    char *backup;    /* "<temp>.old": a second name of the previous destination file */
+    int old;         /* how the previous file is kept: OLD_NONE, OLD_LINKED, OLD_ASIDE */
+    int backup_exists;   /* the backup name exists now */
+    int keep_backup;     /* putting the previous file back failed: the backup is all that is left */
+    int renamed;     /* the temporary now is the destination */
 };
+
+enum { OLD_NONE, OLD_LINKED, OLD_ASIDE };
 
 /* Longest part of the destination's name copied into the temporary's name, so that the
  * temporary stays under NAME_MAX (255 on Linux file systems) even for long names. */
@@ -62,8 +70,10 @@ tf_status tf_atomic_check_target(const char *path, const char *protect, tf_error
     return TF_OK;
 }
 
-tf_status tf_atomic_mkdirs(const char *dir, tf_error *err)
+tf_status tf_atomic_mkdirs(const char *dir, size_t *n_created, tf_error *err)
 {
+    if (n_created)
+        *n_created = 0;
     if (!dir || !dir[0])
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "empty output directory name");
     char *buf = dup_str(dir);
@@ -87,7 +97,10 @@ tf_status tf_atomic_mkdirs(const char *dir, tf_error *err)
         } else if (errno != ENOENT) {
             int e = errno;
             st = tf_error_add(err, TF_ERR_IO, dir, 0, 0, NULL, "cannot examine '%s': %s", buf, strerror(e));
-        } else if (mkdir(buf, 0777) != 0 && errno != EEXIST) {
+        } else if (mkdir(buf, 0777) == 0) {
+            if (n_created)
+                (*n_created)++;
+        } else if (errno != EEXIST) {
             int e = errno;
             st = tf_error_add(err, TF_ERR_IO, dir, 0, 0,
                               e == EACCES ? "check the permissions of the parent directory" : NULL,
@@ -107,6 +120,27 @@ tf_status tf_atomic_mkdirs(const char *dir, tf_error *err)
                             "output directory is not writable: %s", strerror(e));
     }
     return TF_OK;
+}
+
+void tf_atomic_rmdirs(const char *dir, size_t n_created)
+{
+    if (!dir || n_created == 0)
+        return;
+    char *buf = dup_str(dir);
+    if (!buf)
+        return;   /* leaves empty directories behind, nothing worse */
+    size_t n = strlen(buf);
+    /* The components tf_atomic_mkdirs counted, deepest first: cut the trailing slashes, remove
+     * the directory, cut back to the previous slash. */
+    for (size_t k = 0; k < n_created; k++) {
+        while (n > 1 && buf[n - 1] == '/')
+            buf[--n] = '\0';
+        if (n == 0 || (n == 1 && buf[0] == '/') || rmdir(buf) != 0)
+            break;
+        while (n > 0 && buf[n - 1] != '/')
+            buf[--n] = '\0';
+    }
+    free(buf);
 }
 
 /* The process umask without changing it: umask(2) can only be read by setting it, which would
@@ -140,6 +174,7 @@ static void free_handle(tf_atomic *a)
     free(a->protect);
     free(a->dir);
     free(a->temp);
+    free(a->backup);
     free(a);
 }
 
@@ -270,50 +305,205 @@ tf_status tf_atomic_close_stream(tf_atomic *a, tf_error *err)
     return a->fp ? finish_stream(a, err) : TF_OK;
 }
 
+/* Makes the temporary's content durable before it is renamed: finishes the stream, or fsyncs a
+ * temporary that someone else wrote by name. */
+static tf_status make_durable(tf_atomic *a, tf_error *err)
+{
+    if (a->fp)
+        return finish_stream(a, err);
+    int fd = open(a->temp, O_RDONLY);
+    tf_status st = TF_OK;
+    if (fd < 0 || fsync(fd) != 0) {
+        int e = errno;
+        st = tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot write output: %s", strerror(e));
+    }
+    if (fd >= 0)
+        close(fd);
+    return st;
+}
+
+/* Makes a rename in dir durable. Some file systems refuse fsync on a directory (EINVAL), which
+ * changes nothing about the file already in place, so failures are ignored. */
+static void sync_dir(const char *dir)
+{
+    int dfd = open(dir, O_RDONLY);
+    if (dfd >= 0) {
+        (void)fsync(dfd);
+        close(dfd);
+    }
+}
+
+/* Ends a handle: closes a stream still open, removes what is left of the temporary and of a
+ * backup that is no longer needed, then frees it. */
+static void release(tf_atomic *a, int committed)
+{
+    if (a->fp)
+        fclose(a->fp);
+    if (!a->renamed && a->temp)
+        unlink(a->temp);
+    if (a->backup_exists && !a->keep_backup)
+        unlink(a->backup);
+    if (committed)
+        sync_dir(a->dir);
+    free_handle(a);
+}
+
 tf_status tf_atomic_commit(tf_atomic *a, tf_error *err)
 {
-    tf_status st = TF_OK;
-    if (a->fp) {
-        st = finish_stream(a, err);
-    } else {
-        /* Written by name by someone else: make its data durable before the rename. */
-        int fd = open(a->temp, O_RDONLY);
-        if (fd < 0 || fsync(fd) != 0) {
-            int e = errno;
-            st = tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot write output: %s", strerror(e));
-        }
-        if (fd >= 0)
-            close(fd);
-    }
+    tf_status st = make_durable(a, err);
     /* The destination may have changed since open (a link to the input made meanwhile). */
     if (st == TF_OK)
         st = tf_atomic_check_target(a->path, a->protect, err);
-    if (st == TF_OK && rename(a->temp, a->path) != 0) {
-        int e = errno;
-        st = tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot replace output file: %s", strerror(e));
-    }
-    if (st != TF_OK) {
-        unlink(a->temp);
-    } else {
-        /* Makes the rename itself durable; some file systems refuse fsync on a directory
-         * (EINVAL), which changes nothing about the file already in place, so failures are ignored. */
-        int dfd = open(a->dir, O_RDONLY);
-        if (dfd >= 0) {
-            (void)fsync(dfd);
-            close(dfd);
+    if (st == TF_OK) {
+        if (rename(a->temp, a->path) == 0) {
+            a->renamed = 1;
+        } else {
+            int e = errno;
+            st = tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot replace output file: %s", strerror(e));
         }
     }
-    free_handle(a);
+    release(a, st == TF_OK);
     return st;
+}
+
+/* ---- group commit ---- */
+
+/* Errors of link(2) that say the file system has no hard links (FAT: EPERM) rather than that
+ * something is wrong. */
+static int no_hard_links(int e)
+{
+    return e == EPERM || e == EOPNOTSUPP || e == ENOTSUP || e == EMLINK || e == ENOSYS;
+}
+
+/* Refuses two handles for one destination: the second rename would replace the first file and
+ * the put-back could not restore both. Names are compared within their directory (same device
+ * and inode), so "out/a.csv" and "out/./a.csv" are one destination. */
+static tf_status check_distinct(tf_atomic **files, size_t n, tf_error *err)
+{
+    for (size_t i = 0; i < n; i++) {
+        const char *bi = strrchr(files[i]->path, '/');
+        bi = bi ? bi + 1 : files[i]->path;
+        struct stat di;
+        if (stat(files[i]->dir, &di) != 0)
+            continue;   /* reported by the rename */
+        for (size_t j = i + 1; j < n; j++) {
+            const char *bj = strrchr(files[j]->path, '/');
+            bj = bj ? bj + 1 : files[j]->path;
+            struct stat dj;
+            if (!strcmp(bi, bj) && stat(files[j]->dir, &dj) == 0 && di.st_dev == dj.st_dev && di.st_ino == dj.st_ino)
+                return tf_error_add(err, TF_ERR_INVALID, files[j]->path, 0, 0, NULL,
+                                    "the same output file is written twice in one group ('%s')", files[i]->path);
+        }
+    }
+    return TF_OK;
+}
+
+/* Gives an existing destination a second name, so that it can be put back. lstat, rename and
+ * link(2) on Linux all act on a symbolic link itself, so a destination that is a link is
+ * replaced and restored as a link. With use_links = 0 (or no hard links on this file system)
+ * the old file is moved aside just before its replacement instead (OLD_ASIDE). */
+static tf_status keep_old(tf_atomic *a, int use_links, tf_error *err)
+{
+    struct stat st;
+    if (lstat(a->path, &st) != 0) {
+        if (errno == ENOENT)
+            return TF_OK;   /* OLD_NONE: put back by removing the new file */
+        int e = errno;
+        return tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot examine output file: %s", strerror(e));
+    }
+    size_t cap = strlen(a->temp) + sizeof ".old";
+    if (!(a->backup = malloc(cap)))
+        return tf_error_add(err, TF_ERR_NOMEM, a->path, 0, 0, NULL, "out of memory");
+    snprintf(a->backup, cap, "%s.old", a->temp);
+    if (use_links) {
+        if (link(a->path, a->backup) == 0) {
+            a->old = OLD_LINKED;
+            a->backup_exists = 1;
+            return TF_OK;
+        }
+        int e = errno;
+        if (!no_hard_links(e))
+            return tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot keep the previous file while replacing it: %s",
+                                strerror(e));
+    }
+    a->old = OLD_ASIDE;
+    return TF_OK;
+}
+
+/* Puts the destination's previous file back under its name, or removes the new file when there
+ * was none. On failure says where the previous file is and keeps it there. */
+static void put_back(tf_atomic *a, tf_error *err)
+{
+    if (a->old == OLD_NONE) {
+        if (unlink(a->path) != 0 && errno != ENOENT) {
+            int e = errno;
+            tf_error_add(err, TF_ERR_IO, a->path, 0, 0, "delete it by hand: it belongs to an incomplete set",
+                         "cannot remove the new file again: %s", strerror(e));
+        }
+        return;
+    }
+    if (rename(a->backup, a->path) == 0) {
+        a->backup_exists = 0;
+        return;
+    }
+    int e = errno;
+    a->keep_backup = 1;
+    tf_error_add(err, TF_ERR_IO, a->path, 0, 0, "rename it back by hand",
+                 "cannot put the previous file back (%s); it is kept as '%s'", strerror(e), a->backup);
+}
+
+/* Renames the temporary over the destination, first moving an OLD_ASIDE file out of the way. */
+static tf_status replace(tf_atomic *a, tf_error *err)
+{
+    if (a->old == OLD_ASIDE) {
+        if (rename(a->path, a->backup) != 0) {
+            int e = errno;
+            return tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot replace output file: %s", strerror(e));
+        }
+        a->backup_exists = 1;
+    }
+    if (rename(a->temp, a->path) != 0) {
+        int e = errno;
+        tf_status st = tf_error_add(err, TF_ERR_IO, a->path, 0, 0, NULL, "cannot replace output file: %s", strerror(e));
+        if (a->old == OLD_ASIDE)
+            put_back(a, err);
+        return st;
+    }
+    a->renamed = 1;
+    return TF_OK;
+}
+
+/* tf_atomic_commit_all with the choice of keeping old files by hard link (use_links = 1) or by
+ * moving them aside, so that tests reach both ways on any file system. */
+static tf_status commit_group(tf_atomic **files, size_t n, int use_links, tf_error *err)
+{
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < n && st == TF_OK; i++)
+        st = make_durable(files[i], err);
+    for (size_t i = 0; i < n && st == TF_OK; i++)
+        st = tf_atomic_check_target(files[i]->path, files[i]->protect, err);
+    if (st == TF_OK)
+        st = check_distinct(files, n, err);
+    for (size_t i = 0; i < n && st == TF_OK; i++)
+        st = keep_old(files[i], use_links, err);
+    for (size_t i = 0; i < n && st == TF_OK; i++)
+        st = replace(files[i], err);
+    if (st != TF_OK)
+        for (size_t i = n; i-- > 0;)
+            if (files[i]->renamed)
+                put_back(files[i], err);
+    for (size_t i = 0; i < n; i++)
+        release(files[i], st == TF_OK);
+    return st;
+}
+
+tf_status tf_atomic_commit_all(tf_atomic **files, size_t n, tf_error *err)
+{
+    return commit_group(files, n, 1, err);
 }
 
 void tf_atomic_abort(tf_atomic *a)
 {
-    if (!a)
-        return;
-    if (a->fp)
-        fclose(a->fp);
-    if (a->temp)
-        unlink(a->temp);
-    free_handle(a);
+    if (a)
+        release(a, 0);
 }

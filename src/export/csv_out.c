@@ -112,20 +112,60 @@ tf_status tf_csv_write(const tf_table *t, const char *path, const char *protect,
     return tf_atomic_commit(a, err);
 }
 
-tf_status tf_csv_write_in_dir(const tf_table *t, const char *dir, const char *protect, char *path_out,
-                              size_t path_size, tf_error *err)
+/* A new "dir/<file name of t>" (malloc'd; NULL when out of memory). */
+static char *path_in_dir(const tf_table *t, const char *dir)
 {
     char name[128];
     tf_csv_file_name(tf_table_name(t), name, sizeof name);
-    size_t len = strlen(dir) + 1 + strlen(name) + 1;
+    size_t dl = strlen(dir), len = dl + 1 + strlen(name) + 1;
     char *path = malloc(len);
+    if (path)
+        snprintf(path, len, "%s%s%s", dir, (dl && dir[dl - 1] == '/') ? "" : "/", name);
+    return path;
+}
+
+tf_status tf_csv_write_in_dir(const tf_table *t, const char *dir, const char *protect, char *path_out,
+                              size_t path_size, tf_error *err)
+{
+    char *path = path_in_dir(t, dir);
     if (!path)
         return tf_error_add(err, TF_ERR_NOMEM, dir, 0, 0, NULL, "out of memory");
-    size_t dl = strlen(dir);
-    snprintf(path, len, "%s%s%s", dir, (dl && dir[dl - 1] == '/') ? "" : "/", name);
     tf_status st = tf_csv_write(t, path, protect, err);
     if (path_out && path_size)
         snprintf(path_out, path_size, "%s", path);
     free(path);
+    return st;
+}
+
+tf_status tf_csv_write_all(const tf_table *const *tables, size_t n, const char *dir, const char *protect,
+                           tf_error *err)
+{
+    tf_atomic **files = calloc(n ? n : 1, sizeof *files);
+    if (!files)
+        return tf_error_add(err, TF_ERR_NOMEM, dir, 0, 0, NULL, "out of memory");
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < n && st == TF_OK; i++) {
+        char *path = path_in_dir(tables[i], dir);
+        if (!path) {
+            st = tf_error_add(err, TF_ERR_NOMEM, dir, 0, 0, NULL, "out of memory");
+            break;
+        }
+        for (size_t j = 0; j < i && st == TF_OK; j++)
+            if (!strcmp(tf_atomic_path(files[j]), path))
+                st = tf_error_add(err, TF_ERR_INVALID, path, 0, 0, "give the tables different names",
+                                  "tables '%s' and '%s' would both be written to this file",
+                                  tf_table_name(tables[j]), tf_table_name(tables[i]));
+        if (st == TF_OK && (st = tf_atomic_open(path, protect, &files[i], err)) == TF_OK)
+            /* Write errors stay on the stream and are reported by the commit, with errno. */
+            tf_csv_write_stream(tables[i], tf_atomic_stream(files[i]), path, NULL);
+        free(path);
+    }
+    if (st == TF_OK) {
+        st = tf_atomic_commit_all(files, n, err);
+    } else {
+        for (size_t i = 0; i < n; i++)
+            tf_atomic_abort(files[i]);
+    }
+    free(files);
     return st;
 }

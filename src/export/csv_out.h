@@ -36,4 +36,11 @@ tf_status tf_csv_write(const tf_table *t, const char *path, const char *protect,
 tf_status tf_csv_write_in_dir(const tf_table *t, const char *dir, const char *protect, char *path_out,
                               size_t path_size, tf_error *err);
 
+/* Writes n tables into dir, each to its tf_csv_file_name, all or none (tf_atomic_commit_all):
+ * when any of them cannot be written, every file in dir stays as it was. Tables whose names give
+ * the same file name are refused (TF_ERR_INVALID) before anything is written; refuses to write
+ * over protect (may be NULL). dir must exist. Errors name the file. */
+tf_status tf_csv_write_all(const tf_table *const *tables, size_t n, const char *dir, const char *protect,
+                           tf_error *err);
+
 #endif

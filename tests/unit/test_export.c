@@ -1,5 +1,7 @@
 /* Unit tests for atomic output files (export/atomic.c), export tables (export/table.c) and the
- * CSV writer (export/csv_out.c). CSV output is read back with libcsv, an independent RFC 4180
+ * CSV writer (export/csv_out.c). atomic.c is included whole so that the group commit can also be
+ * run with old files moved aside instead of hard-linked (as on a file system without hard
+ * links); the library's atomic.o is then not linked, since this file defines all its symbols. CSV output is read back with libcsv, an independent RFC 4180
  * parser, and numbers with the C library's strtod. */
 #define _GNU_SOURCE /* nftw, for removing the scratch directories */
 #include "tf_test.h"
@@ -18,7 +20,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include "export/atomic.h"
+#include "../../src/export/atomic.c"
 #include "export/csv_out.h"
 #include "export/table.h"
 #include "util/rng.h"
@@ -82,7 +84,7 @@ static char *read_file(const char *p, size_t *len)
     return buf;
 }
 
-/* Entries of tmp whose name holds ".tmp-" (temporaries left behind). */
+/* Entries of tmp whose name holds ".tmp-" (temporaries and group-commit backups left behind). */
 static int n_temps(void)
 {
     DIR *d = opendir(tmp);
@@ -288,6 +290,59 @@ START_TEST(csv_file_written_and_read_back)
 }
 END_TEST
 
+/* A one-column table named name whose single row holds v. */
+static tf_table *one_value_table(const char *name, double v)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_table *t = tf_table_new(name, &err);
+    ck_assert_ptr_nonnull(t);
+    ck_assert_int_eq(tf_table_add_column(t, "v", NULL, TF_COL_NUMBER, NULL, &err), TF_OK);
+    ck_assert_int_eq(tf_table_add_row_numbers(t, &v, 1, &err), TF_OK);
+    return t;
+}
+
+START_TEST(csv_tables_written_all_or_none)
+{
+    tf_error err;
+    tf_error_init(&err);
+    make_tmp();
+    tf_table *t[3] = {one_value_table("First", 0.1), one_value_table("Second data", 2.5), NULL};
+    const tf_table *const *tables = (const tf_table *const *)t;
+    ck_assert_int_eq(tf_csv_write_all(tables, 2, tmp, NULL, &err), TF_OK);
+    char *text = read_file(in_tmp("first.csv"), NULL);
+    ck_assert_str_eq(text, "v\r\n0.1\r\n");
+    free(text);
+    text = read_file(in_tmp("second-data.csv"), NULL);
+    ck_assert_str_eq(text, "v\r\n2.5\r\n");
+    free(text);
+    /* One file cannot be written (a directory holds its name): the other keeps its content. */
+    tf_table_free(t[0]);
+    t[0] = one_value_table("First", 7);
+    ck_assert_int_eq(unlink(in_tmp("second-data.csv")), 0);
+    ck_assert_int_eq(mkdir(in_tmp("second-data.csv"), 0755), 0);
+    ck_assert_int_eq(tf_csv_write_all(tables, 2, tmp, NULL, &err), TF_ERR_IO);
+    ck_assert_str_eq(err.items[0].file, in_tmp("second-data.csv"));
+    text = read_file(in_tmp("first.csv"), NULL);
+    ck_assert_str_eq(text, "v\r\n0.1\r\n");
+    free(text);
+    ck_assert_int_eq(n_temps(), 0);
+    /* Two tables for one file name are refused before anything is written. */
+    tf_error_init(&err);
+    t[2] = one_value_table("first", 3);
+    tf_table *same[2] = {t[0], t[2]};
+    ck_assert_int_eq(tf_csv_write_all((const tf_table *const *)same, 2, tmp, NULL, &err), TF_ERR_INVALID);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "'First' and 'first'"));
+    text = read_file(in_tmp("first.csv"), NULL);
+    ck_assert_str_eq(text, "v\r\n0.1\r\n");
+    free(text);
+    ck_assert_int_eq(n_temps(), 0);
+    for (int i = 0; i < 3; i++)
+        tf_table_free(t[i]);
+    rm_tmp();
+}
+END_TEST
+
 START_TEST(csv_file_names)
 {
     char buf[64];
@@ -445,10 +500,10 @@ START_TEST(atomic_unwritable_directory)
         ck_assert_int_eq(st, TF_ERR_IO);
         ck_assert_ptr_nonnull(strstr(err.items[0].what, "Permission denied"));
         tf_error_init(&err);
-        ck_assert_int_eq(tf_atomic_mkdirs(ro, &err), TF_ERR_IO);
+        ck_assert_int_eq(tf_atomic_mkdirs(ro, NULL, &err), TF_ERR_IO);
         ck_assert_ptr_nonnull(strstr(err.items[0].what, "not writable"));
         tf_error_init(&err);
-        ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("ro/sub"), &err), TF_ERR_IO);
+        ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("ro/sub"), NULL, &err), TF_ERR_IO);
     }
     ck_assert_int_eq(n_temps(), 0);
     rm_tmp();
@@ -460,19 +515,195 @@ START_TEST(mkdirs_creates_and_reports)
     tf_error err;
     tf_error_init(&err);
     make_tmp();
-    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/b//c/"), &err), TF_OK);
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/b//c/"), NULL, &err), TF_OK);
     struct stat st;
     ck_assert_int_eq(stat(in_tmp("a/b/c"), &st), 0);
     ck_assert(S_ISDIR(st.st_mode));
-    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/b/c"), &err), TF_OK);   /* already there */
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/b/c"), NULL, &err), TF_OK);   /* already there */
     write_file(in_tmp("a/file"), "x");
-    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/file"), &err), TF_ERR_IO);
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/file"), NULL, &err), TF_ERR_IO);
     ck_assert_ptr_nonnull(strstr(err.items[0].what, "is a file, not a directory"));
     ck_assert_str_eq(err.items[0].file, in_tmp("a/file"));
     tf_error_init(&err);
-    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/file/deeper/still"), &err), TF_ERR_IO);
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("a/file/deeper/still"), NULL, &err), TF_ERR_IO);
     ck_assert_ptr_nonnull(strstr(err.items[0].what, "a/file' is a file"));
     ck_assert_int_eq(stat(in_tmp("a/file/deeper"), &st), -1);
+    rm_tmp();
+}
+END_TEST
+
+/* ---- tests: group commit ---- */
+
+/* The file's content, or "(none)" when it does not exist; valid until the next call. */
+static const char *content(const char *p)
+{
+    static char buf[256];
+    FILE *f = fopen(p, "r");
+    if (!f)
+        return "(none)";
+    size_t n = fread(buf, 1, sizeof buf - 1, f);
+    buf[n] = '\0';
+    fclose(f);
+    return buf;
+}
+
+enum { N_FILES = 3 };
+static const char *const names[N_FILES] = {"a.csv", "b.csv", "c.csv"};
+static const char *const new_text[N_FILES] = {"new a", "new b", "new c"};
+
+/* Before: a.csv and c.csv exist with "old a" / "old c", b.csv does not. Opens the three and
+ * writes the new texts. */
+static void open_three(tf_atomic **files)
+{
+    tf_error err;
+    tf_error_init(&err);
+    write_file(in_tmp("a.csv"), "old a");
+    unlink(in_tmp("b.csv"));
+    write_file(in_tmp("c.csv"), "old c");
+    for (int i = 0; i < N_FILES; i++) {
+        ck_assert_int_eq(tf_atomic_open(in_tmp(names[i]), NULL, &files[i], &err), TF_OK);
+        fputs(new_text[i], tf_atomic_stream(files[i]));
+    }
+}
+
+static void assert_unchanged(void)
+{
+    ck_assert_str_eq(content(in_tmp("a.csv")), "old a");
+    ck_assert_str_eq(content(in_tmp("b.csv")), "(none)");
+    ck_assert_str_eq(content(in_tmp("c.csv")), "old c");
+    ck_assert_int_eq(n_temps(), 0);
+}
+
+START_TEST(group_replaces_all)
+{
+    for (int use_links = 1; use_links >= 0; use_links--) {
+        make_tmp();
+        tf_atomic *files[N_FILES];
+        open_three(files);
+        tf_error err;
+        tf_error_init(&err);
+        ck_assert_int_eq(commit_group(files, N_FILES, use_links, &err), TF_OK);
+        for (int i = 0; i < N_FILES; i++)
+            ck_assert_str_eq(content(in_tmp(names[i])), new_text[i]);
+        ck_assert_int_eq(n_temps(), 0);
+        rm_tmp();
+    }
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_atomic_commit_all(NULL, 0, &err), TF_OK);
+}
+END_TEST
+
+/* A destination that became a directory after open fails the check before any rename. */
+START_TEST(group_fails_before_renaming)
+{
+    make_tmp();
+    tf_atomic *files[N_FILES];
+    open_three(files);
+    ck_assert_int_eq(mkdir(in_tmp("b.csv"), 0755), 0);
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_atomic_commit_all(files, N_FILES, &err), TF_ERR_IO);
+    ck_assert_str_eq(err.items[0].file, in_tmp("b.csv"));
+    ck_assert_int_eq(rmdir(in_tmp("b.csv")), 0);
+    assert_unchanged();
+    rm_tmp();
+}
+END_TEST
+
+/* The last rename fails (its temporary was taken away): the two files already replaced get
+ * their previous state back, one by its old content, one by being removed; so does the third
+ * when it had been moved aside. */
+START_TEST(group_puts_back_after_a_failed_rename)
+{
+    for (int use_links = 1; use_links >= 0; use_links--) {
+        make_tmp();
+        tf_atomic *files[N_FILES];
+        open_three(files);
+        ck_assert_int_eq(unlink(tf_atomic_temp_path(files[2])), 0);
+        tf_error err;
+        tf_error_init(&err);
+        ck_assert_int_eq(commit_group(files, N_FILES, use_links, &err), TF_ERR_IO);
+        ck_assert_uint_eq(err.n_items, 1);   /* no complaint about the put-back */
+        ck_assert_str_eq(err.items[0].file, in_tmp("c.csv"));
+        ck_assert_ptr_nonnull(strstr(err.items[0].what, "cannot replace"));
+        assert_unchanged();
+        rm_tmp();
+    }
+}
+END_TEST
+
+START_TEST(group_refuses_one_destination_twice)
+{
+    make_tmp();
+    tf_error err;
+    tf_error_init(&err);
+    tf_atomic *files[2];
+    char other[256];
+    snprintf(other, sizeof other, "%s/./a.csv", tmp);
+    ck_assert_int_eq(tf_atomic_open(in_tmp("a.csv"), NULL, &files[0], &err), TF_OK);
+    ck_assert_int_eq(tf_atomic_open(other, NULL, &files[1], &err), TF_OK);
+    fputs("one", tf_atomic_stream(files[0]));
+    fputs("two", tf_atomic_stream(files[1]));
+    ck_assert_int_eq(tf_atomic_commit_all(files, 2, &err), TF_ERR_INVALID);
+    ck_assert_str_eq(content(in_tmp("a.csv")), "(none)");
+    ck_assert_int_eq(n_temps(), 0);
+    rm_tmp();
+}
+END_TEST
+
+/* A destination made a link to the protected input after open is refused at commit. */
+START_TEST(group_protects_the_input)
+{
+    make_tmp();
+    tf_error err;
+    tf_error_init(&err);
+    const char *input = in_tmp("survey.csv");
+    write_file(input, "year,count\n2001,5\n");
+    tf_atomic *files[2];
+    ck_assert_int_eq(tf_atomic_open(in_tmp("a.csv"), input, &files[0], &err), TF_OK);
+    ck_assert_int_eq(tf_atomic_open(in_tmp("b.csv"), input, &files[1], &err), TF_OK);
+    fputs("table a", tf_atomic_stream(files[0]));
+    fputs("table b", tf_atomic_stream(files[1]));
+    ck_assert_int_eq(link(input, in_tmp("b.csv")), 0);
+    ck_assert_int_eq(tf_atomic_commit_all(files, 2, &err), TF_ERR_USAGE);
+    ck_assert_str_eq(content(input), "year,count\n2001,5\n");
+    ck_assert_str_eq(content(in_tmp("a.csv")), "(none)");
+    ck_assert_int_eq(n_temps(), 0);
+    rm_tmp();
+}
+END_TEST
+
+START_TEST(rmdirs_takes_back_what_mkdirs_made)
+{
+    make_tmp();
+    tf_error err;
+    tf_error_init(&err);
+    size_t n_made = 99;
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("x"), &n_made, &err), TF_OK);
+    ck_assert_uint_eq(n_made, 1);
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("x//y/z/"), &n_made, &err), TF_OK);
+    ck_assert_uint_eq(n_made, 2);   /* x was there already */
+    tf_atomic_rmdirs(in_tmp("x//y/z/"), n_made);
+    struct stat st;
+    ck_assert_int_eq(stat(in_tmp("x/y"), &st), -1);
+    ck_assert_int_eq(stat(in_tmp("x"), &st), 0);
+    /* A directory that is no longer empty stops the removal. */
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("x/p/q"), &n_made, &err), TF_OK);
+    ck_assert_uint_eq(n_made, 2);
+    write_file(in_tmp("x/p/keep.txt"), "k");
+    tf_atomic_rmdirs(in_tmp("x/p/q"), n_made);
+    ck_assert_int_eq(stat(in_tmp("x/p/q"), &st), -1);
+    ck_assert_str_eq(content(in_tmp("x/p/keep.txt")), "k");
+    /* A failure reports what was made before it: here nothing, as a file is in the way. */
+    write_file(in_tmp("x/file"), "f");
+    n_made = 99;
+    ck_assert_int_eq(tf_atomic_mkdirs(in_tmp("x/file/sub"), &n_made, &err), TF_ERR_IO);
+    ck_assert_uint_eq(n_made, 0);
+    /* Nothing to take back, or no name: nothing happens. */
+    tf_atomic_rmdirs(in_tmp("x"), 0);
+    tf_atomic_rmdirs(NULL, 3);
+    ck_assert_int_eq(stat(in_tmp("x"), &st), 0);
     rm_tmp();
 }
 END_TEST
@@ -603,11 +834,18 @@ static Suite *make_suite(void)
     tcase_add_test(tc, csv_numbers_round_trip);
     tcase_add_test(tc, csv_file_written_and_read_back);
     tcase_add_test(tc, csv_file_names);
+    tcase_add_test(tc, csv_tables_written_all_or_none);
     tcase_add_test(tc, atomic_refuses_the_input);
     tcase_add_test(tc, atomic_bad_destinations);
     tcase_add_test(tc, atomic_failed_write_leaves_no_temp);
     tcase_add_test(tc, atomic_unwritable_directory);
     tcase_add_test(tc, mkdirs_creates_and_reports);
+    tcase_add_test(tc, group_replaces_all);
+    tcase_add_test(tc, group_fails_before_renaming);
+    tcase_add_test(tc, group_puts_back_after_a_failed_rename);
+    tcase_add_test(tc, group_refuses_one_destination_twice);
+    tcase_add_test(tc, group_protects_the_input);
+    tcase_add_test(tc, rmdirs_takes_back_what_mkdirs_made);
     tcase_add_test(tc, table_grows_and_keeps_cells);
     tcase_add_test(tc, table_refuses_misuse);
     tcase_add_test(tc, summary_rows);

@@ -207,7 +207,7 @@ START_TEST(sample_workbook)
     tf_error err;
     tf_error_init(&err);
     const char *dir = sample_dir();
-    OK(tf_atomic_mkdirs(dir, &err));
+    OK(tf_atomic_mkdirs(dir, NULL, &err));
     empty_dir(dir);
     char path[1024];
     snprintf(path, sizeof path, "%s/sample.xlsx", dir);
@@ -276,7 +276,7 @@ START_TEST(edge_workbook)
     tf_error err;
     tf_error_init(&err);
     const char *dir = sample_dir();
-    OK(tf_atomic_mkdirs(dir, &err));
+    OK(tf_atomic_mkdirs(dir, NULL, &err));
     char path[1024];
     snprintf(path, sizeof path, "%s/edge.xlsx", dir);
     tf_workbook *wb = tf_workbook_new(path, NULL, &err);

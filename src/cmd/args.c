@@ -253,7 +253,7 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     char names[160], hint[256];
     param_list(m, names, sizeof names);
     size_t n = tf_model_n_params(m);
-    unsigned char seen[TF_MAX_PARAMS] = {0};
+    unsigned char seen[TF_MAX_PARAMS] = {0}, bad[TF_MAX_PARAMS] = {0};
     tf_status st = TF_OK;
     for (size_t i = 0; i < set->n; i++) {
         const tf_arg_pair *p = &set->items[i];
@@ -272,6 +272,7 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
             snprintf(hint, sizeof hint, "%s must lie strictly between %g and %g", p->name, lo, hi);
             st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: %s = %g is outside its range for model %s",
                               p->name, p->value, tf_model_name(m));
+            bad[k] = 1;
             continue;
         }
         theta[k] = p->value;
@@ -279,8 +280,11 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     }
     if (require_all)
         for (size_t k = 0; k < n; k++)
-            if (!seen[k]) {
-                snprintf(hint, sizeof hint, "model %s needs --set %s=...", tf_model_name(m), names);
+            if (!seen[k] && !bad[k]) {
+                size_t used = (size_t)snprintf(hint, sizeof hint, "model %s needs --set ", tf_model_name(m));
+                for (size_t j = 0; j < n && used < sizeof hint; j++)
+                    used += (size_t)snprintf(hint + used, sizeof hint - used, "%s%s=...", j ? "," : "",
+                                             tf_model_param_name(m, j));
                 st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: the value of %s is missing",
                                   tf_model_param_name(m, k));
             }
@@ -294,4 +298,43 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     if (given)
         memcpy(given, seen, n);
     return TF_OK;
+}
+
+tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err)
+{
+    *out = NULL;
+    if (strcmp(path, "-"))
+        return tf_survey_read(path, out, err);
+    char *buf = NULL;
+    size_t len = 0, cap = 0;
+    tf_status st;
+    for (;;) {
+        if (len == cap) {
+            size_t want = cap ? 2 * cap : 65536;
+            char *p = realloc(buf, want);
+            if (!p) {
+                st = tf_error_add(err, TF_ERR_NOMEM, "stdin", 0, 0, NULL, "out of memory reading the survey");
+                goto done;
+            }
+            buf = p;
+            cap = want;
+        }
+        size_t n = fread(buf + len, 1, cap - len, stdin);
+        len += n;
+        if (len > (size_t)TF_SURVEY_MAX_BYTES) {
+            st = tf_error_add(err, TF_ERR_RANGE, "stdin", 0, 0, NULL, "the survey is larger than %ld MiB",
+                              TF_SURVEY_MAX_BYTES >> 20);
+            goto done;
+        }
+        if (n == 0)
+            break;
+    }
+    if (ferror(stdin)) {
+        st = tf_error_add(err, TF_ERR_IO, "stdin", 0, 0, NULL, "cannot read the survey from standard input");
+        goto done;
+    }
+    st = tf_survey_parse("stdin", buf ? buf : "", len, out, err);
+done:
+    free(buf);
+    return st;
 }

@@ -174,11 +174,14 @@ tf_status tf_report_add_chart(tf_report *r, const tf_report_chart *c, tf_error *
     size_t nc = tf_table_n_columns(t), nr = tf_table_n_rows(t);
     if (c->x_column >= nc)
         return bad_chart(err, "the x column is not a column of the table");
-    for (size_t k = 0; k < c->n_series; k++)
+    for (size_t k = 0; k < c->n_series; k++) {
         if (c->series[k].column >= nc)
             return bad_chart(err, "a series column is not a column of the table");
+    }
     if (c->first_row >= nr || (c->n_rows && c->n_rows > nr - c->first_row))
         return bad_chart(err, "no rows to draw, or rows beyond the end of the table");
+    if (c->series_stride && (!c->n_rows || (nr - c->first_row - c->n_rows) / c->series_stride < c->n_series - 1))
+        return bad_chart(err, "a series' block of rows lies beyond the end of the table");
     if (!grow((void **)&r->charts, &r->cap_charts, r->n_charts + 1, sizeof *r->charts))
         return nomem(err);
     chart *ch = &r->charts[r->n_charts];
@@ -279,6 +282,7 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
                           const volatile sig_atomic_t *stop, tf_error *err)
 {
     tf_status st = TF_OK;
+    size_t n_made = 0;   /* folders made for the CSV files, taken away again on failure */
     size_t n_files = r->n_tables + 1;   /* the tables and the contents file */
     tf_atomic **files = calloc(n_files, sizeof *files);
     tf_sheet **sheets = calloc(r->n_tables ? r->n_tables : 1, sizeof *sheets);
@@ -292,7 +296,7 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
     /* Refuse the protected input before any folder is made. */
     if ((st = tf_atomic_check_target(xlsx_path, protect, err)) != TF_OK)
         goto done;
-    if ((st = tf_atomic_mkdirs(csv_dir, err)) != TF_OK)
+    if ((st = tf_atomic_mkdirs(csv_dir, &n_made, err)) != TF_OK)
         goto done;
     if (!(wb = tf_workbook_new(xlsx_path, protect, err))) {
         st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_IO;
@@ -322,6 +326,7 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
             .n_series = c->n_series,
             .first_row = c->first_row,
             .n_rows = c->n_rows,
+            .series_stride = c->series_stride,
             .place = c->place == TF_REPORT_SAME_SHEET ? NULL : sheets[c->place],
             .anchor = c->anchor,
         };
@@ -344,17 +349,17 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
     wb = NULL;
     if (st != TF_OK)
         goto done;
-    for (size_t i = 0; i < n_files; i++) {
-        tf_status s = tf_atomic_commit(files[i], err);
+    n_made = 0;   /* the workbook is in place: the folder stays whatever happens next */
+    st = tf_atomic_commit_all(files, n_files, err);
+    for (size_t i = 0; i < n_files; i++)
         files[i] = NULL;
-        if (s != TF_OK && st == TF_OK)
-            st = s;
-    }
 done:
     tf_workbook_free(wb);
     if (files)
         for (size_t i = 0; i < n_files; i++)
             tf_atomic_abort(files[i]);
+    if (st != TF_OK && n_made)
+        tf_atomic_rmdirs(csv_dir, n_made);
     tf_table_free(contents);
     free(files);
     free(sheets);

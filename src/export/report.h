@@ -46,7 +46,7 @@ typedef struct {
     size_t x_column;
     const tf_chart_series *series;
     size_t n_series;
-    size_t first_row, n_rows;                /* as tf_chart_spec */
+    size_t first_row, n_rows, series_stride; /* as tf_chart_spec */
     size_t place;                            /* table whose sheet shows the chart; TF_REPORT_SAME_SHEET */
     const char *anchor;                      /* as tf_chart_spec; NULL = automatic */
 } tf_report_chart;
@@ -60,12 +60,13 @@ tf_status tf_report_add_chart(tf_report *r, const tf_report_chart *c, tf_error *
  * when missing), plus TF_REPORT_CONTENTS_CSV listing sheet name, CSV file and the about line of
  * each table. Neither may be, or be written over, protect (the input file; may be NULL).
  * Every CSV goes to a temporary first; the workbook is assembled and renamed into place, then
- * the CSV temporaries are renamed over their names. When *stop (may be NULL) becomes non-zero
- * before the workbook is renamed, nothing is written and TF_ERR_INTERRUPTED is returned. On any
- * failure before that point nothing is written either and temporaries are removed
- * (TF_ERR_IO, TF_ERR_USAGE for the protected file, TF_ERR_NOMEM, or the workbook's errors);
- * a failure of a later CSV rename is reported as TF_ERR_IO naming the file, leaving the
- * earlier files in place. The report itself is not changed and may be written again. */
+ * the CSV temporaries are renamed over their names together (tf_atomic_commit_all). When *stop
+ * (may be NULL) becomes non-zero before the workbook is renamed, nothing is written and
+ * TF_ERR_INTERRUPTED is returned. On any failure before that point nothing is written either:
+ * temporaries are removed, and so are the folders this call made (TF_ERR_IO, TF_ERR_USAGE for
+ * the protected file, TF_ERR_NOMEM, or the workbook's errors). Should the CSV renames then fail,
+ * the CSV files are as before and the error (TF_ERR_IO) says so; the new workbook stays.
+ * The report itself is not changed and may be written again. */
 tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char *csv_dir, const char *protect,
                           const volatile sig_atomic_t *stop, tf_error *err);
 

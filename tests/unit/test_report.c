@@ -102,7 +102,11 @@ static tf_report *sample(tf_error *err)
     size_t i0, i1, i2;
     ck_assert_int_eq(tf_report_add_table(r, s, "the first page", &i0, err), TF_OK);
     ck_assert_int_eq(tf_report_add_table(r, year_table("North / trend", err), "trend", &i1, err), TF_OK);
-    ck_assert_int_eq(tf_report_add_table(r, year_table("north trend", err), NULL, &i2, err), TF_OK);
+    tf_table *renamed = year_table("first name", err);
+    ck_assert_int_eq(tf_table_set_name(renamed, "", err), TF_ERR_INVALID);
+    ck_assert_str_eq(tf_table_name(renamed), "first name");
+    ck_assert_int_eq(tf_table_set_name(renamed, "north trend", err), TF_OK);
+    ck_assert_int_eq(tf_report_add_table(r, renamed, NULL, &i2, err), TF_OK);
     ck_assert_uint_eq(i0, 0);
     ck_assert_uint_eq(i1, 1);
     ck_assert_uint_eq(i2, 2);
@@ -200,6 +204,27 @@ START_TEST(bad_charts)
     ck_assert_int_eq(tf_report_add_chart(r, &b, &err), TF_ERR_INVALID);
     b.n_rows = 4;
     ck_assert_int_eq(tf_report_add_chart(r, &b, &err), TF_OK);
+    /* Long form: two series of 3 rows each, one block after the other (rows 0-2 and 3-5). */
+    tf_chart_series two[] = {{1, "first", TF_SERIES_LINE}, {2, "second", TF_SERIES_LINE}};
+    b = c;
+    b.series = two;
+    b.n_series = 2;
+    b.n_rows = 3;
+    b.series_stride = 3;
+    ck_assert_int_eq(tf_report_add_chart(r, &b, &err), TF_OK);
+    b.first_row = 1;   /* the second block would end past row 5 */
+    ck_assert_int_eq(tf_report_add_chart(r, &b, &err), TF_ERR_INVALID);
+    b.first_row = 0;
+    b.n_rows = 0;      /* a stride needs the block length */
+    ck_assert_int_eq(tf_report_add_chart(r, &b, &err), TF_ERR_INVALID);
+    /* The charts accepted here are also accepted by the workbook when written. */
+    const char *d = fresh_dir("charts");
+    char xlsx[1024], csv[1024];
+    snprintf(xlsx, sizeof xlsx, "%s/out.xlsx", d);
+    snprintf(csv, sizeof csv, "%s/csv", d);
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_report_write(r, xlsx, csv, NULL, NULL, &err), TF_OK);
+    ck_assert(has_member(xlsx, "xl/charts/chart4.xml"));
     ck_assert_int_eq(tf_report_add_table(r, NULL, NULL, NULL, &err), TF_ERR_INVALID);
     tf_report_free(r);
     tf_report_free(NULL);

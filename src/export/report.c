@@ -17,6 +17,7 @@ typedef struct {
     tf_table *table;
     char *about;
     char csv[CSV_NAME_BUF];
+    int csv_only;
 } entry;
 
 typedef struct {
@@ -145,6 +146,17 @@ tf_status tf_report_add_table(tf_report *r, tf_table *t, const char *about, size
 
 size_t tf_report_n_tables(const tf_report *r) { return r->n_tables; }
 
+void tf_report_set_csv_only(tf_report *r, size_t index)
+{
+    if (index < r->n_tables)
+        r->tables[index].csv_only = 1;
+}
+
+int tf_report_csv_only(const tf_report *r, size_t index)
+{
+    return index < r->n_tables && r->tables[index].csv_only;
+}
+
 const tf_table *tf_report_table(const tf_report *r, size_t index)
 {
     return index < r->n_tables ? r->tables[index].table : NULL;
@@ -167,6 +179,8 @@ tf_status tf_report_add_chart(tf_report *r, const tf_report_chart *c, tf_error *
     if (c->place != TF_REPORT_SAME_SHEET && c->place >= r->n_tables)
         return bad_chart(err, "the sheet to draw on is not part of the report");
     const tf_table *t = r->tables[c->data].table;
+    if (r->tables[c->data].csv_only || (c->place != TF_REPORT_SAME_SHEET && r->tables[c->place].csv_only))
+        return bad_chart(err, "a table written as CSV only has no sheet");
     if (tf_table_is_summary(t))
         return bad_chart(err, "a summary table cannot hold chart data");
     if (!c->series || c->n_series == 0)
@@ -238,7 +252,8 @@ static tf_table *contents_table(const tf_report *r, char (*names)[TF_SHEET_NAME_
     if (!t)
         return NULL;
     size_t c_sheet, c_file, c_about;
-    if (tf_table_add_column(t, "sheet", "name of the sheet in the workbook", TF_COL_TEXT, &c_sheet, err) != TF_OK ||
+    if (tf_table_add_column(t, "sheet", "name of the sheet in the workbook (empty: CSV only)", TF_COL_TEXT, &c_sheet,
+                            err) != TF_OK ||
         tf_table_add_column(t, "file", "the CSV file holding the same table", TF_COL_TEXT, &c_file, err) != TF_OK ||
         tf_table_add_column(t, "contents", "what the table shows", TF_COL_TEXT, &c_about, err) != TF_OK)
         goto fail;
@@ -307,9 +322,11 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
             st = interrupted(err);
             goto done;
         }
-        if ((st = tf_workbook_add_table(wb, r->tables[i].table, &sheets[i], err)) != TF_OK)
-            goto done;
-        snprintf(names[i], sizeof names[i], "%s", tf_sheet_name(sheets[i]));
+        if (!r->tables[i].csv_only) {
+            if ((st = tf_workbook_add_table(wb, r->tables[i].table, &sheets[i], err)) != TF_OK)
+                goto done;
+            snprintf(names[i], sizeof names[i], "%s", tf_sheet_name(sheets[i]));
+        }
         if ((st = csv_to_temp(r->tables[i].table, csv_dir, r->tables[i].csv, protect, &files[i], err)) != TF_OK)
             goto done;
     }

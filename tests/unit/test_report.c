@@ -316,6 +316,42 @@ START_TEST(unwritable)
 }
 END_TEST
 
+START_TEST(csv_only)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_report *r = tf_report_new(&err);
+    size_t i0, i1;
+    ck_assert_int_eq(tf_report_add_table(r, year_table("kept", &err), NULL, &i0, &err), TF_OK);
+    ck_assert_int_eq(tf_report_add_table(r, year_table("long", &err), "too long for a sheet", &i1, &err), TF_OK);
+    ck_assert(!tf_report_csv_only(r, i1));
+    tf_report_set_csv_only(r, i1);
+    ck_assert(tf_report_csv_only(r, i1));
+    ck_assert(!tf_report_csv_only(r, i0));
+    ck_assert(!tf_report_csv_only(r, 99));
+    tf_chart_series se[] = {{1, NULL, TF_SERIES_LINE}};
+    tf_report_chart c = {.kind = TF_CHART_XY, .data = i1, .x_column = 0, .series = se, .n_series = 1,
+                         .place = TF_REPORT_SAME_SHEET};
+    ck_assert_int_eq(tf_report_add_chart(r, &c, &err), TF_ERR_INVALID);
+    c.data = i0;
+    c.place = i1;   /* nor drawn on it */
+    ck_assert_int_eq(tf_report_add_chart(r, &c, &err), TF_ERR_INVALID);
+    const char *d = fresh_dir("csvonly");
+    char xlsx[1024], csv[1024];
+    snprintf(xlsx, sizeof xlsx, "%s/out.xlsx", d);
+    snprintf(csv, sizeof csv, "%s/csv", d);
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_report_write(r, xlsx, csv, NULL, NULL, &err), TF_OK);
+    ck_assert(exists(csv, "long.csv"));
+    ck_assert(has_member(xlsx, "xl/worksheets/sheet1.xml"));
+    ck_assert(!has_member(xlsx, "xl/worksheets/sheet2.xml"));
+    ck_assert_str_eq(slurp(csv, TF_REPORT_CONTENTS_CSV), "sheet,file,contents\r\n"
+                                                         "kept,kept.csv,\r\n"
+                                                         ",long.csv,too long for a sheet\r\n");
+    tf_report_free(r);
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("report");
@@ -325,6 +361,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, interrupted);
     tcase_add_test(tc, protected_input);
     tcase_add_test(tc, unwritable);
+    tcase_add_test(tc, csv_only);
     suite_add_tcase(s, tc);
     return s;
 }

@@ -86,6 +86,12 @@ valgrind: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit $(TEST_BIN)
 	$(Q)TALLYFIT=$(CURDIR)/tallyfit BUILD=$(BUILD) TF_VALGRIND=1 tests/run-all $(TEST_BIN)
 
+# Long fuzzing runs of the libFuzzer targets in tests/fuzz (clang, ASan + UBSan): FUZZ_SECONDS
+# per target, the targets side by side. `make check` runs a short one (tests/e2e/fuzz_short.sh).
+FUZZ_SECONDS ?= 600
+fuzz: deps
+	$(Q)tests/fuzz/run.sh $(FUZZ_SECONDS)
+
 bench: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit $(BENCH_BIN)
 	$(Q)for b in $(BENCH_BIN); do $$b || exit 1; done

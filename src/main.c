@@ -1,5 +1,6 @@
 /* tallyfit: command dispatch only. */
 #include <gsl/gsl_errno.h>
+#include <signal.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -22,6 +23,12 @@ int main(int argc, char **argv)
 {
     /* GSL aborts on errors by default; every GSL call's status is checked instead. */
     gsl_set_error_handler_off();
+    /* A write past the file size limit (ulimit -f) would otherwise kill the process with
+     * SIGXFSZ before the atomic writer can remove its temporary; ignored, the write fails with
+     * EFBIG and is reported like a full disk (POSIX.1-2008, write: [EFBIG]). */
+    struct sigaction ignore = {.sa_handler = SIG_IGN};
+    sigemptyset(&ignore.sa_mask);
+    sigaction(SIGXFSZ, &ignore, NULL);
 
     if (argc < 2) {
         usage(stderr);

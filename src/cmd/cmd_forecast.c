@@ -456,6 +456,12 @@ static int project_and_write(const options *o, const tf_project_options *po, con
     tf_error_init(&err);
     char dir[4096];
     if (o->out_dir) {
+        /* A cut name would be another folder: refuse it instead. */
+        if (strlen(o->out_dir) >= sizeof dir) {
+            fprintf(stderr, PROG ": the output folder name is longer than %zu bytes\n  hint: choose a shorter -o DIR\n",
+                    sizeof dir - 1);
+            return TF_EXIT_USAGE;
+        }
         snprintf(dir, sizeof dir, "%s", o->out_dir);
     } else if (sv) {
         char stem[256], pop[256];

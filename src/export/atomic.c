@@ -285,7 +285,15 @@ static tf_status finish_stream(tf_atomic *a, tf_error *err)
     a->fp = NULL;
     errno = 0;
     int bad = fflush(fp) != 0 || ferror(fp);
-    int e = errno ? errno : EIO;
+    int e = errno;
+    if (bad && !e) {
+        /* The write failed in an earlier call whose errno is gone (a large fwrite goes straight
+         * to write(2), leaving nothing buffered to fail again here). One more byte at the end
+         * of the temporary, which is removed anyway, brings the reason back: a full disk, the
+         * file size limit, an I/O error. */
+        int fd = fileno(fp);
+        e = lseek(fd, 0, SEEK_END) >= 0 && write(fd, "", 1) < 0 ? errno : EIO;
+    }
     if (!bad && fsync(fileno(fp)) != 0) {
         bad = 1;
         e = errno;
@@ -294,10 +302,12 @@ static tf_status finish_stream(tf_atomic *a, tf_error *err)
         bad = 1;
         e = errno;
     }
-    if (bad)
-        return tf_error_add(err, TF_ERR_IO, a->path, 0, 0, e == ENOSPC ? "free some disk space" : NULL,
-                            "cannot write output: %s", strerror(e));
-    return TF_OK;
+    if (!bad)
+        return TF_OK;
+    const char *hint = e == ENOSPC ? "free some disk space"
+                       : e == EFBIG ? "the file size limit (ulimit -f) is too small for this file"
+                                    : NULL;
+    return tf_error_add(err, TF_ERR_IO, a->path, 0, 0, hint, "cannot write output: %s", strerror(e));
 }
 
 tf_status tf_atomic_close_stream(tf_atomic *a, tf_error *err)

@@ -386,30 +386,56 @@ static void relay(tf_error *err, const tf_error *loc, const char *file, long lin
     err->n_dropped += loc->n_dropped;
 }
 
-static int same_section(const entry *a, const char *sec) { return !strcmp(a->section, sec); }
+/* Orders pairs by section name, then by their place in the file (the entries array is one block,
+ * so address order is file order). */
+static int by_section_then_place(const void *a, const void *b)
+{
+    const entry *x = *(const entry *const *)a, *y = *(const entry *const *)b;
+    int c = strcmp(x->section, y->section);
+    return c ? c : (x > y) - (x < y);
+}
 
-/* Turns the collected pairs into mf, adding every problem to loc. */
+/* A section's pairs: a run of the sorted pointers, and the section's first pair in the file. */
+typedef struct {
+    size_t start, n;
+    const entry *first;
+} section_run;
+
+static int by_first_place(const void *a, const void *b)
+{
+    const section_run *x = a, *y = b;
+    return (x->first > y->first) - (x->first < y->first);
+}
+
+/* Turns the collected pairs into mf, adding every problem to loc. The pairs are grouped by
+ * section by sorting (a file of many small sections would take quadratic time if each section
+ * were collected by a scan of all pairs); sections are then handled in file order. */
 static tf_status build(tf_model_file *mf, parse_state *ps, tf_error *loc)
 {
-    const entry **group = malloc((ps->n_entries ? ps->n_entries : 1) * sizeof *group);
-    unsigned char *done = calloc(ps->n_entries ? ps->n_entries : 1, 1);
-    mf->params = calloc(ps->n_entries ? ps->n_entries : 1, sizeof *mf->params);
+    size_t n_alloc = ps->n_entries ? ps->n_entries : 1;
+    const entry **sorted = malloc(n_alloc * sizeof *sorted);
+    section_run *runs = malloc(n_alloc * sizeof *runs);
+    mf->params = calloc(n_alloc, sizeof *mf->params);
     tf_status st = TF_OK;
-    if (!group || !done || !mf->params) {
+    size_t n_runs = 0;
+    if (!sorted || !runs || !mf->params) {
         st = TF_ERR_NOMEM;
         goto out;
     }
-    int have_model = 0;
+    for (size_t i = 0; i < ps->n_entries; i++)
+        sorted[i] = &ps->entries[i];
+    qsort(sorted, ps->n_entries, sizeof *sorted, by_section_then_place);
     for (size_t i = 0; i < ps->n_entries; i++) {
-        if (done[i])
-            continue;
-        const char *sec = ps->entries[i].section;
-        size_t n = 0;
-        for (size_t j = i; j < ps->n_entries; j++)
-            if (!done[j] && same_section(&ps->entries[j], sec)) {
-                group[n++] = &ps->entries[j];
-                done[j] = 1;
-            }
+        if (i == 0 || strcmp(sorted[i]->section, sorted[i - 1]->section))
+            runs[n_runs++] = (section_run){i, 0, sorted[i]};
+        runs[n_runs - 1].n++;
+    }
+    qsort(runs, n_runs, sizeof *runs, by_first_place);
+    int have_model = 0;
+    for (size_t r = 0; r < n_runs; r++) {
+        const entry *const *group = sorted + runs[r].start;
+        size_t n = runs[r].n;
+        const char *sec = group[0]->section;
         if (!sec[0]) {
             for (size_t k = 0; k < n; k++)
                 tf_error_add(loc, TF_ERR_PARSE, mf->label, group[k]->line, 0,
@@ -433,8 +459,8 @@ static tf_status build(tf_model_file *mf, parse_state *ps, tf_error *loc)
         tf_error_add(loc, TF_ERR_PARSE, mf->label, 0, 0, "start the file with [model] and 'name = ...'",
                      "the file has no [model] section (key 'name' is required)");
 out:
-    free(group);
-    free(done);
+    free(sorted);
+    free(runs);
     return st;
 }
 

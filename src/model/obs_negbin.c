@@ -2,7 +2,7 @@
  * mu + mu^2 / phi (the NB2 form, Hilbe 2011, Negative Binomial Regression, 2nd ed., eq. 8.5):
  * log p = ln G(y + phi) - ln G(phi) - ln y! + y ln mu + phi ln phi - (y + phi) ln(phi + mu),
  * computed as  ... - y ln phi - (y + phi) ln1p(mu / phi)  so that large phi (near-Poisson) keeps
- * its precision. */
+ * its precision (and the gamma terms as lngamma_ratio below, for the same reason). */
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_sf_gamma.h>
 
@@ -13,10 +13,31 @@ static const char *const names[] = {"phi"};
 static const double lower[] = {0.0};
 static const double upper[] = {INFINITY};
 
+/* Above this size, ln G(y + phi) - ln G(phi) is taken from Stirling's series: the difference of
+ * two values near phi ln phi would keep only about 16 - log10(phi ln phi) digits (none at all
+ * beyond phi = 1e15, where y + phi rounds to phi), which made the likelihood of a near-Poisson
+ * fit collapse instead of approaching the Poisson limit. At 1e4 the direct form is still good to
+ * about 1e-12 and the series' first omitted term, 1 / (360 phi^3), is below 3e-15. */
+#define STIRLING_ABOVE 1e4
+
+/* ln G(y + phi) - ln G(phi) - y ln phi, accurate for every phi > 0. For large phi, Stirling's
+ * series ln G(z) = (z - 1/2) ln z - z + ln(2 pi)/2 + 1/(12 z) - ... (Abramowitz & Stegun 1964,
+ * Handbook of Mathematical Functions, eq. 6.1.41; equation number recalled from memory) at
+ * z = phi + y and z = phi gives, with u = y / phi,
+ *   phi (ln(1 + u) - u) + (y - 1/2) ln(1 + u) - y / (12 phi (phi + y)),
+ * where nothing cancels beyond a few units of y times the rounding error. */
+static double lngamma_ratio(double y, double phi)
+{
+    if (phi <= STIRLING_ABOVE)
+        return gsl_sf_lngamma(y + phi) - gsl_sf_lngamma(phi) - y * log(phi);
+    const double u = y / phi, l = log1p(u);
+    return phi * (l - u) + (y - 0.5) * l - y / (12.0 * phi * (phi + y));
+}
+
 static void year_const(const double *p, double y, double *c)
 {
     const double phi = p[0];
-    c[0] = gsl_sf_lngamma(y + phi) - gsl_sf_lngamma(phi) - gsl_sf_lngamma(y + 1.0) - y * log(phi);
+    c[0] = lngamma_ratio(y, phi) - gsl_sf_lngamma(y + 1.0);
     c[1] = y + phi;
     c[2] = 1.0 / phi;
 }
@@ -43,9 +64,9 @@ static double logpmf(const double *p, double y, double mu)
         return y == 0 ? 0.0 : -INFINITY;
     if (!(mu < INFINITY))
         return -INFINITY;
-    double lp = gsl_sf_lngamma(y + phi) - gsl_sf_lngamma(phi) - gsl_sf_lngamma(y + 1.0) - (y + phi) * log1p(mu / phi);
+    double lp = lngamma_ratio(y, phi) - gsl_sf_lngamma(y + 1.0) - (y + phi) * log1p(mu / phi);
     if (y > 0)
-        lp += y * (log(mu) - log(phi));
+        lp += y * log(mu);
     return lp;
 }
 

@@ -22,6 +22,9 @@ struct tf_survey {
 enum { COL_YEAR, COL_COUNT, COL_POP, COL_EFFORT, COL_NOTE, N_KNOWN };
 static const char *const known_names[N_KNOWN] = {"year", "count", "population", "effort", "note"};
 
+/* Smallest growth step of libcsv's field buffer (its own default is 128 bytes). */
+#define FIELD_BLOCK_MIN 4096
+
 /* Longest value quoted back in a message, in bytes. */
 #define SHOW_MAX 40
 
@@ -68,6 +71,7 @@ typedef struct {
     long rec_line;      /* line the record started on */
     bool rec_bad;       /* the record touches a line with an encoding error (already reported) */
     bool rec_ended;     /* libcsv ended a record while the current line was fed */
+    size_t rec_bytes;   /* bytes of the current record fed so far, line ends counted */
 
     bool have_header;
     bool stop;          /* nothing more can be read sensibly (bad header, too many rows) */
@@ -550,6 +554,14 @@ static void feed_line(reader *r, const char *s, size_t len, bool *in_record)
         return;
     if (!clean)
         r->rec_bad = true;
+    if (!*in_record)
+        r->rec_bytes = 0;
+    r->rec_bytes += len + 1;
+    /* libcsv grows its field buffer by a fixed block (128 bytes unless told otherwise), which
+     * makes a long field cost quadratic time in copies wherever realloc cannot grow in place.
+     * A block as large as the record so far, and this whole line, makes the growth geometric:
+     * one copy per line at most, and a linear total. */
+    csv_set_blk_size(&r->csv, r->rec_bytes > FIELD_BLOCK_MIN ? r->rec_bytes : FIELD_BLOCK_MIN);
     r->rec_ended = false;
     size_t done = csv_parse(&r->csv, s, len, on_field, on_record, r);
     if (done == len)
@@ -627,15 +639,16 @@ static void check_group(reader *r, row *rows, size_t n)
     if (!n)
         return;
     long ycol = r->col[COL_YEAR] + 1, ccol = r->col[COL_COUNT] + 1;
-    for (size_t i = 1; i < n; i++) {
-        if (rows[i].year != rows[i - 1].year)
+    /* run = the first row of the current run of equal years, kept as the loop goes so that a
+     * file of many rows of one year takes linear time, not quadratic. */
+    for (size_t i = 1, run = 0; i < n; i++) {
+        if (rows[i].year != rows[i - 1].year) {
+            run = i;
             continue;
-        size_t j = i - 1;
-        while (j > 0 && rows[j - 1].year == rows[i].year)
-            j--;
+        }
         report(r, TF_ERR_INVALID, rows[i].line, ycol, "keep one row per year and population",
                "year %d appears twice%s%s (first on line %ld)", rows[i].year, *rows[i].label ? " for " : "",
-               *rows[i].label ? who(buf, sizeof buf, rows[i].label) : "", rows[j].line);
+               *rows[i].label ? who(buf, sizeof buf, rows[i].label) : "", rows[run].line);
         bad = true;
     }
     long span = (long)rows[n - 1].year - rows[0].year + 1;

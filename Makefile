@@ -96,6 +96,12 @@ bench: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit $(BENCH_BIN)
 	$(Q)for b in $(BENCH_BIN); do $$b || exit 1; done
 
+# The long statistical checks: parameter coverage over more simulated surveys, then
+# simulation-based calibration of the sampler (tests/ref/test_fit_recovery.py).
+validate: deps
+	$(Q)$(MAKE) --no-print-directory tallyfit
+	$(Q)TALLYFIT=$(CURDIR)/tallyfit TF_VALIDATE=1 /usr/bin/python3 tests/ref/test_fit_recovery.py
+
 # The README's first command: install what is missing, build, run the main job on a demo survey.
 demo: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit
@@ -103,11 +109,15 @@ demo: deps
 
 DEMO_CMD ?= check
 
-install: tallyfit
+# The manual page is made from the binary's own --help texts (tools/make-man).
+$(BUILD)/tallyfit.1: $(BIN) tools/make-man
+	$(Q)tools/make-man ./$(BIN) > $@.tmp && mv $@.tmp $@
+
+install: $(BIN) $(BUILD)/tallyfit.1
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/tallyfit/models $(DESTDIR)$(PREFIX)/share/man/man1
-	install -m 755 tallyfit $(DESTDIR)$(PREFIX)/bin/tallyfit
+	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/tallyfit
 	install -m 644 models/*.ini $(DESTDIR)$(PREFIX)/share/tallyfit/models/
-	install -m 644 man/tallyfit.1 $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1
+	install -m 644 $(BUILD)/tallyfit.1 $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1
 
 uninstall:
 	rm -f $(DESTDIR)$(PREFIX)/bin/tallyfit $(DESTDIR)$(PREFIX)/share/man/man1/tallyfit.1

@@ -5,6 +5,7 @@ const tf_cmd tf_cmd_table[] = {
     {"check", "validate a survey file and print a per-population overview", tf_cmd_check},
     {"simulate", "draw a survey from a population model with given parameters", tf_cmd_simulate},
     {"likelihood", "estimate the log-likelihood of a survey at given parameters", tf_cmd_likelihood},
+    {"fit", "fit a population model to each population of a survey by particle MCMC", tf_cmd_fit},
     {"forecast", "project a population forward: quasi-extinction risk and chance of decline", tf_cmd_forecast},
     {NULL, NULL, NULL},
 };

@@ -1,0 +1,706 @@
+/* `tallyfit fit`: fits one state-space model to each population of a survey by particle MCMC and
+ * writes the draws and their summaries as CSV files. */
+#define _GNU_SOURCE
+#include <getopt.h>
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/ioctl.h>
+#include <unistd.h>
+
+#include "cmd/args.h"
+#include "cmd/cmd.h"
+#include "cmd/setup.h"
+#include "export/atomic.h"
+#include "export/csv_out.h"
+#include "export/table.h"
+#include "model/model.h"
+#include "model/prior.h"
+#include "sampler/fit.h"
+#include "sampler/pmmh.h"
+#include "sampler/posterior.h"
+#include "survey/survey.h"
+#include "util/error.h"
+
+#define CMD "fit"
+#define PROG "tallyfit " CMD
+/* Limits that only guard memory and time against typos. */
+#define MAX_ITER 10000000
+#define MAX_PARTICLES 10000000
+#define MAX_THREADS 256
+
+/* Set by the SIGINT / SIGTERM handler and polled by the chains. The one piece of global state:
+ * a signal handler has no other way to reach the running code (C11 7.14.1.1 allows it exactly
+ * this: writing a volatile sig_atomic_t). */
+static volatile sig_atomic_t interrupted;
+
+static void on_signal(int sig)
+{
+    (void)sig;
+    interrupted = 1;
+}
+
+static void help(FILE *out)
+{
+    char growth[256], obs[256];
+    tf_model_list_growth(growth, sizeof growth);
+    tf_model_list_obs(obs, sizeof obs);
+    tf_pmmh_options d = tf_pmmh_default_options();
+    fprintf(out,
+            "usage: tallyfit fit SURVEY.csv --model M [--obs O] [options]\n\n"
+            "Fits a state-space population model to the counts of each population in SURVEY.csv by\n"
+            "particle marginal Metropolis-Hastings and writes, per population and model:\n"
+            "  M+O-draws.csv       every kept draw: chain, iteration, the parameters, log-likelihood\n"
+            "  M+O-parameters.csv  per parameter: mean, sd, 2.5/50/97.5 %%, R-hat, bulk and tail ESS\n"
+            "  M+O-abundance.csv   per year: the count and the posterior of the true abundance\n"
+            "  M+O-trend.csv       average annual change over the survey period, with its interval\n"
+            "  M+O-sampler.csv     per chain: acceptance rate; the particle count and its spread\n"
+            "and prints a short summary.\n\n"
+            "options:\n"
+            "  --model M          growth model: %s\n"
+            "  --obs O            counting error: %s (default poisson)\n"
+            "  --population NAME  fit only this population (default: each one in the file)\n"
+            "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
+            "                     sub-directory per population when the file has several)\n"
+            "  --chains C         chains (default %zu)\n"
+            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
+            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
+            "  --seed S           random seed (default %llu); the same seed gives the same files\n"
+            "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
+            "                     estimate's sd is near its target)\n"
+            "  --correlated       correlated pseudo-marginal method (default: %s)\n"
+            "  --standard         standard pseudo-marginal method\n"
+            "  --priors FILE      a model file overriding some or all default priors\n"
+            "  --set x1_mean=V,x1_sd=V\n"
+            "                     prior of the first year's log-abundance (default: the log of the mean\n"
+            "                     of the first %d counts / effort, and 1)\n"
+            "  --threads T        threads running chains (default: the number of processors); the\n"
+            "                     results do not depend on it\n"
+            "  --quiet            no progress display and no summary\n"
+            "  -h, --help         show this help\n",
+            growth, obs, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, (unsigned long long)d.seed,
+            d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);
+}
+
+/* ---- progress display ---- */
+
+typedef struct {
+    const char *population;
+    const char *model;
+    double phase_t0;
+    size_t phase_done0;
+    tf_pmmh_phase phase;
+    int started;
+} progress_view;
+
+/* Columns of the terminal on stderr; 80 when unknown. */
+static size_t terminal_width(void)
+{
+    struct winsize ws;
+    if (ioctl(STDERR_FILENO, TIOCGWINSZ, &ws) == 0 && ws.ws_col > 0)
+        return ws.ws_col;
+    return 80;
+}
+
+/* One status line, rewritten in place: phase, bar, iterations, acceptance by chain, particles
+ * and time left (from the rate of the current phase). Cut to the terminal's width so that it
+ * never wraps, which would defeat the carriage return. */
+static void show_progress(void *ctx, const tf_pmmh_progress *p)
+{
+    progress_view *v = ctx;
+    size_t done = 0, total = p->total * p->n_chains;
+    for (size_t c = 0; c < p->n_chains; c++)
+        done += p->done[c];
+    if (!v->started || p->phase != v->phase) {
+        v->started = 1;
+        v->phase = p->phase;
+        v->phase_t0 = p->seconds;
+        v->phase_done0 = done;
+    }
+    static const char *const names[] = {"pilot", "tuning", "chains"};
+    char bar[21], line[512];
+    size_t filled = total ? 20 * done / total : 0;
+    for (size_t i = 0; i < 20; i++)
+        bar[i] = i < filled ? '#' : '.';
+    bar[20] = '\0';
+    size_t n = 0;
+#define ADD(...)                                                                   \
+    do {                                                                           \
+        int k_ = snprintf(line + n, sizeof line - n, __VA_ARGS__);                \
+        if (k_ > 0)                                                                \
+            n = n + (size_t)k_ < sizeof line ? n + (size_t)k_ : sizeof line - 1;   \
+    } while (0)
+    ADD("%s%s%s %-6s [%s] %zu/%zu", v->population, v->population[0] ? " " : "", v->model, names[p->phase], bar,
+        done, total);
+    if (p->phase == TF_PMMH_MAIN) {
+        ADD("  acc");
+        for (size_t c = 0; c < p->n_chains && c < 8; c++)
+            if (isnan(p->acceptance[c]))
+                ADD(" -");
+            else
+                ADD(" %.2f", p->acceptance[c]);
+        double rate = (double)(done - v->phase_done0) / (p->seconds - v->phase_t0 + 1e-9);
+        ADD("  N=%zu", p->n_particles);
+        if (done > v->phase_done0 && rate > 0)
+            ADD("  %.0f s left", (double)(total - done) / rate);
+    }
+#undef ADD
+    size_t width = terminal_width();
+    if (n >= width)
+        line[width - 1] = '\0';
+    fprintf(stderr, "\r%s\033[K", line);   /* ESC [ K clears the rest of the line */
+    fflush(stderr);
+}
+
+static void clear_progress(void)
+{
+    fputs("\r\033[K", stderr);
+    fflush(stderr);
+}
+
+/* ---- output tables ---- */
+
+static int add_col(tf_table *t, const char *header, const char *legend, tf_col_kind kind, tf_error *err)
+{
+    return tf_table_add_column(t, header, legend, kind, NULL, err) == TF_OK;
+}
+
+static tf_table *draws_table(const tf_fit *f, tf_error *err)
+{
+    tf_table *t = tf_table_new("draws", err);
+    if (!t)
+        return NULL;
+    size_t np = tf_fit_n_params(f);
+    int ok = add_col(t, "chain", "chain number, from 1", TF_COL_INTEGER, err) &&
+             add_col(t, "iteration", "kept iteration within the chain, from 1", TF_COL_INTEGER, err);
+    for (size_t p = 0; ok && p < np; p++)
+        ok = add_col(t, tf_fit_param_name(f, p), "parameter value (natural scale)", TF_COL_NUMBER, err);
+    ok = ok && add_col(t, "loglik", "log of the particle filter's likelihood estimate held with the draw",
+                       TF_COL_NUMBER, err);
+    double row[TF_MAX_PARAMS + 3];
+    for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++)
+        for (size_t i = 0; ok && i < tf_fit_n_iter(f); i++) {
+            row[0] = (double)(c + 1);
+            row[1] = (double)(i + 1);
+            memcpy(row + 2, tf_fit_draw(f, c, i), np * sizeof(double));
+            row[2 + np] = tf_fit_loglik(f, c, i);
+            ok = tf_table_add_row_numbers(t, row, np + 3, err) == TF_OK;
+        }
+    if (!ok) {
+        tf_table_free(t);
+        return NULL;
+    }
+    return t;
+}
+
+static tf_table *parameters_table(const tf_fit *f, const tf_prior_set *priors, tf_error *err)
+{
+    tf_table *t = tf_table_new("parameters", err);
+    if (!t)
+        return NULL;
+    int ok = add_col(t, "parameter", NULL, TF_COL_TEXT, err) &&
+             add_col(t, "mean", "posterior mean", TF_COL_NUMBER, err) &&
+             add_col(t, "sd", "posterior standard deviation", TF_COL_NUMBER, err) &&
+             add_col(t, "q2.5", "2.5 % posterior quantile", TF_COL_NUMBER, err) &&
+             add_col(t, "median", "posterior median", TF_COL_NUMBER, err) &&
+             add_col(t, "q97.5", "97.5 % posterior quantile", TF_COL_NUMBER, err) &&
+             add_col(t, "rhat", "rank-normalised split R-hat (want <= 1.01)", TF_COL_NUMBER, err) &&
+             add_col(t, "ess_bulk", "bulk effective sample size (want >= 400)", TF_COL_NUMBER, err) &&
+             add_col(t, "ess_tail", "tail effective sample size (want >= 400)", TF_COL_NUMBER, err) &&
+             add_col(t, "mcse_mean", "Monte Carlo standard error of the mean", TF_COL_NUMBER, err) &&
+             add_col(t, "prior", "the prior used", TF_COL_TEXT, err);
+    for (size_t p = 0; ok && p < tf_fit_n_params(f); p++) {
+        const tf_fit_param_summary *s = tf_fit_param(f, p);
+        double v[10] = {NAN, s->mean, s->sd, s->q025, s->q50, s->q975, s->rhat, s->ess_bulk, s->ess_tail,
+                        s->mcse_mean};
+        size_t row = tf_table_n_rows(t);
+        char prior[200];
+        tf_prior_describe(tf_prior_set_prior(priors, p), prior, sizeof prior);
+        ok = tf_table_add_row_numbers(t, v, 10, err) == TF_OK &&
+             tf_table_set_text(t, row, 0, tf_fit_param_name(f, p), err) == TF_OK &&
+             tf_table_set_text(t, row, 10, prior, err) == TF_OK;
+        if (ok && !(s->rhat <= TF_FIT_RHAT_MAX))
+            ok = tf_table_set_warning(t, row, 6, err) == TF_OK;
+        if (ok && !(s->ess_bulk >= TF_FIT_ESS_MIN))
+            ok = tf_table_set_warning(t, row, 7, err) == TF_OK;
+        if (ok && !(s->ess_tail >= TF_FIT_ESS_MIN))
+            ok = tf_table_set_warning(t, row, 8, err) == TF_OK;
+    }
+    if (!ok) {
+        tf_table_free(t);
+        return NULL;
+    }
+    return t;
+}
+
+static tf_table *abundance_table(const tf_fit *f, tf_error *err)
+{
+    tf_table *t = tf_table_new("abundance", err);
+    if (!t)
+        return NULL;
+    int ok = add_col(t, "year", NULL, TF_COL_YEAR, err) &&
+             add_col(t, "count", "observed count; empty when the year was not surveyed", TF_COL_NUMBER, err) &&
+             add_col(t, "effort", "survey effort; empty when the year was not surveyed", TF_COL_NUMBER, err) &&
+             add_col(t, "median", "posterior median of the true abundance per unit effort", TF_COL_NUMBER, err) &&
+             add_col(t, "q25", "25 % posterior quantile", TF_COL_NUMBER, err) &&
+             add_col(t, "q75", "75 % posterior quantile", TF_COL_NUMBER, err) &&
+             add_col(t, "q2.5", "2.5 % posterior quantile", TF_COL_NUMBER, err) &&
+             add_col(t, "q97.5", "97.5 % posterior quantile", TF_COL_NUMBER, err);
+    for (size_t y = 0; ok && y < tf_fit_n_years(f); y++) {
+        const tf_fit_year_summary *s = tf_fit_year(f, y);
+        int surveyed = !isnan(s->count);
+        double v[8] = {s->year, s->count, surveyed ? s->effort : NAN, s->median, s->q25, s->q75, s->q025, s->q975};
+        ok = tf_table_add_row_numbers(t, v, 8, err) == TF_OK;
+    }
+    if (!ok) {
+        tf_table_free(t);
+        return NULL;
+    }
+    return t;
+}
+
+static tf_table *trend_table(const tf_fit *f, tf_error *err)
+{
+    tf_table *t = tf_table_new("trend", err);
+    if (!t)
+        return NULL;
+    const tf_fit_trend_summary *s = tf_fit_trend(f);
+    const tf_series *ser = tf_fit_series(f);
+    int first = tf_series_first_year(ser), last = first + (int)tf_series_n_years(ser) - 1;
+    int ok = add_col(t, "first_year", NULL, TF_COL_YEAR, err) && add_col(t, "last_year", NULL, TF_COL_YEAR, err) &&
+             add_col(t, "change_mean", "posterior mean of the average annual change, % per year", TF_COL_NUMBER, err) &&
+             add_col(t, "change_median", "posterior median, % per year", TF_COL_NUMBER, err) &&
+             add_col(t, "change_q2.5", "2.5 % posterior quantile, % per year", TF_COL_NUMBER, err) &&
+             add_col(t, "change_q97.5", "97.5 % posterior quantile, % per year", TF_COL_NUMBER, err) &&
+             add_col(t, "p_decline", "posterior probability that the abundance fell over the period",
+                     TF_COL_PROBABILITY, err) &&
+             add_col(t, "rhat", "R-hat of the change", TF_COL_NUMBER, err) &&
+             add_col(t, "ess_bulk", "bulk ESS of the change", TF_COL_NUMBER, err);
+    double v[9] = {first, last, s->mean, s->median, s->q025, s->q975, s->p_decline, s->rhat, s->ess_bulk};
+    ok = ok && tf_table_add_row_numbers(t, v, 9, err) == TF_OK;
+    if (!ok) {
+        tf_table_free(t);
+        return NULL;
+    }
+    return t;
+}
+
+static tf_table *sampler_table(const tf_fit *f, tf_error *err)
+{
+    tf_table *t = tf_table_new("sampler", err);
+    if (!t)
+        return NULL;
+    const tf_fit_settings *st = tf_fit_settings_of(f);
+    int ok = add_col(t, "chain", NULL, TF_COL_INTEGER, err) &&
+             add_col(t, "acceptance", "share of proposals accepted over the kept draws", TF_COL_PROBABILITY, err) &&
+             add_col(t, "invalid", "share of proposals with a zero prior or a non-finite likelihood estimate",
+                     TF_COL_PROBABILITY, err) &&
+             add_col(t, "warmup", "discarded iterations per chain", TF_COL_INTEGER, err) &&
+             add_col(t, "iterations", "kept iterations per chain", TF_COL_INTEGER, err) &&
+             add_col(t, "particles", "particles of the filter", TF_COL_INTEGER, err) &&
+             add_col(t, "loglik_sd", "measured sd of the log-likelihood estimate at the pilot centre "
+                     "(correlated method: of the log-ratio of two successive estimates)", TF_COL_NUMBER, err) &&
+             add_col(t, "method", "standard or correlated pseudo-marginal", TF_COL_TEXT, err) &&
+             add_col(t, "rho", "correlation of successive random numbers (correlated method)", TF_COL_NUMBER, err) &&
+             add_col(t, "seed", NULL, TF_COL_TEXT, err);
+    for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++) {
+        double v[9] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
+                       (double)tf_fit_n_iter(f), (double)st->n_particles, st->loglik_sd, NAN,
+                       st->correlated ? st->rho : NAN};
+        char seed[32];
+        snprintf(seed, sizeof seed, "%llu", (unsigned long long)st->seed);
+        size_t row = tf_table_n_rows(t);
+        ok = tf_table_add_row_numbers(t, v, 9, err) == TF_OK &&
+             tf_table_set_text(t, row, 7, st->correlated ? "correlated" : "standard", err) == TF_OK &&
+             tf_table_set_text(t, row, 9, seed, err) == TF_OK;
+    }
+    if (!ok) {
+        tf_table_free(t);
+        return NULL;
+    }
+    return t;
+}
+
+/* ---- one population ---- */
+
+typedef struct {
+    const tf_series *series;
+    tf_model *model;
+    tf_prior_set *priors;
+    tf_posterior *post;
+    tf_fit *fit;
+    char dir[4096];
+} job;
+
+static void job_clear(job *j)
+{
+    tf_fit_free(j->fit);
+    tf_posterior_free(j->post);
+    tf_prior_set_free(j->priors);
+    tf_model_free(j->model);
+    memset(j, 0, sizeof *j);
+}
+
+/* A population label as a directory name: letters, digits, '-', '_' and '.' kept, anything else
+ * made '_' (a leading '.' too, so that no label names a hidden or parent directory). */
+static void safe_name(const char *label, char *out, size_t size)
+{
+    size_t k = 0;
+    for (const char *p = label; *p && k + 1 < size; p++) {
+        unsigned char c = (unsigned char)*p;
+        int keep = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' ||
+                   c == '_' || (c == '.' && k > 0);
+        out[k++] = keep ? (char)c : '_';
+    }
+    if (k == 0 && size > 1)
+        out[k++] = '_';
+    out[k] = '\0';
+}
+
+/* The survey's file name without directories and without a final ".csv". */
+static void survey_name(const char *path, char *out, size_t size)
+{
+    if (!strcmp(path, "-")) {
+        snprintf(out, size, "stdin");
+        return;
+    }
+    const char *base = strrchr(path, '/');
+    base = base ? base + 1 : path;
+    snprintf(out, size, "%s", base);
+    size_t n = strlen(out);
+    if (n > 4 && !strcasecmp(out + n - 4, ".csv"))
+        out[n - 4] = '\0';
+    if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
+        snprintf(out, size, "survey");
+}
+
+#define N_TABLES 5
+
+/* Writes the tables of every population as one group (tf_atomic_commit_all): either every file
+ * is replaced or none is, and directories this call made are taken away again on failure. */
+static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
+{
+    size_t n_files = n_jobs * N_TABLES, n_open = 0;
+    tf_atomic **files = calloc(n_files, sizeof *files);
+    size_t *created = calloc(n_jobs, sizeof *created);
+    tf_status st = files && created ? TF_OK
+                                    : tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
+        const job *j = &jobs[i];
+        tf_table *tables[N_TABLES] = {draws_table(j->fit, err), parameters_table(j->fit, j->priors, err),
+                                      abundance_table(j->fit, err), trend_table(j->fit, err),
+                                      sampler_table(j->fit, err)};
+        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++)
+            if (!tables[k])
+                st = tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
+        if (st == TF_OK)
+            st = tf_atomic_mkdirs(j->dir, &created[i], err);
+        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
+            char path[4600];
+            int n = snprintf(path, sizeof path, "%s/%s-%s.csv", j->dir, tf_model_name(j->model),
+                             tf_table_name(tables[k]));
+            if (n < 0 || (size_t)n >= sizeof path) {
+                st = tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "choose a shorter -o directory",
+                                  "the output path is too long");
+                break;
+            }
+            if ((st = tf_atomic_open(path, survey_path, &files[n_open], err)) != TF_OK)
+                break;
+            n_open++;
+            st = tf_csv_write_stream(tables[k], tf_atomic_stream(files[n_open - 1]), path, err);
+        }
+        for (size_t k = 0; k < N_TABLES; k++)
+            tf_table_free(tables[k]);
+    }
+    if (st == TF_OK) {
+        st = tf_atomic_commit_all(files, n_open, err);
+    } else {
+        for (size_t k = 0; k < n_open; k++)
+            tf_atomic_abort(files[k]);
+    }
+    if (st != TF_OK && created)
+        for (size_t i = n_jobs; i-- > 0;)
+            tf_atomic_rmdirs(jobs[i].dir, created[i]);
+    free(files);
+    free(created);
+    return st;
+}
+
+static void print_summary(const job *j, FILE *out)
+{
+    const tf_fit *f = j->fit;
+    const tf_fit_settings *st = tf_fit_settings_of(f);
+    const char *label = tf_series_label(j->series);
+    fprintf(out, "%s%s%s: %zu chains x %zu draws (after %zu warm-up), %zu particles, %s method, "
+                 "log-likelihood sd %.2f, %.1f s\n",
+            label, label[0] ? " " : "", tf_model_name(j->model), tf_fit_n_chains(f), tf_fit_n_iter(f),
+            st->n_warmup, st->n_particles, st->correlated ? "correlated" : "standard", st->loglik_sd, st->seconds);
+    fprintf(out, "  %-10s %11s %11s %11s %11s %11s %7s %8s %8s\n", "parameter", "mean", "sd", "2.5%", "median",
+            "97.5%", "R-hat", "ESS-bulk", "ESS-tail");
+    for (size_t p = 0; p < tf_fit_n_params(f); p++) {
+        const tf_fit_param_summary *s = tf_fit_param(f, p);
+        fprintf(out, "  %-10s %11.4g %11.4g %11.4g %11.4g %11.4g %7.3f %8.0f %8.0f\n", tf_fit_param_name(f, p),
+                s->mean, s->sd, s->q025, s->q50, s->q975, s->rhat, s->ess_bulk, s->ess_tail);
+    }
+    const tf_fit_year_summary *last = tf_fit_year(f, tf_fit_n_years(f) - 1);
+    fprintf(out, "  abundance in %d: median %.4g (95%% interval %.4g to %.4g) per unit effort\n", last->year,
+            last->median, last->q025, last->q975);
+    const tf_fit_trend_summary *tr = tf_fit_trend(f);
+    if (!isnan(tr->median))
+        fprintf(out, "  average change %d-%d: %+.2f%% per year (95%% interval %+.2f%% to %+.2f%%), "
+                     "P(decline) = %.3f\n",
+                tf_fit_year(f, 0)->year, last->year, tr->median, tr->q025, tr->q975, tr->p_decline);
+    fputs("  acceptance by chain:", out);
+    for (size_t c = 0; c < tf_fit_n_chains(f); c++)
+        fprintf(out, " %.3f", tf_fit_acceptance(f, c));
+    fputc('\n', out);
+}
+
+/* Plain warnings for draws that should not be trusted yet. */
+static void print_warnings(const job *j)
+{
+    const tf_fit *f = j->fit;
+    const char *label = tf_series_label(j->series);
+    for (size_t p = 0; p < tf_fit_n_params(f); p++) {
+        const tf_fit_param_summary *s = tf_fit_param(f, p);
+        if (!(s->rhat <= TF_FIT_RHAT_MAX) || !(s->ess_bulk >= TF_FIT_ESS_MIN) || !(s->ess_tail >= TF_FIT_ESS_MIN))
+            fprintf(stderr,
+                    PROG ": warning: %s%s%s, %s: R-hat %.3f, bulk ESS %.0f, tail ESS %.0f; the chains may not have "
+                         "converged (want R-hat <= %.2f and ESS >= %.0f)\n"
+                         "  hint: run longer (--iterations, --warmup) or with more particles\n",
+                    label, label[0] ? " " : "", tf_model_name(j->model), tf_fit_param_name(f, p), s->rhat,
+                    s->ess_bulk, s->ess_tail, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
+    }
+    const tf_fit_settings *st = tf_fit_settings_of(f);
+    if (!isfinite(st->loglik_sd))
+        fprintf(stderr, PROG ": warning: %s: the likelihood estimate was not always finite at the pilot centre\n",
+                tf_model_name(j->model));
+}
+
+static int exit_for(tf_status st)
+{
+    switch (st) {
+    case TF_OK: return TF_EXIT_OK;
+    case TF_ERR_USAGE: return TF_EXIT_USAGE;
+    case TF_ERR_INTERRUPTED: return TF_EXIT_INTERRUPTED;
+    default: return TF_EXIT_FAIL;
+    }
+}
+
+int tf_cmd_fit(int argc, char **argv)
+{
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_ITER, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN };
+    static const struct option longopts[] = {
+        {"model", required_argument, NULL, OPT_MODEL},
+        {"obs", required_argument, NULL, OPT_OBS},
+        {"population", required_argument, NULL, OPT_POP},
+        {"output", required_argument, NULL, 'o'},
+        {"chains", required_argument, NULL, OPT_CHAINS},
+        {"iterations", required_argument, NULL, OPT_ITER},
+        {"thin", required_argument, NULL, OPT_THIN},
+        {"warmup", required_argument, NULL, OPT_WARMUP},
+        {"seed", required_argument, NULL, OPT_SEED},
+        {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"correlated", no_argument, NULL, OPT_CORR},
+        {"standard", no_argument, NULL, OPT_STD},
+        {"priors", required_argument, NULL, OPT_PRIORS},
+        {"set", required_argument, NULL, OPT_SET},
+        {"threads", required_argument, NULL, OPT_THREADS},
+        {"quiet", no_argument, NULL, OPT_QUIET},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0},
+    };
+    tf_error err;
+    tf_error_init(&err);
+    const char *growth = NULL, *obs = "poisson", *population = NULL, *out_dir = NULL, *priors_path = NULL;
+    tf_arg_pairs set;
+    tf_args_pairs_init(&set);
+    tf_pmmh_options opt = tf_pmmh_default_options();
+    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
+    opt.n_threads = n_cpu > 0 ? (size_t)n_cpu : 1;
+    int quiet = 0;
+    size_t iterations = opt.n_iter * opt.thin;
+
+    opterr = 0;
+    optind = 0;
+    int c;
+    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+        switch (c) {
+        case OPT_MODEL: growth = optarg; break;
+        case OPT_OBS: obs = optarg; break;
+        case OPT_POP: population = optarg; break;
+        case 'o': out_dir = optarg; break;
+        case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.n_chains, &err); break;
+        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
+        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.thin, &err); break;
+        case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.n_warmup, &err); break;
+        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
+        case OPT_PARTICLES:
+            tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &opt.n_particles, &err);
+            break;
+        case OPT_CORR: opt.correlated = 1; break;
+        case OPT_STD: opt.correlated = 0; break;
+        case OPT_PRIORS: priors_path = optarg; break;
+        case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
+        case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
+        case OPT_QUIET: quiet = 1; break;
+        case 'h': help(stdout); return TF_EXIT_OK;
+        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
+        }
+    }
+    const char *path = NULL;
+    if (optind < argc)
+        path = argv[optind++];
+    if (optind < argc)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    if (!path)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit fit --help' for the usage", "no survey file given");
+    opt.n_iter = iterations / opt.thin;
+    if (opt.n_iter < 1)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.thin);
+    if (!growth)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
+    for (size_t i = 0; i < set.n; i++)
+        if (strcmp(set.items[i].name, TF_ARGS_X1_MEAN) && strcmp(set.items[i].name, TF_ARGS_X1_SD))
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give priors of the model's parameters with --priors FILE",
+                         "--set: fit takes only %s and %s, not %s", TF_ARGS_X1_MEAN, TF_ARGS_X1_SD,
+                         set.items[i].name);
+    if (tf_error_status(&err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_USAGE;
+    }
+
+    /* Fail on a mistyped model name before reading a large file. */
+    tf_model *probe = NULL;
+    if (tf_model_new(growth, obs, &probe, &err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_USAGE;
+    }
+    tf_model_free(probe);
+
+    int status = TF_EXIT_FAIL;
+    tf_survey *sv = NULL;
+    job *jobs = NULL;
+    size_t n_jobs = 0;
+    struct sigaction sa, old_int, old_term;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    interrupted = 0;
+    sigaction(SIGINT, &sa, &old_int);
+    sigaction(SIGTERM, &sa, &old_term);
+
+    if (tf_args_read_survey(path, &sv, &err) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
+    size_t n_series = tf_survey_n_series(sv);
+    const tf_series *only = NULL;
+    if (population && !(only = tf_args_pick_series(sv, population, path, &err))) {
+        status = TF_EXIT_USAGE;
+        goto out;
+    }
+    n_jobs = only ? 1 : n_series;
+    jobs = calloc(n_jobs, sizeof *jobs);
+    if (!jobs) {
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+        goto out;
+    }
+    char base[256];
+    survey_name(path, base, sizeof base);
+
+    /* Set every population up before the first long run, so that a bad count in the last
+     * population is reported at once. */
+    for (size_t i = 0; i < n_jobs; i++) {
+        job *j = &jobs[i];
+        j->series = only ? only : tf_survey_series(sv, i);
+        const char *label = tf_series_label(j->series);
+        if (tf_model_new(growth, obs, &j->model, &err) != TF_OK)
+            goto out;
+        if (tf_setup_check_counts(j->model, j->series, path, &err) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+        double theta[TF_MAX_PARAMS];
+        if (tf_model_initial_from_series(j->model, j->series, &err) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+        if (tf_args_bind_model(j->model, &set, 0, theta, NULL, &err) != TF_OK) {
+            status = TF_EXIT_USAGE;
+            goto out;
+        }
+        if (tf_setup_priors(j->model, j->series, priors_path, &j->priors, &err) != TF_OK ||
+            tf_posterior_new(j->model, j->priors, &j->post, &err) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+        char sub[256];
+        safe_name(label, sub, sizeof sub);
+        int several = n_series > 1;
+        int n = out_dir ? snprintf(j->dir, sizeof j->dir, several ? "%s/%s" : "%s", out_dir, sub)
+                        : snprintf(j->dir, sizeof j->dir, several ? "output/%s/%s" : "output/%s", base, sub);
+        if (n < 0 || (size_t)n >= sizeof j->dir) {
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o directory", "the output path is too long");
+            status = TF_EXIT_USAGE;
+            goto out;
+        }
+    }
+
+    int show = !quiet && isatty(STDERR_FILENO);
+    for (size_t i = 0; i < n_jobs; i++) {
+        job *j = &jobs[i];
+        progress_view view = {.population = tf_series_label(j->series), .model = tf_model_name(j->model)};
+        tf_status st = tf_pmmh_run(j->post, j->series, &opt, &interrupted, show ? show_progress : NULL, &view,
+                                   &j->fit, &err);
+        if (show)
+            clear_progress();
+        if (st != TF_OK) {
+            status = exit_for(st);
+            goto out;
+        }
+    }
+
+    /* Every fit is done: write them all as one group. Signals wait until that is over, so that
+     * a late Ctrl-C cannot stop the group half-way through its renames. */
+    sigset_t block, old_mask;
+    sigemptyset(&block);
+    sigaddset(&block, SIGINT);
+    sigaddset(&block, SIGTERM);
+    sigprocmask(SIG_BLOCK, &block, &old_mask);
+    tf_status wst = write_all(jobs, n_jobs, path, &err);
+    sigprocmask(SIG_SETMASK, &old_mask, NULL);
+    if (wst != TF_OK) {
+        status = exit_for(wst);
+        goto out;
+    }
+    for (size_t i = 0; i < n_jobs; i++) {
+        if (!quiet) {
+            print_summary(&jobs[i], stdout);
+            printf("  files: %s/%s-*.csv\n", jobs[i].dir, tf_model_name(jobs[i].model));
+        }
+        print_warnings(&jobs[i]);
+    }
+    if (fflush(stdout) != 0) {
+        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+        goto out;
+    }
+    status = TF_EXIT_OK;
+out:
+    sigaction(SIGINT, &old_int, NULL);
+    sigaction(SIGTERM, &old_term, NULL);
+    if (status == TF_EXIT_INTERRUPTED)
+        fputs(PROG ": interrupted; no files written\n", stderr);
+    else if (status != TF_EXIT_OK)
+        tf_error_print(&err, PROG, stderr);
+    for (size_t i = 0; i < n_jobs && jobs; i++)
+        job_clear(&jobs[i]);
+    free(jobs);
+    tf_survey_free(sv);
+    return status;
+}

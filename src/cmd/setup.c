@@ -1,0 +1,126 @@
+/* Series checks and prior sets for the fitting commands; see setup.h. */
+#include "cmd/setup.h"
+
+#include <math.h>
+#include <stdlib.h>
+
+#include <gsl/gsl_sort.h>
+#include <gsl/gsl_statistics_double.h>
+
+#include "model/model_file.h"
+
+tf_status tf_setup_check_counts(const tf_model *m, const tf_series *s, const char *path, tf_error *err)
+{
+    const tf_obs_type *o = tf_model_obs(m);
+    const double *y = tf_series_counts(s);
+    size_t n = tf_series_n_years(s);
+    int year0 = tf_series_first_year(s);
+    if (o->needs_integer) {
+        size_t i = tf_series_first_fractional(s);
+        if (i < n)
+            return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
+                                "use --obs lognormal for indices that are not whole counts",
+                                "count %g in year %d is not a whole number, which the %s model needs",
+                                y[i], year0 + (int)i, o->name);
+    }
+    if (o->needs_positive)
+        for (size_t i = 0; i < n; i++)
+            if (y[i] == 0)
+                return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
+                                    "use a count model such as poisson or negbin, which allow zero counts",
+                                    "count 0 in year %d is impossible under the %s model",
+                                    year0 + (int)i, o->name);
+    return TF_OK;
+}
+
+double tf_setup_survey_median(const tf_series *s)
+{
+    size_t n = tf_series_n_years(s), k = 0;
+    const double *y = tf_series_counts(s), *e = tf_series_effort(s);
+    double *r = malloc(n * sizeof *r);
+    if (!r)
+        return NAN;
+    for (size_t t = 0; t < n; t++)
+        if (!isnan(y[t]))
+            r[k++] = y[t] / e[t];
+    double med = NAN;
+    if (k) {
+        gsl_sort(r, 1, k);
+        med = gsl_stats_median_from_sorted_data(r, 1, k);
+    }
+    free(r);
+    return med;
+}
+
+/* Reads the model file at path, or the default file called name. */
+static tf_status read_file(const char *path, const char *name, tf_model_file **out, tf_error *err)
+{
+    return path ? tf_model_file_read(path, out, err) : tf_model_file_read_default(name, out, err);
+}
+
+tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *priors_path,
+                          tf_prior_set **out, tf_error *err)
+{
+    *out = NULL;
+    size_t n = tf_model_n_params(m);
+    const char *names[TF_MAX_PARAMS], *def_names[TF_MAX_PARAMS];
+    double lower[TF_MAX_PARAMS], upper[TF_MAX_PARAMS], def_lower[TF_MAX_PARAMS], def_upper[TF_MAX_PARAMS];
+    tf_model_file *user = NULL, *growth = NULL, *obs = NULL;
+    tf_prior_set *set = NULL, *defaults = NULL;
+    double median = tf_setup_survey_median(s);
+    tf_status st;
+    if (priors_path) {
+        if ((st = read_file(priors_path, NULL, &user, err)) != TF_OK)
+            goto out;
+        for (size_t i = 0; i < n; i++)
+            names[i] = tf_model_param_name(m, i);
+        /* A user's file naming a parameter the model lacks is a mistake worth stopping for. */
+        if ((st = tf_model_file_check_names(user, names, n, err)) != TF_OK)
+            goto out;
+    }
+    /* Each parameter takes its prior from one file: the user's when it has a section for it,
+     * else the defaults. So the defaults go into a set of only the remaining parameters, where
+     * their errors keep their file and line. */
+    size_t n_def = 0;
+    for (size_t i = 0; i < n; i++) {
+        names[i] = tf_model_param_name(m, i);
+        lower[i] = tf_model_param_lower(m, i);
+        upper[i] = tf_model_param_upper(m, i);
+        if (!user || !tf_model_file_has(user, names[i])) {
+            def_names[n_def] = names[i];
+            def_lower[n_def] = lower[i];
+            def_upper[n_def] = upper[i];
+            n_def++;
+        }
+    }
+    if ((st = tf_prior_set_new(n, names, lower, upper, &set, err)) != TF_OK)
+        goto out;
+    if (n_def) {
+        if ((st = tf_prior_set_new(n_def, def_names, def_lower, def_upper, &defaults, err)) != TF_OK ||
+            (st = read_file(NULL, tf_model_growth(m)->name, &growth, err)) != TF_OK ||
+            (st = tf_model_file_apply(growth, median, defaults, err)) != TF_OK)
+            goto out;
+        if (tf_model_obs(m)->n_params &&
+            ((st = read_file(NULL, "observation", &obs, err)) != TF_OK ||
+             (st = tf_model_file_apply(obs, median, defaults, err)) != TF_OK))
+            goto out;
+        for (size_t k = 0; k < n_def; k++) {
+            const tf_prior *p = tf_prior_set_prior(defaults, k);
+            if (p && (st = tf_prior_set_assign(set, def_names[k], p, err)) != TF_OK)
+                goto out;
+        }
+    }
+    if (user && (st = tf_model_file_apply(user, median, set, err)) != TF_OK)
+        goto out;
+    if ((st = tf_prior_set_check_complete(set, err)) != TF_OK)
+        goto out;
+    *out = set;
+    set = NULL;
+out:
+    tf_prior_set_free(set);
+    tf_prior_set_free(defaults);
+    tf_model_file_free(user);
+    tf_model_file_free(growth);
+    tf_model_file_free(obs);
+    return st;
+}

@@ -1,0 +1,28 @@
+/* What the commands that fit models share: checking that a series suits an observation model,
+ * and building a model's prior set from the model files (defaults scaled by the survey, then
+ * the user's --priors file). */
+#ifndef TF_SETUP_H
+#define TF_SETUP_H
+
+#include "model/model.h"
+#include "model/prior.h"
+#include "survey/series.h"
+#include "util/error.h"
+
+/* Counts the observation model of m cannot have: a fractional count for a count model, a zero
+ * for a model of positive values. TF_ERR_INVALID naming path and the count's input line. */
+tf_status tf_setup_check_counts(const tf_model *m, const tf_series *s, const char *path, tf_error *err);
+
+/* Median of count / effort over the surveyed years of s: the scale that survey-scaled priors
+ * ("meanlog = survey", model_file.h) are centred on. NAN when no year is surveyed. */
+double tf_setup_survey_median(const tf_series *s);
+
+/* Builds the priors of m for series s. Each parameter takes its prior from the file at
+ * priors_path when that file (may be NULL) has a section for it, else from the defaults: the
+ * growth model's file (<growth>.ini) and the counting-error file (observation.ini). The user's
+ * file may set any subset of the parameters, and only parameters of m. On success the caller
+ * frees *out with tf_prior_set_free. Errors carry the model file's path and line. */
+tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *priors_path,
+                          tf_prior_set **out, tf_error *err);
+
+#endif

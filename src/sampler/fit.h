@@ -1,0 +1,133 @@
+/* The result of fitting one model to one population by PMMH: the kept draws of every chain on
+ * the natural scale, the log-likelihood estimate and latent log-abundance path held with each
+ * draw, and the summaries computed from them (parameters with R-hat and effective sample sizes,
+ * abundance per year, average annual change). Later stages (model comparison, projection,
+ * export) read it through these accessors only. */
+#ifndef TF_FIT_H
+#define TF_FIT_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "model/model.h"
+#include "sampler/posterior.h"
+#include "survey/series.h"
+#include "util/error.h"
+
+typedef struct tf_fit tf_fit;
+
+/* The most chains one fit holds. */
+#define TF_FIT_MAX_CHAINS 64
+
+/* Thresholds of the convergence warning: R-hat above 1.01 or bulk/tail ESS below 400
+ * (Vehtari, Gelman, Simpson, Carpenter & Buerkner 2021, Bayesian Analysis 16:667, section 4). */
+#define TF_FIT_RHAT_MAX 1.01
+#define TF_FIT_ESS_MIN 400.0
+
+/* Summary of one parameter over all kept draws of all chains. */
+typedef struct {
+    double mean, sd;
+    double q025, q50, q975;   /* 2.5 %, 50 %, 97.5 % quantiles */
+    double rhat;              /* rank-normalised split R-hat */
+    double ess_bulk, ess_tail;
+    double mcse_mean;         /* Monte Carlo standard error of the mean: sd / sqrt(ESS of the
+                               * draws themselves), diagnostics.h */
+} tf_fit_param_summary;
+
+/* Posterior of the true abundance N = exp(x) in one year of the series (surveyed or not). */
+typedef struct {
+    int year;
+    double count;             /* NAN when the year was not surveyed */
+    double effort;
+    double median, q25, q75, q025, q975;
+} tf_fit_year_summary;
+
+/* Average annual change over the series, per draw 100 (exp((x_last - x_first)/(n_years - 1)) - 1)
+ * percent per year from the latent path. */
+typedef struct {
+    double mean, median, q025, q975;
+    double p_decline;         /* share of draws with a negative change */
+    double rhat, ess_bulk;
+} tf_fit_trend_summary;
+
+/* ---- Building (the sampler does this) ---- */
+
+/* An empty result for n_chains chains (1 .. TF_FIT_MAX_CHAINS) of n_iter kept draws each, for
+ * model m and series s (borrowed: they must outlive the result). NULL when out of memory or a
+ * size is out of range. */
+tf_fit *tf_fit_alloc(const tf_model *m, const tf_series *s, size_t n_chains, size_t n_iter);
+void tf_fit_free(tf_fit *f);   /* accepts NULL */
+
+/* Stores draw iter of chain: theta (n_params values, natural scale), its log-likelihood
+ * estimate and its latent path (n_years log-abundances; NULL leaves the path as NAN). Copies. */
+void tf_fit_record(tf_fit *f, size_t chain, size_t iter, const double *theta, double loglik,
+                   const double *path);
+
+/* Per-chain sampler facts: acceptance rate over the kept draws and the share of proposals
+ * rejected because the likelihood estimate was not finite. */
+void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double invalid);
+
+/* How the draws were made: warm-up length, thinning, particle count, the measured spread of the
+ * log-likelihood estimator at that count (root mean square of its SD over the tuning points,
+ * tune.h; for the correlated method the SD of the log-ratio of successive estimates), method,
+ * seed, and wall-clock seconds. */
+typedef struct {
+    size_t n_warmup;
+    size_t thin;              /* iterations per kept draw */
+    size_t n_particles;
+    double loglik_sd;
+    int correlated;
+    double rho;
+    uint64_t seed;
+    double seconds;
+} tf_fit_settings;
+void tf_fit_set_settings(tf_fit *f, const tf_fit_settings *st);
+
+/* The posterior (model, priors, transforms) the draws come from; borrowed, it must outlive the
+ * result. tf_pmmh_run sets it; NULL until set. */
+void tf_fit_set_posterior(tf_fit *f, const tf_posterior *post);
+
+/* Computes every summary from the recorded draws. Call once, after the last tf_fit_record.
+ * Errors: TF_ERR_NOMEM (the result keeps its draws; summaries stay unset). */
+tf_status tf_fit_summarise(tf_fit *f, tf_error *err);
+
+/* ---- Reading ---- */
+
+const tf_model *tf_fit_model(const tf_fit *f);
+const tf_series *tf_fit_series(const tf_fit *f);
+const tf_posterior *tf_fit_posterior(const tf_fit *f);   /* priors: tf_posterior_priors */
+const tf_fit_settings *tf_fit_settings_of(const tf_fit *f);
+size_t tf_fit_n_chains(const tf_fit *f);
+size_t tf_fit_n_iter(const tf_fit *f);        /* kept draws per chain */
+size_t tf_fit_n_draws(const tf_fit *f);       /* n_chains * n_iter */
+size_t tf_fit_n_params(const tf_fit *f);
+size_t tf_fit_n_years(const tf_fit *f);
+const char *tf_fit_param_name(const tf_fit *f, size_t param);
+
+/* Draw iter of chain: n_params values in model order (natural scale). Borrowed. */
+const double *tf_fit_draw(const tf_fit *f, size_t chain, size_t iter);
+double tf_fit_loglik(const tf_fit *f, size_t chain, size_t iter);
+/* Latent log-abundance path held with that draw: n_years values. Borrowed. */
+const double *tf_fit_path(const tf_fit *f, size_t chain, size_t iter);
+
+/* The same as whole blocks, draw k = chain * n_iter + iter (chain-major): draws is
+ * n_draws x n_params row-major (the layout tf_project_input takes), logliks n_draws values,
+ * paths n_draws x n_years row-major. Borrowed. */
+const double *tf_fit_draws(const tf_fit *f);
+const double *tf_fit_logliks(const tf_fit *f);
+const double *tf_fit_paths(const tf_fit *f);
+/* Copies the latent log-abundance of year year_index of every draw into out (n_draws values),
+ * e.g. the last year's as the start of projections. */
+void tf_fit_year_draws(const tf_fit *f, size_t year_index, double *out);
+
+double tf_fit_acceptance(const tf_fit *f, size_t chain);
+double tf_fit_invalid_share(const tf_fit *f, size_t chain);
+
+/* Summaries; valid after tf_fit_summarise. Borrowed. */
+const tf_fit_param_summary *tf_fit_param(const tf_fit *f, size_t param);
+const tf_fit_year_summary *tf_fit_year(const tf_fit *f, size_t year_index);
+const tf_fit_trend_summary *tf_fit_trend(const tf_fit *f);
+/* 1 when every parameter has R-hat <= TF_FIT_RHAT_MAX and bulk and tail ESS >= TF_FIT_ESS_MIN. */
+int tf_fit_converged(const tf_fit *f);
+
+#endif

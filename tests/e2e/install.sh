@@ -1,0 +1,28 @@
+#!/usr/bin/env bash
+# `make install PREFIX=...` puts the binary, the model files and the manual page in place, and the
+# installed binary finds its model files from there (../share/tallyfit/models beside bin/).
+set -euo pipefail
+cd "$(dirname "$0")/../.."
+[ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ] && { echo "install.sh: skipped under sanitizers (nothing new to learn)"; exit 0; }
+tmp=$(mktemp -d); trap 'rm -rf "$tmp"' EXIT
+make -s --no-print-directory install PREFIX="$tmp/usr" >"$tmp/log" 2>&1 || { cat "$tmp/log"; exit 1; }
+fail() { echo "install.sh: $*"; exit 1; }
+[ -x "$tmp/usr/bin/tallyfit" ] || fail "no binary"
+for m in exponential ricker gompertz theta-logistic observation; do
+  [ -f "$tmp/usr/share/tallyfit/models/$m.ini" ] || fail "model file $m.ini missing"
+done
+page=$tmp/usr/share/man/man1/tallyfit.1
+[ -s "$page" ] || fail "no manual page"
+# Every command of `tallyfit --help` has its own section in the page.
+for c in $("$tmp/usr/bin/tallyfit" --help | awk '/^commands:/{on=1; next} on && NF {print $1}'); do
+  grep -q "^\.SS $c\$" "$page" || fail "manual page lacks command $c"
+done
+if command -v groff >/dev/null; then
+  warn=$(groff -man -Tutf8 -ww -z "$page" 2>&1) || fail "groff failed"
+  [ -z "$warn" ] || fail "groff warnings: $warn"
+fi
+# The installed binary, run from elsewhere, finds the installed model files.
+cp surveys/heron-colony.csv "$tmp/s.csv"
+(cd "$tmp" && env -u TALLYFIT_MODELS "$tmp/usr/bin/tallyfit" fit s.csv --model exponential --iterations 200 --warmup 200 --chains 2 --quiet -o "$tmp/out" 2>/dev/null) \
+  || fail "installed binary could not fit (model files not found?)"
+echo "install.sh: binary, model files and manual page installed and usable"

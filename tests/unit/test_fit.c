@@ -1,0 +1,313 @@
+/* Unit tests for the fit result (stored draws and their summaries) and for the posterior's
+ * prior side on the unconstrained scale (transforms with their Jacobians). */
+#include "tf_test.h"
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "model/model.h"
+#include "model/prior.h"
+#include "sampler/fit.h"
+#include "sampler/posterior.h"
+#include "survey/series.h"
+#include "util/rng.h"
+
+static tf_model *make_model(const char *g, const char *o)
+{
+    tf_model *m = NULL;
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_new(g, o, &m, &err), TF_OK);
+    return m;
+}
+
+/* Sample quantile by linear interpolation between order statistics, Hyndman & Fan (1996, The
+ * American Statistician 50:361) definition 7: h = (n - 1) p, x[floor h] + (h - floor h) (x[floor
+ * h + 1] - x[floor h]) of the sorted sample. */
+static int cmp(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+static double quantile7(const double *v, size_t n, double p)
+{
+    double *s = malloc(n * sizeof *s);
+    memcpy(s, v, n * sizeof *s);
+    qsort(s, n, sizeof *s, cmp);
+    double h = (double)(n - 1) * p;
+    size_t lo = (size_t)floor(h);
+    double q = lo + 1 < n ? s[lo] + (h - (double)lo) * (s[lo + 1] - s[lo]) : s[lo];
+    free(s);
+    return q;
+}
+
+#define CH 2
+#define IT 8
+#define YR 4
+
+START_TEST(summaries_of_known_draws)
+{
+    tf_model *m = make_model("gompertz", "poisson");
+    double y[YR] = {10, 12, NAN, 9}, e[YR] = {1, 2, 1, 1};
+    tf_error err;
+    tf_error_init(&err);
+    tf_series *s = tf_series_new("a", 1990, YR, y, e, NULL, &err);
+    ck_assert_ptr_nonnull(s);
+    tf_fit *f = tf_fit_alloc(m, s, CH, IT);
+    ck_assert_ptr_nonnull(f);
+    double all[3][CH * IT], paths[CH * IT][YR], trend[CH * IT];
+    size_t n_decline = 0;
+    for (size_t c = 0; c < CH; c++)
+        for (size_t i = 0; i < IT; i++) {
+            size_t k = c * IT + i;
+            double theta[3] = {0.1 + 0.01 * (double)((k * 7) % 16), 100.0 + (double)((k * 5) % 16), 0.2 + 0.001 * (double)k};
+            double path[YR];
+            for (size_t t = 0; t < YR; t++)
+                path[t] = 2.0 + 0.05 * (double)t * ((k % 3) ? 1.0 : -1.0) + 0.01 * (double)k;
+            tf_fit_record(f, c, i, theta, -10.0 - (double)k, path);
+            for (int p = 0; p < 3; p++)
+                all[p][k] = theta[p];
+            memcpy(paths[k], path, sizeof path);
+            double slope = (path[YR - 1] - path[0]) / (YR - 1);
+            trend[k] = 100.0 * (exp(slope) - 1.0);
+            n_decline += slope < 0;
+        }
+    tf_fit_set_chain_stats(f, 1, 0.25, 0.01);
+    tf_fit_settings st = {.n_warmup = 10, .thin = 1, .n_particles = 50, .loglik_sd = 1.1, .seed = 9};
+    tf_fit_set_settings(f, &st);
+    ck_assert(!tf_fit_converged(f));   /* not summarised yet */
+    ck_assert_int_eq(tf_fit_summarise(f, &err), TF_OK);
+
+    ck_assert_uint_eq(tf_fit_n_draws(f), CH * IT);
+    ck_assert_uint_eq(tf_fit_n_params(f), 3);
+    ck_assert_uint_eq(tf_fit_n_years(f), YR);
+    ck_assert_str_eq(tf_fit_param_name(f, 1), "K");
+    ck_assert(tf_fit_loglik(f, 1, 2) == -10.0 - (double)(IT + 2));
+    ck_assert(tf_fit_draw(f, 1, 3)[0] == all[0][IT + 3]);
+    ck_assert(tf_fit_draws(f)[(IT + 3) * 3 + 2] == all[2][IT + 3]);
+    ck_assert(tf_fit_path(f, 0, 5)[2] == paths[5][2]);
+    ck_assert(tf_fit_acceptance(f, 1) == 0.25 && tf_fit_invalid_share(f, 1) == 0.01);
+    ck_assert_uint_eq(tf_fit_settings_of(f)->n_particles, 50);
+
+    const double tol = 1e-12;
+    for (int p = 0; p < 3; p++) {
+        const tf_fit_param_summary *ps = tf_fit_param(f, p);
+        double mean = 0, ss = 0;
+        for (size_t k = 0; k < CH * IT; k++)
+            mean += all[p][k] / (CH * IT);
+        for (size_t k = 0; k < CH * IT; k++)
+            ss += (all[p][k] - mean) * (all[p][k] - mean);
+        ck_assert(fabs(ps->mean - mean) <= tol * fabs(mean));
+        ck_assert(fabs(ps->sd - sqrt(ss / (CH * IT - 1))) <= 1e-9);
+        ck_assert(fabs(ps->q025 - quantile7(all[p], CH * IT, 0.025)) <= tol * fabs(ps->q025));
+        ck_assert(fabs(ps->q50 - quantile7(all[p], CH * IT, 0.5)) <= tol * fabs(ps->q50));
+        ck_assert(fabs(ps->q975 - quantile7(all[p], CH * IT, 0.975)) <= tol * fabs(ps->q975));
+        ck_assert(isfinite(ps->rhat) && isfinite(ps->ess_bulk) && isfinite(ps->mcse_mean));
+    }
+    for (size_t t = 0; t < YR; t++) {
+        const tf_fit_year_summary *ys = tf_fit_year(f, t);
+        double col[CH * IT];
+        for (size_t k = 0; k < CH * IT; k++)
+            col[k] = exp(paths[k][t]);
+        ck_assert_int_eq(ys->year, 1990 + (int)t);
+        ck_assert(t == 2 ? isnan(ys->count) : ys->count == y[t]);
+        ck_assert(ys->effort == (t == 2 ? 1.0 : e[t]));
+        ck_assert(fabs(ys->median - quantile7(col, CH * IT, 0.5)) <= 1e-9 * ys->median);
+        ck_assert(fabs(ys->q25 - quantile7(col, CH * IT, 0.25)) <= 1e-9 * ys->q25);
+        ck_assert(fabs(ys->q975 - quantile7(col, CH * IT, 0.975)) <= 1e-9 * ys->q975);
+    }
+    const tf_fit_trend_summary *tr = tf_fit_trend(f);
+    ck_assert(fabs(tr->median - quantile7(trend, CH * IT, 0.5)) <= 1e-9);
+    ck_assert(fabs(tr->q025 - quantile7(trend, CH * IT, 0.025)) <= 1e-9);
+    ck_assert(fabs(tr->p_decline - (double)n_decline / (CH * IT)) <= 1e-15);
+    double x_last[CH * IT];
+    tf_fit_year_draws(f, YR - 1, x_last);
+    ck_assert(x_last[7] == paths[7][YR - 1]);
+    /* 16 draws in short chains are far from the thresholds. */
+    ck_assert(!tf_fit_converged(f));
+    tf_fit_free(f);
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
+/* R-hat and ESS (Vehtari et al. 2021) decide the convergence flag: four chains of independent
+ * normals pass; the same chains with one shifted by two sd fail on R-hat. */
+START_TEST(convergence_flag_follows_diagnostics)
+{
+    tf_model *m = make_model("exponential", "poisson");
+    double y[5] = {1, 2, 3, 4, 5};
+    tf_series *s = tf_series_new("b", 2000, 5, y, NULL, NULL, NULL);
+    size_t n = 2000;
+    for (int shifted = 0; shifted < 2; shifted++) {
+        tf_fit *f = tf_fit_alloc(m, s, 4, n);
+        tf_rng rng;
+        tf_rng_derive(&rng, 17, NULL, 0);
+        for (size_t c = 0; c < 4; c++)
+            for (size_t i = 0; i < n; i++) {
+                double theta[2] = {tf_rng_normal(&rng) + (shifted && c == 3 ? 2.0 : 0.0),
+                                   0.5 + 0.1 * tf_rng_normal(&rng)};
+                double path[5] = {1, 1, 1, 1, 1 + 0.1 * tf_rng_normal(&rng)};
+                tf_fit_record(f, c, i, theta, -1.0, path);
+            }
+        ck_assert_int_eq(tf_fit_summarise(f, NULL), TF_OK);
+        if (shifted) {
+            ck_assert(tf_fit_param(f, 0)->rhat > 1.1);
+            ck_assert(!tf_fit_converged(f));
+        } else {
+            ck_assert(tf_fit_param(f, 0)->rhat < TF_FIT_RHAT_MAX);
+            ck_assert(tf_fit_param(f, 0)->ess_bulk > TF_FIT_ESS_MIN);
+            ck_assert(tf_fit_converged(f));
+        }
+        tf_fit_free(f);
+    }
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
+START_TEST(fit_alloc_refuses_bad_sizes)
+{
+    tf_model *m = make_model("exponential", "poisson");
+    double y[5] = {1, 2, 3, 4, 5};
+    tf_series *s = tf_series_new("b", 2000, 5, y, NULL, NULL, NULL);
+    ck_assert_ptr_null(tf_fit_alloc(m, s, 0, 10));
+    ck_assert_ptr_null(tf_fit_alloc(m, s, 2, 0));
+    ck_assert_ptr_null(tf_fit_alloc(m, s, TF_FIT_MAX_CHAINS + 1, 10));
+    ck_assert_ptr_null(tf_fit_alloc(NULL, s, 2, 10));
+    ck_assert_ptr_null(tf_fit_alloc(m, s, 2, SIZE_MAX / 4));
+    tf_fit_free(NULL);
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
+/* ---- posterior.c ---- */
+
+static void assign(tf_prior_set *set, const char *name, tf_prior_kind kind, double a, double b, double lo, double hi)
+{
+    tf_prior p;
+    double par[3] = {a, b, 0};
+    ck_assert_int_eq(tf_prior_init(&p, kind, par, lo, hi, NULL), TF_OK);
+    ck_assert_int_eq(tf_prior_set_assign(set, name, &p, NULL), TF_OK);
+}
+
+static tf_prior_set *exponential_priors(const tf_model *m, int truncated_sigma)
+{
+    const char *names[2] = {tf_model_param_name(m, 0), tf_model_param_name(m, 1)};
+    double lo[2] = {tf_model_param_lower(m, 0), tf_model_param_lower(m, 1)};
+    double hi[2] = {tf_model_param_upper(m, 0), tf_model_param_upper(m, 1)};
+    tf_prior_set *set = NULL;
+    ck_assert_int_eq(tf_prior_set_new(2, names, lo, hi, &set, NULL), TF_OK);
+    assign(set, "r", TF_PRIOR_NORMAL, 0.1, 0.5, -INFINITY, INFINITY);
+    if (truncated_sigma)
+        assign(set, "sigma", TF_PRIOR_UNIFORM, 0.05, 2.0, -INFINITY, INFINITY);
+    else
+        assign(set, "sigma", TF_PRIOR_HALFNORMAL, 0.5, 0, -INFINITY, INFINITY);
+    return set;
+}
+
+/* The density of z = (r, transform(sigma)) must integrate to 1 (change of variables: the log
+ * Jacobian makes it a density on the real plane). Midpoint rule on a grid wide enough that the
+ * tails left out hold less than 1e-6; the rule's error for these smooth integrands is far below
+ * the 1e-4 tolerance. */
+START_TEST(unconstrained_density_integrates_to_one)
+{
+    tf_model *m = make_model("exponential", "poisson");
+    for (int trunc = 0; trunc < 2; trunc++) {
+        tf_prior_set *set = exponential_priors(m, trunc);
+        tf_posterior *post = NULL;
+        ck_assert_int_eq(tf_posterior_new(m, set, &post, NULL), TF_OK);
+        ck_assert_uint_eq(tf_posterior_dim(post), 2);
+        const double h = 0.01;
+        double total = 0;
+        for (double z0 = -4.0 + h / 2; z0 < 4.2; z0 += h)
+            for (double z1 = -25.0 + h / 2; z1 < 25.0; z1 += h) {
+                double z[2] = {z0, z1}, theta[2];
+                double lp = tf_posterior_log_prior_z(post, z, theta);
+                if (isfinite(lp))
+                    total += exp(lp) * h * h;
+            }
+        ck_assert_msg(fabs(total - 1.0) < 1e-4, "integral %.8f (truncated %d)", total, trunc);
+        /* theta -> z -> theta, and points outside the support have no z. */
+        double theta[2] = {-0.3, 0.7}, z[2], back[2];
+        ck_assert(tf_posterior_to_z(post, theta, z));
+        tf_posterior_log_prior_z(post, z, back);
+        ck_assert(fabs(back[0] - theta[0]) < 1e-12 && fabs(back[1] - theta[1]) < 1e-12);
+        double outside[2] = {0.0, trunc ? 3.0 : -1.0};
+        ck_assert(!tf_posterior_to_z(post, outside, z));
+        ck_assert(isinf(tf_posterior_log_prior(post, outside)));
+        tf_posterior_free(post);
+        tf_prior_set_free(set);
+    }
+    tf_model_free(m);
+}
+END_TEST
+
+/* Prior draws: the half-normal(0.5) mean is 0.5 sqrt(2/pi) and its sd 0.5 sqrt(1 - 2/pi)
+ * (Johnson, Kotz & Balakrishnan 1994, Continuous Univariate Distributions 1, section 13.10,
+ * recalled from memory); with 20000 draws the mean is within 4.5 standard errors. */
+START_TEST(prior_draws_follow_the_prior)
+{
+    tf_model *m = make_model("exponential", "poisson");
+    tf_prior_set *set = exponential_priors(m, 0);
+    tf_posterior *post = NULL;
+    ck_assert_int_eq(tf_posterior_new(m, set, &post, NULL), TF_OK);
+    tf_rng rng;
+    tf_rng_derive(&rng, 4, NULL, 0);
+    size_t n = 20000;
+    double sum = 0;
+    for (size_t k = 0; k < n; k++) {
+        double theta[2], z[2], back[2];
+        tf_posterior_draw(post, &rng, theta, z);
+        ck_assert(theta[1] > 0);
+        tf_posterior_log_prior_z(post, z, back);
+        ck_assert(fabs(back[1] - theta[1]) <= 1e-12 * theta[1]);
+        sum += theta[1];
+    }
+    const double pi = 3.141592653589793;
+    double mean = 0.5 * sqrt(2.0 / pi), se = 0.5 * sqrt(1.0 - 2.0 / pi) / sqrt((double)n);
+    ck_assert_msg(fabs(sum / (double)n - mean) < 4.5 * se, "mean %g want %g", sum / (double)n, mean);
+    tf_posterior_free(post);
+    tf_prior_set_free(set);
+    tf_model_free(m);
+}
+END_TEST
+
+START_TEST(mismatched_priors_are_refused)
+{
+    tf_model *m = make_model("exponential", "poisson"), *g = make_model("gompertz", "poisson");
+    tf_prior_set *set = exponential_priors(m, 0);
+    tf_posterior *post = NULL;
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_posterior_new(g, set, &post, &err), TF_ERR_INVALID);
+    ck_assert_ptr_null(post);
+    /* An incomplete set. */
+    const char *names[2] = {"r", "sigma"};
+    tf_prior_set *half = NULL;
+    ck_assert_int_eq(tf_prior_set_new(2, names, NULL, NULL, &half, NULL), TF_OK);
+    assign(half, "r", TF_PRIOR_NORMAL, 0, 1, -INFINITY, INFINITY);
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_posterior_new(m, half, &post, &err), TF_ERR_INVALID);
+    ck_assert_ptr_null(post);
+    tf_prior_set_free(half);
+    tf_prior_set_free(set);
+    tf_model_free(m);
+    tf_model_free(g);
+}
+END_TEST
+
+static Suite *make_suite(void)
+{
+    Suite *s = suite_create("fit");
+    TCase *tc = tcase_create("result");
+    tcase_add_test(tc, summaries_of_known_draws);
+    tcase_add_test(tc, convergence_flag_follows_diagnostics);
+    tcase_add_test(tc, fit_alloc_refuses_bad_sizes);
+    tcase_add_test(tc, unconstrained_density_integrates_to_one);
+    tcase_add_test(tc, prior_draws_follow_the_prior);
+    tcase_add_test(tc, mismatched_priors_are_refused);
+    suite_add_tcase(s, tc);
+    return s;
+}

@@ -30,6 +30,7 @@ int tf_cmd_check(int argc, char **argv);
 int tf_cmd_simulate(int argc, char **argv);
 int tf_cmd_likelihood(int argc, char **argv);
 int tf_cmd_fit(int argc, char **argv);
+int tf_cmd_compare(int argc, char **argv);
 int tf_cmd_forecast(int argc, char **argv);
 
 #endif

@@ -6,6 +6,7 @@ const tf_cmd tf_cmd_table[] = {
     {"simulate", "draw a survey from a population model with given parameters", tf_cmd_simulate},
     {"likelihood", "estimate the log-likelihood of a survey at given parameters", tf_cmd_likelihood},
     {"fit", "fit a population model to each population of a survey by particle MCMC", tf_cmd_fit},
+    {"compare", "compare population models of a survey by marginal likelihood", tf_cmd_compare},
     {"forecast", "project a population forward: quasi-extinction risk and chance of decline", tf_cmd_forecast},
     {NULL, NULL, NULL},
 };

@@ -18,6 +18,7 @@ extern const tf_growth_type tf_growth_theta_logistic;
 extern const tf_obs_type tf_obs_poisson;
 extern const tf_obs_type tf_obs_lognormal;
 extern const tf_obs_type tf_obs_negbin;
+extern const tf_obs_type tf_obs_lognormal_int;
 
 /* A Poisson count with mean lambda >= 0 (finite), safe for lambda beyond the unsigned range of
  * gsl_ran_poisson (obs_poisson.c). */

@@ -14,6 +14,7 @@ static const tf_obs_type *const obs_table[] = {
     &tf_obs_poisson,
     &tf_obs_lognormal,
     &tf_obs_negbin,
+    &tf_obs_lognormal_int,
 };
 
 #define N_GROWTH (sizeof growth_table / sizeof growth_table[0])

@@ -12,7 +12,7 @@ bad() { echo "fit.sh: $*" >&2; fail=1; }
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 # Under the sanitizers everything is 10-20 times slower: shorter runs there.
-if [ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ]; then short="--iterations 60 --warmup 40"; else short="--iterations 400 --warmup 300"; fi
+if [ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ]; then short="--iterations 60 --warmup 40 --thin 4"; else short="--iterations 400 --warmup 300 --thin 4"; fi
 
 expect() {  # CODE PATTERN CMD...: exit code CODE and PATTERN (grep -E) on stderr
   local code=$1 pat=$2; shift 2
@@ -27,7 +27,7 @@ expect() {  # CODE PATTERN CMD...: exit code CODE and PATTERN (grep -E) on stder
   bad "simulate failed"
 { cat "$tmp/s.csv" | sed '1s/^/population,/; 2,$s/^/a,/'; tail -n +2 "$tmp/b.csv"; } >"$tmp/two.csv"
 
-# Files, headers and row counts: 4 chains x (400 / thin 4) draws.
+# Files, headers and row counts.
 "$T" fit "$tmp/s.csv" --model exponential -o "$tmp/one" $short --quiet --threads 2 2>/dev/null ||
   bad "fit failed: $(cat "$tmp/one" 2>&1 | head -c 200)"
 for t in draws parameters abundance trend sampler; do
@@ -36,7 +36,7 @@ done
 [ "$(head -n 1 "$tmp/one/exponential+poisson-draws.csv" | tr -d '\r')" = "chain,iteration,r,sigma,loglik" ] ||
   bad "draws header: $(head -n 1 "$tmp/one/exponential+poisson-draws.csv")"
 n_iter=$(echo "$short" | sed 's/--iterations \([0-9]*\).*/\1/')
-want=$((4 * n_iter / 4 + 1))
+want=$((4 * (n_iter / 4) + 1))   # 4 chains, every 4th iteration kept
 [ "$(wc -l <"$tmp/one/exponential+poisson-draws.csv")" -eq $want ] || bad "draws: want $want lines"
 [ "$(head -n 1 "$tmp/one/exponential+poisson-abundance.csv" | tr -d '\r')" = "year,count,effort,median,q25,q75,q2.5,q97.5" ] ||
   bad "abundance header"

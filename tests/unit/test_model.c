@@ -27,7 +27,7 @@ START_TEST(table_lists_every_model)
     static const char *const growth[] = {"exponential", "ricker", "gompertz", "theta-logistic"};
     static const char *const obs[] = {"poisson", "lognormal", "negbin"};
     ck_assert_uint_eq(tf_model_n_growth(), 4);
-    ck_assert_uint_eq(tf_model_n_obs(), 3);
+    ck_assert_uint_eq(tf_model_n_obs(), 4);
     for (size_t i = 0; i < 4; i++) {
         ck_assert_ptr_eq(tf_model_find_growth(growth[i]), tf_model_growth_at(i));
         ck_assert_str_eq(tf_model_growth_at(i)->name, growth[i]);

@@ -1,0 +1,483 @@
+/* `tallyfit compare`: fits every candidate growth x observation model to each population of a
+ * survey, estimates each one's marginal likelihood, and writes and prints the comparison. */
+#define _GNU_SOURCE
+#include <getopt.h>
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <unistd.h>
+
+#include "cmd/args.h"
+#include "cmd/cmd.h"
+#include "cmd/setup.h"
+#include "compare/compare.h"
+#include "compare/pareto.h"
+#include "export/atomic.h"
+#include "export/compare_table.h"
+#include "export/csv_out.h"
+#include "survey/survey.h"
+#include "util/error.h"
+
+#define CMD "compare"
+#define PROG "tallyfit " CMD
+/* Limits that only guard memory and time against typos. */
+#define MAX_ITER 10000000
+#define MAX_PARTICLES 10000000
+#define MAX_DRAWS 10000000
+#define MAX_THREADS 256
+#define MAX_NAMES TF_COMPARE_MAX_MODELS
+
+/* Set by the SIGINT / SIGTERM handler and polled by the chains and the importance sampler: a
+ * signal handler has no other way to reach the running code (C11 7.14.1.1). */
+static volatile sig_atomic_t interrupted;
+
+static void on_signal(int sig)
+{
+    (void)sig;
+    interrupted = 1;
+}
+
+static void help(FILE *out)
+{
+    char growth[256], obs[256];
+    tf_model_list_growth(growth, sizeof growth);
+    tf_model_list_obs(obs, sizeof obs);
+    tf_pmmh_options d = tf_pmmh_default_options();
+    tf_evidence_options e = tf_evidence_default_options();
+    fprintf(out,
+            "usage: tallyfit compare SURVEY.csv [--models M,...] [--obs O,...] [options]\n\n"
+            "Fits every candidate model (each growth model with each counting-error model) to the counts\n"
+            "of each population, estimates each model's marginal likelihood p(counts | model) by\n"
+            "importance sampling squared, and ranks them by Bayes factor and posterior probability.\n"
+            "Writes model-comparison.csv (one row per candidate, excluded ones with the reason) and\n"
+            "prints the table.\n\n"
+            "Marginal likelihoods compare only on one scale. For whole counts every count model is\n"
+            "compared, and log-normal counting error enters as lognormal-int (the log-normal rounded to\n"
+            "whole counts); the continuous log-normal density is listed as excluded. Counts that are not\n"
+            "whole numbers (densities, indices) are compared under the continuous log-normal only.\n\n"
+            "options:\n"
+            "  --models M,...     growth models to compare (default: all of %s)\n"
+            "  --obs O,...        counting-error models (default: those of %s that suit the counts)\n"
+            "  --population NAME  compare only this population (default: each one in the file)\n"
+            "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
+            "                     sub-directory per population when the file has several)\n"
+            "  --model-weights NAME=W,...\n"
+            "                     prior model weights (relative; default all equal). NAME is a model\n"
+            "                     (ricker+poisson) or a growth model (all its counting-error models);\n"
+            "                     models not named get 1\n"
+            "  --seed S           random seed (default %llu); the same seed gives the same results\n"
+            "  --chains C         chains per model (default %zu)\n"
+            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
+            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
+            "  --particles N      particles of the filter (default: tuned per model)\n"
+            "  --draws M          importance draws per density (default %zu)\n"
+            "  --threads T        threads (default: the number of processors); models run in\n"
+            "                     parallel, and the results do not depend on T\n"
+            "  --quiet            print nothing but warnings and errors\n"
+            "  -h, --help         show this help\n",
+            growth, obs, (unsigned long long)d.seed, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, e.n_draws);
+}
+
+/* Splits "a,b,c" into names (pointers into buf, a copy of text). Usage errors for empty items
+ * and too many names. */
+static tf_status split_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
+                             size_t *n, tf_error *err)
+{
+    *n = 0;
+    if (strlen(text) >= size)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: the list is too long", opt);
+    strcpy(buf, text);
+    char *p = buf;
+    for (;;) {
+        char *end = strchr(p, ',');
+        if (end)
+            *end = '\0';
+        while (*p == ' ')
+            p++;
+        size_t len = strlen(p);
+        while (len && p[len - 1] == ' ')
+            p[--len] = '\0';
+        if (!len)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. ricker,gompertz", "%s: an empty name in '%s'",
+                                opt, text);
+        if (*n >= MAX_NAMES)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: too many names", opt);
+        names[(*n)++] = p;
+        if (!end)
+            break;
+        p = end + 1;
+    }
+    return TF_OK;
+}
+
+/* Letters, digits, '-', '_' and '.' kept, others '_': a population label as a directory name. */
+static void safe_name(const char *label, char *out, size_t size)
+{
+    size_t k = 0;
+    for (const char *p = label; *p && k + 1 < size; p++) {
+        unsigned char c = (unsigned char)*p;
+        int keep = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' ||
+                   c == '_' || (c == '.' && k > 0);
+        out[k++] = keep ? (char)c : '_';
+    }
+    if (k == 0 && size > 1)
+        out[k++] = '_';
+    out[k] = '\0';
+}
+
+/* The survey's file name without directories and without a final ".csv". */
+static void survey_name(const char *path, char *out, size_t size)
+{
+    const char *base = strrchr(path, '/');
+    base = base ? base + 1 : path;
+    snprintf(out, size, "%s", base);
+    size_t n = strlen(out);
+    if (n > 4 && !strcasecmp(out + n - 4, ".csv"))
+        out[n - 4] = '\0';
+    if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
+        snprintf(out, size, "survey");
+}
+
+static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
+{
+    (void)ctx;
+    return tf_setup_priors(m, s, NULL, out, err);
+}
+
+static void show_progress(void *ctx, size_t index, const char *model, tf_compare_event ev, double seconds)
+{
+    (void)index;
+    const char *label = ctx;
+    static const char *const what[] = {"fitting", "fitted; estimating its marginal likelihood", "done", "failed"};
+    fprintf(stderr, "%s%s%s: %s (%.1f s)\n", label, label[0] ? " " : "", model, what[ev], seconds);
+}
+
+static int exit_for(tf_status st)
+{
+    switch (st) {
+    case TF_OK: return TF_EXIT_OK;
+    case TF_ERR_USAGE:
+    case TF_ERR_UNSUPPORTED: return TF_EXIT_USAGE;
+    case TF_ERR_INTERRUPTED: return TF_EXIT_INTERRUPTED;
+    case TF_ERR_INVALID: return TF_EXIT_INPUT;
+    default: return TF_EXIT_FAIL;
+    }
+}
+
+static void print_table(const tf_comparison *c, FILE *out)
+{
+    const tf_series *s = tf_comparison_series(c);
+    const char *label = tf_series_label(s);
+    size_t n = tf_comparison_n_models(c), n_excl = 0, n_fail = 0;
+    for (size_t i = 0; i < n; i++) {
+        n_excl += tf_comparison_state(c, i) == TF_CANDIDATE_EXCLUDED;
+        n_fail += tf_comparison_state(c, i) == TF_CANDIDATE_FAILED;
+    }
+    fprintf(out, "%s%s%zu candidate models: %zu fitted, %zu failed, %zu excluded; likelihoods are %s\n", label,
+            label[0] ? ": " : "", n, tf_comparison_n_fitted(c), n_fail, n_excl,
+            tf_comparison_scale(c) == TF_COMPARE_COUNTS ? "probabilities of whole counts"
+                                                        : "densities of continuous amounts");
+    fprintf(out, "  %-28s %10s %6s %10s %7s  %-12s %8s %6s %5s %6s %6s\n", "model", "log ML", "se", "check", "2lnB",
+            "reading", "P(model)", "se", "k", "R-hat", "ESS");
+    size_t order[TF_COMPARE_MAX_MODELS];
+    tf_compare_table_order(c, order);
+    for (size_t r = 0; r < n; r++) {
+        size_t i = order[r];
+        if (tf_comparison_state(c, i) != TF_CANDIDATE_FITTED)
+            continue;
+        const tf_evidence *ev = tf_comparison_evidence(c, i);
+        const tf_candidate_figures *f = tf_comparison_figures(c, i);
+        const char *reading = i == tf_comparison_best(c) ? "best" : tf_compare_kass_raftery(-2 * f->log_bf);
+        /* Shortened to fit the column; the CSV has the full words. */
+        if (!strcmp(reading, "not worth more than a bare mention"))
+            reading = "bare mention";
+        fprintf(out, "  %-28s %10.2f %6.2f %10.2f %7.2f  %-12s %8.3f %6.3f %5.2f %6.3f %6.0f%s\n",
+                tf_comparison_name(c, i), ev->main.log_ml, ev->main.se, ev->check.log_ml, -2 * f->log_bf, reading,
+                f->prob, f->prob_se, ev->main.pareto_k, f->rhat_max, f->ess_min,
+                tf_comparison_note(c, i)[0] ? "  *" : "");
+    }
+    for (size_t r = 0; r < n; r++) {
+        size_t i = order[r];
+        tf_candidate_state st = tf_comparison_state(c, i);
+        if (st == TF_CANDIDATE_FITTED && tf_comparison_note(c, i)[0])
+            fprintf(out, "  * %s: %s\n", tf_comparison_name(c, i), tf_comparison_note(c, i));
+        else if (st != TF_CANDIDATE_FITTED)
+            fprintf(out, "  %s %s: %s\n", st == TF_CANDIDATE_FAILED ? "failed:  " : "excluded:", tf_comparison_name(c, i),
+                    tf_comparison_note(c, i));
+    }
+    /* The plain-language reading of the best model against the runner-up. */
+    if (tf_comparison_n_fitted(c) >= 2) {
+        size_t best = tf_comparison_best(c), second = order[1];
+        double two = -2 * tf_comparison_figures(c, second)->log_bf, se = 2 * tf_comparison_figures(c, second)->log_bf_se;
+        fprintf(out,
+                "  %s is favoured over %s with 2 ln B = %.2f (Monte Carlo se %.2f): on the Kass & Raftery (1995)\n"
+                "  scale that is %s evidence.\n",
+                tf_comparison_name(c, best), tf_comparison_name(c, second), two, se,
+                tf_compare_kass_raftery(two));
+    }
+    fputs("  (log ML: ln p(counts | model) by importance sampling squared; check: the same with a second\n"
+          "  importance density; 2lnB: against the best model; P(model): posterior probability with its\n"
+          "  delta-method Monte Carlo error; k: Pareto k of the weights, above 0.7 unreliable.)\n",
+          out);
+}
+
+static void print_warnings(const tf_comparison *c)
+{
+    const char *label = tf_series_label(tf_comparison_series(c));
+    for (size_t i = 0; i < tf_comparison_n_models(c); i++) {
+        const tf_evidence *ev = tf_comparison_evidence(c, i);
+        if (tf_comparison_state(c, i) == TF_CANDIDATE_FAILED)
+            fprintf(stderr, PROG ": warning: %s%s%s: %s\n", label, label[0] ? " " : "", tf_comparison_name(c, i),
+                    tf_comparison_note(c, i));
+        if (!ev)
+            continue;
+        if (!(ev->main.pareto_k <= TF_PARETO_K_MAX) || !(ev->check.pareto_k <= TF_PARETO_K_MAX))
+            fprintf(stderr,
+                    PROG ": warning: %s%s%s: the importance weights have Pareto k %.2f (check %.2f), above %.1f: its "
+                         "marginal likelihood is unreliable\n  hint: run the fit longer, or raise --draws\n",
+                    label, label[0] ? " " : "", tf_comparison_name(c, i), ev->main.pareto_k, ev->check.pareto_k,
+                    TF_PARETO_K_MAX);
+        if (!ev->agree)
+            fprintf(stderr,
+                    PROG ": warning: %s%s%s: the two importance densities disagree (%.2f vs %.2f, %.1f standard "
+                         "errors apart)\n  hint: raise --draws, or run the fit longer\n",
+                    label, label[0] ? " " : "", tf_comparison_name(c, i), ev->main.log_ml, ev->check.log_ml,
+                    fabs(ev->z_diff));
+        const tf_candidate_figures *f = tf_comparison_figures(c, i);
+        if (!(f->rhat_max <= TF_FIT_RHAT_MAX) || !(f->ess_min >= TF_FIT_ESS_MIN))
+            fprintf(stderr,
+                    PROG ": warning: %s%s%s: R-hat max %.3f, ESS min %.0f; the chains may not have converged\n"
+                         "  hint: run longer (--iterations, --warmup)\n",
+                    label, label[0] ? " " : "", tf_comparison_name(c, i), f->rhat_max, f->ess_min);
+    }
+}
+
+int tf_cmd_compare(int argc, char **argv)
+{
+    enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_ITER, OPT_THIN, OPT_WARMUP,
+           OPT_PARTICLES, OPT_DRAWS, OPT_THREADS, OPT_QUIET };
+    static const struct option longopts[] = {
+        {"models", required_argument, NULL, OPT_MODELS},
+        {"obs", required_argument, NULL, OPT_OBS},
+        {"population", required_argument, NULL, OPT_POP},
+        {"output", required_argument, NULL, 'o'},
+        {"model-weights", required_argument, NULL, OPT_WEIGHTS},
+        {"seed", required_argument, NULL, OPT_SEED},
+        {"chains", required_argument, NULL, OPT_CHAINS},
+        {"iterations", required_argument, NULL, OPT_ITER},
+        {"thin", required_argument, NULL, OPT_THIN},
+        {"warmup", required_argument, NULL, OPT_WARMUP},
+        {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"draws", required_argument, NULL, OPT_DRAWS},
+        {"threads", required_argument, NULL, OPT_THREADS},
+        {"quiet", no_argument, NULL, OPT_QUIET},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0},
+    };
+    tf_error err;
+    tf_error_init(&err);
+    tf_compare_options opt = tf_compare_default_options();
+    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
+    opt.n_threads = n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    const char *population = NULL, *out_dir = NULL;
+    char growth_buf[1024], obs_buf[1024];
+    const char *growth[MAX_NAMES], *obs[MAX_NAMES];
+    tf_arg_pairs weights;
+    tf_args_pairs_init(&weights);
+    uint64_t seed = opt.fit.seed;
+    size_t n_particles = 0;
+    int quiet = 0;
+    size_t iterations = opt.fit.n_iter * opt.fit.thin;
+
+    opterr = 0;
+    optind = 0;
+    int c;
+    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+        switch (c) {
+        case OPT_MODELS:
+            split_names("--models", optarg, growth_buf, sizeof growth_buf, growth, &opt.n_growth, &err);
+            break;
+        case OPT_OBS: split_names("--obs", optarg, obs_buf, sizeof obs_buf, obs, &opt.n_obs, &err); break;
+        case OPT_POP: population = optarg; break;
+        case 'o': out_dir = optarg; break;
+        case OPT_WEIGHTS: tf_args_parse_pairs("--model-weights", optarg, &weights, &err); break;
+        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
+        case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
+        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
+        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.fit.thin, &err); break;
+        case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
+        case OPT_PARTICLES:
+            tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err);
+            break;
+        case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
+        case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
+        case OPT_QUIET: quiet = 1; break;
+        case 'h': help(stdout); return TF_EXIT_OK;
+        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
+        }
+    }
+    const char *path = NULL;
+    if (optind < argc)
+        path = argv[optind++];
+    if (optind < argc)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    if (!path)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit compare --help' for the usage",
+                     "no survey file given");
+    opt.fit.n_iter = iterations / opt.fit.thin;
+    if (opt.fit.n_iter < 1)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.fit.thin);
+    /* Mistyped model names are usage errors, found before a large file is read. */
+    char known[256];
+    for (size_t i = 0; i < opt.n_growth; i++)
+        if (!tf_model_find_growth(growth[i])) {
+            tf_model_list_growth(known, sizeof known);
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "unknown growth model '%s' (known: %s)", growth[i], known);
+        }
+    for (size_t i = 0; i < opt.n_obs; i++)
+        if (!tf_model_find_obs(obs[i])) {
+            tf_model_list_obs(known, sizeof known);
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "unknown observation model '%s' (known: %s)", obs[i],
+                         known);
+        }
+    if (tf_error_status(&err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_USAGE;
+    }
+    opt.growth = growth;
+    opt.obs = obs;
+    const char *wnames[TF_ARGS_MAX_PAIRS];
+    double wvals[TF_ARGS_MAX_PAIRS];
+    for (size_t i = 0; i < weights.n; i++) {
+        wnames[i] = weights.items[i].name;
+        wvals[i] = weights.items[i].value;
+    }
+    opt.weight_names = wnames;
+    opt.weights = wvals;
+    opt.n_weights = weights.n;
+    opt.fit.seed = opt.evidence.seed = seed;
+    opt.fit.n_particles = opt.evidence.n_particles = n_particles;
+    opt.priors = default_priors;
+    /* Importance draws scale with the requested effort: with --draws left alone, a short run
+     * (few iterations, as in tests) keeps its adaptation rounds in proportion. */
+    if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)
+        opt.evidence.n_adapt_draws = opt.evidence.n_draws;
+
+    int status = TF_EXIT_FAIL;
+    tf_survey *sv = NULL;
+    tf_comparison **comps = NULL;
+    char (*written)[4600] = NULL;   /* the file written per population */
+    size_t n_jobs = 0;
+    struct sigaction sa, old_int, old_term;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    interrupted = 0;
+    sigaction(SIGINT, &sa, &old_int);
+    sigaction(SIGTERM, &sa, &old_term);
+
+    if (tf_survey_read(path, &sv, &err) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
+    size_t n_series = tf_survey_n_series(sv);
+    const tf_series *only = NULL;
+    if (population && !(only = tf_survey_find(sv, population))) {
+        tf_error_add(&err, TF_ERR_USAGE, path, 0, 0, "run 'tallyfit check' on the file to list its populations",
+                     "no population named '%s'", population);
+        status = TF_EXIT_USAGE;
+        goto out;
+    }
+    n_jobs = only ? 1 : n_series;
+    comps = calloc(n_jobs, sizeof *comps);
+    written = calloc(n_jobs, sizeof *written);
+    if (!comps || !written) {
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+        goto out;
+    }
+    int show = !quiet && isatty(STDERR_FILENO);
+    for (size_t i = 0; i < n_jobs; i++) {
+        const tf_series *s = only ? only : tf_survey_series(sv, i);
+        opt.progress = show ? show_progress : NULL;
+        opt.progress_ctx = (void *)tf_series_label(s);
+        tf_status st = tf_compare_run(s, &opt, &interrupted, &comps[i], &err);
+        if (st != TF_OK) {
+            if (tf_series_label(s)[0])
+                tf_error_add(&err, st, path, 0, 0, NULL, "(population '%s')", tf_series_label(s));
+            status = exit_for(st);
+            goto out;
+        }
+    }
+
+    /* Signals wait until the files are written (the atomic writes rule out half-written files;
+     * this keeps one population from being written and the next not). */
+    sigset_t block, old_mask;
+    sigemptyset(&block);
+    sigaddset(&block, SIGINT);
+    sigaddset(&block, SIGTERM);
+    sigprocmask(SIG_BLOCK, &block, &old_mask);
+    char base[256];
+    survey_name(path, base, sizeof base);
+    tf_status wst = TF_OK;
+    for (size_t i = 0; i < n_jobs && wst == TF_OK; i++) {
+        const tf_series *s = tf_comparison_series(comps[i]);
+        char sub[256], dir[4096];
+        safe_name(tf_series_label(s), sub, sizeof sub);
+        int several = n_series > 1 && !only;
+        int k = out_dir ? snprintf(dir, sizeof dir, several ? "%s/%s" : "%s", out_dir, sub)
+                        : snprintf(dir, sizeof dir, several ? "output/%s/%s" : "output/%s", base, sub);
+        if (k < 0 || (size_t)k >= sizeof dir) {
+            wst = tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o directory",
+                               "the output path is too long");
+            break;
+        }
+        tf_table *t = tf_compare_table(comps[i], &err);
+        if (!t) {
+            wst = TF_ERR_NOMEM;
+            break;
+        }
+        size_t created = 0;
+        wst = tf_atomic_mkdirs(dir, &created, &err);
+        if (wst == TF_OK)
+            wst = tf_csv_write_in_dir(t, dir, path, written[i], sizeof written[i], &err);
+        /* A failed write leaves no empty directories behind that this run made. */
+        if (wst != TF_OK)
+            tf_atomic_rmdirs(dir, created);
+        tf_table_free(t);
+    }
+    sigprocmask(SIG_SETMASK, &old_mask, NULL);
+    if (wst != TF_OK) {
+        status = exit_for(wst);
+        goto out;
+    }
+    for (size_t i = 0; i < n_jobs; i++) {
+        if (!quiet) {
+            print_table(comps[i], stdout);
+            printf("  file: %s\n", written[i]);
+        }
+        print_warnings(comps[i]);
+    }
+    if (fflush(stdout) != 0) {
+        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+        goto out;
+    }
+    status = TF_EXIT_OK;
+out:
+    sigaction(SIGINT, &old_int, NULL);
+    sigaction(SIGTERM, &old_term, NULL);
+    if (status == TF_EXIT_INTERRUPTED)
+        fputs(PROG ": interrupted; no files written\n", stderr);
+    else if (status != TF_EXIT_OK)
+        tf_error_print(&err, PROG, stderr);
+    for (size_t i = 0; i < n_jobs && comps; i++)
+        tf_comparison_free(comps[i]);
+    free(comps);
+    free(written);
+    tf_survey_free(sv);
+    return status;
+}

@@ -1,0 +1,133 @@
+#!/usr/bin/env bash
+# End-to-end test of `tallyfit compare`: a demo survey with short settings writes the comparison
+# CSV with the expected header, fitted rows with finite numbers and probabilities summing to 1,
+# excluded models listed with their reasons; an index survey (fractional counts) leaves only the
+# continuous log-normal; refused requests exit with a usage error; the same seed gives the same
+# file whatever the thread count.
+set -u
+cd "$(dirname "$0")/../.."
+T=${TALLYFIT:?TALLYFIT must name the binary}
+fail=0
+bad() { echo "compare.sh: $*" >&2; fail=1; }
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+SHORT=(--chains 2 --iterations 400 --thin 1 --warmup 300 --draws 300 --seed 4)
+
+want_header='model,growth,observation,status,log_ml,log_ml_se,log_ml_check,log_ml_check_se,check_z,bayes_factor,ln_bf,ln_bf_se,two_ln_b,reading,prior_weight,post_prob,post_prob_se,pareto_k,pareto_k_check,weight_ess,particles,particles_mean,rhat_max,ess_min,note'
+
+# Checks one comparison CSV with Python's csv module: header, fitted rows complete, the best
+# model first with Bayes factor 1, probabilities summing to 1, every excluded row with a reason.
+# Prints "fitted excluded" counts.
+check_csv() {
+  /usr/bin/python3 - "$1" "$want_header" <<'PY'
+import csv, math, sys
+path, want = sys.argv[1], sys.argv[2].split(",")
+with open(path, newline="") as f:
+    r = csv.reader(f)
+    header = next(r)
+    rows = [dict(zip(header, row)) for row in r]
+problems = []
+if header != want:
+    problems.append(f"header {header}")
+fitted = [x for x in rows if x["status"] == "fitted"]
+excluded = [x for x in rows if x["status"] == "excluded"]
+for x in fitted:
+    for k in ("log_ml", "log_ml_se", "log_ml_check", "bayes_factor", "post_prob", "post_prob_se", "pareto_k", "rhat_max", "ess_min"):
+        if not math.isfinite(float(x[k])):
+            problems.append(f"{x['model']}: {k} = {x[k]!r}")
+if fitted:
+    if float(fitted[0]["bayes_factor"]) != 1.0 or fitted[0]["reading"] != "best model":
+        problems.append(f"first row {fitted[0]['model']} is not the best model")
+    lm = [float(x["log_ml"]) for x in fitted]
+    if lm != sorted(lm, reverse=True):
+        problems.append("fitted rows not in decreasing log_ml")
+    s = sum(float(x["post_prob"]) for x in fitted)
+    if abs(s - 1) > 1e-9:
+        problems.append(f"posterior probabilities sum to {s}")
+for x in excluded:
+    if not x["note"] or x["log_ml"]:
+        problems.append(f"excluded {x['model']}: note {x['note']!r}, log_ml {x['log_ml']!r}")
+if problems:
+    print("PROBLEMS: " + "; ".join(problems))
+    sys.exit(1)
+print(len(fitted), len(excluded))
+PY
+}
+
+# 1. A demo survey of whole counts: count models compared, the continuous log-normal excluded.
+out="$tmp/heron"
+"$T" compare surveys/heron-colony.csv --models exponential,gompertz -o "$out" "${SHORT[@]}" --threads 2 \
+  >"$tmp/stdout" 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 0 ] || { bad "heron: exit $rc"; cat "$tmp/stderr" >&2; }
+csv="$out/model-comparison.csv"
+if [ -f "$csv" ]; then
+  counts=$(check_csv "$csv") || bad "heron: $counts"
+  [ "$counts" = "6 2" ] || bad "heron: fitted/excluded counts '$counts', want '6 2'"
+  grep -q '^exponential+lognormal,.*excluded,.*does not compare with the count models' "$csv" ||
+    bad "heron: the continuous log-normal is not excluded with its reason"
+else
+  bad "heron: no $csv"
+fi
+grep -q 'likelihoods are probabilities of whole counts' "$tmp/stdout" || bad "heron: stdout does not name the scale"
+grep -q 'excluded: gompertz+lognormal: ' "$tmp/stdout" || bad "heron: stdout does not list the excluded models"
+grep -q 'Kass & Raftery (1995)' "$tmp/stdout" || bad "heron: no Kass & Raftery reading printed"
+grep -q "file: $csv" "$tmp/stdout" || bad "heron: stdout does not name the file"
+
+# 2. The same seed with one thread: the same file.
+"$T" compare surveys/heron-colony.csv --models exponential,gompertz -o "$tmp/heron1" "${SHORT[@]}" --threads 1 \
+  --quiet 2>/dev/null || bad "heron, 1 thread: failed"
+cmp -s "$csv" "$tmp/heron1/model-comparison.csv" || bad "heron: results differ between 1 and 2 threads"
+
+# 3. An index survey (fractional, positive): only the continuous log-normal can be fitted.
+cat >"$tmp/index.csv" <<'EOF'
+year,count
+2001,12.5
+2002,14.25
+2003,13.0
+2004,15.5
+2005,16.75
+2006,15.0
+2007,18.5
+2008,17.25
+2009,19.0
+2010,18.5
+EOF
+"$T" compare "$tmp/index.csv" --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 0 ] || { bad "index: exit $rc"; cat "$tmp/stderr" >&2; }
+counts=$(check_csv "$tmp/index/model-comparison.csv") || bad "index: $counts"
+[ "$counts" = "1 3" ] || bad "index: fitted/excluded counts '$counts', want '1 3'"
+grep -q '^ricker+poisson,.*excluded,.*not a whole number' "$tmp/index/model-comparison.csv" ||
+  bad "index: ricker+poisson not excluded for the fractional count"
+
+# 4. Refusals: mixing a density with count probabilities, unknown names, bad weights.
+"$T" compare surveys/heron-colony.csv --models ricker --obs poisson,lognormal -o "$tmp/x" "${SHORT[@]}" \
+  >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 2 ] || bad "mixed scales: exit $rc, want 2"
+grep -q 'cannot be compared' "$tmp/stderr" && grep -q 'lognormal-int' "$tmp/stderr" ||
+  bad "mixed scales: message does not explain ($(cat "$tmp/stderr"))"
+[ -e "$tmp/x" ] && bad "mixed scales: output written anyway"
+"$T" compare surveys/heron-colony.csv --models rikker "${SHORT[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 2 ] || bad "unknown model: exit $rc, want 2"
+grep -q "unknown growth model 'rikker'" "$tmp/stderr" || bad "unknown model: $(cat "$tmp/stderr")"
+"$T" compare surveys/heron-colony.csv --models ricker --model-weights gompertz+poisson=2 "${SHORT[@]}" \
+  >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -ne 0 ] && grep -q 'names no candidate' "$tmp/stderr" || bad "weight for a missing model: exit $rc"
+"$T" compare surveys/heron-colony.csv --model-weights ricker=abc >/dev/null 2>&1; rc=$?
+[ $rc -eq 2 ] || bad "non-numeric weight: exit $rc, want 2"
+"$T" compare >/dev/null 2>&1; rc=$?
+[ $rc -eq 2 ] || bad "no survey: exit $rc, want 2"
+"$T" compare --help | grep -q 'usage: tallyfit compare' || bad "--help"
+
+# 5. Prior model weights enter the probabilities: ricker weighted 3 against exponential 1.
+"$T" compare surveys/heron-colony.csv --models exponential,ricker --obs poisson -o "$tmp/w" "${SHORT[@]}" \
+  --model-weights ricker=3 --quiet 2>/dev/null || bad "weights: failed"
+/usr/bin/python3 - "$tmp/w/model-comparison.csv" <<'PY' || bad "weights: prior weights not 0.25 / 0.75"
+import csv, sys
+rows = {r["model"]: r for r in csv.DictReader(open(sys.argv[1], newline=""))}
+ok = abs(float(rows["exponential+poisson"]["prior_weight"]) - 0.25) < 1e-12 and \
+     abs(float(rows["ricker+poisson"]["prior_weight"]) - 0.75) < 1e-12
+sys.exit(0 if ok else 1)
+PY
+
+[ $fail -eq 0 ] && echo "compare.sh: all checks passed"
+exit $fail

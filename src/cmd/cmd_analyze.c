@@ -385,7 +385,10 @@ int tf_cmd_analyze(int argc, char **argv)
     if (!quiet) {
         for (size_t i = 0; i < tf_analysis_n_populations(a); i++)
             print_population(a, i, name, stdout);
-        printf("%s\n", tf_project_caution(1));
+        /* Every caution, not a pick: the first says what "model-based" means, the others whose
+         * judgement decides. */
+        for (size_t i = 0; i < tf_project_n_cautions(); i++)
+            printf("caution: %s\n", tf_project_caution(i));
         printf("workbook: %s\ntables:   %s/ (%zu CSV files, listed in %s)\n", xlsx, csv_dir, tf_report_n_tables(r),
                TF_REPORT_CONTENTS_CSV);
     }

@@ -134,18 +134,6 @@ static tf_status split_names(const char *opt, const char *text, char *buf, size_
     return TF_OK;
 }
 
-/* The survey's file name without directories and without a final ".csv". */
-static void survey_name(const char *path, char *out, size_t size)
-{
-    const char *base = strrchr(path, '/');
-    base = base ? base + 1 : path;
-    snprintf(out, size, "%s", base);
-    size_t n = strlen(out);
-    if (n > 4 && !strcasecmp(out + n - 4, ".csv"))
-        out[n - 4] = '\0';
-    if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
-        snprintf(out, size, "survey");
-}
 
 static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
@@ -329,7 +317,7 @@ int tf_cmd_analyze(int argc, char **argv)
         opt.evidence.n_adapt_draws = opt.evidence.n_draws;
 
     char name[256], xlsx[4096], csv_dir[4096];
-    survey_name(path, name, sizeof name);
+    tf_args_survey_name(path, name, sizeof name);
     int k1 = snprintf(xlsx, sizeof xlsx, "%s/%s.xlsx", out_dir, name);
     int k2 = snprintf(csv_dir, sizeof csv_dir, "%s/%s", out_dir, name);
     if (k1 < 0 || (size_t)k1 >= sizeof xlsx || k2 < 0 || (size_t)k2 >= sizeof csv_dir) {

@@ -109,7 +109,7 @@ demo: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit
 	./tallyfit $(DEMO_CMD) surveys/heron-colony.csv
 
-DEMO_CMD ?= check
+DEMO_CMD ?= analyze
 
 # The manual page is made from the binary's own --help texts (tools/make-man).
 $(BUILD)/tallyfit.1: $(BIN) tools/make-man

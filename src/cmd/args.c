@@ -7,6 +7,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 void tf_args_pairs_init(tf_arg_pairs *p) { p->n = 0; }
 
@@ -337,4 +338,35 @@ tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err)
 done:
     free(buf);
     return st;
+}
+
+void tf_args_safe_name(const char *label, char *out, size_t size)
+{
+    size_t k = 0;
+    for (const char *p = label; *p && k + 1 < size; p++) {
+        unsigned char c = (unsigned char)*p;
+        int keep = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' ||
+                   c == '_' || (c == '.' && k > 0);
+        out[k++] = keep ? (char)c : '_';
+    }
+    if (k == 0 && size > 1)
+        out[k++] = '_';
+    if (size)
+        out[k] = '\0';
+}
+
+void tf_args_survey_name(const char *path, char *out, size_t size)
+{
+    if (!strcmp(path, "-")) {
+        snprintf(out, size, "stdin");
+        return;
+    }
+    const char *base = strrchr(path, '/');
+    base = base ? base + 1 : path;
+    snprintf(out, size, "%s", base);
+    size_t n = strlen(out);
+    if (n > 4 && !strcasecmp(out + n - 4, ".csv"))
+        out[n - 4] = '\0';
+    if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
+        snprintf(out, size, "survey");
 }

@@ -81,4 +81,12 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
  * messages). Same contract as tf_survey_read. */
 tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err);
 
+/* label made safe as one file or folder name: letters, digits, '-', '_' and (not first) '.' are
+ * kept, anything else becomes '_'; "_" when label is empty. Writes at most size bytes. */
+void tf_args_safe_name(const char *label, char *out, size_t size);
+
+/* The survey's file name without directories and without a final ".csv": the name its output
+ * folder and workbook take. "stdin" for "-", "survey" when nothing is left. */
+void tf_args_survey_name(const char *path, char *out, size_t size);
+
 #endif

@@ -29,6 +29,7 @@ extern const tf_cmd tf_cmd_table[];
 int tf_cmd_check(int argc, char **argv);
 int tf_cmd_simulate(int argc, char **argv);
 int tf_cmd_likelihood(int argc, char **argv);
+int tf_cmd_analyze(int argc, char **argv);
 int tf_cmd_fit(int argc, char **argv);
 int tf_cmd_compare(int argc, char **argv);
 int tf_cmd_forecast(int argc, char **argv);

@@ -114,33 +114,7 @@ static tf_status split_names(const char *opt, const char *text, char *buf, size_
     return TF_OK;
 }
 
-/* Letters, digits, '-', '_' and '.' kept, others '_': a population label as a directory name. */
-static void safe_name(const char *label, char *out, size_t size)
-{
-    size_t k = 0;
-    for (const char *p = label; *p && k + 1 < size; p++) {
-        unsigned char c = (unsigned char)*p;
-        int keep = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' ||
-                   c == '_' || (c == '.' && k > 0);
-        out[k++] = keep ? (char)c : '_';
-    }
-    if (k == 0 && size > 1)
-        out[k++] = '_';
-    out[k] = '\0';
-}
 
-/* The survey's file name without directories and without a final ".csv". */
-static void survey_name(const char *path, char *out, size_t size)
-{
-    const char *base = strrchr(path, '/');
-    base = base ? base + 1 : path;
-    snprintf(out, size, "%s", base);
-    size_t n = strlen(out);
-    if (n > 4 && !strcasecmp(out + n - 4, ".csv"))
-        out[n - 4] = '\0';
-    if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
-        snprintf(out, size, "survey");
-}
 
 static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
@@ -422,12 +396,12 @@ int tf_cmd_compare(int argc, char **argv)
     sigaddset(&block, SIGTERM);
     sigprocmask(SIG_BLOCK, &block, &old_mask);
     char base[256];
-    survey_name(path, base, sizeof base);
+    tf_args_survey_name(path, base, sizeof base);
     tf_status wst = TF_OK;
     for (size_t i = 0; i < n_jobs && wst == TF_OK; i++) {
         const tf_series *s = tf_comparison_series(comps[i]);
         char sub[256], dir[4096];
-        safe_name(tf_series_label(s), sub, sizeof sub);
+        tf_args_safe_name(tf_series_label(s), sub, sizeof sub);
         int several = n_series > 1 && !only;
         int k = out_dir ? snprintf(dir, sizeof dir, several ? "%s/%s" : "%s", out_dir, sub)
                         : snprintf(dir, sizeof dir, several ? "output/%s/%s" : "output/%s", base, sub);

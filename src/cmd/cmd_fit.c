@@ -344,38 +344,7 @@ static void job_clear(job *j)
     memset(j, 0, sizeof *j);
 }
 
-/* A population label as a directory name: letters, digits, '-', '_' and '.' kept, anything else
- * made '_' (a leading '.' too, so that no label names a hidden or parent directory). */
-static void safe_name(const char *label, char *out, size_t size)
-{
-    size_t k = 0;
-    for (const char *p = label; *p && k + 1 < size; p++) {
-        unsigned char c = (unsigned char)*p;
-        int keep = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' ||
-                   c == '_' || (c == '.' && k > 0);
-        out[k++] = keep ? (char)c : '_';
-    }
-    if (k == 0 && size > 1)
-        out[k++] = '_';
-    out[k] = '\0';
-}
 
-/* The survey's file name without directories and without a final ".csv". */
-static void survey_name(const char *path, char *out, size_t size)
-{
-    if (!strcmp(path, "-")) {
-        snprintf(out, size, "stdin");
-        return;
-    }
-    const char *base = strrchr(path, '/');
-    base = base ? base + 1 : path;
-    snprintf(out, size, "%s", base);
-    size_t n = strlen(out);
-    if (n > 4 && !strcasecmp(out + n - 4, ".csv"))
-        out[n - 4] = '\0';
-    if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
-        snprintf(out, size, "survey");
-}
 
 #define N_TABLES 5
 
@@ -612,7 +581,7 @@ int tf_cmd_fit(int argc, char **argv)
         goto out;
     }
     char base[256];
-    survey_name(path, base, sizeof base);
+    tf_args_survey_name(path, base, sizeof base);
 
     /* Set every population up before the first long run, so that a bad count in the last
      * population is reported at once. */
@@ -641,7 +610,7 @@ int tf_cmd_fit(int argc, char **argv)
             goto out;
         }
         char sub[256];
-        safe_name(label, sub, sizeof sub);
+        tf_args_safe_name(label, sub, sizeof sub);
         int several = n_series > 1;
         int n = out_dir ? snprintf(j->dir, sizeof j->dir, several ? "%s/%s" : "%s", out_dir, sub)
                         : snprintf(j->dir, sizeof j->dir, several ? "output/%s/%s" : "output/%s", base, sub);

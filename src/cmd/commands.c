@@ -2,6 +2,7 @@
 #include "cmd/cmd.h"
 
 const tf_cmd tf_cmd_table[] = {
+    {"analyze", "the main job: fit, compare and project every population; write a workbook and CSV", tf_cmd_analyze},
     {"check", "validate a survey file and print a per-population overview", tf_cmd_check},
     {"simulate", "draw a survey from a population model with given parameters", tf_cmd_simulate},
     {"likelihood", "estimate the log-likelihood of a survey at given parameters", tf_cmd_likelihood},

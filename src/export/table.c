@@ -347,6 +347,18 @@ const char *tf_table_name(const tf_table *t)
     return t->name;
 }
 
+tf_status tf_table_set_name(tf_table *t, const char *name, tf_error *err)
+{
+    if (!name || !name[0])
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "a table needs a non-empty name");
+    char *d = dup_str(name);
+    if (!d)
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory naming table '%s'", name);
+    free(t->name);
+    t->name = d;
+    return TF_OK;
+}
+
 size_t tf_table_n_columns(const tf_table *t)
 {
     return t->n_cols;

@@ -44,6 +44,10 @@ tf_table *tf_table_new(const char *name, tf_error *err);
 /* Accepts NULL. */
 void tf_table_free(tf_table *t);
 
+/* Renames the table (a copy of name; required, non-empty), e.g. to tell apart the same table of
+ * several populations. TF_ERR_INVALID for an empty name, TF_ERR_NOMEM; the old name stays then. */
+tf_status tf_table_set_name(tf_table *t, const char *name, tf_error *err);
+
 /* Appends a column. header (required, non-empty) is the column's title; legend (may be NULL) is
  * one line saying what the column means and its units. Columns must all be added before the
  * first row (TF_ERR_INVALID otherwise). Copies both strings. On success stores the new column's

@@ -920,6 +920,9 @@ tf_status tf_workbook_add_chart(tf_workbook *wb, const tf_chart_spec *spec, tf_e
     size_t n_rows = spec->n_rows ? spec->n_rows : d->n_rows - spec->first_row;
     if (n_rows > d->n_rows - spec->first_row)
         return bad_spec(wb, err, "rows beyond the end of the table");
+    size_t stride = spec->series_stride;
+    if (stride && (!spec->n_rows || (d->n_rows - spec->first_row - n_rows) / stride < spec->n_series - 1))
+        return bad_spec(wb, err, "a series' block of rows lies beyond the end of the table");
     lxw_row_t at_row;
     lxw_col_t at_col;
     if (spec->anchor) {
@@ -944,8 +947,9 @@ tf_status tf_workbook_add_chart(tf_workbook *wb, const tf_chart_spec *spec, tf_e
         lxw_chart_series *se = chart_add_series(ch, NULL, NULL);
         if (!se)
             return nomem(wb, err);
-        chart_series_set_categories(se, d->name, r0, xc, r1, xc);
-        chart_series_set_values(se, d->name, r0, (lxw_col_t)cs->column, r1, (lxw_col_t)cs->column);
+        lxw_row_t s0 = r0 + (lxw_row_t)(k * stride), s1 = r1 + (lxw_row_t)(k * stride);
+        chart_series_set_categories(se, d->name, s0, xc, s1, xc);
+        chart_series_set_values(se, d->name, s0, (lxw_col_t)cs->column, s1, (lxw_col_t)cs->column);
         if (cs->name) {
             const char *nm = keep(wb, cs->name);
             if (!nm)
@@ -1004,7 +1008,8 @@ tf_status tf_workbook_add_chart(tf_workbook *wb, const tf_chart_spec *spec, tf_e
         const double *xv = d->values[xc];
         if (xv) {   /* years or whole numbers: a tight axis without decimals */
             double lo = INFINITY, hi = -INFINITY;
-            for (size_t i = spec->first_row; i < spec->first_row + n_rows; i++)
+            size_t end = spec->first_row + n_rows + (spec->n_series - 1) * stride;
+            for (size_t i = spec->first_row; i < end; i++)
                 if (isfinite(xv[i])) {
                     lo = fmin(lo, xv[i]);
                     hi = fmax(hi, xv[i]);

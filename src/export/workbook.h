@@ -102,6 +102,10 @@ typedef struct {
     size_t n_series;        /* at least 1 */
     size_t first_row;       /* first table row plotted (0 = the first data row) */
     size_t n_rows;          /* rows plotted; 0 = every row from first_row on */
+    /* For a table in long form (one block of rows per threshold, say): when > 0, series k plots
+     * the n_rows rows from first_row + k * series_stride, so each series gets its own block.
+     * n_rows must then be given. 0 = every series plots the same rows. */
+    size_t series_stride;
     const tf_sheet *place;  /* sheet the chart is drawn on; NULL = the data sheet */
     const char *anchor;     /* top-left cell such as "H3"; NULL = right of the table, below earlier charts */
 } tf_chart_spec;

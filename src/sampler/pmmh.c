@@ -1,12 +1,16 @@
 /* The PMMH run: pilot, particle tuning, parallel chains, and the fit they make; see pmmh.h. */
 #include "sampler/pmmh.h"
 
+
 #include <math.h>
 #include <pthread.h>
 #include <stdatomic.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+
+/* Further plausible pilot draws a chain tries before it gives up on starting (see run_main). */
+#define START_RETRIES 16
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_sort.h>
@@ -255,6 +259,14 @@ static tf_status run_main(job *j)
     tf_status st = tf_chain_init(j->chain, z0, r->pilot_cov, &j->rng, NULL);
     if (st == TF_ERR_NUMERIC) /* the pilot's end point failed with the new filter: try the centre */
         st = tf_chain_init(j->chain, r->centre_z, r->pilot_cov, &j->rng, NULL);
+    /* One estimate of -inf at a plausible point is bad luck with the random numbers, not a verdict
+     * on the point (a rare event at the tuned particle count, seen with the rounding of unoptimised
+     * builds). Where the chain starts does not affect which distribution it converges to, so try
+     * further plausible pilot draws, each with fresh random numbers from this chain's own stream
+     * (the run stays reproducible). */
+    for (size_t a = 0; st == TF_ERR_NUMERIC && a < START_RETRIES && r->n_plausible; a++)
+        st = tf_chain_init(j->chain, pooled_z(r, r->plausible[(j->index + 7 * a) % r->n_plausible]),
+                           r->pilot_cov, &j->rng, NULL);
     if (st != TF_OK)
         return tf_error_add(&j->err, st, NULL, 0, 0, NULL,
                             "chain %zu could not start its exact phase: the likelihood estimate "

@@ -145,6 +145,30 @@ START_TEST(set_binds_to_the_model)
 }
 END_TEST
 
+/* Output names: common practice for portable file names (POSIX portable filename character set,
+ * letters, digits, '.', '_' and '-'), no source beyond that. */
+START_TEST(output_names_are_portable)
+{
+    char buf[64];
+    tf_args_safe_name("north valley/2", buf, sizeof buf);
+    ck_assert_str_eq(buf, "north_valley_2");
+    tf_args_safe_name(".hidden", buf, sizeof buf);
+    ck_assert_str_eq(buf, "_hidden");
+    tf_args_safe_name("", buf, sizeof buf);
+    ck_assert_str_eq(buf, "_");
+    tf_args_safe_name("abcdef", buf, 4);
+    ck_assert_str_eq(buf, "abc");
+    tf_args_survey_name("surveys/heron-colony.CSV", buf, sizeof buf);
+    ck_assert_str_eq(buf, "heron-colony");
+    tf_args_survey_name("-", buf, sizeof buf);
+    ck_assert_str_eq(buf, "stdin");
+    tf_args_survey_name("dir/.csv", buf, sizeof buf);
+    ck_assert_str_eq(buf, ".csv");
+    tf_args_survey_name("dir/", buf, sizeof buf);
+    ck_assert_str_eq(buf, "survey");
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("args");
@@ -153,6 +177,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, pairs_parse_and_accumulate);
     tcase_add_test(tc, numbers_lists_and_seeds);
     tcase_add_test(tc, set_binds_to_the_model);
+    tcase_add_test(tc, output_names_are_portable);
     suite_add_tcase(s, tc);
     return s;
 }

@@ -1,0 +1,393 @@
+/* The main job, population by population: the comparison (which fits every candidate), the
+ * model-averaged abundance and trend, and the model-averaged projection; see analysis.h. */
+#include "analysis/analysis.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "analysis/average.h"
+
+const size_t tf_analysis_risk_years[TF_ANALYSIS_N_RISK_YEARS] = {10, 20, 50};
+
+/* Default candidates. The theta-logistic is left out: its shape theta and growth rate trade off
+ * so closely that a few decades of counts rarely tell them apart (Clark, Brook, Delean, Akcakaya
+ * & Bradshaw 2010, "The theta-logistic is unreliable for modelling most census data", Methods in
+ * Ecology and Evolution 1:253; recalled from memory), and its chains need several times longer
+ * to converge; --models adds it. For whole counts, Poisson and negative binomial counting error
+ * cover counts without and with extra variation; the rounded log-normal (lognormal-int) tells
+ * little more and costs about three times as much per likelihood estimate, so --obs adds it.
+ * Amounts that are not whole numbers leave only the continuous log-normal. */
+static const char *const default_growth[] = {"exponential", "ricker", "gompertz"};
+static const char *const default_obs_counts[] = {"poisson", "negbin"};
+static const char *const default_obs_amounts[] = {"lognormal"};
+/* Kept draws per chain: half the fit command's, with its warm-up and thinning. analyze fits
+ * every candidate, so time counts six times over; on the demo surveys 4 chains of 2500 draws
+ * (20000 iterations at thinning 8) still give every default candidate bulk and tail ESS of
+ * 700 and more (above the 400 of Vehtari et al. 2021), and the marginal likelihoods move by
+ * less than their standard errors (measured on surveys/heron-colony.csv). */
+#define DEFAULT_KEPT 2500
+/* Quasi-extinction thresholds relative to each run's start, so that one default serves colonies
+ * of tens and herds of thousands (common practice, no source). */
+#define DEFAULT_THRESHOLDS "50%,20%,10%"
+
+#define N_OF(a) (sizeof(a) / sizeof((a)[0]))
+
+struct tf_analysis_pop {
+    const tf_series *s;
+    tf_comparison *cmp;
+    tf_analysis_model *models;
+    size_t n_models, best;
+    const tf_growth_type *growth[TF_ANALYSIS_MAX_MODELS];
+    double growth_prob[TF_ANALYSIS_MAX_MODELS];
+    size_t n_growth, best_growth;
+    tf_analysis_year *years;
+    tf_analysis_trend trend;
+    tf_projection *proj;
+    double seconds;
+};
+
+struct tf_analysis {
+    tf_analysis_options opt;
+    tf_analysis_pop *pops;
+    size_t n_pops;
+};
+
+tf_status tf_analysis_options_init(tf_analysis_options *o, tf_error *err)
+{
+    memset(o, 0, sizeof *o);
+    o->n_growth = N_OF(default_growth);
+    for (size_t i = 0; i < o->n_growth; i++)
+        o->growth[i] = default_growth[i];
+    o->fit = tf_pmmh_default_options();
+    o->fit.n_iter = DEFAULT_KEPT;
+    o->evidence = tf_evidence_default_options();
+    tf_project_options_init(&o->project);
+    o->seed = 1;
+    o->n_threads = 1;
+    return tf_project_parse_thresholds(DEFAULT_THRESHOLDS, o->project.thresholds, TF_PROJECT_MAX_THRESHOLDS,
+                                       &o->project.n_thresholds, err);
+}
+
+void tf_analysis_free(tf_analysis *a)
+{
+    if (!a)
+        return;
+    for (size_t i = 0; i < a->n_pops; i++) {
+        tf_analysis_pop *p = &a->pops[i];
+        tf_comparison_free(p->cmp);
+        tf_projection_free(p->proj);
+        free(p->models);
+        free(p->years);
+    }
+    free(a->pops);
+    free(a);
+}
+
+static double seconds_since(const struct timespec *t0)
+{
+    struct timespec t;
+    clock_gettime(CLOCK_MONOTONIC, &t);
+    return (double)(t.tv_sec - t0->tv_sec) + 1e-9 * (double)(t.tv_nsec - t0->tv_nsec);
+}
+
+/* ---- progress, forwarded from the comparison's workers ---- */
+
+typedef struct {
+    tf_analysis_progress_fn fn;
+    void *ctx;
+    tf_analysis_event ev;   /* population fields filled in; the rest per call */
+} progress_relay;
+
+static void relay_compare(void *ctx, size_t index, const char *model_name, tf_compare_event ev, double seconds)
+{
+    (void)index;
+    progress_relay *r = ctx;
+    if (ev != TF_COMPARE_DONE && ev != TF_COMPARE_FAILED)
+        return;
+    /* The comparison calls one at a time under its lock, so the shared event is safe. */
+    tf_analysis_event e = r->ev;
+    e.stage = TF_ANALYSIS_MODEL_DONE;
+    e.model = model_name;
+    e.failed = ev == TF_COMPARE_FAILED;
+    e.seconds = seconds;
+    r->fn(r->ctx, &e);
+}
+
+static void report(progress_relay *r, tf_analysis_stage stage, double seconds)
+{
+    if (!r->fn)
+        return;
+    tf_analysis_event e = r->ev;
+    e.stage = stage;
+    e.seconds = seconds;
+    r->fn(r->ctx, &e);
+}
+
+/* ---- model averages ---- */
+
+/* Quantile levels of the year and trend summaries, in the order q025, q25, median, q75, q975. */
+static const double levels[] = {0.025, 0.25, 0.5, 0.75, 0.975};
+
+/* Fills p->years and p->trend from the paths of the fitted models, each draw of model m weighted
+ * by prob_m / n_draws_m. */
+static tf_status average(tf_analysis_pop *p, tf_error *err)
+{
+    size_t ny = tf_series_n_years(p->s), total = 0;
+    for (size_t i = 0; i < p->n_models; i++)
+        if (p->models[i].probability > 0)
+            total += tf_fit_n_draws(p->models[i].fit);
+    p->years = calloc(ny, sizeof *p->years);
+    tf_average_point *pts = malloc((total ? total : 1) * sizeof *pts);
+    if (!p->years || !pts) {
+        free(pts);
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory averaging the models");
+    }
+    const double *y = tf_series_counts(p->s), *e = tf_series_effort(p->s);
+    for (size_t t = 0; t < ny; t++) {
+        size_t k = 0;
+        for (size_t i = 0; i < p->n_models; i++) {
+            const tf_analysis_model *m = &p->models[i];
+            if (!(m->probability > 0))
+                continue;
+            size_t nd = tf_fit_n_draws(m->fit);
+            const double *paths = tf_fit_paths(m->fit);
+            double w = m->probability / (double)nd;
+            for (size_t d = 0; d < nd; d++)
+                pts[k++] = (tf_average_point){paths[d * ny + t], w};
+        }
+        /* Quantiles of x, then exp: the same order as the fit's own year summaries. */
+        double q[N_OF(levels)];
+        tf_average_quantiles(pts, k, levels, N_OF(levels), q);
+        tf_analysis_year *ys = &p->years[t];
+        ys->year = tf_series_first_year(p->s) + (int)t;
+        ys->count = y[t];
+        ys->effort = e[t];
+        ys->q025 = exp(q[0]);
+        ys->q25 = exp(q[1]);
+        ys->median = exp(q[2]);
+        ys->q75 = exp(q[3]);
+        ys->q975 = exp(q[4]);
+    }
+    size_t k = 0;
+    for (size_t i = 0; i < p->n_models; i++) {
+        const tf_analysis_model *m = &p->models[i];
+        if (!(m->probability > 0))
+            continue;
+        size_t nd = tf_fit_n_draws(m->fit);
+        const double *paths = tf_fit_paths(m->fit);
+        double w = m->probability / (double)nd;
+        for (size_t d = 0; d < nd; d++) {
+            const double *x = paths + d * ny;
+            pts[k++] = (tf_average_point){expm1((x[ny - 1] - x[0]) / (double)(ny - 1)), w};
+        }
+    }
+    tf_average_moments(pts, k, &p->trend.mean, &p->trend.p_decline);
+    double q[N_OF(levels)];
+    tf_average_quantiles(pts, k, levels, N_OF(levels), q);
+    p->trend.q025 = q[0];
+    p->trend.median = q[2];
+    p->trend.q975 = q[4];
+    free(pts);
+    return TF_OK;
+}
+
+/* ---- one population ---- */
+
+static tf_status project(tf_analysis_pop *p, const tf_analysis_options *o, const volatile sig_atomic_t *stop,
+                         tf_error *err)
+{
+    tf_project_input in[TF_ANALYSIS_MAX_MODELS];
+    double *starts[TF_ANALYSIS_MAX_MODELS] = {0};
+    size_t n_in = 0, ny = tf_series_n_years(p->s);
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < p->n_models && n_in < TF_PROJECT_MAX_INPUTS; i++) {
+        const tf_analysis_model *m = &p->models[i];
+        if (!(m->probability > 0))
+            continue;
+        size_t nd = tf_fit_n_draws(m->fit);
+        if (!(starts[n_in] = malloc(nd * sizeof(double)))) {
+            st = tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for the projection");
+            goto done;
+        }
+        tf_fit_year_draws(m->fit, ny - 1, starts[n_in]);
+        in[n_in] = (tf_project_input){
+            .growth = m->growth,
+            .sigma_index = tf_model_sigma_index(tf_fit_model(m->fit)),
+            .n_params = tf_fit_n_params(m->fit),
+            .n_draws = nd,
+            .draws = tf_fit_draws(m->fit),
+            .x_last = starts[n_in],
+            .weight = m->probability,
+        };
+        n_in++;
+    }
+    tf_project_options po = o->project;
+    po.stop = stop;
+    /* Its own stream, keyed by the population: the same futures alone or among others. */
+    uint64_t keys[2] = {tf_rng_key("projection"), tf_rng_key(tf_series_label(p->s))};
+    tf_rng rng;
+    tf_rng_derive(&rng, o->seed, keys, 2);
+    st = tf_project_run(in, n_in, &po, &rng, &p->proj, err);
+done:
+    for (size_t i = 0; i < TF_ANALYSIS_MAX_MODELS; i++)
+        free(starts[i]);
+    return st;
+}
+
+/* The counting-error names for series s under the options; *n_out = 0 means let the comparison
+ * choose every suitable one. */
+static void obs_names(const tf_analysis_options *o, const tf_series *s, const char *const **names, size_t *n_out)
+{
+    if (o->obs_auto) {
+        *names = NULL;
+        *n_out = 0;
+    } else if (o->n_obs) {
+        *names = o->obs;
+        *n_out = o->n_obs;
+    } else if (tf_series_first_fractional(s) == tf_series_n_years(s)) {
+        *names = default_obs_counts;
+        *n_out = N_OF(default_obs_counts);
+    } else {
+        *names = default_obs_amounts;
+        *n_out = N_OF(default_obs_amounts);
+    }
+}
+
+static tf_status run_population(tf_analysis_pop *p, const tf_analysis_options *o, const volatile sig_atomic_t *stop,
+                                progress_relay *relay, tf_error *err)
+{
+    struct timespec t0;
+    clock_gettime(CLOCK_MONOTONIC, &t0);
+    report(relay, TF_ANALYSIS_STARTED, 0);
+    tf_compare_options co = tf_compare_default_options();
+    co.growth = o->n_growth ? o->growth : NULL;
+    co.n_growth = o->n_growth;
+    obs_names(o, p->s, &co.obs, &co.n_obs);
+    co.fit = o->fit;
+    co.fit.seed = o->seed;
+    co.evidence = o->evidence;
+    co.evidence.seed = o->seed;
+    co.n_threads = o->n_threads;
+    co.priors = o->priors;
+    co.priors_ctx = o->priors_ctx;
+    if (relay->fn) {
+        co.progress = relay_compare;
+        co.progress_ctx = relay;
+    }
+    const char *label = tf_series_label(p->s);
+    tf_status st = tf_compare_run(p->s, &co, stop, &p->cmp, err);
+    if (st != TF_OK) {
+        if (st != TF_ERR_INTERRUPTED && label[0])
+            tf_error_add(err, st, NULL, 0, 0, NULL, "population '%s' could not be analysed", label);
+        return st;
+    }
+    size_t n = tf_comparison_n_models(p->cmp);
+    p->models = calloc(n ? n : 1, sizeof *p->models);
+    if (!p->models)
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    p->n_models = n;
+    for (size_t i = 0; i < n; i++) {
+        tf_analysis_model *m = &p->models[i];
+        m->name = tf_comparison_name(p->cmp, i);
+        m->growth = tf_comparison_growth(p->cmp, i);
+        m->obs = tf_comparison_obs(p->cmp, i);
+        m->state = tf_comparison_state(p->cmp, i);
+        m->note = tf_comparison_note(p->cmp, i);
+        if (m->state == TF_CANDIDATE_FITTED) {
+            m->fit = tf_comparison_fit(p->cmp, i);
+            m->evidence = tf_comparison_evidence(p->cmp, i);
+            double prob = tf_comparison_figures(p->cmp, i)->prob;
+            m->probability = isfinite(prob) && prob > 0 ? prob : 0;
+        }
+    }
+    p->best = tf_comparison_best(p->cmp);
+    if (p->best >= n) {
+        char where[160] = "";
+        if (label[0])
+            snprintf(where, sizeof where, " of population '%s'", label);
+        return tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, "see the notes of 'tallyfit compare' on the same file",
+                            "no candidate model%s could be fitted", where);
+    }
+    /* The best by probability equals the best by evidence under equal prior weights; read it
+     * from the probabilities so that it stays right if weights are ever given. */
+    for (size_t i = 0; i < n; i++)
+        if (p->models[i].probability > p->models[p->best].probability)
+            p->best = i;
+    for (size_t i = 0; i < n; i++) {
+        const tf_analysis_model *m = &p->models[i];
+        if (m->state == TF_CANDIDATE_EXCLUDED)
+            continue;
+        size_t g = 0;
+        while (g < p->n_growth && p->growth[g] != m->growth)
+            g++;
+        if (g == p->n_growth)
+            p->growth[p->n_growth++] = m->growth;
+        p->growth_prob[g] += m->probability;
+    }
+    for (size_t g = 1; g < p->n_growth; g++)
+        if (p->growth_prob[g] > p->growth_prob[p->best_growth])
+            p->best_growth = g;
+    if ((st = average(p, err)) != TF_OK)
+        return st;
+    report(relay, TF_ANALYSIS_PROJECTING, seconds_since(&t0));
+    if ((st = project(p, o, stop, err)) != TF_OK)
+        return st;
+    p->seconds = seconds_since(&t0);
+    report(relay, TF_ANALYSIS_DONE, p->seconds);
+    return TF_OK;
+}
+
+tf_status tf_analysis_run(const tf_survey *sv, const tf_analysis_options *options, const volatile sig_atomic_t *stop,
+                          tf_analysis_progress_fn progress, void *progress_ctx, tf_analysis **out, tf_error *err)
+{
+    *out = NULL;
+    if (!options->priors || options->n_threads < 1)
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "analysis: no priors callback or no thread");
+    const tf_series *only = NULL;
+    if (options->population && !(only = tf_survey_find(sv, options->population)))
+        return tf_error_add(err, TF_ERR_USAGE, tf_survey_path(sv), 0, 0,
+                            "run 'tallyfit check' on the file to list its populations", "no population named '%s'",
+                            options->population);
+    tf_analysis *a = calloc(1, sizeof *a);
+    size_t n = only ? 1 : tf_survey_n_series(sv);
+    if (!a || !(a->pops = calloc(n, sizeof *a->pops))) {
+        free(a);
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    }
+    a->opt = *options;
+    a->n_pops = n;
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < n && st == TF_OK; i++) {
+        tf_analysis_pop *p = &a->pops[i];
+        p->s = only ? only : tf_survey_series(sv, i);
+        progress_relay relay = {.fn = progress, .ctx = progress_ctx,
+                                .ev = {.population = i, .n_populations = n, .label = tf_series_label(p->s)}};
+        st = run_population(p, options, stop, &relay, err);
+    }
+    if (st != TF_OK) {
+        tf_analysis_free(a);
+        return st;
+    }
+    *out = a;
+    return TF_OK;
+}
+
+const tf_analysis_options *tf_analysis_options_of(const tf_analysis *a) { return &a->opt; }
+size_t tf_analysis_n_populations(const tf_analysis *a) { return a->n_pops; }
+const tf_analysis_pop *tf_analysis_population(const tf_analysis *a, size_t i) { return i < a->n_pops ? &a->pops[i] : NULL; }
+
+const tf_series *tf_analysis_pop_series(const tf_analysis_pop *p) { return p->s; }
+const tf_comparison *tf_analysis_pop_comparison(const tf_analysis_pop *p) { return p->cmp; }
+size_t tf_analysis_pop_n_models(const tf_analysis_pop *p) { return p->n_models; }
+const tf_analysis_model *tf_analysis_pop_model(const tf_analysis_pop *p, size_t i) { return &p->models[i]; }
+size_t tf_analysis_pop_best(const tf_analysis_pop *p) { return p->best; }
+size_t tf_analysis_pop_n_growth(const tf_analysis_pop *p) { return p->n_growth; }
+const tf_growth_type *tf_analysis_pop_growth(const tf_analysis_pop *p, size_t i) { return p->growth[i]; }
+double tf_analysis_pop_growth_probability(const tf_analysis_pop *p, size_t i) { return p->growth_prob[i]; }
+size_t tf_analysis_pop_best_growth(const tf_analysis_pop *p) { return p->best_growth; }
+const tf_analysis_year *tf_analysis_pop_year(const tf_analysis_pop *p, size_t i) { return &p->years[i]; }
+const tf_analysis_trend *tf_analysis_pop_trend(const tf_analysis_pop *p) { return &p->trend; }
+const tf_projection *tf_analysis_pop_projection(const tf_analysis_pop *p) { return p->proj; }
+double tf_analysis_pop_seconds(const tf_analysis_pop *p) { return p->seconds; }

@@ -1,0 +1,147 @@
+/* The main job for one survey: for each population, fit every candidate model (each growth model
+ * with each counting-error model that suits the counts), compare them by marginal likelihood,
+ * project forward averaging the models by their posterior probabilities, and keep everything
+ * the report and the printed summary show. Nothing here prints or writes files. */
+#ifndef TF_ANALYSIS_H
+#define TF_ANALYSIS_H
+
+#include <signal.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include "compare/compare.h"
+#include "model/model.h"
+#include "project/project.h"
+#include "sampler/fit.h"
+#include "survey/survey.h"
+#include "util/error.h"
+
+/* The most growth or counting-error names one analysis takes. */
+#define TF_ANALYSIS_MAX_NAMES 16
+/* The most candidate models of one population. */
+#define TF_ANALYSIS_MAX_MODELS TF_COMPARE_MAX_MODELS
+
+/* Windows (years ahead) at which the risk of falling below each threshold is reported. */
+#define TF_ANALYSIS_N_RISK_YEARS 3
+extern const size_t tf_analysis_risk_years[TF_ANALYSIS_N_RISK_YEARS];
+
+typedef struct {
+    /* Candidate growth models by name; n_growth = 0: every growth model. */
+    size_t n_growth;
+    const char *growth[TF_ANALYSIS_MAX_NAMES];
+    /* Candidate counting-error models by name. n_obs = 0: the defaults of analysis.c (Poisson
+     * and negative binomial for whole counts, the log-normal for other amounts); obs_auto: every
+     * model that suits the counts, as the comparison chooses them (then n_obs is ignored). */
+    size_t n_obs;
+    const char *obs[TF_ANALYSIS_MAX_NAMES];
+    int obs_auto;
+    /* Sampler and marginal-likelihood settings of every fit; their seeds and thread counts are
+     * replaced by seed and n_threads below. */
+    tf_pmmh_options fit;
+    tf_evidence_options evidence;
+    /* Projection: horizon, runs, thresholds, declines (its stop is set by tf_analysis_run). */
+    tf_project_options project;
+    uint64_t seed;
+    size_t n_threads;       /* >= 1; the results do not depend on it */
+    const char *population; /* analyse only this population; NULL = all of them */
+    /* Builds each candidate's priors (required; see tf_compare_priors_fn). */
+    tf_compare_priors_fn priors;
+    void *priors_ctx;
+} tf_analysis_options;
+
+/* The defaults analyze uses (the reasons are in analysis.c): the exponential, Ricker and
+ * Gompertz growth models, Poisson and negative binomial counting error for whole counts
+ * (log-normal otherwise), the sampler's defaults with 2500 kept draws per chain, the marginal
+ * likelihood's own defaults, a 50-year
+ * projection with thresholds of 50 %, 20 % and 10 % of the current abundance, seed 1, one
+ * thread, no priors callback (the caller sets one). Returns TF_OK; fills err only if the
+ * default thresholds could not be read (never, short of a bug). */
+tf_status tf_analysis_options_init(tf_analysis_options *o, tf_error *err);
+
+/* What a progress callback hears. */
+typedef enum {
+    TF_ANALYSIS_STARTED,     /* a population's comparison begins */
+    TF_ANALYSIS_MODEL_DONE,  /* a candidate is fitted (or failed): model names it */
+    TF_ANALYSIS_PROJECTING,  /* the comparison is done; the projection runs */
+    TF_ANALYSIS_DONE,        /* the population is done */
+} tf_analysis_stage;
+typedef struct {
+    tf_analysis_stage stage;
+    size_t population, n_populations;
+    const char *label;      /* the population's label ("" = unnamed) */
+    const char *model;      /* TF_ANALYSIS_MODEL_DONE: the candidate's name; else NULL */
+    int failed;             /* TF_ANALYSIS_MODEL_DONE: 1 when its fit failed */
+    double seconds;         /* since the population started */
+} tf_analysis_event;
+/* Called one call at a time, from the calling thread or from a worker thread of the
+ * comparison; it must not call back into the analysis. */
+typedef void (*tf_analysis_progress_fn)(void *ctx, const tf_analysis_event *e);
+
+/* One candidate model of one population, as the comparison left it. */
+typedef struct {
+    const char *name;             /* "gompertz+poisson" */
+    const tf_growth_type *growth;
+    const tf_obs_type *obs;
+    tf_candidate_state state;
+    const char *note;             /* why it was excluded or failed, or a caution; "" when none */
+    const tf_fit *fit;            /* NULL unless fitted */
+    const tf_evidence *evidence;  /* NULL unless fitted */
+    double probability;           /* posterior model probability; 0 unless fitted */
+} tf_analysis_model;
+
+/* Model-averaged posterior of the abundance in one year of the series. */
+typedef struct {
+    int year;
+    double count, effort;         /* count NAN when the year was not surveyed */
+    double median, q25, q75, q025, q975;
+} tf_analysis_year;
+
+/* Model-averaged average annual change over the survey period, as a fraction per year
+ * (-0.02 = 2 % decline a year): per draw exp((x_last - x_first) / (n_years - 1)) - 1. */
+typedef struct {
+    double mean, median, q025, q975;
+    double p_decline;             /* posterior probability of a negative change */
+} tf_analysis_trend;
+
+typedef struct tf_analysis tf_analysis;
+typedef struct tf_analysis_pop tf_analysis_pop;
+
+/* Runs the job on every population of sv (or options->population only). Each population's
+ * streams are derived from the seed and its label, so a population gets the same results
+ * alone or among others and for any thread count. stop: polled throughout; when it becomes
+ * non-zero the run ends within a fraction of a second with TF_ERR_INTERRUPTED. progress may be
+ * NULL. On success *out holds the results (free with tf_analysis_free; it borrows sv).
+ * Errors: TF_ERR_USAGE (unknown model name or population), TF_ERR_INVALID (no candidate model
+ * suits a population's counts, naming the file and line), TF_ERR_NUMERIC (every fit of a
+ * population failed), TF_ERR_NOMEM, TF_ERR_INTERRUPTED, or the model files' errors. */
+tf_status tf_analysis_run(const tf_survey *sv, const tf_analysis_options *options, const volatile sig_atomic_t *stop,
+                          tf_analysis_progress_fn progress, void *progress_ctx, tf_analysis **out, tf_error *err);
+void tf_analysis_free(tf_analysis *a);   /* accepts NULL */
+
+const tf_analysis_options *tf_analysis_options_of(const tf_analysis *a);
+size_t tf_analysis_n_populations(const tf_analysis *a);
+const tf_analysis_pop *tf_analysis_population(const tf_analysis *a, size_t i);
+
+const tf_series *tf_analysis_pop_series(const tf_analysis_pop *p);
+/* The comparison behind the population's models (for its table). */
+const tf_comparison *tf_analysis_pop_comparison(const tf_analysis_pop *p);
+size_t tf_analysis_pop_n_models(const tf_analysis_pop *p);
+const tf_analysis_model *tf_analysis_pop_model(const tf_analysis_pop *p, size_t i);
+/* The fitted model of highest posterior probability. */
+size_t tf_analysis_pop_best(const tf_analysis_pop *p);
+/* The growth models among the fitted or failed candidates, in candidate order, with the summed
+ * probability of their candidates. */
+size_t tf_analysis_pop_n_growth(const tf_analysis_pop *p);
+const tf_growth_type *tf_analysis_pop_growth(const tf_analysis_pop *p, size_t i);
+double tf_analysis_pop_growth_probability(const tf_analysis_pop *p, size_t i);
+/* The growth model of highest summed probability (index as above). */
+size_t tf_analysis_pop_best_growth(const tf_analysis_pop *p);
+/* Model-averaged abundance per year (n_years of the series) and trend. */
+const tf_analysis_year *tf_analysis_pop_year(const tf_analysis_pop *p, size_t i);
+const tf_analysis_trend *tf_analysis_pop_trend(const tf_analysis_pop *p);
+/* The model-averaged projection from the last survey year. */
+const tf_projection *tf_analysis_pop_projection(const tf_analysis_pop *p);
+/* Seconds the population took. */
+double tf_analysis_pop_seconds(const tf_analysis_pop *p);
+
+#endif

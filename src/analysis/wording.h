@@ -1,0 +1,31 @@
+/* The plain sentences that say what an analysis found, shared by the report's first page and
+ * the lines analyze prints, so that both always say the same thing. */
+#ifndef TF_WORDING_H
+#define TF_WORDING_H
+
+#include <stddef.h>
+
+#include "analysis/analysis.h"
+#include "project/project.h"
+
+/* Writes a percentage for reading: v in percent, one decimal below 10 in size, none above, no
+ * trailing ".0" ("-2", "-0.5", "12"). buf of size >= 32. Returns buf. */
+char *tf_wording_percent(double v, char *buf, size_t size);
+
+/* Writes a probability for reading: "less than 1 %", "more than 99 %", else "about N %" with N
+ * the nearest whole percent. buf of size >= 32. Returns buf. */
+char *tf_wording_chance(double p, char *buf, size_t size);
+
+/* The sentence on the average annual change over first_year..last_year ("The counts point to a
+ * decline of about 2 % a year (95 % interval -4 % to -0.5 %) over 1996-2025."). */
+void tf_wording_trend(const tf_analysis_trend *t, int first_year, int last_year, char *buf, size_t size);
+
+/* The threshold for reading: "100 animals" or "20 % of the current abundance". */
+void tf_wording_threshold(const tf_threshold *t, char *buf, size_t size);
+
+/* The sentence on the chance of falling below threshold t within years years ("Averaging the
+ * models by their support, the chance of falling below 100 animals within 20 years is about
+ * 12 %."). */
+void tf_wording_risk(const tf_threshold *t, size_t years, double p, char *buf, size_t size);
+
+#endif

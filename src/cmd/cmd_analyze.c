@@ -1,0 +1,399 @@
+/* `tallyfit analyze`: the main job. Validates a survey, fits and compares the candidate models
+ * of each population, projects with model averaging, and writes a workbook with CSV twins of
+ * every table; prints where the files are and a few plain lines per population. */
+#define _GNU_SOURCE
+#include <getopt.h>
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "analysis/analysis.h"
+#include "analysis/provenance.h"
+#include "analysis/sheets.h"
+#include "cmd/args.h"
+#include "cmd/cmd.h"
+#include "cmd/setup.h"
+#include "export/atomic.h"
+#include "export/report.h"
+#include "project/cautions.h"
+#include "survey/survey.h"
+#include "util/error.h"
+
+#define CMD "analyze"
+#define PROG "tallyfit " CMD
+#define DEFAULT_DIR "output"
+/* Limits that only guard memory and time against typos. */
+#define MAX_ITER 10000000
+#define MAX_PARTICLES 10000000
+#define MAX_DRAWS 10000000
+#define MAX_RUNS 10000000
+#define MAX_THREADS 256
+
+/* Set by the SIGINT / SIGTERM handler and polled by the chains, the importance sampler, the
+ * projection and the writer: a signal handler has no other way to reach the running code
+ * (C11 7.14.1.1). */
+static volatile sig_atomic_t interrupted;
+
+static void on_signal(int sig)
+{
+    (void)sig;
+    interrupted = 1;
+}
+
+static void help(FILE *out, const tf_analysis_options *d)
+{
+    char growth[256], obs[256];
+    tf_model_list_growth(growth, sizeof growth);
+    tf_model_list_obs(obs, sizeof obs);
+    fprintf(out,
+            "usage: tallyfit analyze SURVEY.csv [-o DIR] [--threshold LIST] [--years H] [options]\n\n"
+            "The main job: checks the survey, fits each candidate state-space model to the counts of\n"
+            "every population by particle MCMC, compares the models by marginal likelihood, projects\n"
+            "the population forward averaging the models by their posterior probabilities, and writes\n"
+            "  DIR/<survey>.xlsx   a workbook: a first page for managers (abundance, trend, best model,\n"
+            "                      risk of falling below each threshold, cautions, provenance), then\n"
+            "                      per population counts, projection, risk, models, parameters,\n"
+            "                      sampler diagnostics and the raw draws, with charts\n"
+            "  DIR/<survey>/       the same tables as CSV files, and contents.csv naming them\n"
+            "and prints a few plain lines per population. Files are written only when everything\n"
+            "succeeded, and never over the survey file.\n\n"
+            "options:\n"
+            "  -o, --output DIR   folder for the results (default %s)\n"
+            "  --threshold LIST   quasi-extinction thresholds: animals, or percentages of the current\n"
+            "                     abundance, e.g. 50,100 or 20%% (default 50%%,20%%,10%%)\n"
+            "  --years H          years to project (default %zu)\n"
+            "  --population NAME  analyse only this population\n"
+            "  --models M,...     growth models to compare (default exponential,ricker,gompertz; 'all'\n"
+            "                     for every one of %s)\n"
+            "  --obs O,...        counting-error models (default poisson,negbin for whole counts,\n"
+            "                     lognormal otherwise; 'all' for every one of %s that suits)\n"
+            "  --seed S           random seed (default %llu); the same seed gives the same numbers\n"
+            "  --threads T        threads (default: the number of processors); the results do not\n"
+            "                     depend on T\n"
+            "  --chains C         chains per model (default %zu)\n"
+            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
+            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
+            "  --particles N      particles of the filter (default: tuned per model)\n"
+            "  --draws M          importance draws per density for each marginal likelihood (default %zu)\n"
+            "  --runs R           simulated futures (default: at least %d)\n"
+            "  -q, --quiet        print nothing but errors\n"
+            "  -h, --help         show this help\n\n"
+            "Exit status: 0 done, 1 the job could not be done, 2 bad command line, 3 unusable survey,\n"
+            "130 interrupted (nothing written).\n",
+            DEFAULT_DIR, d->project.horizon, growth, obs, (unsigned long long)d->seed, d->fit.n_chains, d->fit.n_iter * d->fit.thin,
+            d->fit.thin, d->fit.n_warmup, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS);
+}
+
+/* Splits the comma list text (copied into buf) into names; "all" gives *is_all = 1. Each name
+ * must be known to find (TF_ERR_USAGE with the known names in the hint). */
+static tf_status split_names(const char *opt, const char *text, char *buf, size_t size, const char **names, size_t *n,
+                             int *is_all, int growth, tf_error *err)
+{
+    *n = 0;
+    *is_all = 0;
+    if (snprintf(buf, size, "%s", text) >= (int)size)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: the list is too long", opt);
+    if (!strcmp(buf, "all")) {
+        *is_all = 1;
+        return TF_OK;
+    }
+    for (char *p = buf;;) {
+        char *end = strchr(p, ',');
+        if (end)
+            *end = '\0';
+        while (*p == ' ')
+            p++;
+        size_t len = strlen(p);
+        while (len && p[len - 1] == ' ')
+            p[--len] = '\0';
+        if (!len)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. ricker,gompertz", "%s: an empty name in '%s'", opt,
+                                text);
+        if (growth ? !tf_model_find_growth(p) : !tf_model_find_obs(p)) {
+            char known[256], hint[300];
+            if (growth)
+                tf_model_list_growth(known, sizeof known);
+            else
+                tf_model_list_obs(known, sizeof known);
+            snprintf(hint, sizeof hint, "known: %s, or all", known);
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: unknown model '%s'", opt, p);
+        }
+        if (*n >= TF_ANALYSIS_MAX_NAMES)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: too many names", opt);
+        names[(*n)++] = p;
+        if (!end)
+            break;
+        p = end + 1;
+    }
+    return TF_OK;
+}
+
+
+static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
+{
+    (void)ctx;
+    return tf_setup_priors(m, s, NULL, out, err);
+}
+
+/* Progress on stderr, for a terminal only. */
+static void show_progress(void *ctx, const tf_analysis_event *e)
+{
+    const char *label = e->label[0] ? e->label : (const char *)ctx;   /* the survey's name */
+    switch (e->stage) {
+    case TF_ANALYSIS_STARTED:
+        fprintf(stderr, "%s (%zu of %zu): fitting and comparing the models...\n", label, e->population + 1,
+                e->n_populations);
+        break;
+    case TF_ANALYSIS_MODEL_DONE:
+        fprintf(stderr, "  %s %s (%.0f s)\n", e->model, e->failed ? "failed" : "done", e->seconds);
+        break;
+    case TF_ANALYSIS_PROJECTING: fprintf(stderr, "  projecting...\n"); break;
+    case TF_ANALYSIS_DONE: fprintf(stderr, "  done in %.0f s\n", e->seconds); break;
+    }
+}
+
+static int exit_for(tf_status st)
+{
+    switch (st) {
+    case TF_OK: return TF_EXIT_OK;
+    case TF_ERR_USAGE:
+    case TF_ERR_UNSUPPORTED: return TF_EXIT_USAGE;
+    case TF_ERR_INTERRUPTED: return TF_EXIT_INTERRUPTED;
+    case TF_ERR_INVALID: return TF_EXIT_INPUT;
+    default: return TF_EXIT_FAIL;
+    }
+}
+
+/* The plain lines on one population. */
+static void print_population(const tf_analysis *a, size_t i, const char *title, FILE *out)
+{
+    const tf_analysis_pop *p = tf_analysis_population(a, i);
+    const tf_series *s = tf_analysis_pop_series(p);
+    const char *label = tf_series_label(s);
+    size_t n = tf_series_n_years(s);
+    const tf_analysis_year *last = tf_analysis_pop_year(p, n - 1);
+    size_t g = tf_analysis_pop_best_growth(p);
+    char text[2048];
+    fprintf(out, "%s\n", label[0] ? label : title);
+    /* Three significant digits, whole animals from 100 up. */
+    const char *fmt = last->q025 >= 100 ? "%.0f" : "%.3g";
+    char med[32], lo[32], hi[32];
+    snprintf(med, sizeof med, fmt, last->median);
+    snprintf(lo, sizeof lo, fmt, last->q025);
+    snprintf(hi, sizeof hi, fmt, last->q975);
+    int per_effort = tf_sheets_effort_varies(s);
+    fprintf(out, "  abundance in %d: about %s %s (95 %% interval %s to %s)\n", last->year, med,
+            per_effort ? "per unit of effort" : "animals", lo, hi);
+    fprintf(out, "  best-supported growth model: %s (probability %.2f)\n", tf_analysis_pop_growth(p, g)->label,
+            tf_analysis_pop_growth_probability(p, g));
+    tf_sheets_sentences(a, i, text, sizeof text);
+    /* Wrapped at spaces to about 92 columns for the terminal. */
+    const char *q = text;
+    while (*q) {
+        size_t len = strlen(q), cut = len;
+        if (len > 90) {
+            cut = 90;
+            while (cut > 0 && q[cut] != ' ')
+                cut--;
+            if (cut == 0)
+                cut = len;
+        }
+        fprintf(out, "  %.*s\n", (int)cut, q);
+        q += cut;
+        while (*q == ' ')
+            q++;
+    }
+    if (!tf_sheets_all_converged(p))
+        fprintf(out, "  caution: some fits did not pass the convergence checks; see the diagnostics sheet\n");
+}
+
+int tf_cmd_analyze(int argc, char **argv)
+{
+    enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS, OPT_ITER,
+           OPT_THIN, OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_RUNS };
+    static const struct option longopts[] = {
+        {"output", required_argument, NULL, 'o'},
+        {"threshold", required_argument, NULL, OPT_THRESHOLD},
+        {"years", required_argument, NULL, OPT_YEARS},
+        {"population", required_argument, NULL, OPT_POP},
+        {"models", required_argument, NULL, OPT_MODELS},
+        {"obs", required_argument, NULL, OPT_OBS},
+        {"seed", required_argument, NULL, OPT_SEED},
+        {"threads", required_argument, NULL, OPT_THREADS},
+        {"chains", required_argument, NULL, OPT_CHAINS},
+        {"iterations", required_argument, NULL, OPT_ITER},
+        {"thin", required_argument, NULL, OPT_THIN},
+        {"warmup", required_argument, NULL, OPT_WARMUP},
+        {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"draws", required_argument, NULL, OPT_DRAWS},
+        {"runs", required_argument, NULL, OPT_RUNS},
+        {"quiet", no_argument, NULL, 'q'},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0},
+    };
+    tf_error err;
+    tf_error_init(&err);
+    tf_analysis_options opt;
+    if (tf_analysis_options_init(&opt, &err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_FAIL;
+    }
+    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
+    opt.n_threads = n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    const char *out_dir = DEFAULT_DIR;
+    char growth_buf[1024], obs_buf[1024];
+    size_t n_particles = 0, iterations = opt.fit.n_iter * opt.fit.thin;
+    int quiet = 0;
+
+    opterr = 0;
+    optind = 0;
+    int c;
+    while ((c = getopt_long(argc, argv, ":o:qh", longopts, NULL)) != -1) {
+        int all = 0;
+        switch (c) {
+        case 'o': out_dir = optarg; break;
+        case OPT_THRESHOLD:
+            if (tf_project_parse_thresholds(optarg, opt.project.thresholds, TF_PROJECT_MAX_THRESHOLDS,
+                                            &opt.project.n_thresholds, &err) != TF_OK)
+                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --threshold 50,100,20%", "--threshold: bad list '%s'",
+                             optarg);
+            break;
+        case OPT_YEARS:
+            tf_args_parse_size("--years", optarg, 1, TF_PROJECT_MAX_HORIZON, &opt.project.horizon, &err);
+            break;
+        case OPT_POP: opt.population = optarg; break;
+        case OPT_MODELS:
+            split_names("--models", optarg, growth_buf, sizeof growth_buf, opt.growth, &opt.n_growth, &all, 1, &err);
+            if (all)
+                opt.n_growth = 0;
+            break;
+        case OPT_OBS:
+            split_names("--obs", optarg, obs_buf, sizeof obs_buf, opt.obs, &opt.n_obs, &opt.obs_auto, 0, &err);
+            break;
+        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
+        case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
+        case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
+        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
+        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, 1000, &opt.fit.thin, &err); break;
+        case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
+        case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
+        case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
+        case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;
+        case 'q': quiet = 1; break;
+        case 'h': help(stdout, &opt); return TF_EXIT_OK;
+        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
+        }
+    }
+    const char *path = NULL;
+    if (optind < argc)
+        path = argv[optind++];
+    if (optind < argc)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    if (!path && tf_error_status(&err) == TF_OK)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit analyze --help' for the usage", "no survey file given");
+    /* --iterations counts iterations, as fit and compare do; the sampler keeps every thin-th. */
+    opt.fit.n_iter = iterations / opt.fit.thin;
+    if (tf_error_status(&err) == TF_OK && opt.fit.n_iter < 1)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give more --iterations or a smaller --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.fit.thin);
+    if (path && !strcmp(path, "-"))
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
+                     "analyze needs a survey file: its name names the results and its hash is recorded");
+    if (tf_error_status(&err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_USAGE;
+    }
+    opt.fit.n_particles = opt.evidence.n_particles = n_particles;
+    opt.priors = default_priors;
+    /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion,
+     * as the compare command does. */
+    if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)
+        opt.evidence.n_adapt_draws = opt.evidence.n_draws;
+
+    char name[256], xlsx[4096], csv_dir[4096];
+    tf_args_survey_name(path, name, sizeof name);
+    int k1 = snprintf(xlsx, sizeof xlsx, "%s/%s.xlsx", out_dir, name);
+    int k2 = snprintf(csv_dir, sizeof csv_dir, "%s/%s", out_dir, name);
+    if (k1 < 0 || (size_t)k1 >= sizeof xlsx || k2 < 0 || (size_t)k2 >= sizeof csv_dir) {
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o folder", "the output path is too long");
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_USAGE;
+    }
+
+    int status = TF_EXIT_FAIL;
+    tf_survey *sv = NULL;
+    tf_analysis *a = NULL;
+    tf_report *r = NULL;
+    struct sigaction sa, old_int, old_term;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    interrupted = 0;
+    sigaction(SIGINT, &sa, &old_int);
+    sigaction(SIGTERM, &sa, &old_term);
+
+    tf_sheets_provenance prov = {.input_name = path, .title = name};
+    tf_status st;
+    if ((st = tf_survey_read(path, &sv, &err)) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
+    /* Before the long part: refuse a workbook that would land on the survey, and a file where
+     * the CSV folder goes. */
+    struct stat info;
+    if ((st = tf_atomic_check_target(xlsx, path, &err)) != TF_OK) {
+        status = exit_for(st);
+        goto out;
+    }
+    if (stat(csv_dir, &info) == 0 && !S_ISDIR(info.st_mode)) {
+        tf_error_add(&err, TF_ERR_IO, csv_dir, 0, 0, "move the file away or choose another -o folder",
+                     "the folder for the CSV tables is taken by a file");
+        goto out;
+    }
+    if ((st = tf_provenance_hash_file(path, prov.sha256, &err)) != TF_OK)
+        goto out;
+    tf_provenance_format_date(tf_provenance_now(), prov.date);
+    int show = !quiet && isatty(STDERR_FILENO);
+    if ((st = tf_analysis_run(sv, &opt, &interrupted, show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
+        status = exit_for(st);
+        goto out;
+    }
+    if (!(r = tf_report_new(&err)) || (st = tf_sheets_build(a, &prov, r, &err)) != TF_OK)
+        goto out;
+    if ((st = tf_report_write(r, xlsx, csv_dir, path, &interrupted, &err)) != TF_OK) {
+        status = exit_for(st);
+        goto out;
+    }
+    if (!quiet) {
+        for (size_t i = 0; i < tf_analysis_n_populations(a); i++)
+            print_population(a, i, name, stdout);
+        /* Every caution, not a pick: the first says what "model-based" means, the others whose
+         * judgement decides. */
+        for (size_t i = 0; i < tf_project_n_cautions(); i++)
+            printf("caution: %s\n", tf_project_caution(i));
+        printf("workbook: %s\ntables:   %s/ (%zu CSV files, listed in %s)\n", xlsx, csv_dir, tf_report_n_tables(r),
+               TF_REPORT_CONTENTS_CSV);
+    }
+    if (fflush(stdout) != 0) {
+        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+        goto out;
+    }
+    status = TF_EXIT_OK;
+out:
+    sigaction(SIGINT, &old_int, NULL);
+    sigaction(SIGTERM, &old_term, NULL);
+    if (status == TF_EXIT_INTERRUPTED)
+        fputs(PROG ": interrupted; no files written\n", stderr);
+    else if (status != TF_EXIT_OK)
+        tf_error_print(&err, PROG, stderr);
+    tf_report_free(r);
+    tf_analysis_free(a);
+    tf_survey_free(sv);
+    return status;
+}

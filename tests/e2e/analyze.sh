@@ -1,0 +1,180 @@
+#!/usr/bin/env bash
+# End-to-end test of `tallyfit analyze`: every demo survey (the multi-population one too) with
+# short settings, the files it writes, the same CSV tables whatever the thread count, exit codes
+# of bad command lines and unusable surveys (nothing written), the survey never overwritten, and
+# Ctrl-C (SIGINT) leaving nothing behind.
+set -u
+cd "$(dirname "$0")/../.."
+T=${TALLYFIT:?TALLYFIT must name the binary}
+fail=0
+bad() { echo "analyze.sh: $*" >&2; fail=1; }
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+# Short settings: this test is about files and exit codes, not convergence; a fixed particle
+# count keeps every run short.
+FAST=(--iterations 480 --warmup 100 --draws 150 --particles 100 --years 30)
+export SOURCE_DATE_EPOCH=1700000000
+
+# Population labels in order of first appearance, read with Python's csv module ("" = no label).
+labels() {
+  /usr/bin/python3 - "$1" <<'PY'
+import csv, sys
+with open(sys.argv[1], encoding="utf-8-sig", newline="") as f:
+    rows = csv.DictReader(l for l in f if not l.startswith("#"))
+    seen = []
+    for r in rows:
+        lab = r.get("population") or ""
+        if lab not in seen:
+            seen.append(lab)
+print("\n".join(seen))
+PY
+}
+
+# Every file named in contents.csv exists, and every CSV file of the folder is named there.
+contents_complete() {
+  /usr/bin/python3 - "$1" <<'PY'
+import csv, os, sys
+d = sys.argv[1]
+rows = list(csv.reader(open(os.path.join(d, "contents.csv"), newline="")))
+named = {r[1] for r in rows[1:]}
+have = {f for f in os.listdir(d) if f.endswith(".csv")} - {"contents.csv"}
+missing, extra = named - have, have - named
+if missing or extra or rows[0] != ["sheet", "file", "contents"]:
+    print("missing", sorted(missing), "extra", sorted(extra))
+    sys.exit(1)
+PY
+}
+
+for f in surveys/*.csv; do
+  name=$(basename "$f" .csv)
+  out="$tmp/out-$name"
+  "$T" analyze "$f" -o "$out" --threads 2 "${FAST[@]}" >"$tmp/stdout" 2>"$tmp/stderr"; rc=$?
+  if [ $rc -ne 0 ]; then bad "$f: exit $rc, want 0"; cat "$tmp/stderr" >&2; continue; fi
+  [ -s "$out/$name.xlsx" ] || bad "$f: no workbook $out/$name.xlsx"
+  [ -f "$out/$name/contents.csv" ] || { bad "$f: no contents.csv"; continue; }
+  contents_complete "$out/$name" || bad "$f: contents.csv and the CSV files disagree"
+  grep -qF "workbook: $out/$name.xlsx" "$tmp/stdout" || bad "$f: stdout does not name the workbook"
+  ls -a "$out" "$out/$name" | grep -q '\.tmp-' && bad "$f: temporary files left behind"
+  mapfile -t want < <(labels "$f")
+  n=${#want[@]}
+  rows=$(($(wc -l <"$out/$name/all-populations.csv") - 1))
+  [ "$rows" -eq "$n" ] || bad "$f: all-populations.csv has $rows rows, want $n"
+  if [ "$n" -gt 1 ]; then
+    for lab in "${want[@]}"; do
+      for role in counts projection risk declines models change parameters diagnostics draws; do
+        [ -f "$out/$name/$lab-$role.csv" ] || bad "$f: no $lab-$role.csv"
+      done
+      grep -qx "$lab" "$tmp/stdout" || bad "$f: stdout has no block for $lab"
+    done
+  else
+    for role in counts projection risk declines models change parameters diagnostics draws; do
+      [ -f "$out/$name/$role.csv" ] || bad "$f: no $role.csv"
+    done
+  fi
+  grep -q "not a formal status listing" "$tmp/stdout" || bad "$f: the caution is not printed"
+  [ "$(grep -c "best-supported growth model:" "$tmp/stdout")" -eq "$n" ] || bad "$f: not one best model line per population"
+done
+"$T" analyze surveys/heron-colony.csv -o "$tmp/quiet" --quiet --threads 2 "${FAST[@]}" >"$tmp/stdout" 2>&1 || bad "--quiet failed"
+[ -s "$tmp/stdout" ] && bad "--quiet printed: $(head -c 200 "$tmp/stdout")"
+[ -s "$tmp/quiet/heron-colony.xlsx" ] || bad "--quiet wrote no workbook"
+
+# An index that is not a whole count: only the continuous log-normal counting error is compared.
+"$T" analyze tests/data/analyze/index.csv -o "$tmp/frac" -q --threads 2 "${FAST[@]}" 2>"$tmp/stderr" ||
+  { bad "index.csv: exit $?"; cat "$tmp/stderr" >&2; }
+if [ -f "$tmp/frac/index/models.csv" ]; then
+  grep -q '+lognormal,.*,fitted,' "$tmp/frac/index/models.csv" || bad "index.csv: no log-normal model fitted"
+  grep -q '+poisson,.*,fitted,' "$tmp/frac/index/models.csv" && bad "index.csv: a count model was fitted to fractions"
+else
+  bad "index.csv: no models.csv"
+fi
+# Fractions with a zero suit no counting-error model: exit 3 and nothing written.
+"$T" analyze tests/data/good/fractional.csv -o "$tmp/frac0" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 3 ] || bad "fractional.csv (a zero among fractions): exit $rc, want 3"
+grep -q "no candidate model" "$tmp/stderr" || bad "fractional.csv: stderr does not say why"
+[ -e "$tmp/frac0" ] && bad "fractional.csv: something was written"
+
+# One population of several, and the same tables for 1 and 2 threads (except the seconds each
+# fit took, a wall-clock time).
+for t in 1 2; do
+  "$T" analyze surveys/three-herds.csv --population river-flats -o "$tmp/t$t" -q --threads $t "${FAST[@]}" ||
+    bad "--population river-flats --threads $t: exit $?"
+done
+[ "$(($(wc -l <"$tmp/t1/three-herds/all-populations.csv") - 1))" -eq 1 ] || bad "--population: not one population"
+ls "$tmp/t1/three-herds" | grep -q '^north-valley' && bad "--population: other populations written"
+for f in "$tmp/t1/three-herds"/*.csv; do
+  b=$(basename "$f")
+  if [[ $b == *diagnostics.csv ]]; then
+    /usr/bin/python3 - "$f" "$tmp/t2/three-herds/$b" <<'PY' || bad "$b differs between 1 and 2 threads"
+import csv, sys
+a, b = (list(csv.reader(open(p, newline=""))) for p in sys.argv[1:])
+k = a[0].index("Seconds")
+strip = lambda rows: [r[:k] + r[k + 1:] for r in rows]
+sys.exit(strip(a) != strip(b))
+PY
+  else
+    cmp -s "$f" "$tmp/t2/three-herds/$b" || bad "$b differs between 1 and 2 threads"
+  fi
+done
+
+# Bad command lines: exit 2, nothing written.
+usage() {  # expected phrase, arguments...
+  local phrase=$1; shift
+  "$T" analyze "$@" >"$tmp/stdout" 2>"$tmp/stderr"; local rc=$?
+  [ $rc -eq 2 ] || bad "analyze $*: exit $rc, want 2"
+  grep -qF -- "$phrase" "$tmp/stderr" || bad "analyze $*: stderr lacks '$phrase': $(head -c 300 "$tmp/stderr")"
+  [ -s "$tmp/stdout" ] && bad "analyze $*: printed on stdout"
+}
+usage "no survey file given" -o "$tmp/u"
+usage "unknown model 'logistic'" surveys/heron-colony.csv --models logistic -o "$tmp/u"
+usage "unknown model 'gauss'" surveys/heron-colony.csv --obs gauss -o "$tmp/u"
+usage "--threshold" surveys/heron-colony.csv --threshold 50,abc -o "$tmp/u"
+usage "--years" surveys/heron-colony.csv --years 0 -o "$tmp/u"
+usage "needs a survey file" - -o "$tmp/u"
+usage "unexpected argument" surveys/heron-colony.csv extra -o "$tmp/u"
+usage "no population named 'south'" surveys/three-herds.csv --population south -o "$tmp/u" "${FAST[@]}"
+[ -e "$tmp/u" ] && bad "a bad command line wrote $tmp/u"
+"$T" analyze --help | grep -q "usage: tallyfit analyze" || bad "--help does not print the usage"
+
+# A survey that fails validation: exit 3, the problem on stderr, nothing written.
+for f in tests/data/bad/negative-count.csv tests/data/bad/too-few-years.csv; do
+  "$T" analyze "$f" -o "$tmp/v" "${FAST[@]}" >"$tmp/stdout" 2>"$tmp/stderr"; rc=$?
+  [ $rc -eq 3 ] || bad "$f: exit $rc, want 3"
+  grep -q "$f:[0-9]*" "$tmp/stderr" || bad "$f: stderr does not name the file and line"
+  [ -e "$tmp/v" ] && bad "$f: something was written"
+done
+
+# The survey is never written over: a workbook name that is a link to the survey is refused
+# before any work is done, and the survey stays as it was.
+mkdir -p "$tmp/p"
+cp surveys/heron-colony.csv "$tmp/p/colony.csv"
+ln -s colony.csv "$tmp/p/colony.xlsx"
+"$T" analyze "$tmp/p/colony.csv" -o "$tmp/p" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 2 ] || bad "workbook onto the survey: exit $rc, want 2"
+cmp -s "$tmp/p/colony.csv" surveys/heron-colony.csv || bad "the survey was changed"
+[ -e "$tmp/p/colony" ] && bad "CSV folder written although the workbook was refused"
+
+# An output folder that cannot be made: exit 1, nothing written.
+touch "$tmp/file"
+"$T" analyze surveys/heron-colony.csv -o "$tmp/file/out" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 1 ] || bad "output under a file: exit $rc, want 1"
+
+# SIGINT (Ctrl-C) and SIGTERM: exit 130 within a few seconds, no workbook, no CSV folder, no
+# temporary file. The run gets enough work (the default sampler settings, three populations) to
+# be still fitting when the signal arrives.
+for sig in INT TERM; do
+  "$T" analyze surveys/three-herds.csv -o "$tmp/int-$sig" --threads 2 >/dev/null 2>"$tmp/stderr" &
+  pid=$!
+  sleep 1
+  if ! kill -0 $pid 2>/dev/null; then bad "SIG$sig: analyze ended before the signal"; wait $pid; continue; fi
+  t0=$(date +%s%3N)
+  kill -$sig $pid
+  wait $pid; rc=$?
+  ms=$(($(date +%s%3N) - t0))
+  [ $rc -eq 130 ] || bad "SIG$sig: exit $rc, want 130"
+  # The chains poll every iteration; 3 s leaves room for the sanitizers and a busy machine.
+  [ $ms -le 3000 ] || bad "SIG$sig: took $ms ms to stop"
+  grep -q "interrupted" "$tmp/stderr" || bad "SIG$sig: no message"
+  [ -e "$tmp/int-$sig" ] && [ -n "$(ls -A "$tmp/int-$sig")" ] && bad "SIG$sig: files left: $(ls -A "$tmp/int-$sig")"
+done
+
+exit $fail

@@ -1,0 +1,67 @@
+/* Unit tests for the plain sentences of a summary (analysis/wording.c): rounding of percentages
+ * and chances, and the three readings of a trend (decline, increase, no clear trend). */
+#include "tf_test.h"
+
+#include <math.h>
+#include <string.h>
+
+#include "analysis/wording.h"
+
+START_TEST(numbers)
+{
+    char b[32];
+    ck_assert_str_eq(tf_wording_percent(-2.04, b, sizeof b), "-2");
+    ck_assert_str_eq(tf_wording_percent(-0.5, b, sizeof b), "-0.5");
+    ck_assert_str_eq(tf_wording_percent(12.4, b, sizeof b), "12");
+    ck_assert_str_eq(tf_wording_percent(9.96, b, sizeof b), "10");
+    ck_assert_str_eq(tf_wording_percent(-0.01, b, sizeof b), "0");
+    ck_assert_str_eq(tf_wording_percent(NAN, b, sizeof b), "n/a");
+    ck_assert_str_eq(tf_wording_chance(0.004, b, sizeof b), "less than 1 %");
+    ck_assert_str_eq(tf_wording_chance(0.996, b, sizeof b), "more than 99 %");
+    ck_assert_str_eq(tf_wording_chance(0.1234, b, sizeof b), "about 12 %");
+    ck_assert_str_eq(tf_wording_chance(NAN, b, sizeof b), "not available");
+}
+END_TEST
+
+START_TEST(trends)
+{
+    char b[512];
+    tf_analysis_trend down = {.median = -0.021, .q025 = -0.04, .q975 = -0.005};
+    tf_wording_trend(&down, 1996, 2025, b, sizeof b);
+    ck_assert_str_eq(b, "The counts point to a decline of about 2.1 % a year (95 % interval -4 % to -0.5 %) over 1996-2025.");
+    tf_analysis_trend up = {.median = 0.031, .q025 = 0.012, .q975 = 0.05};
+    tf_wording_trend(&up, 2001, 2020, b, sizeof b);
+    ck_assert_str_eq(b, "The counts point to an increase of about 3.1 % a year (95 % interval 1.2 % to 5 %) over 2001-2020.");
+    tf_analysis_trend flat = {.median = -0.004, .q025 = -0.02, .q975 = 0.011};
+    tf_wording_trend(&flat, 2001, 2020, b, sizeof b);
+    ck_assert(strstr(b, "no clear trend") && strstr(b, "-0.4 % a year") && strstr(b, "includes no change"));
+    tf_analysis_trend none = {.median = NAN, .q025 = NAN, .q975 = NAN};
+    tf_wording_trend(&none, 2001, 2020, b, sizeof b);
+    ck_assert(strstr(b, "could not be estimated"));
+}
+END_TEST
+
+START_TEST(risks)
+{
+    char b[512];
+    tf_threshold abs_t = {.value = 100, .relative = 0}, rel_t = {.value = 0.2, .relative = 1};
+    tf_wording_threshold(&abs_t, b, sizeof b);
+    ck_assert_str_eq(b, "100 animals");
+    tf_wording_threshold(&rel_t, b, sizeof b);
+    ck_assert_str_eq(b, "20 % of the current abundance");
+    tf_wording_risk(&abs_t, 20, 0.12, b, sizeof b);
+    ck_assert_str_eq(b, "Averaging the models by their support, the chance of falling below 100 animals within 20 years "
+                        "is about 12 %.");
+}
+END_TEST
+
+static Suite *make_suite(void)
+{
+    Suite *s = suite_create("wording");
+    TCase *tc = tcase_create("wording");
+    tcase_add_test(tc, numbers);
+    tcase_add_test(tc, trends);
+    tcase_add_test(tc, risks);
+    suite_add_tcase(s, tc);
+    return s;
+}

@@ -7,7 +7,6 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <strings.h>
 #include <unistd.h>
 
 #include "cmd/args.h"
@@ -113,8 +112,6 @@ static tf_status split_names(const char *opt, const char *text, char *buf, size_
     }
     return TF_OK;
 }
-
-
 
 static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {

@@ -1,5 +1,6 @@
 /* Option parsing shared by the commands. */
 #include "cmd/args.h"
+#include "cmd/cmd.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -369,4 +370,16 @@ void tf_args_survey_name(const char *path, char *out, size_t size)
         out[n - 4] = '\0';
     if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
         snprintf(out, size, "survey");
+}
+
+int tf_args_exit_code(tf_status st)
+{
+    switch (st) {
+    case TF_OK: return TF_EXIT_OK;
+    case TF_ERR_USAGE:
+    case TF_ERR_UNSUPPORTED: return TF_EXIT_USAGE;
+    case TF_ERR_INTERRUPTED: return TF_EXIT_INTERRUPTED;
+    case TF_ERR_INVALID: return TF_EXIT_INPUT;
+    default: return TF_EXIT_FAIL;
+    }
 }

@@ -89,4 +89,8 @@ void tf_args_safe_name(const char *label, char *out, size_t size);
  * folder and workbook take. "stdin" for "-", "survey" when nothing is left. */
 void tf_args_survey_name(const char *path, char *out, size_t size);
 
+/* The exit code (cmd.h) for a library status of the model-fitting commands: usage and refused
+ * combinations are command-line errors, invalid input an unusable input, interruption 130. */
+int tf_args_exit_code(tf_status st);
+
 #endif

@@ -158,17 +158,6 @@ static void show_progress(void *ctx, const tf_analysis_event *e)
     }
 }
 
-static int exit_for(tf_status st)
-{
-    switch (st) {
-    case TF_OK: return TF_EXIT_OK;
-    case TF_ERR_USAGE:
-    case TF_ERR_UNSUPPORTED: return TF_EXIT_USAGE;
-    case TF_ERR_INTERRUPTED: return TF_EXIT_INTERRUPTED;
-    case TF_ERR_INVALID: return TF_EXIT_INPUT;
-    default: return TF_EXIT_FAIL;
-    }
-}
 
 /* The plain lines on one population. */
 static void print_population(const tf_analysis *a, size_t i, const char *title, FILE *out)
@@ -348,7 +337,7 @@ int tf_cmd_analyze(int argc, char **argv)
      * the CSV folder goes. */
     struct stat info;
     if ((st = tf_atomic_check_target(xlsx, path, &err)) != TF_OK) {
-        status = exit_for(st);
+        status = tf_args_exit_code(st);
         goto out;
     }
     if (stat(csv_dir, &info) == 0 && !S_ISDIR(info.st_mode)) {
@@ -361,13 +350,13 @@ int tf_cmd_analyze(int argc, char **argv)
     tf_provenance_format_date(tf_provenance_now(), prov.date);
     int show = !quiet && isatty(STDERR_FILENO);
     if ((st = tf_analysis_run(sv, &opt, &interrupted, show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
-        status = exit_for(st);
+        status = tf_args_exit_code(st);
         goto out;
     }
     if (!(r = tf_report_new(&err)) || (st = tf_sheets_build(a, &prov, r, &err)) != TF_OK)
         goto out;
     if ((st = tf_report_write(r, xlsx, csv_dir, path, &interrupted, &err)) != TF_OK) {
-        status = exit_for(st);
+        status = tf_args_exit_code(st);
         goto out;
     }
     if (!quiet) {

@@ -127,17 +127,6 @@ static void show_progress(void *ctx, size_t index, const char *model, tf_compare
     fprintf(stderr, "%s%s%s: %s (%.1f s)\n", label, label[0] ? " " : "", model, what[ev], seconds);
 }
 
-static int exit_for(tf_status st)
-{
-    switch (st) {
-    case TF_OK: return TF_EXIT_OK;
-    case TF_ERR_USAGE:
-    case TF_ERR_UNSUPPORTED: return TF_EXIT_USAGE;
-    case TF_ERR_INTERRUPTED: return TF_EXIT_INTERRUPTED;
-    case TF_ERR_INVALID: return TF_EXIT_INPUT;
-    default: return TF_EXIT_FAIL;
-    }
-}
 
 static void print_table(const tf_comparison *c, FILE *out)
 {
@@ -380,7 +369,7 @@ int tf_cmd_compare(int argc, char **argv)
         if (st != TF_OK) {
             if (tf_series_label(s)[0])
                 tf_error_add(&err, st, path, 0, 0, NULL, "(population '%s')", tf_series_label(s));
-            status = exit_for(st);
+            status = tf_args_exit_code(st);
             goto out;
         }
     }
@@ -423,7 +412,7 @@ int tf_cmd_compare(int argc, char **argv)
     }
     sigprocmask(SIG_SETMASK, &old_mask, NULL);
     if (wst != TF_OK) {
-        status = exit_for(wst);
+        status = tf_args_exit_code(wst);
         goto out;
     }
     for (size_t i = 0; i < n_jobs; i++) {

@@ -427,8 +427,8 @@ fail:
     return st;
 }
 
-static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *p, const size_t *order, tf_report *r,
-                                   tf_error *err)
+static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *p, const size_t *order, int seconds,
+                                   tf_report *r, tf_error *err)
 {
     tf_status st;
     char name[128], legend[160];
@@ -436,8 +436,8 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
     tf_table *t = tf_table_new(name, err);
     if (!t)
         return tf_error_status(err);
-    size_t c_model, c_chains, c_iter, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_k, c_sec,
-        c_status;
+    size_t c_model, c_chains, c_iter, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_k,
+        c_sec = 0, c_status;
     TRY(tf_table_add_column(t, "Model", "the model's name", TF_COL_TEXT, &c_model, err));
     TRY(tf_table_add_column(t, "Chains", "independent PMMH chains", TF_COL_INTEGER, &c_chains, err));
     TRY(tf_table_add_column(t, "Draws per chain", "kept draws of each chain", TF_COL_INTEGER, &c_iter, err));
@@ -459,7 +459,8 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
     snprintf(legend, sizeof legend, "importance-weight diagnostic of the marginal likelihood (above %.1f: unreliable)",
              TF_PARETO_K_MAX);
     TRY(tf_table_add_column(t, "Pareto k", legend, TF_COL_NUMBER, &c_k, err));
-    TRY(tf_table_add_column(t, "Seconds", "time the sampler took", TF_COL_NUMBER, &c_sec, err));
+    if (seconds)
+        TRY(tf_table_add_column(t, "Seconds", "time the sampler took", TF_COL_NUMBER, &c_sec, err));
     TRY(tf_table_add_column(t, "Status", "ok, or what to look at", TF_COL_TEXT, &c_status, err));
     for (size_t i = 0; i < tf_analysis_pop_n_models(p); i++) {
         const tf_analysis_model *m = tf_analysis_pop_model(p, order[i]);
@@ -492,10 +493,12 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
             tail = isnan(ps->ess_tail) ? 0 : fmin(tail, ps->ess_tail);
         }
         double v[] = {(double)nc, (double)tf_fit_n_iter(f), (double)fs->n_warmup, (double)fs->n_particles, fs->loglik_sd,
-                      acc, acc_min, inv, rhat, bulk, tail, fs->seconds};
-        size_t c[] = {c_chains, c_iter, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_sec};
+                      acc, acc_min, inv, rhat, bulk, tail};
+        size_t c[] = {c_chains, c_iter, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail};
         for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
             tf_table_set_number(t, row, c[k], v[k]);
+        if (seconds)
+            tf_table_set_number(t, row, c_sec, fs->seconds);
         char status[256] = "";
         size_t used = 0;
 #define FLAG(cond, col, text)                                                                                          \
@@ -892,7 +895,7 @@ tf_status tf_sheets_build(const tf_analysis *a, const tf_sheets_provenance *prov
         if ((st = counts_sheet(a, p, r, err)) != TF_OK || (st = projection_sheets(a, p, r, err)) != TF_OK ||
             (st = models_sheet(a, p, r, err)) != TF_OK || (st = change_sheet(a, p, order, r, err)) != TF_OK ||
             (st = parameters_sheet(a, p, order, r, err)) != TF_OK ||
-            (st = diagnostics_sheet(a, p, order, r, err)) != TF_OK || (st = draws_sheet(a, p, order, r, err)) != TF_OK)
+            (st = diagnostics_sheet(a, p, order, !prov->omit_seconds, r, err)) != TF_OK || (st = draws_sheet(a, p, order, r, err)) != TF_OK)
             break;
     }
     return st;

@@ -18,6 +18,9 @@ typedef struct {
     char sha256[TF_PROVENANCE_HASH_BUF];    /* of the survey file */
     char date[TF_PROVENANCE_DATE_BUF];
     const char *title;                      /* names the survey on the first page, e.g. "heron-colony" */
+    /* Leave out the seconds each fit took (a wall-clock time), so that the tables of the same
+     * settings compare byte for byte; the batch keeps its timings in a file of their own. */
+    int omit_seconds;
 } tf_sheets_provenance;
 
 /* Thresholds for flagging a sampler diagnostic. R-hat and ESS use TF_FIT_RHAT_MAX and

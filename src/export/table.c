@@ -34,6 +34,7 @@ typedef struct {
 struct tf_table {
     char *name;
     bool summary;
+    bool filter;
     column *cols;
     size_t n_cols, cap_cols;
     size_t n_rows, cap_rows;
@@ -462,6 +463,9 @@ tf_table *tf_table_new_summary(const char *name, tf_error *err)
     t->summary = true;
     return t;
 }
+
+void tf_table_set_filter(tf_table *t, bool on) { t->filter = on; }
+bool tf_table_filter(const tf_table *t) { return t->filter; }
 
 bool tf_table_is_summary(const tf_table *t)
 {

@@ -111,6 +111,11 @@ size_t tf_table_n_notes(const tf_table *t);
 const char *tf_table_note(const tf_table *t, size_t i);
 tf_note_kind tf_table_note_kind(const tf_table *t, size_t i);
 
+/* Asks the workbook writer for sort and filter buttons over the columns (a table of many rows
+ * that readers sort, such as one row per population). Off by default; CSV files ignore it. */
+void tf_table_set_filter(tf_table *t, bool on);
+bool tf_table_filter(const tf_table *t);
+
 /* A key-value table for a first page of results: columns "Item", "Value", "Note". Values are
  * numbers or text, each row with its own display kind; tf_table_add_heading adds section
  * headings. The row each call adds is tf_table_n_rows(t) - 1 (to flag it with

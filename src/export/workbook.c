@@ -785,6 +785,14 @@ static tf_status write_table(tf_workbook *wb, tf_sheet *s, const tf_table *t, tf
     }
     s->first_data_row = row + 2;
     worksheet_freeze_panes(s->ws, s->first_data_row, 0);
+    /* The buttons sit on the legend row, the last row above the data, so that sorting moves
+     * the data rows only: a spreadsheet takes the first row of a filter range as its header. */
+    if (tf_table_filter(t) && s->n_cols > 0 &&
+        (rc = worksheet_autofilter(s->ws, row + 1, 0, (lxw_row_t)(row + 1 + tf_table_n_rows(t)),
+                                   (lxw_col_t)(s->n_cols - 1))) != LXW_NO_ERROR) {
+        st = lxw_fail(wb, rc, "filter", err);
+        goto done;
+    }
     st = write_cells(wb, s, t, nf, NULL, err);
 done:
     free(nf);

@@ -17,6 +17,9 @@ struct tf_survey {
     char *path;
     size_t n_series;
     tf_series **series;
+    size_t *order;                 /* each series' place among all populations (set-aside ones too) */
+    size_t n_rejected;
+    tf_survey_rejected *rejected;  /* batch reading: the populations set aside */
 };
 
 enum { COL_YEAR, COL_COUNT, COL_POP, COL_EFFORT, COL_NOTE, N_KNOWN };
@@ -42,12 +45,25 @@ typedef struct {
     long line;
     size_t seq;         /* order in the file */
     bool bad;           /* some value of the row was rejected (already reported) */
+    size_t fault;       /* batch reading: index of its held problems in reader.faults, or NO_FAULT */
     bool no_year;       /* the year was rejected: the row only marks its population as faulty */
 } row;
+
+/* Batch reading holds a row's or a population's problems back instead of reporting them, so
+ * that a faulty population can be set aside while the others are read. The row's messages are
+ * kept whole (a row has at most a year, a count, an effort and a label problem) for the case
+ * where the file fails after all and they must be reported as the strict reading would. */
+#define HELD_MAX 4
+#define NO_FAULT SIZE_MAX
+typedef struct {
+    size_t n;           /* problems found; the first HELD_MAX are kept */
+    tf_error_item items[HELD_MAX];
+} held;
 
 typedef struct {
     size_t start, n;    /* range in the rows array */
     size_t first_seq;   /* where the population first appears in the file */
+    size_t fault;       /* batch reading: its own held problems (reader.faults), or NO_FAULT */
 } group;
 
 typedef struct {
@@ -57,6 +73,11 @@ typedef struct {
     tf_status first_status; /* of the message with the lowest line, the earliest among equals */
     long first_line;
     bool nomem;
+    bool batch;         /* set faulty populations aside instead of failing the file */
+    size_t max_rows;
+    held *hold;         /* when not NULL, report() keeps messages here instead of in err */
+    held *faults;       /* batch reading: problems of rows, by row.fault */
+    size_t n_faults, faults_cap;
 
     struct csv_parser csv;
     bool csv_live;
@@ -97,6 +118,19 @@ static void report(reader *r, tf_status status, long line, long col, const char 
     va_start(ap, fmt);
     vsnprintf(what, sizeof what, fmt, ap);
     va_end(ap);
+    if (r->hold) {
+        if (r->hold->n < HELD_MAX) {
+            tf_error_item *it = &r->hold->items[r->hold->n];
+            it->status = status;
+            it->line = line;
+            it->column = col;
+            it->file[0] = '\0';
+            snprintf(it->what, sizeof it->what, "%s", what);
+            snprintf(it->hint, sizeof it->hint, "%s", hint ? hint : "");
+        }
+        r->hold->n++;
+        return;
+    }
     tf_error_add(r->err, status, r->name, line, col, hint, "%s", what);
     if (!r->n_reported++ || line < r->first_line) {
         r->first_status = status;
@@ -121,6 +155,15 @@ static bool reserve(void **buf, size_t *cap, size_t need, size_t elem)
     *buf = p;
     *cap = n;
     return true;
+}
+
+/* Reports the held messages as the strict reading would have. */
+static void release(reader *r, const held *h)
+{
+    for (size_t i = 0; i < h->n && i < HELD_MAX; i++) {
+        const tf_error_item *it = &h->items[i];
+        report(r, it->status, it->line, it->column, it->hint[0] ? it->hint : NULL, "%s", it->what);
+    }
 }
 
 static bool is_blank(char c) { return c == ' ' || c == '\t'; }
@@ -350,9 +393,9 @@ static void read_data(reader *r)
 {
     char buf[4 * SHOW_MAX];
     long line = r->rec_line;
-    if (++r->n_data > TF_SURVEY_MAX_ROWS) {
+    if (++r->n_data > r->max_rows) {
         report(r, TF_ERR_RANGE, line, 0, "split the file, or check that it is a survey file",
-               "more than %d data rows; reading stops here", TF_SURVEY_MAX_ROWS);
+               "more than %zu data rows; reading stops here", r->max_rows);
         r->stop = true;
         return;
     }
@@ -363,8 +406,11 @@ static void read_data(reader *r)
                r->n_fields, r->n_cols);
         return;
     }
-    row w = {.count = NAN, .effort = 1.0, .line = line, .seq = r->n_rows};
+    row w = {.count = NAN, .effort = 1.0, .line = line, .seq = r->n_rows, .fault = NO_FAULT};
     bool labelled = true;
+    held mine = {0};
+    if (r->batch)
+        r->hold = &mine;
 
     long ycol = r->col[COL_YEAR];
     const char *ys = field(r, ycol);
@@ -448,9 +494,20 @@ static void read_data(reader *r)
             labelled = false;
         }
     }
+    r->hold = NULL;
     if (!labelled) {
+        /* A row that belongs to no population fails the file, as in the strict reading. */
+        release(r, &mine);
         r->orphan_fault = true;
         return;
+    }
+    if (mine.n) {
+        if (!reserve((void **)&r->faults, &r->faults_cap, r->n_faults + 1, sizeof *r->faults)) {
+            r->nomem = true;
+            return;
+        }
+        w.fault = r->n_faults;
+        r->faults[r->n_faults++] = mine;
     }
 
     /* Rows of one population usually follow each other: reuse the previous row's label copy. */
@@ -716,14 +773,29 @@ static tf_survey *assemble(reader *r)
         goto nomem;
     for (size_t i = 0; i < r->n_rows; i++) {
         if (i == 0 || strcmp(r->rows[i].label, r->rows[i - 1].label))
-            groups[n_groups++] = (group){i, 0, r->rows[i].seq};
+            groups[n_groups++] = (group){i, 0, r->rows[i].seq, NO_FAULT};
         groups[n_groups - 1].n++;
     }
     qsort(groups, n_groups, sizeof *groups, by_first_seq);
-    for (size_t g = 0; g < n_groups; g++)
+    for (size_t g = 0; g < n_groups; g++) {
+        held mine = {0};
+        if (r->batch)
+            r->hold = &mine;
         check_group(r, r->rows + groups[g].start, groups[g].n);
-    if (r->n_reported)
+        r->hold = NULL;
+        if (mine.n) {
+            if (!reserve((void **)&r->faults, &r->faults_cap, r->n_faults + 1, sizeof *r->faults))
+                goto nomem;
+            groups[g].fault = r->n_faults;
+            r->faults[r->n_faults++] = mine;
+        }
+    }
+    if (r->n_reported || r->orphan_fault) {
+        /* A problem that belongs to no population: the file fails whole, with every message. */
+        for (size_t i = 0; i < r->n_faults; i++)
+            release(r, &r->faults[i]);
         goto done;
+    }
 
     /* One workspace for every population; check_group has capped the span. */
     counts = malloc(TF_SURVEY_MAX_SPAN * sizeof *counts);
@@ -734,14 +806,43 @@ static tf_survey *assemble(reader *r)
         goto nomem;
     sv->path = strdup(r->name);
     sv->series = calloc(n_groups, sizeof *sv->series);
-    if (!sv->path || !sv->series)
+    sv->order = calloc(n_groups, sizeof *sv->order);
+    if (!sv->path || !sv->series || !sv->order)
         goto nomem;
     for (size_t g = 0; g < n_groups; g++) {
+        const row *rows = r->rows + groups[g].start;
+        /* The population's first problem in file order, and how many it has. */
+        const tf_error_item *first = NULL;
+        size_t n_problems = 0;
+        for (size_t i = 0; i <= groups[g].n; i++) {
+            size_t f = i < groups[g].n ? rows[i].fault : groups[g].fault;
+            if (f == NO_FAULT)
+                continue;
+            n_problems += r->faults[f].n;
+            if (!first || r->faults[f].items[0].line < first->line)
+                first = &r->faults[f].items[0];
+        }
+        if (first) {
+            if (!sv->rejected && !(sv->rejected = calloc(n_groups, sizeof *sv->rejected)))
+                goto nomem;
+            tf_survey_rejected *x = &sv->rejected[sv->n_rejected];
+            if (!(x->label = strdup(rows[0].label)))
+                goto nomem;
+            sv->n_rejected++;
+            x->order = g;
+            x->status = first->status;
+            x->line = first->line;
+            x->column = first->column;
+            x->n_problems = n_problems;
+            snprintf(x->what, sizeof x->what, "%s", first->what);
+            snprintf(x->hint, sizeof x->hint, "%s", first->hint);
+            continue;
+        }
         /* The rows were checked already, so only memory can fail here. */
-        sv->series[g] = build_series(r->rows + groups[g].start, groups[g].n, counts, effort, lines, NULL);
-        if (!sv->series[g])
+        sv->series[sv->n_series] = build_series(rows, groups[g].n, counts, effort, lines, NULL);
+        if (!sv->series[sv->n_series])
             goto nomem;
-        sv->n_series++;
+        sv->order[sv->n_series++] = g;
     }
     goto done;
 nomem:
@@ -772,10 +873,11 @@ static void sort_messages(tf_error *err, size_t first)
     }
 }
 
-tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_survey **out, tf_error *err)
+static tf_status parse(const char *name, const char *data, size_t len, int batch, size_t max_rows, tf_survey **out,
+                       tf_error *err)
 {
     *out = NULL;
-    reader r = {.name = name, .err = err};
+    reader r = {.name = name, .err = err, .batch = batch, .max_rows = max_rows ? max_rows : TF_SURVEY_MAX_ROWS};
     size_t first_msg = err ? err->n_items : 0;
 
     if (!csv_start(&r)) {
@@ -823,6 +925,7 @@ finish:
     free(r.foff);
     free(r.rows);
     free(r.labels);
+    free(r.faults);
     if (!r.n_reported)
         return TF_OK;
     tf_survey_free(*out);
@@ -831,7 +934,18 @@ finish:
     return r.first_status;
 }
 
-tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err)
+tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_survey **out, tf_error *err)
+{
+    return parse(name, data, len, 0, 0, out, err);
+}
+
+tf_status tf_survey_parse_batch(const char *name, const char *data, size_t len, size_t max_rows, tf_survey **out,
+                                tf_error *err)
+{
+    return parse(name, data, len, 1, max_rows, out, err);
+}
+
+static tf_status read_file(const char *path, int batch, size_t max_rows, tf_survey **out, tf_error *err)
 {
     static const char hint[] = "check the file name and that the file can be read";
     *out = NULL;
@@ -861,7 +975,7 @@ tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err)
         st = tf_error_add(err, TF_ERR_IO, path, 0, 0, hint, "cannot read the survey file: %s", strerror(errno));
         goto done;
     }
-    st = tf_survey_parse(path, buf ? buf : "", len, out, err);
+    st = parse(path, buf ? buf : "", len, batch, max_rows, out, err);
     goto done;
 too_big:
     st = tf_error_add(err, TF_ERR_RANGE, path, 0, 0, "a survey file holds one row per year; check the file name",
@@ -872,12 +986,26 @@ done:
     return st;
 }
 
+tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err)
+{
+    return read_file(path, 0, 0, out, err);
+}
+
+tf_status tf_survey_read_batch(const char *path, size_t max_rows, tf_survey **out, tf_error *err)
+{
+    return read_file(path, 1, max_rows, out, err);
+}
+
 void tf_survey_free(tf_survey *sv)
 {
     if (!sv)
         return;
     for (size_t i = 0; i < sv->n_series; i++)
         tf_series_free(sv->series[i]);
+    for (size_t i = 0; i < sv->n_rejected; i++)
+        free(sv->rejected[i].label);
+    free(sv->rejected);
+    free(sv->order);
     free(sv->series);
     free(sv->path);
     free(sv);
@@ -886,6 +1014,12 @@ void tf_survey_free(tf_survey *sv)
 const char *tf_survey_path(const tf_survey *sv) { return sv->path; }
 size_t tf_survey_n_series(const tf_survey *sv) { return sv->n_series; }
 const tf_series *tf_survey_series(const tf_survey *sv, size_t i) { return i < sv->n_series ? sv->series[i] : NULL; }
+size_t tf_survey_series_order(const tf_survey *sv, size_t i) { return sv->order[i]; }
+size_t tf_survey_n_rejected(const tf_survey *sv) { return sv->n_rejected; }
+const tf_survey_rejected *tf_survey_rejected_at(const tf_survey *sv, size_t i)
+{
+    return i < sv->n_rejected ? &sv->rejected[i] : NULL;
+}
 
 const tf_series *tf_survey_find(const tf_survey *sv, const char *label)
 {

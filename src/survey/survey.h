@@ -38,6 +38,38 @@ tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err);
  * data (len bytes, need not be NUL-terminated) is borrowed for the call only. */
 tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_survey **out, tf_error *err);
 
+/* A batch of many populations reads as tf_survey_read does, except that a problem that belongs to
+ * one population (a bad year, count or effort in one of its rows, a year given twice, too long a
+ * span, too few surveyed years, only zeros) sets that population aside instead of failing the
+ * file: the survey holds the clean populations, and tf_survey_rejected_at says which were set
+ * aside and why. Problems that belong to no population (the header, the encoding, quoting, a row
+ * with the wrong number of fields, a missing or unusable label) still fail the whole file, with
+ * every message the strict reading gives. max_rows replaces TF_SURVEY_MAX_ROWS (0 = keep it);
+ * the byte limit stays. A file whose every population is set aside still reads (TF_OK). */
+tf_status tf_survey_read_batch(const char *path, size_t max_rows, tf_survey **out, tf_error *err);
+tf_status tf_survey_parse_batch(const char *name, const char *data, size_t len, size_t max_rows, tf_survey **out,
+                                tf_error *err);
+
+/* A population set aside by the batch reading: its label (owned by the survey), its place among
+ * all populations of the file in order of first appearance, and its first problem in file order
+ * (status, line, column, message and hint as tf_survey_read would report it) with the number of
+ * problems it has in all. */
+typedef struct {
+    char *label;
+    size_t order;
+    tf_status status;
+    long line, column;
+    size_t n_problems;
+    char what[512];
+    char hint[256];
+} tf_survey_rejected;
+
+size_t tf_survey_n_rejected(const tf_survey *sv);
+/* NULL when i is out of range. */
+const tf_survey_rejected *tf_survey_rejected_at(const tf_survey *sv, size_t i);
+/* The place of series i among all populations of the file, set-aside ones included. */
+size_t tf_survey_series_order(const tf_survey *sv, size_t i);
+
 /* Accepts NULL. */
 void tf_survey_free(tf_survey *sv);
 

@@ -559,6 +559,122 @@ START_TEST(random_junk_never_crashes)
 }
 END_TEST
 
+/* ---- batch reading: a faulty population is set aside, the others read ---- */
+
+static const char batch_text[] =
+    "population,year,count\n"
+    "a,2000,10\na,2001,12\na,2002,11\na,2003,14\na,2004,13\n"
+    "b,2000,10\nb,2001,x\nb,2002,11\nb,2002,12\nb,2003,14\nb,2004,13\n" /* lines 8 and 10 */
+    "c,2000,5\nc,2001,6\nc,2002,7\nc,2003,8\nc,2004,9\n"
+    "d,2000,5\nd,2001,6\n";                                            /* too few years */
+
+START_TEST(batch_sets_faulty_populations_aside)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_survey *sv = NULL;
+    ck_assert_int_eq(tf_survey_parse_batch("mem", batch_text, sizeof batch_text - 1, 0, &sv, &err), TF_OK);
+    ck_assert_uint_eq(err.n_items, 0);
+    ck_assert_uint_eq(tf_survey_n_series(sv), 2);
+    ck_assert_str_eq(tf_series_label(tf_survey_series(sv, 0)), "a");
+    ck_assert_str_eq(tf_series_label(tf_survey_series(sv, 1)), "c");
+    ck_assert_uint_eq(tf_survey_series_order(sv, 0), 0);
+    ck_assert_uint_eq(tf_survey_series_order(sv, 1), 2);
+    ck_assert_uint_eq(tf_survey_n_rejected(sv), 2);
+    const tf_survey_rejected *b = tf_survey_rejected_at(sv, 0), *d = tf_survey_rejected_at(sv, 1);
+    ck_assert_str_eq(b->label, "b");
+    ck_assert_uint_eq(b->order, 1);
+    /* The unreadable count comes first; the twice-given year 2002 is the second problem. */
+    ck_assert_int_eq(b->line, 8);
+    ck_assert_int_eq(b->column, 3);
+    ck_assert_int_eq(b->status, TF_ERR_PARSE);
+    ck_assert_uint_eq(b->n_problems, 2);
+    ck_assert_ptr_nonnull(strstr(b->what, "count 'x' is not a number"));
+    ck_assert_str_eq(d->label, "d");
+    ck_assert_uint_eq(d->order, 3);
+    ck_assert_ptr_nonnull(strstr(d->what, "surveyed year"));
+    ck_assert_ptr_null(tf_survey_rejected_at(sv, 2));
+    tf_survey_free(sv);
+
+    /* The strict reading of the same text still refuses the file, naming both problems of b. */
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse("mem", batch_text, sizeof batch_text - 1, &sv, &err), TF_ERR_PARSE);
+    ck_assert_ptr_null(sv);
+    ck_assert_uint_eq(err.n_items, 3);
+}
+END_TEST
+
+/* A problem that belongs to no population fails the batch reading too, with the same messages
+ * as the strict one. */
+START_TEST(batch_fails_on_file_problems_like_strict)
+{
+    static const char text[] = "population,year,count\n"
+                               "a,2000,10\na,2001,x\na,2002,11\na,2003,14\na,2004,13\n"
+                               ",2000,3\n";   /* no label */
+    tf_error e1, e2;
+    tf_error_init(&e1);
+    tf_error_init(&e2);
+    tf_survey *sv = NULL;
+    tf_status s1 = tf_survey_parse("mem", text, sizeof text - 1, &sv, &e1);
+    tf_status s2 = tf_survey_parse_batch("mem", text, sizeof text - 1, 0, &sv, &e2);
+    ck_assert_int_ne(s2, TF_OK);
+    ck_assert_ptr_null(sv);
+    ck_assert_int_eq(s1, s2);
+    ck_assert_uint_eq(e1.n_items, e2.n_items);
+    for (size_t i = 0; i < e1.n_items; i++) {
+        ck_assert_int_eq(e1.items[i].line, e2.items[i].line);
+        ck_assert_str_eq(e1.items[i].what, e2.items[i].what);
+        ck_assert_str_eq(e1.items[i].hint, e2.items[i].hint);
+    }
+}
+END_TEST
+
+/* Every bad file: the batch reading either fails as the strict one does, or sets its population
+ * aside with the strict reading's first problem. */
+START_TEST(batch_reading_of_every_bad_file)
+{
+    static expectation ex[100];
+    size_t n = read_expect(ex, 100);
+    for (size_t i = 0; i < n; i++) {
+        char path[512];
+        snprintf(path, sizeof path, TF_TEST_DATA("bad/%.127s"), ex[i].file);
+        tf_error e1, e2;
+        tf_error_init(&e1);
+        tf_error_init(&e2);
+        tf_survey *sv = NULL;
+        tf_status s1 = tf_survey_read(path, &sv, &e1);
+        tf_status s2 = tf_survey_read_batch(path, 0, &sv, &e2);
+        if (s2 != TF_OK) {
+            ck_assert_msg(s1 == s2, "%s: batch status %d, strict %d", path, s2, s1);
+            ck_assert_uint_eq(e1.n_items, e2.n_items);
+            continue;
+        }
+        ck_assert_uint_eq(e2.n_items, 0);
+        ck_assert_msg(tf_survey_n_rejected(sv) >= 1, "%s: nothing set aside", path);
+        const tf_survey_rejected *x = tf_survey_rejected_at(sv, 0);
+        ck_assert_int_eq(x->status, s1);
+        ck_assert_int_eq(x->line, e1.items[0].line);
+        ck_assert_str_eq(x->what, e1.items[0].what);
+        tf_survey_free(sv);
+    }
+}
+END_TEST
+
+START_TEST(batch_row_limit_is_the_callers)
+{
+    static const char text[] = "year,count\n2000,1\n2001,2\n2002,3\n2003,4\n2004,5\n2005,6\n";
+    tf_error err;
+    tf_error_init(&err);
+    tf_survey *sv = NULL;
+    ck_assert_int_eq(tf_survey_parse_batch("mem", text, sizeof text - 1, 5, &sv, &err), TF_ERR_RANGE);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "more than 5 data rows"));
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse_batch("mem", text, sizeof text - 1, 6, &sv, &err), TF_OK);
+    ck_assert_uint_eq(tf_survey_n_series(sv), 1);
+    tf_survey_free(sv);
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("survey");
@@ -592,6 +708,12 @@ static Suite *make_suite(void)
     tcase_add_test(bad, unopenable_files_give_io_errors);
     tcase_add_test(bad, huge_file_refused_before_reading);
     suite_add_tcase(s, bad);
+    TCase *batch = tcase_create("batch");
+    tcase_add_test(batch, batch_sets_faulty_populations_aside);
+    tcase_add_test(batch, batch_fails_on_file_problems_like_strict);
+    tcase_add_test(batch, batch_reading_of_every_bad_file);
+    tcase_add_test(batch, batch_row_limit_is_the_callers);
+    suite_add_tcase(s, batch);
     TCase *hostile = tcase_create("hostile");
     tcase_set_timeout(hostile, 30);
     tcase_add_test(hostile, memory_input_matches_file_input);

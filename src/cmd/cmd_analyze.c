@@ -15,11 +15,14 @@
 #include "analysis/analysis.h"
 #include "analysis/provenance.h"
 #include "analysis/sheets.h"
+#include "batch/batch.h"
+#include "batch/batch_mpi.h"
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "cmd/setup.h"
 #include "export/atomic.h"
 #include "export/report.h"
+#include "model/model_file.h"
 #include "project/cautions.h"
 #include "survey/survey.h"
 #include "util/error.h"
@@ -33,6 +36,12 @@
 #define MAX_DRAWS 10000000
 #define MAX_RUNS 10000000
 #define MAX_THREADS 256
+/* Above this many populations analyze runs as a batch: one workbook with nine sheets per
+ * population stops being readable, and holding every population's fits until the end (some
+ * 20 MB each at the default settings) stops fitting in memory. */
+#define BATCH_AUTO 25
+/* Data rows a batch file may hold: 5000 populations of 60 years, within the importer's byte limit. */
+#define BATCH_MAX_ROWS 300000
 
 /* Set by the SIGINT / SIGTERM handler and polled by the chains, the importance sampler, the
  * projection and the writer: a signal handler has no other way to reach the running code
@@ -73,8 +82,8 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --obs O,...        counting-error models (default poisson,negbin for whole counts,\n"
             "                     lognormal otherwise; 'all' for every one of %s that suits)\n"
             "  --seed S           random seed (default %llu); the same seed gives the same numbers\n"
-            "  --threads T        threads (default: the number of processors); the results do not\n"
-            "                     depend on T\n"
+            "  --threads T        threads (default: the number of processors; 1 per MPI process); the\n"
+            "                     results do not depend on T. A batch analyses T populations at a time\n"
             "  --chains C         chains per model (default %zu)\n"
             "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
             "  --thin K           keep every K-th of them (default %zu)\n"
@@ -82,12 +91,25 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --particles N      particles of the filter (default: tuned per model)\n"
             "  --draws M          importance draws per density for each marginal likelihood (default %zu)\n"
             "  --runs R           simulated futures (default: at least %d)\n"
+            "  --batch            analyse the populations as a batch even when there are few (see below)\n"
+            "  --fresh            with --batch: discard the results of an earlier batch in the folder\n"
+            "                     that was made with other settings, instead of refusing to run\n"
+            "  --workbook-limit N with --batch: a workbook per population when the batch has at most N\n"
+            "                     populations (default %d); the CSV tables are always written\n"
             "  -q, --quiet        print nothing but errors\n"
             "  -h, --help         show this help\n\n"
-            "Exit status: 0 done, 1 the job could not be done, 2 bad command line, 3 unusable survey,\n"
-            "130 interrupted (nothing written).\n",
+            "Batch mode (--batch, more than %d populations, or several MPI processes): the populations\n"
+            "are shared among the threads (one population each at a time) or the MPI processes, and\n"
+            "each one's tables are written as it finishes into DIR/<survey>/populations/<label>/,\n"
+            "ending with a marker file; DIR/<survey>.xlsx and DIR/<survey>/all-populations.csv then\n"
+            "hold one row per population (failed ones with their reason). A population whose rows are\n"
+            "invalid is set aside and reported; the others are analysed. An interrupted batch\n"
+            "continues where it stopped when the same command is run again.\n\n"
+            "Exit status: 0 done, 1 the job could not be done (batch: some populations failed; the\n"
+            "summary says why), 2 bad command line or a batch folder with other settings, 3 unusable\n"
+            "survey, 130 interrupted (single survey: nothing written; batch: run it again to go on).\n",
             DEFAULT_DIR, d->project.horizon, growth, obs, (unsigned long long)d->seed, d->fit.n_chains, d->fit.n_iter * d->fit.thin,
-            d->fit.thin, d->fit.n_warmup, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS);
+            d->fit.thin, d->fit.n_warmup, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
 }
 
 /* Splits the comma list text (copied into buf) into names; "all" gives *is_all = 1. Each name
@@ -202,10 +224,146 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
         fprintf(out, "  caution: some fits did not pass the convergence checks; see the diagnostics sheet\n");
 }
 
-int tf_cmd_analyze(int argc, char **argv)
+/* ---- batch mode ---- */
+
+/* Hashes of the model files the priors come from, as lines of the batch's settings record: an
+ * edited prior changes the numbers, so a batch must not continue across it. */
+static void model_file_lines(const tf_analysis_options *o, char *buf, size_t size)
+{
+    size_t used = 0;
+    const char *names[TF_ANALYSIS_MAX_NAMES + 64];
+    size_t n = 0;
+    if (o->n_growth)
+        for (size_t i = 0; i < o->n_growth; i++)
+            names[n++] = o->growth[i];
+    else
+        for (size_t i = 0; i < tf_model_n_growth() && n < TF_ANALYSIS_MAX_NAMES; i++)
+            names[n++] = tf_model_growth_at(i)->name;
+    names[n++] = "observation";
+    buf[0] = '\0';
+    for (size_t i = 0; i < n; i++) {
+        char file[128], path[4096], hex[TF_PROVENANCE_HASH_BUF];
+        snprintf(file, sizeof file, "%s.ini", names[i]);
+        if (tf_model_file_locate(file, path, sizeof path, NULL) != TF_OK ||
+            tf_provenance_hash_file(path, hex, NULL) != TF_OK)
+            snprintf(hex, sizeof hex, "missing");
+        int w = snprintf(buf + used, size - used, "model-file %s %s\n", file, hex);
+        if (w < 0 || (size_t)w >= size - used)
+            break;
+        used += (size_t)w;
+    }
+}
+
+typedef struct {
+    int quiet;
+} batch_show;
+
+/* One line per settled population on stderr: a batch runs for hours, often under a scheduler
+ * that keeps stderr as its log. */
+static void show_batch(void *ctx, const tf_batch_event *e)
+{
+    const batch_show *s = ctx;
+    if (s->quiet || !e->finished)
+        return;
+    const char *label = e->label[0] ? e->label : "(unnamed)";
+    if (e->state == TF_BATCH_DONE)
+        fprintf(stderr, "[%zu/%zu] %s: done in %.0f s\n", e->n_settled, e->n_populations, label, e->seconds);
+    else
+        fprintf(stderr, "[%zu/%zu] %s: %s: %s\n", e->n_settled, e->n_populations, label, tf_batch_state_name(e->state),
+                e->reason);
+}
+
+/* The batch: every rank runs this; only rank 0 prints and writes the summary. Returns the exit
+ * code, the same on every rank. */
+static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const char *path, const char *name,
+                     const char *xlsx, const char *root, size_t workbook_limit, int fresh, int quiet, int rank,
+                     int size, tf_error *err)
+{
+    char extra[4096];
+    model_file_lines(opt, extra, sizeof extra);
+    tf_batch_options bo = {.analysis = *opt, .survey_path = path, .title = name, .root = root, .workbook = xlsx,
+                           .workbook_limit = workbook_limit, .extra_settings = extra, .fresh = fresh};
+    tf_batch *b = NULL;
+    tf_status st = tf_batch_new(sv, &bo, &b, err);
+    /* Rank 0 alone looks at the folder; the others learn the outcome. */
+    if (st == TF_OK && rank == 0)
+        st = tf_batch_prepare(b, err);
+    st = (tf_status)tf_batch_mpi_share((int)st, size);
+    if (st != TF_OK) {
+        tf_batch_free(b);
+        return tf_args_exit_code(st);
+    }
+    batch_show show = {.quiet = quiet || rank != 0};
+    size_t n = tf_batch_n_populations(b);
+    if (rank == 0 && !quiet) {
+        fprintf(stderr, "%s: batch of %zu populations", PROG, n);
+        if (tf_batch_n_resumed(b))
+            fprintf(stderr, ", %zu settled by an earlier run", tf_batch_n_resumed(b));
+        if (size > 1)
+            fprintf(stderr, ", on %d MPI processes (1 manager, %d workers)\n", size, size - 1);
+        else
+            fprintf(stderr, ", %zu at a time\n", opt->n_threads < tf_batch_n_todo(b) ? opt->n_threads : tf_batch_n_todo(b));
+    }
+    if (size > 1)
+        st = tf_batch_run_mpi(b, rank, size, opt->n_threads, &interrupted, show_batch, &show, err);
+    else
+        st = tf_batch_run_threads(b, opt->n_threads, &interrupted, show_batch, &show, err);
+    int code = TF_EXIT_OK;
+    if (rank == 0) {
+        tf_error werr;
+        tf_error_init(&werr);
+        /* The summary is written also after an interruption: its Status column then says which
+         * populations are still to do. */
+        tf_status ws = st == TF_OK || st == TF_ERR_INTERRUPTED ? tf_batch_write_summary(b, NULL, &werr) : TF_OK;
+        if (st != TF_OK && st != TF_ERR_INTERRUPTED) {
+            code = tf_args_exit_code(st);
+        } else if (ws != TF_OK) {
+            *err = werr;
+            code = tf_args_exit_code(ws);
+        } else if (st == TF_ERR_INTERRUPTED) {
+            fprintf(stderr, "%s: interrupted with %zu of %zu populations settled; the same command continues\n",
+                    PROG, n - tf_batch_count(b, TF_BATCH_PENDING), n);
+            code = TF_EXIT_INTERRUPTED;
+        } else {
+            size_t n_failed = tf_batch_count(b, TF_BATCH_FAILED), n_bad = tf_batch_count(b, TF_BATCH_BAD_DATA);
+            if (!quiet) {
+                printf("batch: %zu populations: %zu done, %zu failed, %zu with bad data\n", n,
+                       tf_batch_count(b, TF_BATCH_DONE), n_failed, n_bad);
+                size_t shown = 0;
+                for (size_t i = 0; i < n; i++) {
+                    tf_batch_state s = tf_batch_state_of(b, i);
+                    if (s == TF_BATCH_DONE)
+                        continue;
+                    if (++shown > 20) {
+                        printf("  ... and %zu more; see the summary\n", n_failed + n_bad - 20);
+                        break;
+                    }
+                    printf("  %s: %s: %s\n", tf_batch_label(b, i), tf_batch_state_name(s), tf_batch_reason(b, i));
+                }
+                for (size_t i = 0; i < tf_project_n_cautions(); i++)
+                    printf("caution: %s\n", tf_project_caution(i));
+                printf("summary:  %s\ntables:   %s/%s (one row per population)\n"
+                       "          %s/%s/<population>/ (each population's tables)\n",
+                       xlsx, root, TF_BATCH_SUMMARY_CSV, root, TF_BATCH_POP_DIR);
+            }
+            if (fflush(stdout) != 0) {
+                tf_error_add(err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+                code = TF_EXIT_FAIL;
+            } else if (n_failed + n_bad) {
+                code = TF_EXIT_FAIL;
+                tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, "the summary gives each one's reason",
+                             "%zu of %zu populations could not be analysed", n_failed + n_bad, n);
+            }
+        }
+    }
+    tf_batch_free(b);
+    return tf_batch_mpi_share(code, size);
+}
+
+static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS, OPT_ITER,
-           OPT_THIN, OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_RUNS };
+           OPT_THIN, OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -222,6 +380,9 @@ int tf_cmd_analyze(int argc, char **argv)
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"draws", required_argument, NULL, OPT_DRAWS},
         {"runs", required_argument, NULL, OPT_RUNS},
+        {"batch", no_argument, NULL, OPT_BATCH},
+        {"fresh", no_argument, NULL, OPT_FRESH},
+        {"workbook-limit", required_argument, NULL, OPT_WB_LIMIT},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
@@ -235,6 +396,13 @@ int tf_cmd_analyze(int argc, char **argv)
     }
     long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
     opt.n_threads = n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    /* Under MPI one process per core is the rule: each takes one thread unless told otherwise. */
+    if (size > 1)
+        opt.n_threads = 1;
+    int batch = size > 1, fresh = 0;
+    size_t workbook_limit = TF_BATCH_WORKBOOK_LIMIT;
+    /* Only rank 0 of an MPI run prints; the others would repeat every line. */
+    FILE *errs = rank == 0 ? stderr : NULL;
     const char *out_dir = DEFAULT_DIR;
     char growth_buf[1024], obs_buf[1024];
     size_t n_particles = 0, iterations = opt.fit.n_iter * opt.fit.thin;
@@ -274,8 +442,14 @@ int tf_cmd_analyze(int argc, char **argv)
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;
+        case OPT_BATCH: batch = 1; break;
+        case OPT_FRESH: fresh = 1; break;
+        case OPT_WB_LIMIT: tf_args_parse_size("--workbook-limit", optarg, 0, SIZE_MAX, &workbook_limit, &err); break;
         case 'q': quiet = 1; break;
-        case 'h': help(stdout, &opt); return TF_EXIT_OK;
+        case 'h':
+            if (rank == 0)
+                help(stdout, &opt);
+            return TF_EXIT_OK;
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
     }
@@ -294,8 +468,12 @@ int tf_cmd_analyze(int argc, char **argv)
     if (path && !strcmp(path, "-"))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
                      "analyze needs a survey file: its name names the results and its hash is recorded");
+    if (opt.population && batch && tf_error_status(&err) == TF_OK)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "drop --population to run the batch, or --batch for one population",
+                     "--population analyses one population, which is not a batch");
     if (tf_error_status(&err) != TF_OK) {
-        tf_error_print(&err, PROG, stderr);
+        if (errs)
+            tf_error_print(&err, PROG, errs);
         return TF_EXIT_USAGE;
     }
     opt.fit.n_particles = opt.evidence.n_particles = n_particles;
@@ -311,11 +489,12 @@ int tf_cmd_analyze(int argc, char **argv)
     int k2 = snprintf(csv_dir, sizeof csv_dir, "%s/%s", out_dir, name);
     if (k1 < 0 || (size_t)k1 >= sizeof xlsx || k2 < 0 || (size_t)k2 >= sizeof csv_dir) {
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o folder", "the output path is too long");
-        tf_error_print(&err, PROG, stderr);
+        if (errs)
+            tf_error_print(&err, PROG, errs);
         return TF_EXIT_USAGE;
     }
 
-    int status = TF_EXIT_FAIL;
+    int status = TF_EXIT_FAIL, in_batch = 0;
     tf_survey *sv = NULL;
     tf_analysis *a = NULL;
     tf_report *r = NULL;
@@ -329,6 +508,28 @@ int tf_cmd_analyze(int argc, char **argv)
 
     tf_sheets_provenance prov = {.input_name = path, .title = name};
     tf_status st;
+    /* A survey of many populations is read so that a population with bad rows is set aside and
+     * reported while the others are analysed; a small one without --batch keeps the strict
+     * reading, which refuses the whole file. */
+    if (!opt.population) {
+        if ((st = tf_survey_read_batch(path, BATCH_MAX_ROWS, &sv, &err)) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+        if (batch || tf_survey_n_series(sv) + tf_survey_n_rejected(sv) > BATCH_AUTO) {
+            struct stat info;
+            if (stat(csv_dir, &info) == 0 && !S_ISDIR(info.st_mode)) {
+                tf_error_add(&err, TF_ERR_IO, csv_dir, 0, 0, "move the file away or choose another -o folder",
+                             "the folder for the batch is taken by a file");
+                goto out;
+            }
+            in_batch = 1;
+            status = run_batch(sv, &opt, path, name, xlsx, csv_dir, workbook_limit, fresh, quiet, rank, size, &err);
+            goto out;
+        }
+        tf_survey_free(sv);
+        sv = NULL;
+    }
     if ((st = tf_survey_read(path, &sv, &err)) != TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;
@@ -377,12 +578,28 @@ int tf_cmd_analyze(int argc, char **argv)
 out:
     sigaction(SIGINT, &old_int, NULL);
     sigaction(SIGTERM, &old_term, NULL);
-    if (status == TF_EXIT_INTERRUPTED)
-        fputs(PROG ": interrupted; no files written\n", stderr);
-    else if (status != TF_EXIT_OK)
-        tf_error_print(&err, PROG, stderr);
+    if (!errs)
+        ; /* another rank prints */
+    else if (status == TF_EXIT_INTERRUPTED && !in_batch)
+        fputs(PROG ": interrupted; no files written\n", errs);
+    else if (status != TF_EXIT_OK && status != TF_EXIT_INTERRUPTED)
+        tf_error_print(&err, PROG, errs);
     tf_report_free(r);
     tf_analysis_free(a);
     tf_survey_free(sv);
     return status;
+}
+
+int tf_cmd_analyze(int argc, char **argv)
+{
+    int rank = 0, size = 1;
+    tf_error err;
+    tf_error_init(&err);
+    if (tf_batch_mpi_start(&argc, &argv, &rank, &size, &err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_FAIL;
+    }
+    int code = analyze(argc, argv, rank, size);
+    tf_batch_mpi_end();
+    return code;
 }

@@ -16,6 +16,12 @@
 #include "util/rng.h"
 
 #define CMD "simulate"
+/* The scheme: at most 5000 populations of 8 to 40 years (the sizes a batch is built for),
+ * which stays within the batch reading's row limit. */
+#define SCHEME_MAX 5000
+#define SCHEME_MIN_YEARS 8
+#define SCHEME_MAX_YEARS 40
+#define SCHEME_MAX_ROWS ((size_t)SCHEME_MAX * SCHEME_MAX_YEARS)
 
 static void help(FILE *out)
 {
@@ -24,9 +30,16 @@ static void help(FILE *out)
     tf_model_list_obs(obs, sizeof obs);
     fprintf(out,
             "usage: tallyfit simulate --model M [--obs O] --set NAME=VALUE,... --years N --start N1\n"
-            "                         [--first-year Y] [--seed S] [--effort E|E1,E2,...] [--label L] [-o FILE]\n\n"
+            "                         [--first-year Y] [--seed S] [--effort E|E1,E2,...] [--label L] [-o FILE]\n"
+            "       tallyfit simulate --populations N [--seed S] [-o FILE]\n\n"
             "Draws annual counts from a state-space population model and writes them as a survey CSV\n"
             "(columns year,count[,effort], with a first column population when --label is given).\n\n"
+            "With --populations N (1 to %d) it writes instead an invented monitoring scheme of N\n"
+            "populations site-0001, site-0002, ... for tests and benchmarks: each drawn with its own\n"
+            "growth model (exponential, Ricker or Gompertz), trend, process noise, counting error\n"
+            "(Poisson or negative binomial), abundance (about 15 to 3000), length (%d to %d years),\n"
+            "first year, years without a survey (NA) and, for some, an effort that varies by year.\n"
+            "The same seed gives the same file, and population i the same series whatever N.\n\n"
             "options:\n"
             "  --model M        growth model: %s\n"
             "  --obs O          counting error: %s (default poisson)\n"
@@ -42,7 +55,8 @@ static void help(FILE *out)
             "  -o, --output FILE\n"
             "                   write to FILE (replaced only once complete) instead of standard output\n"
             "  -h, --help       show this help\n",
-            growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN, TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
+            SCHEME_MAX, SCHEME_MIN_YEARS, SCHEME_MAX_YEARS, growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN,
+            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
 }
 
 static int usage_fail(tf_error *err)
@@ -74,6 +88,141 @@ static int write_csv(FILE *out, const char *label, long first_year, size_t n_yea
     return ferror(out);
 }
 
+/* Uniform on (lo, hi). */
+static double uniform(tf_rng *rng, double lo, double hi) { return lo + (hi - lo) * tf_rng_uniform(rng); }
+
+/* One population of the scheme into out: its parameters, then its counts, drawn from its own
+ * stream (seed, "scheme", i) so that it does not depend on the number of populations. Draws
+ * again (same stream) until the series is one the importer takes: at least
+ * TF_SURVEY_MIN_SURVEYED surveyed years, not all zero. Invented: the ranges only span what
+ * monitoring schemes of birds and mammals commonly show (common practice, no source). */
+static tf_status scheme_population(FILE *out, uint64_t seed, size_t i, const char *label_fmt, tf_error *err)
+{
+    uint64_t keys[2] = {tf_rng_key("scheme"), (uint64_t)i};
+    tf_rng rng;
+    tf_rng_derive(&rng, seed, keys, 2);
+    static const char *const growth[] = {"exponential", "ricker", "gompertz"};
+    double x[SCHEME_MAX_YEARS], y[SCHEME_MAX_YEARS], effort[SCHEME_MAX_YEARS];
+    for (int attempt = 0; attempt < 100; attempt++) {
+        double u = tf_rng_uniform(&rng);
+        const char *g = growth[u < 0.4 ? 0 : u < 0.7 ? 1 : 2];
+        int negbin = tf_rng_uniform(&rng) < 0.4;
+        size_t n = SCHEME_MIN_YEARS + (size_t)(tf_rng_uniform(&rng) * (SCHEME_MAX_YEARS - SCHEME_MIN_YEARS + 1));
+        if (n > SCHEME_MAX_YEARS)
+            n = SCHEME_MAX_YEARS;
+        long first = 1975 + (long)(tf_rng_uniform(&rng) * (double)(2024 - 1975 - (long)n + 2));
+        double start = exp(uniform(&rng, log(15.0), log(3000.0)));
+        double sigma = uniform(&rng, 0.05, 0.3);
+        int varied = tf_rng_uniform(&rng) < 0.2;
+        tf_model *m = NULL;
+        tf_status st = tf_model_new(g, negbin ? "negbin" : "poisson", &m, err);
+        if (st != TF_OK)
+            return st;
+        double theta[TF_MAX_PARAMS];
+        for (size_t k = 0; k < tf_model_n_params(m); k++) {
+            const char *p = tf_model_param_name(m, k);
+            if (!strcmp(p, "sigma"))
+                theta[k] = sigma;
+            else if (!strcmp(p, "phi"))
+                theta[k] = uniform(&rng, 3, 30);
+            else if (!strcmp(p, "K"))
+                theta[k] = fmax(5.0, start * exp(uniform(&rng, -1.2, 0.8)));
+            else if (!strcmp(p, "r"))
+                theta[k] = strcmp(g, "exponential") ? uniform(&rng, 0.1, 0.6) : uniform(&rng, -0.08, 0.06);
+            else
+                theta[k] = 1.0;
+        }
+        for (size_t t = 0; t < n; t++)
+            effort[t] = varied ? uniform(&rng, 0.5, 2.0) : 1.0;
+        st = tf_model_simulate(m, theta, log(start), effort, n, &rng, x, y, err);
+        tf_model_free(m);
+        if (st != TF_OK)
+            return st;
+        /* Gaps: any year but the first and the last goes unsurveyed with chance 0.12. */
+        size_t surveyed = 0, nonzero = 0;
+        int gap[SCHEME_MAX_YEARS];
+        for (size_t t = 0; t < n; t++) {
+            gap[t] = t > 0 && t + 1 < n && tf_rng_uniform(&rng) < 0.12;
+            surveyed += !gap[t];
+            nonzero += !gap[t] && y[t] > 0;
+        }
+        if (surveyed < TF_SURVEY_MIN_SURVEYED || nonzero == 0 || !(y[0] < TF_SURVEY_MAX_COUNT))
+            continue;
+        for (size_t t = 0; t < n; t++) {
+            fprintf(out, label_fmt, i + 1);
+            if (gap[t])
+                fprintf(out, ",%ld,NA,\n", first + (long)t);
+            else
+                fprintf(out, ",%ld,%.0f,%.4g\n", first + (long)t, y[t], effort[t]);
+        }
+        return TF_OK;
+    }
+    return tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, "try another --seed",
+                        "population %zu of the scheme drew no usable series", i + 1);
+}
+
+/* The whole scheme, made in memory and read back by the importer before anything is written. */
+static int write_scheme(size_t n_pop, uint64_t seed, const char *output)
+{
+    tf_error err;
+    tf_error_init(&err);
+    char *text = NULL;
+    size_t len = 0;
+    int status = TF_EXIT_FAIL;
+    tf_atomic *of = NULL;
+    FILE *mem = open_memstream(&text, &len);
+    if (!mem) {
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
+        goto out;
+    }
+    fprintf(mem, "# An invented monitoring scheme: tallyfit simulate --populations %zu --seed %llu\n", n_pop,
+            (unsigned long long)seed);
+    fputs("population,year,count,effort\n", mem);
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < n_pop && st == TF_OK; i++)
+        st = scheme_population(mem, seed, i, "site-%04zu", &err);
+    if (fclose(mem) != 0) {
+        mem = NULL;
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
+        goto out;
+    }
+    mem = NULL;
+    if (st != TF_OK)
+        goto out;
+    tf_error check;
+    tf_error_init(&check);
+    tf_survey *sv = NULL;
+    if (tf_survey_parse_batch("simulated scheme", text, len, SCHEME_MAX_ROWS, &sv, &check) != TF_OK ||
+        tf_survey_n_rejected(sv) || tf_survey_n_series(sv) != n_pop) {
+        tf_error_add(&err, TF_ERR_INVALID, NULL, 0, 0, NULL, "the simulated scheme does not read back: %s",
+                     check.n_items ? check.items[0].what : "a population was set aside");
+        tf_survey_free(sv);
+        goto out;
+    }
+    tf_survey_free(sv);
+    if (output && strcmp(output, "-")) {
+        if (tf_atomic_open(output, NULL, &of, &err) != TF_OK)
+            goto out;
+        fwrite(text, 1, len, tf_atomic_stream(of));
+        tf_atomic *done = of;
+        of = NULL;
+        if (tf_atomic_commit(done, &err) != TF_OK)
+            goto out;
+    } else if (fwrite(text, 1, len, stdout) != len || fflush(stdout) != 0) {
+        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+        goto out;
+    }
+    status = TF_EXIT_OK;
+out:
+    if (status != TF_EXIT_OK)
+        tf_error_print(&err, "tallyfit " CMD, stderr);
+    if (mem)
+        fclose(mem);
+    tf_atomic_abort(of);
+    free(text);
+    return status;
+}
+
 /* A label is written unquoted, so it must not need CSV quoting. */
 static int label_ok(const char *s)
 {
@@ -87,7 +236,8 @@ static int label_ok(const char *s)
 
 int tf_cmd_simulate(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL,
+           OPT_POPULATIONS };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -98,6 +248,7 @@ int tf_cmd_simulate(int argc, char **argv)
         {"seed", required_argument, NULL, OPT_SEED},
         {"effort", required_argument, NULL, OPT_EFFORT},
         {"label", required_argument, NULL, OPT_LABEL},
+        {"populations", required_argument, NULL, OPT_POPULATIONS},
         {"output", required_argument, NULL, 'o'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
@@ -111,16 +262,17 @@ int tf_cmd_simulate(int argc, char **argv)
     double start = NAN;
     long first_year = 2000;
     uint64_t seed = 1;
-    int have_years = 0;
+    int have_years = 0, single = 0;
+    size_t n_pop = 0;
 
     opterr = 0;
     optind = 0;
     int c;
     while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
         switch (c) {
-        case OPT_MODEL: growth = optarg; break;
-        case OPT_OBS: obs = optarg; break;
-        case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
+        case OPT_MODEL: single = 1; growth = optarg; break;
+        case OPT_OBS: single = 1; obs = optarg; break;
+        case OPT_SET: single = 1; tf_args_parse_pairs("--set", optarg, &set, &err); break;
         case OPT_YEARS:
             /* The importer's limits, so that every file written can be read back. */
             if (tf_args_parse_size("--years", optarg, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN, &n_years, &err) ==
@@ -135,8 +287,9 @@ int tf_cmd_simulate(int argc, char **argv)
             tf_args_parse_long("--first-year", optarg, TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, &first_year, &err);
             break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
-        case OPT_EFFORT: effort_text = optarg; break;
+        case OPT_EFFORT: single = 1; effort_text = optarg; break;
         case OPT_LABEL: label = optarg; break;
+        case OPT_POPULATIONS: tf_args_parse_size("--populations", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
         case 'o': output = optarg; break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
@@ -145,6 +298,14 @@ int tf_cmd_simulate(int argc, char **argv)
     if (optind < argc)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit simulate --help' for the options",
                      "unexpected argument '%s'", argv[optind]);
+    if (n_pop) {
+        if ((single || have_years || !isnan(start) || label) && tf_error_status(&err) == TF_OK)
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give --populations with --seed and -o only",
+                         "--populations draws every population's model and settings itself");
+        if (tf_error_status(&err) != TF_OK)
+            return usage_fail(&err);
+        return write_scheme(n_pop, seed, output);
+    }
     if (!growth && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     if (!have_years && tf_error_status(&err) == TF_OK)

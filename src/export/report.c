@@ -311,7 +311,7 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
     /* Refuse the protected input before any folder is made. */
     if ((st = tf_atomic_check_target(xlsx_path, protect, err)) != TF_OK)
         goto done;
-    if ((st = tf_atomic_mkdirs(csv_dir, &n_made, err)) != TF_OK)
+    if (csv_dir && (st = tf_atomic_mkdirs(csv_dir, &n_made, err)) != TF_OK)
         goto done;
     if (!(wb = tf_workbook_new(xlsx_path, protect, err))) {
         st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_IO;
@@ -327,7 +327,8 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
                 goto done;
             snprintf(names[i], sizeof names[i], "%s", tf_sheet_name(sheets[i]));
         }
-        if ((st = csv_to_temp(r->tables[i].table, csv_dir, r->tables[i].csv, protect, &files[i], err)) != TF_OK)
+        if (csv_dir &&
+            (st = csv_to_temp(r->tables[i].table, csv_dir, r->tables[i].csv, protect, &files[i], err)) != TF_OK)
             goto done;
     }
     for (size_t i = 0; i < r->n_charts; i++) {
@@ -350,11 +351,12 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
         if ((st = tf_workbook_add_chart(wb, &spec, err)) != TF_OK)
             goto done;
     }
-    if (!(contents = contents_table(r, names, err))) {
+    if (csv_dir && !(contents = contents_table(r, names, err))) {
         st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
         goto done;
     }
-    if ((st = csv_to_temp(contents, csv_dir, TF_REPORT_CONTENTS_CSV, protect, &files[r->n_tables], err)) != TF_OK)
+    if (csv_dir &&
+        (st = csv_to_temp(contents, csv_dir, TF_REPORT_CONTENTS_CSV, protect, &files[r->n_tables], err)) != TF_OK)
         goto done;
     if (stopped(stop)) {
         st = interrupted(err);
@@ -367,7 +369,7 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
     if (st != TF_OK)
         goto done;
     n_made = 0;   /* the workbook is in place: the folder stays whatever happens next */
-    st = tf_atomic_commit_all(files, n_files, err);
+    st = csv_dir ? tf_atomic_commit_all(files, n_files, err) : TF_OK;
     for (size_t i = 0; i < n_files; i++)
         files[i] = NULL;
 done:

@@ -86,7 +86,8 @@ tf_status tf_report_add_chart(tf_report *r, const tf_report_chart *c, tf_error *
  * temporaries are removed, and so are the folders this call made (TF_ERR_IO, TF_ERR_USAGE for
  * the protected file, TF_ERR_NOMEM, or the workbook's errors). Should the CSV renames then fail,
  * the CSV files are as before and the error (TF_ERR_IO) says so; the new workbook stays.
- * The report itself is not changed and may be written again. */
+ * The report itself is not changed and may be written again. csv_dir NULL writes the workbook
+ * alone (for callers that write the tables in a layout of their own). */
 tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char *csv_dir, const char *protect,
                           const volatile sig_atomic_t *stop, tf_error *err);
 

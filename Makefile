@@ -2,6 +2,14 @@
 # `make sanitize` runs it again under ASan+UBSan; `make V=1` shows the commands.
 
 PREFIX   ?= /usr/local
+# `make MPI=1` builds build/mpi/tallyfit with mpicc, in which `mpirun -n P tallyfit analyze`
+# spreads a batch over P processes (src/batch/batch_mpi.c); the plain build compiles no MPI.
+ifeq ($(MPI),1)
+BUILD    := build/mpi
+BIN      := build/mpi/tallyfit
+CC       := mpicc
+CPPFLAGS += -DTF_MPI
+endif
 BUILD    ?= build
 CC       ?= cc
 PKGS     := gsl xlsxwriter inih check
@@ -24,7 +32,7 @@ else
 Q := @
 endif
 
-SRC      := $(filter-out src/main.c,$(wildcard src/*/*.c))
+SRC      := $(filter-out src/main.c $(if $(filter 1,$(MPI)),,src/batch/batch_mpi.c),$(wildcard src/*/*.c))
 OBJ      := $(SRC:%.c=$(BUILD)/%.o)
 DEP      := $(OBJ:.o=.d) $(BUILD)/src/main.d
 LIB      := $(BUILD)/libtallyfit.a
@@ -69,9 +77,11 @@ deps:
 	$(Q)tools/install-deps
 
 # The README's test command: installs what is missing, builds, runs everything.
+# Where mpicc exists the MPI build is made too, for the batch test (tests/e2e/batch.sh).
 check: deps
 	$(Q)$(MAKE) --no-print-directory $(BIN) $(TEST_BIN)
-	$(Q)TALLYFIT=$(CURDIR)/$(BIN) BUILD=$(BUILD) tests/run-all $(TEST_BIN)
+	$(Q)if command -v mpicc >/dev/null; then $(MAKE) --no-print-directory MPI=1; fi
+	$(Q)TALLYFIT=$(CURDIR)/$(BIN) TALLYFIT_MPI=$(CURDIR)/build/mpi/tallyfit BUILD=$(BUILD) tests/run-all $(TEST_BIN)
 
 # Same suite, separate build tree, ASan+UBSan; any report fails the run.
 SAN_CC := $(CC) -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer

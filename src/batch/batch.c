@@ -1203,7 +1203,6 @@ tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t 
         }
         fprintf(f, "%s\r\n", line);
         st = append_line(rows, line, err);
-        free(pending);
         /* The label as the summary writes it (quoted when it must be): the first field. */
         size_t k = 0;
         for (int q = 0; line[k] && (q || line[k] != ','); k++)
@@ -1215,6 +1214,7 @@ tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t 
         else
             tf_csv_format_number(it->seconds, num, sizeof num);
         fprintf(g, "%.*s,%s,%s\r\n", (int)k, line, tf_batch_state_name(it->state), num);
+        free(pending);
     }
     if (fclose(f) != 0 || fclose(g) != 0) {
         f = g = NULL;

@@ -24,6 +24,7 @@
 #include "export/report.h"
 #include "export/table.h"
 #include "export/workbook.h"
+#include "model/model.h"
 #include "project/cautions.h"
 #include "util/version.h"
 
@@ -789,19 +790,85 @@ tf_status tf_batch_prepare(tf_batch *b, tf_error *err)
 
 /* ---- one population ---- */
 
-/* A copy of t with a first column Population holding label in every row, so that the same
- * table of every population concatenates under one header. */
+/* The columns a table has in every population's folder, so that the same table of every
+ * population concatenates under one header: the counts table gains its effort columns only
+ * where effort varies, and the draws table has a column per parameter of the fitted models, so
+ * for these two the batch writes every column that any population can have (blank where it
+ * does not apply). Other tables have the same columns everywhere already. Writes at most max
+ * headers into out; returns their number, 0 for "the table's own columns". */
+static size_t canonical_columns(const char *table, const char **out, size_t max)
+{
+    static const char *const counts[] = {"Year",     "Count",      "Effort",     "Count per effort", "Estimate",
+                                         "Lower 50 %", "Upper 50 %", "Lower 95 %", "Upper 95 %"};
+    size_t n = 0;
+    if (!strcmp(table, "Counts")) {
+        for (; n < sizeof counts / sizeof counts[0] && n < max; n++)
+            out[n] = counts[n];
+        return n;
+    }
+    if (strcmp(table, "Draws"))
+        return 0;
+    static const char *const head[] = {"Model", "Chain", "Draw", "Log-likelihood"};
+    for (size_t k = 0; k < 4 && n < max; k++)
+        out[n++] = head[k];
+    /* Parameters in the joined models' order: drift parameters, sigma, counting error. */
+    const char *names[64];
+    size_t nn = 0;
+    for (size_t g = 0; g < tf_model_n_growth(); g++)
+        for (size_t k = 0; k < tf_model_growth_at(g)->n_params && nn < 63; k++)
+            names[nn++] = tf_model_growth_at(g)->param_names[k];
+    names[nn++] = "sigma";
+    for (size_t o = 0; o < tf_model_n_obs(); o++)
+        for (size_t k = 0; k < tf_model_obs_at(o)->n_params && nn < 64; k++)
+            names[nn++] = tf_model_obs_at(o)->param_names[k];
+    for (size_t k = 0; k < nn && n < max; k++) {
+        size_t j = 4;
+        while (j < n && strcmp(out[j], names[k]))
+            j++;
+        if (j == n)
+            out[n++] = names[k];
+    }
+    if (n < max)
+        out[n++] = "Last-year abundance";
+    return n;
+}
+
+/* A copy of t with a first column Population holding label in every row and the canonical
+ * columns of its kind (see canonical_columns), each cell copied from the column of the same
+ * header; a column of t outside the canonical ones (none, short of a bug) comes last. */
 static tf_table *with_population(const tf_table *t, const char *label, tf_error *err)
 {
     tf_table *c = tf_table_new(tf_table_name(t), err);
     if (!c)
         return NULL;
     size_t nc = tf_table_n_columns(t), nr = tf_table_n_rows(t);
+    const char *want[96];
+    size_t nw = canonical_columns(tf_table_name(t), want, sizeof want / sizeof want[0]);
+    size_t map[96 + 64], n_out = 0;   /* map[k]: the column of t shown as column k + 1, or NONE */
+    const size_t NONE = TF_TABLE_NO_COLUMN;
     tf_status st = tf_table_add_column(c, "Population", "the population's label", TF_COL_TEXT, NULL, err);
-    for (size_t j = 0; j < nc && st == TF_OK; j++) {
+    for (size_t k = 0; k < nw && st == TF_OK; k++) {
+        size_t j = tf_table_find_column(t, want[k]);
+        if (j != NONE) {
+            const char *legend = tf_table_legend(t, j);
+            st = tf_table_add_column(c, want[k], legend[0] ? legend : NULL, tf_table_column_kind(t, j), NULL, err);
+        } else {
+            char legend[128];
+            snprintf(legend, sizeof legend, "%s (blank: does not apply to this population)", want[k]);
+            st = tf_table_add_column(c, want[k], legend, TF_COL_NUMBER, NULL, err);
+        }
+        map[n_out++] = j;
+    }
+    for (size_t j = 0; j < nc && st == TF_OK && n_out < sizeof map / sizeof map[0]; j++) {
+        size_t k = 0;
+        while (k < nw && strcmp(want[k], tf_table_header(t, j)))
+            k++;
+        if (nw && k < nw)
+            continue;
         const char *legend = tf_table_legend(t, j);
         st = tf_table_add_column(c, tf_table_header(t, j), legend[0] ? legend : NULL, tf_table_column_kind(t, j), NULL,
                                  err);
+        map[n_out++] = j;
     }
     for (size_t k = 0; k < tf_table_n_notes(t) && st == TF_OK; k++)
         st = tf_table_add_note(c, tf_table_note_kind(t, k), tf_table_note(t, k), err);
@@ -809,16 +876,19 @@ static tf_table *with_population(const tf_table *t, const char *label, tf_error 
         size_t row;
         if ((st = tf_table_add_row(c, &row, err)) != TF_OK || (st = tf_table_set_text(c, row, 0, label, err)) != TF_OK)
             break;
-        for (size_t j = 0; j < nc && st == TF_OK; j++) {
+        for (size_t k = 0; k < n_out && st == TF_OK; k++) {
+            size_t j = map[k];
+            if (j == NONE)
+                continue;
             const char *text = tf_table_text(t, i, j);
             if (text)
-                st = tf_table_set_text(c, row, j + 1, text, err);
+                st = tf_table_set_text(c, row, k + 1, text, err);
             else if (!tf_table_is_empty(t, i, j))
-                tf_table_set_number(c, row, j + 1, tf_table_number(t, i, j));
+                tf_table_set_number(c, row, k + 1, tf_table_number(t, i, j));
             if (st == TF_OK && tf_table_cell_kind(t, i, j) != tf_table_column_kind(t, j))
-                st = tf_table_set_cell_kind(c, row, j + 1, tf_table_cell_kind(t, i, j), err);
+                st = tf_table_set_cell_kind(c, row, k + 1, tf_table_cell_kind(t, i, j), err);
             if (st == TF_OK && tf_table_warning(t, i, j))
-                st = tf_table_set_warning(c, row, j + 1, err);
+                st = tf_table_set_warning(c, row, k + 1, err);
         }
     }
     if (st != TF_OK) {

@@ -104,7 +104,9 @@ fuzz: deps
 
 bench: deps
 	$(Q)$(MAKE) --no-print-directory tallyfit $(BENCH_BIN)
+	$(Q)if command -v mpicc >/dev/null; then $(MAKE) --no-print-directory MPI=1; fi
 	$(Q)for b in $(BENCH_BIN); do $$b || exit 1; done
+	$(Q)bench/bench_batch.sh
 
 # The long statistical checks: parameter coverage over more simulated surveys, then
 # simulation-based calibration of the sampler (tests/ref/test_fit_recovery.py), and the model

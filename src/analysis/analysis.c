@@ -304,11 +304,15 @@ static tf_status run_population(tf_analysis_pop *p, const tf_analysis_options *o
     }
     p->best = tf_comparison_best(p->cmp);
     if (p->best >= n) {
-        char where[160] = "";
+        char where[160] = "", why[320] = "";
         if (label[0])
             snprintf(where, sizeof where, " of population '%s'", label);
+        /* The first failed candidate's note: a batch reports this one message per population. */
+        for (size_t i = 0; i < n && !why[0]; i++)
+            if (p->models[i].state == TF_CANDIDATE_FAILED && p->models[i].note[0])
+                snprintf(why, sizeof why, " (%s: %s)", p->models[i].name, p->models[i].note);
         return tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, "see the notes of 'tallyfit compare' on the same file",
-                            "no candidate model%s could be fitted", where);
+                            "no candidate model%s could be fitted%s", where, why);
     }
     /* The best by probability equals the best by evidence under equal prior weights; read it
      * from the probabilities so that it stays right if weights are ever given. */

@@ -52,6 +52,14 @@ int tf_batch_mpi_share(int value, int size)
     return value;
 }
 
+int tf_batch_mpi_max(int value, int size)
+{
+    int out = value;
+    if (mpi_on && size > 1)
+        MPI_Allreduce(&value, &out, 1, MPI_INT, MPI_MAX, MPI_COMM_WORLD);
+    return out;
+}
+
 /* ---- the worker ---- */
 
 static int send_message(char kind, const char *data, size_t len)

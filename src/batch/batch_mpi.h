@@ -19,6 +19,8 @@ tf_status tf_batch_mpi_start(int *argc, char ***argv, int *rank, int *size, tf_e
 void tf_batch_mpi_end(void);
 /* Rank 0's value, on every rank (a broadcast); value itself when size is 1. */
 int tf_batch_mpi_share(int value, int size);
+/* The largest value over all ranks (an all-reduce); value itself when size is 1. */
+int tf_batch_mpi_max(int value, int size);
 /* The manager/worker queue: rank 0 hands out the populations still to do (b prepared on rank
  * 0; the workers need only tf_batch_new) one at a time to whichever worker asks, and records
  * each result; workers analyse with n_threads threads each and write the population's folder
@@ -38,6 +40,11 @@ static inline tf_status tf_batch_mpi_start(int *argc, char ***argv, int *rank, i
 }
 static inline void tf_batch_mpi_end(void) {}
 static inline int tf_batch_mpi_share(int value, int size)
+{
+    (void)size;
+    return value;
+}
+static inline int tf_batch_mpi_max(int value, int size)
 {
     (void)size;
     return value;

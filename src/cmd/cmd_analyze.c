@@ -285,13 +285,16 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
                            .workbook_limit = workbook_limit, .extra_settings = extra, .fresh = fresh};
     tf_batch *b = NULL;
     tf_status st = tf_batch_new(sv, &bo, &b, err);
-    /* Rank 0 alone looks at the folder; the others learn the outcome. */
+    /* Rank 0 alone looks at the folder; every rank learns whether all are ready. */
     if (st == TF_OK && rank == 0)
         st = tf_batch_prepare(b, err);
-    st = (tf_status)tf_batch_mpi_share((int)st, size);
-    if (st != TF_OK) {
+    int code = tf_batch_mpi_max(st == TF_OK ? TF_EXIT_OK : tf_args_exit_code(st), size);
+    if (code != TF_EXIT_OK) {
+        if (st == TF_OK)
+            tf_error_add(err, TF_ERR_IO, NULL, 0, 0, "see the messages of the other processes",
+                         "another MPI process could not set up the batch");
         tf_batch_free(b);
-        return tf_args_exit_code(st);
+        return code;
     }
     batch_show show = {.quiet = quiet || rank != 0};
     size_t n = tf_batch_n_populations(b);
@@ -308,7 +311,6 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
         st = tf_batch_run_mpi(b, rank, size, opt->n_threads, &interrupted, show_batch, &show, err);
     else
         st = tf_batch_run_threads(b, opt->n_threads, &interrupted, show_batch, &show, err);
-    int code = TF_EXIT_OK;
     if (rank == 0) {
         tf_error werr;
         tf_error_init(&werr);

@@ -1,6 +1,8 @@
 /* libFuzzer target for the survey importer (tf_survey_parse): any byte string must give either a
  * survey that keeps every promise of survey.h or a failure with at least one message, never a
- * crash, a sanitizer report or a leak. A broken promise aborts, which the fuzzer reports like a
+ * crash, a sanitizer report or a leak. The batch reading (tf_survey_parse_batch) must agree: the
+ * same failure where it fails, the same populations where the strict reading succeeds, and
+ * otherwise clean populations beside set-aside ones that account for every population. A broken promise aborts, which the fuzzer reports like a
  * crash. Built and run by tests/fuzz/run.sh. */
 #include <math.h>
 #include <stdint.h>
@@ -41,12 +43,55 @@ static void check_series(const tf_series *s)
     REQUIRE(positive >= 1);
 }
 
+/* The batch reading of the same bytes, against the strict outcome st / strict (may be NULL). */
+static void check_batch(const uint8_t *data, size_t size, tf_status st, const tf_error *strict_err,
+                        const tf_survey *strict)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_survey *sv = NULL;
+    tf_status bs = tf_survey_parse_batch("fuzz.csv", (const char *)data, size, 0, &sv, &err);
+    if (bs != TF_OK) {
+        REQUIRE(sv == NULL && st == bs && err.n_items == strict_err->n_items);
+        return;
+    }
+    size_t n = tf_survey_n_series(sv), nr = tf_survey_n_rejected(sv);
+    if (st == TF_OK) {
+        REQUIRE(nr == 0 && n == tf_survey_n_series(strict));
+    } else {
+        /* The strict reading's first problem is the first problem of a population set aside
+         * (when no message was dropped, so that its first one is the file's first). */
+        REQUIRE(nr >= 1);
+        int found = strict_err->n_dropped > 0;
+        for (size_t i = 0; i < nr && !found; i++) {
+            const tf_survey_rejected *x = tf_survey_rejected_at(sv, i);
+            found = x->line == strict_err->items[0].line && !strcmp(x->what, strict_err->items[0].what);
+        }
+        REQUIRE(found);
+    }
+    unsigned char seen[4096] = {0};
+    for (size_t i = 0; i < n; i++) {
+        check_series(tf_survey_series(sv, i));
+        size_t o = tf_survey_series_order(sv, i);
+        REQUIRE(o < n + nr && (o >= sizeof seen || !seen[o]++));
+        REQUIRE(i == 0 || o > tf_survey_series_order(sv, i - 1));
+    }
+    for (size_t i = 0; i < nr; i++) {
+        const tf_survey_rejected *x = tf_survey_rejected_at(sv, i);
+        REQUIRE(x->order < n + nr && (x->order >= sizeof seen || !seen[x->order]++));
+        REQUIRE(x->n_problems >= 1 && x->line >= 1 && x->what[0]);
+    }
+    REQUIRE(tf_survey_rejected_at(sv, nr) == NULL);
+    tf_survey_free(sv);
+}
+
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
     tf_error err;
     tf_error_init(&err);
     tf_survey *sv = NULL;
     tf_status st = tf_survey_parse("fuzz.csv", (const char *)data, size, &sv, &err);
+    check_batch(data, size, st, &err, sv);
     if (st != TF_OK) {
         REQUIRE(sv == NULL);
         REQUIRE(err.n_items >= 1 && err.items[0].what[0]);

@@ -50,14 +50,17 @@ typedef struct {
 } row;
 
 /* Batch reading holds a row's or a population's problems back instead of reporting them, so
- * that a faulty population can be set aside while the others are read. The row's messages are
- * kept whole (a row has at most a year, a count, an effort and a label problem) for the case
- * where the file fails after all and they must be reported as the strict reading would. */
-#define HELD_MAX 4
+ * that a faulty population can be set aside while the others are read. The first TF_ERROR_MAX
+ * messages are kept whole (an error record keeps no more), the others counted, with the status
+ * of the lowest line among all of them: enough to report them as the strict reading would when
+ * the file fails after all. */
 #define NO_FAULT SIZE_MAX
 typedef struct {
-    size_t n;           /* problems found; the first HELD_MAX are kept */
-    tf_error_item items[HELD_MAX];
+    size_t n;               /* problems found */
+    size_t n_kept;          /* the first of them, in items (malloc'd once stored) */
+    tf_error_item *items;
+    long min_line;          /* the lowest line among all n, and its status */
+    tf_status min_status;
 } held;
 
 typedef struct {
@@ -75,8 +78,11 @@ typedef struct {
     bool nomem;
     bool batch;         /* set faulty populations aside instead of failing the file */
     size_t max_rows;
-    held *hold;         /* when not NULL, report() keeps messages here instead of in err */
-    held *faults;       /* batch reading: problems of rows, by row.fault */
+    bool holding;       /* report() keeps messages in cur instead of in err */
+    bool released;      /* the held messages have been reported: the file failed */
+    held cur;           /* its items point to scratch */
+    tf_error_item scratch[TF_ERROR_MAX];
+    held *faults;       /* batch reading: problems of rows and populations, by row.fault / group.fault */
     size_t n_faults, faults_cap;
 
     struct csv_parser csv;
@@ -118,9 +124,15 @@ static void report(reader *r, tf_status status, long line, long col, const char 
     va_start(ap, fmt);
     vsnprintf(what, sizeof what, fmt, ap);
     va_end(ap);
-    if (r->hold) {
-        if (r->hold->n < HELD_MAX) {
-            tf_error_item *it = &r->hold->items[r->hold->n];
+    if (r->holding) {
+        held *h = &r->cur;
+        if (!h->n || line < h->min_line) {
+            h->min_line = line;
+            h->min_status = status;
+        }
+        h->n++;
+        if (h->n_kept < TF_ERROR_MAX) {
+            tf_error_item *it = &h->items[h->n_kept++];
             it->status = status;
             it->line = line;
             it->column = col;
@@ -128,7 +140,6 @@ static void report(reader *r, tf_status status, long line, long col, const char 
             snprintf(it->what, sizeof it->what, "%s", what);
             snprintf(it->hint, sizeof it->hint, "%s", hint ? hint : "");
         }
-        r->hold->n++;
         return;
     }
     tf_error_add(r->err, status, r->name, line, col, hint, "%s", what);
@@ -157,13 +168,55 @@ static bool reserve(void **buf, size_t *cap, size_t need, size_t elem)
     return true;
 }
 
-/* Reports the held messages as the strict reading would have. */
+/* Starts holding messages back (batch reading only). */
+static void hold(reader *r)
+{
+    if (!r->batch)
+        return;
+    r->holding = true;
+    r->cur = (held){.items = r->scratch};
+}
+
+/* Stops holding; stores what was held in r->faults and its index in *fault (NO_FAULT when
+ * nothing was). false when out of memory (reported by the caller). */
+static bool unhold(reader *r, size_t *fault)
+{
+    *fault = NO_FAULT;
+    if (!r->holding)
+        return true;
+    r->holding = false;
+    if (!r->cur.n)
+        return true;
+    held h = r->cur;
+    if (!(h.items = malloc(h.n_kept * sizeof *h.items)) ||
+        !reserve((void **)&r->faults, &r->faults_cap, r->n_faults + 1, sizeof *r->faults)) {
+        free(h.items);
+        return false;
+    }
+    memcpy(h.items, r->scratch, h.n_kept * sizeof *h.items);
+    *fault = r->n_faults;
+    r->faults[r->n_faults++] = h;
+    return true;
+}
+
+/* Reports held messages as the strict reading would have: the kept ones as messages, the
+ * others as dropped, with the status of the lowest line among all of them. */
 static void release(reader *r, const held *h)
 {
-    for (size_t i = 0; i < h->n && i < HELD_MAX; i++) {
+    for (size_t i = 0; i < h->n_kept; i++) {
         const tf_error_item *it = &h->items[i];
         report(r, it->status, it->line, it->column, it->hint[0] ? it->hint : NULL, "%s", it->what);
     }
+    size_t dropped = h->n - h->n_kept;
+    if (!dropped)
+        return;
+    if (r->err)
+        r->err->n_dropped += dropped;
+    if (h->min_line < r->first_line) {
+        r->first_line = h->min_line;
+        r->first_status = h->min_status;
+    }
+    r->n_reported += dropped;
 }
 
 static bool is_blank(char c) { return c == ' ' || c == '\t'; }
@@ -408,9 +461,7 @@ static void read_data(reader *r)
     }
     row w = {.count = NAN, .effort = 1.0, .line = line, .seq = r->n_rows, .fault = NO_FAULT};
     bool labelled = true;
-    held mine = {0};
-    if (r->batch)
-        r->hold = &mine;
+    hold(r);
 
     long ycol = r->col[COL_YEAR];
     const char *ys = field(r, ycol);
@@ -494,20 +545,19 @@ static void read_data(reader *r)
             labelled = false;
         }
     }
-    r->hold = NULL;
-    if (!labelled) {
-        /* A row that belongs to no population fails the file, as in the strict reading. */
-        release(r, &mine);
-        r->orphan_fault = true;
+    if (!unhold(r, &w.fault)) {
+        r->nomem = true;
         return;
     }
-    if (mine.n) {
-        if (!reserve((void **)&r->faults, &r->faults_cap, r->n_faults + 1, sizeof *r->faults)) {
-            r->nomem = true;
-            return;
+    if (!labelled) {
+        /* A row that belongs to no population fails the file, as in the strict reading. */
+        if (w.fault != NO_FAULT) {
+            held *h = &r->faults[--r->n_faults];
+            release(r, h);
+            free(h->items);
         }
-        w.fault = r->n_faults;
-        r->faults[r->n_faults++] = mine;
+        r->orphan_fault = true;
+        return;
     }
 
     /* Rows of one population usually follow each other: reuse the previous row's label copy. */
@@ -778,22 +828,16 @@ static tf_survey *assemble(reader *r)
     }
     qsort(groups, n_groups, sizeof *groups, by_first_seq);
     for (size_t g = 0; g < n_groups; g++) {
-        held mine = {0};
-        if (r->batch)
-            r->hold = &mine;
+        hold(r);
         check_group(r, r->rows + groups[g].start, groups[g].n);
-        r->hold = NULL;
-        if (mine.n) {
-            if (!reserve((void **)&r->faults, &r->faults_cap, r->n_faults + 1, sizeof *r->faults))
-                goto nomem;
-            groups[g].fault = r->n_faults;
-            r->faults[r->n_faults++] = mine;
-        }
+        if (!unhold(r, &groups[g].fault))
+            goto nomem;
     }
     if (r->n_reported || r->orphan_fault) {
         /* A problem that belongs to no population: the file fails whole, with every message. */
         for (size_t i = 0; i < r->n_faults; i++)
             release(r, &r->faults[i]);
+        r->released = true;
         goto done;
     }
 
@@ -819,8 +863,9 @@ static tf_survey *assemble(reader *r)
             if (f == NO_FAULT)
                 continue;
             n_problems += r->faults[f].n;
-            if (!first || r->faults[f].items[0].line < first->line)
-                first = &r->faults[f].items[0];
+            for (size_t k = 0; k < r->faults[f].n_kept; k++)
+                if (!first || r->faults[f].items[k].line < first->line)
+                    first = &r->faults[f].items[k];
         }
         if (first) {
             if (!sv->rejected && !(sv->rejected = calloc(n_groups, sizeof *sv->rejected)))
@@ -918,6 +963,11 @@ static tf_status parse(const char *name, const char *data, size_t len, int batch
         *out = assemble(&r);
 
 finish:
+    /* A file that fails before its populations are assembled fails whole: every held message is
+     * reported, as the strict reading reports it. */
+    if (!*out && !r.released)
+        for (size_t k = 0; k < r.n_faults; k++)
+            release(&r, &r.faults[k]);
     if (r.nomem)
         report(&r, TF_ERR_NOMEM, 0, 0, NULL, "out of memory reading the survey");
     csv_stop(&r);
@@ -925,6 +975,8 @@ finish:
     free(r.foff);
     free(r.rows);
     free(r.labels);
+    for (size_t k = 0; k < r.n_faults; k++)
+        free(r.faults[k].items);
     free(r.faults);
     if (!r.n_reported)
         return TF_OK;

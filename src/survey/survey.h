@@ -52,8 +52,9 @@ tf_status tf_survey_parse_batch(const char *name, const char *data, size_t len, 
 
 /* A population set aside by the batch reading: its label (owned by the survey), its place among
  * all populations of the file in order of first appearance, and its first problem in file order
- * (status, line, column, message and hint as tf_survey_read would report it) with the number of
- * problems it has in all. */
+ * (status, line, column, message and hint as tf_survey_read would report it; among the first
+ * TF_ERROR_MAX problems of each row and of its group checks) with the number of problems it has
+ * in all. */
 typedef struct {
     char *label;
     size_t order;

@@ -15,9 +15,9 @@
 #include "util/error.h"
 
 /* Per-population workbooks are written when the batch has at most this many populations: each
- * holds every draw and a chart per table (a few MB and about a second to write), so thousands
- * of them would cost disk and time that nobody spends reading them; the CSV tables and the
- * summary workbook are always written. */
+ * holds every draw and a chart per table, so thousands of them would cost disk and time that
+ * nobody spends reading them, and a few dozen are as many as anyone opens one by one; the CSV
+ * tables and the summary workbook are always written. */
 #define TF_BATCH_WORKBOOK_LIMIT 25
 
 /* The folder of the per-population results inside the batch folder, and the files of each. */

@@ -92,7 +92,7 @@ PY
 # ---- 3 MPI processes (2 workers and the manager) ----
 M=${TALLYFIT_MPI:-}
 if [ "${TF_SANITIZE:-}" ]; then
-  echo "batch.sh: MPI part skipped under the sanitizers (Open MPI's own allocations are reported as leaks)"
+  echo "batch.sh: MPI part skipped under the sanitizers (make sanitize builds no MPI binary)"
 elif [ -x "$M" ] && command -v mpirun >/dev/null; then
   # As root (CI, containers) Open MPI must be told that this is meant.
   [ "$(id -u)" -eq 0 ] && export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1

@@ -124,10 +124,9 @@ static void help(FILE *out)
             "  --runs R                simulated futures (default %d, or the number of posterior draws\n"
             "                          when that is more)\n"
             "  --seed S                random seed (default %u); the same seed gives the same numbers\n"
-            "  -o, --output DIR        folder for the tables, DIR/<population>/ when several populations\n"
-            "                          are projected (default output/<survey name>/, one sub-folder per\n"
-            "                          population when the file has several; output/forecast/ without a\n"
-            "                          survey)\n"
+            "  -o, --output DIR        where to write (default output/<survey name>/, or output/forecast/\n"
+            "                          without a survey), with one sub-folder per population when the\n"
+            "                          file has several, as fit does\n"
             "  -q, --quiet             print only the cautions\n"
             "\n"
             "Fitting (--model, --average):\n"
@@ -313,25 +312,20 @@ static void job_clear(job *j)
     memset(j, 0, sizeof *j);
 }
 
-/* The output folder of a population: -o DIR itself when one population is projected, else
- * DIR/<population>; by default output/<survey>/, with /<population> when the file holds several
- * (as fit does); output/forecast without a survey. A name too long for the buffer is refused,
- * not cut: a cut name would be another folder. */
-static tf_status job_dir(const options *o, const tf_survey *sv, size_t n_jobs, job *j, tf_error *err)
+/* The output folder of a population, as fit chooses it, so that a population's fit and forecast
+ * land together: -o DIR or by default output/<survey>/, with /<population> below it when the file
+ * holds several populations (even if one is chosen); output/forecast without a survey. A name
+ * too long for the buffer is refused, not cut: a cut name would be another folder. */
+static tf_status job_dir(const options *o, const tf_survey *sv, job *j, tf_error *err)
 {
-    char base[256], sub[256];
+    char base[256], top[300], sub[256];
     tf_args_safe_name(j->label, sub, sizeof sub);
-    int n;
-    if (o->out_dir)
-        n = n_jobs > 1 ? snprintf(j->dir, sizeof j->dir, "%s/%s", o->out_dir, sub)
-                       : snprintf(j->dir, sizeof j->dir, "%s", o->out_dir);
-    else if (!sv)
-        n = snprintf(j->dir, sizeof j->dir, "output/forecast");
-    else {
+    if (sv)
         tf_args_survey_name(o->survey_path, base, sizeof base);
-        n = tf_survey_n_series(sv) > 1 ? snprintf(j->dir, sizeof j->dir, "output/%s/%s", base, sub)
-                                       : snprintf(j->dir, sizeof j->dir, "output/%s", base);
-    }
+    snprintf(top, sizeof top, "output/%s", sv ? base : "forecast");
+    const char *root = o->out_dir ? o->out_dir : top;
+    int n = sv && tf_survey_n_series(sv) > 1 ? snprintf(j->dir, sizeof j->dir, "%s/%s", root, sub)
+                                             : snprintf(j->dir, sizeof j->dir, "%s", root);
     if (n < 0 || (size_t)n >= sizeof j->dir)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o DIR",
                             "the output folder name is longer than %zu bytes", sizeof j->dir - 1);
@@ -907,7 +901,7 @@ static int run_fixed(const options *o, const tf_project_options *po)
             rc = fixed_start(o, j.s, &j);
         }
     }
-    if (!rc && job_dir(o, sv, 1, &j, &err))
+    if (!rc && job_dir(o, sv, &j, &err))
         rc = usage_fail(&err);
     if (!rc) {
         double x0 = log(j.start);
@@ -1012,7 +1006,7 @@ static int run_model(const options *o, const tf_project_options *po)
             rc = TF_EXIT_INPUT;
             goto out;
         }
-        if (job_dir(o, sv, n_jobs, j, &err) != TF_OK) {
+        if (job_dir(o, sv, j, &err) != TF_OK) {
             rc = TF_EXIT_USAGE;
             goto out;
         }
@@ -1185,7 +1179,7 @@ static int run_average(const options *o, const tf_project_options *po)
         j->label = tf_series_label(j->s);
         j->year0 = last_year(j->s);
         j->proj = tf_analysis_pop_projection(j->pop);
-        if (job_dir(o, sv, n_jobs, j, &err) != TF_OK) {
+        if (job_dir(o, sv, j, &err) != TF_OK) {
             rc = TF_EXIT_USAGE;
             goto out;
         }

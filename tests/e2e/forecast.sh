@@ -137,7 +137,8 @@ bands_flat "$tmp/cwd/output/multi-pop/east/forecast_bands.csv" 0 2004 198 2>/dev
 [ -e "$tmp/south" ] && fail "the zero-count run left $tmp/south"
 "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --start 4 \
   --fixed r=0,sigma=0.1 --runs 100 -o "$tmp/south" -q >/dev/null 2>&1 || fail "--start did not override"
-bands_flat "$tmp/south/forecast_bands.csv" 0 2002 4 2>/dev/null || fail "--start 4 not used"
+# -o DIR holds one folder per population when the file has several, as with fit.
+bands_flat "$tmp/south/south/forecast_bands.csv" 0 2002 4 2>/dev/null || fail "--start 4 not used"
 "$TALLYFIT" forecast "$tmp/no-such.csv" --fixed r=0,sigma=0.1 -o "$tmp/nosurvey" -q >/dev/null 2>&1
 [ $? -eq 3 ] || fail "a missing survey file should exit 3"
 bad "population without survey" --fixed r=0,sigma=0.1 --start 5 --population east
@@ -353,11 +354,13 @@ grep -q "set by hand" "$tmp/stdout" || fail "the what-if caution is not printed"
 lf "$tmp/whatif/forecast_summary.csv" | grep -q "given with --start" || fail "the summary does not name --start"
 lf "$tmp/whatif/forecast_summary.csv" | grep -q "set by hand" || fail "the summary lacks the what-if caution"
 
-# One population of several: -o DIR is its folder.
+# One population of several: its folder below -o DIR, as fit names it.
 herds="$repo/surveys/three-herds.csv"
 "$TALLYFIT" forecast "$herds" --population river-flats --model exponential "${FIT[@]}" -o "$tmp/rf" -q >/dev/null 2>&1 ||
   fail "--population with --model failed"
-lf "$tmp/rf/forecast_summary.csv" 2>/dev/null | grep -q '^Population,river-flats,' || fail "--population not written to $tmp/rf"
+lf "$tmp/rf/river-flats/forecast_summary.csv" 2>/dev/null | grep -q '^Population,river-flats,' ||
+  fail "--population river-flats not written to $tmp/rf/river-flats"
+[ "$(ls "$tmp/rf")" = river-flats ] || fail "--population wrote other folders: $(ls "$tmp/rf")"
 
 # Bad command lines of the posterior forms: exit 2, a message, nothing written.
 bad "several models without --average" "$heron" --model ricker,gompertz

@@ -569,7 +569,8 @@ static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_pa
             if ((st = tf_atomic_open(path, survey_path, &files[n_open], err)) != TF_OK)
                 break;
             n_open++;
-            st = tf_csv_write_stream(j->tables[k], tf_atomic_stream(files[n_open - 1]), path, err);
+            /* Write errors stay on the stream and are reported by the commit, with errno. */
+            tf_csv_write_stream(j->tables[k], tf_atomic_stream(files[n_open - 1]), path, NULL);
         }
     }
     sigset_t block, old_mask;

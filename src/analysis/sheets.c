@@ -436,11 +436,13 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
     tf_table *t = tf_table_new(name, err);
     if (!t)
         return tf_error_status(err);
-    size_t c_model, c_chains, c_iter, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_k,
+    size_t c_model, c_chains, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_k,
         c_sec = 0, c_status;
     TRY(tf_table_add_column(t, "Model", "the model's name", TF_COL_TEXT, &c_model, err));
     TRY(tf_table_add_column(t, "Chains", "independent PMMH chains", TF_COL_INTEGER, &c_chains, err));
     TRY(tf_table_add_column(t, "Draws per chain", "kept draws of each chain", TF_COL_INTEGER, &c_iter, err));
+    TRY(tf_table_add_column(t, "Thinning", "iterations per kept draw; doubled each time the chains were run on "
+                            "for as long again because they had not yet converged", TF_COL_INTEGER, &c_thin, err));
     TRY(tf_table_add_column(t, "Warm-up", "discarded draws of each chain while the sampler adapted", TF_COL_INTEGER, &c_warm,
                             err));
     TRY(tf_table_add_column(t, "Particles", "particles of the filter that estimates the likelihood", TF_COL_INTEGER, &c_part,
@@ -492,9 +494,9 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
             bulk = isnan(ps->ess_bulk) ? 0 : fmin(bulk, ps->ess_bulk);
             tail = isnan(ps->ess_tail) ? 0 : fmin(tail, ps->ess_tail);
         }
-        double v[] = {(double)nc, (double)tf_fit_n_iter(f), (double)fs->n_warmup, (double)fs->n_particles, fs->loglik_sd,
-                      acc, acc_min, inv, rhat, bulk, tail};
-        size_t c[] = {c_chains, c_iter, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail};
+        double v[] = {(double)nc, (double)tf_fit_n_iter(f), (double)fs->thin, (double)fs->n_warmup, (double)fs->n_particles,
+                      fs->loglik_sd, acc, acc_min, inv, rhat, bulk, tail};
+        size_t c[] = {c_chains, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail};
         for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
             tf_table_set_number(t, row, c[k], v[k]);
         if (seconds)

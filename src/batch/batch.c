@@ -136,6 +136,7 @@ static tf_status make_settings(tf_batch *b, tf_error *err)
     line(f, "particles", "%zu", a->fit.n_particles);
     line(f, "correlated", "%d %.17g", a->fit.correlated, a->fit.rho);
     line(f, "pilot-particles", "%zu", a->fit.pilot_particles);
+    line(f, "doublings", "%zu", a->fit.max_doublings);
     const tf_evidence_options *e = &a->evidence;
     line(f, "ml-draws", "%zu", e->n_draws);
     line(f, "ml-adapt", "%zu %zu", e->n_adapt_rounds, e->n_adapt_draws);

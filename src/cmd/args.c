@@ -128,6 +128,36 @@ tf_status tf_args_parse_doubles(const char *opt, const char *text, double *out, 
     }
 }
 
+tf_status tf_args_split_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
+                              size_t max, size_t *n, tf_error *err)
+{
+    *n = 0;
+    size_t len = strlen(text);
+    if (len >= size)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: the list is longer than %zu characters", opt,
+                            size - 1);
+    memcpy(buf, text, len + 1);
+    for (char *p = buf;;) {
+        char *end = strchr(p, ',');
+        if (end)
+            *end = '\0';
+        while (isspace((unsigned char)*p))
+            p++;
+        size_t k = strlen(p);
+        while (k && isspace((unsigned char)p[k - 1]))
+            p[--k] = '\0';
+        if (!k)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "separate names by single commas, e.g. ricker,gompertz",
+                                "%s: an empty name in '%s'", opt, text);
+        if (*n >= max)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: more than %zu names", opt, max);
+        names[(*n)++] = p;
+        if (!end)
+            return TF_OK;
+        p = end + 1;
+    }
+}
+
 /* Decimal digits only, into an unsigned 64-bit value; 0 on overflow or anything else. */
 static int unsigned_of(const char *text, uint64_t *out)
 {

@@ -45,6 +45,12 @@ tf_status tf_args_parse_double(const char *opt, const char *text, double *out, t
 tf_status tf_args_parse_doubles(const char *opt, const char *text, double *out, size_t max, size_t *n,
                                 tf_error *err);
 
+/* A comma list of names "a,b,c" (blanks around items allowed): copies text into buf (size
+ * bytes) and points names[0 .. *n) at the items within it. Errors: a list longer than buf, an
+ * empty item, more than max items. Whether the names mean anything is for the caller. */
+tf_status tf_args_split_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
+                              size_t max, size_t *n, tf_error *err);
+
 /* A whole number in [min, max] (decimal digits, optional sign for long). */
 tf_status tf_args_parse_size(const char *opt, const char *text, size_t min, size_t max, size_t *out,
                              tf_error *err);

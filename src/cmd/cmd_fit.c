@@ -30,6 +30,7 @@
 #define MAX_ITER 10000000
 #define MAX_PARTICLES 10000000
 #define MAX_THREADS 256
+#define MAX_DOUBLINGS 10
 
 /* Set by the SIGINT / SIGTERM handler and polled by the chains. The one piece of global state:
  * a signal handler has no other way to reach the running code (C11 7.14.1.1 allows it exactly
@@ -68,6 +69,9 @@ static void help(FILE *out)
             "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
             "  --thin K           keep every K-th of them (default %zu)\n"
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
+            "  --doublings D      when the chains miss R-hat <= %.2f or ESS >= %.0f, run them on for as\n"
+            "                     long again, keeping every second draw, at most D times (default %zu;\n"
+            "                     0 = fixed length; runs of fewer than %zu kept draws are never doubled)\n"
             "  --seed S           random seed (default %llu); the same seed gives the same files\n"
             "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
             "                     estimate's sd is near its target)\n"
@@ -79,9 +83,10 @@ static void help(FILE *out)
             "                     of the first %d counts / effort, and 1)\n"
             "  --threads T        threads running chains (default: the number of processors); the\n"
             "                     results do not depend on it\n"
-            "  --quiet            no progress display and no summary\n"
+            "  -q, --quiet        no progress display and no summary\n"
             "  -h, --help         show this help\n",
-            growth, obs, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, (unsigned long long)d.seed,
+            growth, obs, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN,
+            d.max_doublings, TF_PMMH_DOUBLING_MIN_DRAWS, (unsigned long long)d.seed,
             d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);
 }
 
@@ -300,6 +305,8 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
                      TF_COL_PROBABILITY, err) &&
              add_col(t, "warmup", "discarded iterations per chain", TF_COL_INTEGER, err) &&
              add_col(t, "iterations", "kept iterations per chain", TF_COL_INTEGER, err) &&
+             add_col(t, "thin", "iterations per kept draw (doubled with each doubling)", TF_COL_INTEGER, err) &&
+             add_col(t, "doublings", "times the chains were doubled in length to converge", TF_COL_INTEGER, err) &&
              add_col(t, "particles", "particles of the filter", TF_COL_INTEGER, err) &&
              add_col(t, "loglik_sd", "measured sd of the log-likelihood estimate at the pilot centre "
                      "(correlated method: of the log-ratio of two successive estimates)", TF_COL_NUMBER, err) &&
@@ -307,15 +314,15 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
              add_col(t, "rho", "correlation of successive random numbers (correlated method)", TF_COL_NUMBER, err) &&
              add_col(t, "seed", NULL, TF_COL_TEXT, err);
     for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++) {
-        double v[9] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
-                       (double)tf_fit_n_iter(f), (double)st->n_particles, st->loglik_sd, NAN,
-                       st->correlated ? st->rho : NAN};
+        double v[11] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
+                        (double)tf_fit_n_iter(f), (double)st->thin, (double)st->n_doublings, (double)st->n_particles,
+                        st->loglik_sd, NAN, st->correlated ? st->rho : NAN};
         char seed[32];
         snprintf(seed, sizeof seed, "%llu", (unsigned long long)st->seed);
         size_t row = tf_table_n_rows(t);
-        ok = tf_table_add_row_numbers(t, v, 9, err) == TF_OK &&
-             tf_table_set_text(t, row, 7, st->correlated ? "correlated" : "standard", err) == TF_OK &&
-             tf_table_set_text(t, row, 9, seed, err) == TF_OK;
+        ok = tf_table_add_row_numbers(t, v, 11, err) == TF_OK &&
+             tf_table_set_text(t, row, 9, st->correlated ? "correlated" : "standard", err) == TF_OK &&
+             tf_table_set_text(t, row, 11, seed, err) == TF_OK;
     }
     if (!ok) {
         tf_table_free(t);
@@ -407,6 +414,9 @@ static void print_summary(const job *j, FILE *out)
                  "log-likelihood sd %.2f, %.1f s\n",
             label, label[0] ? " " : "", tf_model_name(j->model), tf_fit_n_chains(f), tf_fit_n_iter(f),
             st->n_warmup, st->n_particles, st->correlated ? "correlated" : "standard", st->loglik_sd, st->seconds);
+    if (st->n_doublings)
+        fprintf(out, "  the chains did not meet the convergence thresholds at first and were run %zu times "
+                     "as long, keeping every %zu-th iteration\n", (size_t)1 << st->n_doublings, st->thin);
     fprintf(out, "  %-10s %11s %11s %11s %11s %11s %7s %8s %8s\n", "parameter", "mean", "sd", "2.5%", "median",
             "97.5%", "R-hat", "ESS-bulk", "ESS-tail");
     for (size_t p = 0; p < tf_fit_n_params(f); p++) {
@@ -462,7 +472,7 @@ static int exit_for(tf_status st)
 int tf_cmd_fit(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_ITER, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN };
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN, OPT_DOUBLINGS };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -472,6 +482,7 @@ int tf_cmd_fit(int argc, char **argv)
         {"iterations", required_argument, NULL, OPT_ITER},
         {"thin", required_argument, NULL, OPT_THIN},
         {"warmup", required_argument, NULL, OPT_WARMUP},
+        {"doublings", required_argument, NULL, OPT_DOUBLINGS},
         {"seed", required_argument, NULL, OPT_SEED},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"correlated", no_argument, NULL, OPT_CORR},
@@ -497,7 +508,7 @@ int tf_cmd_fit(int argc, char **argv)
     opterr = 0;
     optind = 0;
     int c;
-    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":o:hq", longopts, NULL)) != -1) {
         switch (c) {
         case OPT_MODEL: growth = optarg; break;
         case OPT_OBS: obs = optarg; break;
@@ -507,6 +518,9 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
         case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.n_warmup, &err); break;
+        case OPT_DOUBLINGS:
+            tf_args_parse_size("--doublings", optarg, 0, MAX_DOUBLINGS, &opt.max_doublings, &err);
+            break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
         case OPT_PARTICLES:
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &opt.n_particles, &err);
@@ -516,7 +530,8 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_PRIORS: priors_path = optarg; break;
         case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
         case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
-        case OPT_QUIET: quiet = 1; break;
+        case OPT_QUIET:
+        case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }

@@ -1,6 +1,8 @@
-/* `tallyfit forecast`: projects a population forward and reports quasi-extinction risk and the
- * chance of decline. For now from fixed parameter values (--fixed) and a start (--start or the
- * survey's last count); projection from a fitted posterior arrives with the sampler. */
+/* `tallyfit forecast`: projects a population forward and reports the abundance bands,
+ * quasi-extinction risk and the chance of decline. Three sources of futures: the posterior of one
+ * model fitted by PMMH (--model), the posteriors of the candidate models averaged by their
+ * posterior probabilities (--average: the analysis of `tallyfit analyze`, without its workbook),
+ * or parameter values given by hand (--fixed). */
 #define _GNU_SOURCE
 #include <getopt.h>
 #include <math.h>
@@ -8,15 +10,23 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
+#include "analysis/analysis.h"
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/setup.h"
 #include "export/atomic.h"
 #include "export/csv_out.h"
 #include "export/projection_tables.h"
+#include "export/table.h"
 #include "model/model.h"
+#include "model/prior.h"
 #include "project/cautions.h"
 #include "project/project.h"
+#include "sampler/fit.h"
+#include "sampler/pmmh.h"
+#include "sampler/posterior.h"
 #include "survey/survey.h"
 #include "util/rng.h"
 
@@ -24,41 +34,23 @@
 #define PROG "tallyfit " CMD
 #define DEFAULT_THRESHOLDS "50%,20%,10%"
 #define DEFAULT_SEED 1u
-/* Limit on --runs: far more than any Monte Carlo error needs, and within tf_project_run's. */
+/* Limits that only guard memory and time against typos; MAX_RUNS is tf_project_run's own. */
 #define MAX_RUNS 10000000u
+#define MAX_ITER 10000000
+#define MAX_PARTICLES 10000000
+#define MAX_DRAWS 10000000
+#define MAX_THREADS 256
+/* The three projection tables and the summary that says what was projected, with the cautions. */
+#define SUMMARY_TABLE TF_PROJECTION_N_TABLES
+#define N_TABLES (TF_PROJECTION_N_TABLES + 1)
+#define SUMMARY_NAME "forecast_summary"
 
-static const char usage_text[] =
-    "usage: tallyfit forecast [SURVEY.csv] --fixed NAME=VALUE,... [--start N] [options]\n"
-    "\n"
-    "Simulates the population forward and reports the abundance bands, the risk of falling to or\n"
-    "below a threshold (quasi-extinction) and the chance of decline, each with its Monte Carlo error.\n"
-    "\n"
-    "  --fixed r=..,sigma=..[,K=..]  project from these parameter values (growth parameters and the\n"
-    "                          process-noise sd sigma, natural scale)\n"
-    "  --start N               current abundance; without it, the last surveyed count / effort\n"
-    "                          of SURVEY.csv\n"
-    "  --model M               growth model (default: the one whose parameters --fixed names)\n"
-    "  --obs O                 counting-error model; its parameters in --fixed are ignored\n"
-    "  --population LABEL      which population of a survey that holds several\n"
-    "  --years H               years to project (default 50)\n"
-    "  --threshold LIST        abundances or percentages of the current abundance, e.g. 50,100,20%\n"
-    "                          (default " DEFAULT_THRESHOLDS ")\n"
-    "  --decline-window Y      also report declines over Y whole years (e.g. three generations,\n"
-    "                          rounded); declines over 10 years are always reported\n"
-    "  --runs R                simulated futures (default 4000)\n"
-    "  --seed S                random seed (default 1); the same seed gives the same numbers\n"
-    "  -o, --output DIR        folder for the CSV tables (default output/<survey name>/, or\n"
-    "                          output/forecast/ without a survey)\n"
-    "  -q, --quiet             print only the cautions\n"
-    "  --average               average over fitted models (needs the sampler; not yet available)\n"
-    "  -h, --help              this text\n"
-    "\n"
-    "Exit status: 0 done, 1 the job could not be done, 2 bad command line, 3 unusable survey,\n"
-    "130 interrupted.\n";
+/* Where the futures come from. */
+typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
 
-/* Set by the SIGINT/SIGTERM handler and polled between steps: a signal handler can only
- * communicate through a global of this type (C11 7.14.1.1), so this is the one piece of global
- * state the command keeps. */
+/* Set by the SIGINT/SIGTERM handler and polled by the chains, the importance sampler and the
+ * projection: a signal handler can only communicate through a global of this type (C11
+ * 7.14.1.1), so this is the one piece of global state the command keeps. */
 static volatile sig_atomic_t interrupted;
 static void on_signal(int sig)
 {
@@ -68,14 +60,99 @@ static void on_signal(int sig)
 
 typedef struct {
     const char *survey_path;
-    const char *model, *obs, *population, *out_dir;
+    const char *model, *obs, *population, *out_dir, *priors_path;
     const char *thresholds;
     int average, quiet, have_fixed;
     tf_arg_pairs fixed;
     size_t years, runs, decline_window;
     double start;
     uint64_t seed;
+    /* Sampler settings; 0 = the default of the source (no given value can be 0). */
+    size_t chains, iterations, thin, warmup, particles, draws, threads;
+    const char *sampler_opt; /* the first sampler option given, for the --fixed refusal */
+    source from;
 } options;
+
+static void help(FILE *out)
+{
+    char growth[256], obs[256];
+    tf_model_list_growth(growth, sizeof growth);
+    tf_model_list_obs(obs, sizeof obs);
+    tf_pmmh_options d = tf_pmmh_default_options();
+    tf_analysis_options a;
+    tf_error err;
+    tf_error_init(&err);
+    tf_analysis_options_init(&a, &err);
+    fprintf(out,
+            "usage: tallyfit forecast SURVEY.csv --model M [--obs O] [options]\n"
+            "       tallyfit forecast SURVEY.csv --average [--model M,...] [--obs O,...] [options]\n"
+            "       tallyfit forecast [SURVEY.csv] --fixed NAME=VALUE,... [--start N] [options]\n"
+            "\n"
+            "Simulates the population forward and reports the abundance bands, the risk of falling to or\n"
+            "below a threshold (quasi-extinction) and the chance of decline, each with its Monte Carlo error.\n"
+            "Give one source of futures:\n"
+            "  --model M [--obs O]     fit growth model M with counting error O (default poisson) by\n"
+            "                          particle MCMC, as 'tallyfit fit' does, and project from the\n"
+            "                          posterior: each draw starts from its own latent abundance in the\n"
+            "                          last survey year and runs on with its own parameters\n"
+            "  --average               fit the candidate models, compare them by marginal likelihood and\n"
+            "                          project averaging them by their posterior probabilities, as\n"
+            "                          'tallyfit analyze' does (without the workbook). --model and --obs\n"
+            "                          then take comma lists, or 'all', restricting the candidates\n"
+            "                          (default exponential,ricker,gompertz with poisson,negbin for whole\n"
+            "                          counts, lognormal otherwise)\n"
+            "  --fixed r=..,sigma=..[,K=..]  project from these parameter values (growth parameters and the\n"
+            "                          process-noise sd sigma, natural scale); --model picks the growth\n"
+            "                          model when the names leave a choice\n"
+            "Without one of them the command stops with a usage error rather than start a fit of\n"
+            "several minutes unasked.\n"
+            "Growth models: %s.\n"
+            "Counting error: %s.\n"
+            "\n"
+            "Projection:\n"
+            "  --population LABEL      only this population (default: every one in the file; --fixed and\n"
+            "                          --start need one)\n"
+            "  --start N               current abundance. --fixed: without it, the last surveyed count /\n"
+            "                          effort. With a posterior, a what-if: every draw starts from N\n"
+            "                          instead of its latent abundance, keeping the uncertainty about the\n"
+            "                          parameters and leaving out that about the current abundance\n"
+            "  --years H               years to project (default %d)\n"
+            "  --threshold LIST        abundances or percentages of the current abundance, e.g. 50,100,20%%\n"
+            "                          (default %s)\n"
+            "  --decline-window Y      also report declines over Y whole years (e.g. three generations,\n"
+            "                          rounded); declines over 10 years are always reported\n"
+            "  --runs R                simulated futures (default %d, or the number of posterior draws\n"
+            "                          when that is more)\n"
+            "  --seed S                random seed (default %u); the same seed gives the same numbers\n"
+            "  -o, --output DIR        where to write (default output/<survey name>/, or output/forecast/\n"
+            "                          without a survey), with one sub-folder per population when the\n"
+            "                          file has several, as fit does\n"
+            "  -q, --quiet             print only the cautions\n"
+            "\n"
+            "Fitting (--model, --average):\n"
+            "  --chains C              chains per model (default %zu)\n"
+            "  --iterations I          iterations per chain after the warm-up (default %zu with --model,\n"
+            "                          as fit; %zu with --average, as analyze)\n"
+            "  --thin K                keep every K-th of them (default %zu)\n"
+            "  --warmup W              discarded iterations per chain while the sampler adapts (default %zu)\n"
+            "  --particles N           particles of the filter (default: tuned per model)\n"
+            "  --priors FILE           --model only: a model file overriding some or all default priors\n"
+            "  --draws M               --average only: importance draws per density for each marginal\n"
+            "                          likelihood (default %zu)\n"
+            "  --threads T             threads (default: the number of processors); the results do not\n"
+            "                          depend on T\n"
+            "  -h, --help              this text\n"
+            "\n"
+            "Writes forecast_bands.csv (median, 50 %% and 90 %% bands per year), forecast_quasi_extinction.csv\n"
+            "(the cumulative risk per threshold and year, with its Monte Carlo error),\n"
+            "forecast_declines.csv, and forecast_summary.csv (what was projected: the model or the model\n"
+            "probabilities, the posterior draws, the settings, and the cautions), all or none.\n"
+            "\n"
+            "Exit status: 0 done, 1 the job could not be done, 2 bad command line, 3 unusable survey,\n"
+            "130 interrupted (nothing written).\n",
+            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS, DEFAULT_SEED, d.n_chains,
+            d.n_iter * d.thin, a.fit.n_iter * a.fit.thin, d.thin, d.n_warmup, a.evidence.n_draws);
+}
 
 /* Prints the messages in err; returns TF_EXIT_USAGE. */
 static int usage_fail(const tf_error *err)
@@ -202,33 +279,318 @@ static tf_status fixed_theta(const tf_model *m, const tf_arg_pairs *nv, double *
     return st;
 }
 
-/* ---- the output folder -------------------------------------------------------------------------- */
+/* ---- one population's forecast ------------------------------------------------------------------ */
 
-/* A survey or population name made safe for a folder name. */
-static void safe_name(const char *in, char *out, size_t size)
+typedef struct {
+    const tf_series *s;          /* NULL for a fixed forecast without a survey */
+    const char *label;           /* "" = unnamed */
+    char dir[4096];
+    int year0;                   /* calendar year of year 0; TF_PROJECTION_NO_YEAR when unknown */
+    double start;                /* --fixed: the start */
+    double theta[TF_MAX_PARAMS]; /* --fixed: the values */
+    tf_model *model;             /* --fixed and --model */
+    tf_prior_set *priors;        /* --model */
+    tf_posterior *post;
+    tf_fit *fit;
+    double *x_last;              /* --model: each draw's latent log-abundance in the last year */
+    tf_projection *own;          /* --fixed and --model */
+    const tf_projection *proj;   /* the projection reported: own, or the analysis's */
+    const tf_analysis_pop *pop;  /* --average */
+    tf_table *tables[N_TABLES];
+} job;
+
+static void job_clear(job *j)
 {
-    size_t n = 0;
-    for (; *in && n + 1 < size; in++) {
-        unsigned char c = (unsigned char)*in;
-        int ok = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' || c == '_' ||
-                 (c == '.' && n > 0);
-        out[n++] = ok ? (char)c : '_';
-    }
-    out[n] = '\0';
-    if (n == 0)
-        snprintf(out, size, "forecast");
+    for (size_t k = 0; k < N_TABLES; k++)
+        tf_table_free(j->tables[k]);
+    tf_projection_free(j->own);
+    free(j->x_last);
+    tf_fit_free(j->fit);
+    tf_posterior_free(j->post);
+    tf_prior_set_free(j->priors);
+    tf_model_free(j->model);
+    memset(j, 0, sizeof *j);
 }
 
-static void survey_stem(const char *path, char *out, size_t size)
+/* The output folder of a population, as fit chooses it, so that a population's fit and forecast
+ * land together: -o DIR or by default output/<survey>/, with /<population> below it when the file
+ * holds several populations (even if one is chosen); output/forecast without a survey. A name
+ * too long for the buffer is refused, not cut: a cut name would be another folder. */
+static tf_status job_dir(const options *o, const tf_survey *sv, job *j, tf_error *err)
 {
-    const char *base = strrchr(path, '/');
-    base = base ? base + 1 : path;
-    char stem[256];
-    snprintf(stem, sizeof stem, "%s", base);
-    char *dot = strrchr(stem, '.');
-    if (dot && dot != stem)
-        *dot = '\0';
-    safe_name(stem, out, size);
+    char base[256], top[300], sub[256];
+    tf_args_safe_name(j->label, sub, sizeof sub);
+    if (sv)
+        tf_args_survey_name(o->survey_path, base, sizeof base);
+    snprintf(top, sizeof top, "output/%s", sv ? base : "forecast");
+    const char *root = o->out_dir ? o->out_dir : top;
+    int n = sv && tf_survey_n_series(sv) > 1 ? snprintf(j->dir, sizeof j->dir, "%s/%s", root, sub)
+                                             : snprintf(j->dir, sizeof j->dir, "%s", root);
+    if (n < 0 || (size_t)n >= sizeof j->dir)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o DIR",
+                            "the output folder name is longer than %zu bytes", sizeof j->dir - 1);
+    return TF_OK;
+}
+
+/* Calendar year of the last year of the series: where a posterior's latent starts lie. */
+static int last_year(const tf_series *s)
+{
+    return tf_series_first_year(s) + (int)tf_series_n_years(s) - 1;
+}
+
+/* 1 when the effort is not 1 in every surveyed year: abundances are then per unit of effort. */
+static int per_effort(const tf_series *s)
+{
+    const double *y = tf_series_counts(s), *e = tf_series_effort(s);
+    for (size_t t = 0; t < tf_series_n_years(s); t++)
+        if (!isnan(y[t]) && e[t] != 1)
+            return 1;
+    return 0;
+}
+
+/* The largest R-hat and the smallest bulk or tail ESS over a fit's parameters. */
+static void fit_mixing(const tf_fit *f, double *rhat_max, double *ess_min)
+{
+    *rhat_max = -INFINITY;
+    *ess_min = INFINITY;
+    for (size_t p = 0; p < tf_fit_n_params(f); p++) {
+        const tf_fit_param_summary *s = tf_fit_param(f, p);
+        *rhat_max = isnan(s->rhat) || s->rhat > *rhat_max ? s->rhat : *rhat_max;
+        double e = s->ess_bulk < s->ess_tail ? s->ess_bulk : s->ess_tail;
+        *ess_min = isnan(e) || e < *ess_min ? e : *ess_min;
+    }
+}
+
+/* 1 when every fit the projection draws from passed the convergence checks. */
+static int job_converged(const options *o, const job *j)
+{
+    if (o->from == FROM_MODEL)
+        return tf_fit_converged(j->fit);
+    if (o->from == FROM_AVERAGE)
+        for (size_t i = 0; i < tf_analysis_pop_n_models(j->pop); i++) {
+            const tf_analysis_model *m = tf_analysis_pop_model(j->pop, i);
+            if (m->probability > 0 && !tf_fit_converged(m->fit))
+                return 0;
+        }
+    return 1;
+}
+
+static const char not_converged[] =
+    "Some chains behind this projection did not pass the convergence checks (R-hat above 1.01 or an "
+    "effective sample size below 400): the draws may not represent the posterior yet. Run longer "
+    "(--iterations, --warmup) before relying on the numbers.";
+
+/* Room for the general cautions and the three of a particular forecast. */
+#define MAX_CAUTIONS 8
+
+/* The cautions of a forecast: the general ones, then what this source of futures leaves out. */
+static size_t cautions_for(const options *o, const job *j, const char **out)
+{
+    size_t n = 0;
+    for (size_t i = 0; i < tf_project_n_cautions(); i++)
+        out[n++] = tf_project_caution(i);
+    if (o->from == FROM_FIXED)
+        out[n++] = tf_project_caution_fixed();
+    else if (!isnan(o->start))
+        out[n++] = tf_project_caution_start();
+    if (j && !job_converged(o, j))
+        out[n++] = not_converged;
+    return n;
+}
+
+/* The order of the candidates by posterior probability, highest first (stable). */
+static void by_probability(const tf_analysis_pop *p, size_t *order)
+{
+    size_t n = tf_analysis_pop_n_models(p);
+    for (size_t i = 0; i < n; i++) {
+        size_t k = i;
+        double pi = tf_analysis_pop_model(p, i)->probability;
+        while (k > 0 && tf_analysis_pop_model(p, order[k - 1])->probability < pi) {
+            order[k] = order[k - 1];
+            k--;
+        }
+        order[k] = i;
+    }
+}
+
+/* Simulated futures given to candidate i: the projection's inputs are the candidates of positive
+ * probability, in candidate order (analysis.c). */
+static size_t candidate_runs(const tf_analysis_pop *p, size_t i)
+{
+    size_t input = 0;
+    for (size_t k = 0; k < i; k++)
+        input += tf_analysis_pop_model(p, k)->probability > 0;
+    return tf_analysis_pop_model(p, i)->probability > 0 ? tf_projection_input_runs(tf_analysis_pop_projection(p), input)
+                                                         : 0;
+}
+
+/* ---- the summary table -------------------------------------------------------------------------- */
+
+#define TRY(call)                \
+    do {                         \
+        if ((st = (call)) != TF_OK) \
+            goto fail;           \
+    } while (0)
+
+static tf_status summary_table(const options *o, const job *j, tf_table **out, tf_error *err)
+{
+    tf_status st = TF_OK;
+    char text[512], note[256];
+    tf_table *t = tf_table_new_summary(SUMMARY_NAME, err);
+    if (!t)
+        return tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
+    TRY(tf_table_add_heading(t, "Forecast", err));
+    TRY(tf_table_add_item_text(t, "Survey", o->survey_path ? o->survey_path : "none", NULL, err));
+    if (j->label[0])
+        TRY(tf_table_add_item_text(t, "Population", j->label, NULL, err));
+    if (o->from == FROM_FIXED) {
+        const tf_growth_type *g = tf_model_growth(j->model);
+        TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --fixed", err));
+        TRY(tf_table_add_item_text(t, "Growth model", g->name, NULL, err));
+        for (size_t k = 0; k <= g->n_params; k++)
+            TRY(tf_table_add_item_number(t, tf_model_param_name(j->model, k), j->theta[k], TF_COL_NUMBER,
+                                         k == g->n_params ? "process-noise sd" : NULL, err));
+        snprintf(text, sizeof text, "%.10g", j->start);
+        TRY(tf_table_add_item_text(t, "Start", text,
+                                   isnan(o->start) ? "the last surveyed count / effort" : "given with --start", err));
+    } else if (o->from == FROM_MODEL) {
+        const tf_fit *f = j->fit;
+        const tf_fit_settings *fs = tf_fit_settings_of(f);
+        double rhat, ess;
+        fit_mixing(f, &rhat, &ess);
+        TRY(tf_table_add_item_text(t, "Projected from", "the posterior of one fitted model",
+                                   "particle marginal Metropolis-Hastings", err));
+        TRY(tf_table_add_item_text(t, "Model", tf_model_name(j->model), NULL, err));
+        snprintf(note, sizeof note, "%zu chains x %zu kept draws, after %zu warm-up; %zu particles", tf_fit_n_chains(f),
+                 tf_fit_n_iter(f), fs->n_warmup, fs->n_particles);
+        TRY(tf_table_add_item_number(t, "Posterior draws", (double)tf_fit_n_draws(f), TF_COL_INTEGER, note, err));
+        TRY(tf_table_add_item_number(t, "R-hat, largest", rhat, TF_COL_NUMBER, "want <= 1.01", err));
+        if (!(rhat <= TF_FIT_RHAT_MAX))
+            TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
+        TRY(tf_table_add_item_number(t, "ESS, smallest", ess, TF_COL_NUMBER, "bulk or tail; want >= 400", err));
+        if (!(ess >= TF_FIT_ESS_MIN))
+            TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
+    } else {
+        const tf_analysis_pop *p = j->pop;
+        size_t n = tf_analysis_pop_n_models(p), order[TF_ANALYSIS_MAX_MODELS];
+        by_probability(p, order);
+        TRY(tf_table_add_item_text(t, "Projected from", "the posterior model average of the fitted candidates",
+                                   "each model's draws weighted by its posterior probability (marginal likelihood, "
+                                   "equal prior weights)", err));
+        for (size_t r = 0; r < n; r++) {
+            const tf_analysis_model *m = tf_analysis_pop_model(p, order[r]);
+            snprintf(text, sizeof text, "P(%s)", m->name);
+            if (m->state == TF_CANDIDATE_FITTED) {
+                const tf_candidate_figures *fg = tf_comparison_figures(tf_analysis_pop_comparison(p), order[r]);
+                snprintf(note, sizeof note, "Monte Carlo se %.3g; %zu posterior draws; %zu simulated futures",
+                         fg->prob_se, tf_fit_n_draws(m->fit), candidate_runs(p, order[r]));
+                TRY(tf_table_add_item_number(t, text, m->probability, TF_COL_PROBABILITY, note, err));
+            } else {
+                TRY(tf_table_add_item_text(t, text, m->state == TF_CANDIDATE_FAILED ? "failed" : "excluded", m->note,
+                                           err));
+            }
+        }
+    }
+    if (o->from != FROM_FIXED) {
+        if (isnan(o->start))
+            snprintf(text, sizeof text, "each posterior draw's latent abundance in the last survey year");
+        else
+            snprintf(text, sizeof text, "%.10g for every draw", o->start);
+        TRY(tf_table_add_item_text(t, "Start", text, isnan(o->start) ? NULL : "given with --start (a what-if)", err));
+    }
+    if (j->year0 != TF_PROJECTION_NO_YEAR)
+        TRY(tf_table_add_item_number(t, "Year 0", j->year0, TF_COL_YEAR, "the last survey year", err));
+    TRY(tf_table_add_item_number(t, "Simulated futures", (double)tf_projection_n_runs(j->proj), TF_COL_INTEGER, NULL,
+                                 err));
+    TRY(tf_table_add_item_number(t, "Years ahead", (double)tf_projection_horizon(j->proj), TF_COL_INTEGER, NULL, err));
+    snprintf(text, sizeof text, "%llu", (unsigned long long)o->seed);
+    TRY(tf_table_add_item_text(t, "Seed", text, "the same seed gives the same numbers", err));
+    /* The median time is one number per threshold, so it lives here rather than in the curves. */
+    TRY(tf_table_add_heading(t, "Median time to quasi-extinction", err));
+    for (size_t k = 0; k < tf_projection_n_thresholds(j->proj); k++) {
+        tf_threshold th = tf_projection_threshold(j->proj, k);
+        char label[48];
+        snprintf(text, sizeof text, "Threshold %s", tf_project_threshold_label(&th, label, sizeof label));
+        double mt = tf_projection_median_time(j->proj, k);
+        if (isnan(mt)) {
+            snprintf(note, sizeof note, "the risk stays below 0.5 within %zu years", tf_projection_horizon(j->proj));
+            TRY(tf_table_add_item_text(t, text, "not reached", note, err));
+        } else {
+            TRY(tf_table_add_item_number(t, text, mt, TF_COL_INTEGER,
+                                         "years ahead: the first year with a risk of 0.5 or more", err));
+        }
+    }
+    TRY(tf_table_add_heading(t, "Cautions", err));
+    const char *cautions[MAX_CAUTIONS];
+    size_t nc = cautions_for(o, j, cautions);
+    for (size_t i = 0; i < nc; i++) {
+        snprintf(text, sizeof text, "Caution %zu", i + 1);
+        TRY(tf_table_add_item_text(t, text, cautions[i], NULL, err));
+    }
+    *out = t;
+    return TF_OK;
+fail:
+    tf_table_free(t);
+    return st;
+}
+
+/* The projection tables and the summary, each projection table carrying this forecast's
+ * cautions beyond the general ones as notes (for readers of the tables in memory; the summary
+ * holds all of them in the CSV files). */
+static tf_status build_tables(const options *o, job *j, tf_error *err)
+{
+    tf_status st = tf_projection_tables_build(j->proj, j->year0, j->tables, err);
+    const char *cautions[MAX_CAUTIONS];
+    size_t nc = cautions_for(o, j, cautions);
+    for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
+        for (size_t i = tf_project_n_cautions(); i < nc && st == TF_OK; i++)
+            st = tf_table_add_note(j->tables[k], TF_NOTE_CAUTION, cautions[i], err);
+    if (st == TF_OK)
+        st = summary_table(o, j, &j->tables[SUMMARY_TABLE], err);
+    return st;
+}
+
+/* Writes every population's tables as one group (tf_atomic_commit_all): either every file is
+ * replaced or none is, and folders this call made are taken away again on failure. Signals wait
+ * until the renames are over, so that a late Ctrl-C cannot stop the group half-way. */
+static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
+{
+    size_t n_files = n_jobs * N_TABLES, n_open = 0;
+    tf_atomic **files = calloc(n_files, sizeof *files);
+    size_t *created = calloc(n_jobs, sizeof *created);
+    tf_status st = files && created ? TF_OK : tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
+        const job *j = &jobs[i];
+        st = tf_atomic_mkdirs(j->dir, &created[i], err);
+        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
+            char name[128], path[4300];
+            tf_csv_file_name(tf_table_name(j->tables[k]), name, sizeof name);
+            snprintf(path, sizeof path, "%s/%s", j->dir, name);
+            if ((st = tf_atomic_open(path, survey_path, &files[n_open], err)) != TF_OK)
+                break;
+            n_open++;
+            /* Write errors stay on the stream and are reported by the commit, with errno. */
+            tf_csv_write_stream(j->tables[k], tf_atomic_stream(files[n_open - 1]), path, NULL);
+        }
+    }
+    sigset_t block, old_mask;
+    sigemptyset(&block);
+    sigaddset(&block, SIGINT);
+    sigaddset(&block, SIGTERM);
+    sigprocmask(SIG_BLOCK, &block, &old_mask);
+    if (st == TF_OK) {
+        st = tf_atomic_commit_all(files, n_open, err);
+    } else {
+        for (size_t k = 0; k < n_open; k++)
+            tf_atomic_abort(files[k]);
+    }
+    if (st != TF_OK && created)
+        for (size_t i = n_jobs; i-- > 0;)
+            tf_atomic_rmdirs(jobs[i].dir, created[i]);
+    sigprocmask(SIG_SETMASK, &old_mask, NULL);
+    free(files);
+    free(created);
+    return st;
 }
 
 /* ---- printing ------------------------------------------------------------------------------------ */
@@ -256,29 +618,100 @@ static void print_wrapped(FILE *out, const char *first, const char *text)
     fputc('\n', out);
 }
 
-static void print_cautions(FILE *out)
+/* The cautions once for the whole run; the convergence caution when any population needs it. */
+static void print_cautions(const options *o, const job *jobs, size_t n_jobs)
 {
-    fputs("\nCautions:\n", out);
-    for (size_t i = 0; i < tf_project_n_cautions(); i++)
-        print_wrapped(out, "  - ", tf_project_caution(i));
-    print_wrapped(out, "  - ", tf_project_caution_fixed());
+    const char *cautions[MAX_CAUTIONS];
+    size_t n = cautions_for(o, NULL, cautions);
+    for (size_t i = 0; i < n_jobs; i++)
+        if (!job_converged(o, &jobs[i])) {
+            cautions[n++] = not_converged;
+            break;
+        }
+    fputs("\nCautions:\n", stdout);
+    for (size_t i = 0; i < n; i++)
+        print_wrapped(stdout, "  - ", cautions[i]);
 }
 
-static void print_summary(const tf_projection *p, const tf_growth_type *g, const double *theta, double start,
-                          int year0, uint64_t seed, const char *dir, tf_table *const *tables)
+/* What was projected: the source, the model(s), the posterior draws and the start. */
+static void print_source(const options *o, const job *j)
 {
+    /* "Forecast for population 'east' from ..." */
+    char who[300] = "";
+    if (j->label[0])
+        snprintf(who, sizeof who, " for population '%s'", j->label);
+    if (o->from == FROM_FIXED) {
+        const tf_growth_type *g = tf_model_growth(j->model);
+        printf("Forecast%s from fixed parameters, growth model %s:", who, g->name);
+        for (size_t k = 0; k <= g->n_params; k++)
+            printf("%s %s = %g", k ? "," : "", tf_model_param_name(j->model, k), j->theta[k]);
+        printf("\n  start N = %g%s\n", j->start, j->year0 == TF_PROJECTION_NO_YEAR ? "" : " in the last survey year");
+        return;
+    }
+    const char *unit = per_effort(j->s) ? " per unit of effort" : "";
+    size_t ny = tf_series_n_years(j->s);
+    if (o->from == FROM_MODEL) {
+        const tf_fit *f = j->fit;
+        const tf_fit_settings *fs = tf_fit_settings_of(f);
+        double rhat, ess;
+        fit_mixing(f, &rhat, &ess);
+        printf("Forecast%s from the posterior of %s: %zu draws (%zu chains x %zu, after %zu warm-up;\n"
+               "  %zu particles; R-hat largest %.3f, ESS smallest %.0f)\n",
+               who, tf_model_name(j->model), tf_fit_n_draws(f), tf_fit_n_chains(f), tf_fit_n_iter(f),
+               fs->n_warmup, fs->n_particles, rhat, ess);
+        if (isnan(o->start)) {
+            const tf_fit_year_summary *y = tf_fit_year(f, ny - 1);
+            printf("  start: each draw's latent abundance in %d (median %.4g, 95 %% interval %.4g to %.4g%s)\n",
+                   j->year0, y->median, y->q025, y->q975, unit);
+        }
+    } else {
+        const tf_analysis_pop *p = j->pop;
+        size_t n = tf_analysis_pop_n_models(p), n_fitted = 0, order[TF_ANALYSIS_MAX_MODELS];
+        for (size_t i = 0; i < n; i++)
+            n_fitted += tf_analysis_pop_model(p, i)->state == TF_CANDIDATE_FITTED;
+        by_probability(p, order);
+        printf("Forecast%s averaged over %zu fitted model%s by posterior model probability\n", who, n_fitted,
+               n_fitted == 1 ? "" : "s");
+        printf("  %-28s %8s %7s %8s %8s %7s %6s\n", "model", "P(model)", "se", "draws", "futures", "R-hat", "ESS");
+        for (size_t r = 0; r < n; r++) {
+            const tf_analysis_model *m = tf_analysis_pop_model(p, order[r]);
+            if (m->state != TF_CANDIDATE_FITTED)
+                continue;
+            const tf_candidate_figures *fg = tf_comparison_figures(tf_analysis_pop_comparison(p), order[r]);
+            printf("  %-28s %8.3f %7.3f %8zu %8zu %7.3f %6.0f\n", m->name, m->probability, fg->prob_se,
+                   tf_fit_n_draws(m->fit), candidate_runs(p, order[r]), fg->rhat_max, fg->ess_min);
+        }
+        for (size_t r = 0; r < n; r++) {
+            const tf_analysis_model *m = tf_analysis_pop_model(p, order[r]);
+            if (m->state != TF_CANDIDATE_FITTED)
+                printf("  %s %s: %s\n", m->state == TF_CANDIDATE_FAILED ? "failed:  " : "excluded:", m->name, m->note);
+        }
+        if (isnan(o->start)) {
+            const tf_analysis_year *y = tf_analysis_pop_year(p, ny - 1);
+            printf("  start: each draw's latent abundance in %d (model-averaged median %.4g, 95 %% interval %.4g to "
+                   "%.4g%s)\n", j->year0, y->median, y->q025, y->q975, unit);
+        }
+    }
+    if (!isnan(o->start))
+        printf("  start: N = %g for every draw (--start, a what-if), from %d\n", o->start, j->year0);
+}
+
+static void print_projection(const options *o, const job *j)
+{
+    const tf_projection *p = j->proj;
     size_t H = tf_projection_horizon(p);
-    printf("Forecast from fixed parameters, growth model %s:", g->name);
-    for (size_t j = 0; j <= g->n_params; j++)
-        printf("%s %s = %g", j ? "," : "", j < g->n_params ? g->param_names[j] : "sigma", theta[j]);
-    printf("\n  start N = %g%s; %zu simulated futures, %zu years ahead, seed %llu\n", start,
-           year0 == TF_PROJECTION_NO_YEAR ? "" : " in the last survey year", tf_projection_n_runs(p), H,
-           (unsigned long long)seed);
+    printf("  %zu simulated futures, %zu years ahead, seed %llu\n", tf_projection_n_runs(p), H,
+           (unsigned long long)o->seed);
+    int cal = j->year0 != TF_PROJECTION_NO_YEAR;
     size_t step = H <= 100 ? 10 : (H + 9) / 10;
-    printf("\nAbundance (median and 90 %% band of the simulated futures)\n   year      median        5 %%       95 %%\n");
+    printf("\nAbundance (median and 90 %% band of the simulated futures)\n%s      median        5 %%       95 %%\n",
+           cal ? "  ahead  year" : "   year");
     for (size_t t = 0;; t = t + step < H ? t + step : H) {
-        printf("  %5zu  %10.4g %10.4g %10.4g\n", t, tf_projection_band(p, t, TF_BAND_MEDIAN),
-               tf_projection_band(p, t, TF_BAND_P05), tf_projection_band(p, t, TF_BAND_P95));
+        printf("  %5zu", t);
+        if (cal)
+            printf(" %5d", j->year0 + (int)t);
+        printf("  %10.4g %10.4g %10.4g\n", tf_projection_band(p, t, TF_BAND_MEDIAN), tf_projection_band(p, t, TF_BAND_P05),
+               tf_projection_band(p, t, TF_BAND_P95));
         if (t == H)
             break;
     }
@@ -329,19 +762,446 @@ static void print_summary(const tf_projection *p, const tf_growth_type *g, const
         }
         putchar('\n');
     }
-    printf("\nTables in %s:", dir);
-    for (size_t i = 0; i < TF_PROJECTION_N_TABLES; i++) {
+    printf("\nTables in %s:", j->dir);
+    for (size_t i = 0; i < N_TABLES; i++) {
         char name[128];
-        tf_csv_file_name(tf_table_name(tables[i]), name, sizeof name);
+        tf_csv_file_name(tf_table_name(j->tables[i]), name, sizeof name);
         printf("%s %s", i ? "," : "", name);
     }
     putchar('\n');
 }
 
-/* ---- the command --------------------------------------------------------------------------------- */
+/* Plain warnings on stderr for fits that should not be trusted yet, and failed candidates. */
+static void print_warnings(const options *o, const job *j)
+{
+    const char *label = j->label, *sp = label[0] ? " " : "";
+    if (o->from == FROM_MODEL && !tf_fit_converged(j->fit)) {
+        double rhat, ess;
+        fit_mixing(j->fit, &rhat, &ess);
+        fprintf(stderr,
+                PROG ": warning: %s%s%s: R-hat largest %.3f, ESS smallest %.0f; the chains may not have converged "
+                     "(want R-hat <= %.2f and ESS >= %.0f)\n  hint: run longer (--iterations, --warmup)\n",
+                label, sp, tf_model_name(j->model), rhat, ess, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
+    }
+    if (o->from != FROM_AVERAGE)
+        return;
+    const tf_comparison *c = tf_analysis_pop_comparison(j->pop);
+    for (size_t i = 0; i < tf_analysis_pop_n_models(j->pop); i++) {
+        const tf_analysis_model *m = tf_analysis_pop_model(j->pop, i);
+        if (m->state == TF_CANDIDATE_FAILED)
+            fprintf(stderr, PROG ": warning: %s%s%s: %s\n", label, sp, m->name, m->note);
+        if (m->probability > 0 && !tf_fit_converged(m->fit))
+            fprintf(stderr,
+                    PROG ": warning: %s%s%s (probability %.3f): R-hat largest %.3f, ESS smallest %.0f; the chains may "
+                         "not have converged\n  hint: run longer (--iterations, --warmup)\n",
+                    label, sp, m->name, m->probability, tf_comparison_figures(c, i)->rhat_max,
+                    tf_comparison_figures(c, i)->ess_min);
+    }
+}
+
+/* Builds the tables of every job, writes them as one group and prints the summaries. */
+static int finish(const options *o, job *jobs, size_t n_jobs)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < n_jobs && st == TF_OK; i++)
+        st = build_tables(o, &jobs[i], &err);
+    if (st == TF_OK && interrupted)
+        st = tf_error_add(&err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "interrupted");
+    if (st == TF_OK)
+        st = write_all(jobs, n_jobs, o->survey_path, &err);
+    if (st != TF_OK) {
+        if (st == TF_ERR_INTERRUPTED)
+            return TF_EXIT_INTERRUPTED;
+        tf_error_print(&err, PROG, stderr);
+        return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_FAIL;
+    }
+    for (size_t i = 0; i < n_jobs; i++) {
+        if (!o->quiet) {
+            if (i > 0)
+                putchar('\n');
+            print_source(o, &jobs[i]);
+            print_projection(o, &jobs[i]);
+        }
+        print_warnings(o, &jobs[i]);
+    }
+    print_cautions(o, jobs, n_jobs);
+    if (fflush(stdout) != 0) {
+        fprintf(stderr, PROG ": cannot write to standard output\n");
+        return TF_EXIT_FAIL;
+    }
+    return TF_EXIT_OK;
+}
+
+/* ---- the three sources ----------------------------------------------------------------------------- */
+
+/* The starting abundance from the survey (or --start) and the calendar year of t = 0 of a fixed
+ * forecast: the last year with a count (rows listed after it without one add nothing to start
+ * from). Returns an exit code. */
+static int fixed_start(const options *o, const tf_series *s, job *j)
+{
+    const double *counts = tf_series_counts(s);
+    size_t last = tf_series_n_years(s);
+    while (last > 0 && isnan(counts[last - 1]))
+        last--;
+    if (last == 0) {
+        fprintf(stderr, PROG ": population '%s' has no surveyed count to start from\n  hint: give the current"
+                        " abundance with --start N\n", j->label);
+        return TF_EXIT_FAIL;
+    }
+    last--;
+    j->year0 = tf_series_first_year(s) + (int)last;
+    if (!isnan(o->start)) {
+        j->start = o->start;
+        return TF_EXIT_OK;
+    }
+    double y = counts[last], e = tf_series_effort(s)[last];
+    if (!(y > 0)) {
+        fprintf(stderr, PROG ": the last surveyed count (%d) is 0, and a projection on the log scale cannot"
+                        " start from zero\n  hint: give the current abundance with --start N\n", j->year0);
+        return TF_EXIT_FAIL;
+    }
+    j->start = y / e;
+    if (!o->quiet)
+        printf("Starting from the last surveyed count: %g in %d (effort %g), N = %g; --start N starts elsewhere\n", y,
+               j->year0, e, j->start);
+    return TF_EXIT_OK;
+}
+
+static int run_fixed(const options *o, const tf_project_options *po)
+{
+    tf_error err;
+    tf_error_init(&err);
+    const tf_obs_type *obs = NULL;
+    if (o->obs && !(obs = tf_model_find_obs(o->obs))) {
+        char known[256], hint[300];
+        tf_model_list_obs(known, sizeof known);
+        snprintf(hint, sizeof hint, "known models: %s", known);
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown counting-error model '%s'", o->obs);
+        return usage_fail(&err);
+    }
+    job j = {.label = "", .year0 = TF_PROJECTION_NO_YEAR, .start = o->start};
+    const tf_growth_type *g = pick_growth(o, obs, &err);
+    /* The joined model only lays out the parameters; without --obs any counting-error model
+     * will do, and Poisson has no parameters to give. */
+    if (!g || tf_model_new(g->name, obs ? obs->name : "poisson", &j.model, &err) != TF_OK)
+        return usage_fail(&err);
+    int rc = TF_EXIT_OK;
+    tf_survey *sv = NULL;
+    if (fixed_theta(j.model, &o->fixed, j.theta, o->quiet, &err) != TF_OK) {
+        rc = usage_fail(&err);
+    } else if (o->survey_path) {
+        if (tf_args_read_survey(o->survey_path, &sv, &err)) {
+            tf_error_print(&err, PROG, stderr);
+            rc = TF_EXIT_INPUT;
+        } else if (!(j.s = tf_args_pick_series(sv, o->population, o->survey_path, &err))) {
+            rc = usage_fail(&err);
+        } else {
+            j.label = tf_series_label(j.s);
+            rc = fixed_start(o, j.s, &j);
+        }
+    }
+    if (!rc && job_dir(o, sv, &j, &err))
+        rc = usage_fail(&err);
+    if (!rc) {
+        double x0 = log(j.start);
+        tf_project_input in = tf_project_input_from_model(j.model, j.theta, 1, &x0, 1.0);
+        uint64_t keys[2] = {tf_rng_key("forecast"), tf_rng_key(j.label)};
+        tf_rng rng;
+        tf_rng_derive(&rng, o->seed, keys, 2);
+        tf_status st = tf_project_run(&in, 1, po, &rng, &j.own, &err);
+        j.proj = j.own;
+        if (st == TF_ERR_INTERRUPTED) {
+            rc = TF_EXIT_INTERRUPTED;
+        } else if (st) {
+            tf_error_print(&err, PROG, stderr);
+            /* Range and validity errors of the projection come from the command line (--fixed, --start). */
+            rc = st == TF_ERR_NOMEM || st == TF_ERR_NUMERIC ? TF_EXIT_FAIL : TF_EXIT_USAGE;
+        }
+    }
+    if (!rc)
+        rc = finish(o, &j, 1);
+    job_clear(&j);
+    tf_survey_free(sv);
+    return rc;
+}
+
+/* The populations a posterior forecast covers: --population, else every one; --start gives one
+ * abundance, so it needs a single population. */
+static tf_status pick_populations(const options *o, const tf_survey *sv, const tf_series **only, tf_error *err)
+{
+    *only = NULL;
+    if (!o->population && isnan(o->start))
+        return TF_OK;
+    if (!(*only = tf_args_pick_series(sv, o->population, o->survey_path, err))) {
+        if (!o->population)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--start gives the abundance of one population");
+        return TF_ERR_USAGE;
+    }
+    return TF_OK;
+}
+
+static int run_model(const options *o, const tf_project_options *po)
+{
+    tf_error err;
+    tf_error_init(&err);
+    const char *obs = o->obs ? o->obs : "poisson";
+    /* Fail on a mistyped model name before reading a large file. */
+    tf_model *probe = NULL;
+    if (tf_model_new(o->model, obs, &probe, &err) != TF_OK)
+        return usage_fail(&err);
+    tf_model_free(probe);
+
+    tf_pmmh_options opt = tf_pmmh_default_options();
+    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
+    opt.n_threads = o->threads ? o->threads : n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    opt.seed = o->seed;
+    if (o->chains)
+        opt.n_chains = o->chains;
+    if (o->thin)
+        opt.thin = o->thin;
+    if (o->warmup)
+        opt.n_warmup = o->warmup;
+    if (o->particles)
+        opt.n_particles = o->particles;
+    size_t iterations = o->iterations ? o->iterations : opt.n_iter * opt.thin;
+    opt.n_iter = iterations / opt.thin;
+    if (opt.n_iter < 1) {
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.thin);
+        return usage_fail(&err);
+    }
+
+    int rc = TF_EXIT_FAIL;
+    tf_survey *sv = NULL;
+    job *jobs = NULL;
+    size_t n_jobs = 0;
+    const tf_series *only = NULL;
+    if (tf_args_read_survey(o->survey_path, &sv, &err) != TF_OK) {
+        rc = TF_EXIT_INPUT;
+        goto out;
+    }
+    if (pick_populations(o, sv, &only, &err) != TF_OK) {
+        rc = TF_EXIT_USAGE;
+        goto out;
+    }
+    n_jobs = only ? 1 : tf_survey_n_series(sv);
+    if (!(jobs = calloc(n_jobs, sizeof *jobs))) {
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+        goto out;
+    }
+    /* Every population is set up before the first long run, so that a bad count in the last one
+     * is reported at once. */
+    for (size_t i = 0; i < n_jobs; i++) {
+        job *j = &jobs[i];
+        j->s = only ? only : tf_survey_series(sv, i);
+        j->label = tf_series_label(j->s);
+        j->year0 = last_year(j->s);
+        if (tf_model_new(o->model, obs, &j->model, &err) != TF_OK)
+            goto out;
+        if (tf_setup_check_counts(j->model, j->s, o->survey_path, &err) != TF_OK ||
+            tf_model_initial_from_series(j->model, j->s, &err) != TF_OK ||
+            tf_setup_priors(j->model, j->s, o->priors_path, &j->priors, &err) != TF_OK ||
+            tf_posterior_new(j->model, j->priors, &j->post, &err) != TF_OK) {
+            rc = TF_EXIT_INPUT;
+            goto out;
+        }
+        if (job_dir(o, sv, j, &err) != TF_OK) {
+            rc = TF_EXIT_USAGE;
+            goto out;
+        }
+    }
+    int show = !o->quiet && isatty(STDERR_FILENO);
+    for (size_t i = 0; i < n_jobs; i++) {
+        job *j = &jobs[i];
+        if (show)
+            fprintf(stderr, "%s%s%s: fitting by PMMH (%zu chains x %zu iterations after %zu warm-up)...\n", j->label,
+                    j->label[0] ? " " : "", tf_model_name(j->model), opt.n_chains, opt.n_iter * opt.thin,
+                    opt.n_warmup);
+        tf_status st = tf_pmmh_run(j->post, j->s, &opt, &interrupted, NULL, NULL, &j->fit, &err);
+        if (st == TF_OK) {
+            size_t nd = tf_fit_n_draws(j->fit);
+            if (!(j->x_last = malloc(nd * sizeof *j->x_last))) {
+                st = tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for the projection");
+            } else {
+                tf_fit_year_draws(j->fit, tf_fit_n_years(j->fit) - 1, j->x_last);
+                tf_project_input in = tf_project_input_from_model(j->model, tf_fit_draws(j->fit), nd, j->x_last, 1.0);
+                /* The stream analysis.c gives the projection of the same population, so that
+                 * --average over this one model gives these very futures. */
+                uint64_t keys[2] = {tf_rng_key("projection"), tf_rng_key(j->label)};
+                tf_rng rng;
+                tf_rng_derive(&rng, o->seed, keys, 2);
+                st = tf_project_run(&in, 1, po, &rng, &j->own, &err);
+                j->proj = j->own;
+            }
+        }
+        if (st != TF_OK) {
+            rc = tf_args_exit_code(st);
+            goto out;
+        }
+    }
+    rc = finish(o, jobs, n_jobs);
+out:
+    /* finish prints its own errors, and the caller says when the run was interrupted. */
+    if (rc != TF_EXIT_OK && rc != TF_EXIT_INTERRUPTED && tf_error_status(&err) != TF_OK)
+        tf_error_print(&err, PROG, stderr);
+    for (size_t i = 0; jobs && i < n_jobs; i++)
+        job_clear(&jobs[i]);
+    free(jobs);
+    tf_survey_free(sv);
+    return rc;
+}
+
+static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
+{
+    (void)ctx;
+    return tf_setup_priors(m, s, NULL, out, err);
+}
+
+/* Progress of --average on stderr, for a terminal only. */
+static void show_progress(void *ctx, const tf_analysis_event *e)
+{
+    const char *label = e->label[0] ? e->label : (const char *)ctx;
+    switch (e->stage) {
+    case TF_ANALYSIS_STARTED:
+        fprintf(stderr, "%s (%zu of %zu): fitting and comparing the models...\n", label, e->population + 1,
+                e->n_populations);
+        break;
+    case TF_ANALYSIS_MODEL_DONE:
+        fprintf(stderr, "  %s %s (%.0f s)\n", e->model, e->failed ? "failed" : "done", e->seconds);
+        break;
+    case TF_ANALYSIS_PROJECTING: fprintf(stderr, "  projecting...\n"); break;
+    case TF_ANALYSIS_DONE: fprintf(stderr, "  done in %.0f s\n", e->seconds); break;
+    }
+}
+
+/* A --model or --obs list of --average: names known to find, or "all". */
+static tf_status candidate_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
+                                 size_t *n, int *all, int growth, tf_error *err)
+{
+    *n = 0;
+    *all = !strcmp(text, "all");
+    if (*all)
+        return TF_OK;
+    tf_status st = tf_args_split_names(opt, text, buf, size, names, TF_ANALYSIS_MAX_NAMES, n, err);
+    for (size_t i = 0; st == TF_OK && i < *n; i++)
+        if (growth ? !tf_model_find_growth(names[i]) : !tf_model_find_obs(names[i])) {
+            char known[256], hint[300];
+            if (growth)
+                tf_model_list_growth(known, sizeof known);
+            else
+                tf_model_list_obs(known, sizeof known);
+            snprintf(hint, sizeof hint, "known: %s, or all", known);
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: unknown model '%s'", opt, names[i]);
+        }
+    return st;
+}
+
+static int run_average(const options *o, const tf_project_options *po)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_analysis_options ao;
+    if (tf_analysis_options_init(&ao, &err) != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        return TF_EXIT_FAIL;
+    }
+    char growth_buf[1024], obs_buf[1024];
+    int all = 0;
+    if (o->model &&
+        candidate_names("--model", o->model, growth_buf, sizeof growth_buf, ao.growth, &ao.n_growth, &all, 1, &err) ==
+            TF_OK &&
+        all)
+        ao.n_growth = 0;
+    if (o->obs)
+        candidate_names("--obs", o->obs, obs_buf, sizeof obs_buf, ao.obs, &ao.n_obs, &ao.obs_auto, 0, &err);
+    ao.project = *po;
+    ao.seed = o->seed;
+    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
+    ao.n_threads = o->threads ? o->threads : n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    if (o->chains)
+        ao.fit.n_chains = o->chains;
+    if (o->thin)
+        ao.fit.thin = o->thin;
+    if (o->warmup)
+        ao.fit.n_warmup = o->warmup;
+    size_t iterations = o->iterations ? o->iterations : ao.fit.n_iter * ao.fit.thin;
+    ao.fit.n_iter = iterations / ao.fit.thin;
+    if (ao.fit.n_iter < 1)
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                     "--iterations %zu with --thin %zu keeps no draw", iterations, ao.fit.thin);
+    ao.fit.n_particles = ao.evidence.n_particles = o->particles;
+    if (o->draws)
+        ao.evidence.n_draws = o->draws;
+    /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion, as
+     * analyze and compare do. */
+    if (ao.evidence.n_adapt_draws > ao.evidence.n_draws)
+        ao.evidence.n_adapt_draws = ao.evidence.n_draws;
+    ao.priors = default_priors;
+    if (tf_error_status(&err) != TF_OK)
+        return usage_fail(&err);
+
+    int rc = TF_EXIT_FAIL;
+    tf_survey *sv = NULL;
+    tf_analysis *a = NULL;
+    job *jobs = NULL;
+    size_t n_jobs = 0;
+    const tf_series *only = NULL;
+    tf_status st;
+    if (tf_args_read_survey(o->survey_path, &sv, &err) != TF_OK) {
+        rc = TF_EXIT_INPUT;
+        goto out;
+    }
+    if (pick_populations(o, sv, &only, &err) != TF_OK) {
+        rc = TF_EXIT_USAGE;
+        goto out;
+    }
+    ao.population = only ? tf_series_label(only) : NULL;
+    /* A survey of one unnamed population has nothing to find by name. */
+    if (ao.population && !ao.population[0])
+        ao.population = NULL;
+    char name[256];
+    tf_args_survey_name(o->survey_path, name, sizeof name);
+    int show = !o->quiet && isatty(STDERR_FILENO);
+    if ((st = tf_analysis_run(sv, &ao, &interrupted, show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
+        rc = tf_args_exit_code(st);
+        goto out;
+    }
+    n_jobs = tf_analysis_n_populations(a);
+    if (!(jobs = calloc(n_jobs, sizeof *jobs))) {
+        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+        goto out;
+    }
+    for (size_t i = 0; i < n_jobs; i++) {
+        job *j = &jobs[i];
+        j->pop = tf_analysis_population(a, i);
+        j->s = tf_analysis_pop_series(j->pop);
+        j->label = tf_series_label(j->s);
+        j->year0 = last_year(j->s);
+        j->proj = tf_analysis_pop_projection(j->pop);
+        if (job_dir(o, sv, j, &err) != TF_OK) {
+            rc = TF_EXIT_USAGE;
+            goto out;
+        }
+    }
+    rc = finish(o, jobs, n_jobs);
+out:
+    if (rc != TF_EXIT_OK && rc != TF_EXIT_INTERRUPTED && tf_error_status(&err) != TF_OK)
+        tf_error_print(&err, PROG, stderr);
+    for (size_t i = 0; jobs && i < n_jobs; i++)
+        job_clear(&jobs[i]);
+    free(jobs);
+    tf_analysis_free(a);
+    tf_survey_free(sv);
+    return rc;
+}
+
+/* ---- the command line ---------------------------------------------------------------------------- */
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
-       OPT_START, OPT_SEED, OPT_POPULATION };
+       OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_ITER, OPT_THIN, OPT_WARMUP, OPT_PARTICLES,
+       OPT_PRIORS, OPT_DRAWS, OPT_THREADS };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -359,6 +1219,14 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"start", required_argument, NULL, OPT_START},
         {"seed", required_argument, NULL, OPT_SEED},
         {"population", required_argument, NULL, OPT_POPULATION},
+        {"chains", required_argument, NULL, OPT_CHAINS},
+        {"iterations", required_argument, NULL, OPT_ITER},
+        {"thin", required_argument, NULL, OPT_THIN},
+        {"warmup", required_argument, NULL, OPT_WARMUP},
+        {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"priors", required_argument, NULL, OPT_PRIORS},
+        {"draws", required_argument, NULL, OPT_DRAWS},
+        {"threads", required_argument, NULL, OPT_THREADS},
         {"output", required_argument, NULL, 'o'},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
@@ -367,7 +1235,6 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     memset(o, 0, sizeof *o);
     tf_args_pairs_init(&o->fixed);
     o->years = TF_PROJECT_DEFAULT_HORIZON;
-    o->runs = TF_PROJECT_DEFAULT_RUNS;
     o->thresholds = DEFAULT_THRESHOLDS;
     o->start = NAN;
     o->seed = DEFAULT_SEED;
@@ -375,6 +1242,8 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     optind = 0; /* glibc: 0 restarts the scan, so the command can be run twice in one process */
     int c;
     while ((c = getopt_long(argc, argv, ":o:qh", longs, NULL)) != -1) {
+        /* The sampler's options, named for the refusal under --fixed. */
+        const char *sampler = NULL;
         switch (c) {
         case OPT_MODEL: o->model = optarg; break;
         case OPT_OBS: o->obs = optarg; break;
@@ -387,19 +1256,56 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         case OPT_POPULATION: o->population = optarg; break;
         case 'o': o->out_dir = optarg; break;
         case 'q': o->quiet = 1; break;
-        case 'h': fputs(usage_text, stdout); return 1;
+        case 'h': help(stdout); return 1;
         case OPT_YEARS: tf_args_parse_size("--years", optarg, 1, TF_PROJECT_MAX_HORIZON, &o->years, err); break;
         case OPT_WINDOW:
             tf_args_parse_size("--decline-window", optarg, 1, TF_PROJECT_MAX_HORIZON, &o->decline_window, err);
             break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &o->runs, err); break;
         case OPT_START:
-            if (tf_args_parse_double("--start", optarg, &o->start, err) == TF_OK && !(o->start > 0))
-                tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--start: the current abundance must be > 0");
+            /* Above e^50 (5e21) the log-abundance leaves the projection's range. */
+            if (tf_args_parse_double("--start", optarg, &o->start, err) == TF_OK &&
+                !(o->start > 0 && log(o->start) <= TF_PROJECT_LOG_MAX && log(o->start) >= TF_PROJECT_LOG_MIN))
+                tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                             "--start: the current abundance must be > 0 and below 5e21");
             break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &o->seed, err); break;
+        case OPT_CHAINS:
+            sampler = "--chains";
+            tf_args_parse_size(sampler, optarg, 1, TF_FIT_MAX_CHAINS, &o->chains, err);
+            break;
+        case OPT_ITER:
+            sampler = "--iterations";
+            tf_args_parse_size(sampler, optarg, 1, MAX_ITER, &o->iterations, err);
+            break;
+        case OPT_THIN:
+            sampler = "--thin";
+            tf_args_parse_size(sampler, optarg, 1, 1000, &o->thin, err);
+            break;
+        case OPT_WARMUP:
+            sampler = "--warmup";
+            tf_args_parse_size(sampler, optarg, 20, MAX_ITER, &o->warmup, err);
+            break;
+        case OPT_PARTICLES:
+            sampler = "--particles";
+            tf_args_parse_size(sampler, optarg, 1, MAX_PARTICLES, &o->particles, err);
+            break;
+        case OPT_DRAWS:
+            sampler = "--draws";
+            tf_args_parse_size(sampler, optarg, 100, MAX_DRAWS, &o->draws, err);
+            break;
+        case OPT_THREADS:
+            sampler = "--threads";
+            tf_args_parse_size(sampler, optarg, 1, MAX_THREADS, &o->threads, err);
+            break;
+        case OPT_PRIORS:
+            sampler = "--priors";
+            o->priors_path = optarg;
+            break;
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], err); break;
         }
+        if (sampler && !o->sampler_opt)
+            o->sampler_opt = sampler;
     }
     if (optind < argc)
         o->survey_path = argv[optind++];
@@ -408,124 +1314,50 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     return 0;
 }
 
-/* The starting abundance from the survey (or --start), the calendar year of t = 0 and the label. */
-static int survey_start(const options *o, const tf_survey *sv, double *start, int *year0, const char **label)
+/* Picks the source of futures and refuses the combinations that mean nothing. */
+static void check_source(options *o, tf_error *err)
 {
-    tf_error err;
-    tf_error_init(&err);
-    const tf_series *s = tf_args_pick_series(sv, o->population, o->survey_path, &err);
-    if (!s)
-        return usage_fail(&err);
-    /* Year 0 is the last year with a count: rows listed after it without one add nothing to start
-     * from. */
-    const double *counts = tf_series_counts(s);
-    size_t last = tf_series_n_years(s);
-    while (last > 0 && isnan(counts[last - 1]))
-        last--;
-    *label = tf_series_label(s);
-    if (last == 0) {
-        fprintf(stderr, PROG ": population '%s' has no surveyed count to start from\n  hint: give the current"
-                        " abundance with --start N\n", *label);
-        return TF_EXIT_FAIL;
+    if (o->average && o->have_fixed) {
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                     "--average combines fitted models; with --fixed there is nothing to average");
+        return;
     }
-    last--;
-    *year0 = tf_series_first_year(s) + (int)last;
-    if (!isnan(o->start)) {
-        *start = o->start;
-        return TF_EXIT_OK;
+    o->from = o->have_fixed ? FROM_FIXED : o->average ? FROM_AVERAGE : o->model ? FROM_MODEL : FROM_NONE;
+    switch (o->from) {
+    case FROM_NONE:
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
+                     "give --model M [--obs O] to fit one model, --average to fit the candidate models and average "
+                     "them, or --fixed r=...,sigma=... for given values",
+                     o->obs ? "--obs needs --model M (or --average)" : "nothing to project from");
+        return;
+    case FROM_FIXED:
+        if (o->sampler_opt)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "drop it, or fit with --model M instead of --fixed",
+                         "%s sets up a fit; --fixed projects from given values", o->sampler_opt);
+        if (!o->survey_path && isnan(o->start))
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                         "without a survey file, --start N (the current abundance) is required");
+        if (!o->survey_path && o->population)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--population needs a survey file");
+        return;
+    case FROM_MODEL:
+        if (strchr(o->model, ',') || (o->obs && strchr(o->obs, ',')))
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "add --average to compare and average several models",
+                         "--model and --obs name one model each without --average");
+        if (o->draws)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                         "--draws sets the marginal likelihood's importance draws, which only --average estimates");
+        break;
+    case FROM_AVERAGE:
+        if (o->priors_path)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "fit one model with --model M --priors FILE",
+                         "--priors applies to one model; the candidates of --average use the default priors, as "
+                         "analyze does");
+        break;
     }
-    double y = counts[last], e = tf_series_effort(s)[last];
-    if (!(y > 0)) {
-        fprintf(stderr, PROG ": the last surveyed count (%d) is 0, and a projection on the log scale cannot"
-                        " start from zero\n  hint: give the current abundance with --start N\n", *year0);
-        return TF_EXIT_FAIL;
-    }
-    *start = y / e;
-    if (!o->quiet)
-        printf("Starting from the last surveyed count: %g in %d (effort %g), N = %g; --start N starts elsewhere\n", y,
-               *year0, e, *start);
-    return TF_EXIT_OK;
-}
-
-/* Runs the projection, writes the tables and prints the summary; returns the exit code. */
-static int project_and_write(const options *o, const tf_project_options *po, const tf_model *m,
-                             const double *theta, const tf_survey *sv, double start, int year0, const char *label)
-{
-    int rc = TF_EXIT_OK;
-    tf_error err;
-    tf_error_init(&err);
-    char dir[4096];
-    if (o->out_dir) {
-        /* A cut name would be another folder: refuse it instead. */
-        if (strlen(o->out_dir) >= sizeof dir) {
-            fprintf(stderr, PROG ": the output folder name is longer than %zu bytes\n  hint: choose a shorter -o DIR\n",
-                    sizeof dir - 1);
-            return TF_EXIT_USAGE;
-        }
-        snprintf(dir, sizeof dir, "%s", o->out_dir);
-    } else if (sv) {
-        char stem[256], pop[256];
-        survey_stem(o->survey_path, stem, sizeof stem);
-        safe_name(label, pop, sizeof pop);
-        if (tf_survey_n_series(sv) > 1)
-            snprintf(dir, sizeof dir, "output/%s/%s", stem, pop);
-        else
-            snprintf(dir, sizeof dir, "output/%s", stem);
-    } else {
-        snprintf(dir, sizeof dir, "output/forecast");
-    }
-
-    double x0 = log(start);
-    tf_project_input in = tf_project_input_from_model(m, theta, 1, &x0, 1.0);
-    struct sigaction sa, old_int, old_term;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    interrupted = 0;
-    sigaction(SIGINT, &sa, &old_int);
-    sigaction(SIGTERM, &sa, &old_term);
-
-    uint64_t keys[2] = {tf_rng_key("forecast"), tf_rng_key(label)};
-    tf_rng rng;
-    tf_rng_derive(&rng, o->seed, keys, 2);
-    tf_projection *p = NULL;
-    tf_table *tables[TF_PROJECTION_N_TABLES] = {NULL};
-    size_t n_made = 0;
-    tf_status st = tf_project_run(&in, 1, po, &rng, &p, &err);
-    if (st == TF_OK)
-        st = tf_projection_tables_build(p, year0, tables, &err);
-    for (size_t i = 0; i < TF_PROJECTION_N_TABLES && st == TF_OK; i++)
-        st = tf_table_add_note(tables[i], TF_NOTE_CAUTION, tf_project_caution_fixed(), &err);
-    if (st == TF_OK && interrupted)
-        st = TF_ERR_INTERRUPTED;
-    if (st == TF_ERR_INTERRUPTED) {
-        rc = TF_EXIT_INTERRUPTED;
-    } else if (st == TF_ERR_NOMEM || st == TF_ERR_NUMERIC) {
-        tf_error_print(&err, PROG, stderr);
-        rc = TF_EXIT_FAIL;
-    } else if (st) {
-        /* Range and validity errors of the projection come from the command line (--fixed, --start). */
-        tf_error_print(&err, PROG, stderr);
-        rc = TF_EXIT_USAGE;
-    } else if ((st = tf_atomic_mkdirs(dir, &n_made, &err)) ||
-               (st = tf_csv_write_all((const tf_table *const *)tables, TF_PROJECTION_N_TABLES, dir, o->survey_path,
-                                      &err))) {
-        tf_error_print(&err, PROG, stderr);
-        /* A failed run leaves no folders of its own behind. */
-        tf_atomic_rmdirs(dir, n_made);
-        rc = TF_EXIT_FAIL;
-    } else {
-        if (!o->quiet)
-            print_summary(p, tf_model_growth(m), theta, start, year0, o->seed, dir, tables);
-        print_cautions(stdout);
-    }
-    if (rc == TF_EXIT_INTERRUPTED)
-        fprintf(stderr, PROG ": interrupted; no tables written\n");
-    sigaction(SIGINT, &old_int, NULL);
-    sigaction(SIGTERM, &old_term, NULL);
-    tf_projection_tables_free(tables);
-    tf_projection_free(p);
-    return rc;
+    if (!o->survey_path)
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give the survey file to fit",
+                     "--%s fits the counts of a survey", o->from == FROM_AVERAGE ? "average" : "model");
 }
 
 int tf_cmd_forecast(int argc, char **argv)
@@ -537,19 +1369,7 @@ int tf_cmd_forecast(int argc, char **argv)
         return TF_EXIT_OK;
     if (tf_error_status(&err) != TF_OK)
         return usage_fail(&err);
-
-    if (o.average && o.have_fixed)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                     "--average combines fitted models; with --fixed there is nothing to average");
-    else if (!o.have_fixed)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0,
-                     "give parameter values with --fixed r=...,sigma=... (and --start N) for a fixed-parameter forecast",
-                     "projecting from a fitted posterior needs the sampler, which this command does not use yet");
-    if (!o.survey_path && isnan(o.start))
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                     "without a survey file, --start N (the current abundance) is required");
-    if (!o.survey_path && o.population)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--population needs a survey file");
+    check_source(&o, &err);
 
     tf_project_options po;
     tf_project_options_init(&po);
@@ -557,45 +1377,25 @@ int tf_cmd_forecast(int argc, char **argv)
     po.n_runs = o.runs;
     po.decline_window = o.decline_window;
     po.stop = &interrupted;
+    /* A fixed forecast passes its start as the draw's own; a posterior one overrides the draws'. */
+    if (o.from != FROM_FIXED && !isnan(o.start))
+        po.start = o.start;
     tf_project_parse_thresholds(o.thresholds, po.thresholds, TF_PROJECT_MAX_THRESHOLDS, &po.n_thresholds, &err);
-
-    const tf_obs_type *obs = NULL;
-    if (o.obs && !(obs = tf_model_find_obs(o.obs))) {
-        char known[256];
-        tf_model_list_obs(known, sizeof known);
-        char hint[300];
-        snprintf(hint, sizeof hint, "known models: %s", known);
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown counting-error model '%s'", o.obs);
-    }
     if (tf_error_status(&err) != TF_OK)
         return usage_fail(&err);
 
-    const tf_growth_type *g = pick_growth(&o, obs, &err);
-    tf_model *m = NULL;
-    /* The joined model only lays out the parameters; without --obs any counting-error model
-     * will do, and Poisson has no parameters to give. */
-    if (!g || tf_model_new(g->name, obs ? obs->name : "poisson", &m, &err) != TF_OK)
-        return usage_fail(&err);
-    double theta[TF_MAX_PARAMS];
-    int rc = TF_EXIT_OK;
-    if (fixed_theta(m, &o.fixed, theta, o.quiet, &err) != TF_OK)
-        rc = usage_fail(&err);
-
-    tf_survey *sv = NULL;
-    double start = o.start;
-    int year0 = TF_PROJECTION_NO_YEAR;
-    const char *label = "";
-    if (!rc && o.survey_path) {
-        if (tf_survey_read(o.survey_path, &sv, &err)) {
-            tf_error_print(&err, PROG, stderr);
-            rc = TF_EXIT_INPUT;
-        } else {
-            rc = survey_start(&o, sv, &start, &year0, &label);
-        }
-    }
-    if (!rc)
-        rc = project_and_write(&o, &po, m, theta, sv, start, year0, label);
-    tf_survey_free(sv);
-    tf_model_free(m);
+    struct sigaction sa, old_int, old_term;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    interrupted = 0;
+    sigaction(SIGINT, &sa, &old_int);
+    sigaction(SIGTERM, &sa, &old_term);
+    int rc = o.from == FROM_FIXED ? run_fixed(&o, &po) : o.from == FROM_MODEL ? run_model(&o, &po)
+                                                                              : run_average(&o, &po);
+    if (rc == TF_EXIT_INTERRUPTED)
+        fprintf(stderr, PROG ": interrupted; no tables written\n");
+    sigaction(SIGINT, &old_int, NULL);
+    sigaction(SIGTERM, &old_term, NULL);
     return rc;
 }

@@ -26,3 +26,9 @@ const char *tf_project_caution_fixed(void)
     return "The parameters were fixed by hand, not estimated: uncertainty about them is not included, so "
            "the spread of outcomes is narrower than a fitted model's would be.";
 }
+
+const char *tf_project_caution_start(void)
+{
+    return "The current abundance was set by hand, not estimated: every future starts from it, so the "
+           "uncertainty about today's abundance is not included (the uncertainty about the parameters is).";
+}

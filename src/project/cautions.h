@@ -11,5 +11,7 @@ size_t tf_project_n_cautions(void);
 const char *tf_project_caution(size_t i);
 /* A note for projections from fixed parameter values rather than a fitted posterior. */
 const char *tf_project_caution_fixed(void);
+/* A note for projections from a fitted posterior whose start was set by hand (a what-if). */
+const char *tf_project_caution_start(void);
 
 #endif

@@ -152,16 +152,20 @@ static tf_status check_options(const tf_project_options *o, tf_error *err)
     if (o->decline_window > TF_PROJECT_MAX_HORIZON)
         return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, NULL, "decline window %zu is longer than %d years",
                             o->decline_window, TF_PROJECT_MAX_HORIZON);
+    if (o->start != 0 && !(o->start > 0 && log(o->start) >= TF_PROJECT_LOG_MIN && log(o->start) <= TF_PROJECT_LOG_MAX))
+        return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "the start must be a positive abundance below 5e21",
+                            "starting abundance %g is outside the projection's range", o->start);
     return TF_OK;
 }
 
 /* Every draw of an input that will be used must be a valid starting point: drift parameters
  * inside the growth model's open support, sigma >= 0 (0 = a deterministic projection), start
- * within the log-abundance bounds. */
-static tf_status check_input(const tf_project_input *in, size_t i, tf_error *err)
+ * within the log-abundance bounds (unless own_start is 0: one start for all, checked with the
+ * options). */
+static tf_status check_input(const tf_project_input *in, size_t i, int own_start, tf_error *err)
 {
     const tf_growth_type *g = in->growth;
-    if (!g || !g->drift || !in->draws || !in->x_last || in->n_draws == 0)
+    if (!g || !g->drift || !in->draws || (own_start && !in->x_last) || in->n_draws == 0)
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "model %zu has no growth model or no draws", i + 1);
     if (in->n_params < g->n_params || in->sigma_index >= in->n_params || in->sigma_index < g->n_params)
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL,
@@ -180,6 +184,8 @@ static tf_status check_input(const tf_project_input *in, size_t i, tf_error *err
         if (!(s >= 0 && isfinite(s)))
             return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, NULL, "model %zu (%s), draw %zu: sigma = %g is not >= 0",
                                 i + 1, g->name, d + 1, s);
+        if (!own_start)
+            continue;
         double x = in->x_last[d];
         if (!(x >= TF_PROJECT_LOG_MIN && x <= TF_PROJECT_LOG_MAX))
             return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "the start must be a positive abundance below 5e21",
@@ -254,8 +260,10 @@ void tf_projection_free(tf_projection *p)
     free(p);
 }
 
-/* Lays the runs out input by input, draw by draw, and sets each run's start and sigma. */
-static void lay_out_runs(const tf_project_input *in, size_t n_inputs, const size_t *runs, workspace *w)
+/* Lays the runs out input by input, draw by draw, and sets each run's start (x_start for all
+ * when it is not NAN) and sigma. */
+static void lay_out_runs(const tf_project_input *in, size_t n_inputs, const size_t *runs, double x_start,
+                         workspace *w)
 {
     size_t start = 0, nb = 0;
     for (size_t i = 0; i < n_inputs; i++) {
@@ -270,7 +278,7 @@ static void lay_out_runs(const tf_project_input *in, size_t n_inputs, const size
             const double *theta = in[i].draws + d * in[i].n_params;
             w->blocks[nb++] = (block){in[i].growth, theta, start + a, b - a};
             for (size_t j = start + a; j < start + b; j++) {
-                w->x0[j] = in[i].x_last[d];
+                w->x0[j] = isnan(x_start) ? in[i].x_last[d] : x_start;
                 w->sigma[j] = theta[in[i].sigma_index];
             }
         }
@@ -411,7 +419,7 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
                                 wt);
         if (wt == 0)
             continue;
-        if ((st = check_input(&inputs[i], i, err)))
+        if ((st = check_input(&inputs[i], i, opts->start == 0, err)))
             return st;
         total_w += wt;
         total_draws += inputs[i].n_draws;
@@ -466,7 +474,7 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
     w.blocks = malloc(n_blocks * sizeof *w.blocks);
     if (!w.x || !w.x0 || !w.sigma || !w.z || !w.scratch || !w.hit || !w.blocks)
         goto nomem;
-    lay_out_runs(inputs, n_inputs, p->input_runs, &w);
+    lay_out_runs(inputs, n_inputs, p->input_runs, opts->start > 0 ? log(opts->start) : NAN, &w);
     memcpy(w.x, w.x0, R * sizeof *w.x);
 
     record_bands(p, &w, 0);

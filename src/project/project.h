@@ -78,13 +78,18 @@ typedef struct {
     size_t n_declines;     /* 0..TF_PROJECT_MAX_DECLINES, each in (0, 1) */
     double declines[TF_PROJECT_MAX_DECLINES];
     size_t decline_window; /* extra window in years (e.g. three generations); 0 = none */
+    /* > 0: every run starts from this abundance instead of its draw's x_last, for what-if
+     * questions that keep the parameter uncertainty but set the current abundance by hand
+     * (x_last is then not read). 0 = each draw's own start. */
+    double start;
     /* Polled once per simulated year; when it reads nonzero the run stops with
      * TF_ERR_INTERRUPTED. NULL = never (a signal handler's flag, for Ctrl-C). */
     const volatile sig_atomic_t *stop;
 } tf_project_options;
 
 /* Defaults: horizon 50, n_runs 0 (see above), no thresholds, declines of 30, 50 and 80 %
- * (common practice, no source: the steps of decline used by most status schemes), no extra window. */
+ * (common practice, no source: the steps of decline used by most status schemes), no extra
+ * window, each draw's own start. */
 void tf_project_options_init(tf_project_options *o);
 
 typedef struct tf_projection tf_projection;
@@ -105,7 +110,7 @@ typedef struct tf_projection tf_projection;
  *
  * On success stores a new result in *out (free with tf_projection_free). TF_ERR_RANGE / TF_ERR_INVALID
  * for bad options, weights, draws (non-finite, outside the growth model's support, sigma < 0) or
- * starts outside the log-abundance bounds; TF_ERR_NUMERIC if the drift returns a non-number;
+ * starts (x_last, or log(opts->start)) outside the log-abundance bounds; TF_ERR_NUMERIC if the drift returns a non-number;
  * TF_ERR_INTERRUPTED once *opts->stop reads nonzero; TF_ERR_NOMEM. On failure *out is NULL; rng has
  * advanced by an unspecified amount. */
 tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const tf_project_options *opts,

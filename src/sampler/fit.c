@@ -89,6 +89,20 @@ void tf_fit_record(tf_fit *f, size_t chain, size_t iter, const double *theta, do
         memcpy(f->paths + k * f->n_years, path, f->n_years * sizeof(double));
 }
 
+size_t tf_fit_halve(tf_fit *f)
+{
+    size_t h = f->n_iter / 2;
+    for (size_t c = 0; c < f->n_chains; c++)
+        for (size_t i = 0; i < h; i++) {
+            size_t to = c * f->n_iter + i, from = c * f->n_iter + 2 * i + 1;
+            memcpy(f->draws + to * f->n_params, f->draws + from * f->n_params, f->n_params * sizeof(double));
+            f->loglik[to] = f->loglik[from];
+            memcpy(f->paths + to * f->n_years, f->paths + from * f->n_years, f->n_years * sizeof(double));
+        }
+    f->summarised = 0;
+    return h;
+}
+
 void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double invalid)
 {
     f->acceptance[chain] = acceptance;

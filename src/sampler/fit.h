@@ -63,6 +63,13 @@ void tf_fit_free(tf_fit *f);   /* accepts NULL */
 void tf_fit_record(tf_fit *f, size_t chain, size_t iter, const double *theta, double loglik,
                    const double *path);
 
+/* Keeps every second kept draw of each chain (draws 1, 3, 5, ...) at the front of the chain's
+ * block and returns how many that is per chain, floor(n_iter / 2): the chain can then go on at
+ * twice the thinning in the same storage, recording draws from that index on, and ends with
+ * the draws a run thinned twice as much from the start would have kept. The summaries are stale
+ * until the next tf_fit_summarise. */
+size_t tf_fit_halve(tf_fit *f);
+
 /* Per-chain sampler facts: acceptance rate over the kept draws and the share of proposals
  * rejected because the likelihood estimate was not finite. */
 void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double invalid);
@@ -74,6 +81,7 @@ void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double i
 typedef struct {
     size_t n_warmup;
     size_t thin;              /* iterations per kept draw */
+    size_t n_doublings;       /* times the chains were doubled in length to converge (pmmh.h) */
     size_t n_particles;
     double loglik_sd;
     int correlated;
@@ -87,7 +95,8 @@ void tf_fit_set_settings(tf_fit *f, const tf_fit_settings *st);
  * result. tf_pmmh_run sets it; NULL until set. */
 void tf_fit_set_posterior(tf_fit *f, const tf_posterior *post);
 
-/* Computes every summary from the recorded draws. Call once, after the last tf_fit_record.
+/* Computes every summary from the recorded draws, after the last tf_fit_record (again after
+ * tf_fit_halve and more records).
  * Errors: TF_ERR_NOMEM (the result keeps its draws; summaries stay unset). */
 tf_status tf_fit_summarise(tf_fit *f, tf_error *err);
 

@@ -24,7 +24,15 @@ typedef struct {
     int correlated;          /* correlated pseudo-marginal method (Deligiannidis et al. 2018) */
     double rho;              /* its correlation, in [0, 1) */
     size_t pilot_particles;  /* particles of the pilot phase */
+    /* When the kept draws miss the convergence thresholds of fit.h, the chains go on for as
+     * many iterations again with twice the thinning, at most this many times (0 = never);
+     * the number of kept draws stays n_iter. */
+    size_t max_doublings;
 } tf_pmmh_options;
+
+/* Runs with fewer kept draws (all chains) than this are quick looks, too short for ESS 400 unless
+ * the draws are nearly independent: they are never doubled (common practice, no source). */
+#define TF_PMMH_DOUBLING_MIN_DRAWS ((size_t)4000)
 
 /* The defaults (see pmmh.c for the reasons behind each value). */
 tf_pmmh_options tf_pmmh_default_options(void);
@@ -38,7 +46,8 @@ typedef struct {
     tf_pmmh_phase phase;
     size_t n_chains;
     const size_t *done;        /* iterations finished per chain, of total */
-    size_t total;              /* iterations per chain, all phases: n_warmup + n_iter * thin */
+    size_t total;              /* iterations per chain, all phases: n_warmup + n_iter * thin,
+                                * larger once the chains are doubled in length */
     const double *acceptance;  /* per chain, over the current phase so far */
     size_t n_particles;        /* 0 until chosen */
     double seconds;            /* since the start */

@@ -1,6 +1,10 @@
 #!/usr/bin/env bash
-# End-to-end checks of `tallyfit forecast` in its fixed-parameter form: the tables and their
-# headers, the cautions, and that a bad command line fails with exit 2 and leaves no files.
+# End-to-end checks of `tallyfit forecast`: first the fixed-parameter form (the tables and their
+# headers, the cautions, bad command lines fail with exit 2 and leave no files, atomic writes,
+# Ctrl-C), then projections from a posterior (--model) and model-averaged ones (--average) on
+# every demo survey: the tables, the cautions in the output and in the CSV files, the
+# properties every quasi-extinction curve has, --average over one model giving that model's
+# projection, --start as a what-if, and their bad command lines.
 set -uo pipefail
 : "${TALLYFIT:?TALLYFIT must name the binary}"
 repo=$(cd "$(dirname "$0")/../.." && pwd)
@@ -41,6 +45,12 @@ bands_flat "$out/forecast_bands.csv" 0 "" 500 || fail "year 0 of the bands is no
 lf "$out/forecast_declines.csv" | grep -q '^24,0.5,' || fail "the extra decline window is missing"
 lf "$out/forecast_quasi_extinction.csv" | grep -q '^30,,20%,' || fail "the relative threshold is missing"
 [ -z "$(ls "$out" | grep -v '\.csv$')" ] || fail "stray files left in the output folder: $(ls "$out")"
+# The summary table says what was projected and carries every caution, the fixed-value one too.
+expect_header forecast_summary.csv "Item,Value,Note"
+for phrase in "fixed parameter values" "not a formal status listing" "responsible authority" \
+              "model-based probabilities" "fixed by hand"; do
+  lf "$out/forecast_summary.csv" | grep -q "$phrase" || fail "forecast_summary.csv lacks '$phrase'"
+done
 for phrase in "not a formal status listing" "responsible authority" "model-based probabilities" \
               "Quasi-extinction" "Decline"; do
   grep -q "$phrase" "$tmp/stdout" || fail "output lacks '$phrase'"
@@ -94,8 +104,11 @@ bad "negative sigma" --fixed r=0,sigma=-0.1 --start 100
 bad "unknown model" --model nosuchmodel --fixed r=0,sigma=0.1 --start 100
 bad "two survey files" "${ok_fixed[@]}" a.csv b.csv
 bad "average with fixed" "${ok_fixed[@]}" --average
-bad "no fixed parameters" --start 100
-grep -q "sampler" "$tmp/stderr" || fail "posterior projection should say it needs the sampler"
+bad "nothing to project from" --start 100
+grep -q -- "--model M" "$tmp/stderr" && grep -q -- "--average" "$tmp/stderr" && grep -q -- "--fixed" "$tmp/stderr" ||
+  fail "with no source the message should name --model, --average and --fixed"
+bad "a sampler option with --fixed" "${ok_fixed[@]}" --chains 2
+grep -q -- "--chains" "$tmp/stderr" || fail "the refused sampler option is not named"
 
 # From a survey: the last surveyed count / effort is the start (trailing years without a count are
 # skipped), the calendar year of year 0 is that survey year, and the default folder is
@@ -124,7 +137,8 @@ bands_flat "$tmp/cwd/output/multi-pop/east/forecast_bands.csv" 0 2004 198 2>/dev
 [ -e "$tmp/south" ] && fail "the zero-count run left $tmp/south"
 "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --start 4 \
   --fixed r=0,sigma=0.1 --runs 100 -o "$tmp/south" -q >/dev/null 2>&1 || fail "--start did not override"
-bands_flat "$tmp/south/forecast_bands.csv" 0 2002 4 2>/dev/null || fail "--start 4 not used"
+# -o DIR holds one folder per population when the file has several, as with fit.
+bands_flat "$tmp/south/south/forecast_bands.csv" 0 2002 4 2>/dev/null || fail "--start 4 not used"
 "$TALLYFIT" forecast "$tmp/no-such.csv" --fixed r=0,sigma=0.1 -o "$tmp/nosurvey" -q >/dev/null 2>&1
 [ $? -eq 3 ] || fail "a missing survey file should exit 3"
 bad "population without survey" --fixed r=0,sigma=0.1 --start 5 --population east
@@ -140,7 +154,7 @@ mkdir "$tmp/clash/forecast_declines.csv"
 rc=$?
 [ "$rc" -eq 1 ] || fail "write failure: exit $rc, expected 1"
 grep -q "forecast_declines.csv" "$tmp/stderr" || fail "write failure does not name the file"
-[ "$(ls -A "$tmp/clash" | tr '\n' ' ')" = "forecast_bands.csv forecast_declines.csv forecast_quasi_extinction.csv " ] ||
+[ "$(ls -A "$tmp/clash" | tr '\n' ' ')" = "forecast_bands.csv forecast_declines.csv forecast_quasi_extinction.csv forecast_summary.csv " ] ||
   fail "write failure left: $(ls -A "$tmp/clash")"
 cmp -s "$tmp/clash/forecast_bands.csv" "$tmp/bands.before" || fail "write failure changed an earlier table"
 # An output path through a file: nothing is created.
@@ -163,5 +177,224 @@ wait "$pid"
 rc=$?
 [ "$rc" -eq 130 ] || fail "interrupted run: exit $rc, expected 130"
 [ -e "$tmp/int" ] && fail "interrupted run left $(ls -A "$tmp/int")"
+
+
+# ---- Projections from a posterior ------------------------------------------------------------------
+# Short runs: these checks are about the command, its files and properties that hold for any
+# draws, not about convergence (the fits' own tests cover that); a fixed particle count keeps
+# each fit short, and the sanitizer runs shorten them again.
+if [ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ]; then
+  FIT=(--iterations 80 --warmup 40 --particles 30 --threads 2 --years 15 --runs 400); DRAWS=(--draws 100)
+else
+  FIT=(--iterations 400 --warmup 100 --particles 60 --threads 2 --years 20 --runs 2000); DRAWS=(--draws 100)
+fi
+# Relative thresholds in increasing order, then absolute ones in increasing order; 100% is the
+# start itself and 1e6 is above every demo population's abundance.
+TH=(--threshold "10%,50%,100%,20,100,1000000")
+
+# check_tables DIR MODE: the four tables of one population. MODE is "model" or "average".
+# - quasi-extinction: the probability of having been at or below a threshold by year t is
+#   non-decreasing in t (a run that has crossed stays counted) and, at each year, in the threshold
+#   (at or below a lower level implies at or below a higher one; relative and absolute
+#   thresholds are compared among their own kind); a threshold at or above the current
+#   abundance (100 %, 1e6) gives probability 1 at year 0. These follow from the definition of
+#   the cumulative first-passage probability (common practice, no source) and hold exactly for
+#   any set of simulated runs.
+# - se is the binomial standard error sqrt(p (1 - p) / n) with n the simulated futures
+#   (the variance of a binomial proportion; any statistics text), to 1e-12.
+# - bands are ordered 5 % <= 25 % <= median <= 75 % <= 95 %.
+# - the summary holds every caution, the median time to quasi-extinction that the curve gives,
+#   and, for --average, model probabilities summing to 1.
+check_tables() {
+  /usr/bin/python3 - "$1" "$2" <<'PY'
+import csv, math, os, sys
+d, mode = sys.argv[1], sys.argv[2]
+def rows(name):
+    with open(os.path.join(d, name), newline="") as f:
+        return list(csv.reader(f))
+problems = []
+summ = rows("forecast_summary.csv")
+if summ[0] != ["Item", "Value", "Note"]:
+    problems.append(f"summary header {summ[0]}")
+items = {r[0]: r[1] for r in summ[1:]}
+n = int(items.get("Simulated futures", "0"))
+if n < 1:
+    problems.append("summary lacks the number of simulated futures")
+text = " ".join(r[1] for r in summ[1:] if r[0].startswith("Caution"))
+for phrase in ("model-based probabilities", "not a formal status listing", "responsible authority"):
+    if phrase not in text:
+        problems.append(f"summary cautions lack '{phrase}'")
+if mode == "average":
+    probs = [float(r[1]) for r in summ[1:] if r[0].startswith("P(") and r[1] not in ("failed", "excluded")]
+    if not probs or abs(sum(probs) - 1) > 1e-9 or min(probs) < 0:
+        problems.append(f"model probabilities {probs} do not sum to 1")
+    if items.get("Projected from", "").find("model average") < 0:
+        problems.append("summary does not say the projection is model-averaged")
+else:
+    if "Model" not in items or int(items.get("Posterior draws", "0")) < 1:
+        problems.append("summary lacks the model or the number of posterior draws")
+qe = rows("forecast_quasi_extinction.csv")
+if qe[0] != ["year", "calendar_year", "threshold", "probability", "se"]:
+    problems.append(f"quasi-extinction header {qe[0]}")
+curve = {}
+for r in qe[1:]:
+    t, th, p, se = int(r[0]), r[2], float(r[3]), float(r[4])
+    curve.setdefault(th, {})[t] = p
+    if not 0 <= p <= 1 or abs(se - math.sqrt(p * (1 - p) / n)) > 1e-12:
+        problems.append(f"threshold {th} year {t}: p {p} se {se} for {n} runs")
+labels = list(curve)
+if labels != ["10%", "50%", "100%", "20", "100", "1000000"]:
+    problems.append(f"thresholds {labels}")
+years = sorted(curve[labels[0]])
+for th in labels:
+    c = curve[th]
+    if sorted(c) != years:
+        problems.append(f"threshold {th} has other years")
+    for a, b in zip(years, years[1:]):
+        if c[b] < c[a]:
+            problems.append(f"threshold {th}: risk falls from {c[a]} (year {a}) to {c[b]} (year {b})")
+for group in (labels[:3], labels[3:]):
+    for lo, hi in zip(group, group[1:]):
+        for t in years:
+            if curve[hi][t] < curve[lo][t]:
+                problems.append(f"year {t}: risk below {hi} ({curve[hi][t]}) < below {lo} ({curve[lo][t]})")
+for th in ("100%", "1000000"):
+    if curve[th][0] != 1.0:
+        problems.append(f"threshold {th} at year 0: {curve[th][0]}, want 1")
+# The median time to quasi-extinction in the summary is the first year with a risk of 0.5 or more.
+for th in labels:
+    want = next((str(t) for t in years if curve[th][t] >= 0.5), "not reached")
+    if items.get(f"Threshold {th}") != want:
+        problems.append(f"median time for {th}: {items.get(f'Threshold {th}')}, the curve says {want}")
+if not any(0 < curve["50%"][t] for t in years):
+    problems.append("the 50 % threshold is never reached: the monotonicity checks test nothing there")
+bands = rows("forecast_bands.csv")
+for r in bands[1:]:
+    v = [float(x) for x in r[2:]]   # median, pct25, pct75, pct5, pct95
+    if not (v[3] <= v[1] <= v[0] <= v[2] <= v[4]):
+        problems.append(f"bands out of order in year {r[0]}: {v}")
+if len(rows("forecast_declines.csv")) < 4:
+    problems.append("declines table too short")
+for p in problems[:10]:
+    print(f"{d}: {p}")
+sys.exit(1 if problems else 0)
+PY
+}
+
+# Population labels in order of first appearance, read with Python's csv module ("" = no label).
+labels() {
+  /usr/bin/python3 - "$1" <<'PY'
+import csv, sys
+with open(sys.argv[1], encoding="utf-8-sig", newline="") as f:
+    rows = csv.DictReader(l for l in f if not l.startswith("#"))
+    seen = []
+    for r in rows:
+        lab = r.get("population") or ""
+        if lab not in seen:
+            seen.append(lab)
+print("\n".join(seen))
+PY
+}
+
+for f in "$repo"/surveys/*.csv; do
+  name=$(basename "$f" .csv)
+  mapfile -t pops < <(labels "$f")
+  for mode in model average; do
+    if [ "$mode" = model ]; then src=(--model gompertz --obs poisson); else src=(--average "${DRAWS[@]}"); fi
+    out="$tmp/$mode-$name"
+    "$TALLYFIT" forecast "$f" "${src[@]}" "${FIT[@]}" "${TH[@]}" --seed 2 -o "$out" >"$tmp/stdout" 2>"$tmp/stderr"
+    rc=$?
+    if [ "$rc" -ne 0 ]; then fail "$name --$mode: exit $rc: $(head -c 600 "$tmp/stderr")"; continue; fi
+    for phrase in "not a formal status listing" "responsible authority" "model-based probabilities" \
+                  "Quasi-extinction" "simulated futures"; do
+      grep -q "$phrase" "$tmp/stdout" || fail "$name --$mode: output lacks '$phrase'"
+    done
+    if [ "$mode" = model ]; then
+      grep -q "posterior of gompertz+poisson: [0-9]* draws" "$tmp/stdout" || fail "$name: the model and draws are not printed"
+    else
+      grep -q "P(model)" "$tmp/stdout" || fail "$name --average: the model probabilities are not printed"
+    fi
+    ls -aR "$out" | grep -q '\.tmp-' && fail "$name --$mode: temporary files left behind"
+    if [ "${#pops[@]}" -gt 1 ]; then
+      [ "$(grep -c "^Forecast for population" "$tmp/stdout")" -eq "${#pops[@]}" ] ||
+        fail "$name --$mode: not one forecast per population"
+      for p in "${pops[@]}"; do check_tables "$out/$p" "$mode" || fail "$name --$mode: tables of $p"; done
+    else
+      check_tables "$out" "$mode" || fail "$name --$mode: tables"
+    fi
+  done
+done
+
+# Averaging over one model at probability 1 is that model's projection, to the last digit: the
+# comparison fits the candidate with the same streams as a single fit (the sampler's streams
+# hang on the seed, the population and the model name), and both projections draw from the
+# stream of the seed and the population.
+heron="$repo/surveys/heron-colony.csv"
+"$TALLYFIT" forecast "$heron" --model ricker --obs negbin "${FIT[@]}" --seed 9 -o "$tmp/one-m" -q >/dev/null 2>&1 ||
+  fail "the single-model run failed"
+"$TALLYFIT" forecast "$heron" --average --model ricker --obs negbin "${DRAWS[@]}" "${FIT[@]}" --seed 9 -o "$tmp/one-a" \
+  >"$tmp/stdout" 2>&1 || fail "the one-candidate average failed"
+for t in bands quasi_extinction declines; do
+  cmp -s "$tmp/one-m/forecast_$t.csv" "$tmp/one-a/forecast_$t.csv" ||
+    fail "--average over ricker+negbin alone differs from --model ricker --obs negbin in forecast_$t.csv"
+done
+lf "$tmp/one-a/forecast_summary.csv" | grep -q '^P(ricker+negbin),1,' || fail "the one candidate's probability is not 1"
+# --average --model restricts the candidates: two growth models x two counting-error models.
+"$TALLYFIT" forecast "$heron" --average --model exponential,gompertz "${DRAWS[@]}" "${FIT[@]}" -o "$tmp/two" -q \
+  >/dev/null 2>&1 || fail "--average --model exponential,gompertz failed"
+[ "$(lf "$tmp/two/forecast_summary.csv" | grep -c '^P(')" -eq 4 ] || fail "--average --model did not restrict the candidates"
+lf "$tmp/two/forecast_summary.csv" | grep -q '^P(ricker' && fail "ricker is a candidate although not asked for"
+
+# --start with a posterior: every draw starts from N (year 0 is N in every band), the summary and
+# the cautions say so.
+"$TALLYFIT" forecast "$heron" --model gompertz --start 40 "${FIT[@]}" -o "$tmp/whatif" >"$tmp/stdout" 2>&1 ||
+  fail "--start with --model failed"
+bands_flat "$tmp/whatif/forecast_bands.csv" 0 2025 40 || fail "--start 40 is not every draw's start"
+grep -q "set by hand" "$tmp/stdout" || fail "the what-if caution is not printed"
+lf "$tmp/whatif/forecast_summary.csv" | grep -q "given with --start" || fail "the summary does not name --start"
+lf "$tmp/whatif/forecast_summary.csv" | grep -q "set by hand" || fail "the summary lacks the what-if caution"
+
+# One population of several: its folder below -o DIR, as fit names it.
+herds="$repo/surveys/three-herds.csv"
+"$TALLYFIT" forecast "$herds" --population river-flats --model exponential "${FIT[@]}" -o "$tmp/rf" -q >/dev/null 2>&1 ||
+  fail "--population with --model failed"
+lf "$tmp/rf/river-flats/forecast_summary.csv" 2>/dev/null | grep -q '^Population,river-flats,' ||
+  fail "--population river-flats not written to $tmp/rf/river-flats"
+[ "$(ls "$tmp/rf")" = river-flats ] || fail "--population wrote other folders: $(ls "$tmp/rf")"
+
+# Bad command lines of the posterior forms: exit 2, a message, nothing written.
+bad "several models without --average" "$heron" --model ricker,gompertz
+grep -q -- "--average" "$tmp/stderr" || fail "the hint should suggest --average"
+bad "--obs alone" "$heron" --obs poisson
+bad "--draws with --model" "$heron" --model ricker --draws 500
+bad "--priors with --average" "$heron" --average --priors "$repo/models/ricker.ini"
+bad "--model without a survey" --model ricker
+bad "--average without a survey" --average
+bad "unknown growth model" "$heron" --model nosuchmodel
+bad "unknown candidate" "$heron" --average --model ricker,nosuchmodel
+bad "unknown counting error" "$heron" --model ricker --obs nosuchobs
+bad "too few iterations for the thinning" "$heron" --model ricker --iterations 4 --thin 8
+bad "--start for several populations" "$herds" --model ricker --start 100
+grep -q "'north-valley'" "$tmp/stderr" || fail "--start without --population should list the populations"
+bad "unknown population" "$herds" --average --population nowhere
+# Fractional counts under Poisson counting error: an unusable survey for that model, exit 3.
+"$TALLYFIT" forecast "$repo/tests/data/good/fractional.csv" --model ricker "${FIT[@]}" -o "$tmp/frac" -q \
+  >/dev/null 2>"$tmp/stderr"
+[ $? -eq 3 ] || fail "fractional counts with poisson should exit 3"
+grep -q "lognormal" "$tmp/stderr" || fail "the fractional-count refusal should point to the log-normal"
+[ -e "$tmp/frac" ] && fail "the refused fit left $tmp/frac"
+
+# Ctrl-C during the fits: exit 130 and no tables.
+"$TALLYFIT" forecast "$herds" --average --threads 2 -o "$tmp/int2" -q >/dev/null 2>&1 &
+pid=$!
+for _ in $(seq 100); do
+  sleep 0.2
+  kill -INT "$pid" 2>/dev/null || break
+done
+kill -KILL "$pid" 2>/dev/null && fail "interrupted fit did not stop"
+wait "$pid"
+rc=$?
+[ "$rc" -eq 130 ] || fail "interrupted fit: exit $rc, expected 130"
+[ -e "$tmp/int2" ] && fail "interrupted fit left $(ls -A "$tmp/int2")"
 
 [ "$fails" -eq 0 ]

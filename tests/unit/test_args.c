@@ -169,6 +169,37 @@ START_TEST(output_names_are_portable)
 }
 END_TEST
 
+START_TEST(names_split)
+{
+    tf_error err;
+    tf_error_init(&err);
+    char buf[32];
+    const char *names[3];
+    size_t n;
+    ck_assert_int_eq(tf_args_split_names("--model", " ricker , gompertz,exponential", buf, sizeof buf, names, 3, &n,
+                                         &err), TF_OK);
+    ck_assert_uint_eq(n, 3);
+    ck_assert_str_eq(names[0], "ricker");
+    ck_assert_str_eq(names[1], "gompertz");
+    ck_assert_str_eq(names[2], "exponential");
+    ck_assert_int_eq(tf_args_split_names("--model", "ricker", buf, sizeof buf, names, 3, &n, &err), TF_OK);
+    ck_assert_uint_eq(n, 1);
+    ck_assert_str_eq(names[0], "ricker");
+    static const struct {
+        const char *text, *phrase;
+    } bad[] = {
+        {"ricker,,gompertz", "empty name"}, {"", "empty name"}, {"ricker, ", "empty name"},
+        {"a,b,c,d", "more than 3"}, {"abcdefghijklmnopqrstuvwxyz0123456789", "longer than 31"},
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        tf_error_init(&err);
+        ck_assert_int_eq(tf_args_split_names("--obs", bad[i].text, buf, sizeof buf, names, 3, &n, &err), TF_ERR_USAGE);
+        ck_assert_msg(strstr(first_what(&err), bad[i].phrase), "'%s': %s", bad[i].text, first_what(&err));
+        ck_assert_ptr_nonnull(strstr(first_what(&err), "--obs"));
+    }
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("args");
@@ -178,6 +209,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, numbers_lists_and_seeds);
     tcase_add_test(tc, set_binds_to_the_model);
     tcase_add_test(tc, output_names_are_portable);
+    tcase_add_test(tc, names_split);
     suite_add_tcase(s, tc);
     return s;
 }

@@ -166,6 +166,43 @@ START_TEST(convergence_flag_follows_diagnostics)
 }
 END_TEST
 
+/* Halving keeps draws 1, 3, 5, ... of each chain, with their log-likelihoods and paths, at the
+ * front of that chain's block, for odd and even numbers of draws (the doubling in pmmh.c relies
+ * on it). */
+START_TEST(halving_keeps_every_second_draw)
+{
+    tf_model *m = make_model("ricker", "poisson");
+    double y[YR] = {10, 12, 11, 9}, e[YR] = {1, 1, 1, 1};
+    tf_error err;
+    tf_error_init(&err);
+    tf_series *s = tf_series_new("a", 1990, YR, y, e, NULL, &err);
+    ck_assert_ptr_nonnull(s);
+    for (size_t n = 7; n <= 8; n++) {
+        tf_fit *f = tf_fit_alloc(m, s, CH, n);
+        ck_assert_ptr_nonnull(f);
+        for (size_t c = 0; c < CH; c++)
+            for (size_t i = 0; i < n; i++) {
+                double v = (double)(100 * c + i), theta[3] = {v, v + 0.5, v + 0.25}, path[YR] = {v, v, v, -v};
+                tf_fit_record(f, c, i, theta, -v, path);
+            }
+        size_t h = tf_fit_halve(f);
+        ck_assert_uint_eq(h, n / 2);
+        for (size_t c = 0; c < CH; c++)
+            for (size_t i = 0; i < h; i++) {
+                double v = (double)(100 * c + 2 * i + 1);
+                ck_assert_double_eq(tf_fit_draw(f, c, i)[0], v);
+                ck_assert_double_eq(tf_fit_draw(f, c, i)[2], v + 0.25);
+                ck_assert_double_eq(tf_fit_loglik(f, c, i), -v);
+                ck_assert_double_eq(tf_fit_path(f, c, i)[YR - 1], -v);
+            }
+        ck_assert_int_eq(tf_fit_converged(f), 0);   /* summaries are stale until recomputed */
+        tf_fit_free(f);
+    }
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
 START_TEST(fit_alloc_refuses_bad_sizes)
 {
     tf_model *m = make_model("exponential", "poisson");
@@ -305,6 +342,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, summaries_of_known_draws);
     tcase_add_test(tc, convergence_flag_follows_diagnostics);
     tcase_add_test(tc, fit_alloc_refuses_bad_sizes);
+    tcase_add_test(tc, halving_keeps_every_second_draw);
     tcase_add_test(tc, unconstrained_density_integrates_to_one);
     tcase_add_test(tc, prior_draws_follow_the_prior);
     tcase_add_test(tc, mismatched_priors_are_refused);

@@ -655,6 +655,39 @@ START_TEST(input_from_model_uses_the_model_order)
 }
 END_TEST
 
+/* opts.start replaces every draw's start and nothing else: draws with their own starts of 120 and
+ * 80 give, bit for bit, the projection of the same draws all starting from 100, and their own
+ * starts are not read (even a NAN one is accepted). A start outside the bounds is refused. */
+START_TEST(start_option_overrides_every_draw)
+{
+    double rows[2][3] = {{0.4, 300, 0.2}, {0.1, 150, 0.05}};
+    double own[2] = {log(120), NAN}, common[2] = {log(100), log(100)};
+    tf_project_input in = {&ricker_growth, 2, 3, 2, &rows[0][0], own, 1};
+    tf_project_input same = {&ricker_growth, 2, 3, 2, &rows[0][0], common, 1};
+    tf_project_options o;
+    tf_project_options_init(&o);
+    o.horizon = 20;
+    o.n_runs = 300;
+    set_thresholds(&o, "90,50%");
+    ck_assert_int_eq(run_status(&in, 1, &o), TF_ERR_RANGE); /* its own NAN start */
+    tf_projection *b = run_ok(&same, 1, &o, 6);
+    o.start = 100;
+    tf_projection *a = run_ok(&in, 1, &o, 6);
+    ck_assert(same_projection(a, b));
+    /* Year 0 holds the given start in every run; 90 is below it, 50 % of it is not reached. */
+    ck_assert_double_eq_tol(tf_projection_band(a, 0, TF_BAND_P05), 100, 1e-9);
+    ck_assert(tf_projection_risk(a, 0, 0) == 0.0);
+    tf_projection_free(a);
+    tf_projection_free(b);
+    o.start = -1;
+    ck_assert_int_eq(run_status(&in, 1, &o), TF_ERR_RANGE);
+    o.start = NAN;
+    ck_assert_int_eq(run_status(&in, 1, &o), TF_ERR_RANGE);
+    o.start = 1e30;
+    ck_assert_int_eq(run_status(&in, 1, &o), TF_ERR_RANGE);
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("project");
@@ -678,6 +711,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, bad_input_is_refused);
     tcase_add_test(tc, cautions_present);
     tcase_add_test(tc, input_from_model_uses_the_model_order);
+    tcase_add_test(tc, start_option_overrides_every_draw);
     suite_add_tcase(s, tc);
     return s;
 }

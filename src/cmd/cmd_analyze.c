@@ -4,7 +4,6 @@
 #define _GNU_SOURCE
 #include <getopt.h>
 #include <math.h>
-#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -20,6 +19,7 @@
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "cmd/setup.h"
+#include "cmd/signals.h"
 #include "export/atomic.h"
 #include "export/report.h"
 #include "model/model_file.h"
@@ -42,17 +42,6 @@
 #define BATCH_AUTO 25
 /* Data rows a batch file may hold: 5000 populations of 60 years, within the importer's byte limit. */
 #define BATCH_MAX_ROWS 300000
-
-/* Set by the SIGINT / SIGTERM handler and polled by the chains, the importance sampler, the
- * projection and the writer: a signal handler has no other way to reach the running code
- * (C11 7.14.1.1). */
-static volatile sig_atomic_t interrupted;
-
-static void on_signal(int sig)
-{
-    (void)sig;
-    interrupted = 1;
-}
 
 static void help(FILE *out, const tf_analysis_options *d)
 {
@@ -308,9 +297,9 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
             fprintf(stderr, ", %zu at a time\n", opt->n_threads < tf_batch_n_todo(b) ? opt->n_threads : tf_batch_n_todo(b));
     }
     if (size > 1)
-        st = tf_batch_run_mpi(b, rank, size, opt->n_threads, &interrupted, show_batch, &show, err);
+        st = tf_batch_run_mpi(b, rank, size, opt->n_threads, tf_signals_flag(), show_batch, &show, err);
     else
-        st = tf_batch_run_threads(b, opt->n_threads, &interrupted, show_batch, &show, err);
+        st = tf_batch_run_threads(b, opt->n_threads, tf_signals_flag(), show_batch, &show, err);
     if (rank == 0) {
         tf_error werr;
         tf_error_init(&werr);
@@ -500,13 +489,8 @@ static int analyze(int argc, char **argv, int rank, int size)
     tf_survey *sv = NULL;
     tf_analysis *a = NULL;
     tf_report *r = NULL;
-    struct sigaction sa, old_int, old_term;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    interrupted = 0;
-    sigaction(SIGINT, &sa, &old_int);
-    sigaction(SIGTERM, &sa, &old_term);
+    tf_signals saved;
+    const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
     tf_sheets_provenance prov = {.input_name = path, .title = name};
     tf_status st;
@@ -552,13 +536,13 @@ static int analyze(int argc, char **argv, int rank, int size)
         goto out;
     tf_provenance_format_date(tf_provenance_now(), prov.date);
     int show = !quiet && isatty(STDERR_FILENO);
-    if ((st = tf_analysis_run(sv, &opt, &interrupted, show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
+    if ((st = tf_analysis_run(sv, &opt, interrupted, show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }
     if (!(r = tf_report_new(&err)) || (st = tf_sheets_build(a, &prov, r, &err)) != TF_OK)
         goto out;
-    if ((st = tf_report_write(r, xlsx, csv_dir, path, &interrupted, &err)) != TF_OK) {
+    if ((st = tf_report_write(r, xlsx, csv_dir, path, interrupted, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }
@@ -578,8 +562,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     }
     status = TF_EXIT_OK;
 out:
-    sigaction(SIGINT, &old_int, NULL);
-    sigaction(SIGTERM, &old_term, NULL);
+    tf_signals_restore(&saved);
     if (!errs)
         ; /* another rank prints */
     else if (status == TF_EXIT_INTERRUPTED && !in_batch)

@@ -3,7 +3,6 @@
 #define _GNU_SOURCE
 #include <getopt.h>
 #include <math.h>
-#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -12,6 +11,7 @@
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "cmd/setup.h"
+#include "cmd/signals.h"
 #include "compare/compare.h"
 #include "compare/pareto.h"
 #include "export/atomic.h"
@@ -28,16 +28,6 @@
 #define MAX_DRAWS 10000000
 #define MAX_THREADS 256
 #define MAX_NAMES TF_COMPARE_MAX_MODELS
-
-/* Set by the SIGINT / SIGTERM handler and polled by the chains and the importance sampler: a
- * signal handler has no other way to reach the running code (C11 7.14.1.1). */
-static volatile sig_atomic_t interrupted;
-
-static void on_signal(int sig)
-{
-    (void)sig;
-    interrupted = 1;
-}
 
 static void help(FILE *out)
 {
@@ -333,13 +323,8 @@ int tf_cmd_compare(int argc, char **argv)
     tf_comparison **comps = NULL;
     char (*written)[4600] = NULL;   /* the file written per population */
     size_t n_jobs = 0;
-    struct sigaction sa, old_int, old_term;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    interrupted = 0;
-    sigaction(SIGINT, &sa, &old_int);
-    sigaction(SIGTERM, &sa, &old_term);
+    tf_signals saved;
+    const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
     if (tf_survey_read(path, &sv, &err) != TF_OK) {
         status = TF_EXIT_INPUT;
@@ -365,7 +350,7 @@ int tf_cmd_compare(int argc, char **argv)
         const tf_series *s = only ? only : tf_survey_series(sv, i);
         opt.progress = show ? show_progress : NULL;
         opt.progress_ctx = (void *)tf_series_label(s);
-        tf_status st = tf_compare_run(s, &opt, &interrupted, &comps[i], &err);
+        tf_status st = tf_compare_run(s, &opt, interrupted, &comps[i], &err);
         if (st != TF_OK) {
             if (tf_series_label(s)[0])
                 tf_error_add(&err, st, path, 0, 0, NULL, "(population '%s')", tf_series_label(s));
@@ -376,11 +361,8 @@ int tf_cmd_compare(int argc, char **argv)
 
     /* Signals wait until the files are written (the atomic writes rule out half-written files;
      * this keeps one population from being written and the next not). */
-    sigset_t block, old_mask;
-    sigemptyset(&block);
-    sigaddset(&block, SIGINT);
-    sigaddset(&block, SIGTERM);
-    sigprocmask(SIG_BLOCK, &block, &old_mask);
+    sigset_t old_mask;
+    tf_signals_hold(&old_mask);
     char base[256];
     tf_args_survey_name(path, base, sizeof base);
     tf_status wst = TF_OK;
@@ -410,7 +392,7 @@ int tf_cmd_compare(int argc, char **argv)
             tf_atomic_rmdirs(dir, created);
         tf_table_free(t);
     }
-    sigprocmask(SIG_SETMASK, &old_mask, NULL);
+    tf_signals_release(&old_mask);
     if (wst != TF_OK) {
         status = tf_args_exit_code(wst);
         goto out;
@@ -428,8 +410,7 @@ int tf_cmd_compare(int argc, char **argv)
     }
     status = TF_EXIT_OK;
 out:
-    sigaction(SIGINT, &old_int, NULL);
-    sigaction(SIGTERM, &old_term, NULL);
+    tf_signals_restore(&saved);
     if (status == TF_EXIT_INTERRUPTED)
         fputs(PROG ": interrupted; no files written\n", stderr);
     else if (status != TF_EXIT_OK)

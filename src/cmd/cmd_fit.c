@@ -3,7 +3,6 @@
 #define _GNU_SOURCE
 #include <getopt.h>
 #include <math.h>
-#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -13,6 +12,7 @@
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "cmd/setup.h"
+#include "cmd/signals.h"
 #include "export/atomic.h"
 #include "export/csv_out.h"
 #include "export/table.h"
@@ -31,17 +31,6 @@
 #define MAX_PARTICLES 10000000
 #define MAX_THREADS 256
 #define MAX_DOUBLINGS 10
-
-/* Set by the SIGINT / SIGTERM handler and polled by the chains. The one piece of global state:
- * a signal handler has no other way to reach the running code (C11 7.14.1.1 allows it exactly
- * this: writing a volatile sig_atomic_t). */
-static volatile sig_atomic_t interrupted;
-
-static void on_signal(int sig)
-{
-    (void)sig;
-    interrupted = 1;
-}
 
 static void help(FILE *out)
 {
@@ -571,13 +560,8 @@ int tf_cmd_fit(int argc, char **argv)
     tf_survey *sv = NULL;
     job *jobs = NULL;
     size_t n_jobs = 0;
-    struct sigaction sa, old_int, old_term;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    interrupted = 0;
-    sigaction(SIGINT, &sa, &old_int);
-    sigaction(SIGTERM, &sa, &old_term);
+    tf_signals saved;
+    const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
     if (tf_args_read_survey(path, &sv, &err) != TF_OK) {
         status = TF_EXIT_INPUT;
@@ -640,7 +624,7 @@ int tf_cmd_fit(int argc, char **argv)
     for (size_t i = 0; i < n_jobs; i++) {
         job *j = &jobs[i];
         progress_view view = {.population = tf_series_label(j->series), .model = tf_model_name(j->model)};
-        tf_status st = tf_pmmh_run(j->post, j->series, &opt, &interrupted, show ? show_progress : NULL, &view,
+        tf_status st = tf_pmmh_run(j->post, j->series, &opt, interrupted, show ? show_progress : NULL, &view,
                                    &j->fit, &err);
         if (show)
             clear_progress();
@@ -652,13 +636,10 @@ int tf_cmd_fit(int argc, char **argv)
 
     /* Every fit is done: write them all as one group. Signals wait until that is over, so that
      * a late Ctrl-C cannot stop the group half-way through its renames. */
-    sigset_t block, old_mask;
-    sigemptyset(&block);
-    sigaddset(&block, SIGINT);
-    sigaddset(&block, SIGTERM);
-    sigprocmask(SIG_BLOCK, &block, &old_mask);
+    sigset_t old_mask;
+    tf_signals_hold(&old_mask);
     tf_status wst = write_all(jobs, n_jobs, path, &err);
-    sigprocmask(SIG_SETMASK, &old_mask, NULL);
+    tf_signals_release(&old_mask);
     if (wst != TF_OK) {
         status = exit_for(wst);
         goto out;
@@ -676,8 +657,7 @@ int tf_cmd_fit(int argc, char **argv)
     }
     status = TF_EXIT_OK;
 out:
-    sigaction(SIGINT, &old_int, NULL);
-    sigaction(SIGTERM, &old_term, NULL);
+    tf_signals_restore(&saved);
     if (status == TF_EXIT_INTERRUPTED)
         fputs(PROG ": interrupted; no files written\n", stderr);
     else if (status != TF_EXIT_OK)

@@ -6,7 +6,6 @@
 #define _GNU_SOURCE
 #include <getopt.h>
 #include <math.h>
-#include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -16,6 +15,7 @@
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "cmd/setup.h"
+#include "cmd/signals.h"
 #include "export/atomic.h"
 #include "export/csv_out.h"
 #include "export/projection_tables.h"
@@ -47,16 +47,6 @@
 
 /* Where the futures come from. */
 typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
-
-/* Set by the SIGINT/SIGTERM handler and polled by the chains, the importance sampler and the
- * projection: a signal handler can only communicate through a global of this type (C11
- * 7.14.1.1), so this is the one piece of global state the command keeps. */
-static volatile sig_atomic_t interrupted;
-static void on_signal(int sig)
-{
-    (void)sig;
-    interrupted = 1;
-}
 
 typedef struct {
     const char *survey_path;
@@ -573,11 +563,8 @@ static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_pa
             tf_csv_write_stream(j->tables[k], tf_atomic_stream(files[n_open - 1]), path, NULL);
         }
     }
-    sigset_t block, old_mask;
-    sigemptyset(&block);
-    sigaddset(&block, SIGINT);
-    sigaddset(&block, SIGTERM);
-    sigprocmask(SIG_BLOCK, &block, &old_mask);
+    sigset_t old_mask;
+    tf_signals_hold(&old_mask);
     if (st == TF_OK) {
         st = tf_atomic_commit_all(files, n_open, err);
     } else {
@@ -587,7 +574,7 @@ static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_pa
     if (st != TF_OK && created)
         for (size_t i = n_jobs; i-- > 0;)
             tf_atomic_rmdirs(jobs[i].dir, created[i]);
-    sigprocmask(SIG_SETMASK, &old_mask, NULL);
+    tf_signals_release(&old_mask);
     free(files);
     free(created);
     return st;
@@ -807,7 +794,7 @@ static int finish(const options *o, job *jobs, size_t n_jobs)
     tf_status st = TF_OK;
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++)
         st = build_tables(o, &jobs[i], &err);
-    if (st == TF_OK && interrupted)
+    if (st == TF_OK && *tf_signals_flag())
         st = tf_error_add(&err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "interrupted");
     if (st == TF_OK)
         st = write_all(jobs, n_jobs, o->survey_path, &err);
@@ -1019,7 +1006,7 @@ static int run_model(const options *o, const tf_project_options *po)
             fprintf(stderr, "%s%s%s: fitting by PMMH (%zu chains x %zu iterations after %zu warm-up)...\n", j->label,
                     j->label[0] ? " " : "", tf_model_name(j->model), opt.n_chains, opt.n_iter * opt.thin,
                     opt.n_warmup);
-        tf_status st = tf_pmmh_run(j->post, j->s, &opt, &interrupted, NULL, NULL, &j->fit, &err);
+        tf_status st = tf_pmmh_run(j->post, j->s, &opt, tf_signals_flag(), NULL, NULL, &j->fit, &err);
         if (st == TF_OK) {
             size_t nd = tf_fit_n_draws(j->fit);
             if (!(j->x_last = malloc(nd * sizeof *j->x_last))) {
@@ -1164,7 +1151,7 @@ static int run_average(const options *o, const tf_project_options *po)
     char name[256];
     tf_args_survey_name(o->survey_path, name, sizeof name);
     int show = !o->quiet && isatty(STDERR_FILENO);
-    if ((st = tf_analysis_run(sv, &ao, &interrupted, show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
+    if ((st = tf_analysis_run(sv, &ao, tf_signals_flag(), show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
         rc = tf_args_exit_code(st);
         goto out;
     }
@@ -1376,7 +1363,7 @@ int tf_cmd_forecast(int argc, char **argv)
     po.horizon = o.years;
     po.n_runs = o.runs;
     po.decline_window = o.decline_window;
-    po.stop = &interrupted;
+    po.stop = tf_signals_flag();
     /* A fixed forecast passes its start as the draw's own; a posterior one overrides the draws'. */
     if (o.from != FROM_FIXED && !isnan(o.start))
         po.start = o.start;
@@ -1384,18 +1371,12 @@ int tf_cmd_forecast(int argc, char **argv)
     if (tf_error_status(&err) != TF_OK)
         return usage_fail(&err);
 
-    struct sigaction sa, old_int, old_term;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    interrupted = 0;
-    sigaction(SIGINT, &sa, &old_int);
-    sigaction(SIGTERM, &sa, &old_term);
+    tf_signals saved;
+    tf_signals_catch(&saved);
     int rc = o.from == FROM_FIXED ? run_fixed(&o, &po) : o.from == FROM_MODEL ? run_model(&o, &po)
                                                                               : run_average(&o, &po);
     if (rc == TF_EXIT_INTERRUPTED)
         fprintf(stderr, PROG ": interrupted; no tables written\n");
-    sigaction(SIGINT, &old_int, NULL);
-    sigaction(SIGTERM, &old_term, NULL);
+    tf_signals_restore(&saved);
     return rc;
 }

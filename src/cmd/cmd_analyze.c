@@ -18,6 +18,7 @@
 #include "batch/batch_mpi.h"
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/messages.h"
 #include "cmd/setup.h"
 #include "cmd/signals.h"
 #include "export/atomic.h"
@@ -145,30 +146,11 @@ static tf_status split_names(const char *opt, const char *text, char *buf, size_
     return TF_OK;
 }
 
-
 static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
     (void)ctx;
     return tf_setup_priors(m, s, NULL, out, err);
 }
-
-/* Progress on stderr, for a terminal only. */
-static void show_progress(void *ctx, const tf_analysis_event *e)
-{
-    const char *label = e->label[0] ? e->label : (const char *)ctx;   /* the survey's name */
-    switch (e->stage) {
-    case TF_ANALYSIS_STARTED:
-        fprintf(stderr, "%s (%zu of %zu): fitting and comparing the models...\n", label, e->population + 1,
-                e->n_populations);
-        break;
-    case TF_ANALYSIS_MODEL_DONE:
-        fprintf(stderr, "  %s %s (%.0f s)\n", e->model, e->failed ? "failed" : "done", e->seconds);
-        break;
-    case TF_ANALYSIS_PROJECTING: fprintf(stderr, "  projecting...\n"); break;
-    case TF_ANALYSIS_DONE: fprintf(stderr, "  done in %.0f s\n", e->seconds); break;
-    }
-}
-
 
 /* The plain lines on one population. */
 static void print_population(const tf_analysis *a, size_t i, const char *title, FILE *out)
@@ -536,7 +518,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         goto out;
     tf_provenance_format_date(tf_provenance_now(), prov.date);
     int show = !quiet && isatty(STDERR_FILENO);
-    if ((st = tf_analysis_run(sv, &opt, interrupted, show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
+    if ((st = tf_analysis_run(sv, &opt, interrupted, show ? tf_messages_analysis : NULL, name, &a, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }
@@ -563,12 +545,9 @@ static int analyze(int argc, char **argv, int rank, int size)
     status = TF_EXIT_OK;
 out:
     tf_signals_restore(&saved);
-    if (!errs)
-        ; /* another rank prints */
-    else if (status == TF_EXIT_INTERRUPTED && !in_batch)
-        fputs(PROG ": interrupted; no files written\n", errs);
-    else if (status != TF_EXIT_OK && status != TF_EXIT_INTERRUPTED)
-        tf_error_print(&err, PROG, errs);
+    /* Only rank 0 prints; an interrupted batch has said how far it got. */
+    if (errs && !(status == TF_EXIT_INTERRUPTED && in_batch))
+        tf_messages_outcome(PROG, status, &err, errs);
     tf_report_free(r);
     tf_analysis_free(a);
     tf_survey_free(sv);

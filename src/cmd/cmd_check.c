@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "cmd/cmd.h"
+#include "cmd/messages.h"
 #include "survey/survey.h"
 
 #define PROG "tallyfit check"
@@ -47,12 +48,6 @@ static void help(FILE *out)
             "exit status: %d usable, %d bad command line, %d the survey file is unusable\n",
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_EXIT_OK, TF_EXIT_USAGE,
             TF_EXIT_INPUT);
-}
-
-static int usage_error(tf_error *err)
-{
-    tf_error_print(err, PROG, stderr);
-    return TF_EXIT_USAGE;
 }
 
 static int cmp_double(const void *a, const void *b)
@@ -170,14 +165,14 @@ int tf_cmd_check(int argc, char **argv)
                 tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", arg);
             else
                 tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '-%c'", optopt);
-            return usage_error(&err);
+            return tf_messages_usage(PROG, &err);
         }
         }
     }
     if (argc - optind != 1) {
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, argc == optind ? "no survey file given"
                                                                           : "give exactly one survey file");
-        return usage_error(&err);
+        return tf_messages_usage(PROG, &err);
     }
     const char *path = argv[optind];
     tf_survey *sv = NULL;

@@ -10,6 +10,7 @@
 
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/messages.h"
 #include "cmd/setup.h"
 #include "cmd/signals.h"
 #include "compare/compare.h"
@@ -116,7 +117,6 @@ static void show_progress(void *ctx, size_t index, const char *model, tf_compare
     static const char *const what[] = {"fitting", "fitted; estimating its marginal likelihood", "done", "failed"};
     fprintf(stderr, "%s%s%s: %s (%.1f s)\n", label, label[0] ? " " : "", model, what[ev], seconds);
 }
-
 
 static void print_table(const tf_comparison *c, FILE *out)
 {
@@ -295,10 +295,8 @@ int tf_cmd_compare(int argc, char **argv)
             tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "unknown observation model '%s' (known: %s)", obs[i],
                          known);
         }
-    if (tf_error_status(&err) != TF_OK) {
-        tf_error_print(&err, PROG, stderr);
-        return TF_EXIT_USAGE;
-    }
+    if (tf_error_status(&err) != TF_OK)
+        return tf_messages_usage(PROG, &err);
     opt.growth = growth;
     opt.obs = obs;
     const char *wnames[TF_ARGS_MAX_PAIRS];
@@ -411,10 +409,7 @@ int tf_cmd_compare(int argc, char **argv)
     status = TF_EXIT_OK;
 out:
     tf_signals_restore(&saved);
-    if (status == TF_EXIT_INTERRUPTED)
-        fputs(PROG ": interrupted; no files written\n", stderr);
-    else if (status != TF_EXIT_OK)
-        tf_error_print(&err, PROG, stderr);
+    tf_messages_outcome(PROG, status, &err, stderr);
     for (size_t i = 0; i < n_jobs && comps; i++)
         tf_comparison_free(comps[i]);
     free(comps);

@@ -11,6 +11,7 @@
 
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/messages.h"
 #include "cmd/setup.h"
 #include "cmd/signals.h"
 #include "export/atomic.h"
@@ -340,8 +341,6 @@ static void job_clear(job *j)
     memset(j, 0, sizeof *j);
 }
 
-
-
 #define N_TABLES 5
 
 /* Writes the tables of every population as one group (tf_atomic_commit_all): either every file
@@ -543,17 +542,13 @@ int tf_cmd_fit(int argc, char **argv)
             tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give priors of the model's parameters with --priors FILE",
                          "--set: fit takes only %s and %s, not %s", TF_ARGS_X1_MEAN, TF_ARGS_X1_SD,
                          set.items[i].name);
-    if (tf_error_status(&err) != TF_OK) {
-        tf_error_print(&err, PROG, stderr);
-        return TF_EXIT_USAGE;
-    }
+    if (tf_error_status(&err) != TF_OK)
+        return tf_messages_usage(PROG, &err);
 
     /* Fail on a mistyped model name before reading a large file. */
     tf_model *probe = NULL;
-    if (tf_model_new(growth, obs, &probe, &err) != TF_OK) {
-        tf_error_print(&err, PROG, stderr);
-        return TF_EXIT_USAGE;
-    }
+    if (tf_model_new(growth, obs, &probe, &err) != TF_OK)
+        return tf_messages_usage(PROG, &err);
     tf_model_free(probe);
 
     int status = TF_EXIT_FAIL;
@@ -658,10 +653,7 @@ int tf_cmd_fit(int argc, char **argv)
     status = TF_EXIT_OK;
 out:
     tf_signals_restore(&saved);
-    if (status == TF_EXIT_INTERRUPTED)
-        fputs(PROG ": interrupted; no files written\n", stderr);
-    else if (status != TF_EXIT_OK)
-        tf_error_print(&err, PROG, stderr);
+    tf_messages_outcome(PROG, status, &err, stderr);
     for (size_t i = 0; i < n_jobs && jobs; i++)
         job_clear(&jobs[i]);
     free(jobs);

@@ -14,6 +14,7 @@
 #include "analysis/analysis.h"
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/messages.h"
 #include "cmd/setup.h"
 #include "cmd/signals.h"
 #include "export/atomic.h"
@@ -142,13 +143,6 @@ static void help(FILE *out)
             "130 interrupted (nothing written).\n",
             growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS, DEFAULT_SEED, d.n_chains,
             d.n_iter * d.thin, a.fit.n_iter * a.fit.thin, d.thin, d.n_warmup, a.evidence.n_draws);
-}
-
-/* Prints the messages in err; returns TF_EXIT_USAGE. */
-static int usage_fail(const tf_error *err)
-{
-    tf_error_print(err, PROG, stderr);
-    return TF_EXIT_USAGE;
 }
 
 /* ---- fixed parameters --------------------------------------------------------------------------- */
@@ -866,31 +860,31 @@ static int run_fixed(const options *o, const tf_project_options *po)
         tf_model_list_obs(known, sizeof known);
         snprintf(hint, sizeof hint, "known models: %s", known);
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown counting-error model '%s'", o->obs);
-        return usage_fail(&err);
+        return tf_messages_usage(PROG, &err);
     }
     job j = {.label = "", .year0 = TF_PROJECTION_NO_YEAR, .start = o->start};
     const tf_growth_type *g = pick_growth(o, obs, &err);
     /* The joined model only lays out the parameters; without --obs any counting-error model
      * will do, and Poisson has no parameters to give. */
     if (!g || tf_model_new(g->name, obs ? obs->name : "poisson", &j.model, &err) != TF_OK)
-        return usage_fail(&err);
+        return tf_messages_usage(PROG, &err);
     int rc = TF_EXIT_OK;
     tf_survey *sv = NULL;
     if (fixed_theta(j.model, &o->fixed, j.theta, o->quiet, &err) != TF_OK) {
-        rc = usage_fail(&err);
+        rc = tf_messages_usage(PROG, &err);
     } else if (o->survey_path) {
         if (tf_args_read_survey(o->survey_path, &sv, &err)) {
             tf_error_print(&err, PROG, stderr);
             rc = TF_EXIT_INPUT;
         } else if (!(j.s = tf_args_pick_series(sv, o->population, o->survey_path, &err))) {
-            rc = usage_fail(&err);
+            rc = tf_messages_usage(PROG, &err);
         } else {
             j.label = tf_series_label(j.s);
             rc = fixed_start(o, j.s, &j);
         }
     }
     if (!rc && job_dir(o, sv, &j, &err))
-        rc = usage_fail(&err);
+        rc = tf_messages_usage(PROG, &err);
     if (!rc) {
         double x0 = log(j.start);
         tf_project_input in = tf_project_input_from_model(j.model, j.theta, 1, &x0, 1.0);
@@ -937,7 +931,7 @@ static int run_model(const options *o, const tf_project_options *po)
     /* Fail on a mistyped model name before reading a large file. */
     tf_model *probe = NULL;
     if (tf_model_new(o->model, obs, &probe, &err) != TF_OK)
-        return usage_fail(&err);
+        return tf_messages_usage(PROG, &err);
     tf_model_free(probe);
 
     tf_pmmh_options opt = tf_pmmh_default_options();
@@ -957,7 +951,7 @@ static int run_model(const options *o, const tf_project_options *po)
     if (opt.n_iter < 1) {
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
                      "--iterations %zu with --thin %zu keeps no draw", iterations, opt.thin);
-        return usage_fail(&err);
+        return tf_messages_usage(PROG, &err);
     }
 
     int rc = TF_EXIT_FAIL;
@@ -1046,23 +1040,6 @@ static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s
     return tf_setup_priors(m, s, NULL, out, err);
 }
 
-/* Progress of --average on stderr, for a terminal only. */
-static void show_progress(void *ctx, const tf_analysis_event *e)
-{
-    const char *label = e->label[0] ? e->label : (const char *)ctx;
-    switch (e->stage) {
-    case TF_ANALYSIS_STARTED:
-        fprintf(stderr, "%s (%zu of %zu): fitting and comparing the models...\n", label, e->population + 1,
-                e->n_populations);
-        break;
-    case TF_ANALYSIS_MODEL_DONE:
-        fprintf(stderr, "  %s %s (%.0f s)\n", e->model, e->failed ? "failed" : "done", e->seconds);
-        break;
-    case TF_ANALYSIS_PROJECTING: fprintf(stderr, "  projecting...\n"); break;
-    case TF_ANALYSIS_DONE: fprintf(stderr, "  done in %.0f s\n", e->seconds); break;
-    }
-}
-
 /* A --model or --obs list of --average: names known to find, or "all". */
 static tf_status candidate_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
                                  size_t *n, int *all, int growth, tf_error *err)
@@ -1127,7 +1104,7 @@ static int run_average(const options *o, const tf_project_options *po)
         ao.evidence.n_adapt_draws = ao.evidence.n_draws;
     ao.priors = default_priors;
     if (tf_error_status(&err) != TF_OK)
-        return usage_fail(&err);
+        return tf_messages_usage(PROG, &err);
 
     int rc = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
@@ -1151,7 +1128,7 @@ static int run_average(const options *o, const tf_project_options *po)
     char name[256];
     tf_args_survey_name(o->survey_path, name, sizeof name);
     int show = !o->quiet && isatty(STDERR_FILENO);
-    if ((st = tf_analysis_run(sv, &ao, tf_signals_flag(), show ? show_progress : NULL, name, &a, &err)) != TF_OK) {
+    if ((st = tf_analysis_run(sv, &ao, tf_signals_flag(), show ? tf_messages_analysis : NULL, name, &a, &err)) != TF_OK) {
         rc = tf_args_exit_code(st);
         goto out;
     }
@@ -1355,7 +1332,7 @@ int tf_cmd_forecast(int argc, char **argv)
     if (parse_options(argc, argv, &o, &err))
         return TF_EXIT_OK;
     if (tf_error_status(&err) != TF_OK)
-        return usage_fail(&err);
+        return tf_messages_usage(PROG, &err);
     check_source(&o, &err);
 
     tf_project_options po;
@@ -1369,7 +1346,7 @@ int tf_cmd_forecast(int argc, char **argv)
         po.start = o.start;
     tf_project_parse_thresholds(o.thresholds, po.thresholds, TF_PROJECT_MAX_THRESHOLDS, &po.n_thresholds, &err);
     if (tf_error_status(&err) != TF_OK)
-        return usage_fail(&err);
+        return tf_messages_usage(PROG, &err);
 
     tf_signals saved;
     tf_signals_catch(&saved);

@@ -9,6 +9,7 @@
 
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/messages.h"
 #include "filter/filter.h"
 #include "model/model.h"
 #include "survey/survey.h"
@@ -123,10 +124,8 @@ int tf_cmd_likelihood(int argc, char **argv)
                      "no survey file given");
     if (!growth && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
-    if (tf_error_status(&err) != TF_OK) {
-        tf_error_print(&err, "tallyfit " CMD, stderr);
-        return TF_EXIT_USAGE;
-    }
+    if (tf_error_status(&err) != TF_OK)
+        return tf_messages_usage("tallyfit " CMD, &err);
 
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;

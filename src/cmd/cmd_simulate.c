@@ -9,6 +9,7 @@
 
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/messages.h"
 #include "export/atomic.h"
 #include "model/model.h"
 #include "survey/survey.h"
@@ -57,12 +58,6 @@ static void help(FILE *out)
             "  -h, --help       show this help\n",
             SCHEME_MAX, SCHEME_MIN_YEARS, SCHEME_MAX_YEARS, growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN,
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
-}
-
-static int usage_fail(tf_error *err)
-{
-    tf_error_print(err, "tallyfit " CMD, stderr);
-    return TF_EXIT_USAGE;
 }
 
 /* Writes the CSV; returns nonzero on a stream error. */
@@ -303,7 +298,7 @@ int tf_cmd_simulate(int argc, char **argv)
             tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give --populations with --seed and -o only",
                          "--populations draws every population's model and settings itself");
         if (tf_error_status(&err) != TF_OK)
-            return usage_fail(&err);
+            return tf_messages_usage("tallyfit " CMD, &err);
         return write_scheme(n_pop, seed, output);
     }
     if (!growth && tf_error_status(&err) == TF_OK)
@@ -321,7 +316,7 @@ int tf_cmd_simulate(int argc, char **argv)
                      "line break",
                      label, TF_SURVEY_MAX_LABEL);
     if (tf_error_status(&err) != TF_OK)
-        return usage_fail(&err);
+        return tf_messages_usage("tallyfit " CMD, &err);
 
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;

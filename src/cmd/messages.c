@@ -1,0 +1,34 @@
+/* The commands' closing messages and analysis progress; see messages.h. */
+#include "cmd/messages.h"
+
+#include "cmd/cmd.h"
+
+int tf_messages_usage(const char *prog, const tf_error *err)
+{
+    tf_error_print(err, prog, stderr);
+    return TF_EXIT_USAGE;
+}
+
+void tf_messages_outcome(const char *prog, int code, const tf_error *err, FILE *out)
+{
+    if (code == TF_EXIT_INTERRUPTED)
+        fprintf(out, "%s: interrupted; no files written\n", prog);
+    else if (code != TF_EXIT_OK)
+        tf_error_print(err, prog, out);
+}
+
+void tf_messages_analysis(void *ctx, const tf_analysis_event *e)
+{
+    const char *label = e->label[0] ? e->label : (const char *)ctx;
+    switch (e->stage) {
+    case TF_ANALYSIS_STARTED:
+        fprintf(stderr, "%s (%zu of %zu): fitting and comparing the models...\n", label, e->population + 1,
+                e->n_populations);
+        break;
+    case TF_ANALYSIS_MODEL_DONE:
+        fprintf(stderr, "  %s %s (%.0f s)\n", e->model, e->failed ? "failed" : "done", e->seconds);
+        break;
+    case TF_ANALYSIS_PROJECTING: fprintf(stderr, "  projecting...\n"); break;
+    case TF_ANALYSIS_DONE: fprintf(stderr, "  done in %.0f s\n", e->seconds); break;
+    }
+}

@@ -1,0 +1,24 @@
+/* What the commands print on standard error besides their warnings: the errors that ended a
+ * command, the notice of an interruption, and the progress of an analysis. */
+#ifndef TF_MESSAGES_H
+#define TF_MESSAGES_H
+
+#include <stdio.h>
+
+#include "analysis/analysis.h"
+#include "util/error.h"
+
+/* Prints err (tf_error_print, each line starting with prog) on stderr; returns TF_EXIT_USAGE,
+ * for a command line refused before any work. */
+int tf_messages_usage(const char *prog, const tf_error *err);
+
+/* How a command that writes files ended, on out: for TF_EXIT_INTERRUPTED the notice that
+ * nothing was written, for any other code but TF_EXIT_OK the messages of err. */
+void tf_messages_outcome(const char *prog, int code, const tf_error *err, FILE *out);
+
+/* A progress callback of tf_analysis_run (analysis.h) for a terminal: one line per population
+ * started, model done, projection and population done. ctx is the survey's name (const char *),
+ * shown for a population without a label. */
+void tf_messages_analysis(void *ctx, const tf_analysis_event *e);
+
+#endif

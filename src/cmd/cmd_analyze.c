@@ -146,12 +146,6 @@ static tf_status split_names(const char *opt, const char *text, char *buf, size_
     return TF_OK;
 }
 
-static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
-{
-    (void)ctx;
-    return tf_setup_priors(m, s, NULL, out, err);
-}
-
 /* The plain lines on one population. */
 static void print_population(const tf_analysis *a, size_t i, const char *title, FILE *out)
 {
@@ -450,7 +444,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         return TF_EXIT_USAGE;
     }
     opt.fit.n_particles = opt.evidence.n_particles = n_particles;
-    opt.priors = default_priors;
+    opt.priors = tf_setup_default_priors;
     /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion,
      * as the compare command does. */
     if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)

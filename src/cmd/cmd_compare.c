@@ -104,12 +104,6 @@ static tf_status split_names(const char *opt, const char *text, char *buf, size_
     return TF_OK;
 }
 
-static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
-{
-    (void)ctx;
-    return tf_setup_priors(m, s, NULL, out, err);
-}
-
 static void show_progress(void *ctx, size_t index, const char *model, tf_compare_event ev, double seconds)
 {
     (void)index;
@@ -310,7 +304,7 @@ int tf_cmd_compare(int argc, char **argv)
     opt.n_weights = weights.n;
     opt.fit.seed = opt.evidence.seed = seed;
     opt.fit.n_particles = opt.evidence.n_particles = n_particles;
-    opt.priors = default_priors;
+    opt.priors = tf_setup_default_priors;
     /* Importance draws scale with the requested effort: with --draws left alone, a short run
      * (few iterations, as in tests) keeps its adaptation rounds in proportion. */
     if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)

@@ -1034,12 +1034,6 @@ out:
     return rc;
 }
 
-static tf_status default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
-{
-    (void)ctx;
-    return tf_setup_priors(m, s, NULL, out, err);
-}
-
 /* A --model or --obs list of --average: names known to find, or "all". */
 static tf_status candidate_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
                                  size_t *n, int *all, int growth, tf_error *err)
@@ -1102,7 +1096,7 @@ static int run_average(const options *o, const tf_project_options *po)
      * analyze and compare do. */
     if (ao.evidence.n_adapt_draws > ao.evidence.n_draws)
         ao.evidence.n_adapt_draws = ao.evidence.n_draws;
-    ao.priors = default_priors;
+    ao.priors = tf_setup_default_priors;
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 

@@ -10,6 +10,7 @@
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "cmd/messages.h"
+#include "cmd/setup.h"
 #include "filter/filter.h"
 #include "model/model.h"
 #include "survey/survey.h"
@@ -49,31 +50,6 @@ static void help(FILE *out)
             "  --seed S           random seed (default 1)\n"
             "  -h, --help         show this help\n",
             growth, obs, TF_MODEL_X1_YEARS, DEFAULT_PARTICLES, DEFAULT_REPEATS);
-}
-
-/* Counts the observation model cannot have: fractional counts for count models, zeros for
- * models of positive values. Named by their input line. */
-static tf_status check_counts(const tf_model *m, const tf_series *s, const char *path, tf_error *err)
-{
-    const tf_obs_type *o = tf_model_obs(m);
-    const double *y = tf_series_counts(s);
-    size_t n = tf_series_n_years(s);
-    int year0 = tf_series_first_year(s);
-    if (o->needs_integer) {
-        size_t i = tf_series_first_fractional(s);
-        if (i < n)
-            return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
-                                "use --obs lognormal for indices that are not whole counts",
-                                "count %g in year %d is not a whole number, which the %s model needs", y[i],
-                                year0 + (int)i, o->name);
-    }
-    if (o->needs_positive)
-        for (size_t i = 0; i < n; i++)
-            if (y[i] == 0)
-                return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
-                                    "use a count model such as poisson or negbin, which allow zero counts",
-                                    "count 0 in year %d is impossible under the %s model", year0 + (int)i, o->name);
-    return TF_OK;
 }
 
 int tf_cmd_likelihood(int argc, char **argv)
@@ -153,7 +129,7 @@ int tf_cmd_likelihood(int argc, char **argv)
         status = TF_EXIT_USAGE;
         goto out;
     }
-    if (check_counts(m, s, shown, &err) != TF_OK) {
+    if (tf_setup_check_counts(m, s, shown, &err) != TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;
     }

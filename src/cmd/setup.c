@@ -124,3 +124,10 @@ out:
     tf_model_file_free(obs);
     return st;
 }
+
+tf_status tf_setup_default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out,
+                                  tf_error *err)
+{
+    (void)ctx;
+    return tf_setup_priors(m, s, NULL, out, err);
+}

@@ -25,4 +25,9 @@ double tf_setup_survey_median(const tf_series *s);
 tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *priors_path,
                           tf_prior_set **out, tf_error *err);
 
+/* tf_setup_priors with the default priors only (no --priors file), in the form of the priors
+ * callback of the comparison and the analysis (compare.h); ctx is unused. */
+tf_status tf_setup_default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out,
+                                  tf_error *err);
+
 #endif

@@ -9,6 +9,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
+#include <unistd.h>
 
 void tf_args_pairs_init(tf_arg_pairs *p) { p->n = 0; }
 
@@ -231,6 +232,22 @@ tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char 
     return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", what);
 }
 
+const char *tf_args_survey_path(int argc, char **argv, int first, tf_error *err)
+{
+    if (first >= argc)
+        return NULL;
+    if (first + 1 < argc)
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[first + 1]);
+    return argv[first];
+}
+
+tf_status tf_args_no_survey(const char *cmd, tf_error *err)
+{
+    char hint[128];
+    snprintf(hint, sizeof hint, "run 'tallyfit %s --help' for the usage", cmd);
+    return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "no survey file given");
+}
+
 /* "'east', 'west', ..." into buf, ending in "..." when buf is too small for all. */
 static void population_list(const tf_survey *sv, char *buf, size_t size)
 {
@@ -332,6 +349,41 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     return TF_OK;
 }
 
+tf_status tf_args_model_at(const char *growth, const char *obs, const tf_arg_pairs *set, tf_model **out,
+                           double *theta, tf_error *err)
+{
+    tf_status st = tf_model_new(growth, obs, out, err);
+    if (st == TF_OK && (st = tf_args_bind_model(*out, set, 1, theta, NULL, err)) != TF_OK) {
+        tf_model_free(*out);
+        *out = NULL;
+    }
+    return st;
+}
+
+tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err)
+{
+    tf_model *probe = NULL;
+    tf_status st = tf_model_new(growth, obs, &probe, err);
+    tf_model_free(probe);
+    return st;
+}
+
+tf_status tf_args_kept_draws(size_t iterations, size_t thin, size_t *n_iter, tf_error *err)
+{
+    *n_iter = iterations / thin;
+    if (*n_iter < 1)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
+                            "--iterations %zu with --thin %zu keeps no draw", iterations, thin);
+    return TF_OK;
+}
+
+size_t tf_args_default_threads(size_t max)
+{
+    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
+    size_t n = n_cpu > 0 ? (size_t)n_cpu : 1;
+    return n < max ? n : max;
+}
+
 tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err)
 {
     *out = NULL;
@@ -400,6 +452,18 @@ void tf_args_survey_name(const char *path, char *out, size_t size)
         out[n - 4] = '\0';
     if (!out[0] || !strcmp(out, ".") || !strcmp(out, ".."))
         snprintf(out, size, "survey");
+}
+
+tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const char *base, const char *label,
+                             int several, tf_error *err)
+{
+    char sub[256];
+    tf_args_safe_name(label, sub, sizeof sub);
+    int n = out_dir ? snprintf(dir, size, several ? "%s/%s" : "%s", out_dir, sub)
+                    : snprintf(dir, size, several ? "output/%s/%s" : "output/%s", base, sub);
+    if (n < 0 || (size_t)n >= size)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o directory", "the output path is too long");
+    return TF_OK;
 }
 
 int tf_args_exit_code(tf_status st)

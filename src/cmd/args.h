@@ -64,6 +64,13 @@ tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, t
  * for the hint ("run 'tallyfit CMD --help'"). Returns TF_ERR_USAGE. */
 tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char *arg, tf_error *err);
 
+/* The survey file named after the options: argv[first], or NULL when there is none. A further
+ * argument is an error ("unexpected argument"). */
+const char *tf_args_survey_path(int argc, char **argv, int first, tf_error *err);
+
+/* Records that the survey file is missing; the hint names the --help of command cmd. */
+tf_status tf_args_no_survey(const char *cmd, tf_error *err);
+
 /* The series a command works on: the one named population (--population; may be NULL), or the
  * survey's only one. Errors (TF_ERR_USAGE, naming path): no population of that name, or several
  * populations and none chosen; the hint lists the populations, each in quotes. Borrowed from sv. */
@@ -83,6 +90,23 @@ const tf_series *tf_args_pick_series(const tf_survey *sv, const char *population
 tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_all, double *theta,
                              unsigned char *given, tf_error *err);
 
+/* A model joined from growth and obs whose every parameter is given in set (tf_args_bind_model
+ * with require_all), its values in theta. On success the caller frees *out (tf_model_free); on
+ * failure *out is NULL. */
+tf_status tf_args_model_at(const char *growth, const char *obs, const tf_arg_pairs *set, tf_model **out,
+                           double *theta, tf_error *err);
+
+/* Checks that growth and obs name known models, so that a mistyped name is refused before a
+ * large file is read. */
+tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err);
+
+/* The kept draws per chain of `--iterations` iterations kept every `--thin`-th: *n_iter =
+ * iterations / thin. Refuses a pair that keeps no draw. */
+tf_status tf_args_kept_draws(size_t iterations, size_t thin, size_t *n_iter, tf_error *err);
+
+/* The default number of threads: the processors online (1 when unknown), at most max. */
+size_t tf_args_default_threads(size_t max);
+
 /* Reads the survey a command was given: a path, or "-" for standard input (named "stdin" in
  * messages). Same contract as tf_survey_read. */
 tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err);
@@ -94,6 +118,13 @@ void tf_args_safe_name(const char *label, char *out, size_t size);
 /* The survey's file name without directories and without a final ".csv": the name its output
  * folder and workbook take. "stdin" for "-", "survey" when nothing is left. */
 void tf_args_survey_name(const char *path, char *out, size_t size);
+
+/* The output folder of one population, as fit, compare and forecast choose it: out_dir, or
+ * output/<base> when out_dir is NULL (base: the survey's name, tf_args_survey_name), with
+ * /<label made safe> below it when several. A folder too long for dir (size bytes) is refused,
+ * not cut (a cut name would be another folder): TF_ERR_USAGE. */
+tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const char *base, const char *label,
+                             int several, tf_error *err);
 
 /* The exit code (cmd.h) for a library status of the model-fitting commands: usage and refused
  * combinations are command-line errors, invalid input an unusable input, interruption 130. */

@@ -361,8 +361,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_error_print(&err, PROG, stderr);
         return TF_EXIT_FAIL;
     }
-    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
-    opt.n_threads = n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    opt.n_threads = tf_args_default_threads(MAX_THREADS);
     /* Under MPI one process per core is the rule: each takes one thread unless told otherwise. */
     if (size > 1)
         opt.n_threads = 1;
@@ -420,13 +419,9 @@ static int analyze(int argc, char **argv, int rank, int size)
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
     }
-    const char *path = NULL;
-    if (optind < argc)
-        path = argv[optind++];
-    if (optind < argc)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path && tf_error_status(&err) == TF_OK)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit analyze --help' for the usage", "no survey file given");
+        tf_args_no_survey(CMD, &err);
     /* --iterations counts iterations, as fit and compare do; the sampler keeps every thin-th. */
     opt.fit.n_iter = iterations / opt.fit.thin;
     if (tf_error_status(&err) == TF_OK && opt.fit.n_iter < 1)

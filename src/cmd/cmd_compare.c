@@ -225,8 +225,7 @@ int tf_cmd_compare(int argc, char **argv)
     tf_error err;
     tf_error_init(&err);
     tf_compare_options opt = tf_compare_default_options();
-    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
-    opt.n_threads = n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    opt.n_threads = tf_args_default_threads(MAX_THREADS);
     const char *population = NULL, *out_dir = NULL;
     char growth_buf[1024], obs_buf[1024];
     const char *growth[MAX_NAMES], *obs[MAX_NAMES];
@@ -264,18 +263,10 @@ int tf_cmd_compare(int argc, char **argv)
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
     }
-    const char *path = NULL;
-    if (optind < argc)
-        path = argv[optind++];
-    if (optind < argc)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit compare --help' for the usage",
-                     "no survey file given");
-    opt.fit.n_iter = iterations / opt.fit.thin;
-    if (opt.fit.n_iter < 1)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
-                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.fit.thin);
+        tf_args_no_survey(CMD, &err);
+    tf_args_kept_draws(iterations, opt.fit.thin, &opt.fit.n_iter, &err);
     /* Mistyped model names are usage errors, found before a large file is read. */
     char known[256];
     for (size_t i = 0; i < opt.n_growth; i++)
@@ -360,16 +351,10 @@ int tf_cmd_compare(int argc, char **argv)
     tf_status wst = TF_OK;
     for (size_t i = 0; i < n_jobs && wst == TF_OK; i++) {
         const tf_series *s = tf_comparison_series(comps[i]);
-        char sub[256], dir[4096];
-        tf_args_safe_name(tf_series_label(s), sub, sizeof sub);
-        int several = n_series > 1 && !only;
-        int k = out_dir ? snprintf(dir, sizeof dir, several ? "%s/%s" : "%s", out_dir, sub)
-                        : snprintf(dir, sizeof dir, several ? "output/%s/%s" : "output/%s", base, sub);
-        if (k < 0 || (size_t)k >= sizeof dir) {
-            wst = tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o directory",
-                               "the output path is too long");
+        char dir[4096];
+        if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), n_series > 1 && !only,
+                                      &err)) != TF_OK)
             break;
-        }
         tf_table *t = tf_compare_table(comps[i], &err);
         if (!t) {
             wst = TF_ERR_NOMEM;

@@ -488,8 +488,7 @@ int tf_cmd_fit(int argc, char **argv)
     tf_arg_pairs set;
     tf_args_pairs_init(&set);
     tf_pmmh_options opt = tf_pmmh_default_options();
-    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
-    opt.n_threads = n_cpu > 0 ? (size_t)n_cpu : 1;
+    opt.n_threads = tf_args_default_threads(SIZE_MAX);
     int quiet = 0;
     size_t iterations = opt.n_iter * opt.thin;
 
@@ -524,17 +523,10 @@ int tf_cmd_fit(int argc, char **argv)
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
     }
-    const char *path = NULL;
-    if (optind < argc)
-        path = argv[optind++];
-    if (optind < argc)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit fit --help' for the usage", "no survey file given");
-    opt.n_iter = iterations / opt.thin;
-    if (opt.n_iter < 1)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
-                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.thin);
+        tf_args_no_survey(CMD, &err);
+    tf_args_kept_draws(iterations, opt.thin, &opt.n_iter, &err);
     if (!growth)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     for (size_t i = 0; i < set.n; i++)
@@ -545,11 +537,8 @@ int tf_cmd_fit(int argc, char **argv)
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
-    /* Fail on a mistyped model name before reading a large file. */
-    tf_model *probe = NULL;
-    if (tf_model_new(growth, obs, &probe, &err) != TF_OK)
+    if (tf_args_check_model(growth, obs, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
-    tf_model_free(probe);
 
     int status = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
@@ -603,13 +592,7 @@ int tf_cmd_fit(int argc, char **argv)
             status = TF_EXIT_INPUT;
             goto out;
         }
-        char sub[256];
-        tf_args_safe_name(label, sub, sizeof sub);
-        int several = n_series > 1;
-        int n = out_dir ? snprintf(j->dir, sizeof j->dir, several ? "%s/%s" : "%s", out_dir, sub)
-                        : snprintf(j->dir, sizeof j->dir, several ? "output/%s/%s" : "output/%s", base, sub);
-        if (n < 0 || (size_t)n >= sizeof j->dir) {
-            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o directory", "the output path is too long");
+        if (tf_args_output_dir(j->dir, sizeof j->dir, out_dir, base, label, n_series > 1, &err) != TF_OK) {
             status = TF_EXIT_USAGE;
             goto out;
         }

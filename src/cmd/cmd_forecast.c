@@ -302,15 +302,11 @@ static void job_clear(job *j)
  * too long for the buffer is refused, not cut: a cut name would be another folder. */
 static tf_status job_dir(const options *o, const tf_survey *sv, job *j, tf_error *err)
 {
-    char base[256], top[300], sub[256];
-    tf_args_safe_name(j->label, sub, sizeof sub);
+    char base[256] = "forecast";
     if (sv)
         tf_args_survey_name(o->survey_path, base, sizeof base);
-    snprintf(top, sizeof top, "output/%s", sv ? base : "forecast");
-    const char *root = o->out_dir ? o->out_dir : top;
-    int n = sv && tf_survey_n_series(sv) > 1 ? snprintf(j->dir, sizeof j->dir, "%s/%s", root, sub)
-                                             : snprintf(j->dir, sizeof j->dir, "%s", root);
-    if (n < 0 || (size_t)n >= sizeof j->dir)
+    if (tf_args_output_dir(j->dir, sizeof j->dir, o->out_dir, base, j->label, sv && tf_survey_n_series(sv) > 1,
+                           NULL) != TF_OK)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o DIR",
                             "the output folder name is longer than %zu bytes", sizeof j->dir - 1);
     return TF_OK;
@@ -928,15 +924,11 @@ static int run_model(const options *o, const tf_project_options *po)
     tf_error err;
     tf_error_init(&err);
     const char *obs = o->obs ? o->obs : "poisson";
-    /* Fail on a mistyped model name before reading a large file. */
-    tf_model *probe = NULL;
-    if (tf_model_new(o->model, obs, &probe, &err) != TF_OK)
+    if (tf_args_check_model(o->model, obs, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
-    tf_model_free(probe);
 
     tf_pmmh_options opt = tf_pmmh_default_options();
-    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
-    opt.n_threads = o->threads ? o->threads : n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    opt.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
     opt.seed = o->seed;
     if (o->chains)
         opt.n_chains = o->chains;
@@ -947,12 +939,8 @@ static int run_model(const options *o, const tf_project_options *po)
     if (o->particles)
         opt.n_particles = o->particles;
     size_t iterations = o->iterations ? o->iterations : opt.n_iter * opt.thin;
-    opt.n_iter = iterations / opt.thin;
-    if (opt.n_iter < 1) {
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
-                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.thin);
+    if (tf_args_kept_draws(iterations, opt.thin, &opt.n_iter, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
-    }
 
     int rc = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
@@ -1076,8 +1064,7 @@ static int run_average(const options *o, const tf_project_options *po)
         candidate_names("--obs", o->obs, obs_buf, sizeof obs_buf, ao.obs, &ao.n_obs, &ao.obs_auto, 0, &err);
     ao.project = *po;
     ao.seed = o->seed;
-    long n_cpu = sysconf(_SC_NPROCESSORS_ONLN);
-    ao.n_threads = o->threads ? o->threads : n_cpu > 0 ? (size_t)(n_cpu < MAX_THREADS ? n_cpu : MAX_THREADS) : 1;
+    ao.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
     if (o->chains)
         ao.fit.n_chains = o->chains;
     if (o->thin)
@@ -1085,10 +1072,7 @@ static int run_average(const options *o, const tf_project_options *po)
     if (o->warmup)
         ao.fit.n_warmup = o->warmup;
     size_t iterations = o->iterations ? o->iterations : ao.fit.n_iter * ao.fit.thin;
-    ao.fit.n_iter = iterations / ao.fit.thin;
-    if (ao.fit.n_iter < 1)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
-                     "--iterations %zu with --thin %zu keeps no draw", iterations, ao.fit.thin);
+    tf_args_kept_draws(iterations, ao.fit.thin, &ao.fit.n_iter, &err);
     ao.fit.n_particles = ao.evidence.n_particles = o->particles;
     if (o->draws)
         ao.evidence.n_draws = o->draws;
@@ -1265,10 +1249,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         if (sampler && !o->sampler_opt)
             o->sampler_opt = sampler;
     }
-    if (optind < argc)
-        o->survey_path = argv[optind++];
-    if (optind < argc)
-        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    o->survey_path = tf_args_survey_path(argc, argv, optind, err);
     return 0;
 }
 

@@ -90,14 +90,9 @@ int tf_cmd_likelihood(int argc, char **argv)
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
     }
-    const char *path = NULL;
-    if (optind < argc)
-        path = argv[optind++];
-    if (optind < argc)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[optind]);
+    const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path && tf_error_status(&err) == TF_OK)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit likelihood --help' for the usage",
-                     "no survey file given");
+        tf_args_no_survey(CMD, &err);
     if (!growth && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     if (tf_error_status(&err) != TF_OK)
@@ -108,14 +103,10 @@ int tf_cmd_likelihood(int argc, char **argv)
     tf_survey *sv = NULL;
     tf_filter *f = NULL;
     double *ll = NULL;
-    if (tf_model_new(growth, obs, &m, &err) != TF_OK) {
-        status = TF_EXIT_USAGE;
-        goto out;
-    }
     double theta[TF_MAX_PARAMS];
     /* Bound once before reading so that a mistyped parameter is reported without waiting for a
      * large file; bound again below after the data set the first-year default. */
-    if (tf_args_bind_model(m, &set, 1, theta, NULL, &err) != TF_OK) {
+    if (tf_args_model_at(growth, obs, &set, &m, theta, &err) != TF_OK) {
         status = TF_EXIT_USAGE;
         goto out;
     }

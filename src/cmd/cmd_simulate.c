@@ -325,12 +325,8 @@ int tf_cmd_simulate(int argc, char **argv)
     FILE *mem = NULL;
     char *text = NULL;
     size_t text_len = 0;
-    if (tf_model_new(growth, obs, &m, &err) != TF_OK) {
-        status = TF_EXIT_USAGE;
-        goto out;
-    }
     double theta[TF_MAX_PARAMS];
-    if (tf_args_bind_model(m, &set, 1, theta, NULL, &err) != TF_OK) {
+    if (tf_args_model_at(growth, obs, &set, &m, theta, &err) != TF_OK) {
         status = TF_EXIT_USAGE;
         goto out;
     }

@@ -11,10 +11,10 @@
 
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/fileset.h"
 #include "cmd/messages.h"
 #include "cmd/setup.h"
 #include "cmd/signals.h"
-#include "export/atomic.h"
 #include "export/csv_out.h"
 #include "export/table.h"
 #include "model/model.h"
@@ -343,15 +343,12 @@ static void job_clear(job *j)
 
 #define N_TABLES 5
 
-/* Writes the tables of every population as one group (tf_atomic_commit_all): either every file
+/* Writes the tables of every population as one group (fileset.h): either every file
  * is replaced or none is, and directories this call made are taken away again on failure. */
 static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
 {
-    size_t n_files = n_jobs * N_TABLES, n_open = 0;
-    tf_atomic **files = calloc(n_files, sizeof *files);
-    size_t *created = calloc(n_jobs, sizeof *created);
-    tf_status st = files && created ? TF_OK
-                                    : tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_TABLES, err);
+    tf_status st = g ? TF_OK : TF_ERR_NOMEM;
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
         const job *j = &jobs[i];
         tf_table *tables[N_TABLES] = {draws_table(j->fit, err), parameters_table(j->fit, j->priors, err),
@@ -361,7 +358,7 @@ static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_pa
             if (!tables[k])
                 st = tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
         if (st == TF_OK)
-            st = tf_atomic_mkdirs(j->dir, &created[i], err);
+            st = tf_fileset_mkdir(g, j->dir, err);
         for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
             char path[4600];
             int n = snprintf(path, sizeof path, "%s/%s-%s.csv", j->dir, tf_model_name(j->model),
@@ -371,26 +368,15 @@ static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_pa
                                   "the output path is too long");
                 break;
             }
-            if ((st = tf_atomic_open(path, survey_path, &files[n_open], err)) != TF_OK)
+            FILE *f;
+            if ((st = tf_fileset_open(g, path, survey_path, &f, err)) != TF_OK)
                 break;
-            n_open++;
-            st = tf_csv_write_stream(tables[k], tf_atomic_stream(files[n_open - 1]), path, err);
+            st = tf_csv_write_stream(tables[k], f, path, err);
         }
         for (size_t k = 0; k < N_TABLES; k++)
             tf_table_free(tables[k]);
     }
-    if (st == TF_OK) {
-        st = tf_atomic_commit_all(files, n_open, err);
-    } else {
-        for (size_t k = 0; k < n_open; k++)
-            tf_atomic_abort(files[k]);
-    }
-    if (st != TF_OK && created)
-        for (size_t i = n_jobs; i-- > 0;)
-            tf_atomic_rmdirs(jobs[i].dir, created[i]);
-    free(files);
-    free(created);
-    return st;
+    return tf_fileset_finish(g, st, err);
 }
 
 static void print_summary(const job *j, FILE *out)

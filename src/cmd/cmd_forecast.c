@@ -14,10 +14,10 @@
 #include "analysis/analysis.h"
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "cmd/fileset.h"
 #include "cmd/messages.h"
 #include "cmd/setup.h"
 #include "cmd/signals.h"
-#include "export/atomic.h"
 #include "export/csv_out.h"
 #include "export/projection_tables.h"
 #include "export/table.h"
@@ -530,43 +530,31 @@ static tf_status build_tables(const options *o, job *j, tf_error *err)
     return st;
 }
 
-/* Writes every population's tables as one group (tf_atomic_commit_all): either every file is
+/* Writes every population's tables as one group (fileset.h): either every file is
  * replaced or none is, and folders this call made are taken away again on failure. Signals wait
  * until the renames are over, so that a late Ctrl-C cannot stop the group half-way. */
 static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
 {
-    size_t n_files = n_jobs * N_TABLES, n_open = 0;
-    tf_atomic **files = calloc(n_files, sizeof *files);
-    size_t *created = calloc(n_jobs, sizeof *created);
-    tf_status st = files && created ? TF_OK : tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_TABLES, err);
+    tf_status st = g ? TF_OK : TF_ERR_NOMEM;
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
         const job *j = &jobs[i];
-        st = tf_atomic_mkdirs(j->dir, &created[i], err);
+        st = tf_fileset_mkdir(g, j->dir, err);
         for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
             char name[128], path[4300];
             tf_csv_file_name(tf_table_name(j->tables[k]), name, sizeof name);
             snprintf(path, sizeof path, "%s/%s", j->dir, name);
-            if ((st = tf_atomic_open(path, survey_path, &files[n_open], err)) != TF_OK)
+            FILE *f;
+            if ((st = tf_fileset_open(g, path, survey_path, &f, err)) != TF_OK)
                 break;
-            n_open++;
             /* Write errors stay on the stream and are reported by the commit, with errno. */
-            tf_csv_write_stream(j->tables[k], tf_atomic_stream(files[n_open - 1]), path, NULL);
+            tf_csv_write_stream(j->tables[k], f, path, NULL);
         }
     }
     sigset_t old_mask;
     tf_signals_hold(&old_mask);
-    if (st == TF_OK) {
-        st = tf_atomic_commit_all(files, n_open, err);
-    } else {
-        for (size_t k = 0; k < n_open; k++)
-            tf_atomic_abort(files[k]);
-    }
-    if (st != TF_OK && created)
-        for (size_t i = n_jobs; i-- > 0;)
-            tf_atomic_rmdirs(jobs[i].dir, created[i]);
+    st = tf_fileset_finish(g, st, err);
     tf_signals_release(&old_mask);
-    free(files);
-    free(created);
     return st;
 }
 

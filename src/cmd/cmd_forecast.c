@@ -892,19 +892,49 @@ static int run_fixed(const options *o, const tf_project_options *po)
     return rc;
 }
 
-/* The populations a posterior forecast covers: --population, else every one; --start gives one
- * abundance, so it needs a single population. */
-static tf_status pick_populations(const options *o, const tf_survey *sv, const tf_series **only, tf_error *err)
+/* Reads the survey of a posterior forecast and the populations it covers: --population, else
+ * every one (*only NULL); --start gives one abundance, so it needs a single population. Returns
+ * an exit code. */
+static int read_populations(const options *o, tf_survey **sv, const tf_series **only, tf_error *err)
 {
     *only = NULL;
+    if (tf_args_read_survey(o->survey_path, sv, err) != TF_OK)
+        return TF_EXIT_INPUT;
     if (!o->population && isnan(o->start))
-        return TF_OK;
-    if (!(*only = tf_args_pick_series(sv, o->population, o->survey_path, err))) {
+        return TF_EXIT_OK;
+    if (!(*only = tf_args_pick_series(*sv, o->population, o->survey_path, err))) {
         if (!o->population)
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--start gives the abundance of one population");
-        return TF_ERR_USAGE;
+        return TF_EXIT_USAGE;
     }
-    return TF_OK;
+    return TF_EXIT_OK;
+}
+
+/* The sampler settings given on the command line, over the defaults in fit: chains, thinning,
+ * warm-up and iterations (by default the kept draws of fit at the thinning given). */
+static tf_status sampler_settings(const options *o, tf_pmmh_options *fit, tf_error *err)
+{
+    if (o->chains)
+        fit->n_chains = o->chains;
+    if (o->thin)
+        fit->thin = o->thin;
+    if (o->warmup)
+        fit->n_warmup = o->warmup;
+    size_t iterations = o->iterations ? o->iterations : fit->n_iter * fit->thin;
+    return tf_args_kept_draws(iterations, fit->thin, &fit->n_iter, err);
+}
+
+/* The end of a posterior forecast: prints err unless the run succeeded or was interrupted (finish
+ * prints its own errors, and the caller says when the run was interrupted), frees the jobs, and
+ * returns rc. */
+static int end_run(int rc, const tf_error *err, job *jobs, size_t n_jobs)
+{
+    if (rc != TF_EXIT_OK && rc != TF_EXIT_INTERRUPTED && tf_error_status(err) != TF_OK)
+        tf_error_print(err, PROG, stderr);
+    for (size_t i = 0; jobs && i < n_jobs; i++)
+        job_clear(&jobs[i]);
+    free(jobs);
+    return rc;
 }
 
 static int run_model(const options *o, const tf_project_options *po)
@@ -918,29 +948,19 @@ static int run_model(const options *o, const tf_project_options *po)
     tf_pmmh_options opt = tf_pmmh_default_options();
     opt.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
     opt.seed = o->seed;
-    if (o->chains)
-        opt.n_chains = o->chains;
-    if (o->thin)
-        opt.thin = o->thin;
-    if (o->warmup)
-        opt.n_warmup = o->warmup;
     if (o->particles)
         opt.n_particles = o->particles;
-    size_t iterations = o->iterations ? o->iterations : opt.n_iter * opt.thin;
-    if (tf_args_kept_draws(iterations, opt.thin, &opt.n_iter, &err) != TF_OK)
+    if (sampler_settings(o, &opt, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
     int rc = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
     job *jobs = NULL;
     size_t n_jobs = 0;
-    const tf_series *only = NULL;
-    if (tf_args_read_survey(o->survey_path, &sv, &err) != TF_OK) {
-        rc = TF_EXIT_INPUT;
-        goto out;
-    }
-    if (pick_populations(o, sv, &only, &err) != TF_OK) {
-        rc = TF_EXIT_USAGE;
+    const tf_series *only;
+    int code = read_populations(o, &sv, &only, &err);
+    if (code != TF_EXIT_OK) {
+        rc = code;
         goto out;
     }
     n_jobs = only ? 1 : tf_survey_n_series(sv);
@@ -1000,12 +1020,7 @@ static int run_model(const options *o, const tf_project_options *po)
     }
     rc = finish(o, jobs, n_jobs);
 out:
-    /* finish prints its own errors, and the caller says when the run was interrupted. */
-    if (rc != TF_EXIT_OK && rc != TF_EXIT_INTERRUPTED && tf_error_status(&err) != TF_OK)
-        tf_error_print(&err, PROG, stderr);
-    for (size_t i = 0; jobs && i < n_jobs; i++)
-        job_clear(&jobs[i]);
-    free(jobs);
+    rc = end_run(rc, &err, jobs, n_jobs);
     tf_survey_free(sv);
     return rc;
 }
@@ -1053,14 +1068,7 @@ static int run_average(const options *o, const tf_project_options *po)
     ao.project = *po;
     ao.seed = o->seed;
     ao.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
-    if (o->chains)
-        ao.fit.n_chains = o->chains;
-    if (o->thin)
-        ao.fit.thin = o->thin;
-    if (o->warmup)
-        ao.fit.n_warmup = o->warmup;
-    size_t iterations = o->iterations ? o->iterations : ao.fit.n_iter * ao.fit.thin;
-    tf_args_kept_draws(iterations, ao.fit.thin, &ao.fit.n_iter, &err);
+    sampler_settings(o, &ao.fit, &err);
     ao.fit.n_particles = ao.evidence.n_particles = o->particles;
     if (o->draws)
         ao.evidence.n_draws = o->draws;
@@ -1077,14 +1085,11 @@ static int run_average(const options *o, const tf_project_options *po)
     tf_analysis *a = NULL;
     job *jobs = NULL;
     size_t n_jobs = 0;
-    const tf_series *only = NULL;
+    const tf_series *only;
     tf_status st;
-    if (tf_args_read_survey(o->survey_path, &sv, &err) != TF_OK) {
-        rc = TF_EXIT_INPUT;
-        goto out;
-    }
-    if (pick_populations(o, sv, &only, &err) != TF_OK) {
-        rc = TF_EXIT_USAGE;
+    int code = read_populations(o, &sv, &only, &err);
+    if (code != TF_EXIT_OK) {
+        rc = code;
         goto out;
     }
     ao.population = only ? tf_series_label(only) : NULL;
@@ -1117,11 +1122,7 @@ static int run_average(const options *o, const tf_project_options *po)
     }
     rc = finish(o, jobs, n_jobs);
 out:
-    if (rc != TF_EXIT_OK && rc != TF_EXIT_INTERRUPTED && tf_error_status(&err) != TF_OK)
-        tf_error_print(&err, PROG, stderr);
-    for (size_t i = 0; jobs && i < n_jobs; i++)
-        job_clear(&jobs[i]);
-    free(jobs);
+    rc = end_run(rc, &err, jobs, n_jobs);
     tf_analysis_free(a);
     tf_survey_free(sv);
     return rc;

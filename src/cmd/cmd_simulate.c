@@ -156,6 +156,23 @@ static tf_status scheme_population(FILE *out, uint64_t seed, size_t i, const cha
                         "population %zu of the scheme drew no usable series", i + 1);
 }
 
+/* Writes the finished survey text: to output, replaced only once complete (write errors are
+ * reported by the commit), or to standard output when output is NULL or "-". */
+static tf_status write_out(const char *output, const char *text, size_t len, tf_error *err)
+{
+    if (output && strcmp(output, "-")) {
+        tf_atomic *of;
+        tf_status st = tf_atomic_open(output, NULL, &of, err);
+        if (st != TF_OK)
+            return st;
+        fwrite(text, 1, len, tf_atomic_stream(of));
+        return tf_atomic_commit(of, err);
+    }
+    if (fwrite(text, 1, len, stdout) != len || fflush(stdout) != 0)
+        return tf_error_add(err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+    return TF_OK;
+}
+
 /* The whole scheme, made in memory and read back by the importer before anything is written. */
 static int write_scheme(size_t n_pop, uint64_t seed, const char *output)
 {
@@ -164,7 +181,6 @@ static int write_scheme(size_t n_pop, uint64_t seed, const char *output)
     char *text = NULL;
     size_t len = 0;
     int status = TF_EXIT_FAIL;
-    tf_atomic *of = NULL;
     FILE *mem = open_memstream(&text, &len);
     if (!mem) {
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
@@ -195,25 +211,13 @@ static int write_scheme(size_t n_pop, uint64_t seed, const char *output)
         goto out;
     }
     tf_survey_free(sv);
-    if (output && strcmp(output, "-")) {
-        if (tf_atomic_open(output, NULL, &of, &err) != TF_OK)
-            goto out;
-        fwrite(text, 1, len, tf_atomic_stream(of));
-        tf_atomic *done = of;
-        of = NULL;
-        if (tf_atomic_commit(done, &err) != TF_OK)
-            goto out;
-    } else if (fwrite(text, 1, len, stdout) != len || fflush(stdout) != 0) {
-        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
-        goto out;
-    }
-    status = TF_EXIT_OK;
+    if (write_out(output, text, len, &err) == TF_OK)
+        status = TF_EXIT_OK;
 out:
     if (status != TF_EXIT_OK)
         tf_error_print(&err, "tallyfit " CMD, stderr);
     if (mem)
         fclose(mem);
-    tf_atomic_abort(of);
     free(text);
     return status;
 }
@@ -321,7 +325,6 @@ int tf_cmd_simulate(int argc, char **argv)
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;
     double *effort = NULL, *x = NULL, *y = NULL;
-    tf_atomic *of = NULL;
     FILE *mem = NULL;
     char *text = NULL;
     size_t text_len = 0;
@@ -396,25 +399,11 @@ int tf_cmd_simulate(int argc, char **argv)
         goto out;
     }
     tf_survey_free(sv);
-
-    if (output && strcmp(output, "-")) {
-        if (tf_atomic_open(output, NULL, &of, &err) != TF_OK)
-            goto out;
-        /* Write errors are reported by the commit. */
-        fwrite(text, 1, text_len, tf_atomic_stream(of));
-        tf_atomic *done = of;
-        of = NULL;
-        if (tf_atomic_commit(done, &err) != TF_OK)
-            goto out;
-    } else if (fwrite(text, 1, text_len, stdout) != text_len || fflush(stdout) != 0) {
-        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
-        goto out;
-    }
-    status = TF_EXIT_OK;
+    if (write_out(output, text, text_len, &err) == TF_OK)
+        status = TF_EXIT_OK;
 out:
     if (status != TF_EXIT_OK)
         tf_error_print(&err, "tallyfit " CMD, stderr);
-    tf_atomic_abort(of);
     if (mem)
         fclose(mem);
     free(text);

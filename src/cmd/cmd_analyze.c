@@ -313,8 +313,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
                        "          %s/%s/<population>/ (each population's tables)\n",
                        xlsx, root, TF_BATCH_SUMMARY_CSV, root, TF_BATCH_POP_DIR);
             }
-            if (fflush(stdout) != 0) {
-                tf_error_add(err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+            if (tf_messages_flush(err) != TF_OK) {
                 code = TF_EXIT_FAIL;
             } else if (n_failed + n_bad) {
                 code = TF_EXIT_FAIL;
@@ -527,10 +526,8 @@ static int analyze(int argc, char **argv, int rank, int size)
         printf("workbook: %s\ntables:   %s/ (%zu CSV files, listed in %s)\n", xlsx, csv_dir, tf_report_n_tables(r),
                TF_REPORT_CONTENTS_CSV);
     }
-    if (fflush(stdout) != 0) {
-        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+    if (tf_messages_flush(&err) != TF_OK)
         goto out;
-    }
     status = TF_EXIT_OK;
 out:
     tf_signals_restore(&saved);

@@ -381,10 +381,8 @@ int tf_cmd_compare(int argc, char **argv)
         }
         print_warnings(comps[i]);
     }
-    if (fflush(stdout) != 0) {
-        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+    if (tf_messages_flush(&err) != TF_OK)
         goto out;
-    }
     status = TF_EXIT_OK;
 out:
     tf_signals_restore(&saved);

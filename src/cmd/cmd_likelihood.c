@@ -172,10 +172,8 @@ int tf_cmd_likelihood(int argc, char **argv)
             printf("%.6f,NA,%zu,%zu\n", loglik, n_particles, n_repeats);
         }
     }
-    if (fflush(stdout) != 0) {
-        tf_error_add(&err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+    if (tf_messages_flush(&err) != TF_OK)
         goto out;
-    }
     status = TF_EXIT_OK;
 out:
     if (status != TF_EXIT_OK)

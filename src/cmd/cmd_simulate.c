@@ -168,9 +168,9 @@ static tf_status write_out(const char *output, const char *text, size_t len, tf_
         fwrite(text, 1, len, tf_atomic_stream(of));
         return tf_atomic_commit(of, err);
     }
-    if (fwrite(text, 1, len, stdout) != len || fflush(stdout) != 0)
+    if (fwrite(text, 1, len, stdout) != len)
         return tf_error_add(err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
-    return TF_OK;
+    return tf_messages_flush(err);
 }
 
 /* The whole scheme, made in memory and read back by the importer before anything is written. */

@@ -17,6 +17,13 @@ void tf_messages_outcome(const char *prog, int code, const tf_error *err, FILE *
         tf_error_print(err, prog, out);
 }
 
+tf_status tf_messages_flush(tf_error *err)
+{
+    if (fflush(stdout) != 0)
+        return tf_error_add(err, TF_ERR_IO, NULL, 0, 0, NULL, "cannot write to standard output");
+    return TF_OK;
+}
+
 void tf_messages_analysis(void *ctx, const tf_analysis_event *e)
 {
     const char *label = e->label[0] ? e->label : (const char *)ctx;

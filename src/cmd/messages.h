@@ -16,6 +16,10 @@ int tf_messages_usage(const char *prog, const tf_error *err);
  * nothing was written, for any other code but TF_EXIT_OK the messages of err. */
 void tf_messages_outcome(const char *prog, int code, const tf_error *err, FILE *out);
 
+/* Flushes standard output at the end of a command's results: TF_ERR_IO ("cannot write to standard
+ * output") when they could not all be written. */
+tf_status tf_messages_flush(tf_error *err);
+
 /* A progress callback of tf_analysis_run (analysis.h) for a terminal: one line per population
  * started, model done, projection and population done. ctx is the survey's name (const char *),
  * shown for a population without a label. */

@@ -159,6 +159,27 @@ tf_status tf_args_split_names(const char *opt, const char *text, char *buf, size
     }
 }
 
+tf_status tf_args_model_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
+                              size_t max, size_t *n, int *all, int growth, tf_error *err)
+{
+    *n = 0;
+    *all = !strcmp(text, "all");
+    if (*all)
+        return TF_OK;
+    tf_status st = tf_args_split_names(opt, text, buf, size, names, max, n, err);
+    for (size_t i = 0; st == TF_OK && i < *n; i++)
+        if (growth ? !tf_model_find_growth(names[i]) : !tf_model_find_obs(names[i])) {
+            char known[256], hint[300];
+            if (growth)
+                tf_model_list_growth(known, sizeof known);
+            else
+                tf_model_list_obs(known, sizeof known);
+            snprintf(hint, sizeof hint, "known: %s, or all", known);
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: unknown model '%s'", opt, names[i]);
+        }
+    return st;
+}
+
 /* Decimal digits only, into an unsigned 64-bit value; 0 on overflow or anything else. */
 static int unsigned_of(const char *text, uint64_t *out)
 {
@@ -237,7 +258,8 @@ const char *tf_args_survey_path(int argc, char **argv, int first, tf_error *err)
     if (first >= argc)
         return NULL;
     if (first + 1 < argc)
-        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'", argv[first + 1]);
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give one survey file", "unexpected argument '%s'",
+                     argv[first + 1]);
     return argv[first];
 }
 
@@ -462,7 +484,8 @@ tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const 
     int n = out_dir ? snprintf(dir, size, several ? "%s/%s" : "%s", out_dir, sub)
                     : snprintf(dir, size, several ? "output/%s/%s" : "output/%s", base, sub);
     if (n < 0 || (size_t)n >= size)
-        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o directory", "the output path is too long");
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o directory",
+                            "the output path is too long");
     return TF_OK;
 }
 

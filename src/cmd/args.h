@@ -51,6 +51,12 @@ tf_status tf_args_parse_doubles(const char *opt, const char *text, double *out, 
 tf_status tf_args_split_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
                               size_t max, size_t *n, tf_error *err);
 
+/* A --models / --obs list of candidate models: "all" (*all = 1, *n = 0), or a comma list split as
+ * tf_args_split_names (at most max) whose every name is a known growth model (growth non-zero)
+ * or counting-error model; an unknown one is TF_ERR_USAGE with the known names in the hint. */
+tf_status tf_args_model_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
+                              size_t max, size_t *n, int *all, int growth, tf_error *err);
+
 /* A whole number in [min, max] (decimal digits, optional sign for long). */
 tf_status tf_args_parse_size(const char *opt, const char *text, size_t min, size_t max, size_t *out,
                              tf_error *err);

@@ -102,50 +102,6 @@ static void help(FILE *out, const tf_analysis_options *d)
             d->fit.thin, d->fit.n_warmup, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
 }
 
-/* Splits the comma list text (copied into buf) into names; "all" gives *is_all = 1. Each name
- * must be known to find (TF_ERR_USAGE with the known names in the hint). */
-static tf_status split_names(const char *opt, const char *text, char *buf, size_t size, const char **names, size_t *n,
-                             int *is_all, int growth, tf_error *err)
-{
-    *n = 0;
-    *is_all = 0;
-    if (snprintf(buf, size, "%s", text) >= (int)size)
-        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: the list is too long", opt);
-    if (!strcmp(buf, "all")) {
-        *is_all = 1;
-        return TF_OK;
-    }
-    for (char *p = buf;;) {
-        char *end = strchr(p, ',');
-        if (end)
-            *end = '\0';
-        while (*p == ' ')
-            p++;
-        size_t len = strlen(p);
-        while (len && p[len - 1] == ' ')
-            p[--len] = '\0';
-        if (!len)
-            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. ricker,gompertz", "%s: an empty name in '%s'", opt,
-                                text);
-        if (growth ? !tf_model_find_growth(p) : !tf_model_find_obs(p)) {
-            char known[256], hint[300];
-            if (growth)
-                tf_model_list_growth(known, sizeof known);
-            else
-                tf_model_list_obs(known, sizeof known);
-            snprintf(hint, sizeof hint, "known: %s, or all", known);
-            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: unknown model '%s'", opt, p);
-        }
-        if (*n >= TF_ANALYSIS_MAX_NAMES)
-            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: too many names", opt);
-        names[(*n)++] = p;
-        if (!end)
-            break;
-        p = end + 1;
-    }
-    return TF_OK;
-}
-
 /* The plain lines on one population. */
 static void print_population(const tf_analysis *a, size_t i, const char *title, FILE *out)
 {
@@ -391,12 +347,12 @@ static int analyze(int argc, char **argv, int rank, int size)
             break;
         case OPT_POP: opt.population = optarg; break;
         case OPT_MODELS:
-            split_names("--models", optarg, growth_buf, sizeof growth_buf, opt.growth, &opt.n_growth, &all, 1, &err);
-            if (all)
-                opt.n_growth = 0;
+            tf_args_model_names("--models", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
+                                &opt.n_growth, &all, 1, &err);
             break;
         case OPT_OBS:
-            split_names("--obs", optarg, obs_buf, sizeof obs_buf, opt.obs, &opt.n_obs, &opt.obs_auto, 0, &err);
+            tf_args_model_names("--obs", optarg, obs_buf, sizeof obs_buf, opt.obs, TF_ANALYSIS_MAX_NAMES, &opt.n_obs,
+                                &opt.obs_auto, 0, &err);
             break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
         case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;

@@ -72,38 +72,6 @@ static void help(FILE *out)
             growth, obs, (unsigned long long)d.seed, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, e.n_draws);
 }
 
-/* Splits "a,b,c" into names (pointers into buf, a copy of text). Usage errors for empty items
- * and too many names. */
-static tf_status split_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
-                             size_t *n, tf_error *err)
-{
-    *n = 0;
-    if (strlen(text) >= size)
-        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: the list is too long", opt);
-    strcpy(buf, text);
-    char *p = buf;
-    for (;;) {
-        char *end = strchr(p, ',');
-        if (end)
-            *end = '\0';
-        while (*p == ' ')
-            p++;
-        size_t len = strlen(p);
-        while (len && p[len - 1] == ' ')
-            p[--len] = '\0';
-        if (!len)
-            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. ricker,gompertz", "%s: an empty name in '%s'",
-                                opt, text);
-        if (*n >= MAX_NAMES)
-            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "%s: too many names", opt);
-        names[(*n)++] = p;
-        if (!end)
-            break;
-        p = end + 1;
-    }
-    return TF_OK;
-}
-
 static void show_progress(void *ctx, size_t index, const char *model, tf_compare_event ev, double seconds)
 {
     (void)index;
@@ -242,9 +210,12 @@ int tf_cmd_compare(int argc, char **argv)
     while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
         switch (c) {
         case OPT_MODELS:
-            split_names("--models", optarg, growth_buf, sizeof growth_buf, growth, &opt.n_growth, &err);
+            tf_args_split_names("--models", optarg, growth_buf, sizeof growth_buf, growth, MAX_NAMES, &opt.n_growth,
+                                &err);
             break;
-        case OPT_OBS: split_names("--obs", optarg, obs_buf, sizeof obs_buf, obs, &opt.n_obs, &err); break;
+        case OPT_OBS:
+            tf_args_split_names("--obs", optarg, obs_buf, sizeof obs_buf, obs, MAX_NAMES, &opt.n_obs, &err);
+            break;
         case OPT_POP: population = optarg; break;
         case 'o': out_dir = optarg; break;
         case OPT_WEIGHTS: tf_args_parse_pairs("--model-weights", optarg, &weights, &err); break;

@@ -1025,28 +1025,6 @@ out:
     return rc;
 }
 
-/* A --model or --obs list of --average: names known to find, or "all". */
-static tf_status candidate_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
-                                 size_t *n, int *all, int growth, tf_error *err)
-{
-    *n = 0;
-    *all = !strcmp(text, "all");
-    if (*all)
-        return TF_OK;
-    tf_status st = tf_args_split_names(opt, text, buf, size, names, TF_ANALYSIS_MAX_NAMES, n, err);
-    for (size_t i = 0; st == TF_OK && i < *n; i++)
-        if (growth ? !tf_model_find_growth(names[i]) : !tf_model_find_obs(names[i])) {
-            char known[256], hint[300];
-            if (growth)
-                tf_model_list_growth(known, sizeof known);
-            else
-                tf_model_list_obs(known, sizeof known);
-            snprintf(hint, sizeof hint, "known: %s, or all", known);
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s: unknown model '%s'", opt, names[i]);
-        }
-    return st;
-}
-
 static int run_average(const options *o, const tf_project_options *po)
 {
     tf_error err;
@@ -1058,13 +1036,12 @@ static int run_average(const options *o, const tf_project_options *po)
     }
     char growth_buf[1024], obs_buf[1024];
     int all = 0;
-    if (o->model &&
-        candidate_names("--model", o->model, growth_buf, sizeof growth_buf, ao.growth, &ao.n_growth, &all, 1, &err) ==
-            TF_OK &&
-        all)
-        ao.n_growth = 0;
+    if (o->model)
+        tf_args_model_names("--model", o->model, growth_buf, sizeof growth_buf, ao.growth, TF_ANALYSIS_MAX_NAMES,
+                            &ao.n_growth, &all, 1, &err);
     if (o->obs)
-        candidate_names("--obs", o->obs, obs_buf, sizeof obs_buf, ao.obs, &ao.n_obs, &ao.obs_auto, 0, &err);
+        tf_args_model_names("--obs", o->obs, obs_buf, sizeof obs_buf, ao.obs, TF_ANALYSIS_MAX_NAMES, &ao.n_obs,
+                            &ao.obs_auto, 0, &err);
     ao.project = *po;
     ao.seed = o->seed;
     ao.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);

@@ -200,6 +200,74 @@ START_TEST(names_split)
 }
 END_TEST
 
+/* --models / --obs lists: "all", known names, and an unknown name refused with the known ones. */
+START_TEST(model_names_known_or_all)
+{
+    tf_error err;
+    tf_error_init(&err);
+    char buf[64];
+    const char *names[4];
+    size_t n = 9;
+    int all = 0;
+    ck_assert_int_eq(tf_args_model_names("--models", "all", buf, sizeof buf, names, 4, &n, &all, 1, &err), TF_OK);
+    ck_assert(all && n == 0);
+    ck_assert_int_eq(tf_args_model_names("--models", "ricker, gompertz", buf, sizeof buf, names, 4, &n, &all, 1, &err),
+                     TF_OK);
+    ck_assert(!all && n == 2);
+    ck_assert_str_eq(names[1], "gompertz");
+    ck_assert_int_eq(tf_args_model_names("--obs", "poisson,negbin", buf, sizeof buf, names, 4, &n, &all, 0, &err), TF_OK);
+    ck_assert_uint_eq(n, 2);
+    /* A growth model is not a counting-error model. */
+    ck_assert_int_eq(tf_args_model_names("--obs", "poisson,ricker", buf, sizeof buf, names, 4, &n, &all, 0, &err),
+                     TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "--obs: unknown model 'ricker'"));
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "negbin"));
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_model_names("--models", "ricker,,gompertz", buf, sizeof buf, names, 4, &n, &all, 1, &err),
+                     TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "empty name"));
+}
+END_TEST
+
+/* The survey operand, the kept draws and the output folder of a population. */
+START_TEST(operand_draws_and_folders)
+{
+    tf_error err;
+    tf_error_init(&err);
+    char *argv[] = {"fit", "a.csv", "b.csv", NULL};
+    ck_assert_ptr_null(tf_args_survey_path(1, argv, 1, &err));
+    ck_assert_str_eq(tf_args_survey_path(2, argv, 1, &err), "a.csv");
+    ck_assert_uint_eq(err.n_items, 0);
+    ck_assert_str_eq(tf_args_survey_path(3, argv, 1, &err), "a.csv");
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "unexpected argument 'b.csv'"));
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_no_survey("fit", &err), TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "tallyfit fit --help"));
+
+    size_t n_iter = 0;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_kept_draws(10, 4, &n_iter, &err), TF_OK);
+    ck_assert_uint_eq(n_iter, 2);
+    ck_assert_int_eq(tf_args_kept_draws(3, 4, &n_iter, &err), TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "--iterations 3 with --thin 4 keeps no draw"));
+    ck_assert_uint_ge(tf_args_default_threads(SIZE_MAX), 1);
+    ck_assert_uint_eq(tf_args_default_threads(1), 1);
+
+    char dir[32];
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_output_dir(dir, sizeof dir, NULL, "heron", "east 1", 1, &err), TF_OK);
+    ck_assert_str_eq(dir, "output/heron/east_1");
+    ck_assert_int_eq(tf_args_output_dir(dir, sizeof dir, NULL, "heron", "east", 0, &err), TF_OK);
+    ck_assert_str_eq(dir, "output/heron");
+    ck_assert_int_eq(tf_args_output_dir(dir, sizeof dir, "res", "heron", "", 1, &err), TF_OK);
+    ck_assert_str_eq(dir, "res/_");
+    /* Too long for the buffer: refused, not cut. */
+    ck_assert_int_eq(tf_args_output_dir(dir, sizeof dir, "a-folder-name-of-thirty-two-byte", "s", "x", 0, &err),
+                     TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "too long"));
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("args");
@@ -210,6 +278,8 @@ static Suite *make_suite(void)
     tcase_add_test(tc, set_binds_to_the_model);
     tcase_add_test(tc, output_names_are_portable);
     tcase_add_test(tc, names_split);
+    tcase_add_test(tc, model_names_known_or_all);
+    tcase_add_test(tc, operand_draws_and_folders);
     suite_add_tcase(s, tc);
     return s;
 }

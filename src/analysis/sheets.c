@@ -53,6 +53,14 @@ static void table_name(char *buf, size_t size, const tf_analysis *a, const tf_an
     snprintf(buf, size, "%.*s %s", (int)n, l, role);
 }
 
+/* An empty table of population p for role, named by table_name; NULL when out of memory (in err). */
+static tf_table *new_table(const tf_analysis *a, const tf_analysis_pop *p, const char *role, tf_error *err)
+{
+    char name[128];
+    table_name(name, sizeof name, a, p, role);
+    return tf_table_new(name, err);
+}
+
 /* "Gompertz + Poisson". */
 static void model_label(const tf_analysis_model *m, char *buf, size_t size)
 {
@@ -130,12 +138,10 @@ static tf_status add_cautions(tf_table *t, tf_error *err)
 static tf_status counts_sheet(const tf_analysis *a, const tf_analysis_pop *p, tf_report *r, tf_error *err)
 {
     tf_status st;
-    char name[128];
-    table_name(name, sizeof name, a, p, "counts");
     const tf_series *s = tf_analysis_pop_series(p);
     int per_effort = tf_sheets_effort_varies(s);
     const char *unit = per_effort ? "animals per unit of effort" : "animals";
-    tf_table *t = tf_table_new(name, err);
+    tf_table *t = new_table(a, p, "counts", err);
     if (!t)
         return tf_error_status(err);
     size_t c_year, c_count, c_effort = 0, c_rate = 0, c_med, c_q25, c_q75, c_lo, c_hi;
@@ -318,9 +324,7 @@ static tf_status change_sheet(const tf_analysis *a, const tf_analysis_pop *p, co
                               tf_error *err)
 {
     tf_status st;
-    char name[128];
-    table_name(name, sizeof name, a, p, "change");
-    tf_table *t = tf_table_new(name, err);
+    tf_table *t = new_table(a, p, "change", err);
     if (!t)
         return tf_error_status(err);
     size_t c_model, c_prob, c_med, c_lo, c_hi, c_dec;
@@ -371,9 +375,7 @@ static tf_status parameters_sheet(const tf_analysis *a, const tf_analysis_pop *p
                                   tf_error *err)
 {
     tf_status st;
-    char name[128];
-    table_name(name, sizeof name, a, p, "parameters");
-    tf_table *t = tf_table_new(name, err);
+    tf_table *t = new_table(a, p, "parameters", err);
     if (!t)
         return tf_error_status(err);
     size_t c_model, c_par, c_mean, c_sd, c_lo, c_med, c_hi, c_rhat, c_bulk, c_tail, c_mcse;
@@ -431,9 +433,8 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
                                    tf_report *r, tf_error *err)
 {
     tf_status st;
-    char name[128], legend[160];
-    table_name(name, sizeof name, a, p, "diagnostics");
-    tf_table *t = tf_table_new(name, err);
+    char legend[160];
+    tf_table *t = new_table(a, p, "diagnostics", err);
     if (!t)
         return tf_error_status(err);
     size_t c_model, c_chains, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_k,
@@ -535,9 +536,7 @@ static tf_status draws_sheet(const tf_analysis *a, const tf_analysis_pop *p, con
                              tf_error *err)
 {
     tf_status st;
-    char name[128];
-    table_name(name, sizeof name, a, p, "draws");
-    tf_table *t = tf_table_new(name, err);
+    tf_table *t = new_table(a, p, "draws", err);
     if (!t)
         return tf_error_status(err);
     /* One column per parameter name, in order of first appearance over the models. */

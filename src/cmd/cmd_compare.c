@@ -127,7 +127,7 @@ static void print_table(const tf_comparison *c, FILE *out)
         double two = -2 * tf_comparison_figures(c, second)->log_bf, se = 2 * tf_comparison_figures(c, second)->log_bf_se;
         fprintf(out,
                 "  %s is favoured over %s with 2 ln B = %.2f (Monte Carlo se %.2f): on the Kass & Raftery (1995)\n"
-                "  scale that is %s evidence.\n",
+                "  scale that evidence is %s.\n",
                 tf_comparison_name(c, best), tf_comparison_name(c, second), two, se,
                 tf_compare_kass_raftery(two));
     }

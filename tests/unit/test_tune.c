@@ -156,7 +156,7 @@ static Suite *make_suite(void)
     TCase *tc = tcase_create("particles");
     tcase_add_checked_fixture(tc, setup, teardown);
     tcase_set_timeout(tc, 60);
-    tcase_add_test(tc, spread_halves_with_four_times_the_particles);
+    TF_ADD_STATISTICAL_TEST(tc, spread_halves_with_four_times_the_particles);
     tcase_add_test(tc, correlated_estimates_differ_less);
     tcase_add_test(tc, tuning_reaches_the_target);
     tcase_add_test(tc, tuning_never_measures_above_a_count_that_reached);

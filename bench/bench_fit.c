@@ -393,7 +393,7 @@ static int compare_exact(void)
                "warm-up, same adaptation, 2 threads each\n",
                strrchr(file, '/') + 1, tf_series_n_years(s), d.n_chains, d.n_iter, d.thin, d.n_warmup);
     if (ok)
-        printf("%-8s %4s %6s %7s %8s %6s %6s %9s\n", "sampler", "seed", "N", "time_s", "ess_bulk", "rhat",
+        printf("%-8s %4s %6s %5s %7s %8s %6s %6s %9s\n", "sampler", "seed", "N", "sd", "time_s", "ess_bulk", "rhat",
                "accept", "ess/s");
     double log_ratio = 0, log_ess_ratio = 0, sum_exact = 0, sum_pmmh = 0;
     for (uint64_t seed = 1; ok && seed <= N_SEEDS; seed++) {
@@ -401,10 +401,10 @@ static int compare_exact(void)
         ok = run_exact(post, s, seed, &ex) && run_one(post, s, 0, seed, &pm);
         if (!ok)
             break;
-        printf("%-8s %4llu %6s %7.2f %8.0f %6.3f %6.3f %9.1f\n", "exact", (unsigned long long)seed, "-",
+        printf("%-8s %4llu %6s %5.2f %7.2f %8.0f %6.3f %6.3f %9.1f\n", "exact", (unsigned long long)seed, "-", 0.0,
                ex.seconds, ex.ess_bulk, ex.rhat, ex.acceptance, ex.ess_bulk / ex.seconds);
-        printf("%-8s %4llu %6zu %7.2f %8.0f %6.3f %6.3f %9.1f\n", "pmmh", (unsigned long long)seed,
-               pm.n_particles, pm.seconds, pm.ess_bulk, pm.rhat, pm.acceptance, pm.ess_bulk / pm.seconds);
+        printf("%-8s %4llu %6zu %5.2f %7.2f %8.0f %6.3f %6.3f %9.1f\n", "pmmh", (unsigned long long)seed,
+               pm.n_particles, pm.loglik_sd, pm.seconds, pm.ess_bulk, pm.rhat, pm.acceptance, pm.ess_bulk / pm.seconds);
         log_ratio += log((pm.ess_bulk / pm.seconds) / (ex.ess_bulk / ex.seconds));
         log_ess_ratio += log(pm.ess_bulk / ex.ess_bulk);
         sum_exact += ex.ess_bulk / ex.seconds;
@@ -418,8 +418,8 @@ static int compare_exact(void)
                sum_exact / N_SEEDS, sum_pmmh / N_SEEDS, N_SEEDS, ratio, 1.0 / ratio, ess_ratio);
         printf("bench_fit: meaning: PMMH yields %.2g %% of the effective samples per second that exact-likelihood "
                "sampling would, the price of estimating the likelihood by a particle filter where no closed form "
-               "exists (the ESS ratio is the part due to the estimate's noise, the rest the filter's cost per "
-               "step)\n",
+               "exists (the ESS ratio is the part due to the estimate's noise, sd column, the rest the filter's "
+               "cost per step)\n",
                100.0 * ratio);
     }
     tf_posterior_free(post);

@@ -59,6 +59,11 @@ tf_pmmh_options tf_pmmh_default_options(void)
 #define TUNE_POINTS 8
 /* Tries at drawing a chain start from the prior that has a finite likelihood estimate. */
 #define MAX_START_TRIES 200
+/* The most draws of each pilot's second half that the pilot summary keeps: the second half of
+ * the default warm-up's pilot (5000 / 4), so that the defaults keep every draw. A longer warm-up
+ * keeps every k-th, which leaves the median and covariance they give as good while peak memory
+ * stays flat in the warm-up (nothing of it is kept). */
+#define PILOT_MAX_KEPT 1250
 /* Prior draws used to scale the pilot's first proposal. */
 #define N_PRIOR_SCALE_DRAWS 2000
 /* The pilot's first proposal has 1/10 of the prior's spread in each coordinate: wide enough to
@@ -110,7 +115,8 @@ typedef struct {
     tf_rng rng;
     lik_ctx lik;
     tf_chain *chain;
-    double *pilot_z;          /* [n_pilot_kept][dim]: second half of the pilot */
+    double *pilot_z;          /* [n_pilot_kept][dim]: second half of the pilot, every
+                               * pilot_stride-th draw up to its last */
     double *pilot_lt;         /* [n_pilot_kept]: their log target (estimate + log prior) */
     atomic_size_t done;
     atomic_size_t accepted;   /* in the current phase */
@@ -126,7 +132,7 @@ struct run {
     tf_pmmh_options opt;
     const volatile sig_atomic_t *stop;
     size_t dim, n_years;
-    size_t n_pilot, n_pilot_kept, n_warm;
+    size_t n_pilot, n_pilot_kept, pilot_stride, n_warm;
     double *prior_cov;        /* pilot's first proposal */
     double *centre_z, *pilot_cov;
     /* Pooled pilot draws that look like posterior draws (see pilot_summary), as indices
@@ -219,8 +225,9 @@ static tf_status run_pilot(job *j)
         if (worker_stopped(r))
             return TF_ERR_INTERRUPTED;
         count_step(j, tf_chain_step(j->chain));
-        if (it >= r->n_pilot - r->n_pilot_kept) {
-            size_t row = it - (r->n_pilot - r->n_pilot_kept);
+        size_t back = r->n_pilot - 1 - it;   /* steps before the pilot's last */
+        if (back % r->pilot_stride == 0 && back / r->pilot_stride < r->n_pilot_kept) {
+            size_t row = r->n_pilot_kept - 1 - back / r->pilot_stride;
             memcpy(j->pilot_z + row * d, tf_chain_z(j->chain), d * sizeof(double));
             j->pilot_lt[row] = tf_chain_loglik(j->chain) + tf_chain_logprior(j->chain);
         }
@@ -554,6 +561,11 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     r.n_pilot_kept = r.n_pilot / 2;
     r.thin = opt->thin;
     r.total = opt->n_warmup + opt->n_iter * opt->thin;
+    r.pilot_stride = 1;
+    if (r.n_pilot_kept > PILOT_MAX_KEPT) {
+        r.pilot_stride = (r.n_pilot_kept + PILOT_MAX_KEPT - 1) / PILOT_MAX_KEPT;
+        r.n_pilot_kept /= r.pilot_stride;
+    }
     double t0 = now_seconds();
 
     tf_status st = TF_ERR_NOMEM;

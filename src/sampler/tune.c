@@ -171,6 +171,17 @@ tf_status tf_tune_particles(const tf_model *m, const tf_series *s, const double 
             break;
         if (next == n)
             break;
+        /* Only a smaller count can replace the smallest one that reached the target, so a count
+         * at or above it is not worth measuring. The extrapolation asks for one when a count
+         * far too small spreads much more than 1/sqrt(N) predicts (seen with the correlated
+         * method at 10 particles: it asked for 200000 after 100 had reached the target, which
+         * cost minutes for nothing). The answer then lies between this count and that one:
+         * bisect on the log scale, unless the saving would be small (as above). */
+        if (best.reached && next >= best.n_particles) {
+            next = clamp(sqrt((double)n * (double)best.n_particles), opt);
+            if (next <= n || (double)next > 0.7 * (double)best.n_particles)
+                break;
+        }
         n = next;
     }
     best.n_rounds = r.n_rounds;

@@ -64,7 +64,9 @@ void tf_tune_measure(tf_filter *f, const double *theta, const tf_tune_options *o
  * chain is, so a spread measured at the centre alone understates it. The spread falls like
  * 1/sqrt(N) (Pitt et al. 2012, section 3; Berard, Del Moral & Doucet 2014), so each round
  * extrapolates N' = N (sd / target)^2 from the last measurement and measures again at N', until
- * the measured spread is within 15 % of the target or max_rounds is used. A count whose
+ * the measured spread is within 15 % of the target or max_rounds is used. It never measures at
+ * or above the smallest count that already reached the target: when the extrapolation asks for
+ * that, it bisects (on the log scale) between the last count and that one. A count whose
  * estimates were not all finite is quadrupled. Writes *out. Errors: TF_ERR_NOMEM; TF_ERR_INVALID for bad options;
  * TF_ERR_INTERRUPTED when opt->stop was set.
  * Not reaching the target is not an error: out->reached says so. */

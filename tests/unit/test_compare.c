@@ -128,6 +128,13 @@ static tf_compare_options short_options(const char *const *growth, size_t n_grow
     o.evidence.n_draws = validate() ? 2000 : 1000;
     o.evidence.n_adapt_draws = 300;
     o.n_threads = 2;
+    /* Under valgrind, shorter: the cases that use these settings check which candidates are
+     * fitted or excluded and the probability arithmetic, not Monte Carlo accuracy. */
+    if (tf_test_valgrind()) {
+        o.fit.n_iter = o.fit.n_warmup = 150;
+        o.evidence.n_draws = 200;
+        o.evidence.n_adapt_draws = 100;
+    }
     return o;
 }
 
@@ -348,8 +355,10 @@ START_TEST(threads_do_not_change_results)
     size_t threads[2] = {1, 3};
     for (int k = 0; k < 2; k++) {
         tf_compare_options o = short_options(growth, 2, obs, 2, NULL);
-        o.fit.n_iter = o.fit.n_warmup = 200;
-        o.evidence.n_draws = 300;
+        if (!tf_test_valgrind()) {
+            o.fit.n_iter = o.fit.n_warmup = 200;
+            o.evidence.n_draws = 300;
+        }
         o.evidence.n_adapt_rounds = 1;
         o.n_threads = threads[k];
         o.weight_names = wn;
@@ -546,9 +555,9 @@ static Suite *make_suite(void)
     tcase_add_test(runs, bad_requests_are_refused);
     tcase_add_test(runs, threads_do_not_change_results);
     tcase_add_test(runs, theta_one_is_ricker_in_the_filter);
-    tcase_add_test(runs, theta_pinned_at_one_has_the_ricker_evidence);
-    tcase_add_test(runs, seeds_agree_within_reported_error);
-    tcase_add_test(runs, selection_on_simulated_surveys);
+    TF_ADD_STATISTICAL_TEST(runs, theta_pinned_at_one_has_the_ricker_evidence);
+    TF_ADD_STATISTICAL_TEST(runs, seeds_agree_within_reported_error);
+    TF_ADD_STATISTICAL_TEST(runs, selection_on_simulated_surveys);
     suite_add_tcase(s, runs);
     return s;
 }

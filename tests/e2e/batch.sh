@@ -14,7 +14,7 @@ tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 export SOURCE_DATE_EPOCH=1700000000
 # Short runs: this test is about the queue and the files, not about convergence.
-if [ "${TF_SANITIZE:-}" ]; then
+if [ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ]; then
   N=3
   FAST=(--iterations 80 --warmup 40 --draws 100 --particles 30 --years 10 --runs 100 --models exponential,ricker)
 else
@@ -91,8 +91,8 @@ PY
 
 # ---- 3 MPI processes (2 workers and the manager) ----
 M=${TALLYFIT_MPI:-}
-if [ "${TF_SANITIZE:-}" ]; then
-  echo "batch.sh: MPI part skipped under the sanitizers (make sanitize builds no MPI binary)"
+if [ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ]; then
+  echo "batch.sh: MPI part skipped under the sanitizers and valgrind (they run the plain binary only)"
 elif [ -x "$M" ] && command -v mpirun >/dev/null; then
   # As root (CI, containers) Open MPI must be told that this is meant.
   [ "$(id -u)" -eq 0 ] && export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1

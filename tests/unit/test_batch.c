@@ -74,6 +74,7 @@ typedef struct {
 
 static void setup(fixture *f)
 {
+    *f = (fixture){0};   /* options left out are zero, as the command's designated initialiser leaves them */
     snprintf(f->dir, sizeof f->dir, "/tmp/tf-test-batch-XXXXXX");
     ck_assert_ptr_nonnull(mkdtemp(f->dir));
     snprintf(f->path, sizeof f->path, "%s/s.csv", f->dir);

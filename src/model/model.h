@@ -48,7 +48,19 @@ typedef struct {
     double (*logpmf)(const double *p, double y, double mu);
     /* A count drawn given mu. */
     double (*draw)(const double *p, double mu, gsl_rng *rng);
+    /* What the count y at log effort log_effort says about the log-abundance x, as a Gaussian in
+     * x: log p(y | x) ~ const - prec (x - mode)^2 / 2 (Laplace's approximation about the mode of
+     * x -> log p(y | x), with prec = -d2/dx2 log p there; Tierney & Kadane 1986, JASA 81:82).
+     * Returns TF_PSEUDO_EXACT when log p(y | x) is exactly that Gaussian up to a constant,
+     * TF_PSEUDO_APPROX when it is an approximation, TF_PSEUDO_NONE (mode and prec untouched)
+     * when the count has no interior mode in x (a zero count under the count models) or the
+     * model cannot have it. The particle filter's guided proposal and the sampler's cheap
+     * screening likelihood are built on it; the derivations are in each model's file. */
+    int (*pseudo_obs)(const double *p, double y, double log_effort, double *mode, double *prec);
 } tf_obs_type;
+
+/* What tf_obs_type.pseudo_obs returns. */
+enum { TF_PSEUDO_NONE = 0, TF_PSEUDO_APPROX = 1, TF_PSEUDO_EXACT = 2 };
 
 /* The table of models (model/registry.c). NULL when the name is unknown. */
 const tf_growth_type *tf_model_find_growth(const char *name);

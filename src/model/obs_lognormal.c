@@ -52,6 +52,20 @@ static double draw(const double *p, double mu, gsl_rng *rng)
     return gsl_ran_lognormal(rng, log(mu), p[0]);
 }
 
+/* log p(y | x) = const - (ln y - ln E - x)^2 / (2 tau^2): exactly Gaussian in x with mode
+ * ln(y / E) and precision 1 / tau^2 (the density above), so a filter that uses it is fully
+ * adapted for a linear growth model (Pitt & Shephard 1999, JASA 94:590, section 3.2). A zero count
+ * is impossible here. */
+static int pseudo_obs(const double *p, double y, double log_effort, double *mode, double *prec)
+{
+    const double tau = p[0];
+    if (!(y > 0) || !(tau > 0))
+        return TF_PSEUDO_NONE;
+    *mode = log(y) - log_effort;
+    *prec = 1.0 / (tau * tau);
+    return TF_PSEUDO_EXACT;
+}
+
 const tf_obs_type tf_obs_lognormal = {
-    "lognormal", "log-normal", 1, names, lower, upper, 0, 1, 3, year_const, add_logweight, logpmf, draw,
+    "lognormal", "log-normal", 1, names, lower, upper, 0, 1, 3, year_const, add_logweight, logpmf, draw, pseudo_obs,
 };

@@ -139,7 +139,26 @@ static double draw(const double *p, double mu, gsl_rng *rng)
     return floor(gsl_ran_lognormal(rng, log(mu), p[0]) + 0.5);
 }
 
+/* As a function of x, P(y | x) = Phi((h - x) / tau) - Phi((l - x) / tau) with l = ln(y - 1/2) - ln E,
+ * h = ln(y + 1/2) - ln E: the density of x - U at 0, U uniform on [l, h], convolved with the
+ * normal of sd tau, i.e. the likelihood of a normal observation of x blurred by a uniform of width
+ * w = h - l. Its Gaussian approximation matches the two moments: mode (l + h) / 2 and variance
+ * tau^2 + w^2 / 12 (the variance of the uniform added to the normal's; moment matching, common
+ * practice, no source). For y >= 1 this tends to the continuous log-normal's ln(y / E), 1 / tau^2
+ * as y grows (w ~ 1 / y); for small counts the interval's width widens it (at y = 1, w = ln 3).
+ * A zero count has l = -inf: P(0 | x) is a one-sided step in x with no mode, no information. */
+static int pseudo_obs(const double *p, double y, double log_effort, double *mode, double *prec)
+{
+    const double tau = p[0];
+    if (!(y >= 1) || !(tau > 0))
+        return TF_PSEUDO_NONE;
+    const double l = log(y - 0.5), h = log(y + 0.5), w = h - l;
+    *mode = 0.5 * (l + h) - log_effort;
+    *prec = 1.0 / (tau * tau + w * w / 12.0);
+    return TF_PSEUDO_APPROX;
+}
+
 const tf_obs_type tf_obs_lognormal_int = {
     "lognormal-int", "log-normal, rounded to whole counts", 1, names, lower, upper, 1, 0, 4, year_const,
-    add_logweight, logpmf, draw,
+    add_logweight, logpmf, draw, pseudo_obs,
 };

@@ -80,6 +80,23 @@ static double draw(const double *p, double mu, gsl_rng *rng)
     return tf_obs_poisson_count(gsl_ran_gamma(rng, phi, mu / phi), rng);
 }
 
+/* In x = ln N, mu = E e^x: l(x) = y (x + ln E) - (y + phi) ln(phi + mu) + const, so
+ * l'(x) = y - (y + phi) mu / (phi + mu), zero at mu = y, and l''(x) = -(y + phi) phi mu / (phi + mu)^2,
+ * which at mu = y is -y phi / (y + phi) (differentiating the log-density above; Laplace's
+ * approximation, Tierney & Kadane 1986). As phi grows this tends to the Poisson precision y; for
+ * small phi it stays near phi however large the count, since the count then says little more
+ * than its order of magnitude. A zero count: l' < 0 everywhere, no mode. */
+static int pseudo_obs(const double *p, double y, double log_effort, double *mode, double *prec)
+{
+    const double phi = p[0];
+    if (!(y > 0) || !(phi > 0))
+        return TF_PSEUDO_NONE;
+    *mode = log(y) - log_effort;
+    *prec = y * phi / (y + phi);
+    return TF_PSEUDO_APPROX;
+}
+
 const tf_obs_type tf_obs_negbin = {
     "negbin", "negative binomial", 1, names, lower, upper, 1, 0, 3, year_const, add_logweight, logpmf, draw,
+    pseudo_obs,
 };

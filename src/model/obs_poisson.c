@@ -56,6 +56,20 @@ static double logpmf(const double *p, double y, double mu)
 
 static double draw(const double *p, double mu, gsl_rng *rng) { return tf_obs_poisson_count(mu, rng); }
 
+/* In x = ln N, with mu = E e^x: l(x) = y (x + ln E) - E e^x - ln y!, l'(x) = y - mu, l''(x) = -mu.
+ * The mode is mu = y, i.e. x = ln(y / E), where the precision -l'' is y (Laplace's approximation,
+ * Tierney & Kadane 1986; the same Gaussian as the delta-method variance 1/y of ln y, common
+ * practice, no source). A zero count makes l strictly decreasing in x: no mode, no information of
+ * this form (the filter then moves blind and weights by the exact density). */
+static int pseudo_obs(const double *p, double y, double log_effort, double *mode, double *prec)
+{
+    if (!(y > 0))
+        return TF_PSEUDO_NONE;
+    *mode = log(y) - log_effort;
+    *prec = y;
+    return TF_PSEUDO_APPROX;
+}
+
 const tf_obs_type tf_obs_poisson = {
-    "poisson", "Poisson", 0, NULL, NULL, NULL, 1, 0, 1, year_const, add_logweight, logpmf, draw,
+    "poisson", "Poisson", 0, NULL, NULL, NULL, 1, 0, 1, year_const, add_logweight, logpmf, draw, pseudo_obs,
 };

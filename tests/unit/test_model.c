@@ -348,6 +348,62 @@ static void draw_moments(const tf_obs_type *o, const double *p, double mu, int u
                   se_var);
 }
 
+/* The pseudo-observation of each counting-error model against the definition it claims: for the
+ * count models, the mode of x -> l(x) = log p(y | e^(x + ln E)) (l'(mode) = 0 by a central
+ * difference) and the precision -l''(mode) (second central difference, step 1e-4); for the
+ * rounded log-normal, the mean and variance of x under the normalised likelihood P(y | x) (the
+ * moment matching it claims), by a Riemann sum on a fine grid. Laplace's approximation: Tierney &
+ * Kadane 1986, JASA 81:82. */
+START_TEST(pseudo_observations_follow_their_definitions)
+{
+    static const double ys[] = {1, 3, 17, 412, 98765};
+    static const double log_efforts[] = {0.0, 0.9162907318741551}; /* effort 1 and 2.5 */
+    const double h = 1e-4;
+    for (size_t k = 0; k < tf_model_n_obs(); k++) {
+        const tf_obs_type *o = tf_model_obs_at(k);
+        ck_assert_ptr_nonnull(o->pseudo_obs);
+        const double p[] = {2.5}; /* phi or tau: a middling value */
+        for (size_t i = 0; i < sizeof ys / sizeof ys[0]; i++)
+            for (size_t e = 0; e < 2; e++) {
+                const double y = ys[i], le = log_efforts[e];
+                double mode = NAN, prec = NAN;
+                int kind = o->pseudo_obs(p, y, le, &mode, &prec);
+                ck_assert_int_ne(kind, TF_PSEUDO_NONE);
+                ck_assert(isfinite(mode) && prec > 0);
+                if (!strcmp(o->name, "lognormal-int")) {
+                    double s0 = 0, s1 = 0, s2 = 0;
+                    const double c = log(y) - le, dx = 1e-3;
+                    for (double x = c - 40; x <= c + 40; x += dx) {
+                        double w = exp(o->logpmf(p, y, exp(x + le)));
+                        s0 += w;
+                        s1 += w * x;
+                        s2 += w * x * x;
+                    }
+                    double mean = s1 / s0, var = s2 / s0 - mean * mean;
+                    /* Grid error of the moments: about dx^2 / 12 on the variance. */
+                    ck_assert_double_eq_tol(mode, mean, 1e-6);
+                    ck_assert_double_eq_tol(1.0 / prec, var, 1e-6 + 1e-6 * var);
+                    ck_assert_int_eq(kind, TF_PSEUDO_APPROX);
+                    continue;
+                }
+                double l0 = o->logpmf(p, y, exp(mode + le)), lp = o->logpmf(p, y, exp(mode + h + le)),
+                       lm = o->logpmf(p, y, exp(mode - h + le));
+                double d1 = (lp - lm) / (2 * h), d2 = (lp - 2 * l0 + lm) / (h * h);
+                /* Rounding of the log-density (about 1e-16 (1 + |l| + y |x|)) over h, and h^2 times
+                 * the third derivative (about y) for the first difference. */
+                double round_err = 1e-15 * (1 + fabs(l0) + y * (1 + fabs(mode)));
+                ck_assert_double_eq_tol(d1, 0.0, round_err / h + 1e-8 * y);
+                ck_assert_double_eq_tol(prec, -d2, 1e-6 * prec + 4 * round_err / (h * h));
+                ck_assert_int_eq(kind, strcmp(o->name, "lognormal") ? TF_PSEUDO_APPROX : TF_PSEUDO_EXACT);
+            }
+        /* A zero count carries no information of this form; nothing is written. */
+        double mode = 7, prec = 7;
+        ck_assert_int_eq(o->pseudo_obs(p, 0.0, 0.0, &mode, &prec), TF_PSEUDO_NONE);
+        ck_assert(mode == 7 && prec == 7);
+    }
+}
+END_TEST
+
 START_TEST(draws_have_the_model_moments)
 {
     tf_rng rng;
@@ -441,6 +497,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, theta_one_is_ricker_bit_for_bit);
     tcase_add_test(tc, densities_match_scipy);
     tcase_add_test(tc, vector_kernel_equals_scalar_density);
+    tcase_add_test(tc, pseudo_observations_follow_their_definitions);
     tcase_add_test(tc, draws_have_the_model_moments);
     tcase_add_test(tc, simulation_reproduces_and_scales);
     suite_add_tcase(s, tc);

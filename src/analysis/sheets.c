@@ -755,8 +755,10 @@ static tf_status provenance_items(const tf_analysis *a, const tf_sheets_provenan
     else
         snprintf(particles, sizeof particles, "particles chosen per model");
     snprintf(text, sizeof text,
-             "PMMH, %zu chains of %zu iterations after %zu warm-up iterations, keeping one in %zu (%zu draws per chain); %s",
-             o->fit.n_chains, o->fit.n_iter * o->fit.thin, o->fit.n_warmup, o->fit.thin, o->fit.n_iter, particles);
+             "PMMH, %zu chains of %zu iterations after %zu warm-up iterations, keeping one in %zu (%zu draws per chain); "
+             "%s, %s proposal",
+             o->fit.n_chains, o->fit.n_iter * o->fit.thin, o->fit.n_warmup, o->fit.thin, o->fit.n_iter, particles,
+             tf_filter_proposal_name(o->fit.proposal));
     TRY(tf_table_add_item_text(t, "Sampler", text, "see each diagnostics sheet", err));
     const tf_projection *pr = tf_analysis_pop_projection(p0);
     snprintf(text, sizeof text, "%zu simulated futures over %zu years, models weighted by their posterior probabilities",

@@ -65,6 +65,7 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     line(f, "particles", "%zu", a->fit.n_particles);
     line(f, "correlated", "%d %.17g", a->fit.correlated, a->fit.rho);
     line(f, "pilot-particles", "%zu", a->fit.pilot_particles);
+    line(f, "proposal", "%s", tf_filter_proposal_name(a->fit.proposal));
     line(f, "doublings", "%zu", a->fit.max_doublings);
     const tf_evidence_options *e = &a->evidence;
     line(f, "ml-draws", "%zu", e->n_draws);

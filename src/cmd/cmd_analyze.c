@@ -79,6 +79,7 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --thin K           keep every K-th of them (default %zu)\n"
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
+            TF_ARGS_PROPOSAL_HELP
             "  --draws M          importance draws per density for each marginal likelihood (default %zu)\n"
             "  --runs R           simulated futures (default: at least %d)\n"
             "  --batch            analyse the populations as a batch even when there are few (see below)\n"
@@ -285,7 +286,8 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS, OPT_ITER,
-           OPT_THIN, OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT };
+           OPT_THIN, OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT,
+           OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -300,6 +302,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"thin", required_argument, NULL, OPT_THIN},
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"draws", required_argument, NULL, OPT_DRAWS},
         {"runs", required_argument, NULL, OPT_RUNS},
         {"batch", no_argument, NULL, OPT_BATCH},
@@ -361,6 +364,10 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, 1000, &opt.fit.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
+        case OPT_PROPOSAL:
+            tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
+            opt.evidence.proposal = opt.fit.proposal;
+            break;
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;
         case OPT_BATCH: batch = 1; break;

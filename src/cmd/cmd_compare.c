@@ -64,6 +64,7 @@ static void help(FILE *out)
             "  --thin K           keep every K-th of them (default %zu)\n"
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
+            TF_ARGS_PROPOSAL_HELP
             "  --draws M          importance draws per density (default %zu)\n"
             "  --threads T        threads (default: the number of processors); models run in\n"
             "                     parallel, and the results do not depend on T\n"
@@ -171,7 +172,7 @@ static void print_warnings(const tf_comparison *c)
 int tf_cmd_compare(int argc, char **argv)
 {
     enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_ITER, OPT_THIN, OPT_WARMUP,
-           OPT_PARTICLES, OPT_DRAWS, OPT_THREADS, OPT_QUIET };
+           OPT_PARTICLES, OPT_DRAWS, OPT_THREADS, OPT_QUIET, OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"models", required_argument, NULL, OPT_MODELS},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -184,6 +185,7 @@ int tf_cmd_compare(int argc, char **argv)
         {"thin", required_argument, NULL, OPT_THIN},
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"draws", required_argument, NULL, OPT_DRAWS},
         {"threads", required_argument, NULL, OPT_THREADS},
         {"quiet", no_argument, NULL, OPT_QUIET},
@@ -224,6 +226,10 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
         case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.fit.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
+        case OPT_PROPOSAL:
+            tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
+            opt.evidence.proposal = opt.fit.proposal;
+            break;
         case OPT_PARTICLES:
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err);
             break;

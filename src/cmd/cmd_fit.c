@@ -65,6 +65,7 @@ static void help(FILE *out)
             "  --seed S           random seed (default %llu); the same seed gives the same files\n"
             "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
             "                     estimate's sd is near its target)\n"
+            TF_ARGS_PROPOSAL_HELP
             "  --correlated       correlated pseudo-marginal method (default: %s)\n"
             "  --standard         standard pseudo-marginal method\n"
             "  --priors FILE      a model file overriding some or all default priors\n"
@@ -302,7 +303,8 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
                      "(correlated method: of the log-ratio of two successive estimates)", TF_COL_NUMBER, err) &&
              add_col(t, "method", "standard or correlated pseudo-marginal", TF_COL_TEXT, err) &&
              add_col(t, "rho", "correlation of successive random numbers (correlated method)", TF_COL_NUMBER, err) &&
-             add_col(t, "seed", NULL, TF_COL_TEXT, err);
+             add_col(t, "seed", NULL, TF_COL_TEXT, err) &&
+             add_col(t, "proposal", "how the particle filter moved: guided or bootstrap", TF_COL_TEXT, err);
     for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++) {
         double v[11] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
                         (double)tf_fit_n_iter(f), (double)st->thin, (double)st->n_doublings, (double)st->n_particles,
@@ -312,7 +314,8 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
         size_t row = tf_table_n_rows(t);
         ok = tf_table_add_row_numbers(t, v, 11, err) == TF_OK &&
              tf_table_set_text(t, row, 9, st->correlated ? "correlated" : "standard", err) == TF_OK &&
-             tf_table_set_text(t, row, 11, seed, err) == TF_OK;
+             tf_table_set_text(t, row, 11, seed, err) == TF_OK &&
+             tf_table_set_text(t, row, 12, tf_filter_proposal_name(st->proposal), err) == TF_OK;
     }
     if (!ok) {
         tf_table_free(t);
@@ -384,10 +387,11 @@ static void print_summary(const job *j, FILE *out)
     const tf_fit *f = j->fit;
     const tf_fit_settings *st = tf_fit_settings_of(f);
     const char *label = tf_series_label(j->series);
-    fprintf(out, "%s%s%s: %zu chains x %zu draws (after %zu warm-up), %zu particles, %s method, "
+    fprintf(out, "%s%s%s: %zu chains x %zu draws (after %zu warm-up), %zu particles (%s proposal), %s method, "
                  "log-likelihood sd %.2f, %.1f s\n",
             label, label[0] ? " " : "", tf_model_name(j->model), tf_fit_n_chains(f), tf_fit_n_iter(f),
-            st->n_warmup, st->n_particles, st->correlated ? "correlated" : "standard", st->loglik_sd, st->seconds);
+            st->n_warmup, st->n_particles, tf_filter_proposal_name(st->proposal),
+            st->correlated ? "correlated" : "standard", st->loglik_sd, st->seconds);
     if (st->n_doublings)
         fprintf(out, "  the chains did not meet the convergence thresholds at first and were run %zu times "
                      "as long, keeping every %zu-th iteration\n", (size_t)1 << st->n_doublings, st->thin);
@@ -446,7 +450,8 @@ static int exit_for(tf_status st)
 int tf_cmd_fit(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_ITER, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN, OPT_DOUBLINGS };
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN, OPT_DOUBLINGS,
+           OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -459,6 +464,7 @@ int tf_cmd_fit(int argc, char **argv)
         {"doublings", required_argument, NULL, OPT_DOUBLINGS},
         {"seed", required_argument, NULL, OPT_SEED},
         {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"correlated", no_argument, NULL, OPT_CORR},
         {"standard", no_argument, NULL, OPT_STD},
         {"priors", required_argument, NULL, OPT_PRIORS},
@@ -498,6 +504,7 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_PARTICLES:
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &opt.n_particles, &err);
             break;
+        case OPT_PROPOSAL: tf_args_parse_proposal("--proposal", optarg, &opt.proposal, &err); break;
         case OPT_CORR: opt.correlated = 1; break;
         case OPT_STD: opt.correlated = 0; break;
         case OPT_PRIORS: priors_path = optarg; break;

@@ -11,6 +11,7 @@
 
 #include "model/model.h"
 #include "sampler/posterior.h"
+#include "filter/filter.h"
 #include "survey/series.h"
 #include "util/error.h"
 
@@ -86,6 +87,7 @@ typedef struct {
     double loglik_sd;
     int correlated;
     double rho;
+    tf_proposal proposal;     /* how the particle filter moved (filter.h) */
     uint64_t seed;
     double seconds;
 } tf_fit_settings;

@@ -38,6 +38,7 @@ tf_pmmh_options tf_pmmh_default_options(void)
         .seed = 1,
         .n_particles = 0,
         .correlated = 0,
+        .proposal = TF_PROPOSAL_GUIDED,
         .rho = 0.99,
         .pilot_particles = 100,
         /* Up to two doublings (4x the iterations) for the few fits that need them, such as
@@ -195,6 +196,7 @@ static tf_status run_pilot(job *j)
     size_t d = r->dim;
     j->lik.post = r->post;
     j->lik.filter = tf_filter_alloc(r->model, r->series, r->opt.pilot_particles);
+    tf_filter_set_proposal(j->lik.filter, r->opt.proposal);
     tf_chain_target t = {.dim = d, .n_path = r->n_years, .ctx = &j->lik,
                          .log_prior = log_prior_cb, .log_lik = log_lik_standard};
     tf_chain_options co = tf_chain_default_options();
@@ -259,6 +261,7 @@ static tf_status run_main(job *j)
     j->chain = NULL;
     tf_filter_free(j->lik.filter);
     j->lik.filter = tf_filter_alloc(r->model, r->series, r->n_particles);
+    tf_filter_set_proposal(j->lik.filter, r->opt.proposal);
     if (!j->lik.filter)
         return tf_error_add(&j->err, TF_ERR_NOMEM, NULL, 0, 0, NULL,
                             "out of memory for a particle filter with %zu particles",
@@ -623,6 +626,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     tf_tune_options to = tf_tune_default_options(opt->correlated);
     to.rho = opt->rho;
     to.stop = stop;
+    to.proposal = opt->proposal;
     to.start_particles = opt->pilot_particles;
     if (opt->n_particles) {
         /* A count given by the user: one measurement there, to report the spread. */
@@ -662,6 +666,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     tf_fit_settings fs = {.n_warmup = opt->n_warmup, .thin = r.thin, .n_doublings = n_doublings,
                           .n_particles = r.n_particles,
                           .loglik_sd = tr.sd, .correlated = opt->correlated, .rho = opt->rho,
+                          .proposal = opt->proposal,
                           .seed = opt->seed, .seconds = now_seconds() - t0};
     tf_fit_set_settings(r.fit, &fs);
     *out = r.fit;

@@ -8,6 +8,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "filter/filter.h"
 #include "sampler/fit.h"
 #include "sampler/posterior.h"
 #include "survey/series.h"
@@ -24,6 +25,7 @@ typedef struct {
     int correlated;          /* correlated pseudo-marginal method (Deligiannidis et al. 2018) */
     double rho;              /* its correlation, in [0, 1) */
     size_t pilot_particles;  /* particles of the pilot phase */
+    tf_proposal proposal;    /* how the particle filter moves (filter.h); guided by default */
     /* When the kept draws miss the convergence thresholds of fit.h, the chains go on for as
      * many iterations again with twice the thinning, at most this many times (0 = never);
      * the number of kept draws stays n_iter. */

@@ -363,6 +363,9 @@ static size_t pick_one(const double *w, size_t n, double sum, double u)
  * to rounding on every series of the tests). A fixed number, so that the estimate stays a
  * smooth function of the random numbers in the fixed mode. */
 #define RECENTRE_STEPS 6
+/* Counts within this many sd of the particles' predictive keep the Laplace approximation at
+ * their own mode (common practice, no source: there the two expansions differ little). */
+#define RECENTRE_Z 2.0
 
 /* A year's Gaussian pseudo-observation in the form the filter uses: log p(y | x) is taken as
  * b u - prec u^2 / 2 + const with u = x - x0, about an expansion point x0. The counting-error
@@ -535,7 +538,12 @@ static double run(tf_filter *f, const double *theta, tf_rng *rng, const double *
                 double v = mv[i] > lo ? mv[i] : lo;
                 centre += v < hi ? v : hi;
             }
-            ps = recentre(o, p_obs, f->y[t], f->log_effort[t], centre / (double)n, s2, ps);
+            /* Only a count that is surprising, more than RECENTRE_Z sd of the predictive from the
+             * centre, is worth the Newton steps (a few exp each, per year: at 10 particles they
+             * would otherwise cost as much as the particles themselves). */
+            double dz = centre / (double)n - ps.x0;
+            if (dz * dz * ps.prec > RECENTRE_Z * RECENTRE_Z * (1.0 + s2 * ps.prec))
+                ps = recentre(o, p_obs, f->y[t], f->log_effort[t], centre / (double)n, s2, ps);
         }
         if (info && !usable(mv, n, ps))
             info = 0;

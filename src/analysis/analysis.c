@@ -240,7 +240,10 @@ done:
  * choose every suitable one. */
 static void obs_names(const tf_analysis_options *o, const tf_series *s, const char *const **names, size_t *n_out)
 {
-    if (o->obs_auto) {
+    if (o->estimates && !o->n_obs) {
+        *names = default_obs_amounts;
+        *n_out = N_OF(default_obs_amounts);
+    } else if (o->obs_auto) {
         *names = NULL;
         *n_out = 0;
     } else if (o->n_obs) {

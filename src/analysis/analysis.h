@@ -35,6 +35,9 @@ typedef struct {
     size_t n_obs;
     const char *obs[TF_ANALYSIS_MAX_NAMES];
     int obs_auto;
+    /* The counts are estimates (indices, densities), not whole counts: only counting-error models
+     * of continuous amounts are candidates, whatever the values (the first page says so). */
+    int estimates;
     /* Sampler and marginal-likelihood settings of every fit; their seeds and thread counts are
      * replaced by seed and n_threads below. */
     tf_pmmh_options fit;

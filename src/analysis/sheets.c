@@ -732,6 +732,10 @@ static tf_status provenance_items(const tf_analysis *a, const tf_sheets_provenan
     TRY(tf_table_add_item_text(t, "SHA-256 of the file", prov->sha256, "identifies the exact file that was read", err));
     TRY(tf_table_add_item_text(t, "Program", "tallyfit " TF_VERSION, NULL, err));
     TRY(tf_table_add_item_text(t, "Run on", prov->date, NULL, err));
+    if (o->estimates)
+        TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
+                                   "so only counting-error models of continuous amounts (log-normal) were fitted",
+                                   err));
     static const char seed_note[] = "the same seed and settings give the same numbers, whatever the number of threads";
     /* A number when a double holds it exactly (below 2^53), else its digits as text. */
     if (o->seed <= (UINT64_C(1) << 53)) {

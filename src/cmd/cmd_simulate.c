@@ -43,7 +43,8 @@ static void help(FILE *out)
             "The same seed gives the same file, and population i the same series whatever N.\n\n"
             "options:\n"
             "  --model M        growth model: %s\n"
-            "  --obs O          counting error: %s (default poisson)\n"
+            "  --obs O          counting error: %s (default poisson); lognormal values are\n"
+            "                   not whole, so other commands read them with --estimates\n"
             "  --set NAME=VALUE,...\n"
             "                   every parameter of the model, e.g. r=0.3,K=800,sigma=0.1,phi=20\n"
             "  --years N        number of years to simulate (%d to %d)\n"
@@ -392,7 +393,9 @@ int tf_cmd_simulate(int argc, char **argv)
     tf_error check;
     tf_error_init(&check);
     tf_survey *sv = NULL;
-    if (tf_survey_parse("simulated survey", text, text_len, &sv, &check) != TF_OK) {
+    /* Values of a continuous counting-error model are estimates, read back as such. */
+    tf_survey_options so = {.estimates = !tf_model_obs(m)->needs_integer};
+    if (tf_survey_parse_with("simulated survey", text, text_len, &so, &sv, &check) != TF_OK) {
         tf_error_add(&err, TF_ERR_INVALID, NULL, 0, 0, "try other parameters, another --start or another --seed",
                      "the simulated counts do not make a usable survey: %s",
                      check.n_items ? check.items[0].what : "rejected by the importer");

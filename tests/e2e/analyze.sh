@@ -87,8 +87,14 @@ if [ -z "$slow" ]; then
   [ -s "$tmp/quiet/heron-colony.xlsx" ] || bad "--quiet wrote no workbook"
 fi
 
-# An index that is not a whole count: only the continuous log-normal counting error is compared.
-"$T" analyze tests/data/analyze/index.csv -o "$tmp/frac" -q --threads 2 "${FAST[@]}" 2>"$tmp/stderr" ||
+# An index that is not a whole count: refused unless --estimates says so, and then only the
+# continuous log-normal counting error is compared, and the first page says why.
+"$T" analyze tests/data/analyze/index.csv -o "$tmp/frac" -q "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 3 ] || bad "index.csv without --estimates: exit $rc, want 3"
+grep -qF "is not a whole number" "$tmp/stderr" || bad "index.csv without --estimates: $(head -n 2 "$tmp/stderr")"
+grep -qF -- "--estimates" "$tmp/stderr" || bad "index.csv without --estimates: the hint does not name --estimates"
+[ -e "$tmp/frac" ] && bad "index.csv without --estimates: something was written"
+"$T" analyze tests/data/analyze/index.csv --estimates -o "$tmp/frac" -q --threads 2 "${FAST[@]}" 2>"$tmp/stderr" ||
   { bad "index.csv: exit $?"; cat "$tmp/stderr" >&2; }
 if [ -f "$tmp/frac/index/models.csv" ]; then
   grep -q '+lognormal,.*,fitted,' "$tmp/frac/index/models.csv" || bad "index.csv: no log-normal model fitted"
@@ -97,7 +103,7 @@ else
   bad "index.csv: no models.csv"
 fi
 # Fractions with a zero suit no counting-error model: exit 3 and nothing written.
-"$T" analyze tests/data/good/fractional.csv -o "$tmp/frac0" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+"$T" analyze tests/data/good/fractional.csv --estimates -o "$tmp/frac0" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 3 ] || bad "fractional.csv (a zero among fractions): exit $rc, want 3"
 grep -q "no candidate model" "$tmp/stderr" || bad "fractional.csv: stderr does not say why"
 [ -e "$tmp/frac0" ] && bad "fractional.csv: something was written"

@@ -381,7 +381,7 @@ bad "unknown population" "$herds" --average --population nowhere
 "$TALLYFIT" forecast "$repo/tests/data/good/fractional.csv" --model ricker "${FIT[@]}" -o "$tmp/frac" -q \
   >/dev/null 2>"$tmp/stderr"
 [ $? -eq 3 ] || fail "fractional counts with poisson should exit 3"
-grep -q "lognormal" "$tmp/stderr" || fail "the fractional-count refusal should point to the log-normal"
+grep -q -- "--estimates" "$tmp/stderr" || fail "the fractional-count refusal should point to --estimates"
 [ -e "$tmp/frac" ] && fail "the refused fit left $tmp/frac"
 
 # Ctrl-C during the fits: exit 130 and no tables.

@@ -773,6 +773,32 @@ fail:
     return st;
 }
 
+/* Counts far from their neighbours (series.h), one caution each: they are fitted as they are,
+ * and a typing error among them would move every figure. */
+static tf_status outlier_items(const tf_analysis *a, tf_table *t, tf_error *err)
+{
+    tf_status st;
+    for (size_t i = 0; i < tf_analysis_n_populations(a); i++) {
+        const tf_series *s = tf_analysis_pop_series(tf_analysis_population(a, i));
+        tf_series_outlier o[16];
+        size_t n = tf_series_outliers(s, o, 16);
+        for (size_t k = 0; k < n && k < 16; k++) {
+            char text[400], note[64];
+            tf_series_outlier_text(s, &o[k], text, sizeof text);
+            snprintf(note, sizeof note, "line %ld of the survey file", tf_series_source_line(s, o[k].index));
+            TRY(tf_table_add_item_text(t, "Count to check", text, note, err));
+        }
+        if (n > 16) {
+            char text[128];
+            snprintf(text, sizeof text, "%zu more counts far from their neighbours (run tallyfit check)", n - 16);
+            TRY(tf_table_add_item_text(t, "Count to check", text, NULL, err));
+        }
+    }
+    return TF_OK;
+fail:
+    return st;
+}
+
 static tf_status summary_sheet(const tf_analysis *a, const tf_sheets_provenance *prov, tf_report *r, tf_error *err)
 {
     tf_status st;
@@ -790,6 +816,7 @@ static tf_status summary_sheet(const tf_analysis *a, const tf_sheets_provenance 
         snprintf(label, sizeof label, "Caution %zu", i + 1);
         TRY(tf_table_add_item_text(t, label, tf_project_caution(i), NULL, err));
     }
+    TRY(outlier_items(a, t, err));
     TRY(provenance_items(a, prov, t, err));
     return tf_report_add_table(r, t, "the first page: findings, cautions and provenance", NULL, err);
 fail:

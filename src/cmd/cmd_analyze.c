@@ -462,6 +462,9 @@ static int analyze(int argc, char **argv, int rank, int size)
         status = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
+    /* Counts to check are named now, before the long part; the first page lists them too. */
+    if (!quiet)
+        tf_input_warn_outliers(sv, opt.population, path, PROG, errs);
     /* Before the long part: refuse a workbook that would land on the survey, and a file where
      * the CSV folder goes. */
     struct stat info;

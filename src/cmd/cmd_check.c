@@ -47,13 +47,17 @@ static void help(FILE *out)
             "               1999, 2004-2005)\n"
             "  counts       smallest, median and largest count, and how many are zero\n"
             "  effort       the same every year, or the range it varies over\n"
+            "  warnings     on standard error, counts far from their neighbours: more than %.0f times\n"
+            "               above or below the median of up to %d surveyed years on each side (on\n"
+            "               the count/effort + 0.5 scale), to check for typing errors; they are kept\n"
             "  crude trend  the least-squares slope of log(count/effort + 0.5) against the year,\n"
             "               shown as a percentage change per year. A crude screening figure,\n"
             "               not a model estimate: it ignores observation error, density\n"
             "               dependence and the missing years.\n"
             "\n"
             "exit status: %d usable, %d bad command line, %d the survey file is unusable\n",
-            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_EXIT_OK, TF_EXIT_USAGE,
+            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_SERIES_OUTLIER_FACTOR,
+            TF_SERIES_OUTLIER_WINDOW, TF_EXIT_OK, TF_EXIT_USAGE,
             TF_EXIT_INPUT);
 }
 
@@ -203,6 +207,7 @@ int tf_cmd_check(int argc, char **argv)
         return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
     }
     int rc = TF_EXIT_OK;
+    tf_input_warn_outliers(sv, tf_input_single(&in), path, PROG, stderr);
     /* One population chosen from several: the others are not shown. */
     const char *one = tf_input_single(&in);
     if (!quiet) {

@@ -161,3 +161,28 @@ size_t tf_input_continuous_obs(const char **names, size_t max)
 }
 
 const char *tf_input_default_obs(const tf_input *in) { return in->estimates ? "lognormal" : "poisson"; }
+
+size_t tf_input_warn_outliers(const tf_survey *sv, const char *only, const char *path, const char *prog, FILE *out)
+{
+    size_t n_all = 0;
+    const char *shown = strcmp(path, "-") ? path : "stdin";
+    for (size_t i = 0; i < tf_survey_n_series(sv); i++) {
+        const tf_series *s = tf_survey_series(sv, i);
+        if (only && strcmp(tf_series_label(s), only))
+            continue;
+        tf_series_outlier o[16];
+        size_t n = tf_series_outliers(s, o, 16);
+        for (size_t k = 0; k < n && k < 16; k++) {
+            char text[400];
+            tf_series_outlier_text(s, &o[k], text, sizeof text);
+            if (out)
+                fprintf(out, "%s: warning: %s:%ld: %s\n  hint: check it for a typing error; it is kept and fitted\n",
+                        prog, shown, tf_series_source_line(s, o[k].index), text);
+        }
+        if (n > 16 && out)
+            fprintf(out, "%s: warning: %s: %zu more counts of this population far from their neighbours\n", prog,
+                    shown, n - 16);
+        n_all += n;
+    }
+    return n_all;
+}

@@ -49,6 +49,11 @@ const char *tf_input_single(const tf_input *in);
 tf_status tf_input_read(const tf_input *in, const char *path, FILE *warn, const char *prog, tf_survey **out,
                         tf_error *err);
 
+/* Prints a warning on out for every count of sv (of population only, when not NULL) far from its
+ * neighbours (tf_series_outliers), naming the file, line, population, year and value; returns
+ * how many. */
+size_t tf_input_warn_outliers(const tf_survey *sv, const char *only, const char *path, const char *prog, FILE *out);
+
 /* With --estimates, every counting-error model named in names[0 .. n) must be one of continuous
  * amounts: a count model (Poisson, negative binomial, rounded log-normal) is TF_ERR_USAGE naming
  * opt. Without --estimates: TF_OK. */

@@ -81,6 +81,14 @@ grep -qF "counts read as estimates: continuous counting-error models only" "$tmp
 "$T" check tests/data/good/tab-separated.csv >"$tmp/out" 2>"$tmp/err" || bad "tab-separated: $(cat "$tmp/err")"
 grep -qF "counts:       min 9, median 12.5, max 15" "$tmp/out" || bad "tab-separated: $(cat "$tmp/out")"
 
+# A count far from its neighbours (a typed extra zero) is usable, with a warning naming it.
+"$T" check tests/data/good/outlier-extra-zero.csv >"$tmp/out" 2>"$tmp/err"; rc=$?
+[ $rc -eq 0 ] || bad "outlier: exit $rc, want 0"
+grep -qF "tallyfit check: warning: tests/data/good/outlier-extra-zero.csv:18: year 2010: count 3390 is 9.3 times the median of the neighbouring years" \
+  "$tmp/err" || bad "outlier: $(cat "$tmp/err")"
+[ "$(grep -c ': warning: ' "$tmp/err")" -eq 1 ] || bad "outlier: not exactly one warning"
+grep -qF "max 3390" "$tmp/out" || bad "outlier: the count was not kept"
+
 # Choosing populations, and leaving out those that cannot be used.
 cat >"$tmp/three.csv" <<'CSV'
 population,year,count

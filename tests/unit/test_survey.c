@@ -359,6 +359,49 @@ START_TEST(tab_separated)
 }
 END_TEST
 
+/* The outlier rule of series.h on made-up series: a typed extra zero is flagged with its factor
+ * and the neighbours' median; a 50 % yearly decline, a zero among small counts and a year with
+ * too few neighbours are not. */
+START_TEST(outliers_flagged)
+{
+    static const double typo[] = {400, 380, 390, 3700, 360, 350, 370};
+    tf_series *s = tf_series_new("", 2000, 7, typo, NULL, NULL, NULL);
+    tf_series_outlier o[4];
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 1);
+    ck_assert_uint_eq(o[0].index, 3);
+    ck_assert_double_eq(o[0].count, 3700);
+    /* neighbours 400, 380, 390, 360, 350, 370: median of log(y + 0.5) is that of 375 and 380 */
+    double med = exp(0.5 * (log(370.5) + log(380.5))) - 0.5;
+    ck_assert_double_eq_tol(o[0].median, med, 1e-9);
+    ck_assert_double_eq_tol(o[0].factor, 3700.5 / (med + 0.5), 1e-9);
+    tf_series_free(s);
+
+    static const double decline[] = {6400, 3200, 1600, 800, 400, 200, 100};
+    s = tf_series_new("", 2000, 7, decline, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 0);
+    tf_series_free(s);
+
+    static const double small[] = {4, 5, 4, 0, 4, 3, 5};
+    s = tf_series_new("", 2000, 7, small, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 0);
+    tf_series_free(s);
+
+    /* Below: 40 among counts near 400 is flagged as a factor 10 low. */
+    static const double low[] = {400, NAN, 380, 40, 390, 410};
+    s = tf_series_new("", 2000, 6, low, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 1);
+    ck_assert_uint_eq(o[0].index, 3);
+    ck_assert(o[0].factor < 1.0 / TF_SERIES_OUTLIER_FACTOR);
+    tf_series_free(s);
+
+    /* Two surveyed neighbours are too few to judge. */
+    static const double short_run[] = {10, 1000, 10};
+    s = tf_series_new("", 2000, 3, short_run, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 0);
+    tf_series_free(s);
+}
+END_TEST
+
 /* ---- bad files ---- */
 
 typedef struct {
@@ -795,6 +838,7 @@ static Suite *make_suite(void)
     tcase_add_test(good, fractional_counts_refused_unless_estimates);
     tcase_add_test(good, number_forms_share_one_hint);
     tcase_add_test(good, tab_separated);
+    tcase_add_test(good, outliers_flagged);
     suite_add_tcase(s, good);
     TCase *bad = tcase_create("bad");
     tcase_add_test(bad, every_bad_file_fails_as_expected);

@@ -11,6 +11,7 @@
 #include <string.h>
 #include <strings.h>
 #include <fcntl.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 void tf_args_pairs_init(tf_arg_pairs *p) { p->n = 0; }
@@ -508,8 +509,35 @@ int tf_args_exit_code(tf_status st)
     }
 }
 
-tf_status tf_args_probe_output_dir(const char *dir, tf_error *err)
+/* Whether dir or one of the folders above it in its name is the file at input. */
+static int names_input(const char *dir, const char *input)
 {
+    struct stat in, st;
+    if (!input || !strcmp(input, "-") || stat(input, &in) != 0)
+        return 0;
+    char buf[4200];
+    size_t n = strlen(dir);
+    if (n >= sizeof buf)
+        return 0;
+    memcpy(buf, dir, n + 1);
+    for (size_t i = 1; i <= n; i++) {
+        if (i < n && buf[i] != '/')
+            continue;
+        char saved = buf[i];
+        buf[i] = '\0';
+        int same = stat(buf, &st) == 0 && st.st_dev == in.st_dev && st.st_ino == in.st_ino;
+        buf[i] = saved;
+        if (same)
+            return 1;
+    }
+    return 0;
+}
+
+tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error *err)
+{
+    if (names_input(dir, input))
+        return tf_error_add(err, TF_ERR_USAGE, dir, 0, 0, "give -o a folder for the results",
+                            "the output folder would be the survey file '%s'", input);
     size_t created = 0;
     tf_status st = tf_atomic_mkdirs(dir, &created, err);
     if (st == TF_OK) {

@@ -137,8 +137,9 @@ tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const 
 /* Checks, before any long work, that output folder dir exists or can be made and that a file can
  * be created in it: makes the missing folders and a probe file, then removes both, so nothing is
  * left. TF_ERR_IO naming the cause (a file in the way, permissions, a read-only file system...),
- * TF_ERR_USAGE for an empty or too long name. */
-tf_status tf_args_probe_output_dir(const char *dir, tf_error *err);
+ * TF_ERR_USAGE for an empty or too long name, or when dir (or a folder above it) is the survey
+ * file input (may be NULL or "-"). */
+tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error *err);
 
 /* The exit code (cmd.h) for a library status of the model-fitting commands: usage and refused
  * combinations are command-line errors, invalid input an unusable input, interruption 130. */

@@ -434,13 +434,20 @@ static int analyze(int argc, char **argv, int rank, int size)
      * reported while the others are analysed; a small one without --batch keeps the strict
      * reading, which refuses the whole file. */
     /* Nothing long starts before the output folder is known to be usable. */
-    if ((st = tf_args_probe_output_dir(out_dir, &err)) != TF_OK) {
+    if ((st = tf_args_probe_output_dir(out_dir, path, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }
     if (!in.n_labels) {
         tf_survey_options so = {.batch = 1, .max_rows = BATCH_MAX_ROWS, .estimates = in.estimates};
         if ((st = tf_survey_read_with(path, &so, &sv, &err)) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+        /* The model files of every candidate are read now, not when each one's turn comes. */
+        if (tf_survey_n_series(sv) &&
+            (st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0),
+                                            &err)) != TF_OK) {
             status = TF_EXIT_INPUT;
             goto out;
         }
@@ -460,6 +467,11 @@ static int analyze(int argc, char **argv, int rank, int size)
     }
     if ((st = tf_input_read(&in, path, errs, PROG, &sv, &err)) != TF_OK) {
         status = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
+        goto out;
+    }
+    if ((st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
+        TF_OK) {
+        status = TF_EXIT_INPUT;
         goto out;
     }
     /* Counts to check are named now, before the long part; the first page lists them too. */

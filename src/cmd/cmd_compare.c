@@ -311,6 +311,12 @@ int tf_cmd_compare(int argc, char **argv)
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
         goto out;
     }
+    /* The model files of every candidate are read now, not when each candidate's turn comes. */
+    if (tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs,
+                                  only ? only : tf_survey_series(sv, 0), &err) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
     char base[256];
     tf_args_survey_name(path, base, sizeof base);
     int several = tf_survey_n_in_file(sv) > 1 && !only;
@@ -322,8 +328,11 @@ int tf_cmd_compare(int argc, char **argv)
             status = TF_EXIT_USAGE;
             goto out;
         }
-        if (tf_args_probe_output_dir(dir, &err) != TF_OK)
+        tf_status pst = tf_args_probe_output_dir(dir, path, &err);
+        if (pst != TF_OK) {
+            status = tf_args_exit_code(pst);
             goto out;
+        }
     }
     int show = !quiet && isatty(STDERR_FILENO);
     for (size_t i = 0; i < n_jobs; i++) {

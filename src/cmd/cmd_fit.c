@@ -594,8 +594,11 @@ int tf_cmd_fit(int argc, char **argv)
             status = TF_EXIT_USAGE;
             goto out;
         }
-        if (tf_args_probe_output_dir(j->dir, &err) != TF_OK)
+        tf_status pst = tf_args_probe_output_dir(j->dir, path, &err);
+        if (pst != TF_OK) {
+            status = tf_args_exit_code(pst);
             goto out;
+        }
     }
 
     int show = !quiet && isatty(STDERR_FILENO);

@@ -877,7 +877,7 @@ static int run_fixed(const options *o, const tf_project_options *po)
     }
     tf_status dst = rc ? TF_OK : job_dir(o, sv, &j, &err);
     if (dst == TF_OK && !rc)
-        dst = tf_args_probe_output_dir(j.dir, &err);
+        dst = tf_args_probe_output_dir(j.dir, o->survey_path, &err);
     if (dst != TF_OK) {
         tf_error_print(&err, PROG, stderr);
         rc = tf_args_exit_code(dst);
@@ -1002,8 +1002,11 @@ static int run_model(const options *o, const tf_project_options *po)
             rc = TF_EXIT_USAGE;
             goto out;
         }
-        if (tf_args_probe_output_dir(j->dir, &err) != TF_OK)
+        tf_status pst = tf_args_probe_output_dir(j->dir, o->survey_path, &err);
+        if (pst != TF_OK) {
+            rc = tf_args_exit_code(pst);
             goto out;
+        }
     }
     int show = !o->quiet && isatty(STDERR_FILENO);
     for (size_t i = 0; i < n_jobs; i++) {
@@ -1094,10 +1097,16 @@ static int run_average(const options *o, const tf_project_options *po)
     /* Every output folder is checked before the fits. */
     for (size_t i = 0; i < (only ? 1 : tf_survey_n_series(sv)); i++) {
         job probe = {.label = tf_series_label(only ? only : tf_survey_series(sv, i))};
-        if ((st = job_dir(o, sv, &probe, &err)) != TF_OK || (st = tf_args_probe_output_dir(probe.dir, &err)) != TF_OK) {
+        if ((st = job_dir(o, sv, &probe, &err)) != TF_OK ||
+            (st = tf_args_probe_output_dir(probe.dir, o->survey_path, &err)) != TF_OK) {
             rc = tf_args_exit_code(st);
             goto out;
         }
+    }
+    if ((st = tf_setup_check_candidates(ao.growth, ao.n_growth, ao.obs, ao.n_obs, only ? only : tf_survey_series(sv, 0),
+                                        &err)) != TF_OK) {
+        rc = TF_EXIT_INPUT;
+        goto out;
     }
     char name[256];
     tf_args_survey_name(o->survey_path, name, sizeof name);

@@ -157,6 +157,18 @@ static tf_status scheme_population(FILE *out, uint64_t seed, size_t i, const cha
                         "population %zu of the scheme drew no usable series", i + 1);
 }
 
+/* Checks before drawing anything that output (NULL or "-": standard output) can be written: opens
+ * the temporary it would be written through and abandons it, which leaves nothing behind. */
+static tf_status probe_output(const char *output, tf_error *err)
+{
+    if (!output || !strcmp(output, "-"))
+        return TF_OK;
+    tf_atomic *of = NULL;
+    tf_status st = tf_atomic_open(output, NULL, &of, err);
+    tf_atomic_abort(of);
+    return st;
+}
+
 /* Writes the finished survey text: to output, replaced only once complete (write errors are
  * reported by the commit), or to standard output when output is NULL or "-". */
 static tf_status write_out(const char *output, const char *text, size_t len, tf_error *err)
@@ -304,6 +316,11 @@ int tf_cmd_simulate(int argc, char **argv)
                          "--populations draws every population's model and settings itself");
         if (tf_error_status(&err) != TF_OK)
             return tf_messages_usage("tallyfit " CMD, &err);
+        tf_status pst = probe_output(output, &err);
+        if (pst != TF_OK) {
+            tf_error_print(&err, "tallyfit " CMD, stderr);
+            return tf_args_exit_code(pst);
+        }
         return write_scheme(n_pop, seed, output);
     }
     if (!growth && tf_error_status(&err) == TF_OK)
@@ -322,6 +339,11 @@ int tf_cmd_simulate(int argc, char **argv)
                      label, TF_SURVEY_MAX_LABEL);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage("tallyfit " CMD, &err);
+    tf_status pst = probe_output(output, &err);
+    if (pst != TF_OK) {
+        tf_error_print(&err, "tallyfit " CMD, stderr);
+        return tf_args_exit_code(pst);
+    }
 
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;

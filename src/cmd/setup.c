@@ -131,3 +131,24 @@ tf_status tf_setup_default_priors(void *ctx, const tf_model *m, const tf_series 
     (void)ctx;
     return tf_setup_priors(m, s, NULL, out, err);
 }
+
+tf_status tf_setup_check_candidates(const char *const *growth, size_t n_growth, const char *const *obs, size_t n_obs,
+                                    const tf_series *s, tf_error *err)
+{
+    size_t ng = n_growth ? n_growth : tf_model_n_growth(), no = n_obs ? n_obs : tf_model_n_obs();
+    for (size_t i = 0; i < ng; i++)
+        for (size_t k = 0; k < no; k++) {
+            const char *g = n_growth ? growth[i] : tf_model_growth_at(i)->name;
+            const char *o = n_obs ? obs[k] : tf_model_obs_at(k)->name;
+            tf_model *m = NULL;
+            tf_prior_set *p = NULL;
+            tf_status st = tf_model_new(g, o, &m, err);
+            if (st == TF_OK)
+                st = tf_setup_priors(m, s, NULL, &p, err);
+            tf_prior_set_free(p);
+            tf_model_free(m);
+            if (st != TF_OK)
+                return st;
+        }
+    return TF_OK;
+}

@@ -30,4 +30,11 @@ tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *pri
 tf_status tf_setup_default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out,
                                   tf_error *err);
 
+/* Builds, and frees, the default priors of every candidate (each growth model of growth[0 ..
+ * n_growth) with each counting-error model of obs[0 .. n_obs); n = 0: every known one) for
+ * series s, so that a model file that is missing or wrong is reported before the first fit
+ * rather than when its candidate's turn comes. Errors as tf_setup_priors. */
+tf_status tf_setup_check_candidates(const char *const *growth, size_t n_growth, const char *const *obs, size_t n_obs,
+                                    const tf_series *s, tf_error *err);
+
 #endif

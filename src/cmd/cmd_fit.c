@@ -543,7 +543,7 @@ int tf_cmd_fit(int argc, char **argv)
     tf_signals saved;
     const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
-    tf_status rst = tf_input_read(&in, path, quiet ? NULL : stderr, PROG, &sv, &err);
+    tf_status rst = tf_input_read(&in, path, stderr, PROG, &sv, &err);
     if (rst != TF_OK) {
         status = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;

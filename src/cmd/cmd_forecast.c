@@ -864,7 +864,7 @@ static int run_fixed(const options *o, const tf_project_options *po)
     if (fixed_theta(j.model, &o->fixed, j.theta, o->quiet, &err) != TF_OK) {
         rc = tf_messages_usage(PROG, &err);
     } else if (o->survey_path) {
-        tf_status rst = tf_input_read(&o->in, o->survey_path, o->quiet ? NULL : stderr, PROG, &sv, &err);
+        tf_status rst = tf_input_read(&o->in, o->survey_path, stderr, PROG, &sv, &err);
         if (rst) {
             tf_error_print(&err, PROG, stderr);
             rc = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
@@ -911,7 +911,7 @@ static int run_fixed(const options *o, const tf_project_options *po)
 static int read_populations(const options *o, tf_survey **sv, const tf_series **only, tf_error *err)
 {
     *only = NULL;
-    tf_status st = tf_input_read(&o->in, o->survey_path, o->quiet ? NULL : stderr, PROG, sv, err);
+    tf_status st = tf_input_read(&o->in, o->survey_path, stderr, PROG, sv, err);
     if (st != TF_OK)
         return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
     if (!o->population && isnan(o->start))

@@ -17,7 +17,7 @@
 static void help(FILE *out)
 {
     fprintf(out,
-            "usage: tallyfit check SURVEY.csv [--population L[,L]] [--skip-unusable] [--estimates]\n"
+            "usage: tallyfit check SURVEY.csv [--population LIST] [--skip-unusable] [--estimates]\n"
             "                      [--quiet]\n"
             "\n"
             "Reads a survey file and either lists every problem in it (file, line and field\n"
@@ -38,8 +38,8 @@ static void help(FILE *out)
             "\n"
             "options:\n"
             TF_INPUT_HELP
-            "  -q, --quiet         print nothing when the file is usable (the exit status tells)\n"
-            "  -h, --help          show this help\n"
+            "  -q, --quiet        print nothing when the file is usable (the exit status tells)\n"
+            "  -h, --help         show this help\n"
             "\n"
             "For each population the overview gives:\n"
             "  years        first and last year listed, and how many years lie between them\n"

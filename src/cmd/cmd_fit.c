@@ -52,7 +52,8 @@ static void help(FILE *out)
             "and prints a short summary.\n\n"
             "options:\n"
             "  --model M          growth model: %s\n"
-            "  --obs O            counting error: %s (default poisson; lognormal with --estimates)\n"
+            "  --obs O            counting error: %s (default poisson;\n"
+            "                     lognormal with --estimates)\n"
             TF_INPUT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n"

@@ -12,15 +12,15 @@
 /* Most labels one --population list holds. */
 #define TF_INPUT_MAX_LABELS 64
 
-/* Help lines of the three options, for each command's --help (aligned at column 22). */
+/* Help lines of the three options, for each command's --help (descriptions at column 21). */
 #define TF_INPUT_HELP                                                                                          \
-    "  --population L[,L]  only these populations (labels separated by commas; default: all)\n"              \
-    "  --skip-unusable     leave out, with a warning, every population that cannot be fitted\n"            \
-    "                      (too few surveyed years, bad rows...) instead of refusing the file\n"             \
-    "  --estimates         the count column holds estimates (indices, densities, corrected\n"               \
-    "                      counts) that need not be whole numbers: only counting-error models of\n"         \
-    "                      continuous amounts (lognormal) are then fitted. Without it a count that\n"      \
-    "                      is not a whole number is an error\n"
+    "  --population LIST  only these populations: labels separated by commas (default: all)\n"             \
+    "  --skip-unusable    leave out, with a warning, every population that cannot be fitted\n"             \
+    "                     (too few surveyed years, bad rows...) instead of refusing the file\n"            \
+    "  --estimates        the count column holds estimates (indices, densities, corrected\n"               \
+    "                     counts) that need not be whole numbers: only counting-error models\n"           \
+    "                     of continuous amounts (lognormal) are then fitted. Without it a\n"              \
+    "                     count that is not a whole number is an error\n"
 
 /* A small value type on the caller's stack; zero it before use. */
 typedef struct {

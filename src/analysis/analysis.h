@@ -61,6 +61,10 @@ typedef struct {
  * default thresholds could not be read (never, short of a bug). */
 tf_status tf_analysis_options_init(tf_analysis_options *o, tf_error *err);
 
+/* The counting-error models that are candidates for series s under o, by name, into names (room
+ * for max); returns how many, 0 meaning every known one that suits the counts (obs_auto). */
+size_t tf_analysis_candidate_obs(const tf_analysis_options *o, const tf_series *s, const char **names, size_t max);
+
 /* What a progress callback hears. */
 typedef enum {
     TF_ANALYSIS_STARTED,     /* a population's comparison begins */

@@ -474,6 +474,18 @@ static int analyze(int argc, char **argv, int rank, int size)
         status = TF_EXIT_INPUT;
         goto out;
     }
+    /* A population that no candidate suits is refused now, not after the others were fitted. */
+    for (size_t i = 0; i < tf_survey_n_series(sv); i++) {
+        const tf_series *s = tf_survey_series(sv, i);
+        const char *names[TF_ANALYSIS_MAX_NAMES];
+        if (opt.population && strcmp(tf_series_label(s), opt.population))
+            continue;
+        size_t n = tf_analysis_candidate_obs(&opt, s, names, TF_ANALYSIS_MAX_NAMES);
+        if ((st = tf_setup_check_any_suits(names, n, s, path, &err)) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+    }
     /* Counts to check are named now, before the long part; the first page lists them too. */
     if (!quiet)
         tf_input_warn_outliers(sv, opt.population, path, PROG, errs);

@@ -317,6 +317,11 @@ int tf_cmd_compare(int argc, char **argv)
         status = TF_EXIT_INPUT;
         goto out;
     }
+    for (size_t i = 0; i < n_jobs; i++)
+        if (tf_setup_check_any_suits(opt.obs, opt.n_obs, only ? only : tf_survey_series(sv, i), path, &err) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
     char base[256];
     tf_args_survey_name(path, base, sizeof base);
     int several = tf_survey_n_in_file(sv) > 1 && !only;

@@ -1107,6 +1107,15 @@ static int run_average(const options *o, const tf_project_options *po)
         rc = TF_EXIT_INPUT;
         goto out;
     }
+    for (size_t i = 0; i < (only ? 1 : tf_survey_n_series(sv)); i++) {
+        const tf_series *s = only ? only : tf_survey_series(sv, i);
+        const char *names[TF_ANALYSIS_MAX_NAMES];
+        size_t n = tf_analysis_candidate_obs(&ao, s, names, TF_ANALYSIS_MAX_NAMES);
+        if ((st = tf_setup_check_any_suits(names, n, s, o->survey_path, &err)) != TF_OK) {
+            rc = TF_EXIT_INPUT;
+            goto out;
+        }
+    }
     char name[256];
     tf_args_survey_name(o->survey_path, name, sizeof name);
     int show = !o->quiet && isatty(STDERR_FILENO);

@@ -107,7 +107,7 @@ fi
 # Fractions with a zero suit no counting-error model: exit 3 and nothing written.
 "$T" analyze tests/data/good/fractional.csv --estimates -o "$tmp/frac0" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 3 ] || bad "fractional.csv (a zero among fractions): exit $rc, want 3"
-grep -q "no candidate model" "$tmp/stderr" || bad "fractional.csv: stderr does not say why"
+grep -q "no candidate counting-error model suits the counts" "$tmp/stderr" || bad "fractional.csv: stderr does not say why"
 [ -e "$tmp/frac0" ] && bad "fractional.csv: something was written"
 
 # A count far from its neighbours (a typed extra zero): warned about before the fits, listed

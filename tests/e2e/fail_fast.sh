@@ -112,6 +112,14 @@ expect "check --population north" 2 "no population named 'north'" "$T" check "$t
 expect "forecast --estimates --obs poisson" 2 "--obs poisson is a model of whole counts" \
   "$T" forecast "$S" --model ricker --obs poisson --estimates "${LONG[@]}" -o "$tmp/o-pop"
 expect "analyze, a bad threshold" 2 "--threshold" "$T" analyze "$S" --threshold 50,abc "${LONG[@]}" -o "$tmp/o-pop"
+# The last population suits no candidate (a zero under log-normal counting error): refused before
+# the first population is fitted.
+sed 's/^west,2003,5$/west,2003,0/; /^short,/d' "$tmp/three.csv" >"$tmp/zero.csv"
+for cmd in analyze compare "forecast --average"; do
+  # shellcheck disable=SC2086
+  expect "$cmd, a population no candidate suits" 3 "no candidate counting-error model suits the counts of population 'west'" \
+    "$T" $cmd "$tmp/zero.csv" --obs lognormal "${LONG[@]/-q/--quiet}" -o "$tmp/o-pop"
+done
 for d in o-models o-pop; do [ -e "$tmp/$d" ] && fail "$d: an output folder was made"; done
 
 # Nothing was left by the probes.

@@ -535,6 +535,11 @@ static int names_input(const char *dir, const char *input)
 
 tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error *err)
 {
+    return tf_args_probe_output_dir_keep(dir, input, 0, err);
+}
+
+tf_status tf_args_probe_output_dir_keep(const char *dir, const char *input, int keep_dirs, tf_error *err)
+{
     if (names_input(dir, input))
         return tf_error_add(err, TF_ERR_USAGE, dir, 0, 0, "give -o a folder for the results",
                             "the output folder would be the survey file '%s'", input);
@@ -555,6 +560,7 @@ tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error 
             unlink(probe);
         }
     }
-    tf_atomic_rmdirs(dir, created);
+    if (!keep_dirs)
+        tf_atomic_rmdirs(dir, created);
     return st;
 }

@@ -140,6 +140,9 @@ tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const 
  * TF_ERR_USAGE for an empty or too long name, or when dir (or a folder above it) is the survey
  * file input (may be NULL or "-"). */
 tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error *err);
+/* The same, keeping the folders it made when keep_dirs is set: processes of one MPI run probe the
+ * same folder at once, and one must not remove a folder another is probing. */
+tf_status tf_args_probe_output_dir_keep(const char *dir, const char *input, int keep_dirs, tf_error *err);
 
 /* The exit code (cmd.h) for a library status of the model-fitting commands: usage and refused
  * combinations are command-line errors, invalid input an unusable input, interruption 130. */

@@ -434,7 +434,7 @@ static int analyze(int argc, char **argv, int rank, int size)
      * reported while the others are analysed; a small one without --batch keeps the strict
      * reading, which refuses the whole file. */
     /* Nothing long starts before the output folder is known to be usable. */
-    if ((st = tf_args_probe_output_dir(out_dir, path, &err)) != TF_OK) {
+    if ((st = tf_args_probe_output_dir_keep(out_dir, path, size > 1, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }

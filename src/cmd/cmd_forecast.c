@@ -429,6 +429,10 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
     TRY(tf_table_add_item_text(t, "Survey", o->survey_path ? o->survey_path : "none", NULL, err));
     if (j->label[0])
         TRY(tf_table_add_item_text(t, "Population", j->label, NULL, err));
+    if (o->in.estimates && o->from != FROM_FIXED)
+        TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
+                                   "so only counting-error models of continuous amounts (log-normal) were fitted",
+                                   err));
     if (o->from == FROM_FIXED) {
         const tf_growth_type *g = tf_model_growth(j->model);
         TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --fixed", err));

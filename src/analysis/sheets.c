@@ -817,6 +817,13 @@ static tf_status summary_sheet(const tf_analysis *a, const tf_sheets_provenance 
         TRY(tf_table_add_item_text(t, label, tf_project_caution(i), NULL, err));
     }
     TRY(outlier_items(a, t, err));
+    for (size_t i = 0; prov->left_out_from && i < tf_survey_n_rejected(prov->left_out_from); i++) {
+        const tf_survey_rejected *x = tf_survey_rejected_at(prov->left_out_from, i);
+        char text[700], note[64];
+        snprintf(text, sizeof text, "'%.100s', not analysed: %s", x->label, x->what);
+        snprintf(note, sizeof note, "line %ld of the survey file", x->line);
+        TRY(tf_table_add_item_text(t, "Population left out", text, note, err));
+    }
     TRY(provenance_items(a, prov, t, err));
     return tf_report_add_table(r, t, "the first page: findings, cautions and provenance", NULL, err);
 fail:

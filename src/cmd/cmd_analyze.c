@@ -465,7 +465,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_survey_free(sv);
         sv = NULL;
     }
-    if ((st = tf_input_read(&in, path, errs, PROG, &sv, &err)) != TF_OK) {
+    if ((st = tf_input_read(&in, path, quiet ? NULL : errs, PROG, &sv, &err)) != TF_OK) {
         status = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
@@ -474,6 +474,10 @@ static int analyze(int argc, char **argv, int rank, int size)
         status = TF_EXIT_INPUT;
         goto out;
     }
+    /* Populations left out on request are named on the first page (with one chosen, the others
+     * are simply not part of the run). */
+    if (in.skip_unusable && in.n_labels != 1)
+        prov.left_out_from = sv;
     /* A population that no candidate suits is refused now, not after the others were fitted. */
     for (size_t i = 0; i < tf_survey_n_series(sv); i++) {
         const tf_series *s = tf_survey_series(sv, i);

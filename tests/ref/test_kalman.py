@@ -77,7 +77,7 @@ def simulated(path, r, K, sigma, tau, years, start, seed, effort=None, missing=(
 
 
 def likelihood(path, setting, particles, repeats, seed):
-    out = run("likelihood", path, "--model", "gompertz", "--obs", "lognormal", "--set", setting,
+    out = run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", "--set", setting,
               "--particles", str(particles), "--repeat", str(repeats), "--seed", str(seed))
     head, row = out.strip().split("\n")
     assert head == "loglik,se,particles,repeats", head
@@ -123,7 +123,7 @@ def main():
     y, e = simulated(path, r, K, sigma, tau, 30, 300, 5)
     exact = exact_loglik(y, e, r, K, sigma, tau, math.log(300.0), 0.5)
     n = 400
-    ls = np.array([float(run("likelihood", path, "--model", "gompertz", "--obs", "lognormal", "--set", setting,
+    ls = np.array([float(run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", "--set", setting,
                              "--particles", "80", "--repeat", "1", "--seed", str(s + 1)).split("\n")[1].split(",")[0])
                    for s in range(n)])
     bias, half_var = ls.mean() - exact, ls.var(ddof=1) / 2

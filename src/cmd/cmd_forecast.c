@@ -454,8 +454,9 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
         TRY(tf_table_add_item_text(t, "Projected from", "the posterior of one fitted model",
                                    "particle marginal Metropolis-Hastings", err));
         TRY(tf_table_add_item_text(t, "Model", tf_model_name(j->model), NULL, err));
-        snprintf(note, sizeof note, "%zu chains x %zu kept draws, after %zu warm-up; %zu particles", tf_fit_n_chains(f),
-                 tf_fit_n_iter(f), fs->n_warmup, fs->n_particles);
+        snprintf(note, sizeof note, "%zu chains x %zu kept draws, after %zu warm-up; %zu particles, %s proposal",
+                 tf_fit_n_chains(f), tf_fit_n_iter(f), fs->n_warmup, fs->n_particles,
+                 tf_filter_proposal_name(fs->proposal));
         TRY(tf_table_add_item_number(t, "Posterior draws", (double)tf_fit_n_draws(f), TF_COL_INTEGER, note, err));
         TRY(tf_table_add_item_number(t, "R-hat, largest", rhat, TF_COL_NUMBER, "want <= 1.01", err));
         if (!(rhat <= TF_FIT_RHAT_MAX))

@@ -51,6 +51,17 @@ static const bench_case cases[] = {
 #define N_SEEDS 2
 /* Kept draws per chain: analyze's default (see the top of the file). */
 #define KEPT 2500
+/* A fixed length for the comparison of kernels: KEPT draws every THIN-th iteration. */
+#define THIN 8
+
+static tf_pmmh_options fixed_options(void)
+{
+    tf_pmmh_options o = tf_pmmh_default_options();
+    o.thin = THIN;
+    o.min_iter = o.max_iter = KEPT * THIN;
+    o.max_kept = KEPT;
+    return o;
+}
 
 static double now(void)
 {
@@ -66,8 +77,7 @@ typedef struct {
 
 static int run_one(const tf_posterior *post, const tf_series *s, int correlated, uint64_t seed, outcome *o)
 {
-    tf_pmmh_options opt = tf_pmmh_default_options();
-    opt.n_iter = KEPT;
+    tf_pmmh_options opt = fixed_options();
     opt.correlated = correlated;
     opt.seed = seed;
     opt.n_threads = 2;
@@ -199,8 +209,8 @@ static void exact_main(exact_chain *e)
         tf_chain_step(e->chain);
     tf_chain_set_adapt(e->chain, 0);
     tf_chain_reset_counts(e->chain);
-    for (size_t it = 0; it < r->opt.n_iter; it++) {
-        for (size_t k = 0; k < r->opt.thin; k++)
+    for (size_t it = 0; it < KEPT; it++) {
+        for (size_t k = 0; k < THIN; k++)
             tf_chain_step(e->chain);
         memcpy(e->draws + it * d, tf_chain_theta(e->chain), d * sizeof(double));
     }
@@ -288,8 +298,7 @@ static int exact_pool(exact_run *r)
 static int run_exact(const tf_posterior *post, const tf_series *s, uint64_t seed, outcome *o)
 {
     double t0 = now();
-    exact_run r = {.post = post, .s = s, .opt = tf_pmmh_default_options()};
-    r.opt.n_iter = KEPT;
+    exact_run r = {.post = post, .s = s, .opt = fixed_options()};
     r.dim = tf_posterior_dim(post);
     r.n_pilot = r.opt.n_warmup / 2;
     r.n_warm = r.opt.n_warmup - r.n_pilot;
@@ -321,7 +330,7 @@ static int run_exact(const tf_posterior *post, const tf_series *s, uint64_t seed
         tf_rng_derive(&e->rng, seed, keys, 2);
         e->pilot_z = malloc(r.n_pilot_kept * d * sizeof(double));
         e->pilot_lt = malloc(r.n_pilot_kept * sizeof(double));
-        e->draws = malloc(r.opt.n_iter * d * sizeof(double));
+        e->draws = malloc(KEPT * d * sizeof(double));
         if (!e->pilot_z || !e->pilot_lt || !e->draws || !kalman_target_init(&e->kt, post, s))
             goto done;
     }
@@ -329,7 +338,7 @@ static int run_exact(const tf_posterior *post, const tf_series *s, uint64_t seed
         goto done;
     tf_error err;
     tf_error_init(&err);
-    if (tf_diag_workspace_alloc(nc, r.opt.n_iter, &w, &err) != TF_OK)
+    if (tf_diag_workspace_alloc(nc, KEPT, &w, &err) != TF_OK)
         goto done;
     o->ess_bulk = INFINITY;
     o->rhat = 0;
@@ -338,7 +347,7 @@ static int run_exact(const tf_posterior *post, const tf_series *s, uint64_t seed
         for (size_t c = 0; c < nc; c++)
             chains[c] = r.chains[c].draws + p;
         tf_diag_summary ds;
-        if (tf_diag_summarise(w, chains, nc, r.opt.n_iter, d, &ds, &err) != TF_OK)
+        if (tf_diag_summarise(w, chains, nc, KEPT, d, &ds, &err) != TF_OK)
             goto done;
         o->ess_bulk = fmin(o->ess_bulk, ds.ess_bulk);
         o->rhat = fmax(o->rhat, ds.rhat);
@@ -385,13 +394,12 @@ static int compare_exact(void)
         tf_error_print(&err, "bench_fit", stderr);
         ok = 0;
     }
-    tf_pmmh_options d = tf_pmmh_default_options();
-    d.n_iter = KEPT;
+    tf_pmmh_options d = fixed_options();
     if (ok)
         printf("\nbench_fit: PMMH against Metropolis-Hastings with the exact (Kalman) likelihood, %s "
                "(%zu years) gompertz+lognormal,\n  same priors, %zu chains x %zu kept (thin %zu) after %zu "
                "warm-up, same adaptation, 2 threads each\n",
-               strrchr(file, '/') + 1, tf_series_n_years(s), d.n_chains, d.n_iter, d.thin, d.n_warmup);
+               strrchr(file, '/') + 1, tf_series_n_years(s), d.n_chains, (size_t)KEPT, d.thin, d.n_warmup);
     if (ok)
         printf("%-8s %4s %6s %5s %7s %8s %6s %6s %9s\n", "sampler", "seed", "N", "sd", "time_s", "ess_bulk", "rhat",
                "accept", "ess/s");
@@ -433,10 +441,9 @@ int main(void)
 {
     /* The default model files sit in models/ of the repository root. */
     setenv("TALLYFIT_MODELS", "models", 0);
-    tf_pmmh_options d = tf_pmmh_default_options();
-    d.n_iter = KEPT;
+    tf_pmmh_options d = fixed_options();
     printf("bench_fit: %zu chains x %zu iterations (every %zu-th kept) after %zu warm-up, 2 threads, rho %.2f\n",
-           d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, d.rho);
+           d.n_chains, d.max_iter, d.thin, d.n_warmup, d.rho);
     printf("%-40s %-10s %4s %6s %5s %7s %8s %8s %6s %8s\n", "case", "method", "seed", "N", "sd", "time_s",
            "ess_bulk", "ess_tail", "rhat", "ess/s");
     double log_ratio_sum = 0;

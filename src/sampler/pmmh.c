@@ -26,13 +26,37 @@ tf_pmmh_options tf_pmmh_default_options(void)
         /* Four chains: the number split R-hat is designed around (Vehtari et al. 2021,
          * section 4). */
         .n_chains = 4,
-        /* 40000 iterations per chain after a warm-up of 5000, every 8th kept. On the demo
-         * surveys (Poisson counts) 20000 left the funnel-shaped posteriors of the density-
-         * dependent models (r near 0 frees K) short of R-hat 1.01 for some seeds; 40000 reached
-         * it with bulk ESS near 1000 in about 10 s per population on 2 cores. Thinning only trims
-         * the output: draws 8 apart are still correlated at acceptance rates of 0.1-0.25. */
-        .n_iter = 5000,
-        .thin = 8,
+        /* Run length by need (pmmh.h). The run stops at the first block end where every
+         * watched quantity has R-hat <= 1.01 and bulk and tail ESS >= 400 (Vehtari, Gelman,
+         * Simpson, Carpenter & Buerkner 2021, Bayesian Analysis 16:667, section 4: the
+         * thresholds they recommend), after at least 2000 iterations per chain and at most
+         * 160000.
+         * Stopping when an estimate from the draws themselves passes a threshold biases the
+         * result a little towards runs whose estimates happen to look good. Jones, Haran, Caffo
+         * & Neath (2006, JASA 101:1537) show that such sequential fixed-width rules stop with the
+         * asserted precision asymptotically, and that a minimum run length guards against the
+         * early stops that cause most of the trouble; Vats, Flegal & Jones (2019, Biometrika
+         * 106:321, section 3 and Theorem 3) show the same for a rule that stops once the
+         * multivariate ESS passes a bound, which is what this rule asks of each quantity. The
+         * bias is of the order of the Monte Carlo error left at the stop, and at ESS >= 400
+         * that error is sd / 20: the exactness check against the exact-likelihood sampler and
+         * the coverage check on simulated series (tests/unit/test_pmmh.c,
+         * tests/ref/test_fit_recovery.py) run with this rule.
+         * 2000 iterations: below that the split-chain ESS and R-hat of 4 chains are themselves
+         * too noisy to stop on (common practice, no source); few fits reach ESS 400 that early
+         * at PMMH's acceptance rates of 0.1-0.3 anyway. 160000: four times the 40000 that the
+         * demo surveys' funnel-shaped posteriors (density-dependent growth with r near 0) once
+         * needed with a fixed length, the most the former "doublings" allowed. */
+        .min_iter = 2000,
+        .max_iter = 160000,
+        .min_ess = TF_FIT_ESS_MIN,
+        /* Every iteration kept until 4000 per chain are, then every second, and so on: the kept
+         * draws (16000 of 4 chains) stay at most a few MB with their latent paths, and are
+         * enough draws for the marginal likelihood's mixture fit and the projections'
+         * starts (common practice, no source). Thinning trims memory only: it never adds
+         * information (MacEachern & Berliner 1994, The American Statistician 48:188). */
+        .thin = 1,
+        .max_kept = 4000,
         .n_warmup = 5000,
         .n_threads = 1,
         .seed = 1,
@@ -40,12 +64,6 @@ tf_pmmh_options tf_pmmh_default_options(void)
         .correlated = 0,
         .rho = 0.99,
         .pilot_particles = 100,
-        /* Up to two doublings (4x the iterations) for the few fits that need them, such as
-         * Gompertz growth with negative-binomial counts on a population near its carrying
-         * capacity, where K has a long tail. Running on with the frozen kernel until the
-         * diagnostics pass is common practice (no source); the small bias of a stopping rule
-         * based on the draws themselves is far below their Monte Carlo error at ESS >= 400. */
-        .max_doublings = 2,
     };
     return o;
 }
@@ -146,9 +164,10 @@ struct run {
     atomic_size_t n_finished;
     atomic_int stop_now;
     int inline_work;          /* the calling thread runs the chains itself */
-    /* Kept draws: thinning in force, first draw index to record (after tf_fit_halve), and the
-     * iterations since the last kept draw that are already behind the chain. */
-    size_t thin, keep_from, behind;
+    /* Kept draws: thinning in force, the block's draw indices to record [keep_from, keep_to),
+     * and the iterations since the last kept draw that are already behind the chain (after
+     * tf_fit_halve). */
+    size_t thin, keep_from, keep_to, behind;
     size_t total;             /* iterations per chain so far planned, for progress */
     tf_pmmh_phase phase;
 };
@@ -235,8 +254,6 @@ static tf_status run_pilot(job *j)
     return TF_OK;
 }
 
-static tf_status run_kept(job *j);
-
 /* Warm-up and kept draws: the exact PMMH chain with the tuned particle count, from the pilot's
  * end point, its proposal started at the pooled pilot covariance. */
 static tf_status run_main(job *j)
@@ -302,15 +319,16 @@ static tf_status run_main(job *j)
     tf_chain_set_adapt(j->chain, 0);
     tf_chain_reset_counts(j->chain);
     reset_phase_counts(j);
-    return run_kept(j);
+    return TF_OK;
 }
 
-/* The kept draws from index r->keep_from on, r->thin iterations apart, the first r->behind
- * iterations early because they were run before (see tf_pmmh_run's doublings). */
+/* One block: the kept draws from index r->keep_from to r->keep_to, r->thin iterations apart,
+ * the first r->behind iterations early because they were run before (see tf_pmmh_run's
+ * halvings). */
 static tf_status run_kept(job *j)
 {
     run *r = j->r;
-    for (size_t it = r->keep_from; it < r->opt.n_iter; it++) {
+    for (size_t it = r->keep_from; it < r->keep_to; it++) {
         size_t steps = r->thin - (it == r->keep_from ? r->behind : 0);
         for (size_t k = 0; k < steps; k++) {
             if (worker_stopped(r))
@@ -543,11 +561,13 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
                       void *progress_ctx, tf_fit **out, tf_error *err)
 {
     *out = NULL;
-    if (opt->n_chains == 0 || opt->n_chains > TF_FIT_MAX_CHAINS || opt->n_iter == 0 || opt->thin == 0 ||
-        opt->n_threads == 0 || opt->n_warmup < 20 ||
+    if (opt->n_chains == 0 || opt->n_chains > TF_FIT_MAX_CHAINS || opt->thin == 0 ||
+        opt->min_iter < opt->thin || opt->max_iter < opt->min_iter || opt->max_kept < 8 ||
+        !(opt->min_ess > 0) || opt->n_threads == 0 || opt->n_warmup < 20 ||
         opt->pilot_particles == 0 || !(opt->rho >= 0 && opt->rho < 1))
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0,
-                            "chains, iterations and threads must be >= 1, warm-up >= 20, rho in [0, 1)",
+                            "chains and threads must be >= 1, thin <= minimum iterations <= maximum, "
+                            ">= 8 kept draws, ESS target > 0, warm-up >= 20, rho in [0, 1)",
                             "unusable sampler settings");
     run r = {.post = post, .model = tf_posterior_model(post), .series = s, .opt = *opt,
              .stop = stop, .phase = TF_PMMH_PILOT};
@@ -560,7 +580,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     r.n_warm = opt->n_warmup - r.n_pilot;
     r.n_pilot_kept = r.n_pilot / 2;
     r.thin = opt->thin;
-    r.total = opt->n_warmup + opt->n_iter * opt->thin;
+    r.total = opt->n_warmup + opt->min_iter;
     r.pilot_stride = 1;
     if (r.n_pilot_kept > PILOT_MAX_KEPT) {
         r.pilot_stride = (r.n_pilot_kept + PILOT_MAX_KEPT - 1) / PILOT_MAX_KEPT;
@@ -576,7 +596,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     r.prior_cov = malloc(d * d * sizeof(double));
     r.centre_z = malloc(d * sizeof(double));
     r.pilot_cov = malloc(d * d * sizeof(double));
-    r.fit = tf_fit_alloc(r.model, s, opt->n_chains, opt->n_iter);
+    r.fit = tf_fit_alloc(r.model, s, opt->n_chains, opt->max_kept);
     if (!done || !acceptance || !r.jobs || !r.prior_cov || !r.centre_z || !r.pilot_cov || !r.fit)
         goto nomem;
     uint64_t keys[3] = {tf_rng_key(tf_series_label(s)), tf_rng_key(tf_model_name(r.model)), 0};
@@ -637,29 +657,65 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     if ((st = run_phase(&r, run_main, &ps, err)) != TF_OK)
         goto fail;
     tf_fit_set_posterior(r.fit, post);
-    if ((st = tf_fit_summarise(r.fit, err)) != TF_OK)
-        goto fail;
-    /* Doubling: keep every second draw, then go on at twice the thinning; the chain continues
-     * with the same frozen kernel, so the kept draws are exactly those of a run planned with the
-     * doubled thinning from the start (the iterations already run since the last draw kept count
-     * towards the first new one). */
-    size_t n_doublings = 0;
-    while (n_doublings < opt->max_doublings && opt->n_iter >= 2 &&
-           opt->n_chains * opt->n_iter >= TF_PMMH_DOUBLING_MIN_DRAWS &&
-           !tf_fit_converged(r.fit)) {
-        size_t h = tf_fit_halve(r.fit);
-        r.behind = (opt->n_iter - 2 * h) * r.thin;
-        r.keep_from = h;
-        r.total += (opt->n_iter - h) * 2 * r.thin - r.behind;
-        r.thin *= 2;
-        n_doublings++;
+    /* Blocks of kept draws until the stopping rule (pmmh.h) holds at a block's end. The rule
+     * reads only the draws, and every chain runs the whole block before it is read, so where the
+     * run stops does not depend on the thread count. When the kept draws fill the store, every
+     * second one is dropped and the thinning doubles: the chain continues with the same frozen
+     * kernel, so the kept draws are exactly those of a run thinned twice as much from the start
+     * (the iterations already run since the last draw kept count towards the first new one). */
+    size_t block = opt->max_kept / TF_PMMH_BLOCKS_PER_STORE, n_kept = 0, n_run = 0,
+           n_doublings = 0;
+    int stopped_early = 0, summarised = 0;
+    if (block < 1)
+        block = 1;
+    r.behind = 0;
+    while (n_run < opt->max_iter) {
+        if (n_kept + block > opt->max_kept) {
+            size_t h = tf_fit_halve(r.fit);
+            r.behind = (n_kept - 2 * h) * r.thin;
+            n_kept = h;
+            r.thin *= 2;
+            n_doublings++;
+            summarised = 0;
+        }
+        /* The last block ends at the maximum length, rounded down to a kept draw; the first
+         * ends at the minimum when that is shorter than a block. */
+        size_t want = block, left = (opt->max_iter - n_run + r.behind) / r.thin;
+        if (n_run < opt->min_iter) {
+            size_t to_min = (opt->min_iter - n_run + r.behind + r.thin - 1) / r.thin;
+            if (to_min < want)
+                want = to_min;
+        }
+        if (left < want)
+            want = left;
+        if (want == 0)
+            break;
+        r.keep_from = n_kept;
+        r.keep_to = n_kept + want;
+        r.total = opt->n_warmup + n_run + want * r.thin - r.behind;
         if ((st = run_phase(&r, run_kept, &ps, err)) != TF_OK)
             goto fail;
+        n_run += want * r.thin - r.behind;
+        n_kept += want;
+        r.behind = 0;
+        tf_fit_set_n_iter(r.fit, n_kept);
+        summarised = 0;
+        if (n_run < opt->min_iter)
+            continue;
         if ((st = tf_fit_summarise(r.fit, err)) != TF_OK)
             goto fail;
+        summarised = 1;
+        if (n_run < opt->max_iter && tf_fit_meets(r.fit, TF_FIT_RHAT_MAX, opt->min_ess)) {
+            stopped_early = 1;
+            break;
+        }
     }
+    tf_fit_compact(r.fit);
+    if (!summarised && (st = tf_fit_summarise(r.fit, err)) != TF_OK)
+        goto fail;
 
-    tf_fit_settings fs = {.n_warmup = opt->n_warmup, .thin = r.thin, .n_doublings = n_doublings,
+    tf_fit_settings fs = {.n_warmup = opt->n_warmup, .n_iterations = n_run, .thin = r.thin,
+                          .n_doublings = n_doublings, .stopped_early = stopped_early,
                           .n_particles = r.n_particles,
                           .loglik_sd = tr.sd, .correlated = opt->correlated, .rho = opt->rho,
                           .seed = opt->seed, .seconds = now_seconds() - t0};

@@ -771,7 +771,12 @@ static tf_status provenance_items(const tf_analysis *a, const tf_sheets_provenan
     snprintf(text, sizeof text, "%zu simulated futures over %zu years, models weighted by their posterior probabilities",
              tf_projection_n_runs(pr), tf_projection_horizon(pr));
     TRY(tf_table_add_item_text(t, "Projection", text, NULL, err));
-    snprintf(text, sizeof text, "importance sampling squared, %zu draws per importance density", o->evidence.n_draws);
+    if (o->evidence.target_se > 0)
+        snprintf(text, sizeof text,
+                 "importance sampling squared, draws per importance density until the standard error of log p(y) "
+                 "is at most %.2f (at most %zu)", o->evidence.target_se, o->evidence.n_draws);
+    else
+        snprintf(text, sizeof text, "importance sampling squared, %zu draws per importance density", o->evidence.n_draws);
     TRY(tf_table_add_item_text(t, "Marginal likelihoods", text, "see each models sheet", err));
     return TF_OK;
 fail:

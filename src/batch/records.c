@@ -68,7 +68,8 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     line(f, "correlated", "%d %.17g", a->fit.correlated, a->fit.rho);
     line(f, "pilot-particles", "%zu", a->fit.pilot_particles);
     const tf_evidence_options *e = &a->evidence;
-    line(f, "ml-draws", "%zu", e->n_draws);
+    line(f, "ml-draws", "%zu %zu", e->min_draws, e->n_draws);
+    line(f, "ml-se", "%.17g", e->target_se);
     line(f, "ml-adapt", "%zu %zu", e->n_adapt_rounds, e->n_adapt_draws);
     line(f, "ml-mixture", "%.17g %zu %.17g %.17g", e->nu, e->n_components, e->defensive_weight, e->defensive_scale);
     line(f, "ml-check", "%.17g %.17g", e->check_nu, e->check_scale);

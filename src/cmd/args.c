@@ -395,6 +395,18 @@ tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err
 #define RUN_MAX_KEPT ((size_t)10000000)
 #define RUN_MIN_KEPT ((size_t)8)
 
+tf_status tf_args_parse_ml_se(const char *text, double *out, tf_error *err)
+{
+    double v;
+    if (tf_args_parse_double("--ml-se", text, &v, err) != TF_OK)
+        return TF_ERR_USAGE;
+    if (!(v >= 0 && v <= 10))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --ml-se 0.05, or 0 for always --draws draws",
+                            "--ml-se: %s is not between 0 and 10", text);
+    *out = v;
+    return TF_OK;
+}
+
 void tf_args_run_init(tf_args_run *r)
 {
     memset(r, 0, sizeof *r);

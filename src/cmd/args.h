@@ -146,6 +146,10 @@ tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error
  * width columns. */
 void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width);
 
+/* --ml-se S: the standard error of each log marginal likelihood that its importance draws stop
+ * at, 0 (always the --draws cap) to 10. */
+tf_status tf_args_parse_ml_se(const char *text, double *out, tf_error *err);
+
 /* The default number of threads: the processors online (1 when unknown), at most max. */
 size_t tf_args_default_threads(size_t max);
 

@@ -80,7 +80,10 @@ static void help(FILE *out, const tf_analysis_options *d)
     fprintf(out,
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
-            "  --draws M          importance draws per density for each marginal likelihood (default %zu)\n"
+            "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
+            "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
+            "  --draws M          importance draws per density for each marginal likelihood, at most\n"
+            "                     (default %zu)\n"
             "  --runs R           simulated futures (default: at least %d)\n"
             "  --batch            analyse the populations as a batch even when there are few (see below)\n"
             "  --fresh            in batch mode: discard the results of an earlier batch in the folder\n"
@@ -99,7 +102,7 @@ static void help(FILE *out, const tf_analysis_options *d)
             "Exit status: 0 done, 1 the job could not be done (batch: some populations failed; the\n"
             "summary says why), 2 bad command line or a batch folder with other settings, 3 unusable\n"
             "survey, 130 interrupted (single survey: nothing written; batch: run it again to go on).\n",
-            d->fit.n_warmup, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
+            d->fit.n_warmup, d->evidence.target_se, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
 }
 
 /* The plain lines on one population. */
@@ -285,7 +288,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
-           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT };
+           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -300,6 +303,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"draws", required_argument, NULL, OPT_DRAWS},
+        {"ml-se", required_argument, NULL, OPT_ML_SE},
         {"runs", required_argument, NULL, OPT_RUNS},
         {"batch", no_argument, NULL, OPT_BATCH},
         {"fresh", no_argument, NULL, OPT_FRESH},
@@ -361,6 +365,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
+        case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;
         case OPT_BATCH: batch = 1; break;
         case OPT_FRESH: fresh = 1; break;

@@ -65,12 +65,14 @@ static void help(FILE *out)
     fprintf(out,
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
-            "  --draws M          importance draws per density (default %zu)\n"
+            "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
+            "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
+            "  --draws M          importance draws per density at most (default %zu)\n"
             "  --threads T        threads (default: the number of processors); models run in\n"
             "                     parallel, and the results do not depend on T\n"
             "  --quiet            print nothing but warnings and errors\n"
             "  -h, --help         show this help\n",
-            d.n_warmup, e.n_draws);
+            d.n_warmup, e.target_se, e.n_draws);
 }
 
 static void show_progress(void *ctx, size_t index, const char *model, tf_compare_event ev, double seconds)
@@ -172,7 +174,7 @@ static void print_warnings(const tf_comparison *c)
 int tf_cmd_compare(int argc, char **argv)
 {
     enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_WARMUP,
-           OPT_PARTICLES, OPT_DRAWS, OPT_THREADS, OPT_QUIET };
+           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET };
     static const struct option longopts[] = {
         {"models", required_argument, NULL, OPT_MODELS},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -185,6 +187,7 @@ int tf_cmd_compare(int argc, char **argv)
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"draws", required_argument, NULL, OPT_DRAWS},
+        {"ml-se", required_argument, NULL, OPT_ML_SE},
         {"threads", required_argument, NULL, OPT_THREADS},
         {"quiet", no_argument, NULL, OPT_QUIET},
         {"help", no_argument, NULL, 'h'},
@@ -227,6 +230,7 @@ int tf_cmd_compare(int argc, char **argv)
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err);
             break;
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
+        case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
         case OPT_QUIET: quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;

@@ -130,7 +130,8 @@ static void help(FILE *out)
             "  --particles N           particles of the filter (default: tuned per model)\n"
             "  --priors FILE           --model only: a model file overriding some or all default priors\n"
             "  --draws M               --average only: importance draws per density for each marginal\n"
-            "                          likelihood (default %zu)\n"
+            "                          likelihood, at most (default %zu; fewer once its standard error\n"
+            "                          is at most %.2f, as in analyze)\n"
             "  --threads T             threads (default: the number of processors); the results do not\n"
             "                          depend on T\n"
             "  -h, --help              this text\n"
@@ -142,7 +143,7 @@ static void help(FILE *out)
             "\n"
             "Exit status: 0 done, 1 the job could not be done, 2 bad command line, 3 unusable survey,\n"
             "130 interrupted (nothing written).\n",
-            d.n_warmup, a.evidence.n_draws);
+            d.n_warmup, a.evidence.n_draws, a.evidence.target_se);
 }
 
 /* ---- fixed parameters --------------------------------------------------------------------------- */

@@ -94,12 +94,16 @@ typedef struct {
     tf_analysis_progress_fn fn;
     void *ctx;
     tf_analysis_event ev;   /* population fields filled in; the rest per call */
+    double started[TF_COMPARE_MAX_MODELS];   /* when each candidate started, in the comparison's
+                                              * seconds */
 } progress_relay;
 
 static void relay_compare(void *ctx, size_t index, const char *model_name, tf_compare_event ev, double seconds)
 {
     (void)index;
     progress_relay *r = ctx;
+    if (ev == TF_COMPARE_STARTED && index < TF_COMPARE_MAX_MODELS)
+        r->started[index] = seconds;
     if (ev != TF_COMPARE_DONE && ev != TF_COMPARE_FAILED)
         return;
     /* The comparison calls one at a time under its lock, so the shared event is safe. */
@@ -108,6 +112,7 @@ static void relay_compare(void *ctx, size_t index, const char *model_name, tf_co
     e.model = model_name;
     e.failed = ev == TF_COMPARE_FAILED;
     e.seconds = seconds;
+    e.model_seconds = index < TF_COMPARE_MAX_MODELS ? seconds - r->started[index] : NAN;
     r->fn(r->ctx, &e);
 }
 

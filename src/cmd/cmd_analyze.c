@@ -465,8 +465,11 @@ static int analyze(int argc, char **argv, int rank, int size)
     if ((st = tf_provenance_hash_file(path, prov.sha256, &err)) != TF_OK)
         goto out;
     tf_provenance_format_date(tf_provenance_now(), prov.date);
-    int show = !quiet && isatty(STDERR_FILENO);
-    if ((st = tf_analysis_run(sv, &opt, interrupted, show ? tf_messages_analysis : NULL, name, &a, &err)) != TF_OK) {
+    /* Without --quiet the time of each model is shown: with the whole progress on a terminal, as
+     * one plain line per model otherwise (a log of `analyze ... 2>log`). */
+    tf_analysis_progress_fn show =
+        quiet ? NULL : isatty(STDERR_FILENO) ? tf_messages_analysis : tf_messages_analysis_plain;
+    if ((st = tf_analysis_run(sv, &opt, interrupted, show, name, &a, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }

@@ -411,6 +411,7 @@ void tf_args_run_init(tf_args_run *r)
 {
     memset(r, 0, sizeof *r);
     r->min_ess = NAN;
+    r->delayed = -1;
 }
 
 const char *tf_args_run_option(int code, const char *text, tf_args_run *r, tf_error *err)
@@ -431,6 +432,15 @@ const char *tf_args_run_option(int code, const char *text, tf_args_run *r, tf_er
     case TF_ARGS_OPT_KEPT:
         tf_args_parse_size("--kept-draws", text, RUN_MIN_KEPT, RUN_MAX_KEPT, &r->kept, err);
         return "--kept-draws";
+    case TF_ARGS_OPT_DELAYED:
+        if (!strcmp(text, "on"))
+            r->delayed = 1;
+        else if (!strcmp(text, "off"))
+            r->delayed = 0;
+        else
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give on or off",
+                         "--delayed-acceptance: '%s' is neither on nor off", text);
+        return "--delayed-acceptance";
     case TF_ARGS_OPT_MIN_ESS: {
         double v;
         if (tf_args_parse_double("--min-ess", text, &v, err) == TF_OK) {
@@ -472,6 +482,8 @@ tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error
         opt->max_kept = r->kept;
     if (!isnan(r->min_ess))
         opt->min_ess = r->min_ess;
+    if (r->delayed >= 0)
+        opt->delayed = r->delayed;
     if (opt->min_iter > opt->max_iter)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                             "--min-iterations %zu is above --max-iterations %zu", opt->min_iter,
@@ -503,6 +515,11 @@ void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width)
             "  %-*s whenever the kept draws fill their store\n",
             w, "--thin K", d->thin, w, "");
     fprintf(out, "  %-*s keep at most N draws per chain (default %zu)\n", w, "--kept-draws N", d->max_kept);
+    fprintf(out,
+            "  --delayed-acceptance on|off\n"
+            "  %-*s screen each proposal with a cheap approximate likelihood before the\n"
+            "  %-*s particle filter runs; exact either way (default %s)\n",
+            w, "", w, "", d->delayed ? "on" : "off");
 }
 
 size_t tf_args_default_threads(size_t max)

@@ -114,20 +114,22 @@ tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err
  * puts TF_ARGS_RUN_LONGOPTS in its getopt_long table and passes every option code it does not
  * know itself to tf_args_run_option. */
 enum { TF_ARGS_OPT_ITER = 1000, TF_ARGS_OPT_MIN_ITER, TF_ARGS_OPT_MAX_ITER, TF_ARGS_OPT_MIN_ESS,
-       TF_ARGS_OPT_THIN, TF_ARGS_OPT_KEPT };
+       TF_ARGS_OPT_THIN, TF_ARGS_OPT_KEPT, TF_ARGS_OPT_DELAYED };
 #define TF_ARGS_RUN_LONGOPTS                                                                      \
     {"iterations", required_argument, NULL, TF_ARGS_OPT_ITER},                                    \
     {"min-iterations", required_argument, NULL, TF_ARGS_OPT_MIN_ITER},                            \
     {"max-iterations", required_argument, NULL, TF_ARGS_OPT_MAX_ITER},                            \
     {"min-ess", required_argument, NULL, TF_ARGS_OPT_MIN_ESS},                                    \
     {"thin", required_argument, NULL, TF_ARGS_OPT_THIN},                                          \
-    {"kept-draws", required_argument, NULL, TF_ARGS_OPT_KEPT}
+    {"kept-draws", required_argument, NULL, TF_ARGS_OPT_KEPT},                                    \
+    {"delayed-acceptance", required_argument, NULL, TF_ARGS_OPT_DELAYED}
 
 /* The run-length options as given; 0 (NAN for min_ess) where not given. Zero it with
  * tf_args_run_init. */
 typedef struct {
     size_t iterations, min_iter, max_iter, thin, kept;
     double min_ess;
+    int delayed;   /* --delayed-acceptance on (1) or off (0); -1 = not given */
 } tf_args_run;
 
 void tf_args_run_init(tf_args_run *r);

@@ -301,18 +301,20 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
                      "(correlated method: of the log-ratio of two successive estimates)", TF_COL_NUMBER, err) &&
              add_col(t, "method", "standard or correlated pseudo-marginal", TF_COL_TEXT, err) &&
              add_col(t, "rho", "correlation of successive random numbers (correlated method)", TF_COL_NUMBER, err) &&
+             add_col(t, "screened", "delayed acceptance: share of proposals the cheap screen rejected without a "
+                     "particle filter run (mean over chains; empty when off)", TF_COL_PROBABILITY, err) &&
              add_col(t, "seed", NULL, TF_COL_TEXT, err);
     for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++) {
-        double v[12] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
+        double v[13] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
                         (double)st->n_iterations, (double)tf_fit_n_iter(f), (double)st->thin,
                         (double)st->stopped_early, (double)st->n_particles, st->loglik_sd, NAN,
-                        st->correlated ? st->rho : NAN};
+                        st->correlated ? st->rho : NAN, st->delayed ? st->screened : NAN};
         char seed[32];
         snprintf(seed, sizeof seed, "%llu", (unsigned long long)st->seed);
         size_t row = tf_table_n_rows(t);
-        ok = tf_table_add_row_numbers(t, v, 12, err) == TF_OK &&
+        ok = tf_table_add_row_numbers(t, v, 13, err) == TF_OK &&
              tf_table_set_text(t, row, 10, st->correlated ? "correlated" : "standard", err) == TF_OK &&
-             tf_table_set_text(t, row, 12, seed, err) == TF_OK;
+             tf_table_set_text(t, row, 13, seed, err) == TF_OK;
     }
     if (!ok) {
         tf_table_free(t);

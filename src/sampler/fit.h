@@ -101,6 +101,8 @@ typedef struct {
     double loglik_sd;
     int correlated;
     double rho;
+    int delayed;              /* delayed acceptance was on (pmmh.h) */
+    double screened;          /* share of the kept draws' proposals the screen rejected */
     uint64_t seed;
     double seconds;
 } tf_fit_settings;

@@ -18,6 +18,7 @@
 
 #include "filter/filter.h"
 #include "sampler/chain.h"
+#include "sampler/screen.h"
 #include "sampler/tune.h"
 
 tf_pmmh_options tf_pmmh_default_options(void)
@@ -97,8 +98,15 @@ tf_pmmh_options tf_pmmh_default_options(void)
 typedef struct {
     const tf_posterior *post;
     tf_filter *filter;
+    tf_screen *screen;   /* delayed acceptance's screen; NULL when off */
     size_t n_move;
 } lik_ctx;
+
+static double log_screen_cb(void *ctx, const double *theta)
+{
+    const lik_ctx *l = ctx;
+    return tf_screen_loglik(l->screen, theta);
+}
 
 static double log_prior_cb(void *ctx, const double *z, double *theta)
 {
@@ -139,6 +147,7 @@ typedef struct {
     atomic_size_t done;
     atomic_size_t accepted;   /* in the current phase */
     atomic_size_t steps;      /* in the current phase */
+    double screened;          /* share of the kept draws' proposals the screen rejected */
     tf_status status;
     tf_error err;
 } job;
@@ -283,6 +292,11 @@ static tf_status run_main(job *j)
     tf_chain_target t = {.dim = d, .n_path = r->n_years, .ctx = &j->lik,
                          .log_prior = log_prior_cb, .log_lik = log_lik_standard};
     tf_chain_options co = tf_chain_default_options();
+    if (r->opt.delayed) {
+        if (!(j->lik.screen = tf_screen_alloc(r->model, r->series)))
+            return tf_error_add(&j->err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for a chain");
+        t.log_screen = log_screen_cb;
+    }
     if (r->opt.correlated) {
         j->lik.n_move = tf_filter_n_move(j->lik.filter);
         t.n_aux = j->lik.n_move + tf_filter_n_pick(j->lik.filter);
@@ -341,6 +355,7 @@ static tf_status run_kept(job *j)
     double n = (double)tf_chain_n_steps(j->chain);
     tf_fit_set_chain_stats(r->fit, j->index, (double)tf_chain_n_accepted(j->chain) / n,
                            (double)tf_chain_n_invalid(j->chain) / n);
+    j->screened = (double)tf_chain_n_screened(j->chain) / n;
     return TF_OK;
 }
 
@@ -545,6 +560,7 @@ static void free_run(run *r)
         for (size_t c = 0; c < r->opt.n_chains; c++) {
             tf_chain_free(r->jobs[c].chain);
             tf_filter_free(r->jobs[c].lik.filter);
+            tf_screen_free(r->jobs[c].lik.screen);
             free(r->jobs[c].pilot_z);
             free(r->jobs[c].pilot_lt);
         }
@@ -714,7 +730,11 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     if (!summarised && (st = tf_fit_summarise(r.fit, err)) != TF_OK)
         goto fail;
 
+    double screened = 0;
+    for (size_t c = 0; c < opt->n_chains; c++)
+        screened += r.jobs[c].screened / (double)opt->n_chains;
     tf_fit_settings fs = {.n_warmup = opt->n_warmup, .n_iterations = n_run, .thin = r.thin,
+                          .delayed = opt->delayed, .screened = screened,
                           .n_doublings = n_doublings, .stopped_early = stopped_early,
                           .n_particles = r.n_particles,
                           .loglik_sd = tr.sd, .correlated = opt->correlated, .rho = opt->rho,

@@ -33,6 +33,10 @@ typedef struct {
     int correlated;          /* correlated pseudo-marginal method (Deligiannidis et al. 2018) */
     double rho;              /* its correlation, in [0, 1) */
     size_t pilot_particles;  /* particles of the pilot phase */
+    /* Delayed acceptance in the exact chains: each proposal is screened by the extended Kalman
+     * filter of screen.h before the particle filter runs (chain.h, log_screen). Exact either
+     * way; it only changes the cost per iteration and the mixing. */
+    int delayed;
 } tf_pmmh_options;
 
 /* Blocks: an eighth of max_kept kept draws each, so that the run looks at its diagnostics eight

@@ -105,6 +105,7 @@ expect 2 "is above --max-iterations" "$T" fit "$tmp/s.csv" --model exponential -
 expect 2 "--min-ess" "$T" fit "$tmp/s.csv" --model exponential --min-ess 0
 expect 2 "--kept-draws" "$T" fit "$tmp/s.csv" --model exponential --kept-draws 3
 expect 2 "unrecognized|unknown option" "$T" fit "$tmp/s.csv" --model exponential --doublings 2
+expect 2 "neither on nor off" "$T" fit "$tmp/s.csv" --model exponential --delayed-acceptance maybe
 
 # A run by need: it stops between its bounds once the checks pass (a low ESS target, so that it
 # is quick), says so in the sampler table, and keeps at most --kept-draws draws per chain.

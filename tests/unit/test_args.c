@@ -291,6 +291,18 @@ START_TEST(operand_draws_and_folders)
     tf_error_init(&err);
     tf_args_run_option(TF_ARGS_OPT_KEPT, "7", &run, &err);
     ck_assert_int_eq(tf_error_status(&err), TF_ERR_USAGE);
+    /* --delayed-acceptance on|off, and nothing else. */
+    tf_args_run_init(&run);
+    tf_error_init(&err);
+    po = tf_pmmh_default_options();
+    ck_assert_str_eq(tf_args_run_option(TF_ARGS_OPT_DELAYED, "on", &run, &err), "--delayed-acceptance");
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_OK);
+    ck_assert_int_eq(po.delayed, 1);
+    tf_args_run_option(TF_ARGS_OPT_DELAYED, "off", &run, &err);
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_OK);
+    ck_assert_int_eq(po.delayed, 0);
+    tf_args_run_option(TF_ARGS_OPT_DELAYED, "yes", &run, &err);
+    ck_assert_int_eq(tf_error_status(&err), TF_ERR_USAGE);
     ck_assert_uint_ge(tf_args_default_threads(SIZE_MAX), 1);
     ck_assert_uint_eq(tf_args_default_threads(1), 1);
 

@@ -8,6 +8,8 @@
 #include <string.h>
 
 #include "kalman_ref.h"
+#include "sampler/screen.h"
+#include "filter/filter.h"
 #include "model/model.h"
 #include "model/prior.h"
 #include "sampler/chain.h"
@@ -190,8 +192,8 @@ static estimate estimate_of(const double *base, size_t n_chains, size_t n_iter, 
  * Metropolis-Hastings run on that likelihood, with the same priors and transforms, is the
  * reference; the PMMH posterior means of every parameter and of the latent log-abundance in an
  * unsurveyed and in the last year must agree with it within Z_TOL combined Monte Carlo standard
- * errors. Over the 6 comparisons a 4.5-sigma miss has probability about 4e-5 for a correct
- * sampler. */
+ * errors. Over the 12 comparisons (with and without delayed acceptance) a 4.5-sigma miss has
+ * probability about 8e-5 for a correct sampler. */
 #define Z_TOL 4.5
 START_TEST(pmmh_matches_exact_likelihood_posterior)
 {
@@ -239,10 +241,13 @@ START_TEST(pmmh_matches_exact_likelihood_posterior)
     /* The PMMH run stops by the default rule (pmmh.h: R-hat <= 1.01, bulk and tail ESS >= 400):
      * this checks the kernel and that stopping on the draws' own diagnostics leaves no bias
      * beyond the Monte Carlo error (Jones, Haran, Caffo & Neath 2006, JASA 101:1537). Under the
-     * sanitizers, a short fixed length. */
+     * sanitizers, a short fixed length. The second run screens every proposal first (delayed
+     * acceptance, chain.h): it must agree with the exact sampler just as well. */
+    for (int delayed = 0; delayed < 2; delayed++) {
     tf_pmmh_options opt = tf_pmmh_default_options();
     opt.n_threads = 2;
     opt.seed = 11;
+    opt.delayed = delayed;
     if (sanitized()) {
         opt.min_iter = opt.max_iter = 1000;
         opt.n_warmup = 1500;
@@ -260,13 +265,15 @@ START_TEST(pmmh_matches_exact_likelihood_posterior)
         ck_assert(tf_fit_meets(fit, TF_FIT_RHAT_MAX, opt.min_ess));
         ck_assert_uint_ge(tf_fit_settings_of(fit)->n_iterations, opt.min_iter);
     }
-
+    /* The screen rejected some proposals (without a filter run) only when on. */
+    ck_assert_int_eq(tf_fit_settings_of(fit)->delayed, delayed);
+    ck_assert(delayed ? tf_fit_settings_of(fit)->screened > 0.05 : tf_fit_settings_of(fit)->screened == 0);
     for (size_t p = 0; p < d; p++) {
         estimate ex = estimate_of(ex_theta + p, EXACT_CHAINS, keep, d);
         estimate pm = estimate_of(tf_fit_draws(fit) + p, tf_fit_n_chains(fit), tf_fit_n_iter(fit), d);
         double se = sqrt(ex.mcse * ex.mcse + pm.mcse * pm.mcse);
-        ck_assert_msg(fabs(ex.mean - pm.mean) < Z_TOL * se, "%s: exact %g, PMMH %g, combined MCSE %g",
-                      tf_model_param_name(su.m, p), ex.mean, pm.mean, se);
+        ck_assert_msg(fabs(ex.mean - pm.mean) < Z_TOL * se, "%s (delayed %d): exact %g, PMMH %g, combined MCSE %g",
+                      tf_model_param_name(su.m, p), delayed, ex.mean, pm.mean, se);
         ck_assert(fabs(pm.mean - tf_fit_param(fit, p)->mean) < 1e-9 * fabs(pm.mean));
     }
     size_t years[2] = {MISSING_YEAR, T_YEARS - 1};
@@ -284,6 +291,7 @@ START_TEST(pmmh_matches_exact_likelihood_posterior)
             ck_assert(isfinite(tf_fit_paths(fit)[k * T_YEARS + yr]));
     }
     tf_fit_free(fit);
+    }
     free(ex_theta);
     free(ex_path);
     free_setup(&su);
@@ -518,12 +526,60 @@ START_TEST(given_particle_count_is_kept)
 }
 END_TEST
 
+/* The screen of delayed acceptance is an extended Kalman filter fed with Laplace
+ * pseudo-observations; for Gompertz growth (linear on the log scale) and log-normal counting
+ * error (exactly Gaussian in x) both approximations are exact, so it must give the Kalman
+ * filter's likelihood (kalman_ref.h) to rounding, at the truth and at points far from it. For
+ * Poisson counts it is only an approximation: finite, and within a few log units of the
+ * particle filter's estimate near the truth (a loose bound: it screens, it does not decide). */
+START_TEST(screen_is_exact_for_the_linear_gaussian_model)
+{
+    setup su;
+    make_setup(&su, "lognormal");
+    kalman_target e;
+    ck_assert(kalman_target_init(&e, su.post, su.s));
+    tf_screen *sc = tf_screen_alloc(su.m, su.s);
+    ck_assert_ptr_nonnull(sc);
+    /* The Kalman filter's likelihood is that of ln y; the counts' density has the Jacobian
+     * 1 / y of each count besides (check_lognormal_density). */
+    double jacobian = 0;
+    for (size_t t = 0; t < T_YEARS; t++)
+        if (!isnan(tf_series_counts(su.s)[t]))
+            jacobian -= log(tf_series_counts(su.s)[t]);
+    const double pts[4][4] = {{0.4, 300.0, 0.12, 0.15}, {1.5, 80.0, 0.5, 0.05}, {0.05, 2000.0, 0.02, 0.6},
+                              {0.9, 300.0, 0.3, 0.3}};
+    for (int k = 0; k < 4; k++) {
+        double want = kalman_target_log_lik(&e, pts[k], NULL, NULL, NULL) + jacobian;
+        double got = tf_screen_loglik(sc, pts[k]);
+        ck_assert_msg(fabs(got - want) < 1e-8 * fabs(want), "point %d: screen %.12g, Kalman %.12g", k, got, want);
+    }
+    double outside[4] = {0.4, -1.0, 0.12, 0.15};
+    ck_assert(tf_screen_loglik(sc, outside) == -INFINITY);
+    tf_screen_free(sc);
+    free_setup(&su);
+
+    make_setup(&su, "poisson");
+    sc = tf_screen_alloc(su.m, su.s);
+    tf_filter *f = tf_filter_alloc(su.m, su.s, 20000);
+    ck_assert_ptr_nonnull(f);
+    tf_rng rng;
+    tf_rng_derive(&rng, 3, NULL, 0);
+    const double truth[3] = {0.4, 300.0, 0.12};
+    double ll = tf_filter_loglik(f, truth, &rng, NULL), s = tf_screen_loglik(sc, truth);
+    ck_assert_msg(isfinite(s) && fabs(s - ll) < 5.0, "screen %g, filter %g", s, ll);
+    tf_filter_free(f);
+    tf_screen_free(sc);
+    free_setup(&su);
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("pmmh");
     TCase *tc = tcase_create("run");
     tcase_set_timeout(tc, 300);
     tcase_add_test(tc, pmmh_matches_exact_likelihood_posterior);
+    tcase_add_test(tc, screen_is_exact_for_the_linear_gaussian_model);
     tcase_add_test(tc, same_result_for_any_thread_count);
     tcase_add_test(tc, halved_run_equals_run_thinned_twice_as_much);
     tcase_add_test(tc, run_stops_where_the_checks_first_pass);

@@ -517,9 +517,16 @@ void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width)
     fprintf(out, "  %-*s keep at most N draws per chain (default %zu)\n", w, "--kept-draws N", d->max_kept);
     fprintf(out,
             "  --delayed-acceptance on|off\n"
-            "  %-*s screen each proposal with a cheap approximate likelihood before the\n"
-            "  %-*s particle filter runs; exact either way (default %s)\n",
-            w, "", w, "", d->delayed ? "on" : "off");
+            "  %-*s screen each proposal with a cheap approximate likelihood before the\n",
+            w, "");
+    if (d->delayed == TF_PMMH_DELAYED_AUTO)
+        fprintf(out,
+                "  %-*s particle filter runs; exact either way (default on, but off for\n"
+                "  %-*s log-normal counting error, where it is slower)\n",
+                w, "", w, "");
+    else
+        fprintf(out, "  %-*s particle filter runs; exact either way (default %s)\n", w, "",
+                d->delayed ? "on" : "off");
 }
 
 size_t tf_args_default_threads(size_t max)

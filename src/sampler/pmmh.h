@@ -35,9 +35,13 @@ typedef struct {
     size_t pilot_particles;  /* particles of the pilot phase */
     /* Delayed acceptance in the exact chains: each proposal is screened by the extended Kalman
      * filter of screen.h before the particle filter runs (chain.h, log_screen). Exact either
-     * way; it only changes the cost per iteration and the mixing. */
+     * way; it only changes the cost per iteration and the mixing. 1 on, 0 off,
+     * TF_PMMH_DELAYED_AUTO (the default): on unless the counting error is exactly Gaussian on
+     * the log scale (pseudo_obs says TF_PSEUDO_EXACT), where it was measured to lose (pmmh.c). */
     int delayed;
 } tf_pmmh_options;
+
+#define TF_PMMH_DELAYED_AUTO (-1)
 
 /* Blocks: an eighth of max_kept kept draws each, so that the run looks at its diagnostics eight
  * times before the kept draws are full and four times after each halving: it overshoots the

@@ -74,6 +74,11 @@ static double now(void)
 typedef struct {
     double seconds, ess_bulk, ess_tail, rhat, loglik_sd, acceptance;
     size_t n_particles;
+    /* The exact-likelihood runs only: the parameter of the smallest bulk ESS, and the largest
+     * posterior correlation between two parameters (of their logs where positive), its pair. */
+    size_t worst;
+    double max_corr;
+    size_t corr_i, corr_j;
 } outcome;
 
 /* The variants of PMMH measured: the kernel at a fixed length, standard, correlated, or standard
@@ -392,10 +397,36 @@ static int run_exact(const tf_posterior *post, const tf_series *s, int approx, u
         tf_diag_summary ds;
         if (tf_diag_summarise(w, chains, nc, KEPT, d, &ds, &err) != TF_OK)
             goto done;
+        if (ds.ess_bulk < o->ess_bulk)
+            o->worst = p;
         o->ess_bulk = fmin(o->ess_bulk, ds.ess_bulk);
         o->rhat = fmax(o->rhat, ds.rhat);
     }
     o->seconds = now() - t0;
+    /* Correlations over the pooled draws, of log theta for positive parameters (all of them
+     * here), the scale the walk moves on up to the bounded ones' logit. */
+    o->max_corr = 0;
+    o->corr_i = o->corr_j = 0;
+    for (size_t i = 0; i < d; i++)
+        for (size_t j = i + 1; j < d; j++) {
+            double si = 0, sj = 0, sii = 0, sjj = 0, sij = 0, n = (double)(nc * KEPT);
+            for (size_t c = 0; c < nc; c++)
+                for (size_t k = 0; k < KEPT; k++) {
+                    double a = log(r.chains[c].draws[k * d + i]), b = log(r.chains[c].draws[k * d + j]);
+                    si += a;
+                    sj += b;
+                    sii += a * a;
+                    sjj += b * b;
+                    sij += a * b;
+                }
+            double cov = sij / n - si / n * sj / n, vi = sii / n - si / n * si / n, vj = sjj / n - sj / n * sj / n;
+            double rho = cov / sqrt(vi * vj);
+            if (fabs(rho) > fabs(o->max_corr)) {
+                o->max_corr = rho;
+                o->corr_i = i;
+                o->corr_j = j;
+            }
+        }
     o->acceptance = 0;
     for (size_t c = 0; c < nc; c++)
         o->acceptance += r.chains[c].acceptance / (double)nc;
@@ -519,7 +550,8 @@ static int walk_efficiency(void)
     printf("\nbench_fit: ESS per iteration of the walk with a deterministic likelihood (Kalman where exact, else "
            "the screen's extended Kalman filter), %d chains x %d iterations, against 0.3/d\n",
            4, KEPT * THIN);
-    printf("%-44s %3s %10s %10s %8s %6s\n", "case", "d", "ess/iter", "0.3/d", "ratio", "accept");
+    printf("%-44s %3s %10s %10s %8s %6s %8s %s\n", "case", "d", "ess/iter", "0.3/d", "ratio", "accept", "worst",
+           "largest correlation (of logs)");
     int ok = 1;
     for (size_t k = 0; ok && k < N_WALK; k++) {
         const bench_case *c = &walk_cases[k];
@@ -545,7 +577,9 @@ static int walk_efficiency(void)
             char name[128];
             snprintf(name, sizeof name, "%s%s%s %s+%s%s", strrchr(c->file, '/') + 1, c->population ? ":" : "",
                      c->population ? c->population : "", c->growth, c->obs, exact ? " (Kalman)" : "");
-            printf("%-44s %3zu %10.4f %10.4f %8.2f %6.3f\n", name, d, per_iter, ref, per_iter / ref, o.acceptance);
+            printf("%-44s %3zu %10.4f %10.4f %8.2f %6.3f %8s %s-%s %+.2f\n", name, d, per_iter, ref, per_iter / ref,
+                   o.acceptance, tf_model_param_name(m, o.worst), tf_model_param_name(m, o.corr_i),
+                   tf_model_param_name(m, o.corr_j), o.max_corr);
             fflush(stdout);
         }
         tf_posterior_free(post);

@@ -175,14 +175,15 @@ static int all_finite(const double *x, size_t n)
 }
 
 /* R-hat and ESS of one quantity stored with the given stride in chain-major blocks of
- * n_iter * stride values starting at base. NaN when the draws cannot be diagnosed (too short
- * chains, a constant or non-finite quantity). */
-static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, size_t stride,
+ * chain_len * stride values starting at base, the first n_iter of each block being the draws:
+ * chain_len is the fit's room per chain for its own storage, n_iter for a packed copy. NaN when
+ * the draws cannot be diagnosed (too short chains, a constant or non-finite quantity). */
+static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, size_t chain_len, size_t stride,
                      double *rhat, double *ess_bulk, double *ess_tail, double *mcse_mean)
 {
     const double *chains[TF_FIT_MAX_CHAINS];
     for (size_t c = 0; c < f->n_chains; c++)
-        chains[c] = base + c * f->cap * stride;
+        chains[c] = base + c * chain_len * stride;
     tf_diag_summary d;
     tf_error ignored;
     tf_error_init(&ignored);
@@ -214,7 +215,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
 
     for (size_t p = 0; p < f->n_params; p++) {
         tf_fit_param_summary *ps = &f->params[p];
-        diagnose(f, w, f->draws + p, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail, &ps->mcse_mean);
+        diagnose(f, w, f->draws + p, f->cap, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail, &ps->mcse_mean);
         for (size_t k = 0; k < n_draws; k++)
             x[k] = f->draws[at(f, k) * f->n_params + p];
         double prob[3] = {0.025, 0.5, 0.975}, q[3];
@@ -242,7 +243,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
          * the projections start from them. The years between cost a diagnosis each and add
          * nothing to the stopping rule that these two and the parameters do not. */
         if (t == 0 || t + 1 == f->n_years)
-            diagnose(f, w, f->paths + t, f->n_years, &ys->rhat, &ys->ess_bulk, &ys->ess_tail, NULL);
+            diagnose(f, w, f->paths + t, f->cap, f->n_years, &ys->rhat, &ys->ess_bulk, &ys->ess_tail, NULL);
         double prob[5] = {0.5, 0.25, 0.75, 0.025, 0.975}, q[5];
         moments_and_quantiles(x, n_draws, NULL, NULL, prob, q, 5);
         ys->median = q[0];
@@ -262,7 +263,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         n_decline += slope < 0;
     }
     if (f->n_years > 1 && all_finite(x, n_draws)) {
-        diagnose(f, w, x, 1, &tr->rhat, &tr->ess_bulk, NULL, NULL);
+        diagnose(f, w, x, f->n_iter, 1, &tr->rhat, &tr->ess_bulk, NULL, NULL);
         double prob[3] = {0.5, 0.025, 0.975}, q[3];
         moments_and_quantiles(x, n_draws, &tr->mean, NULL, prob, q, 3);
         tr->median = q[0];

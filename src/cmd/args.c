@@ -521,8 +521,8 @@ void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width)
             w, "");
     if (d->delayed == TF_PMMH_DELAYED_AUTO)
         fprintf(out,
-                "  %-*s particle filter runs; exact either way (default on, but off for\n"
-                "  %-*s log-normal counting error, where it is slower)\n",
+                "  %-*s particle filter runs; exact either way (default on for Poisson\n"
+                "  %-*s counting error, off for the others, where it does not pay)\n",
                 w, "", w, "");
     else
         fprintf(out, "  %-*s particle filter runs; exact either way (default %s)\n", w, "",

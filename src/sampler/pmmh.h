@@ -36,8 +36,8 @@ typedef struct {
     /* Delayed acceptance in the exact chains: each proposal is screened by the extended Kalman
      * filter of screen.h before the particle filter runs (chain.h, log_screen). Exact either
      * way; it only changes the cost per iteration and the mixing. 1 on, 0 off,
-     * TF_PMMH_DELAYED_AUTO (the default): on unless the counting error is exactly Gaussian on
-     * the log scale (pseudo_obs says TF_PSEUDO_EXACT), where it was measured to lose (pmmh.c). */
+     * TF_PMMH_DELAYED_AUTO (the default): on when the counting-error model has no parameters of
+     * its own (Poisson), where it was measured to win clearly (pmmh.c says why not elsewhere). */
     int delayed;
 } tf_pmmh_options;
 

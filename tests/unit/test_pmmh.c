@@ -526,12 +526,12 @@ START_TEST(given_particle_count_is_kept)
 }
 END_TEST
 
-/* By default delayed acceptance is on for count models (approximate pseudo-observations) and
- * off for log-normal counting error (exact ones), as measured in bench_fit (pmmh.c). */
+/* By default delayed acceptance is on for Poisson counts (a counting error without parameters of
+ * its own) and off for the others, as measured in bench_fit (pmmh.c). */
 START_TEST(delayed_acceptance_default_follows_the_counting_error)
 {
-    const char *obs[2] = {"poisson", "lognormal"};
-    for (int k = 0; k < 2; k++) {
+    const char *obs[3] = {"poisson", "lognormal", "negbin"};
+    for (int k = 0; k < 3; k++) {
         setup su;
         make_setup(&su, obs[k]);
         tf_pmmh_options opt = short_run();

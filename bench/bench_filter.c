@@ -3,8 +3,11 @@
  * the same run. The floor does only what any bootstrap filter step must: one normal draw, the
  * observation term (Poisson, with its exp), one exp for the weight, the max and sum, and
  * branch-free systematic resampling, written by hand for the linear (Gompertz) drift. The ratio
- * filter / floor is the price of the model table and the general code. Repetitions of all
- * variants are interleaved and the best of each is kept, since the machine is shared. */
+ * bootstrap filter / floor is the price of the model table and the general code; guided /
+ * bootstrap the price per particle-step of looking at the count (the look-ahead weight, the
+ * guided move and its weight terms), which the guided filter repays many times over in particles
+ * (bench_guided). Repetitions of all variants are interleaved and the best of each is kept, since
+ * the machine is shared. */
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -19,6 +22,7 @@
 
 #define N_YEARS 30
 #define N_REPS 7
+#define N_VARIANTS 6
 /* Particle-steps per timed measurement: about 0.1 s at the speeds this machine reaches. */
 #define STEPS_PER_MEASURE 1e7
 
@@ -137,28 +141,30 @@ int main(void)
     tf_model_set_initial(rn, log(y[0]), 0.5);
     const double a = theta_gp[0], c = 1 - theta_gp[0] / log(theta_gp[1]);
 
-    double best[N_SIZES][5];
+    double best[N_SIZES][N_VARIANTS];
     for (int k = 0; k < N_SIZES; k++)
-        for (int v = 0; v < 5; v++)
+        for (int v = 0; v < N_VARIANTS; v++)
             best[k][v] = INFINITY;
     double sink = 0;
     for (int rep = 0; rep < N_REPS; rep++) {
         for (int k = 0; k < N_SIZES; k++) {
             size_t n = sizes[k];
             size_t calls = (size_t)(STEPS_PER_MEASURE / (double)(n * N_YEARS)) + 1;
-            tf_filter *fg = tf_filter_alloc(gp, s, n), *fr = tf_filter_alloc(rn, s, n);
+            tf_filter *fg = tf_filter_alloc(gp, s, n), *fr = tf_filter_alloc(rn, s, n), *fb = tf_filter_alloc(gp, s, n);
+            tf_filter_set_proposal(fb, TF_PROPOSAL_BOOTSTRAP);
             floor_ws ws = {n, malloc(n * sizeof(double)), malloc(n * sizeof(double)), malloc(n * sizeof(double)),
                            malloc(n * sizeof(double)), malloc((n + 1) * sizeof(uint32_t)),
                            malloc(n * sizeof(uint32_t))};
             size_t n_move = fg ? tf_filter_n_move(fg) : 0, n_pick = fg ? tf_filter_n_pick(fg) : 0;
             double *zm = malloc(n_move * sizeof *zm), *zp = malloc(n_pick * sizeof *zp);
             double *path = malloc(N_YEARS * sizeof *path);
-            if (!fg || !fr || !ws.x || !ws.xr || !ws.lw || !ws.w || !ws.pos || !ws.anc || !zm || !zp || !path)
+            if (!fg || !fr || !fb || !ws.x || !ws.xr || !ws.lw || !ws.w || !ws.pos || !ws.anc || !zm || !zp || !path)
                 die("out of memory");
             tf_rng_fill_normal(&rng, zm, n_move);
             tf_rng_fill_normal(&rng, zp, n_pick);
-            double t0, dt[5];
-            /* 0: floor, 1: filter gompertz+poisson, 2: ricker+negbin, 3: with a path, 4: fixed mode. */
+            double t0, dt[N_VARIANTS];
+            /* 0: floor, 1: guided gompertz+poisson, 2: guided ricker+negbin, 3: with a path, 4: fixed
+             * mode, 5: bootstrap gompertz+poisson. */
             t0 = now();
             for (size_t i = 0; i < calls; i++)
                 sink += floor_loglik(&ws, y, a, c, theta_gp[2], log(y[0]), 0.5, rng.s);
@@ -179,13 +185,18 @@ int main(void)
             for (size_t i = 0; i < calls; i++)
                 sink += tf_filter_loglik_fixed(fg, theta_gp, zm, zp, NULL);
             dt[4] = now() - t0;
-            for (int v = 0; v < 5; v++) {
+            t0 = now();
+            for (size_t i = 0; i < calls; i++)
+                sink += tf_filter_loglik(fb, theta_gp, &rng, NULL);
+            dt[5] = now() - t0;
+            for (int v = 0; v < N_VARIANTS; v++) {
                 double ns = 1e9 * dt[v] / ((double)calls * (double)n * N_YEARS);
                 if (ns < best[k][v])
                     best[k][v] = ns;
             }
             tf_filter_free(fg);
             tf_filter_free(fr);
+            tf_filter_free(fb);
             free(ws.x);
             free(ws.xr);
             free(ws.lw);
@@ -199,13 +210,16 @@ int main(void)
     }
     printf("particle filter, %d-year survey, best of %d interleaved runs (ns per particle-step; M steps/s)\n",
            N_YEARS, N_REPS);
-    printf("%8s %16s %22s %8s %18s %18s %18s\n", "N", "floor", "gompertz+poisson", "ratio", "ricker+negbin",
-           "with path", "fixed (sorted)");
+    printf("gompertz+poisson unless named; ratios: bootstrap / floor, guided / bootstrap\n");
+    printf("%8s %16s %18s %8s %18s %8s %18s %18s %18s\n", "N", "floor", "bootstrap", "ratio", "guided", "ratio",
+           "guided r+negbin", "guided with path", "guided fixed");
     for (int k = 0; k < N_SIZES; k++) {
         printf("%8zu", sizes[k]);
         printf(" %6.2f ns %5.1f M", best[k][0], 1e3 / best[k][0]);
-        printf(" %12.2f ns %5.1f M", best[k][1], 1e3 / best[k][1]);
-        printf(" %8.2f", best[k][1] / best[k][0]);
+        printf(" %8.2f ns %5.1f M", best[k][5], 1e3 / best[k][5]);
+        printf(" %8.2f", best[k][5] / best[k][0]);
+        printf(" %8.2f ns %5.1f M", best[k][1], 1e3 / best[k][1]);
+        printf(" %8.2f", best[k][1] / best[k][5]);
         for (int v = 2; v < 5; v++)
             printf(" %8.2f ns %5.1f M", best[k][v], 1e3 / best[k][v]);
         printf("\n");

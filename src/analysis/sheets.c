@@ -758,14 +758,14 @@ static tf_status provenance_items(const tf_analysis *a, const tf_sheets_provenan
         snprintf(particles, sizeof particles, "particles chosen per model");
     if (o->fit.min_iter == o->fit.max_iter)
         snprintf(text, sizeof text,
-                 "PMMH, %zu chains of %zu iterations after %zu warm-up iterations, at most %zu draws kept per chain; %s",
-                 o->fit.n_chains, o->fit.max_iter, o->fit.n_warmup, o->fit.max_kept, particles);
+                 "PMMH, %zu chains of %zu iterations after %zu warm-up iterations, at most %zu draws kept per chain; %s, %s proposal",
+                 o->fit.n_chains, o->fit.max_iter, o->fit.n_warmup, o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
     else
         snprintf(text, sizeof text,
                  "PMMH, %zu chains after %zu warm-up iterations, run until R-hat <= %.2f and bulk and tail ESS >= %.0f "
-                 "(%zu to %zu iterations), at most %zu draws kept per chain; %s",
+                 "(%zu to %zu iterations), at most %zu draws kept per chain; %s, %s proposal",
                  o->fit.n_chains, o->fit.n_warmup, TF_FIT_RHAT_MAX, o->fit.min_ess, o->fit.min_iter, o->fit.max_iter,
-                 o->fit.max_kept, particles);
+                 o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
     TRY(tf_table_add_item_text(t, "Sampler", text, "see each diagnostics sheet", err));
     const tf_projection *pr = tf_analysis_pop_projection(p0);
     snprintf(text, sizeof text, "%zu simulated futures over %zu years, models weighted by their posterior probabilities",

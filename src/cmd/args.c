@@ -230,6 +230,14 @@ tf_status tf_args_parse_long(const char *opt, const char *text, long min, long m
     return TF_OK;
 }
 
+tf_status tf_args_parse_proposal(const char *opt, const char *text, tf_proposal *out, tf_error *err)
+{
+    if (tf_filter_proposal_parse(text, out))
+        return TF_OK;
+    return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "use guided (the default) or bootstrap",
+                        "%s: unknown proposal '%s'", opt, text);
+}
+
 tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, tf_error *err)
 {
     if (!unsigned_of(text, out))

@@ -9,6 +9,7 @@
 
 #include <stdio.h>
 
+#include "filter/filter.h"
 #include "model/model.h"
 #include "sampler/pmmh.h"
 #include "survey/survey.h"
@@ -64,6 +65,15 @@ tf_status tf_args_model_names(const char *opt, const char *text, char *buf, size
 tf_status tf_args_parse_size(const char *opt, const char *text, size_t min, size_t max, size_t *out,
                              tf_error *err);
 tf_status tf_args_parse_long(const char *opt, const char *text, long min, long max, long *out, tf_error *err);
+
+/* A --proposal value: "guided" or "bootstrap" (filter/filter.h). */
+tf_status tf_args_parse_proposal(const char *opt, const char *text, tf_proposal *out, tf_error *err);
+
+/* The help line of --proposal, shared by every command that runs the particle filter. */
+#define TF_ARGS_PROPOSAL_HELP                                                                      \
+    "  --proposal P       how the particle filter moves: guided (default; looks at each year's\n"   \
+    "                     count first, far fewer particles for large counts) or bootstrap (the\n"    \
+    "                     growth model alone, for checks and comparisons)\n"
 
 /* A random seed: any whole number from 0 to 2^64 - 1. */
 tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, tf_error *err);

@@ -80,6 +80,7 @@ static void help(FILE *out, const tf_analysis_options *d)
     fprintf(out,
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
+            TF_ARGS_PROPOSAL_HELP
             "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
             "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
             "  --draws M          importance draws per density for each marginal likelihood, at most\n"
@@ -288,7 +289,8 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
-           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT };
+           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT,
+           OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -302,6 +304,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"draws", required_argument, NULL, OPT_DRAWS},
         {"ml-se", required_argument, NULL, OPT_ML_SE},
         {"runs", required_argument, NULL, OPT_RUNS},
@@ -364,6 +367,10 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
+        case OPT_PROPOSAL:
+            tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
+            opt.evidence.proposal = opt.fit.proposal;
+            break;
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
         case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;

@@ -65,6 +65,7 @@ static void help(FILE *out)
     fprintf(out,
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
+            TF_ARGS_PROPOSAL_HELP
             "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
             "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
             "  --draws M          importance draws per density at most (default %zu)\n"
@@ -174,7 +175,7 @@ static void print_warnings(const tf_comparison *c)
 int tf_cmd_compare(int argc, char **argv)
 {
     enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_WARMUP,
-           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET };
+           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET, OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"models", required_argument, NULL, OPT_MODELS},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -186,6 +187,7 @@ int tf_cmd_compare(int argc, char **argv)
         TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"draws", required_argument, NULL, OPT_DRAWS},
         {"ml-se", required_argument, NULL, OPT_ML_SE},
         {"threads", required_argument, NULL, OPT_THREADS},
@@ -226,6 +228,10 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
+        case OPT_PROPOSAL:
+            tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
+            opt.evidence.proposal = opt.fit.proposal;
+            break;
         case OPT_PARTICLES:
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err);
             break;

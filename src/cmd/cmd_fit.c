@@ -62,6 +62,7 @@ static void help(FILE *out)
             "  --seed S           random seed (default %llu); the same seed gives the same files\n"
             "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
             "                     estimate's sd is near its target)\n"
+            TF_ARGS_PROPOSAL_HELP
             "  --correlated       correlated pseudo-marginal method (default: %s)\n"
             "  --standard         standard pseudo-marginal method\n"
             "  --priors FILE      a model file overriding some or all default priors\n"
@@ -303,7 +304,8 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
              add_col(t, "rho", "correlation of successive random numbers (correlated method)", TF_COL_NUMBER, err) &&
              add_col(t, "screened", "delayed acceptance: share of proposals the cheap screen rejected without a "
                      "particle filter run (mean over chains; empty when off)", TF_COL_PROBABILITY, err) &&
-             add_col(t, "seed", NULL, TF_COL_TEXT, err);
+             add_col(t, "seed", NULL, TF_COL_TEXT, err) &&
+             add_col(t, "proposal", "how the particle filter moved: guided or bootstrap", TF_COL_TEXT, err);
     for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++) {
         double v[13] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
                         (double)st->n_iterations, (double)tf_fit_n_iter(f), (double)st->thin,
@@ -314,7 +316,8 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
         size_t row = tf_table_n_rows(t);
         ok = tf_table_add_row_numbers(t, v, 13, err) == TF_OK &&
              tf_table_set_text(t, row, 10, st->correlated ? "correlated" : "standard", err) == TF_OK &&
-             tf_table_set_text(t, row, 13, seed, err) == TF_OK;
+             tf_table_set_text(t, row, 13, seed, err) == TF_OK &&
+             tf_table_set_text(t, row, 14, tf_filter_proposal_name(st->proposal), err) == TF_OK;
     }
     if (!ok) {
         tf_table_free(t);
@@ -387,9 +390,9 @@ static void print_summary(const job *j, FILE *out)
     const tf_fit_settings *st = tf_fit_settings_of(f);
     const char *label = tf_series_label(j->series);
     fprintf(out, "%s%s%s: %zu chains x %zu iterations (after %zu warm-up; %zu draws kept per chain), "
-                 "%zu particles, %s method, log-likelihood sd %.2f, %.1f s\n",
+                 "%zu particles (%s proposal), %s method, log-likelihood sd %.2f, %.1f s\n",
             label, label[0] ? " " : "", tf_model_name(j->model), tf_fit_n_chains(f), st->n_iterations,
-            st->n_warmup, tf_fit_n_iter(f), st->n_particles, st->correlated ? "correlated" : "standard",
+            st->n_warmup, tf_fit_n_iter(f), st->n_particles, tf_filter_proposal_name(st->proposal), st->correlated ? "correlated" : "standard",
             st->loglik_sd, st->seconds);
     if (st->stopped_early)
         fprintf(out, "  the chains stopped once the convergence checks passed\n");
@@ -448,7 +451,8 @@ static int exit_for(tf_status st)
 int tf_cmd_fit(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET };
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET,
+           OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -459,6 +463,7 @@ int tf_cmd_fit(int argc, char **argv)
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"seed", required_argument, NULL, OPT_SEED},
         {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"correlated", no_argument, NULL, OPT_CORR},
         {"standard", no_argument, NULL, OPT_STD},
         {"priors", required_argument, NULL, OPT_PRIORS},
@@ -494,6 +499,7 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_PARTICLES:
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &opt.n_particles, &err);
             break;
+        case OPT_PROPOSAL: tf_args_parse_proposal("--proposal", optarg, &opt.proposal, &err); break;
         case OPT_CORR: opt.correlated = 1; break;
         case OPT_STD: opt.correlated = 0; break;
         case OPT_PRIORS: priors_path = optarg; break;

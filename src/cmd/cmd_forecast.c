@@ -61,6 +61,7 @@ typedef struct {
     /* Sampler settings; 0 = the default of the source (no given value can be 0). */
     size_t chains, warmup, particles, draws, threads;
     tf_args_run run;         /* run length and thinning (tf_args_run_option) */
+    tf_proposal proposal;
     const char *sampler_opt; /* the first sampler option given, for the --fixed refusal */
     source from;
 } options;
@@ -128,6 +129,8 @@ static void help(FILE *out)
     fprintf(out,
             "  --warmup W              discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N           particles of the filter (default: tuned per model)\n"
+            "  --proposal P            how the particle filter moves: guided (default; looks at each\n"
+            "                          year's count first) or bootstrap (the growth model alone)\n"
             "  --priors FILE           --model only: a model file overriding some or all default priors\n"
             "  --draws M               --average only: importance draws per density for each marginal\n"
             "                          likelihood, at most (default %zu; fewer once its standard error\n"
@@ -948,6 +951,7 @@ static int run_model(const options *o, const tf_project_options *po)
     opt.seed = o->seed;
     if (o->particles)
         opt.n_particles = o->particles;
+    opt.proposal = o->proposal;
     if (sampler_settings(o, &opt, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
@@ -1045,6 +1049,7 @@ static int run_average(const options *o, const tf_project_options *po)
     ao.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
     sampler_settings(o, &ao.fit, &err);
     ao.fit.n_particles = ao.evidence.n_particles = o->particles;
+    ao.fit.proposal = ao.evidence.proposal = o->proposal;
     if (o->draws)
         ao.evidence.n_draws = o->draws;
     /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion, as
@@ -1106,7 +1111,7 @@ out:
 /* ---- the command line ---------------------------------------------------------------------------- */
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
-       OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_WARMUP, OPT_PARTICLES,
+       OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_WARMUP, OPT_PARTICLES, OPT_PROPOSAL,
        OPT_PRIORS, OPT_DRAWS, OPT_THREADS };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
@@ -1129,6 +1134,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"priors", required_argument, NULL, OPT_PRIORS},
         {"draws", required_argument, NULL, OPT_DRAWS},
         {"threads", required_argument, NULL, OPT_THREADS},
@@ -1183,6 +1189,10 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         case OPT_WARMUP:
             sampler = "--warmup";
             tf_args_parse_size(sampler, optarg, 20, MAX_ITER, &o->warmup, err);
+            break;
+        case OPT_PROPOSAL:
+            sampler = "--proposal";
+            tf_args_parse_proposal(sampler, optarg, &o->proposal, err);
             break;
         case OPT_PARTICLES:
             sampler = "--particles";

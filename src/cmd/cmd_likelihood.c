@@ -31,11 +31,14 @@ static void help(FILE *out)
     tf_model_list_obs(obs, sizeof obs);
     fprintf(out,
             "usage: tallyfit likelihood SURVEY.csv --model M [--obs O] --set NAME=VALUE,...\n"
-            "                           [--population NAME] [--particles N] [--repeat R] [--seed S]\n\n"
+            "                           [--population NAME] [--particles N] [--repeat R] [--seed S]\n"
+            "                           [--proposal guided|bootstrap]\n\n"
             "Estimates the log-likelihood of one population's counts under a state-space model at the\n"
             "given parameters with a particle filter, repeated R times with independent random numbers.\n"
-            "Prints a CSV header and one row: loglik,se,particles,repeats, where loglik is the log of\n"
-            "the mean of the R likelihood estimates and se its Monte Carlo standard error (NA when R = 1).\n"
+            "Prints a CSV header and one row: loglik,se,particles,repeats,loglik_sd,proposal, where loglik\n"
+            "is the log of the mean of the R likelihood estimates, se its Monte Carlo standard error, and\n"
+            "loglik_sd the standard deviation of the R log-likelihood estimates, the spread the particle\n"
+            "count is tuned by (both NA when R = 1).\n"
             "SURVEY.csv may be '-' for standard input.\n\n"
             "options:\n"
             "  --model M          growth model: %s\n"
@@ -48,13 +51,14 @@ static void help(FILE *out)
             "  --particles N      particles (default %d)\n"
             "  --repeat R         independent estimates to average (default %d)\n"
             "  --seed S           random seed (default 1)\n"
+            TF_ARGS_PROPOSAL_HELP
             "  -h, --help         show this help\n",
             growth, obs, TF_MODEL_X1_YEARS, DEFAULT_PARTICLES, DEFAULT_REPEATS);
 }
 
 int tf_cmd_likelihood(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED, OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -63,6 +67,7 @@ int tf_cmd_likelihood(int argc, char **argv)
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"repeat", required_argument, NULL, OPT_REPEAT},
         {"seed", required_argument, NULL, OPT_SEED},
+        {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -73,6 +78,7 @@ int tf_cmd_likelihood(int argc, char **argv)
     tf_args_pairs_init(&set);
     size_t n_particles = DEFAULT_PARTICLES, n_repeats = DEFAULT_REPEATS;
     uint64_t seed = 1;
+    tf_proposal proposal = TF_PROPOSAL_GUIDED;
 
     opterr = 0;
     optind = 0;
@@ -86,6 +92,7 @@ int tf_cmd_likelihood(int argc, char **argv)
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
         case OPT_REPEAT: tf_args_parse_size("--repeat", optarg, 1, MAX_REPEATS, &n_repeats, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
+        case OPT_PROPOSAL: tf_args_parse_proposal("--proposal", optarg, &proposal, &err); break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
@@ -135,6 +142,7 @@ int tf_cmd_likelihood(int argc, char **argv)
                      n_particles);
         goto out;
     }
+    tf_filter_set_proposal(f, proposal);
     /* Streams keyed by seed, population and repeat but not by model, so that models that agree
      * exactly (theta-logistic with theta = 1 and Ricker) give the same estimate. */
     double lmax = -INFINITY;
@@ -148,9 +156,10 @@ int tf_cmd_likelihood(int argc, char **argv)
     }
     /* loglik = log of the mean of the R estimates L_r = exp(ll_r) (log-sum-exp); its standard
      * error by the delta method, sd(L) / (sqrt(R) mean(L)), computed on L_r / max L. */
-    printf("loglik,se,particles,repeats\n");
+    const char *pname = tf_filter_proposal_name(proposal);
+    printf("loglik,se,particles,repeats,loglik_sd,proposal\n");
     if (lmax == -INFINITY) {
-        printf("-inf,NA,%zu,%zu\n", n_particles, n_repeats);
+        printf("-inf,NA,%zu,%zu,NA,%s\n", n_particles, n_repeats, pname);
         fprintf(stderr, "tallyfit " CMD ": warning: every estimate is zero (all particles ruled out by a count)\n"
                         "  hint: check the parameters, or try more --particles\n");
     } else {
@@ -167,9 +176,18 @@ int tf_cmd_likelihood(int argc, char **argv)
         double loglik = lmax + log(mean);
         if (n_repeats > 1) {
             double sd = sqrt(sum2 / (double)(n_repeats - 1));
-            printf("%.6f,%.6f,%zu,%zu\n", loglik, sd / (sqrt((double)n_repeats) * mean), n_particles, n_repeats);
+            /* The spread of the log-estimates themselves; a repeat that gave zero makes it infinite. */
+            double lsum = 0, lsum2 = 0;
+            for (size_t r = 0; r < n_repeats; r++)
+                lsum += ll[r];
+            double lmean = lsum / (double)n_repeats;
+            for (size_t r = 0; r < n_repeats; r++)
+                lsum2 += (ll[r] - lmean) * (ll[r] - lmean);
+            double lsd = isfinite(lmean) ? sqrt(lsum2 / (double)(n_repeats - 1)) : INFINITY;
+            printf("%.6f,%.6f,%zu,%zu,%.6f,%s\n", loglik, sd / (sqrt((double)n_repeats) * mean), n_particles, n_repeats,
+                   lsd, pname);
         } else {
-            printf("%.6f,NA,%zu,%zu\n", loglik, n_particles, n_repeats);
+            printf("%.6f,NA,%zu,%zu,NA,%s\n", loglik, n_particles, n_repeats, pname);
         }
     }
     if (tf_messages_flush(&err) != TF_OK)

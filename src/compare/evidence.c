@@ -508,6 +508,7 @@ typedef struct {
     const tf_series *s;
     size_t n_particles;      /* n0 */
     double target_sd;
+    tf_proposal proposal;
     double particles_used;   /* summed over every estimate, pilots included (set by worker_free) */
     double n_estimates;
     int out_of_memory;
@@ -543,6 +544,8 @@ static void *pf_worker_new(void *ctx)
     size_t n_pilot = (size_t)((double)c->n_particles * PILOT_FRACTION);
     w->pilot = tf_filter_alloc(tf_posterior_model(c->post), c->s, n_pilot > 8 ? n_pilot : 8);
     w->level[0] = tf_filter_alloc(tf_posterior_model(c->post), c->s, c->n_particles);
+    tf_filter_set_proposal(w->pilot, c->proposal);
+    tf_filter_set_proposal(w->level[0], c->proposal);
     if (!w->pilot || !w->level[0]) {
         tf_filter_free(w->pilot);
         tf_filter_free(w->level[0]);
@@ -590,6 +593,7 @@ static double pf_log_lik(void *worker, const double *theta, tf_rng *rng)
      * cannot be had falls back to the largest one there is. */
     while (L > 0 && !w->level[L]) {
         w->level[L] = tf_filter_alloc(tf_posterior_model(c->post), c->s, level_particles(c, L));
+        tf_filter_set_proposal(w->level[L], c->proposal);
         if (!w->level[L]) {
             w->out_of_memory = 1;
             L--;
@@ -627,7 +631,7 @@ tf_status tf_evidence_estimate_fit(const tf_posterior *post, const tf_series *s,
 
     const char *label = tf_series_label(s), *name = tf_model_name(m);
     uint64_t keys[3] = {tf_rng_key("evidence"), tf_rng_key(label), tf_rng_key(name)};
-    pf_ctx ctx = {post, s, opt->n_particles, opt->target_sd, 0, 0, 0};
+    pf_ctx ctx = {post, s, opt->n_particles, opt->target_sd, opt->proposal, 0, 0, 0};
     double sd = NAN;
     tf_status st = TF_OK;
     if (ctx.n_particles == 0 && n_z > 0) {
@@ -650,6 +654,7 @@ tf_status tf_evidence_estimate_fit(const tf_posterior *post, const tf_series *s,
             tf_posterior_log_prior_z(post, zd + (p * (n_z - 1) / (TUNE_POINTS - 1)) * d, points + p * d);
         tf_tune_options topt = tf_tune_default_options(0);
         topt.target_sd = opt->target_sd;
+        topt.proposal = opt->proposal;
         size_t n0 = tf_fit_settings_of(fit)->n_particles;
         if (n0 >= topt.min_particles && n0 <= topt.max_particles)
             topt.start_particles = n0;

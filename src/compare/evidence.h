@@ -12,6 +12,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "filter/filter.h"
 #include "sampler/fit.h"
 #include "sampler/posterior.h"
 #include "survey/series.h"
@@ -54,6 +55,7 @@ typedef struct {
      * is about target_sd too (see evidence.c). */
     size_t n_particles;
     double target_sd;
+    tf_proposal proposal;  /* the particle filter's (filter.h); guided when zero-initialised */
     size_t n_threads;   /* >= 1; the results do not depend on it */
     uint64_t seed;
 } tf_evidence_options;

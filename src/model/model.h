@@ -57,6 +57,11 @@ typedef struct {
      * model cannot have it. The particle filter's guided proposal and the sampler's cheap
      * screening likelihood are built on it; the derivations are in each model's file. */
     int (*pseudo_obs)(const double *p, double y, double log_effort, double *mode, double *prec);
+    /* The first and second derivatives in x of log p(y | x) at x, for a count y > 0 that
+     * pseudo_obs does not reject (the filter re-centres the Gaussian where the particles are,
+     * filter.c). Where the exact derivatives are costly (rounded log-normal) the pseudo-
+     * observation's own, prec (mode - x) and -prec. */
+    void (*dlogp)(const double *p, double y, double log_effort, double x, double *d1, double *d2);
 } tf_obs_type;
 
 /* What tf_obs_type.pseudo_obs returns. */

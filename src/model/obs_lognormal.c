@@ -66,6 +66,14 @@ static int pseudo_obs(const double *p, double y, double log_effort, double *mode
     return TF_PSEUDO_EXACT;
 }
 
+static void dlogp(const double *p, double y, double log_effort, double x, double *d1, double *d2)
+{
+    const double prec = 1.0 / (p[0] * p[0]);
+    *d1 = prec * (log(y) - log_effort - x);
+    *d2 = -prec;
+}
+
 const tf_obs_type tf_obs_lognormal = {
     "lognormal", "log-normal", 1, names, lower, upper, 0, 1, 3, year_const, add_logweight, logpmf, draw, pseudo_obs,
+    dlogp,
 };

@@ -96,7 +96,16 @@ static int pseudo_obs(const double *p, double y, double log_effort, double *mode
     return TF_PSEUDO_APPROX;
 }
 
+/* l'(x) and l''(x) as above, at any x; written with s = mu / (phi + mu) so that mu >> phi
+ * stays finite. */
+static void dlogp(const double *p, double y, double log_effort, double x, double *d1, double *d2)
+{
+    const double phi = p[0], mu = exp(x + log_effort), s = mu / (phi + mu);
+    *d1 = y - (y + phi) * s;
+    *d2 = -(y + phi) * s * (1.0 - s);
+}
+
 const tf_obs_type tf_obs_negbin = {
     "negbin", "negative binomial", 1, names, lower, upper, 1, 0, 3, year_const, add_logweight, logpmf, draw,
-    pseudo_obs,
+    pseudo_obs, dlogp,
 };

@@ -70,6 +70,13 @@ static int pseudo_obs(const double *p, double y, double log_effort, double *mode
     return TF_PSEUDO_APPROX;
 }
 
+static void dlogp(const double *p, double y, double log_effort, double x, double *d1, double *d2)
+{
+    const double mu = exp(x + log_effort);
+    *d1 = y - mu;
+    *d2 = -mu;
+}
+
 const tf_obs_type tf_obs_poisson = {
-    "poisson", "Poisson", 0, NULL, NULL, NULL, 1, 0, 1, year_const, add_logweight, logpmf, draw, pseudo_obs,
+    "poisson", "Poisson", 0, NULL, NULL, NULL, 1, 0, 1, year_const, add_logweight, logpmf, draw, pseudo_obs, dlogp,
 };

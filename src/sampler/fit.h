@@ -11,6 +11,7 @@
 
 #include "model/model.h"
 #include "sampler/posterior.h"
+#include "filter/filter.h"
 #include "survey/series.h"
 #include "util/error.h"
 
@@ -103,6 +104,7 @@ typedef struct {
     double rho;
     int delayed;              /* delayed acceptance was on (pmmh.h) */
     double screened;          /* share of the kept draws' proposals the screen rejected */
+    tf_proposal proposal;     /* how the particle filter moved (filter.h) */
     uint64_t seed;
     double seconds;
 } tf_fit_settings;

@@ -65,6 +65,7 @@ tf_pmmh_options tf_pmmh_default_options(void)
         .seed = 1,
         .n_particles = 0,
         .correlated = 0,
+        .proposal = TF_PROPOSAL_GUIDED,
         .rho = 0.99,
         .pilot_particles = 100,
         /* Delayed acceptance where it wins in ESS per second. bench_fit (make bench), fixed
@@ -242,6 +243,7 @@ static tf_status run_pilot(job *j)
     size_t d = r->dim;
     j->lik.post = r->post;
     j->lik.filter = tf_filter_alloc(r->model, r->series, r->opt.pilot_particles);
+    tf_filter_set_proposal(j->lik.filter, r->opt.proposal);
     tf_chain_target t = {.dim = d, .n_path = r->n_years, .ctx = &j->lik,
                          .log_prior = log_prior_cb, .log_lik = log_lik_standard};
     tf_chain_options co = tf_chain_default_options();
@@ -304,6 +306,7 @@ static tf_status run_main(job *j)
     j->chain = NULL;
     tf_filter_free(j->lik.filter);
     j->lik.filter = tf_filter_alloc(r->model, r->series, r->n_particles);
+    tf_filter_set_proposal(j->lik.filter, r->opt.proposal);
     if (!j->lik.filter)
         return tf_error_add(&j->err, TF_ERR_NOMEM, NULL, 0, 0, NULL,
                             "out of memory for a particle filter with %zu particles",
@@ -678,6 +681,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     tf_tune_options to = tf_tune_default_options(opt->correlated);
     to.rho = opt->rho;
     to.stop = stop;
+    to.proposal = opt->proposal;
     to.start_particles = opt->pilot_particles;
     if (opt->n_particles) {
         /* A count given by the user: one measurement there, to report the spread. */
@@ -759,6 +763,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
                           .n_doublings = n_doublings, .stopped_early = stopped_early,
                           .n_particles = r.n_particles,
                           .loglik_sd = tr.sd, .correlated = opt->correlated, .rho = opt->rho,
+                          .proposal = opt->proposal,
                           .seed = opt->seed, .seconds = now_seconds() - t0};
     tf_fit_set_settings(r.fit, &fs);
     *out = r.fit;

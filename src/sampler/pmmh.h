@@ -8,6 +8,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "filter/filter.h"
 #include "sampler/fit.h"
 #include "sampler/posterior.h"
 #include "survey/series.h"
@@ -39,6 +40,7 @@ typedef struct {
      * TF_PMMH_DELAYED_AUTO (the default): on when the counting-error model has no parameters of
      * its own (Poisson), where it was measured to win clearly (pmmh.c says why not elsewhere). */
     int delayed;
+    tf_proposal proposal;    /* how the particle filter moves (filter.h); guided by default */
 } tf_pmmh_options;
 
 #define TF_PMMH_DELAYED_AUTO (-1)

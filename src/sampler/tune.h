@@ -23,6 +23,7 @@ typedef struct {
      * (Deligiannidis, Doucet & Pitt 2018): that difference is what enters the acceptance ratio. */
     int correlated;
     double rho;
+    tf_proposal proposal;  /* the filter's proposal (guided when zero-initialised) */
     double target_sd;      /* the spread wanted */
     size_t n_reps;         /* repetitions per point and measurement, >= TF_TUNE_MIN_REPS */
     size_t start_particles;
@@ -33,8 +34,8 @@ typedef struct {
 } tf_tune_options;
 
 /* Standard: target 1.0; correlated: rho 0.99 and target 1.0 for the SD of the log-ratio (the
- * reasons are in tune.c). 30 repetitions per point, 100 particles to start, at least 100
- * (standard) or 10 (correlated), at most 200000, 5 rounds. */
+ * reasons are in tune.c). Guided proposal, 60 repetitions per point, 100 particles to start, at
+ * least 10, at most 200000, 5 rounds. */
 tf_tune_options tf_tune_default_options(int correlated);
 
 typedef struct {

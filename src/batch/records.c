@@ -67,8 +67,7 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     line(f, "particles", "%zu", a->fit.n_particles);
     line(f, "correlated", "%d %.17g", a->fit.correlated, a->fit.rho);
     line(f, "pilot-particles", "%zu", a->fit.pilot_particles);
-    line(f, "delayed-acceptance", "%s",
-         a->fit.delayed == TF_PMMH_DELAYED_AUTO ? "auto" : a->fit.delayed ? "on" : "off");
+    line(f, "delayed-acceptance", "%s", a->fit.delayed ? "on" : "off");
     line(f, "proposal", "%s", tf_filter_proposal_name(a->fit.proposal));
     const tf_evidence_options *e = &a->evidence;
     line(f, "ml-draws", "%zu %zu", e->min_draws, e->n_draws);

@@ -527,14 +527,7 @@ void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width)
             "  --delayed-acceptance on|off\n"
             "  %-*s screen each proposal with a cheap approximate likelihood before the\n",
             w, "");
-    if (d->delayed == TF_PMMH_DELAYED_AUTO)
-        fprintf(out,
-                "  %-*s particle filter runs; exact either way (default on for Poisson\n"
-                "  %-*s counting error, off for the others, where it does not pay)\n",
-                w, "", w, "");
-    else
-        fprintf(out, "  %-*s particle filter runs; exact either way (default %s)\n", w, "",
-                d->delayed ? "on" : "off");
+    fprintf(out, "  %-*s particle filter runs; exact either way (default %s)\n", w, "", d->delayed ? "on" : "off");
 }
 
 size_t tf_args_default_threads(size_t max)

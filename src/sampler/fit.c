@@ -348,6 +348,33 @@ int tf_fit_meets(const tf_fit *f, double rhat_max, double ess_min)
     return 1;
 }
 
+tf_status tf_fit_check(const tf_fit *f, double rhat_max, double ess_min, int *pass, tf_error *err)
+{
+    *pass = 0;
+    if (f->n_iter < TF_DIAG_MIN_ITER)
+        return TF_OK;
+    tf_diag_workspace *w = NULL;
+    if (tf_diag_workspace_alloc(f->n_chains, f->n_iter, &w, err) != TF_OK)
+        return tf_error_status(err);
+    /* In the order of the summaries; the first quantity that fails ends the check, which is
+     * what most checks of a run by need find. */
+    int ok = 1;
+    for (size_t p = 0; ok && p < f->n_params; p++) {
+        double rhat, bulk, tail;
+        diagnose(f, w, f->draws + p, f->cap, f->n_params, &rhat, &bulk, &tail, NULL);
+        ok = passes(rhat, bulk, tail, rhat_max, ess_min);
+    }
+    size_t ends[2] = {0, f->n_years - 1};
+    for (size_t i = 0; ok && i < 2; i++) {
+        double rhat, bulk, tail;
+        diagnose(f, w, f->paths + ends[i], f->cap, f->n_years, &rhat, &bulk, &tail, NULL);
+        ok = passes(rhat, bulk, tail, rhat_max, ess_min);
+    }
+    tf_diag_workspace_free(w);
+    *pass = ok;
+    return TF_OK;
+}
+
 int tf_fit_converged(const tf_fit *f)
 {
     return tf_fit_meets(f, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);

@@ -159,6 +159,12 @@ const tf_fit_trend_summary *tf_fit_trend(const tf_fit *f);
 /* 1 when every parameter, and the log-abundance of the first and the last year, has R-hat <=
  * rhat_max and bulk and tail ESS >= ess_min; 0 otherwise or before tf_fit_summarise. */
 int tf_fit_meets(const tf_fit *f, double rhat_max, double ess_min);
+/* The same test from the draws as they are, without the summaries: diagnoses only the parameters
+ * and the first and last year's log-abundance, and stops at the first that fails, so that a run
+ * by need can look often (pmmh.c). *pass is 1 when every one passes (0 with fewer than
+ * TF_DIAG_MIN_ITER draws per chain). Errors: TF_ERR_NOMEM (*pass 0). */
+tf_status tf_fit_check(const tf_fit *f, double rhat_max, double ess_min, int *pass, tf_error *err);
+
 /* tf_fit_meets with the thresholds of the convergence warning, TF_FIT_RHAT_MAX and
  * TF_FIT_ESS_MIN. */
 int tf_fit_converged(const tf_fit *f);

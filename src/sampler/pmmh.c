@@ -9,6 +9,8 @@
 #include <string.h>
 #include <time.h>
 
+/* Seconds between progress reports while chains run (about ten a second, as pmmh.h promises). */
+#define PROGRESS_EVERY 0.05
 /* Further plausible pilot draws a chain tries before it gives up on starting (see run_main). */
 #define START_RETRIES 16
 
@@ -68,23 +70,20 @@ tf_pmmh_options tf_pmmh_default_options(void)
         .proposal = TF_PROPOSAL_GUIDED,
         .rho = 0.99,
         .pilot_particles = 100,
-        /* Delayed acceptance where it wins in ESS per second. bench_fit (make bench), fixed
-         * length, 2 seeds each, delayed / standard: Poisson counts: heron gompertz 2.5, squirrel
-         * ricker 2.2, north-valley ricker 4.4; negative binomial: river-flats theta-logistic 1.3,
-         * heron gompertz 1.1 and 1.8, heron ricker 0.64 and 1.07 (by hand, `fit
-         * --delayed-acceptance`); log-normal: heron exponential 0.57, gompertz lower by hand. The
-         * second stage accepts with the ratio of (estimate / screen) between the two points, so
-         * it sees as noise both the estimate's noise and how the screen's error changes from
-         * point to point. With Poisson counts the screen's only error is the Laplace
-         * approximation, which changes slowly, and screening out 80-90 % of the proposals
-         * before any filter run wins clearly. A counting-error parameter of its own (the
-         * negative binomial's overdispersion, the log-normal's tau) moves the pseudo-
-         * observations' precision with it, and there the chains stuck more (a chain of 400
-         * iterations never moved once in a short compare run) for no clear gain; for the
-         * log-normal, whose screen is nearly exact, the first stage takes all of the
-         * posterior's ratio and the second only the noise, which is worse than standard PMMH.
-         * So: on for counting error without parameters of its own (Poisson). */
-        .delayed = TF_PMMH_DELAYED_AUTO,
+        /* Delayed acceptance off: with the guided filter it no longer pays. bench_fit (make
+         * bench), fixed length, 2 seeds each, ESS per second delayed / standard. With the
+         * bootstrap filter (100-340 particles) it won for Poisson counts (heron gompertz 2.5,
+         * squirrel ricker 2.2, north-valley ricker 4.4), was mixed for the negative binomial
+         * (river-flats theta-logistic 1.3; heron gompertz 1.1 and 1.8, ricker 0.64 and 1.07 by
+         * hand) and lost for the log-normal (heron exponential 0.57). With the guided filter,
+         * tuned to 10 particles, a filter run costs little more than the screen and the chain
+         * step, and it loses everywhere: 0.84, 0.73, 0.72, 0.77 and 0.39 on the same cases
+         * (geometric mean 0.67). The second stage accepts with the ratio of (estimate / screen)
+         * between the two points, so it sees as noise the estimate's noise and how the screen's
+         * error changes between points, and the chain mixes worse per iteration; that only pays
+         * where a filter run is expensive. --delayed-acceptance on remains for such fits (the
+         * bootstrap filter on large counts). */
+        .delayed = 0,
     };
     return o;
 }
@@ -465,12 +464,20 @@ static tf_status run_phase(run *r, tf_status (*fn)(job *), progress_state *ps, t
         worker(&w);
         r->inline_work = 0;
     } else {
+        /* Naps of 1 ms: a run by need ends a phase at every block, and with 10 particles a block
+         * can take a few milliseconds, so 50 ms naps had made the checks' waiting most of the run
+         * (2.1 s against 1.2 s for the same iterations in fewer blocks). Progress is still
+         * reported about every PROGRESS_EVERY seconds. */
+        double last = now_seconds();
         while (atomic_load(&r->n_finished) < r->opt.n_chains) {
             if (r->stop && *r->stop)
                 atomic_store(&r->stop_now, 1);
-            struct timespec nap = {0, 50 * 1000 * 1000};
+            struct timespec nap = {0, 1000 * 1000};
             nanosleep(&nap, NULL);
-            report(r, ps);
+            if (now_seconds() - last >= PROGRESS_EVERY) {
+                report(r, ps);
+                last = now_seconds();
+            }
         }
     }
     for (size_t i = 0; i < started; i++)
@@ -691,8 +698,6 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     if ((st = tf_tune_particles(r.model, s, points, n_points, &to, &tune_rng, &tr, err)) != TF_OK)
         goto fail;
     r.n_particles = tr.n_particles;
-    if (r.opt.delayed == TF_PMMH_DELAYED_AUTO)
-        r.opt.delayed = tf_model_obs(r.model)->n_params == 0;
 
     r.phase = TF_PMMH_MAIN;
     if ((st = run_phase(&r, run_main, &ps, err)) != TF_OK)
@@ -706,7 +711,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
      * (the iterations already run since the last draw kept count towards the first new one). */
     size_t block = opt->max_kept / TF_PMMH_BLOCKS_PER_STORE, n_kept = 0, n_run = 0,
            n_doublings = 0;
-    int stopped_early = 0, summarised = 0;
+    int stopped_early = 0;
     if (block < 1)
         block = 1;
     r.behind = 0;
@@ -717,7 +722,6 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
             n_kept = h;
             r.thin *= 2;
             n_doublings++;
-            summarised = 0;
         }
         /* The last block ends at the maximum length, rounded down to a kept draw; the first
          * ends at the minimum when that is shorter than a block. */
@@ -740,19 +744,19 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
         n_kept += want;
         r.behind = 0;
         tf_fit_set_n_iter(r.fit, n_kept);
-        summarised = 0;
-        if (n_run < opt->min_iter)
+        if (n_run < opt->min_iter || n_run >= opt->max_iter)
             continue;
-        if ((st = tf_fit_summarise(r.fit, err)) != TF_OK)
+        int pass = 0;
+        if ((st = tf_fit_check(r.fit, TF_FIT_RHAT_MAX, opt->min_ess, &pass, err)) != TF_OK)
             goto fail;
-        summarised = 1;
-        if (n_run < opt->max_iter && tf_fit_meets(r.fit, TF_FIT_RHAT_MAX, opt->min_ess)) {
+        if (pass) {
             stopped_early = 1;
             break;
         }
     }
+    /* The summaries once, of the draws the run ends with. */
     tf_fit_compact(r.fit);
-    if (!summarised && (st = tf_fit_summarise(r.fit, err)) != TF_OK)
+    if ((st = tf_fit_summarise(r.fit, err)) != TF_OK)
         goto fail;
 
     double screened = 0;

@@ -36,14 +36,11 @@ typedef struct {
     size_t pilot_particles;  /* particles of the pilot phase */
     /* Delayed acceptance in the exact chains: each proposal is screened by the extended Kalman
      * filter of screen.h before the particle filter runs (chain.h, log_screen). Exact either
-     * way; it only changes the cost per iteration and the mixing. 1 on, 0 off,
-     * TF_PMMH_DELAYED_AUTO (the default): on when the counting-error model has no parameters of
-     * its own (Poisson), where it was measured to win clearly (pmmh.c says why not elsewhere). */
+     * way; it only changes the cost per iteration and the mixing. 1 on, 0 off (the default:
+     * pmmh.c says why). */
     int delayed;
     tf_proposal proposal;    /* how the particle filter moves (filter.h); guided by default */
 } tf_pmmh_options;
-
-#define TF_PMMH_DELAYED_AUTO (-1)
 
 /* Blocks: an eighth of max_kept kept draws each, so that the run looks at its diagnostics eight
  * times before the kept draws are full and four times after each halving: it overshoots the

@@ -154,6 +154,12 @@ START_TEST(convergence_flag_follows_diagnostics)
                 tf_fit_record(f, c, i, theta, -1.0, path);
             }
         ck_assert_int_eq(tf_fit_summarise(f, NULL), TF_OK);
+        /* The quick check of a run by need agrees with the summaries' verdict. */
+        int pass = -1;
+        ck_assert_int_eq(tf_fit_check(f, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN, &pass, NULL), TF_OK);
+        ck_assert_int_eq(pass, tf_fit_converged(f));
+        ck_assert_int_eq(tf_fit_check(f, TF_FIT_RHAT_MAX, 20000, &pass, NULL), TF_OK);
+        ck_assert_int_eq(pass, 0);
         if (shifted == 1) {
             ck_assert(tf_fit_param(f, 0)->rhat > 1.1);
             ck_assert(!tf_fit_converged(f));

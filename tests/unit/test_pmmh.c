@@ -526,26 +526,6 @@ START_TEST(given_particle_count_is_kept)
 }
 END_TEST
 
-/* By default delayed acceptance is on for Poisson counts (a counting error without parameters of
- * its own) and off for the others, as measured in bench_fit (pmmh.c). */
-START_TEST(delayed_acceptance_default_follows_the_counting_error)
-{
-    const char *obs[3] = {"poisson", "lognormal", "negbin"};
-    for (int k = 0; k < 3; k++) {
-        setup su;
-        make_setup(&su, obs[k]);
-        tf_pmmh_options opt = short_run();
-        opt.min_iter = opt.max_iter = 300;
-        ck_assert_int_eq(opt.delayed, TF_PMMH_DELAYED_AUTO);
-        tf_fit *fit = NULL;
-        ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &opt, NULL, NULL, NULL, &fit, NULL), TF_OK);
-        ck_assert_int_eq(tf_fit_settings_of(fit)->delayed, k == 0);
-        tf_fit_free(fit);
-        free_setup(&su);
-    }
-}
-END_TEST
-
 /* The screen of delayed acceptance is an extended Kalman filter fed with Laplace
  * pseudo-observations; for Gompertz growth (linear on the log scale) and log-normal counting
  * error (exactly Gaussian in x) both approximations are exact, so it must give the Kalman
@@ -600,7 +580,6 @@ static Suite *make_suite(void)
     tcase_set_timeout(tc, 300);
     tcase_add_test(tc, pmmh_matches_exact_likelihood_posterior);
     tcase_add_test(tc, screen_is_exact_for_the_linear_gaussian_model);
-    tcase_add_test(tc, delayed_acceptance_default_follows_the_counting_error);
     tcase_add_test(tc, same_result_for_any_thread_count);
     tcase_add_test(tc, halved_run_equals_run_thinned_twice_as_much);
     tcase_add_test(tc, run_stops_where_the_checks_first_pass);

@@ -101,7 +101,7 @@ int main(void)
             goto next;
         }
         tf_pmmh_options fo = tf_pmmh_default_options();
-        fo.n_iter = 1250;
+        fo.min_iter = fo.max_iter = 5000;
         fo.thin = 4;
         fo.n_warmup = 2000;
         fo.n_threads = 2;

@@ -32,6 +32,7 @@
 #include "sampler/fit.h"
 #include "sampler/pmmh.h"
 #include "sampler/posterior.h"
+#include "sampler/screen.h"
 #include "survey/survey.h"
 
 #include "../tests/unit/kalman_ref.h"
@@ -51,6 +52,17 @@ static const bench_case cases[] = {
 #define N_SEEDS 2
 /* Kept draws per chain: analyze's default (see the top of the file). */
 #define KEPT 2500
+/* A fixed length for the comparison of kernels: KEPT draws every THIN-th iteration. */
+#define THIN 8
+
+static tf_pmmh_options fixed_options(void)
+{
+    tf_pmmh_options o = tf_pmmh_default_options();
+    o.thin = THIN;
+    o.min_iter = o.max_iter = KEPT * THIN;
+    o.max_kept = KEPT;
+    return o;
+}
 
 static double now(void)
 {
@@ -62,15 +74,32 @@ static double now(void)
 typedef struct {
     double seconds, ess_bulk, ess_tail, rhat, loglik_sd, acceptance;
     size_t n_particles;
+    /* The exact-likelihood runs only: the parameter of the smallest bulk ESS, and the largest
+     * posterior correlation between two parameters (of their logs where positive), its pair. */
+    size_t worst;
+    double max_corr;
+    size_t corr_i, corr_j;
 } outcome;
 
-static int run_one(const tf_posterior *post, const tf_series *s, int correlated, uint64_t seed, outcome *o)
+/* The variants of PMMH measured: the kernel at a fixed length, standard, correlated, or standard
+ * with delayed acceptance; and the default run, by need (pmmh.h). */
+enum { V_STANDARD, V_CORRELATED, V_DELAYED, V_BY_NEED, N_VARIANTS };
+static const char *const variant_name[N_VARIANTS] = {"standard", "correlated", "delayed", "by-need"};
+
+static tf_pmmh_options variant_options(int variant, uint64_t seed)
 {
-    tf_pmmh_options opt = tf_pmmh_default_options();
-    opt.n_iter = KEPT;
-    opt.correlated = correlated;
+    tf_pmmh_options opt = variant == V_BY_NEED ? tf_pmmh_default_options() : fixed_options();
+    if (variant != V_BY_NEED)
+        opt.delayed = variant == V_DELAYED;
+    opt.correlated = variant == V_CORRELATED;
     opt.seed = seed;
     opt.n_threads = 2;
+    return opt;
+}
+
+static int run_one(const tf_posterior *post, const tf_series *s, int variant, uint64_t seed, outcome *o)
+{
+    tf_pmmh_options opt = variant_options(variant, seed);
     tf_error err;
     tf_error_init(&err);
     tf_fit *fit = NULL;
@@ -119,6 +148,7 @@ typedef struct {
     exact_run *r;
     size_t index;
     kalman_target kt;
+    tf_screen *sc;                /* the deterministic stand-in likelihood when approx */
     tf_rng rng;
     tf_chain *chain;
     double *pilot_z, *pilot_lt;   /* [n_pilot_kept][dim], [n_pilot_kept] */
@@ -128,6 +158,7 @@ typedef struct {
 } exact_chain;
 
 struct exact_run {
+    int approx;   /* 0: the Kalman likelihood; 1: the screen of delayed acceptance (screen.h) */
     const tf_posterior *post;
     const tf_series *s;
     tf_pmmh_options opt;
@@ -142,12 +173,38 @@ static const double *exact_pooled(const exact_run *r, size_t idx)
     return r->chains[idx / r->n_pilot_kept].pilot_z + (idx % r->n_pilot_kept) * r->dim;
 }
 
+static double screen_target_log_prior(void *ctx, const double *z, double *theta)
+{
+    const exact_chain *e = ctx;
+    return tf_posterior_log_prior_z(e->r->post, z, theta);
+}
+
+static double screen_target_log_lik(void *ctx, const double *theta, const double *aux, tf_rng *rng, double *path)
+{
+    const exact_chain *e = ctx;
+    (void)aux;
+    (void)rng;
+    (void)path;
+    return tf_screen_loglik(e->sc, theta);
+}
+
+static tf_chain_target exact_target(exact_chain *e)
+{
+    tf_chain_target t = {.dim = e->r->dim, .ctx = &e->kt, .log_prior = kalman_target_log_prior,
+                         .log_lik = kalman_target_log_lik};
+    if (e->r->approx) {
+        t.ctx = e;
+        t.log_prior = screen_target_log_prior;
+        t.log_lik = screen_target_log_lik;
+    }
+    return t;
+}
+
 static void exact_pilot(exact_chain *e)
 {
     exact_run *r = e->r;
     size_t d = r->dim;
-    tf_chain_target t = {.dim = d, .ctx = &e->kt, .log_prior = kalman_target_log_prior,
-                         .log_lik = kalman_target_log_lik};
+    tf_chain_target t = exact_target(e);
     tf_chain_options co = tf_chain_default_options();
     co.target_accept = EXACT_PILOT_ACCEPT;
     co.init_weight = 20;
@@ -190,8 +247,7 @@ static void exact_main(exact_chain *e)
     e->rng = tf_chain_rng(e->chain);
     tf_chain_free(e->chain);
     e->ok = 0;
-    tf_chain_target t = {.dim = d, .ctx = &e->kt, .log_prior = kalman_target_log_prior,
-                         .log_lik = kalman_target_log_lik};
+    tf_chain_target t = exact_target(e);
     e->chain = tf_chain_alloc(&t, NULL);
     if (!e->chain || tf_chain_init(e->chain, z0, r->pool_cov, &e->rng, NULL) != TF_OK)
         return;
@@ -199,8 +255,8 @@ static void exact_main(exact_chain *e)
         tf_chain_step(e->chain);
     tf_chain_set_adapt(e->chain, 0);
     tf_chain_reset_counts(e->chain);
-    for (size_t it = 0; it < r->opt.n_iter; it++) {
-        for (size_t k = 0; k < r->opt.thin; k++)
+    for (size_t it = 0; it < KEPT; it++) {
+        for (size_t k = 0; k < THIN; k++)
             tf_chain_step(e->chain);
         memcpy(e->draws + it * d, tf_chain_theta(e->chain), d * sizeof(double));
     }
@@ -285,11 +341,10 @@ static int exact_pool(exact_run *r)
 /* One exact-likelihood run with PMMH's chains, warm-up, thinning and kept draws; *o gets its
  * time (set-up, chains on 2 threads and diagnostics, as tf_pmmh_run's time holds its own),
  * smallest bulk ESS over the parameters and mean acceptance. */
-static int run_exact(const tf_posterior *post, const tf_series *s, uint64_t seed, outcome *o)
+static int run_exact(const tf_posterior *post, const tf_series *s, int approx, uint64_t seed, outcome *o)
 {
     double t0 = now();
-    exact_run r = {.post = post, .s = s, .opt = tf_pmmh_default_options()};
-    r.opt.n_iter = KEPT;
+    exact_run r = {.approx = approx, .post = post, .s = s, .opt = fixed_options()};
     r.dim = tf_posterior_dim(post);
     r.n_pilot = r.opt.n_warmup / 2;
     r.n_warm = r.opt.n_warmup - r.n_pilot;
@@ -321,15 +376,17 @@ static int run_exact(const tf_posterior *post, const tf_series *s, uint64_t seed
         tf_rng_derive(&e->rng, seed, keys, 2);
         e->pilot_z = malloc(r.n_pilot_kept * d * sizeof(double));
         e->pilot_lt = malloc(r.n_pilot_kept * sizeof(double));
-        e->draws = malloc(r.opt.n_iter * d * sizeof(double));
+        e->draws = malloc(KEPT * d * sizeof(double));
         if (!e->pilot_z || !e->pilot_lt || !e->draws || !kalman_target_init(&e->kt, post, s))
+            goto done;
+        if (approx && !(e->sc = tf_screen_alloc(tf_posterior_model(post), s)))
             goto done;
     }
     if (!exact_phase(&r, exact_pilot) || !exact_pool(&r) || !exact_phase(&r, exact_main))
         goto done;
     tf_error err;
     tf_error_init(&err);
-    if (tf_diag_workspace_alloc(nc, r.opt.n_iter, &w, &err) != TF_OK)
+    if (tf_diag_workspace_alloc(nc, KEPT, &w, &err) != TF_OK)
         goto done;
     o->ess_bulk = INFINITY;
     o->rhat = 0;
@@ -338,12 +395,38 @@ static int run_exact(const tf_posterior *post, const tf_series *s, uint64_t seed
         for (size_t c = 0; c < nc; c++)
             chains[c] = r.chains[c].draws + p;
         tf_diag_summary ds;
-        if (tf_diag_summarise(w, chains, nc, r.opt.n_iter, d, &ds, &err) != TF_OK)
+        if (tf_diag_summarise(w, chains, nc, KEPT, d, &ds, &err) != TF_OK)
             goto done;
+        if (ds.ess_bulk < o->ess_bulk)
+            o->worst = p;
         o->ess_bulk = fmin(o->ess_bulk, ds.ess_bulk);
         o->rhat = fmax(o->rhat, ds.rhat);
     }
     o->seconds = now() - t0;
+    /* Correlations over the pooled draws, of log theta for positive parameters (all of them
+     * here), the scale the walk moves on up to the bounded ones' logit. */
+    o->max_corr = 0;
+    o->corr_i = o->corr_j = 0;
+    for (size_t i = 0; i < d; i++)
+        for (size_t j = i + 1; j < d; j++) {
+            double si = 0, sj = 0, sii = 0, sjj = 0, sij = 0, n = (double)(nc * KEPT);
+            for (size_t c = 0; c < nc; c++)
+                for (size_t k = 0; k < KEPT; k++) {
+                    double a = log(r.chains[c].draws[k * d + i]), b = log(r.chains[c].draws[k * d + j]);
+                    si += a;
+                    sj += b;
+                    sii += a * a;
+                    sjj += b * b;
+                    sij += a * b;
+                }
+            double cov = sij / n - si / n * sj / n, vi = sii / n - si / n * si / n, vj = sjj / n - sj / n * sj / n;
+            double rho = cov / sqrt(vi * vj);
+            if (fabs(rho) > fabs(o->max_corr)) {
+                o->max_corr = rho;
+                o->corr_i = i;
+                o->corr_j = j;
+            }
+        }
     o->acceptance = 0;
     for (size_t c = 0; c < nc; c++)
         o->acceptance += r.chains[c].acceptance / (double)nc;
@@ -355,6 +438,7 @@ done:
     if (r.chains)
         for (size_t c = 0; c < nc; c++) {
             tf_chain_free(r.chains[c].chain);
+            tf_screen_free(r.chains[c].sc);
             free(r.chains[c].pilot_z);
             free(r.chains[c].pilot_lt);
             free(r.chains[c].draws);
@@ -385,43 +469,54 @@ static int compare_exact(void)
         tf_error_print(&err, "bench_fit", stderr);
         ok = 0;
     }
-    tf_pmmh_options d = tf_pmmh_default_options();
-    d.n_iter = KEPT;
+    tf_pmmh_options d = fixed_options();
     if (ok)
         printf("\nbench_fit: PMMH against Metropolis-Hastings with the exact (Kalman) likelihood, %s "
                "(%zu years) gompertz+lognormal,\n  same priors, %zu chains x %zu kept (thin %zu) after %zu "
                "warm-up, same adaptation, 2 threads each\n",
-               strrchr(file, '/') + 1, tf_series_n_years(s), d.n_chains, d.n_iter, d.thin, d.n_warmup);
+               strrchr(file, '/') + 1, tf_series_n_years(s), d.n_chains, (size_t)KEPT, d.thin, d.n_warmup);
     if (ok)
         printf("%-8s %4s %6s %5s %7s %8s %6s %6s %9s\n", "sampler", "seed", "N", "sd", "time_s", "ess_bulk", "rhat",
                "accept", "ess/s");
-    double log_ratio = 0, log_ess_ratio = 0, sum_exact = 0, sum_pmmh = 0;
+    /* Before / after each lever, in the same run: the fixed-length standard kernel, the same with
+     * delayed acceptance, and the default run by need. */
+    static const int versions[] = {V_STANDARD, V_DELAYED, V_BY_NEED};
+    enum { N_VERSIONS = sizeof versions / sizeof versions[0] };
+    double log_ratio[N_VERSIONS] = {0}, log_ess_ratio[N_VERSIONS] = {0}, sum_pmmh[N_VERSIONS] = {0}, sum_exact = 0;
     for (uint64_t seed = 1; ok && seed <= N_SEEDS; seed++) {
-        outcome ex, pm;
-        ok = run_exact(post, s, seed, &ex) && run_one(post, s, 0, seed, &pm);
-        if (!ok)
+        outcome ex;
+        if (!(ok = run_exact(post, s, 0, seed, &ex)))
             break;
         printf("%-8s %4llu %6s %5.2f %7.2f %8.0f %6.3f %6.3f %9.1f\n", "exact", (unsigned long long)seed, "-", 0.0,
                ex.seconds, ex.ess_bulk, ex.rhat, ex.acceptance, ex.ess_bulk / ex.seconds);
-        printf("%-8s %4llu %6zu %5.2f %7.2f %8.0f %6.3f %6.3f %9.1f\n", "pmmh", (unsigned long long)seed,
-               pm.n_particles, pm.loglik_sd, pm.seconds, pm.ess_bulk, pm.rhat, pm.acceptance, pm.ess_bulk / pm.seconds);
-        log_ratio += log((pm.ess_bulk / pm.seconds) / (ex.ess_bulk / ex.seconds));
-        log_ess_ratio += log(pm.ess_bulk / ex.ess_bulk);
         sum_exact += ex.ess_bulk / ex.seconds;
-        sum_pmmh += pm.ess_bulk / pm.seconds;
+        for (int v = 0; ok && v < N_VERSIONS; v++) {
+            outcome pm;
+            if (!(ok = run_one(post, s, versions[v], seed, &pm)))
+                break;
+            printf("%-8s %4llu %6zu %5.2f %7.2f %8.0f %6.3f %6.3f %9.1f\n", variant_name[versions[v]],
+                   (unsigned long long)seed, pm.n_particles, pm.loglik_sd, pm.seconds, pm.ess_bulk, pm.rhat,
+                   pm.acceptance, pm.ess_bulk / pm.seconds);
+            log_ratio[v] += log((pm.ess_bulk / pm.seconds) / (ex.ess_bulk / ex.seconds));
+            log_ess_ratio[v] += log(pm.ess_bulk / ex.ess_bulk);
+            sum_pmmh[v] += pm.ess_bulk / pm.seconds;
+        }
         fflush(stdout);
     }
-    if (ok) {
-        double ratio = exp(log_ratio / N_SEEDS), ess_ratio = exp(log_ess_ratio / N_SEEDS);
-        printf("bench_fit: ESS per second, exact %.1f, PMMH %.1f (means over %d seeds); PMMH / exact: "
-               "geometric mean %.4f (1/%.0f); ESS at equal draws %.2f\n",
-               sum_exact / N_SEEDS, sum_pmmh / N_SEEDS, N_SEEDS, ratio, 1.0 / ratio, ess_ratio);
-        printf("bench_fit: meaning: PMMH yields %.2g %% of the effective samples per second that exact-likelihood "
-               "sampling would, the price of estimating the likelihood by a particle filter where no closed form "
-               "exists (the ESS ratio is the part due to the estimate's noise, sd column, the rest the filter's "
-               "cost per step)\n",
-               100.0 * ratio);
+    for (int v = 0; ok && v < N_VERSIONS; v++) {
+        double ratio = exp(log_ratio[v] / N_SEEDS), ess_ratio = exp(log_ess_ratio[v] / N_SEEDS);
+        printf("bench_fit: ESS per second, exact %.1f, PMMH %s %.1f (means over %d seeds); PMMH / exact: "
+               "geometric mean %.4f (1/%.0f); ESS ratio %.2f\n",
+               sum_exact / N_SEEDS, variant_name[versions[v]], sum_pmmh[v] / N_SEEDS, N_SEEDS, ratio, 1.0 / ratio,
+               ess_ratio);
     }
+    if (ok)
+        printf("bench_fit: meaning: the ratio is the share of the effective samples per second that exact-likelihood "
+               "sampling would give, the price of estimating the likelihood by a particle filter where no closed "
+               "form exists. The fixed-length rows run %zu iterations per chain; by-need runs stop once the checks "
+               "pass, so its ESS is near 400 and its ratio is that of the whole fit, warm-up included, as a user "
+               "waits for it\n",
+               (size_t)KEPT * THIN);
     tf_posterior_free(post);
     tf_prior_set_free(priors);
     tf_model_free(m);
@@ -429,17 +524,85 @@ static int compare_exact(void)
     return ok;
 }
 
+/* How well the random walk mixes where the posterior is awkward, apart from the particle filter's
+ * noise: ESS per iteration of Metropolis-Hastings with a deterministic likelihood (the Kalman
+ * filter's for gompertz+lognormal, where it is exact; the extended Kalman filter of screen.h
+ * elsewhere, a stand-in with nearly the same shape), with PMMH's schedule and adaptation, per
+ * default candidate on the demo surveys. The yardstick is adaptive random-walk Metropolis on a
+ * Gaussian of the same dimension d: about 0.3 / d (Gelman, Roberts & Gilks 1996, Bayesian
+ * Statistics 5:599, the efficiency of the optimally scaled walk; recalled from memory). A
+ * ratio far below 1 points at a funnel, a ridge or heavy tails that the walk crosses slowly. */
+static const bench_case walk_cases[] = {
+    {"surveys/heron-colony.csv", NULL, "gompertz", "lognormal"},
+    {"surveys/heron-colony.csv", NULL, "exponential", "poisson"},
+    {"surveys/heron-colony.csv", NULL, "ricker", "poisson"},
+    {"surveys/heron-colony.csv", NULL, "gompertz", "poisson"},
+    {"surveys/heron-colony.csv", NULL, "ricker", "negbin"},
+    {"surveys/squirrel-transect.csv", NULL, "ricker", "poisson"},
+    {"surveys/squirrel-transect.csv", NULL, "gompertz", "poisson"},
+    {"surveys/three-herds.csv", "north-valley", "ricker", "poisson"},
+    {"surveys/three-herds.csv", "north-valley", "gompertz", "negbin"},
+};
+#define N_WALK (sizeof walk_cases / sizeof walk_cases[0])
+
+static int walk_efficiency(void)
+{
+    printf("\nbench_fit: ESS per iteration of the walk with a deterministic likelihood (Kalman where exact, else "
+           "the screen's extended Kalman filter), %d chains x %d iterations, against 0.3/d\n",
+           4, KEPT * THIN);
+    printf("%-44s %3s %10s %10s %8s %6s %8s %s\n", "case", "d", "ess/iter", "0.3/d", "ratio", "accept", "worst",
+           "largest correlation (of logs)");
+    int ok = 1;
+    for (size_t k = 0; ok && k < N_WALK; k++) {
+        const bench_case *c = &walk_cases[k];
+        tf_error err;
+        tf_error_init(&err);
+        tf_survey *sv = NULL;
+        tf_model *m = NULL;
+        tf_prior_set *priors = NULL;
+        tf_posterior *post = NULL;
+        const tf_series *s = NULL;
+        if (tf_survey_read(c->file, &sv, &err) != TF_OK ||
+            !(s = c->population ? tf_survey_find(sv, c->population) : tf_survey_series(sv, 0)) ||
+            tf_model_new(c->growth, c->obs, &m, &err) != TF_OK || tf_model_initial_from_series(m, s, &err) != TF_OK ||
+            tf_setup_priors(m, s, NULL, &priors, &err) != TF_OK || tf_posterior_new(m, priors, &post, &err) != TF_OK) {
+            tf_error_print(&err, "bench_fit", stderr);
+            ok = 0;
+        }
+        int exact = !strcmp(c->growth, "gompertz") && !strcmp(c->obs, "lognormal");
+        outcome o;
+        if (ok && (ok = run_exact(post, s, !exact, 1, &o))) {
+            size_t d = tf_posterior_dim(post);
+            double per_iter = o.ess_bulk / (4.0 * KEPT * THIN), ref = 0.3 / (double)d;
+            char name[128];
+            snprintf(name, sizeof name, "%s%s%s %s+%s%s", strrchr(c->file, '/') + 1, c->population ? ":" : "",
+                     c->population ? c->population : "", c->growth, c->obs, exact ? " (Kalman)" : "");
+            printf("%-44s %3zu %10.4f %10.4f %8.2f %6.3f %8s %s-%s %+.2f\n", name, d, per_iter, ref, per_iter / ref,
+                   o.acceptance, tf_model_param_name(m, o.worst), tf_model_param_name(m, o.corr_i),
+                   tf_model_param_name(m, o.corr_j), o.max_corr);
+            fflush(stdout);
+        }
+        tf_posterior_free(post);
+        tf_prior_set_free(priors);
+        tf_model_free(m);
+        tf_survey_free(sv);
+    }
+    return ok;
+}
+
 int main(void)
 {
     /* The default model files sit in models/ of the repository root. */
     setenv("TALLYFIT_MODELS", "models", 0);
-    tf_pmmh_options d = tf_pmmh_default_options();
-    d.n_iter = KEPT;
+    /* BENCH_FIT_WALK=1 runs only the walk's efficiency (the last part), for work on the walk. */
+    if (getenv("BENCH_FIT_WALK"))
+        return walk_efficiency() ? 0 : 1;
+    tf_pmmh_options d = fixed_options();
     printf("bench_fit: %zu chains x %zu iterations (every %zu-th kept) after %zu warm-up, 2 threads, rho %.2f\n",
-           d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, d.rho);
+           d.n_chains, d.max_iter, d.thin, d.n_warmup, d.rho);
     printf("%-40s %-10s %4s %6s %5s %7s %8s %8s %6s %8s\n", "case", "method", "seed", "N", "sd", "time_s",
            "ess_bulk", "ess_tail", "rhat", "ess/s");
-    double log_ratio_sum = 0;
+    double log_ratio_sum = 0, log_da_sum = 0;
     size_t n_ratio = 0;
     int ok = 1;
     for (size_t k = 0; k < N_CASES; k++) {
@@ -463,21 +626,27 @@ int main(void)
         char name[128];
         snprintf(name, sizeof name, "%s%s%s %s+%s", strrchr(c->file, '/') + 1, c->population ? ":" : "",
                  c->population ? c->population : "", c->growth, c->obs);
+        double case_da = 0;
         for (uint64_t seed = 1; ok && seed <= N_SEEDS; seed++) {
-            outcome o[2];
-            for (int method = 0; method < 2 && ok; method++) {
+            outcome o[3];
+            for (int method = 0; method < 3 && ok; method++) {
                 ok = run_one(post, s, method, seed, &o[method]);
                 if (ok)
                     printf("%-40s %-10s %4llu %6zu %5.2f %7.2f %8.0f %8.0f %6.3f %8.1f\n", name,
-                           method ? "correlated" : "standard", (unsigned long long)seed, o[method].n_particles,
+                           variant_name[method], (unsigned long long)seed, o[method].n_particles,
                            o[method].loglik_sd, o[method].seconds, o[method].ess_bulk, o[method].ess_tail,
                            o[method].rhat, o[method].ess_bulk / o[method].seconds);
             }
             if (ok) {
                 log_ratio_sum += log((o[1].ess_bulk / o[1].seconds) / (o[0].ess_bulk / o[0].seconds));
+                double da = log((o[2].ess_bulk / o[2].seconds) / (o[0].ess_bulk / o[0].seconds));
+                log_da_sum += da;
+                case_da += da / N_SEEDS;
                 n_ratio++;
             }
         }
+        if (ok)
+            printf("%-40s delayed acceptance / standard, ESS per second: %.2f\n", name, exp(case_da));
         tf_posterior_free(post);
         tf_prior_set_free(priors);
         tf_model_free(m);
@@ -488,6 +657,8 @@ int main(void)
         return 1;
     printf("bench_fit: ESS per second, correlated / standard: geometric mean %.2f over %zu runs\n",
            exp(log_ratio_sum / (double)n_ratio), n_ratio);
+    printf("bench_fit: ESS per second, delayed acceptance / standard: geometric mean %.2f over %zu runs\n",
+           exp(log_da_sum / (double)n_ratio), n_ratio);
     fflush(stdout);
-    return compare_exact() ? 0 : 1;
+    return compare_exact() && walk_efficiency() ? 0 : 1;
 }

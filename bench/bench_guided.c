@@ -80,9 +80,9 @@ static int fit_once(const tf_posterior *post, const tf_series *s, tf_proposal p,
     opt.proposal = p;
     opt.n_threads = 2;
     if (short_run) {
-        opt.n_iter = 500;
+        opt.min_iter = opt.max_iter = 4000;   /* a fixed length: 500 draws kept every 8th */
+        opt.thin = 8;
         opt.n_warmup = 2000;
-        opt.max_doublings = 0;
     }
     tf_error err;
     tf_error_init(&err);

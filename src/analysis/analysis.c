@@ -22,12 +22,9 @@ const size_t tf_analysis_risk_years[TF_ANALYSIS_N_RISK_YEARS] = {10, 20, 50};
 static const char *const default_growth[] = {"exponential", "ricker", "gompertz"};
 static const char *const default_obs_counts[] = {"poisson", "negbin"};
 static const char *const default_obs_amounts[] = {"lognormal"};
-/* Kept draws per chain: half the fit command's, with its warm-up and thinning. analyze fits
- * every candidate, so time counts six times over; on the demo surveys 4 chains of 2500 draws
- * (20000 iterations at thinning 8) still give every default candidate bulk and tail ESS of
- * 700 and more (above the 400 of Vehtari et al. 2021), and the marginal likelihoods move by
- * less than their standard errors (measured on surveys/heron-colony.csv). */
-#define DEFAULT_KEPT 2500
+/* The sampler runs by need (tf_pmmh_default_options): analyze fits every candidate, and each
+ * one stops as soon as its draws pass the convergence checks, so no candidate runs longer than
+ * it needs to. */
 /* Quasi-extinction thresholds relative to each run's start, so that one default serves colonies
  * of tens and herds of thousands (common practice, no source). */
 #define DEFAULT_THRESHOLDS "50%,20%,10%"
@@ -61,7 +58,6 @@ tf_status tf_analysis_options_init(tf_analysis_options *o, tf_error *err)
     for (size_t i = 0; i < o->n_growth; i++)
         o->growth[i] = default_growth[i];
     o->fit = tf_pmmh_default_options();
-    o->fit.n_iter = DEFAULT_KEPT;
     o->evidence = tf_evidence_default_options();
     tf_project_options_init(&o->project);
     o->seed = 1;
@@ -98,12 +94,16 @@ typedef struct {
     tf_analysis_progress_fn fn;
     void *ctx;
     tf_analysis_event ev;   /* population fields filled in; the rest per call */
+    double started[TF_COMPARE_MAX_MODELS];   /* when each candidate started, in the comparison's
+                                              * seconds */
 } progress_relay;
 
 static void relay_compare(void *ctx, size_t index, const char *model_name, tf_compare_event ev, double seconds)
 {
     (void)index;
     progress_relay *r = ctx;
+    if (ev == TF_COMPARE_STARTED && index < TF_COMPARE_MAX_MODELS)
+        r->started[index] = seconds;
     if (ev != TF_COMPARE_DONE && ev != TF_COMPARE_FAILED)
         return;
     /* The comparison calls one at a time under its lock, so the shared event is safe. */
@@ -112,6 +112,7 @@ static void relay_compare(void *ctx, size_t index, const char *model_name, tf_co
     e.model = model_name;
     e.failed = ev == TF_COMPARE_FAILED;
     e.seconds = seconds;
+    e.model_seconds = index < TF_COMPARE_MAX_MODELS ? seconds - r->started[index] : NAN;
     r->fn(r->ctx, &e);
 }
 

@@ -79,6 +79,8 @@ typedef struct {
     const char *model;      /* TF_ANALYSIS_MODEL_DONE: the candidate's name; else NULL */
     int failed;             /* TF_ANALYSIS_MODEL_DONE: 1 when its fit failed */
     double seconds;         /* since the population started */
+    double model_seconds;   /* TF_ANALYSIS_MODEL_DONE: the candidate's own time (fit and
+                             * marginal likelihood) */
 } tf_analysis_event;
 /* Called one call at a time, from the calling thread or from a worker thread of the
  * comparison; it must not call back into the analysis. */

@@ -437,13 +437,15 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
     tf_table *t = new_table(a, p, "diagnostics", err);
     if (!t)
         return tf_error_status(err);
-    size_t c_model, c_chains, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_k,
+    size_t c_model, c_chains, c_run, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail, c_k,
         c_sec = 0, c_status;
     TRY(tf_table_add_column(t, "Model", "the model's name", TF_COL_TEXT, &c_model, err));
     TRY(tf_table_add_column(t, "Chains", "independent PMMH chains", TF_COL_INTEGER, &c_chains, err));
+    TRY(tf_table_add_column(t, "Iterations", "iterations of each chain after the warm-up: the chains stop once "
+                            "the convergence checks pass", TF_COL_INTEGER, &c_run, err));
     TRY(tf_table_add_column(t, "Draws per chain", "kept draws of each chain", TF_COL_INTEGER, &c_iter, err));
-    TRY(tf_table_add_column(t, "Thinning", "iterations per kept draw; doubled each time the chains were run on "
-                            "for as long again because they had not yet converged", TF_COL_INTEGER, &c_thin, err));
+    TRY(tf_table_add_column(t, "Thinning", "iterations per kept draw; doubled each time the kept draws filled "
+                            "their store, so that memory stays bounded in long runs", TF_COL_INTEGER, &c_thin, err));
     TRY(tf_table_add_column(t, "Warm-up", "discarded draws of each chain while the sampler adapted", TF_COL_INTEGER, &c_warm,
                             err));
     TRY(tf_table_add_column(t, "Particles", "particles of the filter that estimates the likelihood", TF_COL_INTEGER, &c_part,
@@ -495,9 +497,9 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
             bulk = isnan(ps->ess_bulk) ? 0 : fmin(bulk, ps->ess_bulk);
             tail = isnan(ps->ess_tail) ? 0 : fmin(tail, ps->ess_tail);
         }
-        double v[] = {(double)nc, (double)tf_fit_n_iter(f), (double)fs->thin, (double)fs->n_warmup, (double)fs->n_particles,
+        double v[] = {(double)nc, (double)fs->n_iterations, (double)tf_fit_n_iter(f), (double)fs->thin, (double)fs->n_warmup, (double)fs->n_particles,
                       fs->loglik_sd, acc, acc_min, inv, rhat, bulk, tail};
-        size_t c[] = {c_chains, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail};
+        size_t c[] = {c_chains, c_run, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail};
         for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
             tf_table_set_number(t, row, c[k], v[k]);
         if (seconds)
@@ -758,17 +760,27 @@ static tf_status provenance_items(const tf_analysis *a, const tf_sheets_provenan
         snprintf(particles, sizeof particles, "%zu particles", o->fit.n_particles);
     else
         snprintf(particles, sizeof particles, "particles chosen per model");
-    snprintf(text, sizeof text,
-             "PMMH, %zu chains of %zu iterations after %zu warm-up iterations, keeping one in %zu (%zu draws per chain); "
-             "%s, %s proposal",
-             o->fit.n_chains, o->fit.n_iter * o->fit.thin, o->fit.n_warmup, o->fit.thin, o->fit.n_iter, particles,
-             tf_filter_proposal_name(o->fit.proposal));
+    if (o->fit.min_iter == o->fit.max_iter)
+        snprintf(text, sizeof text,
+                 "PMMH, %zu chains of %zu iterations after %zu warm-up iterations, at most %zu draws kept per chain; %s, %s proposal",
+                 o->fit.n_chains, o->fit.max_iter, o->fit.n_warmup, o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
+    else
+        snprintf(text, sizeof text,
+                 "PMMH, %zu chains after %zu warm-up iterations, run until R-hat <= %.2f and bulk and tail ESS >= %.0f "
+                 "(%zu to %zu iterations), at most %zu draws kept per chain; %s, %s proposal",
+                 o->fit.n_chains, o->fit.n_warmup, TF_FIT_RHAT_MAX, o->fit.min_ess, o->fit.min_iter, o->fit.max_iter,
+                 o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
     TRY(tf_table_add_item_text(t, "Sampler", text, "see each diagnostics sheet", err));
     const tf_projection *pr = tf_analysis_pop_projection(p0);
     snprintf(text, sizeof text, "%zu simulated futures over %zu years, models weighted by their posterior probabilities",
              tf_projection_n_runs(pr), tf_projection_horizon(pr));
     TRY(tf_table_add_item_text(t, "Projection", text, NULL, err));
-    snprintf(text, sizeof text, "importance sampling squared, %zu draws per importance density", o->evidence.n_draws);
+    if (o->evidence.target_se > 0)
+        snprintf(text, sizeof text,
+                 "importance sampling squared, draws per importance density until the standard error of log p(y) "
+                 "is at most %.2f (at most %zu)", o->evidence.target_se, o->evidence.n_draws);
+    else
+        snprintf(text, sizeof text, "importance sampling squared, %zu draws per importance density", o->evidence.n_draws);
     TRY(tf_table_add_item_text(t, "Marginal likelihoods", text, "see each models sheet", err));
     return TF_OK;
 fail:

@@ -62,16 +62,19 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     if (a->estimates)
         line(f, "counts", "%s", "estimates (continuous counting-error models only)");
     line(f, "chains", "%zu", a->fit.n_chains);
-    line(f, "kept-draws", "%zu", a->fit.n_iter);
+    line(f, "iterations", "%zu %zu", a->fit.min_iter, a->fit.max_iter);
+    line(f, "min-ess", "%.17g", a->fit.min_ess);
+    line(f, "kept-draws", "%zu", a->fit.max_kept);
     line(f, "thin", "%zu", a->fit.thin);
     line(f, "warmup", "%zu", a->fit.n_warmup);
     line(f, "particles", "%zu", a->fit.n_particles);
     line(f, "correlated", "%d %.17g", a->fit.correlated, a->fit.rho);
     line(f, "pilot-particles", "%zu", a->fit.pilot_particles);
+    line(f, "delayed-acceptance", "%s", a->fit.delayed ? "on" : "off");
     line(f, "proposal", "%s", tf_filter_proposal_name(a->fit.proposal));
-    line(f, "doublings", "%zu", a->fit.max_doublings);
     const tf_evidence_options *e = &a->evidence;
-    line(f, "ml-draws", "%zu", e->n_draws);
+    line(f, "ml-draws", "%zu %zu", e->min_draws, e->n_draws);
+    line(f, "ml-se", "%.17g", e->target_se);
     line(f, "ml-adapt", "%zu %zu", e->n_adapt_rounds, e->n_adapt_draws);
     line(f, "ml-mixture", "%.17g %zu %.17g %.17g", e->nu, e->n_components, e->defensive_weight, e->defensive_scale);
     line(f, "ml-check", "%.17g %.17g", e->check_nu, e->check_scale);

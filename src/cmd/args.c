@@ -401,13 +401,136 @@ tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err
     return st;
 }
 
-tf_status tf_args_kept_draws(size_t iterations, size_t thin, size_t *n_iter, tf_error *err)
+/* Limits of the run-length options that only guard against typos. */
+#define RUN_MAX_ITER ((size_t)100000000)
+#define RUN_MAX_KEPT ((size_t)10000000)
+#define RUN_MIN_KEPT ((size_t)8)
+
+tf_status tf_args_parse_ml_se(const char *text, double *out, tf_error *err)
 {
-    *n_iter = iterations / thin;
-    if (*n_iter < 1)
-        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give at least as many --iterations as --thin",
-                            "--iterations %zu with --thin %zu keeps no draw", iterations, thin);
+    double v;
+    if (tf_args_parse_double("--ml-se", text, &v, err) != TF_OK)
+        return TF_ERR_USAGE;
+    if (!(v >= 0 && v <= 10))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --ml-se 0.05, or 0 for always --draws draws",
+                            "--ml-se: %s is not between 0 and 10", text);
+    *out = v;
     return TF_OK;
+}
+
+void tf_args_run_init(tf_args_run *r)
+{
+    memset(r, 0, sizeof *r);
+    r->min_ess = NAN;
+    r->delayed = -1;
+}
+
+const char *tf_args_run_option(int code, const char *text, tf_args_run *r, tf_error *err)
+{
+    switch (code) {
+    case TF_ARGS_OPT_ITER:
+        tf_args_parse_size("--iterations", text, 1, RUN_MAX_ITER, &r->iterations, err);
+        return "--iterations";
+    case TF_ARGS_OPT_MIN_ITER:
+        tf_args_parse_size("--min-iterations", text, 1, RUN_MAX_ITER, &r->min_iter, err);
+        return "--min-iterations";
+    case TF_ARGS_OPT_MAX_ITER:
+        tf_args_parse_size("--max-iterations", text, 1, RUN_MAX_ITER, &r->max_iter, err);
+        return "--max-iterations";
+    case TF_ARGS_OPT_THIN:
+        tf_args_parse_size("--thin", text, 1, RUN_MAX_ITER, &r->thin, err);
+        return "--thin";
+    case TF_ARGS_OPT_KEPT:
+        tf_args_parse_size("--kept-draws", text, RUN_MIN_KEPT, RUN_MAX_KEPT, &r->kept, err);
+        return "--kept-draws";
+    case TF_ARGS_OPT_DELAYED:
+        if (!strcmp(text, "on"))
+            r->delayed = 1;
+        else if (!strcmp(text, "off"))
+            r->delayed = 0;
+        else
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give on or off",
+                         "--delayed-acceptance: '%s' is neither on nor off", text);
+        return "--delayed-acceptance";
+    case TF_ARGS_OPT_MIN_ESS: {
+        double v;
+        if (tf_args_parse_double("--min-ess", text, &v, err) == TF_OK) {
+            if (v >= 1 && v <= 1e7)
+                r->min_ess = v;
+            else
+                tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --min-ess 400",
+                             "--min-ess: %s is not between 1 and 1e7", text);
+        }
+        return "--min-ess";
+    }
+    default:
+        return NULL;
+    }
+}
+
+tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error *err)
+{
+    if (r->iterations && (r->min_iter || r->max_iter))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
+                            "give either --iterations or --min-iterations / --max-iterations",
+                            "--iterations fixes the run length; it cannot be combined with "
+                            "--min-iterations or --max-iterations");
+    if (r->iterations)
+        opt->min_iter = opt->max_iter = r->iterations;
+    if (r->min_iter)
+        opt->min_iter = r->min_iter;
+    if (r->max_iter)
+        opt->max_iter = r->max_iter;
+    /* A minimum given alone above the default maximum raises the maximum with it, and a
+     * maximum given alone below the default minimum lowers the minimum. */
+    if (r->min_iter && !r->max_iter && opt->max_iter < opt->min_iter)
+        opt->max_iter = opt->min_iter;
+    if (r->max_iter && !r->min_iter && opt->min_iter > opt->max_iter)
+        opt->min_iter = opt->max_iter;
+    if (r->thin)
+        opt->thin = r->thin;
+    if (r->kept)
+        opt->max_kept = r->kept;
+    if (!isnan(r->min_ess))
+        opt->min_ess = r->min_ess;
+    if (r->delayed >= 0)
+        opt->delayed = r->delayed;
+    if (opt->min_iter > opt->max_iter)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
+                            "--min-iterations %zu is above --max-iterations %zu", opt->min_iter,
+                            opt->max_iter);
+    if (opt->thin > opt->min_iter)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give a smaller --thin or more iterations",
+                            "--thin %zu with runs of %zu iterations keeps no draw", opt->thin,
+                            opt->min_iter);
+    return TF_OK;
+}
+
+void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width)
+{
+    int w = width - 3;
+    fprintf(out,
+            "  %-*s run each chain, after the warm-up, until every parameter and the true\n"
+            "  %-*s abundance of the first and last year have R-hat <= %.2f and bulk and tail\n"
+            "  %-*s ESS >= E (default %.0f)\n",
+            w, "--min-ess E", w, "", TF_FIT_RHAT_MAX, w, "", d->min_ess);
+    fprintf(out, "  %-*s but at least I iterations per chain (default %zu)\n", w, "--min-iterations I",
+            d->min_iter);
+    fprintf(out, "  %-*s and at most I (default %zu)\n", w, "--max-iterations I", d->max_iter);
+    fprintf(out,
+            "  %-*s run exactly I iterations per chain after the warm-up, without the\n"
+            "  %-*s convergence checks deciding\n",
+            w, "--iterations I", w, "");
+    fprintf(out,
+            "  %-*s keep every K-th iteration at first (default %zu); the thinning doubles\n"
+            "  %-*s whenever the kept draws fill their store\n",
+            w, "--thin K", d->thin, w, "");
+    fprintf(out, "  %-*s keep at most N draws per chain (default %zu)\n", w, "--kept-draws N", d->max_kept);
+    fprintf(out,
+            "  --delayed-acceptance on|off\n"
+            "  %-*s screen each proposal with a cheap approximate likelihood before the\n",
+            w, "");
+    fprintf(out, "  %-*s particle filter runs; exact either way (default %s)\n", w, "", d->delayed ? "on" : "off");
 }
 
 size_t tf_args_default_threads(size_t max)

@@ -7,8 +7,11 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include <stdio.h>
+
 #include "filter/filter.h"
 #include "model/model.h"
+#include "sampler/pmmh.h"
 #include "survey/survey.h"
 #include "util/error.h"
 
@@ -116,9 +119,48 @@ tf_status tf_args_model_at(const char *growth, const char *obs, const tf_arg_pai
  * large file is read. */
 tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err);
 
-/* The kept draws per chain of `--iterations` iterations kept every `--thin`-th: *n_iter =
- * iterations / thin. Refuses a pair that keeps no draw. */
-tf_status tf_args_kept_draws(size_t iterations, size_t thin, size_t *n_iter, tf_error *err);
+/* The sampler's run-length options, shared by every command that fits: --iterations (a fixed
+ * length), --min-iterations, --max-iterations, --min-ess, --thin and --kept-draws. A command
+ * puts TF_ARGS_RUN_LONGOPTS in its getopt_long table and passes every option code it does not
+ * know itself to tf_args_run_option. */
+enum { TF_ARGS_OPT_ITER = 1000, TF_ARGS_OPT_MIN_ITER, TF_ARGS_OPT_MAX_ITER, TF_ARGS_OPT_MIN_ESS,
+       TF_ARGS_OPT_THIN, TF_ARGS_OPT_KEPT, TF_ARGS_OPT_DELAYED };
+#define TF_ARGS_RUN_LONGOPTS                                                                      \
+    {"iterations", required_argument, NULL, TF_ARGS_OPT_ITER},                                    \
+    {"min-iterations", required_argument, NULL, TF_ARGS_OPT_MIN_ITER},                            \
+    {"max-iterations", required_argument, NULL, TF_ARGS_OPT_MAX_ITER},                            \
+    {"min-ess", required_argument, NULL, TF_ARGS_OPT_MIN_ESS},                                    \
+    {"thin", required_argument, NULL, TF_ARGS_OPT_THIN},                                          \
+    {"kept-draws", required_argument, NULL, TF_ARGS_OPT_KEPT},                                    \
+    {"delayed-acceptance", required_argument, NULL, TF_ARGS_OPT_DELAYED}
+
+/* The run-length options as given; 0 (NAN for min_ess) where not given. Zero it with
+ * tf_args_run_init. */
+typedef struct {
+    size_t iterations, min_iter, max_iter, thin, kept;
+    double min_ess;
+    int delayed;   /* --delayed-acceptance on (1) or off (0); -1 = not given */
+} tf_args_run;
+
+void tf_args_run_init(tf_args_run *r);
+
+/* Reads option code (with its argument text) into r when it is one of the run-length options and
+ * returns the option's name ("--thin"); returns NULL for any other code. A bad value is recorded
+ * in err. */
+const char *tf_args_run_option(int code, const char *text, tf_args_run *r, tf_error *err);
+
+/* Puts the options given over opt's: --iterations I sets both the minimum and the maximum (a
+ * run of fixed length) and cannot be combined with either. Refuses a minimum above the maximum,
+ * and a thinning above the minimum (no draw would be kept). */
+tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error *err);
+
+/* Prints the help lines of the run-length options with defaults d, each option's name padded to
+ * width columns. */
+void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width);
+
+/* --ml-se S: the standard error of each log marginal likelihood that its importance draws stop
+ * at, 0 (always the --draws cap) to 10. */
+tf_status tf_args_parse_ml_se(const char *text, double *out, tf_error *err);
 
 /* The default number of threads: the processors online (1 when unknown), at most max. */
 size_t tf_args_default_threads(size_t max);

@@ -75,13 +75,17 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --seed S           random seed (default %llu); the same seed gives the same numbers\n"
             "  --threads T        threads (default: the number of processors; 1 per MPI process); the\n"
             "                     results do not depend on T. A batch analyses T populations at a time\n"
-            "  --chains C         chains per model (default %zu)\n"
-            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
-            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --chains C         chains per model (default %zu)\n",
+            DEFAULT_DIR, d->project.horizon, growth, obs, (unsigned long long)d->seed, d->fit.n_chains);
+    tf_args_run_help(out, &d->fit, 21);
+    fprintf(out,
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
             TF_ARGS_PROPOSAL_HELP
-            "  --draws M          importance draws per density for each marginal likelihood (default %zu)\n"
+            "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
+            "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
+            "  --draws M          importance draws per density for each marginal likelihood, at most\n"
+            "                     (default %zu)\n"
             "  --runs R           simulated futures (default: at least %d)\n"
             "  --batch            analyse the populations as a batch even when there are few (see below)\n"
             "  --fresh            in batch mode: discard the results of an earlier batch in the folder\n"
@@ -100,8 +104,7 @@ static void help(FILE *out, const tf_analysis_options *d)
             "Exit status: 0 done, 1 the job could not be done (batch: some populations failed; the\n"
             "summary says why), 2 bad command line or a batch folder with other settings, 3 unusable\n"
             "survey, 130 interrupted (single survey: nothing written; batch: run it again to go on).\n",
-            DEFAULT_DIR, d->project.horizon, growth, obs, (unsigned long long)d->seed, d->fit.n_chains, d->fit.n_iter * d->fit.thin,
-            d->fit.thin, d->fit.n_warmup, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
+            d->fit.n_warmup, d->evidence.target_se, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
 }
 
 /* The plain lines on one population. */
@@ -286,9 +289,10 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 
 static int analyze(int argc, char **argv, int rank, int size)
 {
-    enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS, OPT_ITER,
-           OPT_THIN, OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT, OPT_SKIP,
-           OPT_ESTIMATES, OPT_PROPOSAL };
+    enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
+           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT,
+           OPT_PROPOSAL, OPT_SKIP,
+           OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -301,12 +305,12 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"seed", required_argument, NULL, OPT_SEED},
         {"threads", required_argument, NULL, OPT_THREADS},
         {"chains", required_argument, NULL, OPT_CHAINS},
-        {"iterations", required_argument, NULL, OPT_ITER},
-        {"thin", required_argument, NULL, OPT_THIN},
+        TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"draws", required_argument, NULL, OPT_DRAWS},
+        {"ml-se", required_argument, NULL, OPT_ML_SE},
         {"runs", required_argument, NULL, OPT_RUNS},
         {"batch", no_argument, NULL, OPT_BATCH},
         {"fresh", no_argument, NULL, OPT_FRESH},
@@ -332,7 +336,9 @@ static int analyze(int argc, char **argv, int rank, int size)
     FILE *errs = rank == 0 ? stderr : NULL;
     const char *out_dir = DEFAULT_DIR;
     char growth_buf[1024], obs_buf[1024];
-    size_t n_particles = 0, iterations = opt.fit.n_iter * opt.fit.thin;
+    size_t n_particles = 0;
+    tf_args_run run;
+    tf_args_run_init(&run);
     int quiet = 0;
     tf_input in = {0};
 
@@ -366,8 +372,6 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
         case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
-        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
-        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, 1000, &opt.fit.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
         case OPT_PROPOSAL:
@@ -375,6 +379,7 @@ static int analyze(int argc, char **argv, int rank, int size)
             opt.evidence.proposal = opt.fit.proposal;
             break;
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
+        case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;
         case OPT_BATCH: batch = 1; break;
         case OPT_FRESH: fresh = 1; break;
@@ -384,17 +389,17 @@ static int analyze(int argc, char **argv, int rank, int size)
             if (rank == 0)
                 help(stdout, &opt);
             return TF_EXIT_OK;
-        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
+        default:
+            if (!tf_args_run_option(c, optarg, &run, &err))
+                tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
+            break;
         }
     }
     const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path && tf_error_status(&err) == TF_OK)
         tf_args_no_survey(CMD, &err);
-    /* --iterations counts iterations, as fit and compare do; the sampler keeps every thin-th. */
-    opt.fit.n_iter = iterations / opt.fit.thin;
-    if (tf_error_status(&err) == TF_OK && opt.fit.n_iter < 1)
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give more --iterations or a smaller --thin",
-                     "--iterations %zu with --thin %zu keeps no draw", iterations, opt.fit.thin);
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_run_apply(&run, &opt.fit, &err);
     if (path && !strcmp(path, "-"))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
                      "analyze needs a survey file: its name names the results and its hash is recorded");
@@ -514,8 +519,11 @@ static int analyze(int argc, char **argv, int rank, int size)
     if ((st = tf_provenance_hash_file(path, prov.sha256, &err)) != TF_OK)
         goto out;
     tf_provenance_format_date(tf_provenance_now(), prov.date);
-    int show = !quiet && isatty(STDERR_FILENO);
-    if ((st = tf_analysis_run(sv, &opt, interrupted, show ? tf_messages_analysis : NULL, name, &a, &err)) != TF_OK) {
+    /* Without --quiet the time of each model is shown: with the whole progress on a terminal, as
+     * one plain line per model otherwise (a log of `analyze ... 2>log`). */
+    tf_analysis_progress_fn show =
+        quiet ? NULL : isatty(STDERR_FILENO) ? tf_messages_analysis : tf_messages_analysis_plain;
+    if ((st = tf_analysis_run(sv, &opt, interrupted, show, name, &a, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }

@@ -60,18 +60,21 @@ static void help(FILE *out)
             "                     (ricker+poisson) or a growth model (all its counting-error models);\n"
             "                     models not named get 1\n"
             "  --seed S           random seed (default %llu); the same seed gives the same results\n"
-            "  --chains C         chains per model (default %zu)\n"
-            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
-            "  --thin K           keep every K-th of them (default %zu)\n"
+            "  --chains C         chains per model (default %zu)\n",
+            growth, obs, (unsigned long long)d.seed, d.n_chains);
+    tf_args_run_help(out, &d, 21);
+    fprintf(out,
             "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N      particles of the filter (default: tuned per model)\n"
             TF_ARGS_PROPOSAL_HELP
-            "  --draws M          importance draws per density (default %zu)\n"
+            "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
+            "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
+            "  --draws M          importance draws per density at most (default %zu)\n"
             "  --threads T        threads (default: the number of processors); models run in\n"
             "                     parallel, and the results do not depend on T\n"
             "  --quiet            print nothing but warnings and errors\n"
             "  -h, --help         show this help\n",
-            growth, obs, (unsigned long long)d.seed, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, e.n_draws);
+            d.n_warmup, e.target_se, e.n_draws);
 }
 
 static void show_progress(void *ctx, size_t index, const char *model, tf_compare_event ev, double seconds)
@@ -172,8 +175,9 @@ static void print_warnings(const tf_comparison *c)
 
 int tf_cmd_compare(int argc, char **argv)
 {
-    enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_ITER, OPT_THIN, OPT_WARMUP,
-           OPT_PARTICLES, OPT_DRAWS, OPT_THREADS, OPT_QUIET, OPT_SKIP, OPT_ESTIMATES, OPT_PROPOSAL };
+    enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_WARMUP,
+           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET, OPT_PROPOSAL, OPT_SKIP,
+           OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"models", required_argument, NULL, OPT_MODELS},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -184,12 +188,12 @@ int tf_cmd_compare(int argc, char **argv)
         {"model-weights", required_argument, NULL, OPT_WEIGHTS},
         {"seed", required_argument, NULL, OPT_SEED},
         {"chains", required_argument, NULL, OPT_CHAINS},
-        {"iterations", required_argument, NULL, OPT_ITER},
-        {"thin", required_argument, NULL, OPT_THIN},
+        TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"proposal", required_argument, NULL, OPT_PROPOSAL},
         {"draws", required_argument, NULL, OPT_DRAWS},
+        {"ml-se", required_argument, NULL, OPT_ML_SE},
         {"threads", required_argument, NULL, OPT_THREADS},
         {"quiet", no_argument, NULL, OPT_QUIET},
         {"help", no_argument, NULL, 'h'},
@@ -207,7 +211,8 @@ int tf_cmd_compare(int argc, char **argv)
     uint64_t seed = opt.fit.seed;
     size_t n_particles = 0;
     int quiet = 0;
-    size_t iterations = opt.fit.n_iter * opt.fit.thin;
+    tf_args_run run;
+    tf_args_run_init(&run);
     tf_input in = {0};
 
     opterr = 0;
@@ -229,8 +234,6 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_WEIGHTS: tf_args_parse_pairs("--model-weights", optarg, &weights, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
-        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
-        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.fit.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
         case OPT_PROPOSAL:
             tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
@@ -240,16 +243,21 @@ int tf_cmd_compare(int argc, char **argv)
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err);
             break;
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
+        case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
         case OPT_QUIET: quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
-        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
+        default:
+            if (!tf_args_run_option(c, optarg, &run, &err))
+                tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
+            break;
         }
     }
     const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path)
         tf_args_no_survey(CMD, &err);
-    tf_args_kept_draws(iterations, opt.fit.thin, &opt.fit.n_iter, &err);
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_run_apply(&run, &opt.fit, &err);
     /* Mistyped model names are usage errors, found before a large file is read. */
     char known[256];
     for (size_t i = 0; i < opt.n_growth; i++)

@@ -32,7 +32,6 @@
 #define MAX_ITER 10000000
 #define MAX_PARTICLES 10000000
 #define MAX_THREADS 256
-#define MAX_DOUBLINGS 10
 
 static void help(FILE *out)
 {
@@ -58,12 +57,10 @@ static void help(FILE *out)
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n"
             "  --chains C         chains (default %zu)\n"
-            "  --iterations I     iterations per chain after the warm-up (default %zu)\n"
-            "  --thin K           keep every K-th of them (default %zu)\n"
-            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
-            "  --doublings D      when the chains miss R-hat <= %.2f or ESS >= %.0f, run them on for as\n"
-            "                     long again, keeping every second draw, at most D times (default %zu;\n"
-            "                     0 = fixed length; runs of fewer than %zu kept draws are never doubled)\n"
+            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n",
+            growth, obs, d.n_chains, d.n_warmup);
+    tf_args_run_help(out, &d, 21);
+    fprintf(out,
             "  --seed S           random seed (default %llu); the same seed gives the same files\n"
             "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
             "                     estimate's sd is near its target)\n"
@@ -78,8 +75,7 @@ static void help(FILE *out)
             "                     results do not depend on it\n"
             "  -q, --quiet        no progress display and no summary\n"
             "  -h, --help         show this help\n",
-            growth, obs, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN,
-            d.max_doublings, TF_PMMH_DOUBLING_MIN_DRAWS, (unsigned long long)d.seed,
+            (unsigned long long)d.seed,
             d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);
 }
 
@@ -297,27 +293,33 @@ static tf_table *sampler_table(const tf_fit *f, tf_error *err)
              add_col(t, "invalid", "share of proposals with a zero prior or a non-finite likelihood estimate",
                      TF_COL_PROBABILITY, err) &&
              add_col(t, "warmup", "discarded iterations per chain", TF_COL_INTEGER, err) &&
-             add_col(t, "iterations", "kept iterations per chain", TF_COL_INTEGER, err) &&
-             add_col(t, "thin", "iterations per kept draw (doubled with each doubling)", TF_COL_INTEGER, err) &&
-             add_col(t, "doublings", "times the chains were doubled in length to converge", TF_COL_INTEGER, err) &&
+             add_col(t, "iterations", "iterations per chain after the warm-up", TF_COL_INTEGER, err) &&
+             add_col(t, "kept", "kept draws per chain", TF_COL_INTEGER, err) &&
+             add_col(t, "thin", "iterations per kept draw at the end (doubled whenever the kept draws filled "
+                     "their store)", TF_COL_INTEGER, err) &&
+             add_col(t, "converged", "1 when the run stopped because the convergence checks passed, 0 when it "
+                     "ran its fixed or maximum length", TF_COL_INTEGER, err) &&
              add_col(t, "particles", "particles of the filter", TF_COL_INTEGER, err) &&
              add_col(t, "loglik_sd", "measured sd of the log-likelihood estimate at the pilot centre "
                      "(correlated method: of the log-ratio of two successive estimates)", TF_COL_NUMBER, err) &&
              add_col(t, "method", "standard or correlated pseudo-marginal", TF_COL_TEXT, err) &&
              add_col(t, "rho", "correlation of successive random numbers (correlated method)", TF_COL_NUMBER, err) &&
+             add_col(t, "screened", "delayed acceptance: share of proposals the cheap screen rejected without a "
+                     "particle filter run (mean over chains; empty when off)", TF_COL_PROBABILITY, err) &&
              add_col(t, "seed", NULL, TF_COL_TEXT, err) &&
              add_col(t, "proposal", "how the particle filter moved: guided or bootstrap", TF_COL_TEXT, err);
     for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++) {
-        double v[11] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
-                        (double)tf_fit_n_iter(f), (double)st->thin, (double)st->n_doublings, (double)st->n_particles,
-                        st->loglik_sd, NAN, st->correlated ? st->rho : NAN};
+        double v[13] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
+                        (double)st->n_iterations, (double)tf_fit_n_iter(f), (double)st->thin,
+                        (double)st->stopped_early, (double)st->n_particles, st->loglik_sd, NAN,
+                        st->correlated ? st->rho : NAN, st->delayed ? st->screened : NAN};
         char seed[32];
         snprintf(seed, sizeof seed, "%llu", (unsigned long long)st->seed);
         size_t row = tf_table_n_rows(t);
-        ok = tf_table_add_row_numbers(t, v, 11, err) == TF_OK &&
-             tf_table_set_text(t, row, 9, st->correlated ? "correlated" : "standard", err) == TF_OK &&
-             tf_table_set_text(t, row, 11, seed, err) == TF_OK &&
-             tf_table_set_text(t, row, 12, tf_filter_proposal_name(st->proposal), err) == TF_OK;
+        ok = tf_table_add_row_numbers(t, v, 13, err) == TF_OK &&
+             tf_table_set_text(t, row, 10, st->correlated ? "correlated" : "standard", err) == TF_OK &&
+             tf_table_set_text(t, row, 13, seed, err) == TF_OK &&
+             tf_table_set_text(t, row, 14, tf_filter_proposal_name(st->proposal), err) == TF_OK;
     }
     if (!ok) {
         tf_table_free(t);
@@ -389,14 +391,13 @@ static void print_summary(const job *j, FILE *out)
     const tf_fit *f = j->fit;
     const tf_fit_settings *st = tf_fit_settings_of(f);
     const char *label = tf_series_label(j->series);
-    fprintf(out, "%s%s%s: %zu chains x %zu draws (after %zu warm-up), %zu particles (%s proposal), %s method, "
-                 "log-likelihood sd %.2f, %.1f s\n",
-            label, label[0] ? " " : "", tf_model_name(j->model), tf_fit_n_chains(f), tf_fit_n_iter(f),
-            st->n_warmup, st->n_particles, tf_filter_proposal_name(st->proposal),
-            st->correlated ? "correlated" : "standard", st->loglik_sd, st->seconds);
-    if (st->n_doublings)
-        fprintf(out, "  the chains did not meet the convergence thresholds at first and were run %zu times "
-                     "as long, keeping every %zu-th iteration\n", (size_t)1 << st->n_doublings, st->thin);
+    fprintf(out, "%s%s%s: %zu chains x %zu iterations (after %zu warm-up; %zu draws kept per chain), "
+                 "%zu particles (%s proposal), %s method, log-likelihood sd %.2f, %.1f s\n",
+            label, label[0] ? " " : "", tf_model_name(j->model), tf_fit_n_chains(f), st->n_iterations,
+            st->n_warmup, tf_fit_n_iter(f), st->n_particles, tf_filter_proposal_name(st->proposal), st->correlated ? "correlated" : "standard",
+            st->loglik_sd, st->seconds);
+    if (st->stopped_early)
+        fprintf(out, "  the chains stopped once the convergence checks passed\n");
     fprintf(out, "  %-10s %11s %11s %11s %11s %11s %7s %8s %8s\n", "parameter", "mean", "sd", "2.5%", "median",
             "97.5%", "R-hat", "ESS-bulk", "ESS-tail");
     for (size_t p = 0; p < tf_fit_n_params(f); p++) {
@@ -451,9 +452,10 @@ static int exit_for(tf_status st)
 
 int tf_cmd_fit(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_ITER, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_THIN, OPT_DOUBLINGS, OPT_SKIP,
-           OPT_ESTIMATES, OPT_PROPOSAL };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET,
+           OPT_PROPOSAL, OPT_SKIP,
+           OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -462,10 +464,8 @@ int tf_cmd_fit(int argc, char **argv)
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"output", required_argument, NULL, 'o'},
         {"chains", required_argument, NULL, OPT_CHAINS},
-        {"iterations", required_argument, NULL, OPT_ITER},
-        {"thin", required_argument, NULL, OPT_THIN},
+        TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
-        {"doublings", required_argument, NULL, OPT_DOUBLINGS},
         {"seed", required_argument, NULL, OPT_SEED},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"proposal", required_argument, NULL, OPT_PROPOSAL},
@@ -486,7 +486,8 @@ int tf_cmd_fit(int argc, char **argv)
     tf_pmmh_options opt = tf_pmmh_default_options();
     opt.n_threads = tf_args_default_threads(SIZE_MAX);
     int quiet = 0;
-    size_t iterations = opt.n_iter * opt.thin;
+    tf_args_run run;
+    tf_args_run_init(&run);
     tf_input in = {0};
 
     opterr = 0;
@@ -501,12 +502,7 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_ESTIMATES: in.estimates = 1; break;
         case 'o': out_dir = optarg; break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.n_chains, &err); break;
-        case OPT_ITER: tf_args_parse_size("--iterations", optarg, 1, MAX_ITER, &iterations, &err); break;
-        case OPT_THIN: tf_args_parse_size("--thin", optarg, 1, MAX_ITER, &opt.thin, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.n_warmup, &err); break;
-        case OPT_DOUBLINGS:
-            tf_args_parse_size("--doublings", optarg, 0, MAX_DOUBLINGS, &opt.max_doublings, &err);
-            break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
         case OPT_PARTICLES:
             tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &opt.n_particles, &err);
@@ -520,13 +516,17 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_QUIET:
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
-        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
+        default:
+            if (!tf_args_run_option(c, optarg, &run, &err))
+                tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
+            break;
         }
     }
     const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path)
         tf_args_no_survey(CMD, &err);
-    tf_args_kept_draws(iterations, opt.thin, &opt.n_iter, &err);
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_run_apply(&run, &opt, &err);
     if (!growth)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
     for (size_t i = 0; i < set.n; i++)

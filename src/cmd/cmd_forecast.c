@@ -61,7 +61,8 @@ typedef struct {
     double start;
     uint64_t seed;
     /* Sampler settings; 0 = the default of the source (no given value can be 0). */
-    size_t chains, iterations, thin, warmup, particles, draws, threads;
+    size_t chains, warmup, particles, draws, threads;
+    tf_args_run run;         /* run length and thinning (tf_args_run_option) */
     tf_proposal proposal;
     const char *sampler_opt; /* the first sampler option given, for the --fixed refusal */
     source from;
@@ -128,17 +129,18 @@ static void help(FILE *out)
             "  -q, --quiet             print only the cautions\n"
             "\n"
             "Fitting (--model, --average):\n"
-            "  --chains C              chains per model (default %zu)\n"
-            "  --iterations I          iterations per chain after the warm-up (default %zu with --model,\n"
-            "                          as fit; %zu with --average, as analyze)\n"
-            "  --thin K                keep every K-th of them (default %zu)\n"
+            "  --chains C              chains per model (default %zu)\n",
+            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS, DEFAULT_SEED, d.n_chains);
+    tf_args_run_help(out, &d, 26);
+    fprintf(out,
             "  --warmup W              discarded iterations per chain while the sampler adapts (default %zu)\n"
             "  --particles N           particles of the filter (default: tuned per model)\n"
             "  --proposal P            how the particle filter moves: guided (default; looks at each\n"
             "                          year's count first) or bootstrap (the growth model alone)\n"
             "  --priors FILE           --model only: a model file overriding some or all default priors\n"
             "  --draws M               --average only: importance draws per density for each marginal\n"
-            "                          likelihood (default %zu)\n"
+            "                          likelihood, at most (default %zu; fewer once its standard error\n"
+            "                          is at most %.2f, as in analyze)\n"
             "  --threads T             threads (default: the number of processors); the results do not\n"
             "                          depend on T\n"
             "  -h, --help              this text\n"
@@ -150,8 +152,7 @@ static void help(FILE *out)
             "\n"
             "Exit status: 0 done, 1 the job could not be done, 2 bad command line, 3 unusable survey,\n"
             "130 interrupted (nothing written).\n",
-            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS, DEFAULT_SEED, d.n_chains,
-            d.n_iter * d.thin, a.fit.n_iter * a.fit.thin, d.thin, d.n_warmup, a.evidence.n_draws);
+            d.n_warmup, a.evidence.n_draws, a.evidence.target_se);
 }
 
 /* ---- fixed parameters --------------------------------------------------------------------------- */
@@ -931,18 +932,15 @@ static int read_populations(const options *o, tf_survey **sv, const tf_series **
     return TF_EXIT_OK;
 }
 
-/* The sampler settings given on the command line, over the defaults in fit: chains, thinning,
- * warm-up and iterations (by default the kept draws of fit at the thinning given). */
+/* The sampler settings given on the command line, over the defaults in fit: chains, warm-up and
+ * the run length (tf_args_run_apply). */
 static tf_status sampler_settings(const options *o, tf_pmmh_options *fit, tf_error *err)
 {
     if (o->chains)
         fit->n_chains = o->chains;
-    if (o->thin)
-        fit->thin = o->thin;
     if (o->warmup)
         fit->n_warmup = o->warmup;
-    size_t iterations = o->iterations ? o->iterations : fit->n_iter * fit->thin;
-    return tf_args_kept_draws(iterations, fit->thin, &fit->n_iter, err);
+    return tf_args_run_apply(&o->run, fit, err);
 }
 
 /* The end of a posterior forecast: prints err unless the run succeeded or was interrupted (finish
@@ -1020,9 +1018,9 @@ static int run_model(const options *o, const tf_project_options *po)
     for (size_t i = 0; i < n_jobs; i++) {
         job *j = &jobs[i];
         if (show)
-            fprintf(stderr, "%s%s%s: fitting by PMMH (%zu chains x %zu iterations after %zu warm-up)...\n", j->label,
-                    j->label[0] ? " " : "", tf_model_name(j->model), opt.n_chains, opt.n_iter * opt.thin,
-                    opt.n_warmup);
+            fprintf(stderr, "%s%s%s: fitting by PMMH (%zu chains, %zu warm-up iterations, then %zu to %zu "
+                    "until they converge)...\n", j->label, j->label[0] ? " " : "", tf_model_name(j->model),
+                    opt.n_chains, opt.n_warmup, opt.min_iter, opt.max_iter);
         tf_status st = tf_pmmh_run(j->post, j->s, &opt, tf_signals_flag(), NULL, NULL, &j->fit, &err);
         if (st == TF_OK) {
             size_t nd = tf_fit_n_draws(j->fit);
@@ -1161,8 +1159,9 @@ out:
 /* ---- the command line ---------------------------------------------------------------------------- */
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
-       OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_ITER, OPT_THIN, OPT_WARMUP, OPT_PARTICLES, OPT_PROPOSAL,
-       OPT_PRIORS, OPT_DRAWS, OPT_THREADS, OPT_SKIP, OPT_ESTIMATES };
+       OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_WARMUP, OPT_PARTICLES, OPT_PROPOSAL,
+       OPT_PRIORS, OPT_DRAWS, OPT_THREADS, OPT_SKIP,
+           OPT_ESTIMATES };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -1183,8 +1182,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"chains", required_argument, NULL, OPT_CHAINS},
-        {"iterations", required_argument, NULL, OPT_ITER},
-        {"thin", required_argument, NULL, OPT_THIN},
+        TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"proposal", required_argument, NULL, OPT_PROPOSAL},
@@ -1198,6 +1196,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     };
     memset(o, 0, sizeof *o);
     tf_args_pairs_init(&o->fixed);
+    tf_args_run_init(&o->run);
     o->years = TF_PROJECT_DEFAULT_HORIZON;
     o->thresholds = DEFAULT_THRESHOLDS;
     o->start = NAN;
@@ -1240,14 +1239,6 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
             sampler = "--chains";
             tf_args_parse_size(sampler, optarg, 1, TF_FIT_MAX_CHAINS, &o->chains, err);
             break;
-        case OPT_ITER:
-            sampler = "--iterations";
-            tf_args_parse_size(sampler, optarg, 1, MAX_ITER, &o->iterations, err);
-            break;
-        case OPT_THIN:
-            sampler = "--thin";
-            tf_args_parse_size(sampler, optarg, 1, 1000, &o->thin, err);
-            break;
         case OPT_WARMUP:
             sampler = "--warmup";
             tf_args_parse_size(sampler, optarg, 20, MAX_ITER, &o->warmup, err);
@@ -1272,7 +1263,10 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
             sampler = "--priors";
             o->priors_path = optarg;
             break;
-        default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], err); break;
+        default:
+            if (!(sampler = tf_args_run_option(c, optarg, &o->run, err)))
+                tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], err);
+            break;
         }
         if (sampler && !o->sampler_opt)
             o->sampler_opt = sampler;

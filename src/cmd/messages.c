@@ -33,9 +33,17 @@ void tf_messages_analysis(void *ctx, const tf_analysis_event *e)
                 e->n_populations);
         break;
     case TF_ANALYSIS_MODEL_DONE:
-        fprintf(stderr, "  %s %s (%.0f s)\n", e->model, e->failed ? "failed" : "done", e->seconds);
+        fprintf(stderr, "  %s: %s %s in %.1f s\n", label, e->model, e->failed ? "failed" : "done", e->model_seconds);
         break;
     case TF_ANALYSIS_PROJECTING: fprintf(stderr, "  projecting...\n"); break;
     case TF_ANALYSIS_DONE: fprintf(stderr, "  done in %.0f s\n", e->seconds); break;
     }
+}
+
+void tf_messages_analysis_plain(void *ctx, const tf_analysis_event *e)
+{
+    if (e->stage != TF_ANALYSIS_MODEL_DONE)
+        return;
+    const char *label = e->label[0] ? e->label : (const char *)ctx;
+    fprintf(stderr, "%s: %s %s in %.1f s\n", label, e->model, e->failed ? "failed" : "done", e->model_seconds);
 }

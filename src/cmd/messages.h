@@ -25,4 +25,8 @@ tf_status tf_messages_flush(tf_error *err);
  * shown for a population without a label. */
 void tf_messages_analysis(void *ctx, const tf_analysis_event *e);
 
+/* The same for standard error redirected to a file or a pipe: one plain line per finished model
+ * ("label: model done in 3.2 s"), so that a log of a long run shows where the time went. */
+void tf_messages_analysis_plain(void *ctx, const tf_analysis_event *e);
+
 #endif

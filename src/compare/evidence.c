@@ -34,10 +34,16 @@
 tf_evidence_options tf_evidence_default_options(void)
 {
     tf_evidence_options o;
-    /* 2000 draws gave delta-method se of 0.02 - 0.04 on the log scale on the demo surveys
-     * (bench/bench_evidence.c), far below the differences between models that matter on the
-     * Kass & Raftery scale (2 ln B of 2 is ln B = 1). */
-    o.n_draws = 2000;
+    /* By need: a standard error of 0.05 on the log scale is far below the differences between
+     * models that matter on the Kass & Raftery scale (2 ln B of 2 is ln B = 1), and the model
+     * probabilities move by at most about 5 % of themselves with it. A fixed 2000 draws gave
+     * 0.02 - 0.04 on the demo surveys (bench/bench_evidence.c), so most models need well under
+     * 2000; the cap of 8000 holds the few with heavy-tailed weights. At least 512 draws (16
+     * blocks): the delta-method se and the Pareto k of fewer heavy-tailed weights are
+     * themselves too noisy to stop on (common practice, no source). */
+    o.n_draws = 8000;
+    o.min_draws = 512;
+    o.target_se = 0.05;
     o.n_adapt_rounds = 3;
     o.n_adapt_draws = 400;
     /* nu = 5: tails heavy enough to cover a posterior heavier than normal (the weights stay
@@ -68,7 +74,8 @@ tf_evidence_options tf_evidence_default_options(void)
 
 static tf_status check_options(const tf_evidence_options *o, size_t n_keys, tf_error *err)
 {
-    if (o->n_draws < 100 || (o->n_adapt_rounds > 0 && o->n_adapt_draws < 50) || o->n_adapt_rounds > 100)
+    if (o->n_draws < 100 || !(o->target_se >= 0 && o->target_se < INFINITY) || o->min_draws < 1 ||
+        (o->n_adapt_rounds > 0 && o->n_adapt_draws < 50) || o->n_adapt_rounds > 100)
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL,
                             "importance sampling needs at least 100 draws and 50 per adaptation round");
     if (!(o->nu > 0 && o->nu < INFINITY) || !(o->check_nu > 0 && o->check_nu < INFINITY) ||
@@ -95,6 +102,7 @@ typedef struct {
     uint64_t keys[MAX_KEYS + 2];
     size_t n_keys;    /* including the stage; the block index is appended */
     const volatile sig_atomic_t *stop;
+    size_t first_block;   /* blocks [first_block, ceil(n / BLOCK)) are run */
     pthread_mutex_t lock;
     size_t next_block;
     int interrupted;
@@ -155,7 +163,7 @@ static tf_status run_stage(stage_job *j, void **workers, size_t n_threads, tf_er
     pthread_t tid[MAX_THREADS];
     thread_arg args[MAX_THREADS];
     size_t n_started = 0;
-    j->next_block = 0;
+    j->next_block = j->first_block;
     j->interrupted = 0;
     if (pthread_mutex_init(&j->lock, NULL) != 0)
         return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "cannot create a lock");
@@ -214,6 +222,51 @@ static tf_status summarise(const double *lw, size_t n, tf_evidence_estimate *e, 
     e->ess = s * s / s2;
     size_t n_tail;
     return tf_pareto_k(lw, n, &e->pareto_k, &n_tail, err);
+}
+
+/* Runs the stage of job j (its density and stream keys set) by need: first the smaller of
+ * min_draws (rounded up to whole blocks) and n_draws, then more whole blocks until the standard
+ * error is at most target_se or n_draws are drawn. Each step asks for the draws the
+ * 1 / sqrt(M) law of the standard error says are missing, at most doubling the draws so far
+ * (the se of a few hundred heavy-tailed weights can be far off). The weights of the draws so
+ * far decide; they and the blocks' streams do not depend on the thread count. */
+static tf_status run_sized_stage(stage_job *j, void **workers, size_t n_threads, const tf_evidence_options *opt,
+                                 tf_evidence_estimate *e, tf_error *err)
+{
+    size_t cap = opt->n_draws, n = cap;
+    if (opt->target_se > 0) {
+        size_t first = (opt->min_draws + BLOCK - 1) / BLOCK * BLOCK;
+        if (first < n)
+            n = first;
+    }
+    j->first_block = 0;
+    tf_status st;
+    for (;;) {
+        j->n = n;
+        if ((st = run_stage(j, workers, n_threads, err)) != TF_OK)
+            return st;
+        if (n >= cap || !(opt->target_se > 0))
+            return summarise(j->lw, n, e, err);
+        /* Before the cap, every weight zero only asks for more draws. */
+        tf_error quiet;
+        tf_error_init(&quiet);
+        st = summarise(j->lw, n, e, &quiet);
+        if (st == TF_OK && e->se <= opt->target_se)
+            return TF_OK;
+        if (st != TF_OK && st != TF_ERR_NUMERIC)
+            return summarise(j->lw, n, e, err);
+        double want = st == TF_OK ? (double)n * (e->se / opt->target_se) * (e->se / opt->target_se) : NAN;
+        if (!(want <= 2.0 * (double)n))
+            want = 2.0 * (double)n;
+        size_t next = ((size_t)ceil(want) + BLOCK - 1) / BLOCK * BLOCK;
+        if (next < n + BLOCK)
+            next = n + BLOCK;
+        if (next > cap)
+            next = cap;
+        /* Draws so far are whole blocks (n < cap only after whole blocks). */
+        j->first_block = n / BLOCK;
+        n = next;
+    }
 }
 
 /* ---- the importance densities ---- */
@@ -389,9 +442,8 @@ tf_status tf_evidence_run(const tf_evidence_target *t, const double *z_draws, si
             out->n_adapt_used++;
         }
     }
-    job.n = opt->n_draws;
     job.keys[n_keys] = STAGE_MAIN;
-    if ((st = run_stage(&job, workers, n_threads, err)) != TF_OK || (st = summarise(lw, job.n, &out->main, err)) != TF_OK)
+    if ((st = run_sized_stage(&job, workers, n_threads, opt, &out->main, err)) != TF_OK)
         goto done;
 
     /* The check density: the mixture fitted to the PMMH draws alone, never adapted, with
@@ -405,7 +457,7 @@ tf_status tf_evidence_run(const tf_evidence_target *t, const double *z_draws, si
         goto done;
     job.q = &qc;
     job.keys[n_keys] = STAGE_CHECK;
-    if ((st = run_stage(&job, workers, n_threads, err)) != TF_OK || (st = summarise(lw, job.n, &out->check, err)) != TF_OK)
+    if ((st = run_sized_stage(&job, workers, n_threads, opt, &out->check, err)) != TF_OK)
         goto done;
 
     out->n_components = fitted.n_comp;

@@ -24,8 +24,13 @@
 #define TF_EVIDENCE_Z_MAX 3.0
 
 typedef struct {
-    /* Importance draws per density for the reported estimates (>= 100). */
+    /* Importance draws per density for the reported estimates: by need, in fixed blocks, until
+     * the estimate's standard error is at most target_se, from min_draws up to n_draws (>= 100);
+     * target_se = 0 always takes n_draws. The blocks are decided on whole, from the weights
+     * only, so the number of draws does not depend on the thread count either. */
     size_t n_draws;
+    size_t min_draws;
+    double target_se;
     /* Adaptation: rounds of n_adapt_draws draws each (0 = none), each refitting the centre and
      * scale of the main component to the weighted draws of the round before. */
     size_t n_adapt_rounds;
@@ -55,7 +60,8 @@ typedef struct {
     uint64_t seed;
 } tf_evidence_options;
 
-/* 2000 draws per density, 3 rounds of 400 to adapt, 3 components of nu 5 with 20 % defensive
+/* 512 to 8000 draws per density until the standard error of log p(y) is at most 0.05, 3 rounds
+ * of 400 to adapt, 3 components of nu 5 with 20 % defensive
  * weight at 9 times the covariance, check density nu 3 at 1.5 times the scales, target sd 1
  * (see evidence.c for the reasons), one thread, seed 1. */
 tf_evidence_options tf_evidence_default_options(void);

@@ -16,6 +16,7 @@ struct tf_chain {
     double *z, *theta, *aux, *path;
     double *z_new, *theta_new, *aux_new, *path_new;
     double loglik, logprior;
+    double screen;       /* log_screen at the current point (0 without screening) */
 
     /* Proposal: C = (w C0 + M2) / (w + t) + epsilon I, and its Cholesky factor L. */
     double *c0;          /* initial covariance */
@@ -28,8 +29,14 @@ struct tf_chain {
     int adapt;
     int refresh;
 
-    size_t n_steps, n_accepted, n_invalid;
+    size_t n_steps, n_accepted, n_invalid, n_screened;
 };
+
+double tf_chain_delayed_log_alpha2(double ll_new, double ll_cur, double s_new, double s_cur)
+{
+    double a = (ll_new - ll_cur) - (s_new - s_cur);
+    return a < 0.0 ? a : 0.0;
+}
 
 tf_chain_options tf_chain_default_options(void)
 {
@@ -171,7 +178,7 @@ tf_status tf_chain_init(tf_chain *c, const double *z0, const double *prop_cov, c
 {
     size_t d = c->t.dim;
     c->rng = *rng;
-    c->n_steps = c->n_accepted = c->n_invalid = 0;
+    c->n_steps = c->n_accepted = c->n_invalid = c->n_screened = 0;
     c->n_adapted = 0;
     c->adapt = 1;
     c->refresh = 0;
@@ -195,6 +202,10 @@ tf_status tf_chain_init(tf_chain *c, const double *z0, const double *prop_cov, c
     if (!isfinite(c->logprior))
         return tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, NULL,
                             "the chain's starting point has zero prior density");
+    c->screen = c->t.log_screen ? c->t.log_screen(c->t.ctx, c->theta) : 0.0;
+    if (!isfinite(c->screen))
+        return tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, NULL,
+                            "the screening likelihood at the chain's starting point is not finite");
     if (c->t.n_aux)
         tf_rng_fill_normal(&c->rng, c->aux, c->t.n_aux);
     c->loglik = c->t.log_lik(c->t.ctx, c->theta, c->aux, &c->rng, c->path);
@@ -234,7 +245,27 @@ int tf_chain_step(tf_chain *c)
     }
 
     double lp = c->t.log_prior(c->t.ctx, c->z_new, c->theta_new);
-    if (isfinite(lp)) {
+    /* Delayed acceptance, first stage: the screen alone decides whether the proposal is worth
+     * a likelihood estimate. alpha1 multiplies the second stage's probability below. */
+    double alpha1 = 1.0, screen_new = 0.0;
+    int screened_out = 0;
+    if (isfinite(lp) && c->t.log_screen)
+        screen_new = c->t.log_screen(c->t.ctx, c->theta_new);
+    if (isfinite(lp) && c->t.log_screen && !c->refresh) {
+        double log_a1 = (screen_new + lp) - (c->screen + c->logprior);
+        if (!isfinite(screen_new)) {
+            screened_out = 1;
+            alpha1 = 0.0;
+        } else if (log_a1 < 0.0) {
+            alpha1 = exp(log_a1);
+            screened_out = !(log(tf_rng_uniform(&c->rng)) < log_a1);
+        }
+        if (screened_out)
+            c->n_screened++;
+    }
+    if (screened_out) {
+        alpha = 0.0;
+    } else if (isfinite(lp)) {
         if (c->t.n_aux) {
             /* Crank-Nicolson move of the auxiliary normals (Deligiannidis et al. 2018, eq. 2.3):
              * reversible with respect to N(0, I), so the joint target keeps u ~ N(0, I). */
@@ -248,9 +279,12 @@ int tf_chain_step(tf_chain *c)
         double ll = c->t.log_lik(c->t.ctx, c->theta_new, c->aux_new, &c->rng, c->path_new);
         if (isfinite(ll)) {
             /* Symmetric proposal in z, so the Hastings ratio is the ratio of targets
-             * (Andrieu, Doucet & Holenstein 2010, section 2.4.2). */
-            double log_alpha = (ll + lp) - (c->loglik + c->logprior);
-            alpha = log_alpha >= 0.0 ? 1.0 : exp(log_alpha);
+             * (Andrieu, Doucet & Holenstein 2010, section 2.4.2); after a screen, the ratio
+             * the first stage has not yet accounted for. */
+            double log_alpha = c->t.log_screen && !c->refresh
+                                   ? tf_chain_delayed_log_alpha2(ll, c->loglik, screen_new, c->screen)
+                                   : (ll + lp) - (c->loglik + c->logprior);
+            alpha = alpha1 * (log_alpha >= 0.0 ? 1.0 : exp(log_alpha));
             if (log_alpha >= 0.0 || log(tf_rng_uniform(&c->rng)) < log_alpha) {
                 swap(&c->z, &c->z_new);
                 swap(&c->theta, &c->theta_new);
@@ -258,6 +292,7 @@ int tf_chain_step(tf_chain *c)
                 swap(&c->path, &c->path_new);
                 c->loglik = ll;
                 c->logprior = lp;
+                c->screen = screen_new;
                 accepted = 1;
                 c->n_accepted++;
             }
@@ -290,7 +325,7 @@ void tf_chain_set_adapt(tf_chain *c, int on) { c->adapt = on != 0; }
 
 void tf_chain_set_refresh(tf_chain *c, int on) { c->refresh = on != 0 && c->t.n_aux == 0; }
 
-void tf_chain_reset_counts(tf_chain *c) { c->n_steps = c->n_accepted = c->n_invalid = 0; }
+void tf_chain_reset_counts(tf_chain *c) { c->n_steps = c->n_accepted = c->n_invalid = c->n_screened = 0; }
 
 size_t tf_chain_dim(const tf_chain *c) { return c->t.dim; }
 const double *tf_chain_z(const tf_chain *c) { return c->z; }
@@ -301,6 +336,7 @@ double tf_chain_logprior(const tf_chain *c) { return c->logprior; }
 size_t tf_chain_n_steps(const tf_chain *c) { return c->n_steps; }
 size_t tf_chain_n_accepted(const tf_chain *c) { return c->n_accepted; }
 size_t tf_chain_n_invalid(const tf_chain *c) { return c->n_invalid; }
+size_t tf_chain_n_screened(const tf_chain *c) { return c->n_screened; }
 tf_rng tf_chain_rng(const tf_chain *c) { return c->rng; }
 double tf_chain_scale_factor(const tf_chain *c) { return exp(c->log_lambda); }
 

@@ -33,7 +33,22 @@ typedef struct {
      * reject the point. */
     double (*log_lik)(void *ctx, const double *theta, const double *aux, tf_rng *rng,
                       double *path);
+    /* Optional (NULL = off): delayed acceptance (Christen & Fox 2005, J. Comput. Graph. Stat.
+     * 14:795; Golightly, Henderson & Sherlock 2015, Statistics and Computing 25:1039). A cheap,
+     * deterministic approximation s(theta) of the log-likelihood, finite wherever the prior is
+     * positive. Each proposal is first screened with s: accepted with probability
+     * min(1, exp(s' + prior' - s - prior)); only then is log_lik estimated, and the proposal
+     * accepted with probability tf_chain_delayed_alpha2. The product of the two is reversible
+     * with respect to the same target as without screening, so the chain stays exact. */
+    double (*log_screen)(void *ctx, const double *theta);
 } tf_chain_target;
+
+/* The second stage's log acceptance probability of delayed acceptance, for estimates ll and
+ * screening values s at the proposed (new) and current (cur) points:
+ *   min(0, (ll_new - ll_cur) - (s_new - s_cur)),
+ * the ratio of the estimated likelihoods corrected by the ratio of the screening values that the
+ * first stage already accepted on (Christen & Fox 2005, eq. 2). */
+double tf_chain_delayed_log_alpha2(double ll_new, double ll_cur, double s_new, double s_cur);
 
 typedef struct {
     /* Correlation of successive auxiliary normals, u' = rho u + sqrt(1 - rho^2) eps
@@ -90,7 +105,7 @@ void tf_chain_set_adapt(tf_chain *c, int on);
  * the target has auxiliary normals. */
 void tf_chain_set_refresh(tf_chain *c, int on);
 
-/* Resets the step and acceptance counters (e.g. at the end of warm-up). */
+/* Resets the step, acceptance, invalid and screened counters (e.g. at the end of warm-up). */
 void tf_chain_reset_counts(tf_chain *c);
 
 /* Current state; pointers borrowed from the chain, valid until the next step or init. */
@@ -104,6 +119,9 @@ size_t tf_chain_n_steps(const tf_chain *c);
 size_t tf_chain_n_accepted(const tf_chain *c);
 /* Steps that were rejected because the estimate was not finite (or the prior was zero). */
 size_t tf_chain_n_invalid(const tf_chain *c);
+/* Steps whose proposal the screen rejected, so that no likelihood was estimated (0 without
+ * log_screen). */
+size_t tf_chain_n_screened(const tf_chain *c);
 /* The proposal covariance in use, without the s_d factor (dim x dim, row-major), e.g. to start
  * another chain with it. */
 void tf_chain_proposal_cov(const tf_chain *c, double *out);

@@ -15,6 +15,7 @@ struct tf_fit {
     const tf_posterior *post;
     const tf_series *series;
     size_t n_chains, n_iter, n_params, n_years;
+    size_t cap;        /* draws stored per chain; the first n_iter of each chain are kept draws */
     double *draws;     /* [chain][iter][param] */
     double *loglik;    /* [chain][iter] */
     double *paths;     /* [chain][iter][year] */
@@ -55,6 +56,7 @@ tf_fit *tf_fit_alloc(const tf_model *m, const tf_series *s, size_t n_chains, siz
     f->series = s;
     f->n_chains = n_chains;
     f->n_iter = n_iter;
+    f->cap = n_iter;
     f->n_params = n_params;
     f->n_years = n_years;
     f->draws = malloc(n_draws * n_params * sizeof(double));
@@ -82,7 +84,7 @@ fail:
 void tf_fit_record(tf_fit *f, size_t chain, size_t iter, const double *theta, double loglik,
                    const double *path)
 {
-    size_t k = chain * f->n_iter + iter;
+    size_t k = chain * f->cap + iter;
     memcpy(f->draws + k * f->n_params, theta, f->n_params * sizeof(double));
     f->loglik[k] = loglik;
     if (path)
@@ -94,13 +96,51 @@ size_t tf_fit_halve(tf_fit *f)
     size_t h = f->n_iter / 2;
     for (size_t c = 0; c < f->n_chains; c++)
         for (size_t i = 0; i < h; i++) {
-            size_t to = c * f->n_iter + i, from = c * f->n_iter + 2 * i + 1;
+            size_t to = c * f->cap + i, from = c * f->cap + 2 * i + 1;
             memcpy(f->draws + to * f->n_params, f->draws + from * f->n_params, f->n_params * sizeof(double));
             f->loglik[to] = f->loglik[from];
             memcpy(f->paths + to * f->n_years, f->paths + from * f->n_years, f->n_years * sizeof(double));
         }
+    f->n_iter = h;
     f->summarised = 0;
     return h;
+}
+
+void tf_fit_set_n_iter(tf_fit *f, size_t n_iter)
+{
+    f->n_iter = n_iter < f->cap ? n_iter : f->cap;
+    f->summarised = 0;
+}
+
+void tf_fit_compact(tf_fit *f)
+{
+    if (f->n_iter == f->cap)
+        return;
+    /* Chain c moves from c * cap to c * n_iter <= c * cap: in chain order nothing is overwritten
+     * before it has moved (memmove handles the overlap within one chain). */
+    for (size_t c = 1; c < f->n_chains; c++) {
+        memmove(f->draws + c * f->n_iter * f->n_params, f->draws + c * f->cap * f->n_params,
+                f->n_iter * f->n_params * sizeof(double));
+        memmove(f->loglik + c * f->n_iter, f->loglik + c * f->cap, f->n_iter * sizeof(double));
+        memmove(f->paths + c * f->n_iter * f->n_years, f->paths + c * f->cap * f->n_years,
+                f->n_iter * f->n_years * sizeof(double));
+    }
+    f->cap = f->n_iter;
+    /* Give the unused tail back; a failed shrink leaves the larger block, which is as good. */
+    size_t n_draws = f->n_chains * f->n_iter;
+    double *p;
+    if ((p = realloc(f->draws, n_draws * f->n_params * sizeof(double))))
+        f->draws = p;
+    if ((p = realloc(f->loglik, n_draws * sizeof(double))))
+        f->loglik = p;
+    if ((p = realloc(f->paths, n_draws * f->n_years * sizeof(double))))
+        f->paths = p;
+}
+
+/* Storage index of draw k = chain * n_iter + iter of the chain-major order. */
+static size_t at(const tf_fit *f, size_t k)
+{
+    return (k / f->n_iter) * f->cap + k % f->n_iter;
 }
 
 void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double invalid)
@@ -135,14 +175,15 @@ static int all_finite(const double *x, size_t n)
 }
 
 /* R-hat and ESS of one quantity stored with the given stride in chain-major blocks of
- * n_iter * stride values starting at base. NaN when the draws cannot be diagnosed (too short
- * chains, a constant or non-finite quantity). */
-static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, size_t stride,
+ * chain_len * stride values starting at base, the first n_iter of each block being the draws:
+ * chain_len is the fit's room per chain for its own storage, n_iter for a packed copy. NaN when
+ * the draws cannot be diagnosed (too short chains, a constant or non-finite quantity). */
+static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, size_t chain_len, size_t stride,
                      double *rhat, double *ess_bulk, double *ess_tail, double *mcse_mean)
 {
     const double *chains[TF_FIT_MAX_CHAINS];
     for (size_t c = 0; c < f->n_chains; c++)
-        chains[c] = base + c * f->n_iter * stride;
+        chains[c] = base + c * chain_len * stride;
     tf_diag_summary d;
     tf_error ignored;
     tf_error_init(&ignored);
@@ -174,9 +215,9 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
 
     for (size_t p = 0; p < f->n_params; p++) {
         tf_fit_param_summary *ps = &f->params[p];
-        diagnose(f, w, f->draws + p, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail, &ps->mcse_mean);
+        diagnose(f, w, f->draws + p, f->cap, f->n_params, &ps->rhat, &ps->ess_bulk, &ps->ess_tail, &ps->mcse_mean);
         for (size_t k = 0; k < n_draws; k++)
-            x[k] = f->draws[k * f->n_params + p];
+            x[k] = f->draws[at(f, k) * f->n_params + p];
         double prob[3] = {0.025, 0.5, 0.975}, q[3];
         moments_and_quantiles(x, n_draws, &ps->mean, &ps->sd, prob, q, 3);
         ps->q025 = q[0];
@@ -191,12 +232,18 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         ys->year = first_year + (int)t;
         ys->count = counts[t];
         ys->effort = effort[t];
+        ys->rhat = ys->ess_bulk = ys->ess_tail = NAN;
         for (size_t k = 0; k < n_draws; k++)
-            x[k] = exp(f->paths[k * f->n_years + t]);
+            x[k] = exp(f->paths[at(f, k) * f->n_years + t]);
         if (!all_finite(x, n_draws)) {
             ys->median = ys->q25 = ys->q75 = ys->q025 = ys->q975 = NAN;
             continue;
         }
+        /* The first and last year are watched with the parameters (tf_fit_meets): the trend and
+         * the projections start from them. The years between cost a diagnosis each and add
+         * nothing to the stopping rule that these two and the parameters do not. */
+        if (t == 0 || t + 1 == f->n_years)
+            diagnose(f, w, f->paths + t, f->cap, f->n_years, &ys->rhat, &ys->ess_bulk, &ys->ess_tail, NULL);
         double prob[5] = {0.5, 0.25, 0.75, 0.025, 0.975}, q[5];
         moments_and_quantiles(x, n_draws, NULL, NULL, prob, q, 5);
         ys->median = q[0];
@@ -209,14 +256,14 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
     tf_fit_trend_summary *tr = &f->trend;
     size_t n_decline = 0;
     for (size_t k = 0; k < n_draws; k++) {
-        const double *path = f->paths + k * f->n_years;
+        const double *path = f->paths + at(f, k) * f->n_years;
         double slope = f->n_years > 1 ? (path[f->n_years - 1] - path[0]) / (double)(f->n_years - 1)
                                       : NAN;
         x[k] = 100.0 * expm1(slope);
         n_decline += slope < 0;
     }
     if (f->n_years > 1 && all_finite(x, n_draws)) {
-        diagnose(f, w, x, 1, &tr->rhat, &tr->ess_bulk, NULL, NULL);
+        diagnose(f, w, x, f->n_iter, 1, &tr->rhat, &tr->ess_bulk, NULL, NULL);
         double prob[3] = {0.5, 0.025, 0.975}, q[3];
         moments_and_quantiles(x, n_draws, &tr->mean, NULL, prob, q, 3);
         tr->median = q[0];
@@ -249,15 +296,15 @@ const char *tf_fit_param_name(const tf_fit *f, size_t param)
 
 const double *tf_fit_draw(const tf_fit *f, size_t chain, size_t iter)
 {
-    return f->draws + (chain * f->n_iter + iter) * f->n_params;
+    return f->draws + (chain * f->cap + iter) * f->n_params;
 }
 double tf_fit_loglik(const tf_fit *f, size_t chain, size_t iter)
 {
-    return f->loglik[chain * f->n_iter + iter];
+    return f->loglik[chain * f->cap + iter];
 }
 const double *tf_fit_path(const tf_fit *f, size_t chain, size_t iter)
 {
-    return f->paths + (chain * f->n_iter + iter) * f->n_years;
+    return f->paths + (chain * f->cap + iter) * f->n_years;
 }
 const double *tf_fit_draws(const tf_fit *f) { return f->draws; }
 const double *tf_fit_logliks(const tf_fit *f) { return f->loglik; }
@@ -267,7 +314,7 @@ void tf_fit_year_draws(const tf_fit *f, size_t year_index, double *out)
 {
     size_t n_draws = f->n_chains * f->n_iter;
     for (size_t k = 0; k < n_draws; k++)
-        out[k] = f->paths[k * f->n_years + year_index];
+        out[k] = f->paths[at(f, k) * f->n_years + year_index];
 }
 
 double tf_fit_acceptance(const tf_fit *f, size_t chain) { return f->acceptance[chain]; }
@@ -280,15 +327,55 @@ const tf_fit_year_summary *tf_fit_year(const tf_fit *f, size_t year_index)
 }
 const tf_fit_trend_summary *tf_fit_trend(const tf_fit *f) { return &f->trend; }
 
-int tf_fit_converged(const tf_fit *f)
+static int passes(double rhat, double ess_bulk, double ess_tail, double rhat_max, double ess_min)
+{
+    return rhat <= rhat_max && ess_bulk >= ess_min && ess_tail >= ess_min;
+}
+
+int tf_fit_meets(const tf_fit *f, double rhat_max, double ess_min)
 {
     if (!f->summarised)
         return 0;
     for (size_t p = 0; p < f->n_params; p++) {
         const tf_fit_param_summary *ps = &f->params[p];
-        if (!(ps->rhat <= TF_FIT_RHAT_MAX) || !(ps->ess_bulk >= TF_FIT_ESS_MIN) ||
-            !(ps->ess_tail >= TF_FIT_ESS_MIN))
+        if (!passes(ps->rhat, ps->ess_bulk, ps->ess_tail, rhat_max, ess_min))
             return 0;
     }
+    const tf_fit_year_summary *ends[2] = {&f->years[0], &f->years[f->n_years - 1]};
+    for (size_t i = 0; i < 2; i++)
+        if (!passes(ends[i]->rhat, ends[i]->ess_bulk, ends[i]->ess_tail, rhat_max, ess_min))
+            return 0;
     return 1;
+}
+
+tf_status tf_fit_check(const tf_fit *f, double rhat_max, double ess_min, int *pass, tf_error *err)
+{
+    *pass = 0;
+    if (f->n_iter < TF_DIAG_MIN_ITER)
+        return TF_OK;
+    tf_diag_workspace *w = NULL;
+    if (tf_diag_workspace_alloc(f->n_chains, f->n_iter, &w, err) != TF_OK)
+        return tf_error_status(err);
+    /* In the order of the summaries; the first quantity that fails ends the check, which is
+     * what most checks of a run by need find. */
+    int ok = 1;
+    for (size_t p = 0; ok && p < f->n_params; p++) {
+        double rhat, bulk, tail;
+        diagnose(f, w, f->draws + p, f->cap, f->n_params, &rhat, &bulk, &tail, NULL);
+        ok = passes(rhat, bulk, tail, rhat_max, ess_min);
+    }
+    size_t ends[2] = {0, f->n_years - 1};
+    for (size_t i = 0; ok && i < 2; i++) {
+        double rhat, bulk, tail;
+        diagnose(f, w, f->paths + ends[i], f->cap, f->n_years, &rhat, &bulk, &tail, NULL);
+        ok = passes(rhat, bulk, tail, rhat_max, ess_min);
+    }
+    tf_diag_workspace_free(w);
+    *pass = ok;
+    return TF_OK;
+}
+
+int tf_fit_converged(const tf_fit *f)
+{
+    return tf_fit_meets(f, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
 }

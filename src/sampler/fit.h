@@ -41,6 +41,9 @@ typedef struct {
     double count;             /* NAN when the year was not surveyed */
     double effort;
     double median, q25, q75, q025, q975;
+    /* Split R-hat and bulk / tail ESS of the log-abundance, for the first and the last year
+     * only (the ones the stopping rule watches, tf_fit_meets); NaN for the years between. */
+    double rhat, ess_bulk, ess_tail;
 } tf_fit_year_summary;
 
 /* Average annual change over the series, per draw 100 (exp((x_last - x_first)/(n_years - 1)) - 1)
@@ -53,9 +56,9 @@ typedef struct {
 
 /* ---- Building (the sampler does this) ---- */
 
-/* An empty result for n_chains chains (1 .. TF_FIT_MAX_CHAINS) of n_iter kept draws each, for
- * model m and series s (borrowed: they must outlive the result). NULL when out of memory or a
- * size is out of range. */
+/* An empty result for n_chains chains (1 .. TF_FIT_MAX_CHAINS) with room for n_iter kept draws
+ * each, all of them counted as kept (tf_fit_set_n_iter counts fewer), for model m and series s
+ * (borrowed: they must outlive the result). NULL when out of memory or a size is out of range. */
 tf_fit *tf_fit_alloc(const tf_model *m, const tf_series *s, size_t n_chains, size_t n_iter);
 void tf_fit_free(tf_fit *f);   /* accepts NULL */
 
@@ -65,11 +68,21 @@ void tf_fit_record(tf_fit *f, size_t chain, size_t iter, const double *theta, do
                    const double *path);
 
 /* Keeps every second kept draw of each chain (draws 1, 3, 5, ...) at the front of the chain's
- * block and returns how many that is per chain, floor(n_iter / 2): the chain can then go on at
- * twice the thinning in the same storage, recording draws from that index on, and ends with
- * the draws a run thinned twice as much from the start would have kept. The summaries are stale
- * until the next tf_fit_summarise. */
+ * block and returns how many that is per chain, floor(n_iter / 2), which becomes n_iter: the
+ * chain can then go on at twice the thinning in the same storage, recording draws from that
+ * index on, and ends with the draws a run thinned twice as much from the start would have kept.
+ * The summaries are stale until the next tf_fit_summarise. */
 size_t tf_fit_halve(tf_fit *f);
+
+/* Counts the first n_iter (>= 1, at most the room given to tf_fit_alloc) draws of each chain as
+ * the kept ones, so that a run can summarise its draws so far and record more after them.
+ * Summaries are stale until the next tf_fit_summarise. */
+void tf_fit_set_n_iter(tf_fit *f, size_t n_iter);
+
+/* Moves the kept draws together and gives the unused room back, so that the whole-block
+ * accessors (tf_fit_draws, tf_fit_logliks, tf_fit_paths) see n_chains * n_iter draws in
+ * chain-major order. tf_pmmh_run returns its fits compacted; nothing can be recorded after. */
+void tf_fit_compact(tf_fit *f);
 
 /* Per-chain sampler facts: acceptance rate over the kept draws and the share of proposals
  * rejected because the likelihood estimate was not finite. */
@@ -81,12 +94,16 @@ void tf_fit_set_chain_stats(tf_fit *f, size_t chain, double acceptance, double i
  * seed, and wall-clock seconds. */
 typedef struct {
     size_t n_warmup;
-    size_t thin;              /* iterations per kept draw */
-    size_t n_doublings;       /* times the chains were doubled in length to converge (pmmh.h) */
+    size_t n_iterations;      /* iterations per chain after the warm-up (pmmh.h: run by need) */
+    size_t thin;              /* iterations per kept draw at the end */
+    size_t n_doublings;       /* times the thinning was doubled to keep the kept draws bounded */
+    int stopped_early;        /* the stopping rule ended the run before its maximum length */
     size_t n_particles;
     double loglik_sd;
     int correlated;
     double rho;
+    int delayed;              /* delayed acceptance was on (pmmh.h) */
+    double screened;          /* share of the kept draws' proposals the screen rejected */
     tf_proposal proposal;     /* how the particle filter moved (filter.h) */
     uint64_t seed;
     double seconds;
@@ -123,7 +140,8 @@ const double *tf_fit_path(const tf_fit *f, size_t chain, size_t iter);
 
 /* The same as whole blocks, draw k = chain * n_iter + iter (chain-major): draws is
  * n_draws x n_params row-major (the layout tf_project_input takes), logliks n_draws values,
- * paths n_draws x n_years row-major. Borrowed. */
+ * paths n_draws x n_years row-major. Borrowed. Only for a compacted fit (tf_fit_compact), as
+ * every fit of tf_pmmh_run is, or one whose every allocated draw is kept. */
 const double *tf_fit_draws(const tf_fit *f);
 const double *tf_fit_logliks(const tf_fit *f);
 const double *tf_fit_paths(const tf_fit *f);
@@ -138,7 +156,17 @@ double tf_fit_invalid_share(const tf_fit *f, size_t chain);
 const tf_fit_param_summary *tf_fit_param(const tf_fit *f, size_t param);
 const tf_fit_year_summary *tf_fit_year(const tf_fit *f, size_t year_index);
 const tf_fit_trend_summary *tf_fit_trend(const tf_fit *f);
-/* 1 when every parameter has R-hat <= TF_FIT_RHAT_MAX and bulk and tail ESS >= TF_FIT_ESS_MIN. */
+/* 1 when every parameter, and the log-abundance of the first and the last year, has R-hat <=
+ * rhat_max and bulk and tail ESS >= ess_min; 0 otherwise or before tf_fit_summarise. */
+int tf_fit_meets(const tf_fit *f, double rhat_max, double ess_min);
+/* The same test from the draws as they are, without the summaries: diagnoses only the parameters
+ * and the first and last year's log-abundance, and stops at the first that fails, so that a run
+ * by need can look often (pmmh.c). *pass is 1 when every one passes (0 with fewer than
+ * TF_DIAG_MIN_ITER draws per chain). Errors: TF_ERR_NOMEM (*pass 0). */
+tf_status tf_fit_check(const tf_fit *f, double rhat_max, double ess_min, int *pass, tf_error *err);
+
+/* tf_fit_meets with the thresholds of the convergence warning, TF_FIT_RHAT_MAX and
+ * TF_FIT_ESS_MIN. */
 int tf_fit_converged(const tf_fit *f);
 
 #endif

@@ -16,8 +16,17 @@
 
 typedef struct {
     size_t n_chains;         /* >= 1; 4 by default (R-hat needs >= 2) */
-    size_t n_iter;           /* kept draws per chain */
-    size_t thin;             /* iterations per kept draw, >= 1 */
+    /* Run length by need. After the warm-up the chains run in blocks; at the end of a block (the
+     * same for every chain) the run stops once it has run at least min_iter iterations per chain
+     * and every parameter and the log-abundance of the first and last year have split R-hat <=
+     * TF_FIT_RHAT_MAX and bulk and tail ESS >= min_ess (tf_fit_meets), or once it has run
+     * max_iter. min_iter == max_iter gives a run of fixed length. */
+    size_t min_iter, max_iter;
+    double min_ess;          /* > 0 */
+    size_t thin;             /* iterations per kept draw at the start, >= 1 */
+    /* Kept draws per chain at most, >= 8: when they are all used, every second one is dropped
+     * (tf_fit_halve) and the thinning doubles, so memory stays bounded however long the run. */
+    size_t max_kept;
     size_t n_warmup;         /* adapted, discarded draws per chain (half pilot, half exact) */
     size_t n_threads;        /* >= 1; results do not depend on it */
     uint64_t seed;
@@ -25,16 +34,18 @@ typedef struct {
     int correlated;          /* correlated pseudo-marginal method (Deligiannidis et al. 2018) */
     double rho;              /* its correlation, in [0, 1) */
     size_t pilot_particles;  /* particles of the pilot phase */
+    /* Delayed acceptance in the exact chains: each proposal is screened by the extended Kalman
+     * filter of screen.h before the particle filter runs (chain.h, log_screen). Exact either
+     * way; it only changes the cost per iteration and the mixing. 1 on, 0 off (the default:
+     * pmmh.c says why). */
+    int delayed;
     tf_proposal proposal;    /* how the particle filter moves (filter.h); guided by default */
-    /* When the kept draws miss the convergence thresholds of fit.h, the chains go on for as
-     * many iterations again with twice the thinning, at most this many times (0 = never);
-     * the number of kept draws stays n_iter. */
-    size_t max_doublings;
 } tf_pmmh_options;
 
-/* Runs with fewer kept draws (all chains) than this are quick looks, too short for ESS 400 unless
- * the draws are nearly independent: they are never doubled (common practice, no source). */
-#define TF_PMMH_DOUBLING_MIN_DRAWS ((size_t)4000)
+/* Blocks: an eighth of max_kept kept draws each, so that the run looks at its diagnostics eight
+ * times before the kept draws are full and four times after each halving: it overshoots the
+ * length it needed by at most a quarter (pmmh.c says why). */
+#define TF_PMMH_BLOCKS_PER_STORE 8
 
 /* The defaults (see pmmh.c for the reasons behind each value). */
 tf_pmmh_options tf_pmmh_default_options(void);
@@ -48,8 +59,8 @@ typedef struct {
     tf_pmmh_phase phase;
     size_t n_chains;
     const size_t *done;        /* iterations finished per chain, of total */
-    size_t total;              /* iterations per chain, all phases: n_warmup + n_iter * thin,
-                                * larger once the chains are doubled in length */
+    size_t total;              /* iterations per chain, all phases, so far planned: n_warmup
+                                * and the blocks up to the next look at the diagnostics */
     const double *acceptance;  /* per chain, over the current phase so far */
     size_t n_particles;        /* 0 until chosen */
     double seconds;            /* since the start */

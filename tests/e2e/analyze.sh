@@ -80,6 +80,13 @@ for f in surveys/*.csv; do
   fi
   grep -q "not a formal status listing" "$tmp/stdout" || bad "$f: the caution is not printed"
   [ "$(grep -c "best-supported growth model:" "$tmp/stdout")" -eq "$n" ] || bad "$f: not one best model line per population"
+  # Standard error is a file here, not a terminal: still one plain line per finished model, with
+  # the population, the model and its seconds (2 growth models x 1 or 2 counting-error models).
+  for lab in "${want[@]}"; do
+    [ -n "$lab" ] || lab=$name
+    k=$(grep -cE "^$lab: (exponential|ricker)\+[a-z-]+ (done|failed) in [0-9]+\.[0-9] s\$" "$tmp/stderr")
+    [ "$k" -eq 2 ] || [ "$k" -eq 4 ] || bad "$f: $k progress lines for '$lab' on stderr, want 2 or 4: $(head -c 300 "$tmp/stderr")"
+  done
 done
 if [ -z "$slow" ]; then
   "$T" analyze surveys/heron-colony.csv -o "$tmp/quiet" --quiet --threads 2 "${FAST[@]}" >"$tmp/stdout" 2>&1 || bad "--quiet failed"

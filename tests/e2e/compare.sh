@@ -156,6 +156,11 @@ grep -q "unknown growth model 'rikker'" "$tmp/stderr" || bad "unknown model: $(c
 [ $rc -eq 2 ] || bad "non-numeric weight: exit $rc, want 2"
 "$T" compare >/dev/null 2>&1; rc=$?
 [ $rc -eq 2 ] || bad "no survey: exit $rc, want 2"
+for v in -1 abc 11; do
+  "$T" compare surveys/heron-colony.csv --ml-se "$v" -o "$tmp/x" >/dev/null 2>"$tmp/stderr"; rc=$?
+  [ $rc -eq 2 ] && grep -q -- '--ml-se' "$tmp/stderr" || bad "--ml-se $v: exit $rc, want 2 naming the option"
+done
+"$T" compare --help | grep -q -- '--ml-se S' || bad "--help lacks --ml-se"
 "$T" compare --help | grep -q 'usage: tallyfit compare' || bad "--help"
 
 # 5. Prior model weights enter the probabilities: ricker weighted 3 against exponential 1.

@@ -100,6 +100,26 @@ expect 2 "x1_sd" "$T" fit "$tmp/s.csv" --model exponential --set x1_sd=-1
 expect 2 "no population named" "$T" fit "$tmp/two.csv" --model exponential --population c
 expect 2 "keeps no draw" "$T" fit "$tmp/s.csv" --model exponential --iterations 3 --thin 4
 expect 2 "--chains" "$T" fit "$tmp/s.csv" --model exponential --chains 0
+expect 2 "cannot be combined" "$T" fit "$tmp/s.csv" --model exponential --iterations 500 --max-iterations 900
+expect 2 "is above --max-iterations" "$T" fit "$tmp/s.csv" --model exponential --min-iterations 900 --max-iterations 500
+expect 2 "--min-ess" "$T" fit "$tmp/s.csv" --model exponential --min-ess 0
+expect 2 "--kept-draws" "$T" fit "$tmp/s.csv" --model exponential --kept-draws 3
+expect 2 "unrecognized|unknown option" "$T" fit "$tmp/s.csv" --model exponential --doublings 2
+expect 2 "neither on nor off" "$T" fit "$tmp/s.csv" --model exponential --delayed-acceptance maybe
+
+# A run by need: it stops between its bounds once the checks pass (a low ESS target, so that it
+# is quick), says so in the sampler table, and keeps at most --kept-draws draws per chain.
+"$T" fit "$tmp/s.csv" --model exponential -o "$tmp/need" --warmup 300 --min-ess 50 --min-iterations 200 \
+  --max-iterations 100000 --kept-draws 64 --quiet --threads 2 2>/dev/null || bad "run by need failed"
+/usr/bin/python3 - "$tmp/need/exponential+poisson-sampler.csv" "$tmp/need/exponential+poisson-draws.csv" <<'PY' || bad "run by need: $(cat "$tmp/need/exponential+poisson-sampler.csv")"
+import csv, sys
+rows = list(csv.DictReader(open(sys.argv[1])))
+draws = list(csv.DictReader(open(sys.argv[2])))
+r = rows[0]
+ok = (r["converged"] == "1" and 200 <= int(r["iterations"]) < 100000 and int(r["kept"]) <= 64
+      and len(draws) == 4 * int(r["kept"]))
+sys.exit(0 if ok else 1)
+PY
 printf '[model]\nname = mine\n[K]\nprior = normal\nmean = 1\nsd = 1\n' >"$tmp/p.ini"
 expect 3 "K" "$T" fit "$tmp/s.csv" --model exponential --priors "$tmp/p.ini" --quiet -o "$tmp/x"
 "$T" fit --help | grep -q -- "--correlated" || bad "--help lacks --correlated"

@@ -244,12 +244,65 @@ START_TEST(operand_draws_and_folders)
     ck_assert_int_eq(tf_args_no_survey("fit", &err), TF_ERR_USAGE);
     ck_assert_ptr_nonnull(strstr(err.items[0].hint, "tallyfit fit --help"));
 
-    size_t n_iter = 0;
+    /* The run-length options: --iterations fixes the length, the others move the bounds. */
+    tf_pmmh_options po = tf_pmmh_default_options();
+    tf_args_run run;
+    tf_args_run_init(&run);
     tf_error_init(&err);
-    ck_assert_int_eq(tf_args_kept_draws(10, 4, &n_iter, &err), TF_OK);
-    ck_assert_uint_eq(n_iter, 2);
-    ck_assert_int_eq(tf_args_kept_draws(3, 4, &n_iter, &err), TF_ERR_USAGE);
-    ck_assert_ptr_nonnull(strstr(first_what(&err), "--iterations 3 with --thin 4 keeps no draw"));
+    ck_assert_str_eq(tf_args_run_option(TF_ARGS_OPT_ITER, "10", &run, &err), "--iterations");
+    ck_assert_str_eq(tf_args_run_option(TF_ARGS_OPT_THIN, "4", &run, &err), "--thin");
+    ck_assert_ptr_null(tf_args_run_option(TF_ARGS_OPT_ITER - 1, "4", &run, &err));
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_OK);
+    ck_assert_uint_eq(po.min_iter, 10);
+    ck_assert_uint_eq(po.max_iter, 10);
+    ck_assert_uint_eq(po.thin, 4);
+    tf_args_run_init(&run);
+    po = tf_pmmh_default_options();
+    tf_args_run_option(TF_ARGS_OPT_ITER, "3", &run, &err);
+    tf_args_run_option(TF_ARGS_OPT_THIN, "4", &run, &err);
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "--thin 4 with runs of 3 iterations keeps no draw"));
+    /* A maximum alone below the default minimum lowers it; --min-ess and --kept-draws apply. */
+    tf_args_run_init(&run);
+    po = tf_pmmh_default_options();
+    tf_error_init(&err);
+    tf_args_run_option(TF_ARGS_OPT_MAX_ITER, "500", &run, &err);
+    tf_args_run_option(TF_ARGS_OPT_MIN_ESS, "250", &run, &err);
+    tf_args_run_option(TF_ARGS_OPT_KEPT, "64", &run, &err);
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_OK);
+    ck_assert_uint_eq(po.min_iter, 500);
+    ck_assert_uint_eq(po.max_iter, 500);
+    ck_assert_double_eq(po.min_ess, 250);
+    ck_assert_uint_eq(po.max_kept, 64);
+    /* Refused: --iterations with a bound, a minimum above the maximum, bad values. */
+    tf_args_run_init(&run);
+    tf_args_run_option(TF_ARGS_OPT_ITER, "1000", &run, &err);
+    tf_args_run_option(TF_ARGS_OPT_MIN_ITER, "100", &run, &err);
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_ERR_USAGE);
+    tf_args_run_init(&run);
+    tf_error_init(&err);
+    tf_args_run_option(TF_ARGS_OPT_MIN_ITER, "1000", &run, &err);
+    tf_args_run_option(TF_ARGS_OPT_MAX_ITER, "100", &run, &err);
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "--min-iterations 1000 is above --max-iterations 100"));
+    tf_error_init(&err);
+    tf_args_run_option(TF_ARGS_OPT_MIN_ESS, "0", &run, &err);
+    ck_assert_int_eq(tf_error_status(&err), TF_ERR_USAGE);
+    tf_error_init(&err);
+    tf_args_run_option(TF_ARGS_OPT_KEPT, "7", &run, &err);
+    ck_assert_int_eq(tf_error_status(&err), TF_ERR_USAGE);
+    /* --delayed-acceptance on|off, and nothing else. */
+    tf_args_run_init(&run);
+    tf_error_init(&err);
+    po = tf_pmmh_default_options();
+    ck_assert_str_eq(tf_args_run_option(TF_ARGS_OPT_DELAYED, "on", &run, &err), "--delayed-acceptance");
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_OK);
+    ck_assert_int_eq(po.delayed, 1);
+    tf_args_run_option(TF_ARGS_OPT_DELAYED, "off", &run, &err);
+    ck_assert_int_eq(tf_args_run_apply(&run, &po, &err), TF_OK);
+    ck_assert_int_eq(po.delayed, 0);
+    tf_args_run_option(TF_ARGS_OPT_DELAYED, "yes", &run, &err);
+    ck_assert_int_eq(tf_error_status(&err), TF_ERR_USAGE);
     ck_assert_uint_ge(tf_args_default_threads(SIZE_MAX), 1);
     ck_assert_uint_eq(tf_args_default_threads(1), 1);
 

@@ -123,7 +123,7 @@ static tf_compare_options short_options(const char *const *growth, size_t n_grow
     o.priors_ctx = pc;
     o.fit.n_chains = 2;
     o.fit.thin = 1;
-    o.fit.n_iter = validate() ? 2000 : 600;
+    o.fit.min_iter = o.fit.max_iter = validate() ? 2000 : 600;
     o.fit.n_warmup = validate() ? 2000 : 600;
     o.evidence.n_draws = validate() ? 2000 : 1000;
     o.evidence.n_adapt_draws = 300;
@@ -131,7 +131,7 @@ static tf_compare_options short_options(const char *const *growth, size_t n_grow
     /* Under valgrind, shorter: the cases that use these settings check which candidates are
      * fitted or excluded and the probability arithmetic, not Monte Carlo accuracy. */
     if (tf_test_valgrind()) {
-        o.fit.n_iter = o.fit.n_warmup = 150;
+        o.fit.min_iter = o.fit.max_iter = o.fit.n_warmup = 150;
         o.evidence.n_draws = 200;
         o.evidence.n_adapt_draws = 100;
     }
@@ -144,7 +144,7 @@ static tf_compare_options selection_options(const char *const *growth, size_t n_
 {
     tf_compare_options o = short_options(growth, n_growth, obs, 1, NULL);
     if (!validate()) {
-        o.fit.n_iter = o.fit.n_warmup = 400;
+        o.fit.min_iter = o.fit.max_iter = o.fit.n_warmup = 400;
         o.evidence.n_draws = 400;
         o.evidence.n_adapt_rounds = 1;
         o.evidence.n_adapt_draws = 200;
@@ -286,7 +286,7 @@ START_TEST(whole_counts_compare_count_models)
     /* Without naming the observation models, the continuous log-normal is excluded and says why. */
     static const char *const ricker[] = {"ricker"};
     o = short_options(ricker, 1, NULL, 0, NULL);
-    o.fit.n_iter = o.fit.n_warmup = 100;
+    o.fit.min_iter = o.fit.max_iter = o.fit.n_warmup = 100;
     o.evidence.n_draws = 200;
     o.evidence.n_adapt_rounds = 1;
     tf_error_init(&err);
@@ -356,7 +356,7 @@ START_TEST(threads_do_not_change_results)
     for (int k = 0; k < 2; k++) {
         tf_compare_options o = short_options(growth, 2, obs, 2, NULL);
         if (!tf_test_valgrind()) {
-            o.fit.n_iter = o.fit.n_warmup = 200;
+            o.fit.min_iter = o.fit.max_iter = o.fit.n_warmup = 200;
             o.evidence.n_draws = 300;
         }
         o.evidence.n_adapt_rounds = 1;

@@ -121,7 +121,8 @@ static tf_evidence_target target_of(gauss_ctx *c)
 }
 
 /* Repeats with different seeds against the exact value: each z-score (estimate - exact) / se
- * should be about standard normal, so their sum of squares over R = 8 seeds stays below the
+ * should be about standard normal, with the draws sized by need (the default: until se <= 0.05),
+ * so that a stopping rule biased towards lucky standard errors would show here, so their sum of squares over R = 8 seeds stays below the
  * 99.9 % point of chi-square(8) (gsl_cdf_chisq_Qinv), and every single one within 4. Both the
  * adapted and the check density, with noisy likelihood estimates (sd 1 on the log scale), from
  * draws that are too wide and off-centre, and from draws that are too narrow. */
@@ -153,8 +154,10 @@ START_TEST(estimates_agree_with_exact_evidence)
             chi_check += zc * zc;
             ck_assert(e.main.se > 0 && e.main.se < 0.2);
             ck_assert(e.main.pareto_k < TF_PARETO_K_MAX && e.reliable);
-            ck_assert(e.main.ess > 100 && e.main.ess <= (double)o.n_draws);
-            ck_assert_uint_eq(e.main.n_draws, o.n_draws);
+            ck_assert(e.main.ess > 100 && e.main.ess <= (double)e.main.n_draws);
+            ck_assert(e.main.n_draws >= o.min_draws && e.main.n_draws <= o.n_draws);
+            ck_assert(e.main.se <= o.target_se || e.main.n_draws == o.n_draws);
+            ck_assert(e.check.se <= o.target_se || e.check.n_draws == o.n_draws);
             ck_assert_uint_eq(e.main.n_zero, 0);
             ck_assert_uint_ge(e.n_adapt_used, 1);
         }
@@ -177,11 +180,28 @@ START_TEST(thread_count_does_not_change_results)
     tf_evidence_options o = tf_evidence_default_options();
     o.n_draws = 1000;
     o.n_adapt_draws = 300;
+    o.target_se = 0;   /* fixed: exactly n_draws per density */
     tf_evidence e1, e2;
     uint64_t keys[2] = {1, 2};
     total_calls = 0;
     ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 2, NULL, &e1, NULL), TF_OK);
     ck_assert_uint_eq(total_calls, o.n_adapt_rounds * o.n_adapt_draws + 2 * o.n_draws);
+    ck_assert_uint_eq(e1.main.n_draws, o.n_draws);
+    /* By need, with a target that takes more than the first blocks: the same on 3 threads. */
+    o.target_se = 0.012;
+    o.n_draws = 4000;
+    total_calls = 0;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 2, NULL, &e1, NULL), TF_OK);
+    ck_assert_uint_eq(total_calls, o.n_adapt_rounds * o.n_adapt_draws + e1.main.n_draws + e1.check.n_draws);
+    ck_assert_uint_gt(e1.main.n_draws, o.min_draws);
+    ck_assert(e1.main.n_draws == o.n_draws || e1.main.n_draws % 32 == 0);
+    o.n_threads = 3;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 2, NULL, &e2, NULL), TF_OK);
+    ck_assert(memcmp(&e1, &e2, sizeof e1) == 0);
+    o.target_se = 0;
+    o.n_draws = 1000;
+    o.n_threads = 1;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 2, NULL, &e1, NULL), TF_OK);
     o.n_threads = 3;
     ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 2, NULL, &e2, NULL), TF_OK);
     ck_assert(memcmp(&e1, &e2, sizeof e1) == 0);
@@ -190,6 +210,36 @@ START_TEST(thread_count_does_not_change_results)
     ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 2, NULL, &e2, NULL), TF_OK);
     ck_assert(e1.main.log_ml != e2.main.log_ml);
     ck_assert(fabs(e1.z_diff) <= TF_EVIDENCE_Z_MAX && e1.agree);
+}
+END_TEST
+
+/* Draws by need: a loose target stops at the minimum, a tight one at the cap, and one between
+ * stops at the first size whose standard error meets it, in whole blocks of 32. */
+START_TEST(draws_are_sized_by_the_standard_error)
+{
+    gauss_ctx c = standard_ctx();
+    tf_evidence_target t = target_of(&c);
+    enum { NZ = 1000 };
+    static double z[NZ * D];
+    posterior_draws(&c, NZ, 1.0, 0.0, 8, z);
+    tf_evidence_options o = tf_evidence_default_options();
+    uint64_t keys[1] = {4};
+    tf_evidence e;
+    o.target_se = 1.0;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 1, NULL, &e, NULL), TF_OK);
+    ck_assert_uint_eq(e.main.n_draws, o.min_draws);
+    ck_assert_uint_eq(e.check.n_draws, o.min_draws);
+    o.target_se = 1e-4;
+    o.n_draws = 700;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 1, NULL, &e, NULL), TF_OK);
+    ck_assert_uint_eq(e.main.n_draws, 700);
+    ck_assert(e.main.se > o.target_se);
+    o = tf_evidence_default_options();
+    o.target_se = 0.04;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 1, NULL, &e, NULL), TF_OK);
+    ck_assert_msg(e.main.n_draws > o.min_draws && e.main.n_draws < o.n_draws, "%zu draws, se %g", e.main.n_draws, e.main.se);
+    ck_assert_uint_eq(e.main.n_draws % 32, 0);
+    ck_assert_msg(e.main.se <= o.target_se, "se %g after %zu draws", e.main.se, e.main.n_draws);
 }
 END_TEST
 
@@ -214,6 +264,7 @@ START_TEST(heavy_tailed_weights_are_flagged)
     o.nu = o.check_nu = 50;
     o.defensive_weight = 0;
     o.n_draws = 5000;
+    o.target_se = 0;   /* a fixed sample: the flag, not the stopping, is checked here */
     tf_evidence e;
     ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, &key, 1, NULL, &e, NULL), TF_OK);
     ck_assert_msg(e.main.pareto_k > TF_PARETO_K_MAX, "k %g", e.main.pareto_k);
@@ -274,6 +325,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, estimates_agree_with_exact_evidence);
     tcase_add_test(tc, thread_count_does_not_change_results);
     tcase_add_test(tc, heavy_tailed_weights_are_flagged);
+    tcase_add_test(tc, draws_are_sized_by_the_standard_error);
     tcase_add_test(tc, errors_are_reported);
     suite_add_tcase(s, tc);
     return s;

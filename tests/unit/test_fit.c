@@ -131,36 +131,98 @@ START_TEST(summaries_of_known_draws)
 }
 END_TEST
 
-/* R-hat and ESS (Vehtari et al. 2021) decide the convergence flag: four chains of independent
- * normals pass; the same chains with one shifted by two sd fail on R-hat. */
+/* R-hat and ESS (Vehtari et al. 2021) decide the convergence flag, over the parameters and the
+ * log-abundance of the first and last year: four chains of independent normals pass; the same
+ * chains with one shifted by two sd fail on R-hat, whether the shift is in a parameter or in the
+ * last year's abundance; a higher ESS target than the draws give fails tf_fit_meets. */
 START_TEST(convergence_flag_follows_diagnostics)
 {
     tf_model *m = make_model("exponential", "poisson");
     double y[5] = {1, 2, 3, 4, 5};
     tf_series *s = tf_series_new("b", 2000, 5, y, NULL, NULL, NULL);
     size_t n = 2000;
-    for (int shifted = 0; shifted < 2; shifted++) {
+    for (int shifted = 0; shifted < 3; shifted++) {
         tf_fit *f = tf_fit_alloc(m, s, 4, n);
         tf_rng rng;
         tf_rng_derive(&rng, 17, NULL, 0);
         for (size_t c = 0; c < 4; c++)
             for (size_t i = 0; i < n; i++) {
-                double theta[2] = {tf_rng_normal(&rng) + (shifted && c == 3 ? 2.0 : 0.0),
+                double theta[2] = {tf_rng_normal(&rng) + (shifted == 1 && c == 3 ? 2.0 : 0.0),
                                    0.5 + 0.1 * tf_rng_normal(&rng)};
-                double path[5] = {1, 1, 1, 1, 1 + 0.1 * tf_rng_normal(&rng)};
+                double path[5] = {1 + 0.1 * tf_rng_normal(&rng), 1, 1, 1,
+                                  1 + 0.1 * tf_rng_normal(&rng) + (shifted == 2 && c == 3 ? 0.2 : 0.0)};
                 tf_fit_record(f, c, i, theta, -1.0, path);
             }
         ck_assert_int_eq(tf_fit_summarise(f, NULL), TF_OK);
-        if (shifted) {
+        /* The quick check of a run by need agrees with the summaries' verdict. */
+        int pass = -1;
+        ck_assert_int_eq(tf_fit_check(f, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN, &pass, NULL), TF_OK);
+        ck_assert_int_eq(pass, tf_fit_converged(f));
+        ck_assert_int_eq(tf_fit_check(f, TF_FIT_RHAT_MAX, 20000, &pass, NULL), TF_OK);
+        ck_assert_int_eq(pass, 0);
+        if (shifted == 1) {
             ck_assert(tf_fit_param(f, 0)->rhat > 1.1);
+            ck_assert(!tf_fit_converged(f));
+        } else if (shifted == 2) {
+            ck_assert(tf_fit_param(f, 0)->rhat < TF_FIT_RHAT_MAX);
+            ck_assert(tf_fit_year(f, 4)->rhat > 1.1);
             ck_assert(!tf_fit_converged(f));
         } else {
             ck_assert(tf_fit_param(f, 0)->rhat < TF_FIT_RHAT_MAX);
             ck_assert(tf_fit_param(f, 0)->ess_bulk > TF_FIT_ESS_MIN);
+            ck_assert(tf_fit_year(f, 0)->ess_tail > TF_FIT_ESS_MIN);
+            ck_assert(isnan(tf_fit_year(f, 2)->rhat));   /* years between are not diagnosed */
             ck_assert(tf_fit_converged(f));
+            /* 8000 independent draws cannot show an ESS of 20000. */
+            ck_assert(!tf_fit_meets(f, TF_FIT_RHAT_MAX, 20000));
         }
         tf_fit_free(f);
     }
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
+/* A fit counting fewer draws than it has room for (a run by need between blocks) summarises the
+ * first n_iter of each chain, and tf_fit_compact moves them together for the whole-block
+ * accessors without changing a summary. */
+START_TEST(partly_filled_fit_summarises_and_compacts)
+{
+    tf_model *m = make_model("exponential", "poisson");
+    double y[5] = {1, 2, 3, 4, 5};
+    tf_series *s = tf_series_new("b", 2000, 5, y, NULL, NULL, NULL);
+    size_t cap = 50, n = 30;
+    tf_fit *f = tf_fit_alloc(m, s, 3, cap);
+    tf_fit *g = tf_fit_alloc(m, s, 3, n);   /* the same draws, stored tightly */
+    tf_rng rng;
+    tf_rng_derive(&rng, 5, NULL, 0);
+    for (size_t c = 0; c < 3; c++)
+        for (size_t i = 0; i < n; i++) {
+            double theta[2] = {tf_rng_normal(&rng), 0.5 + 0.1 * tf_rng_normal(&rng)};
+            double path[5] = {tf_rng_normal(&rng), 1, 2, 3, tf_rng_normal(&rng)};
+            tf_fit_record(f, c, i, theta, -(double)i, path);
+            tf_fit_record(g, c, i, theta, -(double)i, path);
+        }
+    tf_fit_set_n_iter(f, n);
+    ck_assert_uint_eq(tf_fit_n_iter(f), n);
+    ck_assert_uint_eq(tf_fit_n_draws(f), 3 * n);
+    ck_assert_int_eq(tf_fit_summarise(f, NULL), TF_OK);
+    ck_assert_int_eq(tf_fit_summarise(g, NULL), TF_OK);
+    ck_assert_double_eq(tf_fit_param(f, 0)->mean, tf_fit_param(g, 0)->mean);
+    ck_assert_double_eq(tf_fit_param(f, 0)->ess_bulk, tf_fit_param(g, 0)->ess_bulk);
+    ck_assert_double_eq(tf_fit_year(f, 4)->rhat, tf_fit_year(g, 4)->rhat);
+    ck_assert_double_eq(tf_fit_trend(f)->median, tf_fit_trend(g)->median);
+    /* The trend is diagnosed from a packed copy: its chains are n_iter apart, not the room. */
+    ck_assert_double_eq(tf_fit_trend(f)->rhat, tf_fit_trend(g)->rhat);
+    ck_assert_double_eq(tf_fit_trend(f)->ess_bulk, tf_fit_trend(g)->ess_bulk);
+    ck_assert_double_eq(*tf_fit_draw(f, 2, n - 1), *tf_fit_draw(g, 2, n - 1));
+    tf_fit_compact(f);
+    ck_assert(memcmp(tf_fit_draws(f), tf_fit_draws(g), 3 * n * 2 * sizeof(double)) == 0);
+    ck_assert(memcmp(tf_fit_paths(f), tf_fit_paths(g), 3 * n * 5 * sizeof(double)) == 0);
+    ck_assert(memcmp(tf_fit_logliks(f), tf_fit_logliks(g), 3 * n * sizeof(double)) == 0);
+    ck_assert_double_eq(tf_fit_param(f, 1)->sd, tf_fit_param(g, 1)->sd);
+    tf_fit_free(f);
+    tf_fit_free(g);
     tf_series_free(s);
     tf_model_free(m);
 }
@@ -341,6 +403,7 @@ static Suite *make_suite(void)
     TCase *tc = tcase_create("result");
     tcase_add_test(tc, summaries_of_known_draws);
     tcase_add_test(tc, convergence_flag_follows_diagnostics);
+    tcase_add_test(tc, partly_filled_fit_summarises_and_compacts);
     tcase_add_test(tc, fit_alloc_refuses_bad_sizes);
     tcase_add_test(tc, halving_keeps_every_second_draw);
     tcase_add_test(tc, unconstrained_density_integrates_to_one);

@@ -8,6 +8,8 @@
 #include <string.h>
 
 #include "kalman_ref.h"
+#include "sampler/screen.h"
+#include "filter/filter.h"
 #include "model/model.h"
 #include "model/prior.h"
 #include "sampler/chain.h"
@@ -190,8 +192,8 @@ static estimate estimate_of(const double *base, size_t n_chains, size_t n_iter, 
  * Metropolis-Hastings run on that likelihood, with the same priors and transforms, is the
  * reference; the PMMH posterior means of every parameter and of the latent log-abundance in an
  * unsurveyed and in the last year must agree with it within Z_TOL combined Monte Carlo standard
- * errors. Over the 6 comparisons a 4.5-sigma miss has probability about 4e-5 for a correct
- * sampler. */
+ * errors. Over the 12 comparisons (with and without delayed acceptance) a 4.5-sigma miss has
+ * probability about 8e-5 for a correct sampler. */
 #define Z_TOL 4.5
 START_TEST(pmmh_matches_exact_likelihood_posterior)
 {
@@ -236,17 +238,20 @@ START_TEST(pmmh_matches_exact_likelihood_posterior)
         tf_chain_free(ch);
     }
 
+    /* The PMMH run stops by the default rule (pmmh.h: R-hat <= 1.01, bulk and tail ESS >= 400):
+     * this checks the kernel and that stopping on the draws' own diagnostics leaves no bias
+     * beyond the Monte Carlo error (Jones, Haran, Caffo & Neath 2006, JASA 101:1537). Under the
+     * sanitizers, a short fixed length. The second run screens every proposal first (delayed
+     * acceptance, chain.h): it must agree with the exact sampler just as well. */
+    for (int delayed = 0; delayed < 2; delayed++) {
     tf_pmmh_options opt = tf_pmmh_default_options();
     opt.n_threads = 2;
     opt.seed = 11;
-    opt.max_doublings = 0;   /* fixed length: the check is about the kernel; doubling is checked below */
+    opt.delayed = delayed;
     if (sanitized()) {
-        opt.n_iter = 1000;
-        opt.thin = 1;
+        opt.min_iter = opt.max_iter = 1000;
         opt.n_warmup = 1500;
     } else {
-        opt.n_iter = 4000;
-        opt.thin = 3;
         opt.n_warmup = 4000;
     }
     tf_fit *fit = NULL;
@@ -254,13 +259,21 @@ START_TEST(pmmh_matches_exact_likelihood_posterior)
     tf_error_init(&err);
     ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &opt, NULL, NULL, NULL, &fit, &err), TF_OK);
     ck_assert_ptr_nonnull(fit);
-
+    if (!sanitized()) {
+        /* It stopped by the rule, and the rule held where it stopped. */
+        ck_assert(tf_fit_settings_of(fit)->stopped_early);
+        ck_assert(tf_fit_meets(fit, TF_FIT_RHAT_MAX, opt.min_ess));
+        ck_assert_uint_ge(tf_fit_settings_of(fit)->n_iterations, opt.min_iter);
+    }
+    /* The screen rejected some proposals (without a filter run) only when on. */
+    ck_assert_int_eq(tf_fit_settings_of(fit)->delayed, delayed);
+    ck_assert(delayed ? tf_fit_settings_of(fit)->screened > 0.05 : tf_fit_settings_of(fit)->screened == 0);
     for (size_t p = 0; p < d; p++) {
         estimate ex = estimate_of(ex_theta + p, EXACT_CHAINS, keep, d);
         estimate pm = estimate_of(tf_fit_draws(fit) + p, tf_fit_n_chains(fit), tf_fit_n_iter(fit), d);
         double se = sqrt(ex.mcse * ex.mcse + pm.mcse * pm.mcse);
-        ck_assert_msg(fabs(ex.mean - pm.mean) < Z_TOL * se, "%s: exact %g, PMMH %g, combined MCSE %g",
-                      tf_model_param_name(su.m, p), ex.mean, pm.mean, se);
+        ck_assert_msg(fabs(ex.mean - pm.mean) < Z_TOL * se, "%s (delayed %d): exact %g, PMMH %g, combined MCSE %g",
+                      tf_model_param_name(su.m, p), delayed, ex.mean, pm.mean, se);
         ck_assert(fabs(pm.mean - tf_fit_param(fit, p)->mean) < 1e-9 * fabs(pm.mean));
     }
     size_t years[2] = {MISSING_YEAR, T_YEARS - 1};
@@ -278,16 +291,22 @@ START_TEST(pmmh_matches_exact_likelihood_posterior)
             ck_assert(isfinite(tf_fit_paths(fit)[k * T_YEARS + yr]));
     }
     tf_fit_free(fit);
+    }
     free(ex_theta);
     free(ex_path);
     free_setup(&su);
 }
 END_TEST
 
+/* A short run by need: a low ESS target, so that it stops before its maximum, with a small
+ * store of kept draws, so that the thinning doubles on the way. */
 static tf_pmmh_options short_run(void)
 {
     tf_pmmh_options opt = tf_pmmh_default_options();
-    opt.n_iter = 150;
+    opt.min_iter = 300;
+    opt.max_iter = 6000;
+    opt.min_ess = 40;
+    opt.max_kept = 160;
     opt.thin = 2;
     opt.n_warmup = 200;
     opt.seed = 3;
@@ -311,6 +330,10 @@ START_TEST(same_result_for_any_thread_count)
         ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &opt, NULL, NULL, NULL, &fits[k], &err), TF_OK);
     }
     size_t n = tf_fit_n_draws(fits[0]);
+    /* The same stop, decided from the draws only: the length, the thinning and the draws. */
+    ck_assert_uint_eq(n, tf_fit_n_draws(fits[1]));
+    ck_assert_uint_eq(tf_fit_settings_of(fits[0])->n_iterations, tf_fit_settings_of(fits[1])->n_iterations);
+    ck_assert_uint_eq(tf_fit_settings_of(fits[0])->thin, tf_fit_settings_of(fits[1])->thin);
     ck_assert(memcmp(tf_fit_draws(fits[0]), tf_fit_draws(fits[1]), n * 3 * sizeof(double)) == 0);
     ck_assert(memcmp(tf_fit_paths(fits[0]), tf_fit_paths(fits[1]), n * T_YEARS * sizeof(double)) == 0);
     ck_assert(memcmp(tf_fit_logliks(fits[0]), tf_fit_logliks(fits[1]), n * sizeof(double)) == 0);
@@ -321,9 +344,11 @@ START_TEST(same_result_for_any_thread_count)
     again.correlated = 1;
     tf_fit *f3 = NULL;
     ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &again, NULL, NULL, NULL, &f3, NULL), TF_OK);
-    ck_assert(memcmp(tf_fit_draws(fits[2]), tf_fit_draws(f3), n * 3 * sizeof(double)) == 0);
+    ck_assert_uint_eq(tf_fit_n_draws(fits[2]), tf_fit_n_draws(f3));
+    ck_assert(memcmp(tf_fit_draws(fits[2]), tf_fit_draws(f3), tf_fit_n_draws(f3) * 3 * sizeof(double)) == 0);
     /* Different chains differ: the streams are not shared. */
-    ck_assert(memcmp(tf_fit_draw(fits[0], 0, 149), tf_fit_draw(fits[0], 1, 149), 3 * sizeof(double)) != 0);
+    size_t last = tf_fit_n_iter(fits[0]) - 1;
+    ck_assert(memcmp(tf_fit_draw(fits[0], 0, last), tf_fit_draw(fits[0], 1, last), 3 * sizeof(double)) != 0);
     for (int k = 0; k < 3; k++)
         tf_fit_free(fits[k]);
     tf_fit_free(f3);
@@ -331,23 +356,21 @@ START_TEST(same_result_for_any_thread_count)
 }
 END_TEST
 
-/* A run that misses the convergence thresholds and is doubled keeps exactly the draws of a run
- * planned with twice the thinning from the start: same chains, same frozen kernel, same streams
- * (the kept draws are a deterministic function of the chain's path). Four chains of 1000 draws
- * one iteration apart reach ESS 400 only if the autocorrelation time is below 10, far from the
- * 20-50 of random-walk PMMH at acceptance 0.15-0.25, so this run is doubled (checked). */
-START_TEST(doubled_run_equals_run_thinned_twice_as_much)
+/* A run whose kept draws fill their store drops every second one and goes on at twice the
+ * thinning; it keeps exactly the draws of a run planned with twice the thinning from the start:
+ * same chains, same frozen kernel, same streams (the kept draws are a deterministic function of
+ * the chain's path, whatever the blocks). Fixed length, so that only the halving differs. */
+START_TEST(halved_run_equals_run_thinned_twice_as_much)
 {
     setup su;
     make_setup(&su, "poisson");
     tf_pmmh_options a = short_run();
-    a.n_iter = 1000;
+    a.min_iter = a.max_iter = 2000;
+    a.max_kept = 1000;
     a.thin = 1;
-    a.max_doublings = 1;
     a.n_threads = 2;
     tf_pmmh_options b = a;
     b.thin = 2;
-    b.max_doublings = 0;
     b.n_threads = 1;
     tf_fit *fa = NULL, *fb = NULL;
     ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &a, NULL, NULL, NULL, &fa, NULL), TF_OK);
@@ -355,7 +378,10 @@ START_TEST(doubled_run_equals_run_thinned_twice_as_much)
     ck_assert_uint_eq(tf_fit_settings_of(fa)->n_doublings, 1);
     ck_assert_uint_eq(tf_fit_settings_of(fa)->thin, 2);
     ck_assert_uint_eq(tf_fit_settings_of(fb)->n_doublings, 0);
+    ck_assert_uint_eq(tf_fit_settings_of(fa)->n_iterations, 2000);
+    ck_assert(!tf_fit_settings_of(fa)->stopped_early);
     size_t n = tf_fit_n_draws(fa);
+    ck_assert_uint_eq(n, 4 * 1000);
     ck_assert_uint_eq(n, tf_fit_n_draws(fb));
     ck_assert(memcmp(tf_fit_draws(fa), tf_fit_draws(fb), n * 3 * sizeof(double)) == 0);
     ck_assert(memcmp(tf_fit_paths(fa), tf_fit_paths(fb), n * T_YEARS * sizeof(double)) == 0);
@@ -366,6 +392,49 @@ START_TEST(doubled_run_equals_run_thinned_twice_as_much)
         ck_assert_double_eq(tf_fit_param(fa, p)->ess_bulk, tf_fit_param(fb, p)->ess_bulk);
     tf_fit_free(fa);
     tf_fit_free(fb);
+    free_setup(&su);
+}
+END_TEST
+
+/* The stopping rule: a run by need stops at the first block end, at or after the minimum, where
+ * tf_fit_meets holds, and its draws are those of a run of fixed length that long (the rule
+ * reads the draws and changes none). A run that cannot meet its target runs to its maximum. */
+START_TEST(run_stops_where_the_checks_first_pass)
+{
+    setup su;
+    make_setup(&su, "poisson");
+    tf_pmmh_options a = short_run();
+    tf_fit *fa = NULL, *fb = NULL, *fc = NULL;
+    ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &a, NULL, NULL, NULL, &fa, NULL), TF_OK);
+    const tf_fit_settings *sa = tf_fit_settings_of(fa);
+    ck_assert(sa->stopped_early);
+    ck_assert(tf_fit_meets(fa, TF_FIT_RHAT_MAX, a.min_ess));
+    ck_assert_uint_ge(sa->n_iterations, a.min_iter);
+    ck_assert_uint_lt(sa->n_iterations, a.max_iter);
+    ck_assert_uint_le(tf_fit_n_iter(fa), a.max_kept);
+
+    /* The same run of fixed length: the same draws, and the rule already held there. */
+    tf_pmmh_options b = a;
+    b.min_iter = b.max_iter = sa->n_iterations;
+    ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &b, NULL, NULL, NULL, &fb, NULL), TF_OK);
+    size_t n = tf_fit_n_draws(fa);
+    ck_assert_uint_eq(n, tf_fit_n_draws(fb));
+    ck_assert(memcmp(tf_fit_draws(fa), tf_fit_draws(fb), n * 3 * sizeof(double)) == 0);
+    ck_assert(tf_fit_meets(fb, TF_FIT_RHAT_MAX, a.min_ess));
+
+    /* An ESS target that 4 x 160 kept draws can never show runs to the maximum. */
+    tf_pmmh_options c = a;
+    c.min_ess = 1e6;
+    c.max_iter = 1500;
+    ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &c, NULL, NULL, NULL, &fc, NULL), TF_OK);
+    ck_assert(!tf_fit_settings_of(fc)->stopped_early);
+    /* The last block ends at the maximum rounded down to a whole kept draw. */
+    ck_assert_uint_le(tf_fit_settings_of(fc)->n_iterations, 1500);
+    ck_assert_uint_gt(tf_fit_settings_of(fc)->n_iterations + tf_fit_settings_of(fc)->thin, 1500);
+    ck_assert_uint_le(tf_fit_n_iter(fc), c.max_kept);
+    tf_fit_free(fa);
+    tf_fit_free(fb);
+    tf_fit_free(fc);
     free_setup(&su);
 }
 END_TEST
@@ -388,7 +457,7 @@ START_TEST(stop_flag_interrupts_and_returns_nothing)
     make_setup(&su, "poisson");
     tf_pmmh_options opt = short_run();
     opt.n_threads = 2;
-    opt.n_iter = 1000000;   /* hours if not interrupted */
+    opt.min_iter = opt.max_iter = 1000000;   /* hours if not interrupted */
     opt.thin = 1;
     tf_fit *fit = (tf_fit *)&opt;   /* must be overwritten with NULL */
     tf_error err;
@@ -412,15 +481,18 @@ START_TEST(bad_settings_are_refused)
     setup su;
     make_setup(&su, "poisson");
     tf_fit *fit = NULL;
-    tf_pmmh_options bad[5];
-    for (int k = 0; k < 5; k++)
+    tf_pmmh_options bad[8];
+    for (int k = 0; k < 8; k++)
         bad[k] = short_run();
     bad[0].n_chains = 0;
-    bad[1].n_iter = 0;
+    bad[1].max_iter = bad[1].min_iter - 1;
     bad[2].thin = 0;
     bad[3].n_warmup = 5;
     bad[4].rho = 1.0;
-    for (int k = 0; k < 5; k++) {
+    bad[5].min_ess = 0;
+    bad[6].max_kept = 7;
+    bad[7].thin = bad[7].min_iter + 1;
+    for (int k = 0; k < 8; k++) {
         tf_error err;
         tf_error_init(&err);
         ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &bad[k], NULL, NULL, NULL, &fit, &err), TF_ERR_INVALID);
@@ -438,6 +510,7 @@ START_TEST(given_particle_count_is_kept)
     make_setup(&su, "poisson");
     tf_pmmh_options opt = short_run();
     opt.n_particles = 37;
+    opt.min_iter = opt.max_iter = 300;   /* 150 kept draws: within the store, thinning stays 2 */
     tf_fit *fit = NULL;
     ck_assert_int_eq(tf_pmmh_run(su.post, su.s, &opt, NULL, NULL, NULL, &fit, NULL), TF_OK);
     ck_assert_uint_eq(tf_fit_settings_of(fit)->n_particles, 37);
@@ -453,14 +526,63 @@ START_TEST(given_particle_count_is_kept)
 }
 END_TEST
 
+/* The screen of delayed acceptance is an extended Kalman filter fed with Laplace
+ * pseudo-observations; for Gompertz growth (linear on the log scale) and log-normal counting
+ * error (exactly Gaussian in x) both approximations are exact, so it must give the Kalman
+ * filter's likelihood (kalman_ref.h) to rounding, at the truth and at points far from it. For
+ * Poisson counts it is only an approximation: finite, and within a few log units of the
+ * particle filter's estimate near the truth (a loose bound: it screens, it does not decide). */
+START_TEST(screen_is_exact_for_the_linear_gaussian_model)
+{
+    setup su;
+    make_setup(&su, "lognormal");
+    kalman_target e;
+    ck_assert(kalman_target_init(&e, su.post, su.s));
+    tf_screen *sc = tf_screen_alloc(su.m, su.s);
+    ck_assert_ptr_nonnull(sc);
+    /* The Kalman filter's likelihood is that of ln y; the counts' density has the Jacobian
+     * 1 / y of each count besides (check_lognormal_density). */
+    double jacobian = 0;
+    for (size_t t = 0; t < T_YEARS; t++)
+        if (!isnan(tf_series_counts(su.s)[t]))
+            jacobian -= log(tf_series_counts(su.s)[t]);
+    const double pts[4][4] = {{0.4, 300.0, 0.12, 0.15}, {1.5, 80.0, 0.5, 0.05}, {0.05, 2000.0, 0.02, 0.6},
+                              {0.9, 300.0, 0.3, 0.3}};
+    for (int k = 0; k < 4; k++) {
+        double want = kalman_target_log_lik(&e, pts[k], NULL, NULL, NULL) + jacobian;
+        double got = tf_screen_loglik(sc, pts[k]);
+        ck_assert_msg(fabs(got - want) < 1e-8 * fabs(want), "point %d: screen %.12g, Kalman %.12g", k, got, want);
+    }
+    double outside[4] = {0.4, -1.0, 0.12, 0.15};
+    ck_assert(tf_screen_loglik(sc, outside) == -INFINITY);
+    tf_screen_free(sc);
+    free_setup(&su);
+
+    make_setup(&su, "poisson");
+    sc = tf_screen_alloc(su.m, su.s);
+    tf_filter *f = tf_filter_alloc(su.m, su.s, 20000);
+    ck_assert_ptr_nonnull(f);
+    tf_rng rng;
+    tf_rng_derive(&rng, 3, NULL, 0);
+    const double truth[3] = {0.4, 300.0, 0.12};
+    double ll = tf_filter_loglik(f, truth, &rng, NULL), s = tf_screen_loglik(sc, truth);
+    ck_assert_msg(isfinite(s) && fabs(s - ll) < 5.0, "screen %g, filter %g", s, ll);
+    tf_filter_free(f);
+    tf_screen_free(sc);
+    free_setup(&su);
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("pmmh");
     TCase *tc = tcase_create("run");
     tcase_set_timeout(tc, 300);
     tcase_add_test(tc, pmmh_matches_exact_likelihood_posterior);
+    tcase_add_test(tc, screen_is_exact_for_the_linear_gaussian_model);
     tcase_add_test(tc, same_result_for_any_thread_count);
-    tcase_add_test(tc, doubled_run_equals_run_thinned_twice_as_much);
+    tcase_add_test(tc, halved_run_equals_run_thinned_twice_as_much);
+    tcase_add_test(tc, run_stops_where_the_checks_first_pass);
     tcase_add_test(tc, stop_flag_interrupts_and_returns_nothing);
     tcase_add_test(tc, bad_settings_are_refused);
     tcase_add_test(tc, given_particle_count_is_kept);

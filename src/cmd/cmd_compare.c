@@ -70,7 +70,8 @@ static void help(FILE *out)
             "  --threads T        threads (default: the number of processors); models run in\n"
             "                     parallel, and the results do not depend on T\n"
             "  --quiet            print nothing but warnings and errors\n"
-            "  -h, --help         show this help\n",
+            "  -h, --help         show this help\n"
+            TF_CMD_HELP_END,
             growth, obs, (unsigned long long)d.seed, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, e.n_draws);
 }
 

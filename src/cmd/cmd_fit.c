@@ -77,7 +77,8 @@ static void help(FILE *out)
             "  --threads T        threads running chains (default: the number of processors); the\n"
             "                     results do not depend on it\n"
             "  -q, --quiet        no progress display and no summary\n"
-            "  -h, --help         show this help\n",
+            "  -h, --help         show this help\n"
+            TF_CMD_HELP_END,
             growth, obs, d.n_chains, d.n_iter * d.thin, d.thin, d.n_warmup, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN,
             d.max_doublings, TF_PMMH_DOUBLING_MIN_DRAWS, (unsigned long long)d.seed,
             d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);

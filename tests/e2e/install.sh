@@ -14,7 +14,7 @@ done
 page=$tmp/usr/share/man/man1/tallyfit.1
 [ -s "$page" ] || fail "no manual page"
 # Every command of `tallyfit --help` has its own section in the page.
-for c in $("$tmp/usr/bin/tallyfit" --help | awk '/^commands:/{on=1; next} on && NF {print $1}'); do
+for c in $("$tmp/usr/bin/tallyfit" --help | awk '/^commands:/{on=1; next} on && !NF {exit} on {print $1}'); do
   grep -q "^\.SS $c\$" "$page" || fail "manual page lacks command $c"
 done
 if command -v groff >/dev/null; then

@@ -12,6 +12,7 @@
 #include "cmd/input.h"
 #include "cmd/messages.h"
 #include "survey/survey.h"
+#include "util/stats.h"
 
 #define PROG "tallyfit check"
 
@@ -59,12 +60,6 @@ static void help(FILE *out)
             TF_CMD_HELP_END,
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_SERIES_OUTLIER_FACTOR,
             TF_SERIES_OUTLIER_WINDOW);
-}
-
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
 }
 
 /* Missing years with runs joined: "1999, 2004-2005", or "none". */
@@ -128,8 +123,7 @@ static bool print_series(const tf_series *s, FILE *out)
         e_min = fmin(e_min, e[i]);
         e_max = fmax(e_max, e[i]);
     }
-    qsort(sorted, k, sizeof *sorted, cmp_double);
-    double median = k % 2 ? sorted[k / 2] : 0.5 * (sorted[k / 2 - 1] + sorted[k / 2]);
+    double median = tf_stats_median(sorted, k);
     int first = tf_series_first_year(s);
 
     fprintf(out, "\n%s\n", tf_series_label(s)[0] ? tf_series_label(s) : "(unnamed population)");

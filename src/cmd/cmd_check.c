@@ -56,7 +56,7 @@ static void help(FILE *out)
             "               shown as a percentage change per year. A crude screening figure,\n"
             "               not a model estimate: it ignores observation error, density\n"
             "               dependence and the missing years.\n"
-            "A usable file ends with status 0, an unusable one with 3.\n"
+            "\nA usable file ends with status 0, an unusable one with 3.\n"
             TF_CMD_HELP_END,
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_SERIES_OUTLIER_FACTOR,
             TF_SERIES_OUTLIER_WINDOW);

@@ -72,7 +72,7 @@ static void help(FILE *out)
             "  --draws M          importance draws per density at most (default %zu)\n"
             "  --threads T        threads (default: the number of processors); models run in\n"
             "                     parallel, and the results do not depend on T\n"
-            "  --quiet            print nothing but warnings and errors\n"
+            "  -q, --quiet        print nothing but warnings and errors\n"
             "  -h, --help         show this help\n"
             TF_CMD_HELP_END,
             d.n_warmup, e.target_se, e.n_draws);
@@ -114,7 +114,7 @@ static void print_table(const tf_comparison *c, FILE *out)
         if (!strcmp(reading, "not worth more than a bare mention"))
             reading = "bare mention";
         fprintf(out, "  %-28s %10.2f %6.2f %10.2f %7.2f  %-12s %8.3f %6.3f %5.2f %6.3f %6.0f%s\n",
-                tf_comparison_name(c, i), ev->main.log_ml, ev->main.se, ev->check.log_ml, -2 * f->log_bf, reading,
+                tf_comparison_name(c, i), ev->main.log_ml, ev->main.se, ev->check.log_ml, 0.0 - 2 * f->log_bf, reading,
                 f->prob, f->prob_se, ev->main.pareto_k, f->rhat_max, f->ess_min,
                 tf_comparison_note(c, i)[0] ? "  *" : "");
     }
@@ -219,7 +219,7 @@ int tf_cmd_compare(int argc, char **argv)
     opterr = 0;
     optind = 0;
     int c;
-    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":o:hq", longopts, NULL)) != -1) {
         switch (c) {
         case OPT_MODELS:
             tf_args_split_names("--models", optarg, growth_buf, sizeof growth_buf, growth, MAX_NAMES, &opt.n_growth,
@@ -246,7 +246,8 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
         case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
-        case OPT_QUIET: quiet = 1; break;
+        case OPT_QUIET:
+        case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default:
             if (!tf_args_run_option(c, optarg, &run, &err))

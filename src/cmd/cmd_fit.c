@@ -9,6 +9,7 @@
 #include <sys/ioctl.h>
 #include <unistd.h>
 
+#include "analysis/sheets.h"
 #include "cmd/args.h"
 #include "cmd/input.h"
 #include "cmd/cmd.h"
@@ -407,8 +408,10 @@ static void print_summary(const job *j, FILE *out)
                 s->mean, s->sd, s->q025, s->q50, s->q975, s->rhat, s->ess_bulk, s->ess_tail);
     }
     const tf_fit_year_summary *last = tf_fit_year(f, tf_fit_n_years(f) - 1);
-    fprintf(out, "  abundance in %d: median %.4g (95%% interval %.4g to %.4g) per unit effort\n", last->year,
-            last->median, last->q025, last->q975);
+    /* As the analysis's first page words it (tf_sheets_effort_varies): per unit of effort only
+     * where the effort differs between years. */
+    fprintf(out, "  abundance in %d: median %.4g (95%% interval %.4g to %.4g) %s\n", last->year, last->median,
+            last->q025, last->q975, tf_sheets_effort_varies(j->series) ? "animals per unit of effort" : "animals");
     const tf_fit_trend_summary *tr = tf_fit_trend(f);
     if (!isnan(tr->median))
         fprintf(out, "  average change %d-%d: %+.2f%% per year (95%% interval %+.2f%% to %+.2f%%), "

@@ -1,6 +1,8 @@
 /* Series checks and prior sets for the fitting commands; see setup.h. */
 #include "cmd/setup.h"
 
+#include <string.h>
+
 #include <math.h>
 #include <stdlib.h>
 
@@ -105,7 +107,16 @@ tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *pri
             goto out;
         for (size_t i = 0; i < n; i++)
             names[i] = tf_model_param_name(m, i);
-        /* A user's file naming a parameter the model lacks is a mistake worth stopping for. */
+        /* A user's file naming a parameter the model lacks is a mistake worth stopping for, and
+         * so is a file made for another model (a copy of exponential.ini given to a Ricker fit
+         * would quietly set the shared parameters only). */
+        const char *fname = tf_model_file_name(user);
+        if (strcmp(fname, tf_model_growth(m)->name) && strcmp(fname, tf_model_name(m)) && strcmp(fname, "observation")) {
+            st = tf_error_add(err, TF_ERR_INVALID, tf_model_file_label(user), 0, 0,
+                              "set name in its [model] section to the model it is for",
+                              "the priors file is for model '%s', not %s", fname, tf_model_name(m));
+            goto out;
+        }
         if ((st = tf_model_file_check_names(user, names, n, err)) != TF_OK)
             goto out;
     }

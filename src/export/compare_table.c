@@ -134,7 +134,8 @@ tf_table *tf_compare_table(const tf_comparison *c, tf_error *err)
             tf_table_set_number(t, row, C_BF, exp(f->log_bf));
             tf_table_set_number(t, row, C_LN_BF, f->log_bf);
             tf_table_set_number(t, row, C_LN_BF_SE, f->log_bf_se);
-            tf_table_set_number(t, row, C_TWO_LN_B, -2.0 * f->log_bf);
+            /* 0 - (-2 x): the best model's log_bf is +0, and -2 x 0 would print as -0. */
+            tf_table_set_number(t, row, C_TWO_LN_B, 0.0 - 2.0 * f->log_bf);
             tf_table_set_number(t, row, C_PRIOR, f->prior_weight);
             tf_table_set_number(t, row, C_PROB, f->prob);
             tf_table_set_number(t, row, C_PROB_SE, f->prob_se);

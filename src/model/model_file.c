@@ -7,6 +7,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <ini.h>
@@ -453,7 +454,8 @@ static tf_status build(tf_model_file *mf, parse_state *ps, tf_error *loc)
     }
     if (!have_model)
         tf_error_add(loc, TF_ERR_PARSE, mf->label, 0, 0, "start the file with [model] and 'name = ...'",
-                     "the file has no [model] section (key 'name' is required)");
+                     "the file has no [model] section (key 'name' is required: the model the file is for, "
+                     "as in the files of models/)");
 out:
     free(sorted);
     free(runs);
@@ -696,6 +698,14 @@ tf_status tf_model_file_locate(const char *file_name, char *path, size_t size, t
 
     const char *env = getenv(TF_MODELS_ENV);
     if (env && env[0]) {
+        /* A folder named by the user that is not there is a mistake to report, not a reason to
+         * fall back silently on the default priors; a file it lacks does fall back (it may hold
+         * edited copies of some model files only). */
+        struct stat st;
+        if (stat(env, &st) != 0 || !S_ISDIR(st.st_mode))
+            return tf_error_add(err, TF_ERR_IO, NULL, 0, 0,
+                                "point " TF_MODELS_ENV " at the folder that holds the model files, or unset it",
+                                "%s names '%s', which is not a folder", TF_MODELS_ENV, env);
         if (try_dir(env, file_name, path, size, &too_long))
             return TF_OK;
         NOTE("%s (from %s)", env, TF_MODELS_ENV);

@@ -413,6 +413,14 @@ static bool report_number_form(reader *r, long line, long col, const char *what,
     return false;
 }
 
+/* Whether a whole count is written as digits, a point and exactly three digits ("5.000"), the
+ * form of a thousands separator in a file exported with regional settings. */
+static bool count_looks_grouped(const char *s)
+{
+    char plain[32];
+    return strchr(s, '.') && classify_number(s, ';', plain, sizeof plain) == NUM_THOUSANDS;
+}
+
 static const char *field(const reader *r, long i) { return r->fbuf + r->foff[i]; }
 
 static void on_field(void *s, size_t len, void *data)
@@ -561,6 +569,15 @@ static void read_data(reader *r)
                                             "(indices, densities), say so with --estimates");
             report(r, TF_ERR_INVALID, line, ccol + 1, hint, "count %s is not a whole number",
                    show(buf, sizeof buf, cs));
+            w.bad = true;
+        } else if (!r->estimates && count_looks_grouped(cs)) {
+            /* "5.000" is whole, but nobody writes a count of five with three zeros: it is 5000
+             * with a thousands separator (the same digits as "4.835", which is refused above). */
+            char plain[32];
+            classify_number(cs, ';', plain, sizeof plain);
+            report(r, TF_ERR_PARSE, line, ccol + 1, HINT_NUMBERS,
+                   "count '%s' has a point and three digits after it: it looks like %s written with a thousands "
+                   "separator", show(buf, sizeof buf, cs), plain);
             w.bad = true;
         } else {
             w.count = c;

@@ -120,8 +120,14 @@ ok = (r["converged"] == "1" and 200 <= int(r["iterations"]) < 100000 and int(r["
       and len(draws) == 4 * int(r["kept"]))
 sys.exit(0 if ok else 1)
 PY
-printf '[model]\nname = mine\n[K]\nprior = normal\nmean = 1\nsd = 1\n' >"$tmp/p.ini"
+printf '[model]\nname = exponential\n[K]\nprior = normal\nmean = 1\nsd = 1\n' >"$tmp/p.ini"
 expect 3 "K" "$T" fit "$tmp/s.csv" --model exponential --priors "$tmp/p.ini" --quiet -o "$tmp/x"
+# A priors file made for another model is refused, not applied to the parameters the two share.
+printf '[model]\nname = exponential\n[sigma]\nprior = halfnormal\nsd = 0.3\n' >"$tmp/p2.ini"
+expect 3 "for model 'exponential', not ricker" "$T" fit "$tmp/s.csv" --model ricker --priors "$tmp/p2.ini" --quiet -o "$tmp/x"
+# A models folder that is not there is refused, not silently replaced by the defaults.
+TALLYFIT_MODELS=$tmp/no-such-folder expect 3 "TALLYFIT_MODELS names .*not a folder" \
+  "$T" fit "$tmp/s.csv" --model exponential --quiet -o "$tmp/x"
 "$T" fit --help | grep -q -- "--correlated" || bad "--help lacks --correlated"
 
 exit $fail

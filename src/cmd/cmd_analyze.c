@@ -350,10 +350,9 @@ static int analyze(int argc, char **argv, int rank, int size)
         switch (c) {
         case 'o': out_dir = optarg; break;
         case OPT_THRESHOLD:
-            if (tf_project_parse_thresholds(optarg, opt.project.thresholds, TF_PROJECT_MAX_THRESHOLDS,
-                                            &opt.project.n_thresholds, &err) != TF_OK)
-                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --threshold 50,100,20%", "--threshold: bad list '%s'",
-                             optarg);
+            /* The parser names what is wrong with the list; one mistake, one error. */
+            tf_project_parse_thresholds(optarg, opt.project.thresholds, TF_PROJECT_MAX_THRESHOLDS,
+                                        &opt.project.n_thresholds, &err);
             break;
         case OPT_YEARS:
             tf_args_parse_size("--years", optarg, 1, TF_PROJECT_MAX_HORIZON, &opt.project.horizon, &err);

@@ -40,6 +40,7 @@ static void help(FILE *out)
             "is the log of the mean of the R likelihood estimates, se its Monte Carlo standard error, and\n"
             "loglik_sd the standard deviation of the R log-likelihood estimates, the spread the particle\n"
             "count is tuned by (both NA when R = 1).\n"
+            "In a survey of several populations, name the one with --population.\n"
             "SURVEY.csv may be '-' for standard input.\n\n"
             "options:\n"
             "  --model M          growth model: %s\n"

@@ -19,7 +19,7 @@
     "                     (too few surveyed years, bad rows...) instead of refusing the file\n"            \
     "  --estimates        the count column holds estimates (indices, densities, corrected\n"               \
     "                     counts) that need not be whole numbers: only counting-error models\n"           \
-    "                     of continuous amounts (lognormal) are then fitted. Without it a\n"              \
+    "                     of continuous amounts (lognormal) then apply. Without it a\n"                 \
     "                     count that is not a whole number is an error\n"
 
 /* A small value type on the caller's stack; zero it before use. */

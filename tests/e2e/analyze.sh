@@ -166,7 +166,7 @@ usage() {  # expected phrase, arguments...
 usage "no survey file given" -o "$tmp/u"
 usage "unknown model 'logistic'" surveys/heron-colony.csv --models logistic -o "$tmp/u"
 usage "unknown model 'gauss'" surveys/heron-colony.csv --obs gauss -o "$tmp/u"
-usage "--threshold" surveys/heron-colony.csv --threshold 50,abc -o "$tmp/u"
+usage "threshold 'abc' is not a number" surveys/heron-colony.csv --threshold 50,abc -o "$tmp/u"
 usage "--years" surveys/heron-colony.csv --years 0 -o "$tmp/u"
 usage "needs a survey file" - -o "$tmp/u"
 usage "unexpected argument" surveys/heron-colony.csv extra -o "$tmp/u"

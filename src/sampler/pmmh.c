@@ -61,15 +61,15 @@ tf_pmmh_options tf_pmmh_default_options(void)
         .min_iter = 2000,
         .max_iter = 160000,
         .min_ess = TF_FIT_ESS_MIN,
-        /* Every iteration kept until 2000 per chain are, then every second, and so on: 8000
-         * draws of 4 chains are 20 times the ESS the run stops at, enough for the marginal
+        /* Every iteration kept until 1000 per chain are, then every second, and so on: 4000
+         * draws of 4 chains are 10 times the ESS the run stops at, enough for the marginal
          * likelihood's mixture fit and the projections' starts (common practice, no source),
          * and everything downstream holds and writes every draw (analyze's workbook has a sheet
-         * of them): with 4000 per chain the three-population demo survey peaked at 320 MB in
-         * bench_analyze. Thinning trims memory only: it never adds information (MacEachern &
-         * Berliner 1994, The American Statistician 48:188). */
+         * of them): the three-population demo survey peaked in bench_analyze at 320 MB with
+         * 4000 per chain and 186 MB with 2000. Thinning trims memory only: it never adds
+         * information (MacEachern & Berliner 1994, The American Statistician 48:188). */
         .thin = 1,
-        .max_kept = 2000,
+        .max_kept = 1000,
         .n_warmup = 5000,
         .n_threads = 1,
         .seed = 1,

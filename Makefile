@@ -56,6 +56,10 @@ $(LIB): $(OBJ)
 	$(Q)rm -f $@ && ar rcs $@ $^
 
 $(BUILD)/src/filter/%.o $(BUILD)/src/model/%.o: CFLAGS += $(HOT_CFLAGS)
+# A binary inside this source tree (./tallyfit, build/mpi/tallyfit, build/san/tallyfit) finds the
+# model files of the tree, wherever it lies in it (src/model/model_file.c).
+$(BUILD)/src/model/model_file.o: CPPFLAGS += -DTF_SOURCE_DIR='"$(CURDIR)"'
+$(BUILD)/src/model/model_file.o: Makefile
 
 $(BUILD)/%.o: %.c
 	@mkdir -p $(dir $@)

@@ -237,11 +237,26 @@ done:
     return st;
 }
 
+static void obs_names(const tf_analysis_options *o, const tf_series *s, const char *const **names, size_t *n_out);
+
+size_t tf_analysis_candidate_obs(const tf_analysis_options *o, const tf_series *s, const char **names, size_t max)
+{
+    const char *const *list;
+    size_t n;
+    obs_names(o, s, &list, &n);
+    for (size_t i = 0; i < n && i < max; i++)
+        names[i] = list[i];
+    return n < max ? n : max;
+}
+
 /* The counting-error names for series s under the options; *n_out = 0 means let the comparison
  * choose every suitable one. */
 static void obs_names(const tf_analysis_options *o, const tf_series *s, const char *const **names, size_t *n_out)
 {
-    if (o->obs_auto) {
+    if (o->estimates && !o->n_obs) {
+        *names = default_obs_amounts;
+        *n_out = N_OF(default_obs_amounts);
+    } else if (o->obs_auto) {
         *names = NULL;
         *n_out = 0;
     } else if (o->n_obs) {

@@ -35,6 +35,9 @@ typedef struct {
     size_t n_obs;
     const char *obs[TF_ANALYSIS_MAX_NAMES];
     int obs_auto;
+    /* The counts are estimates (indices, densities), not whole counts: only counting-error models
+     * of continuous amounts are candidates, whatever the values (the first page says so). */
+    int estimates;
     /* Sampler and marginal-likelihood settings of every fit; their seeds and thread counts are
      * replaced by seed and n_threads below. */
     tf_pmmh_options fit;
@@ -57,6 +60,10 @@ typedef struct {
  * thread, no priors callback (the caller sets one). Returns TF_OK; fills err only if the
  * default thresholds could not be read (never, short of a bug). */
 tf_status tf_analysis_options_init(tf_analysis_options *o, tf_error *err);
+
+/* The counting-error models that are candidates for series s under o, by name, into names (room
+ * for max); returns how many, 0 meaning every known one that suits the counts (obs_auto). */
+size_t tf_analysis_candidate_obs(const tf_analysis_options *o, const tf_series *s, const char **names, size_t max);
 
 /* What a progress callback hears. */
 typedef enum {

@@ -734,6 +734,10 @@ static tf_status provenance_items(const tf_analysis *a, const tf_sheets_provenan
     TRY(tf_table_add_item_text(t, "SHA-256 of the file", prov->sha256, "identifies the exact file that was read", err));
     TRY(tf_table_add_item_text(t, "Program", "tallyfit " TF_VERSION, NULL, err));
     TRY(tf_table_add_item_text(t, "Run on", prov->date, NULL, err));
+    if (o->estimates)
+        TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
+                                   "so only counting-error models of continuous amounts (log-normal) were fitted",
+                                   err));
     static const char seed_note[] = "the same seed and settings give the same numbers, whatever the number of threads";
     /* A number when a double holds it exactly (below 2^53), else its digits as text. */
     if (o->seed <= (UINT64_C(1) << 53)) {
@@ -783,6 +787,32 @@ fail:
     return st;
 }
 
+/* Counts far from their neighbours (series.h), one caution each: they are fitted as they are,
+ * and a typing error among them would move every figure. */
+static tf_status outlier_items(const tf_analysis *a, tf_table *t, tf_error *err)
+{
+    tf_status st;
+    for (size_t i = 0; i < tf_analysis_n_populations(a); i++) {
+        const tf_series *s = tf_analysis_pop_series(tf_analysis_population(a, i));
+        tf_series_outlier o[16];
+        size_t n = tf_series_outliers(s, o, 16);
+        for (size_t k = 0; k < n && k < 16; k++) {
+            char text[400], note[64];
+            tf_series_outlier_text(s, &o[k], text, sizeof text);
+            snprintf(note, sizeof note, "line %ld of the survey file", tf_series_source_line(s, o[k].index));
+            TRY(tf_table_add_item_text(t, "Count to check", text, note, err));
+        }
+        if (n > 16) {
+            char text[128];
+            snprintf(text, sizeof text, "%zu more counts far from their neighbours (run tallyfit check)", n - 16);
+            TRY(tf_table_add_item_text(t, "Count to check", text, NULL, err));
+        }
+    }
+    return TF_OK;
+fail:
+    return st;
+}
+
 static tf_status summary_sheet(const tf_analysis *a, const tf_sheets_provenance *prov, tf_report *r, tf_error *err)
 {
     tf_status st;
@@ -799,6 +829,14 @@ static tf_status summary_sheet(const tf_analysis *a, const tf_sheets_provenance 
         char label[32];
         snprintf(label, sizeof label, "Caution %zu", i + 1);
         TRY(tf_table_add_item_text(t, label, tf_project_caution(i), NULL, err));
+    }
+    TRY(outlier_items(a, t, err));
+    for (size_t i = 0; prov->left_out_from && i < tf_survey_n_rejected(prov->left_out_from); i++) {
+        const tf_survey_rejected *x = tf_survey_rejected_at(prov->left_out_from, i);
+        char text[700], note[64];
+        snprintf(text, sizeof text, "'%.100s', not analysed: %s", x->label, x->what);
+        snprintf(note, sizeof note, "line %ld of the survey file", x->line);
+        TRY(tf_table_add_item_text(t, "Population left out", text, note, err));
     }
     TRY(provenance_items(a, prov, t, err));
     return tf_report_add_table(r, t, "the first page: findings, cautions and provenance", NULL, err);

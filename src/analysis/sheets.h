@@ -21,6 +21,9 @@ typedef struct {
     /* Leave out the seconds each fit took (a wall-clock time), so that the tables of the same
      * settings compare byte for byte; the batch keeps its timings in a file of their own. */
     int omit_seconds;
+    /* The survey whose set-aside populations (tf_survey_rejected_at) were left out of the run on
+     * request (--skip-unusable), each named on the first page with its problem; NULL = none. */
+    const tf_survey *left_out_from;
 } tf_sheets_provenance;
 
 /* Thresholds for flagging a sampler diagnostic. R-hat and ESS use TF_FIT_RHAT_MAX and

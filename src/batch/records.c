@@ -58,6 +58,9 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
         line(f, "counting-error", "%s", "all that suit");
     else
         names_line(f, "counting-error", a->obs, a->n_obs, "default");
+    /* Written only when set, so that the records of earlier batches stay the same. */
+    if (a->estimates)
+        line(f, "counts", "%s", "estimates (continuous counting-error models only)");
     line(f, "chains", "%zu", a->fit.n_chains);
     line(f, "iterations", "%zu %zu", a->fit.min_iter, a->fit.max_iter);
     line(f, "min-ess", "%.17g", a->fit.min_ess);

@@ -1,6 +1,7 @@
 /* Option parsing shared by the commands. */
 #include "cmd/args.h"
 #include "cmd/cmd.h"
+#include "export/atomic.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -9,6 +10,8 @@
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
+#include <fcntl.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 void tf_args_pairs_init(tf_arg_pairs *p) { p->n = 0; }
@@ -539,9 +542,14 @@ size_t tf_args_default_threads(size_t max)
 
 tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err)
 {
+    return tf_args_read_survey_with(path, &(tf_survey_options){0}, out, err);
+}
+
+tf_status tf_args_read_survey_with(const char *path, const tf_survey_options *o, tf_survey **out, tf_error *err)
+{
     *out = NULL;
     if (strcmp(path, "-"))
-        return tf_survey_read(path, out, err);
+        return tf_survey_read_with(path, o, out, err);
     char *buf = NULL;
     size_t len = 0, cap = 0;
     tf_status st;
@@ -570,7 +578,7 @@ tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err)
         st = tf_error_add(err, TF_ERR_IO, "stdin", 0, 0, NULL, "cannot read the survey from standard input");
         goto done;
     }
-    st = tf_survey_parse("stdin", buf ? buf : "", len, out, err);
+    st = tf_survey_parse_with("stdin", buf ? buf : "", len, o, out, err);
 done:
     free(buf);
     return st;
@@ -630,4 +638,60 @@ int tf_args_exit_code(tf_status st)
     case TF_ERR_INVALID: return TF_EXIT_INPUT;
     default: return TF_EXIT_FAIL;
     }
+}
+
+/* Whether dir or one of the folders above it in its name is the file at input. */
+static int names_input(const char *dir, const char *input)
+{
+    struct stat in, st;
+    if (!input || !strcmp(input, "-") || stat(input, &in) != 0)
+        return 0;
+    char buf[4200];
+    size_t n = strlen(dir);
+    if (n >= sizeof buf)
+        return 0;
+    memcpy(buf, dir, n + 1);
+    for (size_t i = 1; i <= n; i++) {
+        if (i < n && buf[i] != '/')
+            continue;
+        char saved = buf[i];
+        buf[i] = '\0';
+        int same = stat(buf, &st) == 0 && st.st_dev == in.st_dev && st.st_ino == in.st_ino;
+        buf[i] = saved;
+        if (same)
+            return 1;
+    }
+    return 0;
+}
+
+tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error *err)
+{
+    return tf_args_probe_output_dir_keep(dir, input, 0, err);
+}
+
+tf_status tf_args_probe_output_dir_keep(const char *dir, const char *input, int keep_dirs, tf_error *err)
+{
+    if (names_input(dir, input))
+        return tf_error_add(err, TF_ERR_USAGE, dir, 0, 0, "give -o a folder for the results",
+                            "the output folder would be the survey file '%s'", input);
+    size_t created = 0;
+    tf_status st = tf_atomic_mkdirs(dir, &created, err);
+    if (st == TF_OK) {
+        char probe[4200];
+        int n = snprintf(probe, sizeof probe, "%s/.tallyfit-probe-XXXXXX", dir);
+        if (n < 0 || (size_t)n >= sizeof probe)
+            return tf_error_add(err, TF_ERR_USAGE, dir, 0, 0, "choose a shorter -o folder", "the output path is too long");
+        int fd = mkstemp(probe);
+        if (fd < 0) {
+            int e = errno;
+            st = tf_error_add(err, TF_ERR_IO, dir, 0, 0, "choose a folder you can write to",
+                              "cannot write in the output folder: %s", strerror(e));
+        } else {
+            close(fd);
+            unlink(probe);
+        }
+    }
+    if (!keep_dirs)
+        tf_atomic_rmdirs(dir, created);
+    return st;
 }

@@ -168,6 +168,8 @@ size_t tf_args_default_threads(size_t max);
 /* Reads the survey a command was given: a path, or "-" for standard input (named "stdin" in
  * messages). Same contract as tf_survey_read. */
 tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err);
+/* The same under the reading options o (survey.h). */
+tf_status tf_args_read_survey_with(const char *path, const tf_survey_options *o, tf_survey **out, tf_error *err);
 
 /* label made safe as one file or folder name: letters, digits, '-', '_' and (not first) '.' are
  * kept, anything else becomes '_'; "_" when label is empty. Writes at most size bytes. */
@@ -183,6 +185,16 @@ void tf_args_survey_name(const char *path, char *out, size_t size);
  * not cut (a cut name would be another folder): TF_ERR_USAGE. */
 tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const char *base, const char *label,
                              int several, tf_error *err);
+
+/* Checks, before any long work, that output folder dir exists or can be made and that a file can
+ * be created in it: makes the missing folders and a probe file, then removes both, so nothing is
+ * left. TF_ERR_IO naming the cause (a file in the way, permissions, a read-only file system...),
+ * TF_ERR_USAGE for an empty or too long name, or when dir (or a folder above it) is the survey
+ * file input (may be NULL or "-"). */
+tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error *err);
+/* The same, keeping the folders it made when keep_dirs is set: processes of one MPI run probe the
+ * same folder at once, and one must not remove a folder another is probing. */
+tf_status tf_args_probe_output_dir_keep(const char *dir, const char *input, int keep_dirs, tf_error *err);
 
 /* The exit code (cmd.h) for a library status of the model-fitting commands: usage and refused
  * combinations are command-line errors, invalid input an unusable input, interruption 130. */

@@ -17,6 +17,7 @@
 #include "batch/batch.h"
 #include "batch/batch_mpi.h"
 #include "cmd/args.h"
+#include "cmd/input.h"
 #include "cmd/cmd.h"
 #include "cmd/messages.h"
 #include "cmd/setup.h"
@@ -66,7 +67,7 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --threshold LIST   quasi-extinction thresholds: animals, or percentages of the current\n"
             "                     abundance, e.g. 50,100 or 20%% (default 50%%,20%%,10%%)\n"
             "  --years H          years to project (default %zu)\n"
-            "  --population NAME  analyse only this population\n"
+            TF_INPUT_HELP
             "  --models M,...     growth models to compare (default exponential,ricker,gompertz; 'all'\n"
             "                     for every one of %s)\n"
             "  --obs O,...        counting-error models (default poisson,negbin for whole counts,\n"
@@ -290,12 +291,14 @@ static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
            OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT,
-           OPT_PROPOSAL };
+           OPT_SKIP, OPT_ESTIMATES, OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
         {"years", required_argument, NULL, OPT_YEARS},
         {"population", required_argument, NULL, OPT_POP},
+        {"skip-unusable", no_argument, NULL, OPT_SKIP},
+        {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"models", required_argument, NULL, OPT_MODELS},
         {"obs", required_argument, NULL, OPT_OBS},
         {"seed", required_argument, NULL, OPT_SEED},
@@ -336,6 +339,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     tf_args_run run;
     tf_args_run_init(&run);
     int quiet = 0;
+    tf_input in = {0};
 
     opterr = 0;
     optind = 0;
@@ -353,7 +357,9 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_YEARS:
             tf_args_parse_size("--years", optarg, 1, TF_PROJECT_MAX_HORIZON, &opt.project.horizon, &err);
             break;
-        case OPT_POP: opt.population = optarg; break;
+        case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
+        case OPT_SKIP: in.skip_unusable = 1; break;
+        case OPT_ESTIMATES: in.estimates = 1; break;
         case OPT_MODELS:
             tf_args_model_names("--models", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
                                 &opt.n_growth, &all, 1, &err);
@@ -396,7 +402,10 @@ static int analyze(int argc, char **argv, int rank, int size)
     if (path && !strcmp(path, "-"))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
                      "analyze needs a survey file: its name names the results and its hash is recorded");
-    if (opt.population && batch && tf_error_status(&err) == TF_OK)
+    tf_input_check_obs(&in, "--obs", opt.obs, opt.n_obs, &err);
+    opt.estimates = in.estimates;
+    opt.population = tf_input_single(&in);
+    if (in.n_labels && batch && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "drop --population to run the batch, or --batch for one population",
                      "--population analyses one population, which is not a batch");
     if (tf_error_status(&err) != TF_OK) {
@@ -434,8 +443,21 @@ static int analyze(int argc, char **argv, int rank, int size)
     /* A survey of many populations is read so that a population with bad rows is set aside and
      * reported while the others are analysed; a small one without --batch keeps the strict
      * reading, which refuses the whole file. */
-    if (!opt.population) {
-        if ((st = tf_survey_read_batch(path, BATCH_MAX_ROWS, &sv, &err)) != TF_OK) {
+    /* Nothing long starts before the output folder is known to be usable. */
+    if ((st = tf_args_probe_output_dir_keep(out_dir, path, size > 1, &err)) != TF_OK) {
+        status = tf_args_exit_code(st);
+        goto out;
+    }
+    if (!in.n_labels) {
+        tf_survey_options so = {.batch = 1, .max_rows = BATCH_MAX_ROWS, .estimates = in.estimates};
+        if ((st = tf_survey_read_with(path, &so, &sv, &err)) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+        /* The model files of every candidate are read now, not when each one's turn comes. */
+        if (tf_survey_n_series(sv) &&
+            (st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0),
+                                            &err)) != TF_OK) {
             status = TF_EXIT_INPUT;
             goto out;
         }
@@ -453,10 +475,34 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_survey_free(sv);
         sv = NULL;
     }
-    if ((st = tf_survey_read(path, &sv, &err)) != TF_OK) {
+    if ((st = tf_input_read(&in, path, quiet ? NULL : errs, PROG, &sv, &err)) != TF_OK) {
+        status = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
+        goto out;
+    }
+    if ((st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
+        TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;
     }
+    /* Populations left out on request are named on the first page (with one chosen, the others
+     * are simply not part of the run). */
+    if (in.skip_unusable && in.n_labels != 1)
+        prov.left_out_from = sv;
+    /* A population that no candidate suits is refused now, not after the others were fitted. */
+    for (size_t i = 0; i < tf_survey_n_series(sv); i++) {
+        const tf_series *s = tf_survey_series(sv, i);
+        const char *names[TF_ANALYSIS_MAX_NAMES];
+        if (opt.population && strcmp(tf_series_label(s), opt.population))
+            continue;
+        size_t n = tf_analysis_candidate_obs(&opt, s, names, TF_ANALYSIS_MAX_NAMES);
+        if ((st = tf_setup_check_any_suits(names, n, s, path, &err)) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+    }
+    /* Counts to check are named now, before the long part; the first page lists them too. */
+    if (!quiet)
+        tf_input_warn_outliers(sv, opt.population, path, PROG, errs);
     /* Before the long part: refuse a workbook that would land on the survey, and a file where
      * the CSV folder goes. */
     struct stat info;

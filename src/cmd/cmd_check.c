@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "cmd/cmd.h"
+#include "cmd/input.h"
 #include "cmd/messages.h"
 #include "survey/survey.h"
 
@@ -16,23 +17,29 @@
 static void help(FILE *out)
 {
     fprintf(out,
-            "usage: tallyfit check SURVEY.csv [--quiet]\n"
+            "usage: tallyfit check SURVEY.csv [--population LIST] [--skip-unusable] [--estimates]\n"
+            "                      [--quiet]\n"
             "\n"
             "Reads a survey file and either lists every problem in it (file, line and field\n"
             "number, with a suggestion) or prints an overview of each population.\n"
             "\n"
-            "The survey file is CSV (comma or semicolon) with a header row naming the columns:\n"
+            "The survey file is CSV (comma, semicolon or tab separated) with a header row naming\n"
+            "the columns:\n"
             "  year        required; a whole number from %d to %d\n"
-            "  count       required; a number >= 0; empty or NA = not surveyed that year\n"
+            "  count       required; a whole number >= 0 (any number >= 0 with --estimates);\n"
+            "              empty or NA = not surveyed that year\n"
             "  population  optional; a label, for files that hold several populations\n"
             "  effort      optional; survey effort (km walked, hours...), a positive number\n"
             "  note        optional; free text, ignored\n"
             "Other columns are ignored; lines starting with # are comments. Each population\n"
-            "needs at least %d surveyed years with at least one count above zero.\n"
+            "needs at least %d surveyed years with at least one count above zero. Numbers are\n"
+            "plain: no thousands separators (4835, not 4,835, 4.835 or 4 835), a point as the\n"
+            "decimal mark.\n"
             "\n"
             "options:\n"
-            "  -q, --quiet   print nothing when the file is usable (the exit status tells)\n"
-            "  -h, --help    show this help\n"
+            TF_INPUT_HELP
+            "  -q, --quiet        print nothing when the file is usable (the exit status tells)\n"
+            "  -h, --help         show this help\n"
             "\n"
             "For each population the overview gives:\n"
             "  years        first and last year listed, and how many years lie between them\n"
@@ -40,13 +47,17 @@ static void help(FILE *out)
             "               1999, 2004-2005)\n"
             "  counts       smallest, median and largest count, and how many are zero\n"
             "  effort       the same every year, or the range it varies over\n"
+            "  warnings     on standard error, counts far from their neighbours: more than %.0f times\n"
+            "               above or below the median of up to %d surveyed years on each side (on\n"
+            "               the count/effort + 0.5 scale), to check for typing errors; they are kept\n"
             "  crude trend  the least-squares slope of log(count/effort + 0.5) against the year,\n"
             "               shown as a percentage change per year. A crude screening figure,\n"
             "               not a model estimate: it ignores observation error, density\n"
             "               dependence and the missing years.\n"
             "\n"
             "exit status: %d usable, %d bad command line, %d the survey file is unusable\n",
-            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_EXIT_OK, TF_EXIT_USAGE,
+            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_SERIES_OUTLIER_FACTOR,
+            TF_SERIES_OUTLIER_WINDOW, TF_EXIT_OK, TF_EXIT_USAGE,
             TF_EXIT_INPUT);
 }
 
@@ -139,7 +150,11 @@ static bool print_series(const tf_series *s, FILE *out)
 
 int tf_cmd_check(int argc, char **argv)
 {
+    enum { OPT_POP = 256, OPT_SKIP, OPT_ESTIMATES };
     static const struct option options[] = {
+        {"population", required_argument, NULL, OPT_POP},
+        {"skip-unusable", no_argument, NULL, OPT_SKIP},
+        {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
@@ -148,17 +163,27 @@ int tf_cmd_check(int argc, char **argv)
     tf_error err;
     tf_error_init(&err);
     bool quiet = false;
+    tf_input in = {0};
     optind = 0; /* GNU getopt: 0 restarts the scan, so the command can run more than once */
     opterr = 0;
     int c;
-    while ((c = getopt_long(argc, argv, "qh", options, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":qh", options, NULL)) != -1) {
         switch (c) {
         case 'q':
             quiet = true;
             break;
+        case OPT_POP:
+            if (tf_input_set_population(&in, optarg, &err) != TF_OK)
+                return tf_messages_usage(PROG, &err);
+            break;
+        case OPT_SKIP: in.skip_unusable = 1; break;
+        case OPT_ESTIMATES: in.estimates = 1; break;
         case 'h':
             help(stdout);
             return TF_EXIT_OK;
+        case ':':
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "option '%s' needs a value", argv[optind - 1]);
+            return tf_messages_usage(PROG, &err);
         default: {
             const char *arg = argv[optind - 1];
             if (!strncmp(arg, "--", 2) || !optopt)
@@ -176,16 +201,27 @@ int tf_cmd_check(int argc, char **argv)
     }
     const char *path = argv[optind];
     tf_survey *sv = NULL;
-    if (tf_survey_read(path, &sv, &err) != TF_OK) {
+    tf_status st = tf_input_read(&in, path, stderr, PROG, &sv, &err);
+    if (st != TF_OK) {
         tf_error_print(&err, PROG, stderr);
-        return TF_EXIT_INPUT;
+        return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
     }
     int rc = TF_EXIT_OK;
+    tf_input_warn_outliers(sv, tf_input_single(&in), path, PROG, stderr);
+    /* One population chosen from several: the others are not shown. */
+    const char *one = tf_input_single(&in);
     if (!quiet) {
-        size_t n = tf_survey_n_series(sv);
-        printf("%s: %zu population%s, usable for model fitting\n", path, n, n == 1 ? "" : "s");
-        for (size_t i = 0; i < n && rc == TF_EXIT_OK; i++)
-            if (!print_series(tf_survey_series(sv, i), stdout)) {
+        size_t n = one ? 1 : tf_survey_n_series(sv);
+        size_t n_file = tf_survey_n_in_file(sv);
+        if (n < n_file)
+            printf("%s: %zu of %zu populations, usable for model fitting", path, n, n_file);
+        else
+            printf("%s: %zu population%s, usable for model fitting", path, n, n == 1 ? "" : "s");
+        printf("%s\n", in.estimates ? " (counts read as estimates: continuous counting-error models only)" : "");
+        for (size_t i = 0; i < tf_survey_n_series(sv) && rc == TF_EXIT_OK; i++)
+            if (one && strcmp(tf_series_label(tf_survey_series(sv, i)), one))
+                continue;
+            else if (!print_series(tf_survey_series(sv, i), stdout)) {
                 fprintf(stderr, PROG ": out of memory\n");
                 rc = TF_EXIT_FAIL;
             }

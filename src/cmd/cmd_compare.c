@@ -9,6 +9,7 @@
 #include <unistd.h>
 
 #include "cmd/args.h"
+#include "cmd/input.h"
 #include "cmd/cmd.h"
 #include "cmd/messages.h"
 #include "cmd/setup.h"
@@ -51,7 +52,7 @@ static void help(FILE *out)
             "options:\n"
             "  --models M,...     growth models to compare (default: all of %s)\n"
             "  --obs O,...        counting-error models (default: those of %s that suit the counts)\n"
-            "  --population NAME  compare only this population (default: each one in the file)\n"
+            TF_INPUT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n"
             "  --model-weights NAME=W,...\n"
@@ -175,11 +176,14 @@ static void print_warnings(const tf_comparison *c)
 int tf_cmd_compare(int argc, char **argv)
 {
     enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_WARMUP,
-           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET, OPT_PROPOSAL };
+           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET, OPT_SKIP, OPT_ESTIMATES,
+           OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"models", required_argument, NULL, OPT_MODELS},
         {"obs", required_argument, NULL, OPT_OBS},
         {"population", required_argument, NULL, OPT_POP},
+        {"skip-unusable", no_argument, NULL, OPT_SKIP},
+        {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"output", required_argument, NULL, 'o'},
         {"model-weights", required_argument, NULL, OPT_WEIGHTS},
         {"seed", required_argument, NULL, OPT_SEED},
@@ -209,6 +213,7 @@ int tf_cmd_compare(int argc, char **argv)
     int quiet = 0;
     tf_args_run run;
     tf_args_run_init(&run);
+    tf_input in = {0};
 
     opterr = 0;
     optind = 0;
@@ -222,7 +227,9 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_OBS:
             tf_args_split_names("--obs", optarg, obs_buf, sizeof obs_buf, obs, MAX_NAMES, &opt.n_obs, &err);
             break;
-        case OPT_POP: population = optarg; break;
+        case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
+        case OPT_SKIP: in.skip_unusable = 1; break;
+        case OPT_ESTIMATES: in.estimates = 1; break;
         case 'o': out_dir = optarg; break;
         case OPT_WEIGHTS: tf_args_parse_pairs("--model-weights", optarg, &weights, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
@@ -264,8 +271,13 @@ int tf_cmd_compare(int argc, char **argv)
             tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "unknown observation model '%s' (known: %s)", obs[i],
                          known);
         }
+    tf_input_check_obs(&in, "--obs", obs, opt.n_obs, &err);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
+    population = tf_input_single(&in);
+    /* Estimates are compared on the one continuous scale, whatever their values. */
+    if (in.estimates && !opt.n_obs)
+        opt.n_obs = tf_input_continuous_obs(obs, MAX_NAMES);
     opt.growth = growth;
     opt.obs = obs;
     const char *wnames[TF_ARGS_MAX_PAIRS];
@@ -293,8 +305,9 @@ int tf_cmd_compare(int argc, char **argv)
     tf_signals saved;
     const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
-    if (tf_survey_read(path, &sv, &err) != TF_OK) {
-        status = TF_EXIT_INPUT;
+    tf_status rst = tf_input_read(&in, path, stderr, PROG, &sv, &err);
+    if (rst != TF_OK) {
+        status = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
     size_t n_series = tf_survey_n_series(sv);
@@ -311,6 +324,34 @@ int tf_cmd_compare(int argc, char **argv)
     if (!comps || !written) {
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
         goto out;
+    }
+    /* The model files of every candidate are read now, not when each candidate's turn comes. */
+    if (tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs,
+                                  only ? only : tf_survey_series(sv, 0), &err) != TF_OK) {
+        status = TF_EXIT_INPUT;
+        goto out;
+    }
+    for (size_t i = 0; i < n_jobs; i++)
+        if (tf_setup_check_any_suits(opt.obs, opt.n_obs, only ? only : tf_survey_series(sv, i), path, &err) != TF_OK) {
+            status = TF_EXIT_INPUT;
+            goto out;
+        }
+    char base[256];
+    tf_args_survey_name(path, base, sizeof base);
+    int several = tf_survey_n_in_file(sv) > 1 && !only;
+    /* Every output folder is checked before the first fit. */
+    for (size_t i = 0; i < n_jobs; i++) {
+        const tf_series *s = only ? only : tf_survey_series(sv, i);
+        char dir[4096];
+        if (tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), several, &err) != TF_OK) {
+            status = TF_EXIT_USAGE;
+            goto out;
+        }
+        tf_status pst = tf_args_probe_output_dir(dir, path, &err);
+        if (pst != TF_OK) {
+            status = tf_args_exit_code(pst);
+            goto out;
+        }
     }
     int show = !quiet && isatty(STDERR_FILENO);
     for (size_t i = 0; i < n_jobs; i++) {
@@ -330,13 +371,11 @@ int tf_cmd_compare(int argc, char **argv)
      * this keeps one population from being written and the next not). */
     sigset_t old_mask;
     tf_signals_hold(&old_mask);
-    char base[256];
-    tf_args_survey_name(path, base, sizeof base);
     tf_status wst = TF_OK;
     for (size_t i = 0; i < n_jobs && wst == TF_OK; i++) {
         const tf_series *s = tf_comparison_series(comps[i]);
         char dir[4096];
-        if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), n_series > 1 && !only,
+        if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), several,
                                       &err)) != TF_OK)
             break;
         tf_table *t = tf_compare_table(comps[i], &err);

@@ -10,6 +10,7 @@
 #include <unistd.h>
 
 #include "cmd/args.h"
+#include "cmd/input.h"
 #include "cmd/cmd.h"
 #include "cmd/fileset.h"
 #include "cmd/messages.h"
@@ -50,8 +51,9 @@ static void help(FILE *out)
             "and prints a short summary.\n\n"
             "options:\n"
             "  --model M          growth model: %s\n"
-            "  --obs O            counting error: %s (default poisson)\n"
-            "  --population NAME  fit only this population (default: each one in the file)\n"
+            "  --obs O            counting error: %s (default poisson;\n"
+            "                     lognormal with --estimates)\n"
+            TF_INPUT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n"
             "  --chains C         chains (default %zu)\n"
@@ -451,12 +453,14 @@ static int exit_for(tf_status st)
 int tf_cmd_fit(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET,
-           OPT_PROPOSAL };
+           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET, OPT_SKIP,
+           OPT_ESTIMATES, OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         {"population", required_argument, NULL, OPT_POP},
+        {"skip-unusable", no_argument, NULL, OPT_SKIP},
+        {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"output", required_argument, NULL, 'o'},
         {"chains", required_argument, NULL, OPT_CHAINS},
         TF_ARGS_RUN_LONGOPTS,
@@ -475,7 +479,7 @@ int tf_cmd_fit(int argc, char **argv)
     };
     tf_error err;
     tf_error_init(&err);
-    const char *growth = NULL, *obs = "poisson", *population = NULL, *out_dir = NULL, *priors_path = NULL;
+    const char *growth = NULL, *obs = NULL, *population = NULL, *out_dir = NULL, *priors_path = NULL;
     tf_arg_pairs set;
     tf_args_pairs_init(&set);
     tf_pmmh_options opt = tf_pmmh_default_options();
@@ -483,6 +487,7 @@ int tf_cmd_fit(int argc, char **argv)
     int quiet = 0;
     tf_args_run run;
     tf_args_run_init(&run);
+    tf_input in = {0};
 
     opterr = 0;
     optind = 0;
@@ -491,7 +496,9 @@ int tf_cmd_fit(int argc, char **argv)
         switch (c) {
         case OPT_MODEL: growth = optarg; break;
         case OPT_OBS: obs = optarg; break;
-        case OPT_POP: population = optarg; break;
+        case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
+        case OPT_SKIP: in.skip_unusable = 1; break;
+        case OPT_ESTIMATES: in.estimates = 1; break;
         case 'o': out_dir = optarg; break;
         case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.n_chains, &err); break;
         case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.n_warmup, &err); break;
@@ -529,8 +536,11 @@ int tf_cmd_fit(int argc, char **argv)
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
-    if (tf_args_check_model(growth, obs, &err) != TF_OK)
+    if (!obs)
+        obs = tf_input_default_obs(&in);
+    if (tf_args_check_model(growth, obs, &err) != TF_OK || tf_input_check_obs(&in, "--obs", &obs, 1, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
+    population = tf_input_single(&in);
 
     int status = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
@@ -539,8 +549,9 @@ int tf_cmd_fit(int argc, char **argv)
     tf_signals saved;
     const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
-    if (tf_args_read_survey(path, &sv, &err) != TF_OK) {
-        status = TF_EXIT_INPUT;
+    tf_status rst = tf_input_read(&in, path, stderr, PROG, &sv, &err);
+    if (rst != TF_OK) {
+        status = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
     size_t n_series = tf_survey_n_series(sv);
@@ -584,8 +595,14 @@ int tf_cmd_fit(int argc, char **argv)
             status = TF_EXIT_INPUT;
             goto out;
         }
-        if (tf_args_output_dir(j->dir, sizeof j->dir, out_dir, base, label, n_series > 1, &err) != TF_OK) {
+        if (tf_args_output_dir(j->dir, sizeof j->dir, out_dir, base, label, tf_survey_n_in_file(sv) > 1, &err) !=
+            TF_OK) {
             status = TF_EXIT_USAGE;
+            goto out;
+        }
+        tf_status pst = tf_args_probe_output_dir(j->dir, path, &err);
+        if (pst != TF_OK) {
+            status = tf_args_exit_code(pst);
             goto out;
         }
     }

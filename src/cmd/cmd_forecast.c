@@ -13,6 +13,7 @@
 
 #include "analysis/analysis.h"
 #include "cmd/args.h"
+#include "cmd/input.h"
 #include "cmd/cmd.h"
 #include "cmd/fileset.h"
 #include "cmd/messages.h"
@@ -52,6 +53,7 @@ typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
 typedef struct {
     const char *survey_path;
     const char *model, *obs, *population, *out_dir, *priors_path;
+    tf_input in;            /* --population list, --skip-unusable, --estimates; population = its single label */
     const char *thresholds;
     int average, quiet, have_fixed;
     tf_arg_pairs fixed;
@@ -84,7 +86,8 @@ static void help(FILE *out)
             "Simulates the population forward and reports the abundance bands, the risk of falling to or\n"
             "below a threshold (quasi-extinction) and the chance of decline, each with its Monte Carlo error.\n"
             "Give one source of futures:\n"
-            "  --model M [--obs O]     fit growth model M with counting error O (default poisson) by\n"
+            "  --model M [--obs O]     fit growth model M with counting error O (default poisson;\n"
+            "                          lognormal with --estimates) by\n"
             "                          particle MCMC, as 'tallyfit fit' does, and project from the\n"
             "                          posterior: each draw starts from its own latent abundance in the\n"
             "                          last survey year and runs on with its own parameters\n"
@@ -103,8 +106,11 @@ static void help(FILE *out)
             "Counting error: %s.\n"
             "\n"
             "Projection:\n"
-            "  --population LABEL      only this population (default: every one in the file; --fixed and\n"
-            "                          --start need one)\n"
+            "  --population LIST       only these populations, labels separated by commas (default:\n"
+            "                          every one in the file; --fixed and --start need one)\n"
+            "  --skip-unusable         leave out, with a warning, every population that cannot be fitted\n"
+            "  --estimates             the counts are estimates that need not be whole numbers: only\n"
+            "                          counting-error models of continuous amounts (lognormal) are fitted\n"
             "  --start N               current abundance. --fixed: without it, the last surveyed count /\n"
             "                          effort. With a posterior, a what-if: every draw starts from N\n"
             "                          instead of its latent abundance, keeping the uncertainty about the\n"
@@ -309,7 +315,7 @@ static tf_status job_dir(const options *o, const tf_survey *sv, job *j, tf_error
     char base[256] = "forecast";
     if (sv)
         tf_args_survey_name(o->survey_path, base, sizeof base);
-    if (tf_args_output_dir(j->dir, sizeof j->dir, o->out_dir, base, j->label, sv && tf_survey_n_series(sv) > 1,
+    if (tf_args_output_dir(j->dir, sizeof j->dir, o->out_dir, base, j->label, sv && tf_survey_n_in_file(sv) > 1,
                            NULL) != TF_OK)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o DIR",
                             "the output folder name is longer than %zu bytes", sizeof j->dir - 1);
@@ -427,6 +433,10 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
     TRY(tf_table_add_item_text(t, "Survey", o->survey_path ? o->survey_path : "none", NULL, err));
     if (j->label[0])
         TRY(tf_table_add_item_text(t, "Population", j->label, NULL, err));
+    if (o->in.estimates && o->from != FROM_FIXED)
+        TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
+                                   "so only counting-error models of continuous amounts (log-normal) were fitted",
+                                   err));
     if (o->from == FROM_FIXED) {
         const tf_growth_type *g = tf_model_growth(j->model);
         TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --fixed", err));
@@ -445,8 +455,9 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
         TRY(tf_table_add_item_text(t, "Projected from", "the posterior of one fitted model",
                                    "particle marginal Metropolis-Hastings", err));
         TRY(tf_table_add_item_text(t, "Model", tf_model_name(j->model), NULL, err));
-        snprintf(note, sizeof note, "%zu chains x %zu kept draws, after %zu warm-up; %zu particles", tf_fit_n_chains(f),
-                 tf_fit_n_iter(f), fs->n_warmup, fs->n_particles);
+        snprintf(note, sizeof note, "%zu chains x %zu kept draws, after %zu warm-up; %zu particles, %s proposal",
+                 tf_fit_n_chains(f), tf_fit_n_iter(f), fs->n_warmup, fs->n_particles,
+                 tf_filter_proposal_name(fs->proposal));
         TRY(tf_table_add_item_number(t, "Posterior draws", (double)tf_fit_n_draws(f), TF_COL_INTEGER, note, err));
         TRY(tf_table_add_item_number(t, "R-hat, largest", rhat, TF_COL_NUMBER, "want <= 1.01", err));
         if (!(rhat <= TF_FIT_RHAT_MAX))
@@ -861,9 +872,10 @@ static int run_fixed(const options *o, const tf_project_options *po)
     if (fixed_theta(j.model, &o->fixed, j.theta, o->quiet, &err) != TF_OK) {
         rc = tf_messages_usage(PROG, &err);
     } else if (o->survey_path) {
-        if (tf_args_read_survey(o->survey_path, &sv, &err)) {
+        tf_status rst = tf_input_read(&o->in, o->survey_path, stderr, PROG, &sv, &err);
+        if (rst) {
             tf_error_print(&err, PROG, stderr);
-            rc = TF_EXIT_INPUT;
+            rc = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         } else if (!(j.s = tf_args_pick_series(sv, o->population, o->survey_path, &err))) {
             rc = tf_messages_usage(PROG, &err);
         } else {
@@ -871,8 +883,13 @@ static int run_fixed(const options *o, const tf_project_options *po)
             rc = fixed_start(o, j.s, &j);
         }
     }
-    if (!rc && job_dir(o, sv, &j, &err))
-        rc = tf_messages_usage(PROG, &err);
+    tf_status dst = rc ? TF_OK : job_dir(o, sv, &j, &err);
+    if (dst == TF_OK && !rc)
+        dst = tf_args_probe_output_dir(j.dir, o->survey_path, &err);
+    if (dst != TF_OK) {
+        tf_error_print(&err, PROG, stderr);
+        rc = tf_args_exit_code(dst);
+    }
     if (!rc) {
         double x0 = log(j.start);
         tf_project_input in = tf_project_input_from_model(j.model, j.theta, 1, &x0, 1.0);
@@ -902,8 +919,9 @@ static int run_fixed(const options *o, const tf_project_options *po)
 static int read_populations(const options *o, tf_survey **sv, const tf_series **only, tf_error *err)
 {
     *only = NULL;
-    if (tf_args_read_survey(o->survey_path, sv, err) != TF_OK)
-        return TF_EXIT_INPUT;
+    tf_status st = tf_input_read(&o->in, o->survey_path, stderr, PROG, sv, err);
+    if (st != TF_OK)
+        return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
     if (!o->population && isnan(o->start))
         return TF_EXIT_OK;
     if (!(*only = tf_args_pick_series(*sv, o->population, o->survey_path, err))) {
@@ -942,7 +960,7 @@ static int run_model(const options *o, const tf_project_options *po)
 {
     tf_error err;
     tf_error_init(&err);
-    const char *obs = o->obs ? o->obs : "poisson";
+    const char *obs = o->obs ? o->obs : tf_input_default_obs(&o->in);
     if (tf_args_check_model(o->model, obs, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
@@ -988,6 +1006,11 @@ static int run_model(const options *o, const tf_project_options *po)
         }
         if (job_dir(o, sv, j, &err) != TF_OK) {
             rc = TF_EXIT_USAGE;
+            goto out;
+        }
+        tf_status pst = tf_args_probe_output_dir(j->dir, o->survey_path, &err);
+        if (pst != TF_OK) {
+            rc = tf_args_exit_code(pst);
             goto out;
         }
     }
@@ -1044,6 +1067,8 @@ static int run_average(const options *o, const tf_project_options *po)
     if (o->obs)
         tf_args_model_names("--obs", o->obs, obs_buf, sizeof obs_buf, ao.obs, TF_ANALYSIS_MAX_NAMES, &ao.n_obs,
                             &ao.obs_auto, 0, &err);
+    tf_input_check_obs(&o->in, "--obs", ao.obs, ao.n_obs, &err);
+    ao.estimates = o->in.estimates;
     ao.project = *po;
     ao.seed = o->seed;
     ao.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
@@ -1076,6 +1101,29 @@ static int run_average(const options *o, const tf_project_options *po)
     /* A survey of one unnamed population has nothing to find by name. */
     if (ao.population && !ao.population[0])
         ao.population = NULL;
+    /* Every output folder is checked before the fits. */
+    for (size_t i = 0; i < (only ? 1 : tf_survey_n_series(sv)); i++) {
+        job probe = {.label = tf_series_label(only ? only : tf_survey_series(sv, i))};
+        if ((st = job_dir(o, sv, &probe, &err)) != TF_OK ||
+            (st = tf_args_probe_output_dir(probe.dir, o->survey_path, &err)) != TF_OK) {
+            rc = tf_args_exit_code(st);
+            goto out;
+        }
+    }
+    if ((st = tf_setup_check_candidates(ao.growth, ao.n_growth, ao.obs, ao.n_obs, only ? only : tf_survey_series(sv, 0),
+                                        &err)) != TF_OK) {
+        rc = TF_EXIT_INPUT;
+        goto out;
+    }
+    for (size_t i = 0; i < (only ? 1 : tf_survey_n_series(sv)); i++) {
+        const tf_series *s = only ? only : tf_survey_series(sv, i);
+        const char *names[TF_ANALYSIS_MAX_NAMES];
+        size_t n = tf_analysis_candidate_obs(&ao, s, names, TF_ANALYSIS_MAX_NAMES);
+        if ((st = tf_setup_check_any_suits(names, n, s, o->survey_path, &err)) != TF_OK) {
+            rc = TF_EXIT_INPUT;
+            goto out;
+        }
+    }
     char name[256];
     tf_args_survey_name(o->survey_path, name, sizeof name);
     int show = !o->quiet && isatty(STDERR_FILENO);
@@ -1112,7 +1160,7 @@ out:
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
        OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_WARMUP, OPT_PARTICLES, OPT_PROPOSAL,
-       OPT_PRIORS, OPT_DRAWS, OPT_THREADS };
+       OPT_PRIORS, OPT_DRAWS, OPT_THREADS, OPT_SKIP, OPT_ESTIMATES };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -1130,6 +1178,8 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"start", required_argument, NULL, OPT_START},
         {"seed", required_argument, NULL, OPT_SEED},
         {"population", required_argument, NULL, OPT_POPULATION},
+        {"skip-unusable", no_argument, NULL, OPT_SKIP},
+        {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"chains", required_argument, NULL, OPT_CHAINS},
         TF_ARGS_RUN_LONGOPTS,
         {"warmup", required_argument, NULL, OPT_WARMUP},
@@ -1165,7 +1215,9 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
             o->have_fixed = 1;
             tf_args_parse_pairs("--fixed", optarg, &o->fixed, err);
             break;
-        case OPT_POPULATION: o->population = optarg; break;
+        case OPT_POPULATION: tf_input_set_population(&o->in, optarg, err); break;
+        case OPT_SKIP: o->in.skip_unusable = 1; break;
+        case OPT_ESTIMATES: o->in.estimates = 1; break;
         case 'o': o->out_dir = optarg; break;
         case 'q': o->quiet = 1; break;
         case 'h': help(stdout); return 1;
@@ -1219,6 +1271,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
             o->sampler_opt = sampler;
     }
     o->survey_path = tf_args_survey_path(argc, argv, optind, err);
+    o->population = tf_input_single(&o->in);
     return 0;
 }
 
@@ -1245,10 +1298,13 @@ static void check_source(options *o, tf_error *err)
         if (!o->survey_path && isnan(o->start))
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                          "without a survey file, --start N (the current abundance) is required");
-        if (!o->survey_path && o->population)
+        if (!o->survey_path && o->in.n_labels)
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--population needs a survey file");
         return;
-    case FROM_MODEL:
+    case FROM_MODEL: {
+        const char *obs = o->obs ? o->obs : tf_input_default_obs(&o->in);
+        tf_input_check_obs(&o->in, "--obs", &obs, 1, err);
+    }
         if (strchr(o->model, ',') || (o->obs && strchr(o->obs, ',')))
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "add --average to compare and average several models",
                          "--model and --obs name one model each without --average");

@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "cmd/args.h"
+#include "cmd/input.h"
 #include "cmd/cmd.h"
 #include "cmd/messages.h"
 #include "cmd/setup.h"
@@ -31,8 +32,8 @@ static void help(FILE *out)
     tf_model_list_obs(obs, sizeof obs);
     fprintf(out,
             "usage: tallyfit likelihood SURVEY.csv --model M [--obs O] --set NAME=VALUE,...\n"
-            "                           [--population NAME] [--particles N] [--repeat R] [--seed S]\n"
-            "                           [--proposal guided|bootstrap]\n\n"
+            "                           [--population NAME] [--estimates] [--particles N] [--repeat R]\n"
+            "                           [--seed S] [--proposal guided|bootstrap]\n\n"
             "Estimates the log-likelihood of one population's counts under a state-space model at the\n"
             "given parameters with a particle filter, repeated R times with independent random numbers.\n"
             "Prints a CSV header and one row: loglik,se,particles,repeats,loglik_sd,proposal, where loglik\n"
@@ -42,12 +43,13 @@ static void help(FILE *out)
             "SURVEY.csv may be '-' for standard input.\n\n"
             "options:\n"
             "  --model M          growth model: %s\n"
-            "  --obs O            counting error: %s (default poisson)\n"
+            "  --obs O            counting error: %s (default poisson;\n"
+            "                     lognormal with --estimates)\n"
             "  --set NAME=VALUE,...\n"
             "                     every parameter of the model; x1_mean and x1_sd may also be given\n"
             "                     (the first year's log-abundance prior; by default the log of the\n"
             "                     mean of the first %d counts / effort, and 1)\n"
-            "  --population NAME  the population to use when the survey has several\n"
+            TF_INPUT_HELP
             "  --particles N      particles (default %d)\n"
             "  --repeat R         independent estimates to average (default %d)\n"
             "  --seed S           random seed (default 1)\n"
@@ -58,12 +60,15 @@ static void help(FILE *out)
 
 int tf_cmd_likelihood(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED, OPT_PROPOSAL };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED, OPT_SKIP, OPT_ESTIMATES,
+           OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         {"set", required_argument, NULL, OPT_SET},
         {"population", required_argument, NULL, OPT_POP},
+        {"skip-unusable", no_argument, NULL, OPT_SKIP},
+        {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"repeat", required_argument, NULL, OPT_REPEAT},
         {"seed", required_argument, NULL, OPT_SEED},
@@ -73,12 +78,13 @@ int tf_cmd_likelihood(int argc, char **argv)
     };
     tf_error err;
     tf_error_init(&err);
-    const char *growth = NULL, *obs = "poisson", *population = NULL;
+    const char *growth = NULL, *obs = NULL, *population = NULL;
     tf_arg_pairs set;
     tf_args_pairs_init(&set);
     size_t n_particles = DEFAULT_PARTICLES, n_repeats = DEFAULT_REPEATS;
     uint64_t seed = 1;
     tf_proposal proposal = TF_PROPOSAL_GUIDED;
+    tf_input in = {0};
 
     opterr = 0;
     optind = 0;
@@ -88,7 +94,9 @@ int tf_cmd_likelihood(int argc, char **argv)
         case OPT_MODEL: growth = optarg; break;
         case OPT_OBS: obs = optarg; break;
         case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
-        case OPT_POP: population = optarg; break;
+        case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
+        case OPT_SKIP: in.skip_unusable = 1; break;
+        case OPT_ESTIMATES: in.estimates = 1; break;
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
         case OPT_REPEAT: tf_args_parse_size("--repeat", optarg, 1, MAX_REPEATS, &n_repeats, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
@@ -102,8 +110,12 @@ int tf_cmd_likelihood(int argc, char **argv)
         tf_args_no_survey(CMD, &err);
     if (!growth && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
+    if (!obs)
+        obs = tf_input_default_obs(&in);
+    tf_input_check_obs(&in, "--obs", &obs, 1, &err);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage("tallyfit " CMD, &err);
+    population = tf_input_single(&in);
 
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;
@@ -117,8 +129,9 @@ int tf_cmd_likelihood(int argc, char **argv)
         status = TF_EXIT_USAGE;
         goto out;
     }
-    if (tf_args_read_survey(path, &sv, &err) != TF_OK) {
-        status = TF_EXIT_INPUT;
+    tf_status rst = tf_input_read(&in, path, stderr, "tallyfit " CMD, &sv, &err);
+    if (rst != TF_OK) {
+        status = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
     const char *shown = strcmp(path, "-") ? path : "stdin"; /* the file's name in messages */

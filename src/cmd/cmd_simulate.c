@@ -43,7 +43,8 @@ static void help(FILE *out)
             "The same seed gives the same file, and population i the same series whatever N.\n\n"
             "options:\n"
             "  --model M        growth model: %s\n"
-            "  --obs O          counting error: %s (default poisson)\n"
+            "  --obs O          counting error: %s (default poisson); lognormal values are\n"
+            "                   not whole, so other commands read them with --estimates\n"
             "  --set NAME=VALUE,...\n"
             "                   every parameter of the model, e.g. r=0.3,K=800,sigma=0.1,phi=20\n"
             "  --years N        number of years to simulate (%d to %d)\n"
@@ -154,6 +155,18 @@ static tf_status scheme_population(FILE *out, uint64_t seed, size_t i, const cha
     }
     return tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, "try another --seed",
                         "population %zu of the scheme drew no usable series", i + 1);
+}
+
+/* Checks before drawing anything that output (NULL or "-": standard output) can be written: opens
+ * the temporary it would be written through and abandons it, which leaves nothing behind. */
+static tf_status probe_output(const char *output, tf_error *err)
+{
+    if (!output || !strcmp(output, "-"))
+        return TF_OK;
+    tf_atomic *of = NULL;
+    tf_status st = tf_atomic_open(output, NULL, &of, err);
+    tf_atomic_abort(of);
+    return st;
 }
 
 /* Writes the finished survey text: to output, replaced only once complete (write errors are
@@ -303,6 +316,11 @@ int tf_cmd_simulate(int argc, char **argv)
                          "--populations draws every population's model and settings itself");
         if (tf_error_status(&err) != TF_OK)
             return tf_messages_usage("tallyfit " CMD, &err);
+        tf_status pst = probe_output(output, &err);
+        if (pst != TF_OK) {
+            tf_error_print(&err, "tallyfit " CMD, stderr);
+            return tf_args_exit_code(pst);
+        }
         return write_scheme(n_pop, seed, output);
     }
     if (!growth && tf_error_status(&err) == TF_OK)
@@ -321,6 +339,11 @@ int tf_cmd_simulate(int argc, char **argv)
                      label, TF_SURVEY_MAX_LABEL);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage("tallyfit " CMD, &err);
+    tf_status pst = probe_output(output, &err);
+    if (pst != TF_OK) {
+        tf_error_print(&err, "tallyfit " CMD, stderr);
+        return tf_args_exit_code(pst);
+    }
 
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;
@@ -392,7 +415,9 @@ int tf_cmd_simulate(int argc, char **argv)
     tf_error check;
     tf_error_init(&check);
     tf_survey *sv = NULL;
-    if (tf_survey_parse("simulated survey", text, text_len, &sv, &check) != TF_OK) {
+    /* Values of a continuous counting-error model are estimates, read back as such. */
+    tf_survey_options so = {.estimates = !tf_model_obs(m)->needs_integer};
+    if (tf_survey_parse_with("simulated survey", text, text_len, &so, &sv, &check) != TF_OK) {
         tf_error_add(&err, TF_ERR_INVALID, NULL, 0, 0, "try other parameters, another --start or another --seed",
                      "the simulated counts do not make a usable survey: %s",
                      check.n_items ? check.items[0].what : "rejected by the importer");

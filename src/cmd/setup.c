@@ -9,9 +9,44 @@
 
 #include "model/model_file.h"
 
+static tf_status check_obs(const tf_obs_type *o, const tf_series *s, const char *path, tf_error *err);
+
 tf_status tf_setup_check_counts(const tf_model *m, const tf_series *s, const char *path, tf_error *err)
 {
-    const tf_obs_type *o = tf_model_obs(m);
+    return check_obs(tf_model_obs(m), s, path, err);
+}
+
+tf_status tf_setup_check_any_suits(const char *const *obs, size_t n_obs, const tf_series *s, const char *path,
+                                   tf_error *err)
+{
+    size_t n = n_obs ? n_obs : tf_model_n_obs();
+    tf_error first;
+    tf_error_init(&first);
+    for (size_t i = 0; i < n; i++) {
+        const tf_obs_type *o = n_obs ? tf_model_find_obs(obs[i]) : tf_model_obs_at(i);
+        if (!o)
+            continue; /* unknown names are the option parser's to refuse */
+        tf_error one;
+        tf_error_init(&one);
+        if (check_obs(o, s, path, &one) == TF_OK)
+            return TF_OK;
+        if (!first.n_items)
+            first = one;
+    }
+    const char *label = tf_series_label(s);
+    char who[160] = "the population";
+    if (label[0])
+        snprintf(who, sizeof who, "population '%.100s'", label);
+    const tf_error_item *it = first.n_items ? &first.items[0] : NULL;
+    return tf_error_add(err, TF_ERR_INVALID, path, it ? it->line : 0, 0,
+                        "choose other counting-error models (--obs), or leave the population out (--population, "
+                        "--skip-unusable)",
+                        "no candidate counting-error model suits the counts of %s%s%s", who, it ? ": " : "",
+                        it ? it->what : "");
+}
+
+static tf_status check_obs(const tf_obs_type *o, const tf_series *s, const char *path, tf_error *err)
+{
     const double *y = tf_series_counts(s);
     size_t n = tf_series_n_years(s);
     int year0 = tf_series_first_year(s);
@@ -130,4 +165,25 @@ tf_status tf_setup_default_priors(void *ctx, const tf_model *m, const tf_series 
 {
     (void)ctx;
     return tf_setup_priors(m, s, NULL, out, err);
+}
+
+tf_status tf_setup_check_candidates(const char *const *growth, size_t n_growth, const char *const *obs, size_t n_obs,
+                                    const tf_series *s, tf_error *err)
+{
+    size_t ng = n_growth ? n_growth : tf_model_n_growth(), no = n_obs ? n_obs : tf_model_n_obs();
+    for (size_t i = 0; i < ng; i++)
+        for (size_t k = 0; k < no; k++) {
+            const char *g = n_growth ? growth[i] : tf_model_growth_at(i)->name;
+            const char *o = n_obs ? obs[k] : tf_model_obs_at(k)->name;
+            tf_model *m = NULL;
+            tf_prior_set *p = NULL;
+            tf_status st = tf_model_new(g, o, &m, err);
+            if (st == TF_OK)
+                st = tf_setup_priors(m, s, NULL, &p, err);
+            tf_prior_set_free(p);
+            tf_model_free(m);
+            if (st != TF_OK)
+                return st;
+        }
+    return TF_OK;
 }

@@ -722,6 +722,16 @@ tf_status tf_model_file_locate(const char *file_name, char *path, size_t size, t
             if (try_dir(dir, file_name, path, size, &too_long))
                 return TF_OK;
             NOTE(", %s", dir);
+#ifdef TF_SOURCE_DIR
+            /* A binary anywhere in the source tree it was built from (build/mpi/tallyfit) takes
+             * the tree's model files; an installed one never does. */
+            size_t k = strlen(TF_SOURCE_DIR);
+            if (!strncmp(exe, TF_SOURCE_DIR, k) && (exe[k] == '/' || exe[k] == '\0')) {
+                if (try_dir(TF_SOURCE_DIR "/models", file_name, path, size, &too_long))
+                    return TF_OK;
+                NOTE(", %s", TF_SOURCE_DIR "/models");
+            }
+#endif
         }
     }
 #ifdef TF_MODEL_DIR

@@ -71,7 +71,9 @@ tf_status tf_model_file_apply(const tf_model_file *mf, double survey_median, tf_
 
 /* Finds file_name (e.g. "ricker.ini", a plain file name) in the model directories, in order:
  * $TALLYFIT_MODELS; <directory of the running program>/models; <that directory>/../share/
- * tallyfit/models; the compiled-in TF_MODEL_DIR when defined. Writes the first readable path
+ * tallyfit/models; the source tree's models/ when the program lies inside the tree it was built
+ * from (TF_SOURCE_DIR, set by the Makefile: build/mpi/tallyfit); the compiled-in TF_MODEL_DIR
+ * when defined. Writes the first readable path
  * into path[0..size). Errors: TF_ERR_INVALID for a name with a '/', TF_ERR_IO when no directory
  * has it (the message lists the places searched; the hint names TALLYFIT_MODELS), TF_ERR_RANGE
  * when the path does not fit. */

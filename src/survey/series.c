@@ -2,6 +2,7 @@
 #include "survey/series.h"
 
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -92,3 +93,55 @@ long tf_series_source_line(const tf_series *s, size_t i) { return i < s->n_years
 size_t tf_series_n_surveyed(const tf_series *s) { return s->n_surveyed; }
 size_t tf_series_n_zero(const tf_series *s) { return s->n_zero; }
 size_t tf_series_first_fractional(const tf_series *s) { return s->first_fractional; }
+
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+size_t tf_series_outliers(const tf_series *s, tf_series_outlier *out, size_t max)
+{
+    size_t n_found = 0;
+    const double *y = s->counts, *e = s->effort;
+    for (size_t i = 0; i < s->n_years; i++) {
+        if (isnan(y[i]))
+            continue;
+        double v[2 * TF_SERIES_OUTLIER_WINDOW];
+        size_t k = 0, n_before = 0, n_after = 0;
+        for (size_t j = i; j-- > 0 && n_before < TF_SERIES_OUTLIER_WINDOW;)
+            if (!isnan(y[j]))
+                v[k++] = log(y[j] / e[j] + 0.5), n_before++;
+        for (size_t j = i + 1; j < s->n_years && n_after < TF_SERIES_OUTLIER_WINDOW; j++)
+            if (!isnan(y[j]))
+                v[k++] = log(y[j] / e[j] + 0.5), n_after++;
+        if (k < TF_SERIES_OUTLIER_MIN_NEIGHBOURS)
+            continue;
+        qsort(v, k, sizeof v[0], cmp_double);
+        double med = k % 2 ? v[k / 2] : 0.5 * (v[k / 2 - 1] + v[k / 2]);
+        double d = log(y[i] / e[i] + 0.5) - med;
+        double m = (exp(med) - 0.5) * e[i];
+        if (fabs(d) <= log(TF_SERIES_OUTLIER_FACTOR) || fabs(y[i] - m) <= 3 * sqrt(fmax(y[i], m)))
+            continue;
+        if (n_found < max)
+            out[n_found] = (tf_series_outlier){.index = i, .count = y[i], .median = m, .factor = exp(d)};
+        n_found++;
+    }
+    return n_found;
+}
+
+void tf_series_outlier_text(const tf_series *s, const tf_series_outlier *o, char *buf, size_t size)
+{
+    const char *label = tf_series_label(s);
+    char who[160] = "";
+    if (label[0])
+        snprintf(who, sizeof who, "population '%.100s', ", label);
+    int year = tf_series_first_year(s) + (int)o->index;
+    if (o->factor >= 1)
+        snprintf(buf, size, "%syear %d: count %.10g is %.1f times the median of the neighbouring years (%.4g)", who,
+                 year, o->count, o->factor, o->median);
+    else
+        snprintf(buf, size, "%syear %d: count %.10g is %.1f times below the median of the neighbouring years (%.4g)",
+                 who, year, o->count, 1 / o->factor, o->median);
+}
+

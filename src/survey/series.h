@@ -30,4 +30,35 @@ size_t tf_series_n_zero(const tf_series *s);
 /* Index of the first surveyed count that is not a whole number, or n_years when all are. */
 size_t tf_series_first_fractional(const tf_series *s);
 
+/* Counts far from their neighbours, flagged for a look (never dropped). A surveyed year is flagged
+ * when its log(count / effort + 0.5) lies more than log(TF_SERIES_OUTLIER_FACTOR) from the median
+ * of the same value over its neighbours: up to TF_SERIES_OUTLIER_WINDOW surveyed years on each
+ * side, at least TF_SERIES_OUTLIER_MIN_NEIGHBOURS in all. This is the moving-median (Hampel)
+ * identifier (Hampel 1974, J. Amer. Statist. Assoc. 69:383-393; Pearson 2002, IEEE Trans. Control
+ * Syst. Technol. 10:55-63) with a fixed factor in place of its MAD scale, which is too small to
+ * use in windows of a few counts; the factor 4 and the window are common practice, no source: a
+ * typed extra zero (a factor 10) is flagged, a steady decline of even 50 % a year is not. The
+ * 0.5 keeps zero counts usable, as in the crude trend. A count is also left alone when it lies
+ * within 3 Poisson standard deviations, 3 sqrt(max(count, median)), of the median (the
+ * median scaled by its year's effort), so that small counts are not flagged for sampling noise:
+ * 0 among counts of 4 is not an outlier. */
+#define TF_SERIES_OUTLIER_FACTOR 4.0
+#define TF_SERIES_OUTLIER_WINDOW 3
+#define TF_SERIES_OUTLIER_MIN_NEIGHBOURS 3
+
+typedef struct {
+    size_t index;       /* year index in the series */
+    double count;       /* the count */
+    double median;      /* the median count / effort of its neighbours, times its effort */
+    double factor;      /* how many times above (> 1) or below (< 1) that median */
+} tf_series_outlier;
+
+/* Writes up to max flagged years of s, in year order, into out; returns how many there are in
+ * all (may exceed max). */
+size_t tf_series_outliers(const tf_series *s, tf_series_outlier *out, size_t max);
+
+/* One sentence on outlier o of series s, for messages and the report: "population 'x', year
+ * 2005: count 30700 is 10.0 times the median of the neighbouring years (3070)". */
+void tf_series_outlier_text(const tf_series *s, const tf_series_outlier *o, char *buf, size_t size);
+
 #endif

@@ -20,6 +20,8 @@ struct tf_survey {
     size_t *order;                 /* each series' place among all populations (set-aside ones too) */
     size_t n_rejected;
     tf_survey_rejected *rejected;  /* batch reading: the populations set aside */
+    int estimates;                 /* the count column holds estimates, not whole counts */
+    size_t n_in_file;              /* populations in the file, set-aside and left-out ones included */
 };
 
 enum { COL_YEAR, COL_COUNT, COL_POP, COL_EFFORT, COL_NOTE, N_KNOWN };
@@ -32,6 +34,11 @@ static const char *const known_names[N_KNOWN] = {"year", "count", "population", 
 #define SHOW_MAX 40
 
 static const char HINT_MISSING[] = "write NA or leave the cell empty for a year that was not surveyed";
+/* The one hint of every number written the way a spreadsheet's regional settings write it. It
+ * names the fix in the exporting program, never "write decimals with a point", which would turn
+ * "4,835" (4835 animals) into 4.835. */
+static const char HINT_NUMBERS[] = "export the file with plain numbers: no thousands separators, a point as the "
+                                   "decimal mark (4835, 2.5)";
 static const char HINT_QUOTES[] = "a value that contains the delimiter, a quote or a line break must be "
                                   "in double quotes, with each quote inside it doubled (\"\")";
 
@@ -77,6 +84,7 @@ typedef struct {
     long first_line;
     bool nomem;
     bool batch;         /* set faulty populations aside instead of failing the file */
+    bool estimates;     /* counts need not be whole numbers */
     size_t max_rows;
     bool holding;       /* report() keeps messages in cur instead of in err */
     bool released;      /* the held messages have been reported: the file failed */
@@ -304,17 +312,20 @@ static long field_at(const char *s, size_t pos, unsigned char delim)
     return f;
 }
 
-/* The header decides the delimiter: whichever of ';' and ',' occurs more often outside quotes. */
+/* The header decides the delimiter: whichever of ',', ';' and tab occurs most often outside
+ * quotes (a comma on a tie). */
 static unsigned char detect_delim(const char *s, size_t len)
 {
-    size_t n_comma = 0, n_semi = 0;
+    size_t n_comma = 0, n_semi = 0, n_tab = 0;
     bool quoted = false;
     for (size_t i = 0; i < len; i++) {
         if (s[i] == '"')
             quoted = !quoted;
         else if (!quoted)
-            n_comma += s[i] == ',', n_semi += s[i] == ';';
+            n_comma += s[i] == ',', n_semi += s[i] == ';', n_tab += s[i] == '\t';
     }
+    if (n_tab > n_comma && n_tab > n_semi)
+        return '\t';
     return n_semi > n_comma ? ';' : ',';
 }
 
@@ -363,6 +374,101 @@ static bool parse_decimal(const char *s, double *out)
 }
 
 static bool is_missing(const char *s) { return !*s || !strcasecmp(s, "NA"); }
+
+/* Ways of writing a number that spreadsheets produce under regional settings and that this
+ * importer does not read, so that each is named in its message instead of being misread. */
+typedef enum { NUM_PLAIN, NUM_THOUSANDS, NUM_COMMA, NUM_DECIMAL_COMMA } number_form;
+
+/* The thousands separators recognised: comma, point, space, apostrophe, no-break space (U+00A0),
+ * narrow no-break space (U+202F) and right single quotation mark (U+2019), the marks regional
+ * number formats use (common practice, no source). Returns the separator's length in bytes at s,
+ * 0 when s does not start with one. */
+static size_t separator_at(const char *s)
+{
+    static const char *const seps[] = {",", ".", " ", "'", "\xc2\xa0", "\xe2\x80\xaf", "\xe2\x80\x99"};
+    for (size_t i = 0; i < sizeof seps / sizeof seps[0]; i++)
+        if (!strncmp(s, seps[i], strlen(seps[i])))
+            return strlen(seps[i]);
+    return 0;
+}
+
+/* Classifies s (trimmed, not empty) for the messages: NUM_THOUSANDS for digits grouped in threes
+ * by one separator ("4.835", "4 835", "4'835", "1,234,567"; a single group with a point only in
+ * a semicolon file, where a point is not the decimal mark, since "4.835" in a comma file is a
+ * decimal), with an optional decimal part; NUM_COMMA for "4,835" in a semicolon file, where a
+ * comma is the decimal mark but three digits after it suggest thousands; NUM_DECIMAL_COMMA for a
+ * number with a comma as decimal mark ("12,5"); NUM_PLAIN otherwise. plain receives the digits
+ * without separators (for "looks like 4835"), at most size bytes. */
+static number_form classify_number(const char *s, unsigned char delim, char *plain, size_t size)
+{
+    const char *p = s + (*s == '-' || *s == '+');
+    size_t o = 0, lead = 0;
+    plain[0] = '\0';
+    while (is_digit(p[lead]))
+        lead++;
+    if (!lead)
+        return NUM_PLAIN;
+    size_t sep_len = separator_at(p + lead);
+    if (sep_len && lead <= 3) {
+        const char *sep = p + lead, *q = p + lead;
+        size_t n_groups = 0;
+        while (!strncmp(q, sep, sep_len) && is_digit(q[sep_len]) && is_digit(q[sep_len + 1]) &&
+               is_digit(q[sep_len + 2]) && !is_digit(q[sep_len + 3]))
+            q += sep_len + 3, n_groups++;
+        /* An optional decimal part with the other mark: "1.234,5", "1,234.5". */
+        const char *frac = q;
+        if ((*q == '.' || *q == ',') && *q != *sep && is_digit(q[1]))
+            for (q++; is_digit(*q); q++)
+                ;
+        if (n_groups && !*q) {
+            bool point_single = *sep == '.' && n_groups == 1 && frac == q;
+            if (*sep == ',' && delim == ';' && n_groups == 1 && frac == q)
+                return NUM_COMMA;
+            if (!point_single || delim == ';') {
+                for (const char *c = p; c < frac && o + 1 < size; c++)
+                    if (is_digit(*c))
+                        plain[o++] = *c;
+                plain[o] = '\0';
+                return NUM_THOUSANDS;
+            }
+        }
+    }
+    /* "12,5": digits, one comma, digits. */
+    const char *comma = p + lead;
+    if (*comma == ',' && is_digit(comma[1])) {
+        const char *q = comma + 1;
+        while (is_digit(*q))
+            q++;
+        if (!*q)
+            return NUM_DECIMAL_COMMA;
+    }
+    return NUM_PLAIN;
+}
+
+/* Reports value s of column what ("count", "effort") when it is written in one of the forms
+ * classify_number names; true when it was. */
+static bool report_number_form(reader *r, long line, long col, const char *what, const char *s)
+{
+    char buf[4 * SHOW_MAX], plain[32];
+    switch (classify_number(s, r->delim, plain, sizeof plain)) {
+    case NUM_THOUSANDS:
+        report(r, TF_ERR_PARSE, line, col, HINT_NUMBERS,
+               "%s '%s' is written with a thousands separator (it looks like %s)", what, show(buf, sizeof buf, s),
+               plain);
+        return true;
+    case NUM_COMMA:
+        report(r, TF_ERR_PARSE, line, col, HINT_NUMBERS,
+               "%s '%s' has a comma, a decimal mark or a thousands separator; neither is read", what,
+               show(buf, sizeof buf, s));
+        return true;
+    case NUM_DECIMAL_COMMA:
+        report(r, TF_ERR_PARSE, line, col, HINT_NUMBERS, "%s '%s' has a decimal comma, which is not read", what,
+               show(buf, sizeof buf, s));
+        return true;
+    case NUM_PLAIN: break;
+    }
+    return false;
+}
 
 static const char *field(const reader *r, long i) { return r->fbuf + r->foff[i]; }
 
@@ -484,10 +590,11 @@ static void read_data(reader *r)
     const char *cs = field(r, ccol);
     double c;
     if (!is_missing(cs)) {
-        if (!parse_decimal(cs, &c)) {
-            report(r, TF_ERR_PARSE, line, ccol + 1,
-                   strchr(cs, ',') ? "write decimals with a point, e.g. 12.5" : HINT_MISSING,
-                   "count '%s' is not a number", show(buf, sizeof buf, cs));
+        if (report_number_form(r, line, ccol + 1, "count", cs)) {
+            w.bad = true;
+        } else if (!parse_decimal(cs, &c)) {
+            report(r, TF_ERR_PARSE, line, ccol + 1, HINT_MISSING, "count '%s' is not a number",
+                   show(buf, sizeof buf, cs));
             w.bad = true;
         } else if (c < 0) {
             report(r, TF_ERR_RANGE, line, ccol + 1, HINT_MISSING, "count %s is negative", show(buf, sizeof buf, cs));
@@ -495,6 +602,22 @@ static void read_data(reader *r)
         } else if (!(c <= TF_SURVEY_MAX_COUNT)) {
             report(r, TF_ERR_RANGE, line, ccol + 1, "check the count for a typing error",
                    "count %s is larger than %g", show(buf, sizeof buf, cs), TF_SURVEY_MAX_COUNT);
+            w.bad = true;
+        } else if (c != floor(c) && !r->estimates) {
+            /* A count is a number of animals. A fraction is a typing error, a thousands separator
+             * read as a decimal point ("4.835" in a comma file), or a column of estimates, which
+             * only continuous counting-error models suit: the user must say which. */
+            char hint[256], plain[32];
+            if (classify_number(cs, ';', plain, sizeof plain) == NUM_THOUSANDS)
+                snprintf(hint, sizeof hint,
+                         "if %s means %s animals, export the file without thousands separators; if the column "
+                         "holds estimates (indices, densities), say so with --estimates",
+                         show(buf, sizeof buf, cs), plain);
+            else
+                snprintf(hint, sizeof hint, "counts are whole numbers of animals; if the column holds estimates "
+                                            "(indices, densities), say so with --estimates");
+            report(r, TF_ERR_INVALID, line, ccol + 1, hint, "count %s is not a whole number",
+                   show(buf, sizeof buf, cs));
             w.bad = true;
         } else {
             w.count = c;
@@ -509,6 +632,8 @@ static void read_data(reader *r)
         static const char hint[] = "give the survey effort (e.g. km walked, hours) as a positive number";
         if (is_missing(es)) {
             report(r, TF_ERR_PARSE, line, ecol + 1, hint, "the effort is missing for a surveyed year");
+            w.bad = true;
+        } else if (report_number_form(r, line, ecol + 1, "effort", es)) {
             w.bad = true;
         } else if (!parse_decimal(es, &e)) {
             report(r, TF_ERR_PARSE, line, ecol + 1, hint, "effort '%s' is not a number", show(buf, sizeof buf, es));
@@ -605,6 +730,9 @@ static void on_record(int c, void *data)
 }
 
 static int is_lf(unsigned char c) { return c == '\n'; }
+/* libcsv takes spaces and tabs around a field as padding by default; in a tab-separated file
+ * only the space is (on_field trims blanks of every field anyway). */
+static int is_space_only(unsigned char c) { return c == ' '; }
 
 static bool csv_start(reader *r)
 {
@@ -613,6 +741,8 @@ static bool csv_start(reader *r)
     r->csv_live = true;
     csv_set_term_func(&r->csv, is_lf);
     csv_set_delim(&r->csv, r->delim);
+    if (r->delim == '\t')
+        csv_set_space_func(&r->csv, is_space_only);
     return true;
 }
 
@@ -654,6 +784,8 @@ static void feed_line(reader *r, const char *s, size_t len, bool *in_record)
         if (!r->delim) {
             r->delim = detect_delim(s, len);
             csv_set_delim(&r->csv, r->delim);
+            if (r->delim == '\t')
+                csv_set_space_func(&r->csv, is_space_only);
         }
     }
     bool clean = check_encoding(r, s, len, *in_record, skip);
@@ -773,13 +905,15 @@ static void check_group(reader *r, row *rows, size_t n)
         n_zero += rows[i].count == 0;
     }
     if (n_surveyed < TF_SURVEY_MIN_SURVEYED) {
-        report(r, TF_ERR_INVALID, first_line, ccol, "survey more years, or leave this population out",
+        report(r, TF_ERR_INVALID, first_line, ccol, "survey more years, or leave this population out (--population to choose the others, or "
+               "--skip-unusable)",
                "%s has %zu surveyed year%s; at least %d are needed to fit a model",
                who(buf, sizeof buf, rows[0].label), n_surveyed,
                n_surveyed == 1 ? "" : "s", TF_SURVEY_MIN_SURVEYED);
     } else if (n_zero == n_surveyed) {
         report(r, TF_ERR_INVALID, first_line, ccol,
-               "a population never seen in the survey cannot be modelled; leave it out",
+               "a population never seen in the survey cannot be modelled; leave it out (--population to choose "
+               "the others, or --skip-unusable)",
                "%s has only zero counts", who(buf, sizeof buf, rows[0].label));
     }
 }
@@ -848,6 +982,7 @@ static tf_survey *assemble(reader *r)
     sv = calloc(1, sizeof *sv);
     if (!counts || !effort || !lines || !sv)
         goto nomem;
+    sv->n_in_file = n_groups;
     sv->path = strdup(r->name);
     sv->series = calloc(n_groups, sizeof *sv->series);
     sv->order = calloc(n_groups, sizeof *sv->order);
@@ -918,11 +1053,15 @@ static void sort_messages(tf_error *err, size_t first)
     }
 }
 
-static tf_status parse(const char *name, const char *data, size_t len, int batch, size_t max_rows, tf_survey **out,
+static tf_status parse(const char *name, const char *data, size_t len, const tf_survey_options *o, tf_survey **out,
                        tf_error *err)
 {
     *out = NULL;
-    reader r = {.name = name, .err = err, .batch = batch, .max_rows = max_rows ? max_rows : TF_SURVEY_MAX_ROWS};
+    reader r = {.name = name,
+                .err = err,
+                .batch = o->batch,
+                .estimates = o->estimates,
+                .max_rows = o->max_rows ? o->max_rows : TF_SURVEY_MAX_ROWS};
     size_t first_msg = err ? err->n_items : 0;
 
     if (!csv_start(&r)) {
@@ -978,8 +1117,11 @@ finish:
     for (size_t k = 0; k < r.n_faults; k++)
         free(r.faults[k].items);
     free(r.faults);
-    if (!r.n_reported)
+    if (!r.n_reported) {
+        if (*out)
+            (*out)->estimates = o->estimates;
         return TF_OK;
+    }
     tf_survey_free(*out);
     *out = NULL;
     sort_messages(err, first_msg);
@@ -988,16 +1130,22 @@ finish:
 
 tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_survey **out, tf_error *err)
 {
-    return parse(name, data, len, 0, 0, out, err);
+    return parse(name, data, len, &(tf_survey_options){0}, out, err);
 }
 
 tf_status tf_survey_parse_batch(const char *name, const char *data, size_t len, size_t max_rows, tf_survey **out,
                                 tf_error *err)
 {
-    return parse(name, data, len, 1, max_rows, out, err);
+    return parse(name, data, len, &(tf_survey_options){.batch = 1, .max_rows = max_rows}, out, err);
 }
 
-static tf_status read_file(const char *path, int batch, size_t max_rows, tf_survey **out, tf_error *err)
+tf_status tf_survey_parse_with(const char *name, const char *data, size_t len, const tf_survey_options *o,
+                               tf_survey **out, tf_error *err)
+{
+    return parse(name, data, len, o, out, err);
+}
+
+static tf_status read_file(const char *path, const tf_survey_options *o, tf_survey **out, tf_error *err)
 {
     static const char hint[] = "check the file name and that the file can be read";
     *out = NULL;
@@ -1027,7 +1175,7 @@ static tf_status read_file(const char *path, int batch, size_t max_rows, tf_surv
         st = tf_error_add(err, TF_ERR_IO, path, 0, 0, hint, "cannot read the survey file: %s", strerror(errno));
         goto done;
     }
-    st = parse(path, buf ? buf : "", len, batch, max_rows, out, err);
+    st = parse(path, buf ? buf : "", len, o, out, err);
     goto done;
 too_big:
     st = tf_error_add(err, TF_ERR_RANGE, path, 0, 0, "a survey file holds one row per year; check the file name",
@@ -1040,13 +1188,20 @@ done:
 
 tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err)
 {
-    return read_file(path, 0, 0, out, err);
+    return read_file(path, &(tf_survey_options){0}, out, err);
 }
 
 tf_status tf_survey_read_batch(const char *path, size_t max_rows, tf_survey **out, tf_error *err)
 {
-    return read_file(path, 1, max_rows, out, err);
+    return read_file(path, &(tf_survey_options){.batch = 1, .max_rows = max_rows}, out, err);
 }
+
+tf_status tf_survey_read_with(const char *path, const tf_survey_options *o, tf_survey **out, tf_error *err)
+{
+    return read_file(path, o, out, err);
+}
+
+int tf_survey_estimates(const tf_survey *sv) { return sv->estimates; }
 
 void tf_survey_free(tf_survey *sv)
 {
@@ -1079,4 +1234,36 @@ const tf_series *tf_survey_find(const tf_survey *sv, const char *label)
         if (!strcmp(tf_series_label(sv->series[i]), label))
             return sv->series[i];
     return NULL;
+}
+
+size_t tf_survey_n_in_file(const tf_survey *sv) { return sv->n_in_file; }
+
+static bool listed(const char *label, const char *const *labels, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        if (!strcmp(label, labels[i]))
+            return true;
+    return false;
+}
+
+void tf_survey_keep(tf_survey *sv, const char *const *labels, size_t n)
+{
+    size_t k = 0;
+    for (size_t i = 0; i < sv->n_series; i++) {
+        if (listed(tf_series_label(sv->series[i]), labels, n)) {
+            sv->order[k] = sv->order[i];
+            sv->series[k++] = sv->series[i];
+        } else {
+            tf_series_free(sv->series[i]);
+        }
+    }
+    sv->n_series = k;
+    k = 0;
+    for (size_t i = 0; i < sv->n_rejected; i++) {
+        if (listed(sv->rejected[i].label, labels, n))
+            sv->rejected[k++] = sv->rejected[i];
+        else
+            free(sv->rejected[i].label);
+    }
+    sv->n_rejected = k;
 }

@@ -1,4 +1,5 @@
-/* A survey file: one or more populations read from CSV (libcsv) and validated. */
+/* A survey file: one or more populations read from CSV (libcsv; comma, semicolon or tab separated)
+ * and validated. */
 #ifndef TF_SURVEY_H
 #define TF_SURVEY_H
 
@@ -29,7 +30,8 @@ typedef struct tf_survey tf_survey;
  * beyond TF_ERROR_MAX are counted in err->n_dropped. TF_ERR_IO (with the system's reason) when
  * the file cannot be opened or read, TF_ERR_RANGE when it is larger than TF_SURVEY_MAX_BYTES,
  * TF_ERR_NOMEM when memory runs out,
- * TF_ERR_PARSE / TF_ERR_RANGE / TF_ERR_INVALID for the contents. Rows of one population are
+ * TF_ERR_PARSE / TF_ERR_RANGE / TF_ERR_INVALID for the contents (a count that is not a whole
+ * number among them: see tf_survey_options.estimates). Rows of one population are
  * sorted by year; years between its first and last row that are missing, or have an empty / NA
  * count, are NAN in the series. */
 tf_status tf_survey_read(const char *path, tf_survey **out, tf_error *err);
@@ -49,6 +51,25 @@ tf_status tf_survey_parse(const char *name, const char *data, size_t len, tf_sur
 tf_status tf_survey_read_batch(const char *path, size_t max_rows, tf_survey **out, tf_error *err);
 tf_status tf_survey_parse_batch(const char *name, const char *data, size_t len, size_t max_rows, tf_survey **out,
                                 tf_error *err);
+
+/* How a survey is read. Zeroed, it is tf_survey_read: strict, every count a whole number. */
+typedef struct {
+    /* The count column holds estimates (indices, densities, corrected counts): values need not
+     * be whole. Without it a count that is not a whole number is an error on its line. */
+    int estimates;
+    /* Read as tf_survey_read_batch: a population with a problem of its own is set aside. */
+    int batch;
+    size_t max_rows;    /* with batch: replaces TF_SURVEY_MAX_ROWS (0 = keep it) */
+} tf_survey_options;
+
+/* tf_survey_read / tf_survey_parse under the options o. */
+tf_status tf_survey_read_with(const char *path, const tf_survey_options *o, tf_survey **out, tf_error *err);
+tf_status tf_survey_parse_with(const char *name, const char *data, size_t len, const tf_survey_options *o,
+                               tf_survey **out, tf_error *err);
+
+/* Whether the survey was read with estimates allowed (tf_survey_options.estimates): then only
+ * counting-error models of continuous amounts suit it, whatever its values. */
+int tf_survey_estimates(const tf_survey *sv);
 
 /* A population set aside by the batch reading: its label (owned by the survey), its place among
  * all populations of the file in order of first appearance, and its first problem in file order
@@ -70,6 +91,14 @@ size_t tf_survey_n_rejected(const tf_survey *sv);
 const tf_survey_rejected *tf_survey_rejected_at(const tf_survey *sv, size_t i);
 /* The place of series i among all populations of the file, set-aside ones included. */
 size_t tf_survey_series_order(const tf_survey *sv, size_t i);
+
+/* How many populations the file holds, those set aside by the batch reading and those left out
+ * by tf_survey_keep included: what decides whether outputs are named by population. */
+size_t tf_survey_n_in_file(const tf_survey *sv);
+
+/* Keeps only the populations (good and set aside) whose label is among labels[0..n), in their
+ * file order; the others are freed. Labels not in the survey are ignored (the caller checks). */
+void tf_survey_keep(tf_survey *sv, const char *const *labels, size_t n);
 
 /* Accepts NULL. */
 void tf_survey_free(tf_survey *sv);

@@ -94,20 +94,38 @@ if [ -z "$slow" ]; then
   [ -s "$tmp/quiet/heron-colony.xlsx" ] || bad "--quiet wrote no workbook"
 fi
 
-# An index that is not a whole count: only the continuous log-normal counting error is compared.
-"$T" analyze tests/data/analyze/index.csv -o "$tmp/frac" -q --threads 2 "${FAST[@]}" 2>"$tmp/stderr" ||
+# An index that is not a whole count: refused unless --estimates says so, and then only the
+# continuous log-normal counting error is compared, and the first page says why.
+"$T" analyze tests/data/analyze/index.csv -o "$tmp/frac" -q "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 3 ] || bad "index.csv without --estimates: exit $rc, want 3"
+grep -qF "is not a whole number" "$tmp/stderr" || bad "index.csv without --estimates: $(head -n 2 "$tmp/stderr")"
+grep -qF -- "--estimates" "$tmp/stderr" || bad "index.csv without --estimates: the hint does not name --estimates"
+[ -e "$tmp/frac" ] && bad "index.csv without --estimates: something was written"
+"$T" analyze tests/data/analyze/index.csv --estimates -o "$tmp/frac" -q --threads 2 "${FAST[@]}" 2>"$tmp/stderr" ||
   { bad "index.csv: exit $?"; cat "$tmp/stderr" >&2; }
 if [ -f "$tmp/frac/index/models.csv" ]; then
   grep -q '+lognormal,.*,fitted,' "$tmp/frac/index/models.csv" || bad "index.csv: no log-normal model fitted"
   grep -q '+poisson,.*,fitted,' "$tmp/frac/index/models.csv" && bad "index.csv: a count model was fitted to fractions"
+  grep -qF "Counts,\"read as estimates (--estimates), not whole counts\",so only counting-error models of continuous" \
+    "$tmp/frac/index/summary.csv" || bad "index.csv: the first page does not say the counts are estimates"
 else
   bad "index.csv: no models.csv"
 fi
 # Fractions with a zero suit no counting-error model: exit 3 and nothing written.
-"$T" analyze tests/data/good/fractional.csv -o "$tmp/frac0" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+"$T" analyze tests/data/good/fractional.csv --estimates -o "$tmp/frac0" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 3 ] || bad "fractional.csv (a zero among fractions): exit $rc, want 3"
-grep -q "no candidate model" "$tmp/stderr" || bad "fractional.csv: stderr does not say why"
+grep -q "no candidate counting-error model suits the counts" "$tmp/stderr" || bad "fractional.csv: stderr does not say why"
 [ -e "$tmp/frac0" ] && bad "fractional.csv: something was written"
+
+# A count far from its neighbours (a typed extra zero): warned about before the fits, listed
+# among the first page's cautions with its line, and fitted as it is.
+"$T" analyze tests/data/good/outlier-extra-zero.csv -o "$tmp/outlier" --models exponential --obs poisson "${FAST[@]}" \
+  >/dev/null 2>"$tmp/stderr" || bad "outlier: exit $?"
+grep -qF "tallyfit analyze: warning: tests/data/good/outlier-extra-zero.csv:18: year 2010: count 3390 is 9.3 times" \
+  "$tmp/stderr" || bad "outlier: no warning: $(head -c 300 "$tmp/stderr")"
+grep -qF "Count to check,year 2010: count 3390 is 9.3 times the median of the neighbouring years (362.2),line 18 of the survey file" \
+  "$tmp/outlier/outlier-extra-zero/summary.csv" || bad "outlier: not among the first page's cautions"
+grep -q '^2010,3390,' "$tmp/outlier/outlier-extra-zero/counts.csv" || bad "outlier: the count was not kept as it is"
 
 # One population of several, and the same tables for 1 and 2 threads (except the seconds each
 # fit took, a wall-clock time).

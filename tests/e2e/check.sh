@@ -61,6 +61,66 @@ while read -r file line phrase; do
 done <tests/data/bad/EXPECT
 [ $n_bad -ge 30 ] || bad "only $n_bad bad files"
 
+# Numbers written with regional settings: one hint, which names the export and never suggests
+# writing "4,835" with a point (that would read as 4.835 animals).
+for f in tests/data/bad/count-thousands-*.csv tests/data/bad/count-*comma*.csv tests/data/bad/effort-decimal-comma.csv; do
+  "$T" check "$f" 2>"$tmp/err" >/dev/null
+  grep -qxF "  hint: export the file with plain numbers: no thousands separators, a point as the decimal mark (4835, 2.5)" \
+    "$tmp/err" || bad "$f: not the one number hint: $(cat "$tmp/err")"
+  grep -qi "write decimals with a point" "$tmp/err" && bad "$f: a hint invites the thousands mistake"
+done
+
+# A count that is not whole: an error naming --estimates, unless the option says so.
+"$T" check tests/data/bad/count-fraction.csv 2>"$tmp/err"; rc=$?
+[ $rc -eq 3 ] || bad "count-fraction: exit $rc, want 3"
+grep -qF -- "say so with --estimates" "$tmp/err" || bad "count-fraction: the hint does not name --estimates"
+"$T" check tests/data/bad/count-fraction.csv --estimates >"$tmp/out" 2>"$tmp/err" || bad "--estimates: non-zero exit"
+grep -qF "counts read as estimates: continuous counting-error models only" "$tmp/out" || bad "--estimates: not said"
+
+# A tab-separated file reads like the others.
+"$T" check tests/data/good/tab-separated.csv >"$tmp/out" 2>"$tmp/err" || bad "tab-separated: $(cat "$tmp/err")"
+grep -qF "counts:       min 9, median 12.5, max 15" "$tmp/out" || bad "tab-separated: $(cat "$tmp/out")"
+
+# A count far from its neighbours (a typed extra zero) is usable, with a warning naming it.
+"$T" check tests/data/good/outlier-extra-zero.csv >"$tmp/out" 2>"$tmp/err"; rc=$?
+[ $rc -eq 0 ] || bad "outlier: exit $rc, want 0"
+grep -qF "tallyfit check: warning: tests/data/good/outlier-extra-zero.csv:18: year 2010: count 3390 is 9.3 times the median of the neighbouring years" \
+  "$tmp/err" || bad "outlier: $(cat "$tmp/err")"
+[ "$(grep -c ': warning: ' "$tmp/err")" -eq 1 ] || bad "outlier: not exactly one warning"
+grep -qF "max 3390" "$tmp/out" || bad "outlier: the count was not kept"
+
+# Choosing populations, and leaving out those that cannot be used.
+cat >"$tmp/three.csv" <<'CSV'
+population,year,count
+east,2001,10
+east,2002,12
+east,2003,11
+east,2004,14
+east,2005,13
+short,2001,5
+west,2001,3
+west,2002,4
+west,2003,5
+west,2004,5
+west,2005,6
+CSV
+"$T" check "$tmp/three.csv" 2>"$tmp/err"; rc=$?
+[ $rc -eq 3 ] || bad "short population: exit $rc, want 3"
+grep -qF "three.csv:7:3: error: population 'short' has 1 surveyed year" "$tmp/err" || bad "short: $(cat "$tmp/err")"
+grep -qF -- "--skip-unusable" "$tmp/err" || bad "short: the hint does not name --skip-unusable"
+"$T" check "$tmp/three.csv" --skip-unusable >"$tmp/out" 2>"$tmp/err" || bad "--skip-unusable: non-zero exit"
+grep -qF "warning: $tmp/three.csv:7: population 'short' is left out" "$tmp/err" || bad "--skip-unusable: no warning"
+head -n 1 "$tmp/out" | grep -qF "2 of 3 populations, usable" || bad "--skip-unusable: $(head -n 1 "$tmp/out")"
+"$T" check "$tmp/three.csv" --population west,east >"$tmp/out" 2>"$tmp/err" || bad "--population west,east: failed"
+[ "$(grep -E '^(east|west)$' "$tmp/out" | tr '\n' ' ')" = "east west " ] || bad "--population west,east: $(cat "$tmp/out")"
+grep -q '^short$' "$tmp/out" && bad "--population west,east: showed 'short'"
+"$T" check "$tmp/three.csv" --population short 2>"$tmp/err"; rc=$?
+[ $rc -eq 3 ] || bad "--population short: exit $rc, want 3"
+"$T" check "$tmp/three.csv" --population north 2>"$tmp/err"; rc=$?
+[ $rc -eq 2 ] || bad "--population north: exit $rc, want 2"
+grep -qF "no population named 'north'" "$tmp/err" || bad "--population north: $(cat "$tmp/err")"
+grep -qF "the file has 'east', 'short', 'west'" "$tmp/err" || bad "--population north: labels not listed"
+
 # Several errors in one file, and the cap.
 "$T" check tests/data/multi/several-errors.csv 2>"$tmp/err"; rc=$?
 [ $rc -eq 3 ] || bad "several-errors: exit $rc"

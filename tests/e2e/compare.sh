@@ -124,12 +124,20 @@ year,count
 2009,19.0
 2010,18.5
 EOF
+# Without --estimates the fractions are refused where they are read, before any fit.
 "$T" compare "$tmp/index.csv" --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 3 ] || bad "index without --estimates: exit $rc, want 3"
+grep -qF "index.csv:2:2: error: count 12.5 is not a whole number" "$tmp/stderr" || bad "index: $(head -n 1 "$tmp/stderr")"
+[ -e "$tmp/index" ] && bad "index without --estimates: something was written"
+"$T" compare "$tmp/index.csv" --estimates --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "index: exit $rc"; cat "$tmp/stderr" >&2; }
 counts=$(check_csv "$tmp/index/model-comparison.csv") || bad "index: $counts"
-[ "$counts" = "1 3" ] || bad "index: fitted/excluded counts '$counts', want '1 3'"
-grep -q '^ricker+poisson,.*excluded,.*not a whole number' "$tmp/index/model-comparison.csv" ||
-  bad "index: ricker+poisson not excluded for the fractional count"
+[ "$counts" = "1 0" ] || bad "index: fitted/excluded counts '$counts', want '1 0'"
+grep -q '^ricker+lognormal,' "$tmp/index/model-comparison.csv" || bad "index: ricker+lognormal not compared"
+grep -q '^ricker+poisson,' "$tmp/index/model-comparison.csv" && bad "index: a count model was listed under --estimates"
+"$T" compare "$tmp/index.csv" --estimates --obs negbin -o "$tmp/index2" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 2 ] || bad "--estimates --obs negbin: exit $rc, want 2"
+grep -qF -- "--obs negbin is a model of whole counts" "$tmp/stderr" || bad "--estimates --obs negbin: $(head -n 1 "$tmp/stderr")"
 
 # 4. Refusals: mixing a density with count probabilities, unknown names, bad weights.
 "$T" compare surveys/heron-colony.csv --models ricker --obs poisson,lognormal -o "$tmp/x" "${SHORT[@]}" \

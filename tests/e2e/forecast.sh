@@ -381,8 +381,14 @@ bad "unknown population" "$herds" --average --population nowhere
 "$TALLYFIT" forecast "$repo/tests/data/good/fractional.csv" --model ricker "${FIT[@]}" -o "$tmp/frac" -q \
   >/dev/null 2>"$tmp/stderr"
 [ $? -eq 3 ] || fail "fractional counts with poisson should exit 3"
-grep -q "lognormal" "$tmp/stderr" || fail "the fractional-count refusal should point to the log-normal"
+grep -q -- "--estimates" "$tmp/stderr" || fail "the fractional-count refusal should point to --estimates"
 [ -e "$tmp/frac" ] && fail "the refused fit left $tmp/frac"
+# With --estimates the log-normal is the default, and the summary says why.
+"$TALLYFIT" forecast "$repo/tests/data/analyze/index.csv" --estimates --model exponential "${FIT[@]}" -o "$tmp/est" -q \
+  >/dev/null 2>"$tmp/stderr" || fail "--estimates: exit $?: $(head -c 300 "$tmp/stderr")"
+grep -qF 'Counts,"read as estimates (--estimates), not whole counts"' "$tmp/est/forecast_summary.csv" ||
+  fail "--estimates: the summary does not say the counts are estimates"
+grep -qF 'exponential+lognormal' "$tmp/est/forecast_summary.csv" || fail "--estimates: the model is not the log-normal"
 
 # Ctrl-C during the fits: exit 130 and no tables.
 "$TALLYFIT" forecast "$herds" --average --threads 2 -o "$tmp/int2" -q >/dev/null 2>&1 &

@@ -18,13 +18,13 @@ expect() {
   grep -qE -- "$pat" "$tmp/e" || bad "'$*': stderr lacks /$pat/: $(head -c 300 "$tmp/e")"
 }
 
-# A finite log-likelihood row: loglik,se,particles,repeats.
+# A finite log-likelihood row: loglik,se,particles,repeats,loglik_sd,proposal.
 row_ok() {  # file particles repeats
   local line
   line=$(sed -n 2p "$1")
-  [ "$(head -n 1 "$1")" = "loglik,se,particles,repeats" ] || { bad "$1: header '$(head -n 1 "$1")'"; return; }
+  [ "$(head -n 1 "$1")" = "loglik,se,particles,repeats,loglik_sd,proposal" ] || { bad "$1: header '$(head -n 1 "$1")'"; return; }
   [ "$(wc -l <"$1")" -eq 2 ] || bad "$1: want exactly one row"
-  echo "$line" | grep -qE "^-?[0-9]+\.[0-9]+,[0-9]+\.[0-9]+,$2,$3\$" || bad "$1: row '$line'"
+  echo "$line" | grep -qE "^-?[0-9]+\.[0-9]+,[0-9]+\.[0-9]+,$2,$3,[0-9]+\.[0-9]+,(guided|bootstrap)\$" || bad "$1: row '$line'"
 }
 
 params() {  # growth obs -> --set value
@@ -35,21 +35,27 @@ params() {  # growth obs -> --set value
     theta-logistic) p="r=0.5,K=600,theta=1.8" ;;
   esac
   p="$p,sigma=0.12"
-  case $o in lognormal) p="$p,tau=0.2" ;; negbin) p="$p,phi=15" ;; esac
+  case $o in lognormal|lognormal-int) p="$p,tau=0.2" ;; negbin) p="$p,phi=15" ;; esac
   echo "$p"
 }
 
-# All 4 x 3 combinations through a pipe.
+# All 4 x 4 combinations through a pipe, with each proposal of the filter.
 for g in exponential ricker gompertz theta-logistic; do
-  for o in poisson lognormal negbin; do
+  for o in poisson lognormal negbin lognormal-int; do
     p=$(params $g $o)
-    "$T" simulate --model $g --obs $o --set "$p" --years 25 --start 300 --seed 4 \
-      | "$T" likelihood - --model $g --obs $o --set "$p" --particles 500 --repeat 4 >"$tmp/ll" 2>"$tmp/e" \
-      || { bad "$g+$o: pipe failed: $(cat "$tmp/e")"; continue; }
-    row_ok "$tmp/ll" 500 4
-    [ -s "$tmp/e" ] && bad "$g+$o: unexpected stderr $(cat "$tmp/e")"
+    est=()  # log-normal values are not whole counts: read them as estimates
+    [ $o = lognormal ] && est=(--estimates)
+    "$T" simulate --model $g --obs $o --set "$p" --years 25 --start 300 --seed 4 >"$tmp/sim"
+    for prop in guided bootstrap; do
+      "$T" likelihood - "${est[@]}" --model $g --obs $o --set "$p" --particles 500 --repeat 4 --proposal $prop \
+        <"$tmp/sim" >"$tmp/ll" 2>"$tmp/e" || { bad "$g+$o $prop: failed: $(cat "$tmp/e")"; continue; }
+      row_ok "$tmp/ll" 500 4
+      sed -n 2p "$tmp/ll" | grep -q ",$prop\$" || bad "$g+$o: the row does not name the $prop proposal"
+      [ -s "$tmp/e" ] && bad "$g+$o $prop: unexpected stderr $(cat "$tmp/e")"
+    done
   done
 done
+expect 2 "unknown proposal 'blind'" "$T" likelihood "$tmp/sim" --model ricker --set r=0.5,K=9,sigma=0.1 --proposal blind
 
 # Count models write whole counts; the log-normal writes positive numbers.
 "$T" simulate --model ricker --obs negbin --set r=0.5,K=600,sigma=0.1,phi=5 --years 20 --start 50 >"$tmp/nb"
@@ -126,20 +132,21 @@ expect 2 "no population named 'south'" "$T" likelihood surveys/three-herds.csv -
 
 # Unusable input: exit 3, naming the file and line.
 printf 'year,count\n2000,10\n2001,12.5\n2002,11\n2003,0\n2004,9\n2005,8\n' >"$tmp/frac.csv"
-expect 3 "frac.csv:3: error: count 12.5 in year 2001 is not a whole number" \
+expect 3 "frac.csv:3:2: error: count 12.5 is not a whole number" \
   "$T" likelihood "$tmp/frac.csv" --model ricker --set r=0.5,K=20,sigma=0.1
-expect 3 "frac.csv:5: error: count 0 .*lognormal" "$T" likelihood "$tmp/frac.csv" --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2
-expect 3 "hint: use a count model such as poisson or negbin" "$T" likelihood "$tmp/frac.csv" --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2
+expect 3 "frac.csv:5: error: count 0 .*lognormal" "$T" likelihood "$tmp/frac.csv" --estimates --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2
+expect 3 "hint: use a count model such as poisson or negbin" "$T" likelihood "$tmp/frac.csv" --estimates --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2
+expect 2 "with --estimates use --obs lognormal" "$T" likelihood "$tmp/frac.csv" --estimates --model ricker --obs poisson --set r=0.5,K=20,sigma=0.1
 expect 3 "stdin:3:" sh -c "'$T' likelihood - --model ricker --obs negbin --set r=0.5,K=20,sigma=0.1,phi=3 <'$tmp/frac.csv'"
 expect 3 "cannot open" "$T" likelihood "$tmp/missing.csv" --model ricker --set r=0.5,K=20,sigma=0.1
 # ... while the log-normal takes fractional values.
 sed '/,0$/d' "$tmp/frac.csv" >"$tmp/pos.csv"
-"$T" likelihood "$tmp/pos.csv" --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2 >"$tmp/l" || bad "lognormal on fractions"
+"$T" likelihood "$tmp/pos.csv" --estimates --model ricker --set r=0.5,K=20,sigma=0.1,tau=0.2 >"$tmp/l" || bad "lognormal on fractions"
 row_ok "$tmp/l" 1000 10
 
 # One repeat has no standard error; an impossible data set gives -inf with a warning.
 "$T" likelihood "$tmp/a" --model gompertz --set r=0.4,K=900,sigma=0.1 --repeat 1 >"$tmp/l"
-sed -n 2p "$tmp/l" | grep -qE '^-?[0-9.]+,NA,1000,1$' || bad "--repeat 1: $(sed -n 2p "$tmp/l")"
+sed -n 2p "$tmp/l" | grep -qE '^-?[0-9.]+,NA,1000,1,NA,guided$' || bad "--repeat 1: $(sed -n 2p "$tmp/l")"
 "$T" likelihood "$tmp/a" --model exponential --set r=1e6,sigma=0.1 >"$tmp/l" 2>"$tmp/e" || bad "-inf run failed"
 sed -n 2p "$tmp/l" | grep -qE '^-inf,NA,' || bad "impossible data: $(sed -n 2p "$tmp/l")"
 grep -q warning "$tmp/e" || bad "no warning for a zero likelihood"

@@ -33,6 +33,7 @@ static void check_series(const tf_series *s)
         if (isnan(c[i]))
             continue;
         REQUIRE(c[i] >= 0 && c[i] <= TF_SURVEY_MAX_COUNT && !signbit(c[i]));
+        REQUIRE(c[i] == floor(c[i])); /* read without --estimates: whole counts only */
         REQUIRE(tf_series_source_line(s, i) > 0);
         surveyed++;
         positive += c[i] > 0;

@@ -16,21 +16,28 @@
 
 #define GOOD(f) TF_TEST_DATA("good/" f)
 
-/* Reads a file that must be clean. */
-static tf_survey *read_ok(const char *path)
+/* Reads a file that must be clean under options o. */
+static tf_survey *read_ok_with(const char *path, const tf_survey_options *o)
 {
     tf_error err;
     tf_error_init(&err);
     tf_survey *sv = NULL;
-    tf_status st = tf_survey_read(path, &sv, &err);
+    tf_status st = tf_survey_read_with(path, o, &sv, &err);
     if (st != TF_OK)
         tf_error_print(&err, "test", stderr);
     ck_assert_msg(st == TF_OK, "%s: status %d", path, st);
     ck_assert_uint_eq(err.n_items, 0);
     ck_assert_ptr_nonnull(sv);
     ck_assert_str_eq(tf_survey_path(sv), path);
+    ck_assert_int_eq(tf_survey_estimates(sv), o->estimates);
     return sv;
 }
+
+/* Reads a file that must be clean when read strictly (whole counts). */
+static tf_survey *read_ok(const char *path) { return read_ok_with(path, &(tf_survey_options){0}); }
+
+/* Good files whose count column holds estimates: they read only with tf_survey_options.estimates. */
+static const char *const estimates_files[] = {"fractional.csv"};
 
 /* Checks one series against expected counts (NAN = not surveyed). */
 static void expect_series(const tf_series *s, const char *label, int first, const double *want, size_t n)
@@ -191,7 +198,7 @@ END_TEST
 
 START_TEST(fractional_counts_accepted)
 {
-    tf_survey *sv = read_ok(GOOD("fractional.csv"));
+    tf_survey *sv = read_ok_with(GOOD("fractional.csv"), &(tf_survey_options){.estimates = 1});
     const tf_series *s = tf_survey_series(sv, 0);
     static const double want[] = {2.5, 3.25, 0, 1.75, 4, 3.5};
     expect_series(s, "", 2001, want, 6);
@@ -255,11 +262,143 @@ START_TEST(every_good_file_reads)
             continue;
         char path[512];
         snprintf(path, sizeof path, TF_TEST_DATA("good/%s"), e->d_name);
-        tf_survey_free(read_ok(path));
+        int estimates = 0;
+        for (size_t k = 0; k < sizeof estimates_files / sizeof estimates_files[0]; k++)
+            estimates |= !strcmp(e->d_name, estimates_files[k]);
+        tf_survey_free(read_ok_with(path, &(tf_survey_options){.estimates = estimates}));
         n++;
     }
     closedir(d);
     ck_assert_uint_ge(n, 16);
+}
+END_TEST
+
+/* A count that is not whole is refused by the strict reading (its line and column, and a hint
+ * naming --estimates), and a population with one is set aside by the batch reading. */
+START_TEST(fractional_counts_refused_unless_estimates)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_survey *sv = NULL;
+    tf_status st = tf_survey_read(GOOD("fractional.csv"), &sv, &err);
+    ck_assert_int_eq(st, TF_ERR_INVALID);
+    ck_assert_ptr_null(sv);
+    ck_assert_uint_eq(err.n_items, 4); /* 2.5, 3.25, 1.75 and 3.5e0; the 0 and the 4 are whole */
+    ck_assert_int_eq(err.items[0].line, 2);
+    ck_assert_int_eq(err.items[0].column, 2);
+    ck_assert_str_eq(err.items[0].what, "count 2.5 is not a whole number");
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "--estimates"));
+    static const char text[] = "population,year,count\na,2001,1\na,2002,2\na,2003,3\na,2004,4\na,2005,5\n"
+                               "b,2001,1\nb,2002,2.5\nb,2003,3\nb,2004,4\nb,2005,5\n";
+    tf_error_init(&err);
+    st = tf_survey_parse_batch("mem", text, sizeof text - 1, 0, &sv, &err);
+    ck_assert_int_eq(st, TF_OK);
+    ck_assert_uint_eq(tf_survey_n_series(sv), 1);
+    ck_assert_uint_eq(tf_survey_n_rejected(sv), 1);
+    ck_assert_uint_eq(tf_survey_n_in_file(sv), 2);
+    ck_assert_str_eq(tf_survey_rejected_at(sv, 0)->what, "count 2.5 is not a whole number");
+    tf_survey_free(sv);
+    tf_error_init(&err);
+    st = tf_survey_parse_with("mem", text, sizeof text - 1, &(tf_survey_options){.estimates = 1}, &sv, &err);
+    ck_assert_int_eq(st, TF_OK);
+    ck_assert_uint_eq(tf_survey_n_series(sv), 2);
+    ck_assert_int_eq(tf_survey_estimates(sv), 1);
+    tf_survey_free(sv);
+}
+END_TEST
+
+/* Every way of writing a number that regional settings produce gets the one hint, which names
+ * the export and never suggests "a point for decimals" (that would turn 4,835 animals into 4.835). */
+START_TEST(number_forms_share_one_hint)
+{
+    static const char *const files[] = {"count-thousands-point.csv",    "count-thousands-quoted.csv",
+                                        "count-thousands-space.csv",    "count-thousands-apostrophe.csv",
+                                        "count-comma-semicolon.csv",    "count-decimal-comma.csv",
+                                        "effort-decimal-comma.csv"};
+    for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
+        char path[256];
+        snprintf(path, sizeof path, TF_TEST_DATA("bad/%s"), files[i]);
+        tf_error err;
+        tf_error_init(&err);
+        tf_survey *sv = NULL;
+        ck_assert_int_eq(tf_survey_read(path, &sv, &err), TF_ERR_PARSE);
+        ck_assert_str_eq(err.items[0].hint, "export the file with plain numbers: no thousands separators, a point "
+                                            "as the decimal mark (4835, 2.5)");
+    }
+    /* "4.835" in a comma file is a decimal: refused as a count, read as an estimate. */
+    static const char comma[] = "year,count\n2001,4.835\n2002,4.1\n2003,3.9\n2004,3.5\n2005,3.1\n";
+    tf_error err;
+    tf_error_init(&err);
+    tf_survey *sv = NULL;
+    ck_assert_int_eq(tf_survey_parse("mem", comma, sizeof comma - 1, &sv, &err), TF_ERR_INVALID);
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "if 4.835 means 4835 animals"));
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse_with("mem", comma, sizeof comma - 1, &(tf_survey_options){.estimates = 1}, &sv,
+                                          &err),
+                     TF_OK);
+    ck_assert_double_eq(tf_series_counts(tf_survey_series(sv, 0))[0], 4.835);
+    tf_survey_free(sv);
+    /* In a semicolon file the same text is a thousands separator even for estimates. */
+    static const char semi[] = "year;count\n2001;4.835\n2002;4100\n2003;3900\n2004;3500\n2005;3100\n";
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse_with("mem", semi, sizeof semi - 1, &(tf_survey_options){.estimates = 1}, &sv,
+                                          &err),
+                     TF_ERR_PARSE);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "thousands separator (it looks like 4835)"));
+}
+END_TEST
+
+/* A tab-separated file reads like a comma-separated one; blank fields stay empty. */
+START_TEST(tab_separated)
+{
+    tf_survey *sv = read_ok(GOOD("tab-separated.csv"));
+    static const double want[] = {14, 9, NAN, 12, 15, 11, 13};
+    expect_series(tf_survey_series(sv, 0), "", 2010, want, 7);
+    ck_assert_double_eq(tf_series_effort(tf_survey_series(sv, 0))[0], 2.5);
+    tf_survey_free(sv);
+}
+END_TEST
+
+/* The outlier rule of series.h on made-up series: a typed extra zero is flagged with its factor
+ * and the neighbours' median; a 50 % yearly decline, a zero among small counts and a year with
+ * too few neighbours are not. */
+START_TEST(outliers_flagged)
+{
+    static const double typo[] = {400, 380, 390, 3700, 360, 350, 370};
+    tf_series *s = tf_series_new("", 2000, 7, typo, NULL, NULL, NULL);
+    tf_series_outlier o[4];
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 1);
+    ck_assert_uint_eq(o[0].index, 3);
+    ck_assert_double_eq(o[0].count, 3700);
+    /* neighbours 400, 380, 390, 360, 350, 370: median of log(y + 0.5) is that of 375 and 380 */
+    double med = exp(0.5 * (log(370.5) + log(380.5))) - 0.5;
+    ck_assert_double_eq_tol(o[0].median, med, 1e-9);
+    ck_assert_double_eq_tol(o[0].factor, 3700.5 / (med + 0.5), 1e-9);
+    tf_series_free(s);
+
+    static const double decline[] = {6400, 3200, 1600, 800, 400, 200, 100};
+    s = tf_series_new("", 2000, 7, decline, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 0);
+    tf_series_free(s);
+
+    static const double small[] = {4, 5, 4, 0, 4, 3, 5};
+    s = tf_series_new("", 2000, 7, small, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 0);
+    tf_series_free(s);
+
+    /* Below: 40 among counts near 400 is flagged as a factor 10 low. */
+    static const double low[] = {400, NAN, 380, 40, 390, 410};
+    s = tf_series_new("", 2000, 6, low, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 1);
+    ck_assert_uint_eq(o[0].index, 3);
+    ck_assert(o[0].factor < 1.0 / TF_SERIES_OUTLIER_FACTOR);
+    tf_series_free(s);
+
+    /* Two surveyed neighbours are too few to judge. */
+    static const double short_run[] = {10, 1000, 10};
+    s = tf_series_new("", 2000, 3, short_run, NULL, NULL, NULL);
+    ck_assert_uint_eq(tf_series_outliers(s, o, 4), 0);
+    tf_series_free(s);
 }
 END_TEST
 
@@ -696,6 +835,10 @@ static Suite *make_suite(void)
     tcase_add_test(good, utf8_labels);
     tcase_add_test(good, missing_rows_at_both_ends_belong_to_the_span);
     tcase_add_test(good, every_good_file_reads);
+    tcase_add_test(good, fractional_counts_refused_unless_estimates);
+    tcase_add_test(good, number_forms_share_one_hint);
+    tcase_add_test(good, tab_separated);
+    tcase_add_test(good, outliers_flagged);
     suite_add_tcase(s, good);
     TCase *bad = tcase_create("bad");
     tcase_add_test(bad, every_bad_file_fails_as_expected);

@@ -291,7 +291,8 @@ static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
            OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT,
-           OPT_SKIP, OPT_ESTIMATES, OPT_PROPOSAL };
+           OPT_PROPOSAL, OPT_SKIP,
+           OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},

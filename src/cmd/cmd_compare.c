@@ -176,8 +176,8 @@ static void print_warnings(const tf_comparison *c)
 int tf_cmd_compare(int argc, char **argv)
 {
     enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_WARMUP,
-           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET, OPT_SKIP, OPT_ESTIMATES,
-           OPT_PROPOSAL };
+           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET, OPT_PROPOSAL, OPT_SKIP,
+           OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"models", required_argument, NULL, OPT_MODELS},
         {"obs", required_argument, NULL, OPT_OBS},

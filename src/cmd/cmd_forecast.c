@@ -1160,7 +1160,8 @@ out:
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
        OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_WARMUP, OPT_PARTICLES, OPT_PROPOSAL,
-       OPT_PRIORS, OPT_DRAWS, OPT_THREADS, OPT_SKIP, OPT_ESTIMATES };
+       OPT_PRIORS, OPT_DRAWS, OPT_THREADS, OPT_SKIP,
+           OPT_ESTIMATES };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */

@@ -33,7 +33,7 @@ typedef struct {
     size_t n_particles;      /* 0 = choose by tf_tune_particles */
     int correlated;          /* correlated pseudo-marginal method (Deligiannidis et al. 2018) */
     double rho;              /* its correlation, in [0, 1) */
-    size_t pilot_particles;  /* particles of the pilot phase; 0 = chosen by the proposal (pmmh.c) */
+    size_t pilot_particles;  /* particles of the pilot phase */
     /* Delayed acceptance in the exact chains: each proposal is screened by the extended Kalman
      * filter of screen.h before the particle filter runs (chain.h, log_screen). Exact either
      * way; it only changes the cost per iteration and the mixing. 1 on, 0 off (the default:

@@ -35,7 +35,7 @@ typedef struct {
 
 /* Standard: target 1.0; correlated: rho 0.99 and target 1.0 for the SD of the log-ratio (the
  * reasons are in tune.c). Guided proposal, 60 repetitions per point, 100 particles to start, at
- * least 10, at most 200000, 5 rounds. */
+ * least 12 (counts are rounded up to a multiple of 4), at most 200000, 5 rounds. */
 tf_tune_options tf_tune_default_options(int correlated);
 
 typedef struct {

@@ -90,20 +90,7 @@ grep -qF "tallyfit check: warning: tests/data/good/outlier-extra-zero.csv:18: ye
 grep -qF "max 3390" "$tmp/out" || bad "outlier: the count was not kept"
 
 # Choosing populations, and leaving out those that cannot be used.
-cat >"$tmp/three.csv" <<'CSV'
-population,year,count
-east,2001,10
-east,2002,12
-east,2003,11
-east,2004,14
-east,2005,13
-short,2001,5
-west,2001,3
-west,2002,4
-west,2003,5
-west,2004,5
-west,2005,6
-CSV
+cp tests/data/multi/one-short-population.csv "$tmp/three.csv"
 "$T" check "$tmp/three.csv" 2>"$tmp/err"; rc=$?
 [ $rc -eq 3 ] || bad "short population: exit $rc, want 3"
 grep -qF "three.csv:7:3: error: population 'short' has 1 surveyed year" "$tmp/err" || bad "short: $(cat "$tmp/err")"

@@ -88,20 +88,7 @@ expect "fit, a missing priors file" 3 "$tmp/none.ini" \
   "$T" fit "$S" --model ricker --priors "$tmp/none.ini" "${LONG[@]}" -o "$tmp/o-models"
 
 # Populations: a label the file lacks, an unusable one, and options the data refuse.
-cat >"$tmp/three.csv" <<'CSV'
-population,year,count
-east,2001,10
-east,2002,12
-east,2003,11
-east,2004,14
-east,2005,13
-short,2001,5
-west,2001,3
-west,2002,4
-west,2003,5
-west,2004,5
-west,2005,6
-CSV
+cp tests/data/multi/one-short-population.csv "$tmp/three.csv"
 expect "fit --population north" 2 "no population named 'north'" \
   "$T" fit "$tmp/three.csv" --model ricker --population east,north "${LONG[@]}" -o "$tmp/o-pop"
 expect "analyze with an unusable population" 3 "population 'short' has 1 surveyed year" \

@@ -13,20 +13,7 @@ bad() { echo "populations.sh: $*" >&2; fails=$((fails + 1)); }
 SHORT=(--iterations 200 --warmup 100 --chains 2 --particles 100)
 AFAST=(-q --iterations 480 --warmup 100 --draws 150 --particles 100 --years 30 --models exponential --obs poisson)
 
-cat >"$tmp/herds.csv" <<'CSV'
-population,year,count
-east,2001,10
-east,2002,12
-east,2003,11
-east,2004,14
-east,2005,13
-short,2001,5
-west,2001,3
-west,2002,4
-west,2003,5
-west,2004,5
-west,2005,6
-CSV
+cp tests/data/multi/one-short-population.csv "$tmp/herds.csv"
 H=$tmp/herds.csv
 warning="warning: $H:7: population 'short' is left out: population 'short' has 1 surveyed year"
 

@@ -10,7 +10,7 @@ Theorem 1), so their posterior means must agree up to the Monte Carlo standard e
 sqrt(mcse_g^2 + mcse_b^2), a chance failure of about 6e-5 per parameter if the errors are right.
 
 The check has power: the same comparison of one proposal's run against a run with the counts shifted
-by 10 % (another posterior) must fail for the mean of K, the carrying capacity or, for the
+by 50 % (another posterior) must fail for the mean of K, the carrying capacity or, for the
 exponential model, the abundance in the last year.
 """
 import csv
@@ -67,7 +67,9 @@ def main():
                 check(abs(mg - mb) <= tol,
                       f"{survey} {growth}+{obs} {name}: guided {mg:.5g}, bootstrap {mb:.5g} (4 se = {tol:.3g})")
             if survey == "heron-colony.csv":
-                # Power: counts raised by 10 % move K's posterior mean by far more than 4 se.
+                # Power: counts raised by 50 % move K's posterior mean by far more than 4 se. (With
+                # 10 % the shifted fit's K has a long right tail, sd 365 about a mean of 292 at seed
+                # 7, and a Monte Carlo error of 12: the 35 it moved was within 4 se.)
                 shifted = os.path.join(tmp, "shifted.csv")
                 with open(path, newline="") as f, open(shifted, "w", newline="") as o:
                     rows = [r for r in csv.reader(line for line in f if not line.startswith("#"))]
@@ -76,12 +78,12 @@ def main():
                     ci = rows[0].index("count")
                     for r in rows[1:]:
                         if r[ci] not in ("", "NA"):
-                            r[ci] = str(round(float(r[ci]) * 1.1))
+                            r[ci] = str(round(float(r[ci]) * 1.5))
                         w.writerow(r)
                 s, _ = fit(binary, shifted, None, growth, obs, "guided", os.path.join(tmp, "s"))
                 mk, sk = s["K"]
                 tol = 4 * math.sqrt(sk * sk + b["K"][1] ** 2)
-                check(abs(mk - b["K"][0]) > tol, f"power: K with counts +10 % {mk:.5g} vs {b['K'][0]:.5g} "
+                check(abs(mk - b["K"][0]) > tol, f"power: K with counts +50 % {mk:.5g} vs {b['K'][0]:.5g} "
                                                  f"differs by more than 4 se ({tol:.3g})")
     if failures:
         print(f"{len(failures)} check(s) failed", file=sys.stderr)

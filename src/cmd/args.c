@@ -2,6 +2,7 @@
 #include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "export/atomic.h"
+#include "util/buf.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -554,15 +555,9 @@ tf_status tf_args_read_survey_with(const char *path, const tf_survey_options *o,
     size_t len = 0, cap = 0;
     tf_status st;
     for (;;) {
-        if (len == cap) {
-            size_t want = cap ? 2 * cap : 65536;
-            char *p = realloc(buf, want);
-            if (!p) {
-                st = tf_error_add(err, TF_ERR_NOMEM, "stdin", 0, 0, NULL, "out of memory reading the survey");
-                goto done;
-            }
-            buf = p;
-            cap = want;
+        if (!tf_buf_grow((void **)&buf, &cap, len + 1, 1, 65536)) {
+            st = tf_error_add(err, TF_ERR_NOMEM, "stdin", 0, 0, NULL, "out of memory reading the survey");
+            goto done;
         }
         size_t n = fread(buf + len, 1, cap - len, stdin);
         len += n;

@@ -100,10 +100,10 @@ static void help(FILE *out, const tf_analysis_options *d)
             "ending with a marker file; DIR/<survey>.xlsx and DIR/<survey>/all-populations.csv then\n"
             "hold one row per population (failed ones with their reason). A population whose rows are\n"
             "invalid is set aside and reported; the others are analysed. An interrupted batch\n"
-            "continues where it stopped when the same command is run again.\n\n"
-            "Exit status: 0 done, 1 the job could not be done (batch: some populations failed; the\n"
-            "summary says why), 2 bad command line or a batch folder with other settings, 3 unusable\n"
-            "survey, 130 interrupted (single survey: nothing written; batch: run it again to go on).\n",
+            "continues where it stopped when the same command is run again. A batch ends with status 1\n"
+            "when some populations failed (the summary says why), with 2 in a folder made with other\n"
+            "settings, and with 130 when interrupted (run it again to go on).\n"
+            TF_CMD_HELP_END,
             d->fit.n_warmup, d->evidence.target_se, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
 }
 

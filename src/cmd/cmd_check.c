@@ -7,10 +7,12 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "cmd/args.h"
 #include "cmd/cmd.h"
 #include "cmd/input.h"
 #include "cmd/messages.h"
 #include "survey/survey.h"
+#include "util/stats.h"
 
 #define PROG "tallyfit check"
 
@@ -54,17 +56,10 @@ static void help(FILE *out)
             "               shown as a percentage change per year. A crude screening figure,\n"
             "               not a model estimate: it ignores observation error, density\n"
             "               dependence and the missing years.\n"
-            "\n"
-            "exit status: %d usable, %d bad command line, %d the survey file is unusable\n",
+            "\nA usable file ends with status 0, an unusable one with 3.\n"
+            TF_CMD_HELP_END,
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_SERIES_OUTLIER_FACTOR,
-            TF_SERIES_OUTLIER_WINDOW, TF_EXIT_OK, TF_EXIT_USAGE,
-            TF_EXIT_INPUT);
-}
-
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
+            TF_SERIES_OUTLIER_WINDOW);
 }
 
 /* Missing years with runs joined: "1999, 2004-2005", or "none". */
@@ -128,8 +123,7 @@ static bool print_series(const tf_series *s, FILE *out)
         e_min = fmin(e_min, e[i]);
         e_max = fmax(e_max, e[i]);
     }
-    qsort(sorted, k, sizeof *sorted, cmp_double);
-    double median = k % 2 ? sorted[k / 2] : 0.5 * (sorted[k / 2 - 1] + sorted[k / 2]);
+    double median = tf_stats_median(sorted, k);
     int first = tf_series_first_year(s);
 
     fprintf(out, "\n%s\n", tf_series_label(s)[0] ? tf_series_label(s) : "(unnamed population)");
@@ -181,17 +175,9 @@ int tf_cmd_check(int argc, char **argv)
         case 'h':
             help(stdout);
             return TF_EXIT_OK;
-        case ':':
-            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "option '%s' needs a value", argv[optind - 1]);
+        default:
+            tf_args_getopt_error("check", c, optopt, argv[optind - 1], &err);
             return tf_messages_usage(PROG, &err);
-        default: {
-            const char *arg = argv[optind - 1];
-            if (!strncmp(arg, "--", 2) || !optopt)
-                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", arg);
-            else
-                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '-%c'", optopt);
-            return tf_messages_usage(PROG, &err);
-        }
         }
     }
     if (argc - optind != 1) {
@@ -222,8 +208,7 @@ int tf_cmd_check(int argc, char **argv)
             if (one && strcmp(tf_series_label(tf_survey_series(sv, i)), one))
                 continue;
             else if (!print_series(tf_survey_series(sv, i), stdout)) {
-                fprintf(stderr, PROG ": out of memory\n");
-                rc = TF_EXIT_FAIL;
+                rc = tf_messages_error(PROG, TF_EXIT_FAIL, NULL, "out of memory");
             }
     }
     tf_survey_free(sv);

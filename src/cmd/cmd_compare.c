@@ -73,7 +73,8 @@ static void help(FILE *out)
             "  --threads T        threads (default: the number of processors); models run in\n"
             "                     parallel, and the results do not depend on T\n"
             "  --quiet            print nothing but warnings and errors\n"
-            "  -h, --help         show this help\n",
+            "  -h, --help         show this help\n"
+            TF_CMD_HELP_END,
             d.n_warmup, e.target_se, e.n_draws);
 }
 

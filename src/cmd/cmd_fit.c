@@ -74,7 +74,8 @@ static void help(FILE *out)
             "  --threads T        threads running chains (default: the number of processors); the\n"
             "                     results do not depend on it\n"
             "  -q, --quiet        no progress display and no summary\n"
-            "  -h, --help         show this help\n",
+            "  -h, --help         show this help\n"
+            TF_CMD_HELP_END,
             (unsigned long long)d.seed,
             d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);
 }

@@ -149,9 +149,7 @@ static void help(FILE *out)
             "(the cumulative risk per threshold and year, with its Monte Carlo error),\n"
             "forecast_declines.csv, and forecast_summary.csv (what was projected: the model or the model\n"
             "probabilities, the posterior draws, the settings, and the cautions), all or none.\n"
-            "\n"
-            "Exit status: 0 done, 1 the job could not be done, 2 bad command line, 3 unusable survey,\n"
-            "130 interrupted (nothing written).\n",
+            TF_CMD_HELP_END,
             d.n_warmup, a.evidence.n_draws, a.evidence.target_se);
 }
 
@@ -808,8 +806,7 @@ static int finish(const options *o, job *jobs, size_t n_jobs)
     }
     print_cautions(o, jobs, n_jobs);
     if (fflush(stdout) != 0) {
-        fprintf(stderr, PROG ": cannot write to standard output\n");
-        return TF_EXIT_FAIL;
+        return tf_messages_error(PROG, TF_EXIT_FAIL, NULL, "cannot write to standard output");
     }
     return TF_EXIT_OK;
 }
@@ -826,9 +823,8 @@ static int fixed_start(const options *o, const tf_series *s, job *j)
     while (last > 0 && isnan(counts[last - 1]))
         last--;
     if (last == 0) {
-        fprintf(stderr, PROG ": population '%s' has no surveyed count to start from\n  hint: give the current"
-                        " abundance with --start N\n", j->label);
-        return TF_EXIT_FAIL;
+        return tf_messages_error(PROG, TF_EXIT_FAIL, "give the current abundance with --start N",
+                                 "population '%s' has no surveyed count to start from", j->label);
     }
     last--;
     j->year0 = tf_series_first_year(s) + (int)last;
@@ -838,9 +834,9 @@ static int fixed_start(const options *o, const tf_series *s, job *j)
     }
     double y = counts[last], e = tf_series_effort(s)[last];
     if (!(y > 0)) {
-        fprintf(stderr, PROG ": the last surveyed count (%d) is 0, and a projection on the log scale cannot"
-                        " start from zero\n  hint: give the current abundance with --start N\n", j->year0);
-        return TF_EXIT_FAIL;
+        return tf_messages_error(PROG, TF_EXIT_FAIL, "give the current abundance with --start N",
+                                 "the last surveyed count (in %d) is 0, and a projection on the log scale cannot "
+                                 "start from zero", j->year0);
     }
     j->start = y / e;
     if (!o->quiet)

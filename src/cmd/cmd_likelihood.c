@@ -54,7 +54,8 @@ static void help(FILE *out)
             "  --repeat R         independent estimates to average (default %d)\n"
             "  --seed S           random seed (default 1)\n"
             TF_ARGS_PROPOSAL_HELP
-            "  -h, --help         show this help\n",
+            "  -h, --help         show this help\n"
+            TF_CMD_HELP_END,
             growth, obs, TF_MODEL_X1_YEARS, DEFAULT_PARTICLES, DEFAULT_REPEATS);
 }
 

@@ -56,7 +56,8 @@ static void help(FILE *out)
             "  --label L        population name written in a population column\n"
             "  -o, --output FILE\n"
             "                   write to FILE (replaced only once complete) instead of standard output\n"
-            "  -h, --help       show this help\n",
+            "  -h, --help       show this help\n"
+            TF_CMD_HELP_END,
             SCHEME_MAX, SCHEME_MIN_YEARS, SCHEME_MAX_YEARS, growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN,
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
 }

@@ -3,10 +3,29 @@
 
 #include "cmd/cmd.h"
 
+#include <stdarg.h>
+
 int tf_messages_usage(const char *prog, const tf_error *err)
 {
-    tf_error_print(err, prog, stderr);
+    /* Only the first: the checks after it often follow from it (an unknown option takes the
+     * survey file for its value, and then the survey is "missing"), and one mistake should read
+     * as one error. The option loops record in command-line order, so the first is the earliest. */
+    tf_error_print_first(err, 1, prog, stderr);
     return TF_EXIT_USAGE;
+}
+
+int tf_messages_error(const char *prog, int code, const char *hint, const char *fmt, ...)
+{
+    tf_error err;
+    tf_error_init(&err);
+    char what[sizeof err.items[0].what];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(what, sizeof what, fmt, ap);
+    va_end(ap);
+    tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s", what);
+    tf_error_print(&err, prog, stderr);
+    return code;
 }
 
 void tf_messages_outcome(const char *prog, int code, const tf_error *err, FILE *out)

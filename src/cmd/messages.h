@@ -8,9 +8,17 @@
 #include "analysis/analysis.h"
 #include "util/error.h"
 
-/* Prints err (tf_error_print, each line starting with prog) on stderr; returns TF_EXIT_USAGE,
- * for a command line refused before any work. */
+/* Every error a command reports goes through tf_error_print (util/error.h), in the one format
+ * "tallyfit CMD: error: ..." plus an optional "  hint: ..." line. */
+
+/* A command line refused before any work: prints the first message of err on stderr (one
+ * mistake, one error) and returns TF_EXIT_USAGE. */
 int tf_messages_usage(const char *prog, const tf_error *err);
+
+/* One error made on the spot (printf-style fmt; hint may be NULL), printed on stderr in the same
+ * format; returns code, so that a command can write `return tf_messages_error(...)`. */
+int tf_messages_error(const char *prog, int code, const char *hint, const char *fmt, ...)
+    __attribute__((format(printf, 4, 5)));
 
 /* How a command that writes files ended, on out: for TF_EXIT_INTERRUPTED the notice that
  * nothing was written, for any other code but TF_EXIT_OK the messages of err. */

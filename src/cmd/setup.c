@@ -4,10 +4,8 @@
 #include <math.h>
 #include <stdlib.h>
 
-#include <gsl/gsl_sort.h>
-#include <gsl/gsl_statistics_double.h>
-
 #include "model/model_file.h"
+#include "util/stats.h"
 
 static tf_status check_obs(const tf_obs_type *o, const tf_series *s, const char *path, tf_error *err);
 
@@ -79,10 +77,8 @@ double tf_setup_survey_median(const tf_series *s)
         if (!isnan(y[t]))
             r[k++] = y[t] / e[t];
     double med = NAN;
-    if (k) {
-        gsl_sort(r, 1, k);
-        med = gsl_stats_median_from_sorted_data(r, 1, k);
-    }
+    if (k)
+        med = tf_stats_median(r, k);
     free(r);
     return med;
 }

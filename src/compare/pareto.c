@@ -4,11 +4,7 @@
 #include <math.h>
 #include <stdlib.h>
 
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
+#include "util/stats.h"
 
 /* The grid size of Zhang & Stephens (2009, section 3): m = 30 + floor(sqrt(n)) points. */
 #define ZS_GRID_MIN 30
@@ -45,7 +41,7 @@ void tf_pareto_fit(const double *x, size_t n, double *work, double *k, double *s
             return;
         work[i] = x[i];
     }
-    qsort(work, n, sizeof *work, cmp_double);
+    tf_stats_sort(work, n);
     const double x_max = work[n - 1];
     /* First quartile, the order statistic floor(n / 4 + 0.5) (1-based). */
     const double x_star = work[(size_t)floor((double)n / 4.0 + 0.5) - 1];
@@ -98,7 +94,7 @@ tf_status tf_pareto_k(const double *log_w, size_t n, double *k, size_t *n_tail, 
     double *sorted = buf, *work = buf + n;
     for (size_t i = 0; i < n; i++)
         sorted[i] = isnan(log_w[i]) ? -INFINITY : log_w[i];
-    qsort(sorted, n, sizeof *sorted, cmp_double);
+    tf_stats_sort(sorted, n);
     double top = sorted[n - 1], cut = sorted[n - m - 1];
     if (top > -INFINITY && cut > -INFINITY && top < INFINITY) {
         /* Exceedances of the (m+1)-th largest weight, scaled by the largest (the fit is

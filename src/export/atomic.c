@@ -11,6 +11,8 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "util/path.h"
+
 struct tf_atomic {
     char *path;      /* destination */
     char *protect;   /* NULL = nothing protected */
@@ -30,15 +32,6 @@ enum { OLD_NONE, OLD_LINKED, OLD_ASIDE };
 /* Longest part of the destination's name copied into the temporary's name, so that the
  * temporary stays under NAME_MAX (255 on Linux file systems) even for long names. */
 #define TEMP_NAME_KEEP 200
-
-static char *dup_str(const char *s)
-{
-    size_t n = strlen(s) + 1;
-    char *d = malloc(n);
-    if (d)
-        memcpy(d, s, n);
-    return d;
-}
 
 tf_status tf_atomic_check_target(const char *path, const char *protect, tf_error *err)
 {
@@ -76,7 +69,7 @@ tf_status tf_atomic_mkdirs(const char *dir, size_t *n_created, tf_error *err)
         *n_created = 0;
     if (!dir || !dir[0])
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "empty output directory name");
-    char *buf = dup_str(dir);
+    char *buf = strdup(dir);
     if (!buf)
         return tf_error_add(err, TF_ERR_NOMEM, dir, 0, 0, NULL, "out of memory");
     tf_status st = TF_OK;
@@ -126,7 +119,7 @@ void tf_atomic_rmdirs(const char *dir, size_t n_created)
 {
     if (!dir || n_created == 0)
         return;
-    char *buf = dup_str(dir);
+    char *buf = strdup(dir);
     if (!buf)
         return;   /* leaves empty directories behind, nothing worse */
     size_t n = strlen(buf);
@@ -190,25 +183,15 @@ tf_status tf_atomic_open(const char *path, const char *protect, tf_atomic **out,
     a = calloc(1, sizeof *a);
     if (!a)
         goto nomem;
-    a->path = dup_str(path);
-    a->protect = protect ? dup_str(protect) : NULL;
+    a->path = strdup(path);
+    a->protect = protect ? strdup(protect) : NULL;
     if (!a->path || (protect && !a->protect))
         goto nomem;
 
     const char *slash = strrchr(path, '/');
     const char *base = slash ? slash + 1 : path;
-    size_t dir_len = slash ? (size_t)(slash - path) : 0;
-    a->dir = malloc(dir_len + 2);
-    if (!a->dir)
+    if (!(a->dir = tf_path_dir(path)))
         goto nomem;
-    if (!slash)
-        strcpy(a->dir, ".");
-    else if (dir_len == 0)
-        strcpy(a->dir, "/");
-    else {
-        memcpy(a->dir, path, dir_len);
-        a->dir[dir_len] = '\0';
-    }
     struct stat ds;
     if (stat(a->dir, &ds) != 0) {
         int e = errno;

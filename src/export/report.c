@@ -9,6 +9,7 @@
 
 #include "export/atomic.h"
 #include "export/csv_out.h"
+#include "util/buf.h"
 
 /* Room for a CSV file name: tf_csv_file_name shortens to its buffer, and a "-NNN" suffix. */
 #define CSV_NAME_BUF 96
@@ -43,12 +44,9 @@ static char *dup_opt(const char *s, int *failed)
 {
     if (!s)
         return NULL;
-    size_t n = strlen(s) + 1;
-    char *d = malloc(n);
+    char *d = strdup(s);
     if (!d)
         *failed = 1;
-    else
-        memcpy(d, s, n);
     return d;
 }
 
@@ -88,21 +86,6 @@ void tf_report_free(tf_report *r)
     free(r);
 }
 
-static int grow(void **p, size_t *cap, size_t need, size_t elem)
-{
-    if (need <= *cap)
-        return 1;
-    size_t n = *cap ? 2 * *cap : 8;
-    while (n < need)
-        n *= 2;
-    void *q = realloc(*p, n * elem);
-    if (!q)
-        return 0;
-    *p = q;
-    *cap = n;
-    return 1;
-}
-
 /* Whether name is taken by an earlier table or by the contents file. */
 static int csv_taken(const tf_report *r, const char *name)
 {
@@ -118,7 +101,7 @@ tf_status tf_report_add_table(tf_report *r, tf_table *t, const char *about, size
 {
     if (!t)
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "report: no table given");
-    if (!grow((void **)&r->tables, &r->cap_tables, r->n_tables + 1, sizeof *r->tables)) {
+    if (!tf_buf_grow((void **)&r->tables, &r->cap_tables, r->n_tables + 1, sizeof *r->tables, 8)) {
         tf_table_free(t);
         return nomem(err);
     }
@@ -196,7 +179,7 @@ tf_status tf_report_add_chart(tf_report *r, const tf_report_chart *c, tf_error *
         return bad_chart(err, "no rows to draw, or rows beyond the end of the table");
     if (c->series_stride && (!c->n_rows || (nr - c->first_row - c->n_rows) / c->series_stride < c->n_series - 1))
         return bad_chart(err, "a series' block of rows lies beyond the end of the table");
-    if (!grow((void **)&r->charts, &r->cap_charts, r->n_charts + 1, sizeof *r->charts))
+    if (!tf_buf_grow((void **)&r->charts, &r->cap_charts, r->n_charts + 1, sizeof *r->charts, 8))
         return nomem(err);
     chart *ch = &r->charts[r->n_charts];
     memset(ch, 0, sizeof *ch);

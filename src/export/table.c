@@ -11,6 +11,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "util/buf.h"
+
 #define NO_TEXT SIZE_MAX
 #define COLUMN_KIND 0xFF   /* cell_kind entry meaning "use the column's kind" */
 #define FIRST_ROW_CAP 16
@@ -53,34 +55,6 @@ const char *tf_col_kind_name(tf_col_kind kind)
     return ((int)kind >= 0 && kind < TF_COL_KIND_COUNT) ? kind_names[kind] : "unknown";
 }
 
-static char *dup_str(const char *s)
-{
-    size_t n = strlen(s) + 1;
-    char *d = malloc(n);
-    if (d)
-        memcpy(d, s, n);
-    return d;
-}
-
-/* Grows *p (of *cap elements of size elem) to hold at least need elements, doubling. */
-static int grow(void **p, size_t *cap, size_t need, size_t elem, size_t first)
-{
-    if (need <= *cap)
-        return 1;
-    size_t c = *cap ? *cap : first;
-    while (c < need) {
-        assert(c <= SIZE_MAX / 2);
-        c *= 2;
-    }
-    assert(c <= SIZE_MAX / elem);
-    void *q = realloc(*p, c * elem);
-    if (!q)
-        return 0;
-    *p = q;
-    *cap = c;
-    return 1;
-}
-
 tf_table *tf_table_new(const char *name, tf_error *err)
 {
     if (!name || !name[0]) {
@@ -90,7 +64,7 @@ tf_table *tf_table_new(const char *name, tf_error *err)
     tf_table *t = calloc(1, sizeof *t);
     if (!t)
         goto fail;
-    t->name = dup_str(name);
+    t->name = strdup(name);
     if (!t->name)
         goto fail;
     return t;
@@ -133,11 +107,11 @@ tf_status tf_table_add_column(tf_table *t, const char *header, const char *legen
     if (t->n_rows > 0)
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL,
                             "table '%s': column '%s' added after the first row", t->name, header);
-    if (!grow((void **)&t->cols, &t->cap_cols, t->n_cols + 1, sizeof *t->cols, 8))
+    if (!tf_buf_grow((void **)&t->cols, &t->cap_cols, t->n_cols + 1, sizeof *t->cols, 8))
         goto nomem;
     column c = {.kind = kind};
-    c.header = dup_str(header);
-    c.legend = dup_str(legend ? legend : "");
+    c.header = strdup(header);
+    c.legend = strdup(legend ? legend : "");
     if (!c.header || !c.legend) {
         free(c.header);
         free(c.legend);
@@ -264,7 +238,7 @@ tf_status tf_table_set_text(tf_table *t, size_t row, size_t col, const char *tex
     }
     size_t n = strlen(text) + 1;
     assert(t->arena_len <= SIZE_MAX - n);
-    if (!grow((void **)&t->arena, &t->arena_cap, t->arena_len + n, 1, FIRST_ARENA_CAP))
+    if (!tf_buf_grow((void **)&t->arena, &t->arena_cap, t->arena_len + n, 1, FIRST_ARENA_CAP))
         goto nomem;
     memcpy(t->arena + t->arena_len, text, n);
     c->text[row] = t->arena_len;
@@ -313,9 +287,9 @@ tf_status tf_table_add_note(tf_table *t, tf_note_kind kind, const char *text, tf
 {
     if (!text || !text[0])
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "table '%s': empty note", t->name);
-    if (!grow((void **)&t->notes, &t->cap_notes, t->n_notes + 1, sizeof *t->notes, 4))
+    if (!tf_buf_grow((void **)&t->notes, &t->cap_notes, t->n_notes + 1, sizeof *t->notes, 4))
         goto nomem;
-    char *d = dup_str(text);
+    char *d = strdup(text);
     if (!d)
         goto nomem;
     t->notes[t->n_notes++] = (note){d, kind == TF_NOTE_CAUTION ? TF_NOTE_CAUTION : TF_NOTE_INFO};
@@ -352,7 +326,7 @@ tf_status tf_table_set_name(tf_table *t, const char *name, tf_error *err)
 {
     if (!name || !name[0])
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "a table needs a non-empty name");
-    char *d = dup_str(name);
+    char *d = strdup(name);
     if (!d)
         return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory naming table '%s'", name);
     free(t->name);

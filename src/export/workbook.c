@@ -14,6 +14,9 @@
 #include <xlsxwriter.h>
 
 #include "export/atomic.h"
+#include "util/buf.h"
+#include "util/path.h"
+#include "util/utf8.h"
 
 /* ---- Layout constants (common practice, no source: they are matters of taste) ---- */
 
@@ -106,33 +109,6 @@ struct tf_workbook {
     char num_buf[64];
 };
 
-static int grow(void **p, size_t *cap, size_t need, size_t elem)
-{
-    if (need <= *cap)
-        return 1;
-    size_t c = *cap ? *cap : 8;
-    while (c < need) {
-        assert(c <= SIZE_MAX / 2);
-        c *= 2;
-    }
-    assert(c <= SIZE_MAX / elem);
-    void *q = realloc(*p, c * elem);
-    if (!q)
-        return 0;
-    *p = q;
-    *cap = c;
-    return 1;
-}
-
-static char *dup_str(const char *s)
-{
-    size_t n = strlen(s) + 1;
-    char *d = malloc(n);
-    if (d)
-        memcpy(d, s, n);
-    return d;
-}
-
 static tf_status nomem(tf_workbook *wb, tf_error *err)
 {
     if (wb)
@@ -151,9 +127,9 @@ static tf_status lxw_fail(tf_workbook *wb, lxw_error rc, const char *what, tf_er
 /* A copy of s owned by the workbook until it is freed, for strings libxlsxwriter may keep. */
 static const char *keep(tf_workbook *wb, const char *s)
 {
-    if (!grow((void **)&wb->kept, &wb->cap_kept, wb->n_kept + 1, sizeof *wb->kept))
+    if (!tf_buf_grow((void **)&wb->kept, &wb->cap_kept, wb->n_kept + 1, sizeof *wb->kept, 8))
         return NULL;
-    char *d = dup_str(s);
+    char *d = strdup(s);
     if (d)
         wb->kept[wb->n_kept++] = d;
     return d;
@@ -167,7 +143,7 @@ static lxw_format *get_format(tf_workbook *wb, numfmt nf, unsigned flags)
         if (wb->formats[i].flags == flags && (have == want || (have && want && !strcmp(have, want))))
             return wb->formats[i].fmt;
     }
-    if (!grow((void **)&wb->formats, &wb->cap_formats, wb->n_formats + 1, sizeof *wb->formats))
+    if (!tf_buf_grow((void **)&wb->formats, &wb->cap_formats, wb->n_formats + 1, sizeof *wb->formats, 8))
         return NULL;
     lxw_format *f = workbook_add_format(wb->lxw);
     if (!f)
@@ -219,26 +195,6 @@ static lxw_format *get_format(tf_workbook *wb, numfmt nf, unsigned flags)
 
 /* ---- Text ---- */
 
-/* Length of the valid UTF-8 sequence at s (RFC 3629 section 4: no overlong forms, no
- * surrogates, nothing above U+10FFFF), or 0 when it is not valid. */
-static size_t utf8_seq(const unsigned char *s)
-{
-    unsigned char c = s[0];
-    if (c < 0x80)
-        return 1;
-    if (c >= 0xC2 && c <= 0xDF)
-        return (s[1] & 0xC0) == 0x80 ? 2 : 0;
-    if (c >= 0xE0 && c <= 0xEF) {
-        unsigned char lo = c == 0xE0 ? 0xA0 : 0x80, hi = c == 0xED ? 0x9F : 0xBF;
-        return (s[1] >= lo && s[1] <= hi && (s[2] & 0xC0) == 0x80) ? 3 : 0;
-    }
-    if (c >= 0xF0 && c <= 0xF4) {
-        unsigned char lo = c == 0xF0 ? 0x90 : 0x80, hi = c == 0xF4 ? 0x8F : 0xBF;
-        return (s[1] >= lo && s[1] <= hi && (s[2] & 0xC0) == 0x80 && (s[3] & 0xC0) == 0x80) ? 4 : 0;
-    }
-    return 0;
-}
-
 /* Characters XML 1.0 cannot carry (section 2.2): C0 controls other than tab, LF, CR. */
 static int xml_bad(unsigned char c)
 {
@@ -250,7 +206,7 @@ static size_t text_len(const char *s)
 {
     size_t n = 0;
     for (const unsigned char *p = (const unsigned char *)s; *p; n++) {
-        size_t k = utf8_seq(p);
+        size_t k = tf_utf8_seq(p, SIZE_MAX);
         p += k ? k : 1;
     }
     return n;
@@ -264,7 +220,7 @@ static const char *clean_text(tf_workbook *wb, const char *s)
     const unsigned char *p = (const unsigned char *)s;
     int clean = 1;
     while (*p) {
-        size_t k = utf8_seq(p);
+        size_t k = tf_utf8_seq(p, SIZE_MAX);
         if (!k || (k == 1 && xml_bad(*p))) {
             clean = 0;
             break;
@@ -274,11 +230,11 @@ static const char *clean_text(tf_workbook *wb, const char *s)
     if (clean)
         return s;
     size_t need = 3 * strlen(s) + 1;
-    if (!grow((void **)&wb->scratch, &wb->scratch_cap, need, 1))
+    if (!tf_buf_grow((void **)&wb->scratch, &wb->scratch_cap, need, 1, 8))
         return NULL;
     char *o = wb->scratch;
     for (p = (const unsigned char *)s; *p;) {
-        size_t k = utf8_seq(p);
+        size_t k = tf_utf8_seq(p, SIZE_MAX);
         if (!k) {
             memcpy(o, "\xEF\xBF\xBD", 3);
             o += 3;
@@ -305,7 +261,7 @@ void tf_workbook_clean_sheet_name(const char *name, char *buf, size_t size)
     while (*p == '\'' || *p == ' ')
         p++;
     while (*p && chars < TF_SHEET_NAME_MAX) {
-        size_t k = utf8_seq(p);
+        size_t k = tf_utf8_seq(p, SIZE_MAX);
         if (!k) {
             buf[n++] = '_';
             p++;
@@ -418,20 +374,9 @@ tf_workbook *tf_workbook_new(const char *path, const char *protect, tf_error *er
         goto fail;
     /* libxlsxwriter's own scratch files go beside the output: that directory is known to be
      * writable, while the system temporary directory may not be. */
-    const char *slash = strrchr(path, '/');
-    size_t dl = slash ? (size_t)(slash - path) : 1;
-    wb->tmpdir = malloc(dl + 2);
-    if (!wb->tmpdir) {
+    if (!(wb->tmpdir = tf_path_dir(path))) {
         nomem(NULL, err);
         goto fail;
-    }
-    if (!slash)
-        strcpy(wb->tmpdir, ".");
-    else if (dl == 0)
-        strcpy(wb->tmpdir, "/");
-    else {
-        memcpy(wb->tmpdir, path, dl);
-        wb->tmpdir[dl] = '\0';
     }
     lxw_workbook_options opt = {.constant_memory = LXW_FALSE, .tmpdir = wb->tmpdir, .use_zip64 = LXW_FALSE};
     wb->lxw = workbook_new_opt(tf_atomic_temp_path(wb->file), &opt);
@@ -526,19 +471,19 @@ static tf_status new_sheet(tf_workbook *wb, const tf_table *t, tf_sheet **out, t
         /* Shorten the base, by whole characters, so that base + suffix fits 31 characters. */
         size_t keep_chars = TF_SHEET_NAME_MAX - (size_t)sl, bytes = 0, chars = 0;
         while (base[bytes] && chars < keep_chars) {
-            size_t q = utf8_seq((const unsigned char *)base + bytes);
+            size_t q = tf_utf8_seq((const unsigned char *)base + bytes, SIZE_MAX);
             bytes += q ? q : 1;
             chars++;
         }
         snprintf(name, sizeof name, "%.*s%s", (int)bytes, base, suffix);
     }
-    if (!grow((void **)&wb->sheets, &wb->cap_sheets, wb->n_sheets + 1, sizeof *wb->sheets))
+    if (!tf_buf_grow((void **)&wb->sheets, &wb->cap_sheets, wb->n_sheets + 1, sizeof *wb->sheets, 8))
         return nomem(wb, err);
     tf_sheet *s = calloc(1, sizeof *s);
     if (!s)
         return nomem(wb, err);
     s->owner = wb;
-    s->name = dup_str(name);
+    s->name = strdup(name);
     s->n_cols = tf_table_n_columns(t);
     s->n_rows = tf_table_n_rows(t);
     s->kinds = calloc(s->n_cols ? s->n_cols : 1, sizeof *s->kinds);

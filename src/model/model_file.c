@@ -11,6 +11,8 @@
 
 #include <ini.h>
 
+#include "util/buf.h"
+
 /* Model files are a few dozen lines; anything far larger is not one. */
 #define MAX_FILE_BYTES (1 << 20)
 
@@ -89,15 +91,9 @@ static int on_pair(void *user, const char *section, const char *name, const char
     parse_state *ps = user;
     if (ps->nomem)
         return 1;
-    if (ps->n_entries == ps->cap_entries) {
-        size_t cap = ps->cap_entries ? 2 * ps->cap_entries : 32;
-        entry *e = realloc(ps->entries, cap * sizeof *e);
-        if (!e) {
-            ps->nomem = 1;
-            return 1;
-        }
-        ps->entries = e;
-        ps->cap_entries = cap;
+    if (!tf_buf_grow((void **)&ps->entries, &ps->cap_entries, ps->n_entries + 1, sizeof *ps->entries, 32)) {
+        ps->nomem = 1;
+        return 1;
     }
     entry *e = &ps->entries[ps->n_entries];
     e->section = copy_string(section);

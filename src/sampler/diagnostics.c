@@ -13,6 +13,8 @@
 #include <gsl/gsl_fft_halfcomplex.h>
 #include <gsl/gsl_fft_real.h>
 
+#include "util/stats.h"
+
 typedef struct {
     double v;
     size_t i;
@@ -202,12 +204,6 @@ static int cmp_ranked(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
 /* z_i = Phi^-1((r_i - 3/8) / (S + 1/4)), r_i the rank of x_i among all S values (ties get
  * their average rank): the paper's rank normalisation, with Blom's (1958) offsets. */
 static void rank_normalise(tf_diag_workspace *w, const double *x, double *z, size_t S)
@@ -227,18 +223,6 @@ static void rank_normalise(tf_diag_workspace *w, const double *x, double *z, siz
             z[w->order[k].i] = zr;
         i = j + 1;
     }
-}
-
-/* Sample quantile of sorted x[0..n) at probability p: linear interpolation between order
- * statistics at position (n - 1) p (Hyndman & Fan 1996, The American Statistician 50(4):361,
- * definition 7). */
-static double quantile_sorted(const double *x, size_t n, double p)
-{
-    double h = (double)(n - 1) * p;
-    size_t lo = (size_t)floor(h);
-    if (lo >= n - 1)
-        return x[n - 1];
-    return x[lo] + (h - (double)lo) * (x[lo + 1] - x[lo]);
 }
 
 /* ESS of the indicator I(x <= q) over the split chains. */
@@ -285,7 +269,7 @@ static double mcse_quantile(tf_diag_workspace *w, size_t S_all, size_t S, size_t
     double hi = beta_quantile(0.84134474606854293, a, b); /* Phi(1) */
     if (!isfinite(lo) || !isfinite(hi))
         return NAN;
-    return 0.5 * (quantile_sorted(w->sorted, S_all, hi) - quantile_sorted(w->sorted, S_all, lo));
+    return 0.5 * (tf_stats_quantile_sorted(w->sorted, S_all, hi) - tf_stats_quantile_sorted(w->sorted, S_all, lo));
 }
 
 static void set_nan(tf_diag_summary *out, size_t n_chains, size_t n_iter)
@@ -334,10 +318,10 @@ tf_status tf_diag_summarise(tf_diag_workspace *w, const double *const *chains, s
         ss += (w->raw[i] - out->mean) * (w->raw[i] - out->mean);
     out->sd = sqrt(ss / (double)(S_all - 1));
     memcpy(w->sorted, w->raw, S_all * sizeof *w->sorted);
-    qsort(w->sorted, S_all, sizeof *w->sorted, cmp_double);
-    out->q05 = quantile_sorted(w->sorted, S_all, 0.05);
-    out->q50 = quantile_sorted(w->sorted, S_all, 0.5);
-    out->q95 = quantile_sorted(w->sorted, S_all, 0.95);
+    tf_stats_sort(w->sorted, S_all);
+    out->q05 = tf_stats_quantile_sorted(w->sorted, S_all, 0.05);
+    out->q50 = tf_stats_quantile_sorted(w->sorted, S_all, 0.5);
+    out->q95 = tf_stats_quantile_sorted(w->sorted, S_all, 0.95);
 
     /* Bulk: rank-normalised split chains. */
     rank_normalise(w, w->split, w->z, S);
@@ -346,8 +330,8 @@ tf_status tf_diag_summarise(tf_diag_workspace *w, const double *const *chains, s
 
     /* Folded about the median of the split draws, then rank-normalised: R-hat of the scale. */
     memcpy(w->z, w->split, S * sizeof *w->z);
-    qsort(w->z, S, sizeof *w->z, cmp_double);
-    double median = quantile_sorted(w->z, S, 0.5);
+    tf_stats_sort(w->z, S);
+    double median = tf_stats_quantile_sorted(w->z, S, 0.5);
     for (size_t i = 0; i < S; i++)
         w->z[i] = fabs(w->split[i] - median);
     rank_normalise(w, w->z, w->z, S);

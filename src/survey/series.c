@@ -6,6 +6,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "util/stats.h"
+
 struct tf_series {
     char *label;
     int first_year;
@@ -94,12 +96,6 @@ size_t tf_series_n_surveyed(const tf_series *s) { return s->n_surveyed; }
 size_t tf_series_n_zero(const tf_series *s) { return s->n_zero; }
 size_t tf_series_first_fractional(const tf_series *s) { return s->first_fractional; }
 
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
 size_t tf_series_outliers(const tf_series *s, tf_series_outlier *out, size_t max)
 {
     size_t n_found = 0;
@@ -117,8 +113,7 @@ size_t tf_series_outliers(const tf_series *s, tf_series_outlier *out, size_t max
                 v[k++] = log(y[j] / e[j] + 0.5), n_after++;
         if (k < TF_SERIES_OUTLIER_MIN_NEIGHBOURS)
             continue;
-        qsort(v, k, sizeof v[0], cmp_double);
-        double med = k % 2 ? v[k / 2] : 0.5 * (v[k / 2 - 1] + v[k / 2]);
+        double med = tf_stats_median(v, k);
         double d = log(y[i] / e[i] + 0.5) - med;
         double m = (exp(med) - 0.5) * e[i];
         if (fabs(d) <= log(TF_SERIES_OUTLIER_FACTOR) || fabs(y[i] - m) <= 3 * sqrt(fmax(y[i], m)))

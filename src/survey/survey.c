@@ -13,6 +13,9 @@
 #include <strings.h>
 #include <sys/stat.h>
 
+#include "util/buf.h"
+#include "util/utf8.h"
+
 struct tf_survey {
     char *path;
     size_t n_series;
@@ -157,25 +160,6 @@ static void report(reader *r, tf_status status, long line, long col, const char 
     }
 }
 
-/* Grows *buf to hold need elements of size elem; false (buffer untouched) when out of memory. */
-static bool reserve(void **buf, size_t *cap, size_t need, size_t elem)
-{
-    if (need <= *cap)
-        return true;
-    size_t n = *cap ? *cap : 16;
-    while (n < need) {
-        if (n > SIZE_MAX / 2 / elem)
-            return false;
-        n *= 2;
-    }
-    void *p = realloc(*buf, n * elem);
-    if (!p)
-        return false;
-    *buf = p;
-    *cap = n;
-    return true;
-}
-
 /* Starts holding messages back (batch reading only). */
 static void hold(reader *r)
 {
@@ -197,7 +181,7 @@ static bool unhold(reader *r, size_t *fault)
         return true;
     held h = r->cur;
     if (!(h.items = malloc(h.n_kept * sizeof *h.items)) ||
-        !reserve((void **)&r->faults, &r->faults_cap, r->n_faults + 1, sizeof *r->faults)) {
+        !tf_buf_grow((void **)&r->faults, &r->faults_cap, r->n_faults + 1, sizeof *r->faults, 16)) {
         free(h.items);
         return false;
     }
@@ -255,47 +239,6 @@ static const char *show(char *buf, size_t n, const char *s)
         buf[o] = '\0';
     }
     return buf;
-}
-
-/* Byte offset of the first byte that breaks UTF-8 (RFC 3629 section 4: no overlong forms, no
- * surrogates, nothing above U+10FFFF), or len when the text is valid. */
-static size_t utf8_bad_at(const unsigned char *s, size_t len)
-{
-    size_t i = 0;
-    while (i < len) {
-        unsigned char c = s[i];
-        size_t n;
-        unsigned lo = 0x80, hi = 0xbf;
-        if (c < 0x80) {
-            i++;
-            continue;
-        } else if (c >= 0xc2 && c <= 0xdf) {
-            n = 1;
-        } else if (c >= 0xe0 && c <= 0xef) {
-            n = 2;
-            if (c == 0xe0)
-                lo = 0xa0;
-            if (c == 0xed)
-                hi = 0x9f;
-        } else if (c >= 0xf0 && c <= 0xf4) {
-            n = 3;
-            if (c == 0xf0)
-                lo = 0x90;
-            if (c == 0xf4)
-                hi = 0x8f;
-        } else {
-            return i;
-        }
-        if (len - i <= n)
-            return i;
-        for (size_t k = 1; k <= n; k++) {
-            unsigned char d = s[i + k];
-            if (d < (k == 1 ? lo : 0x80) || d > (k == 1 ? hi : 0xbf))
-                return i;
-        }
-        i += n + 1;
-    }
-    return len;
 }
 
 /* Field number (1-based) that byte pos of a line falls in, counting delimiters outside quotes. */
@@ -482,8 +425,8 @@ static void on_field(void *s, size_t len, void *data)
         p++, len--;
     while (len && is_blank(p[len - 1]))
         len--;
-    if (!reserve((void **)&r->fbuf, &r->fbuf_cap, r->fbuf_len + len + 1, 1) ||
-        !reserve((void **)&r->foff, &r->foff_cap, r->n_fields + 1, sizeof *r->foff)) {
+    if (!tf_buf_grow((void **)&r->fbuf, &r->fbuf_cap, r->fbuf_len + len + 1, 1, 16) ||
+        !tf_buf_grow((void **)&r->foff, &r->foff_cap, r->n_fields + 1, sizeof *r->foff, 16)) {
         r->nomem = true;
         return;
     }
@@ -690,7 +633,7 @@ static void read_data(reader *r)
         w.label_off = r->rows[r->n_rows - 1].label_off;
     } else {
         size_t n = strlen(label) + 1;
-        if (!reserve((void **)&r->labels, &r->labels_cap, r->labels_len + n, 1)) {
+        if (!tf_buf_grow((void **)&r->labels, &r->labels_cap, r->labels_len + n, 1, 16)) {
             r->nomem = true;
             return;
         }
@@ -698,7 +641,7 @@ static void read_data(reader *r)
         w.label_off = r->labels_len;
         r->labels_len += n;
     }
-    if (!reserve((void **)&r->rows, &r->rows_cap, r->n_rows + 1, sizeof *r->rows)) {
+    if (!tf_buf_grow((void **)&r->rows, &r->rows_cap, r->n_rows + 1, sizeof *r->rows, 16)) {
         r->nomem = true;
         return;
     }
@@ -757,7 +700,7 @@ static void csv_stop(reader *r)
 static bool check_encoding(reader *r, const char *s, size_t len, bool in_record, bool skipped)
 {
     const char *nul = memchr(s, '\0', len);
-    size_t bad = utf8_bad_at((const unsigned char *)s, len);
+    size_t bad = tf_utf8_bad_at(s, len);
     if (!nul && bad == len)
         return true;
     size_t at = nul && (size_t)(nul - s) < bad ? (size_t)(nul - s) : bad;
@@ -1160,7 +1103,7 @@ static tf_status read_file(const char *path, const tf_survey_options *o, tf_surv
     if (fstat(fileno(f), &info) == 0 && S_ISREG(info.st_mode) && info.st_size > TF_SURVEY_MAX_BYTES)
         goto too_big;
     for (;;) {
-        if (!reserve((void **)&buf, &cap, len + 65536, 1)) {
+        if (!tf_buf_grow((void **)&buf, &cap, len + 65536, 1, 16)) {
             st = tf_error_add(err, TF_ERR_NOMEM, path, 0, 0, NULL, "out of memory reading the survey");
             goto done;
         }

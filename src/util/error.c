@@ -66,21 +66,29 @@ void tf_error_print(const tf_error *err, const char *prog, FILE *out)
 {
     if (!err)
         return;
-    for (size_t i = 0; i < err->n_items; i++) {
+    tf_error_print_first(err, err->n_items, prog, out);
+    if (err->n_dropped)
+        fprintf(out, "%s: (%zu more error%s not shown)\n", prog ? prog : "tallyfit", err->n_dropped,
+                err->n_dropped == 1 ? "" : "s");
+}
+
+void tf_error_print_first(const tf_error *err, size_t n, const char *prog, FILE *out)
+{
+    if (!err)
+        return;
+    for (size_t i = 0; i < err->n_items && i < n; i++) {
         const tf_error_item *it = &err->items[i];
+        fprintf(out, "%s: error: ", prog ? prog : "tallyfit");
         if (it->file[0]) {
             fputs(it->file, out);
             if (it->line > 0)
                 fprintf(out, ":%ld", it->line);
             if (it->column > 0)
                 fprintf(out, ":%ld", it->column);
-        } else {
-            fputs(prog ? prog : "tallyfit", out);
+            fputs(": ", out);
         }
-        fprintf(out, ": error: %s\n", it->what);
+        fprintf(out, "%s\n", it->what);
         if (it->hint[0])
             fprintf(out, "  hint: %s\n", it->hint);
     }
-    if (err->n_dropped)
-        fprintf(out, "(%zu more error%s not shown)\n", err->n_dropped, err->n_dropped == 1 ? "" : "s");
 }

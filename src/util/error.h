@@ -56,8 +56,13 @@ tf_status tf_error_add(tf_error *err, tf_status status, const char *file, long l
 /* The status of the first message, or TF_OK when the record is empty. */
 tf_status tf_error_status(const tf_error *err);
 
-/* Prints every message as "file:line:column: error: what" plus "  hint: ..." lines, then a count of
- * dropped messages. prog prefixes messages that name no file. */
+/* The one printer of errors: every message as "prog: error: what", or "prog: error:
+ * file:line:column: what" when it names a place in a file (the form of the commands' warnings),
+ * each followed by "  hint: ..." when it has one, then a count of dropped messages. prog is the
+ * command ("tallyfit fit"); NULL prints "tallyfit". */
 void tf_error_print(const tf_error *err, const char *prog, FILE *out);
+
+/* The same for the first n messages only, without the count of the others. */
+void tf_error_print_first(const tf_error *err, size_t n, const char *prog, FILE *out);
 
 #endif

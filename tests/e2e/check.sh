@@ -55,7 +55,7 @@ while read -r file line phrase; do
   "$T" check "$p" >"$tmp/out" 2>"$tmp/err"; rc=$?
   [ $rc -eq 3 ] || bad "$p: exit $rc, want 3"
   [ -s "$tmp/out" ] && bad "$p: printed an overview"
-  grep -q "^$p:$line:" "$tmp/err" || bad "$p: stderr does not name $p:$line: $(head -n 1 "$tmp/err")"
+  grep -q "^tallyfit check: error: $p:$line:" "$tmp/err" || bad "$p: stderr does not name $p:$line: $(head -n 1 "$tmp/err")"
   grep -qF -- "$phrase" "$tmp/err" || bad "$p: stderr lacks '$phrase'"
   grep -q '^  hint: ' "$tmp/err" || bad "$p: no hint"
 done <tests/data/bad/EXPECT
@@ -93,7 +93,7 @@ grep -qF "max 3390" "$tmp/out" || bad "outlier: the count was not kept"
 cp tests/data/multi/one-short-population.csv "$tmp/three.csv"
 "$T" check "$tmp/three.csv" 2>"$tmp/err"; rc=$?
 [ $rc -eq 3 ] || bad "short population: exit $rc, want 3"
-grep -qF "three.csv:7:3: error: population 'short' has 1 surveyed year" "$tmp/err" || bad "short: $(cat "$tmp/err")"
+grep -qF "tallyfit check: error: $tmp/three.csv:7:3: population 'short' has 1 surveyed year" "$tmp/err" || bad "short: $(cat "$tmp/err")"
 grep -qF -- "--skip-unusable" "$tmp/err" || bad "short: the hint does not name --skip-unusable"
 "$T" check "$tmp/three.csv" --skip-unusable >"$tmp/out" 2>"$tmp/err" || bad "--skip-unusable: non-zero exit"
 grep -qF "warning: $tmp/three.csv:7: population 'short' is left out" "$tmp/err" || bad "--skip-unusable: no warning"
@@ -123,13 +123,13 @@ grep -qF "not a model estimate" "$tmp/out" || bad "--help: does not explain the 
 "$T" check --frobnicate surveys/heron-colony.csv >"$tmp/out" 2>"$tmp/err"; rc=$?
 [ $rc -eq 2 ] || bad "unknown option: exit $rc, want 2"
 grep -qF "unknown option '--frobnicate'" "$tmp/err" || bad "unknown option: not named"
-grep -qF "see 'tallyfit check --help'" "$tmp/err" || bad "unknown option: no hint"
+grep -qxF "  hint: run 'tallyfit check --help' for the options" "$tmp/err" || bad "unknown option: no hint"
 "$T" check -z surveys/heron-colony.csv 2>/dev/null; [ $? -eq 2 ] || bad "unknown short option: want exit 2"
 "$T" check 2>/dev/null; [ $? -eq 2 ] || bad "no file: want exit 2"
 "$T" check surveys/heron-colony.csv surveys/three-herds.csv 2>/dev/null; [ $? -eq 2 ] || bad "two files: want exit 2"
 "$T" check "$tmp/none.csv" 2>"$tmp/err"; rc=$?
 [ $rc -eq 3 ] || bad "missing file: exit $rc, want 3"
-grep -qF "$tmp/none.csv: error: cannot open the survey file: No such file or directory" "$tmp/err" ||
+grep -qxF "tallyfit check: error: $tmp/none.csv: cannot open the survey file: No such file or directory" "$tmp/err" ||
   bad "missing file: $(cat "$tmp/err")"
 "$T" --help | grep -q '^  check ' || bad "tallyfit --help does not list check"
 

@@ -132,7 +132,7 @@ EOF
 # Without --estimates the fractions are refused where they are read, before any fit.
 "$T" compare "$tmp/index.csv" --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 3 ] || bad "index without --estimates: exit $rc, want 3"
-grep -qF "index.csv:2:2: error: count 12.5 is not a whole number" "$tmp/stderr" || bad "index: $(head -n 1 "$tmp/stderr")"
+grep -qF "tallyfit compare: error: $tmp/index.csv:2:2: count 12.5 is not a whole number" "$tmp/stderr" || bad "index: $(head -n 1 "$tmp/stderr")"
 [ -e "$tmp/index" ] && bad "index without --estimates: something was written"
 "$T" compare "$tmp/index.csv" --estimates --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "index: exit $rc"; cat "$tmp/stderr" >&2; }

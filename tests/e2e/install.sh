@@ -14,9 +14,15 @@ done
 page=$tmp/usr/share/man/man1/tallyfit.1
 [ -s "$page" ] || fail "no manual page"
 # Every command of `tallyfit --help` has its own section in the page.
-for c in $("$tmp/usr/bin/tallyfit" --help | awk '/^commands:/{on=1; next} on && NF {print $1}'); do
+for c in $("$tmp/usr/bin/tallyfit" --help | awk '/^commands:/{on=1; next} on && !NF {exit} on {print $1}'); do
   grep -q "^\.SS $c\$" "$page" || fail "manual page lacks command $c"
 done
+# The exit statuses the commands' help texts share, once, under EXIT STATUS: each code of cmd.h.
+for code in $(sed -n 's/^ *TF_EXIT_[A-Z]* = \([0-9]*\),.*/\1/p' src/cmd/cmd.h); do
+  awk '/^\.SH EXIT STATUS/{on=1; next} /^\.SH/{on=0} on' "$page" | grep -qE "^  $code +[a-z]" ||
+    fail "manual page: exit status $code not under EXIT STATUS"
+done
+[ "$(grep -c '^exit status:' "$page")" -eq 0 ] || fail "manual page repeats the exit statuses per command"
 if command -v groff >/dev/null; then
   warn=$(groff -man -Tutf8 -ww -z "$page" 2>&1) || fail "groff failed"
   [ -z "$warn" ] || fail "groff warnings: $warn"

@@ -59,7 +59,7 @@ grep -qF "tallyfit compare: $warning" "$tmp/err" || bad "compare --skip-unusable
 # Choosing the unusable one, or leaving every one out, is an error.
 "$T" fit "$H" --population short --model exponential "${SHORT[@]}" -q -o "$tmp/x" 2>"$tmp/err"; rc=$?
 [ $rc -eq 3 ] || bad "fit --population short: exit $rc, want 3"
-grep -qF "$H:7:3: error: population 'short' has 1 surveyed year" "$tmp/err" || bad "fit --population short: $(cat "$tmp/err")"
+grep -qF "tallyfit fit: error: $H:7:3: population 'short' has 1 surveyed year" "$tmp/err" || bad "fit --population short: $(cat "$tmp/err")"
 "$T" fit "$H" --population short --skip-unusable --model exponential "${SHORT[@]}" -q -o "$tmp/x" 2>"$tmp/err"; rc=$?
 [ $rc -eq 3 ] || bad "nothing left: exit $rc, want 3"
 grep -qF "no usable population is left (1 left out)" "$tmp/err" || bad "nothing left: $(cat "$tmp/err")"

@@ -132,9 +132,9 @@ expect 2 "no population named 'south'" "$T" likelihood surveys/three-herds.csv -
 
 # Unusable input: exit 3, naming the file and line.
 printf 'year,count\n2000,10\n2001,12.5\n2002,11\n2003,0\n2004,9\n2005,8\n' >"$tmp/frac.csv"
-expect 3 "frac.csv:3:2: error: count 12.5 is not a whole number" \
+expect 3 "^tallyfit likelihood: error: .*/frac.csv:3:2: count 12.5 is not a whole number" \
   "$T" likelihood "$tmp/frac.csv" --model ricker --set r=0.5,K=20,sigma=0.1
-expect 3 "frac.csv:5: error: count 0 .*lognormal" "$T" likelihood "$tmp/frac.csv" --estimates --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2
+expect 3 "^tallyfit likelihood: error: .*/frac.csv:5: count 0 .*lognormal" "$T" likelihood "$tmp/frac.csv" --estimates --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2
 expect 3 "hint: use a count model such as poisson or negbin" "$T" likelihood "$tmp/frac.csv" --estimates --model ricker --obs lognormal --set r=0.5,K=20,sigma=0.1,tau=0.2
 expect 2 "with --estimates use --obs lognormal" "$T" likelihood "$tmp/frac.csv" --estimates --model ricker --obs poisson --set r=0.5,K=20,sigma=0.1
 expect 3 "stdin:3:" sh -c "'$T' likelihood - --model ricker --obs negbin --set r=0.5,K=20,sigma=0.1,phi=3 <'$tmp/frac.csv'"

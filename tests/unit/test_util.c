@@ -33,8 +33,34 @@ START_TEST(error_record_caps_and_counts)
     FILE *f = fmemopen(buf, sizeof buf, "w");
     tf_error_print(&err, "tallyfit", f);
     fclose(f);
-    ck_assert_ptr_nonnull(strstr(buf, "a.csv:1:2: error: bad 0"));
-    ck_assert_ptr_nonnull(strstr(buf, "(5 more errors not shown)"));
+    ck_assert_ptr_nonnull(strstr(buf, "tallyfit: error: a.csv:1:2: bad 0\n"));
+    ck_assert_ptr_nonnull(strstr(buf, "tallyfit: (5 more errors not shown)\n"));
+}
+END_TEST
+
+/* One format for every error: "prog: error: [file[:line[:column]]: ]what", then the hint. */
+START_TEST(error_print_one_format)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "run 'tallyfit fit --help'", "unknown option '--bogus'");
+    tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "no survey file given");
+    tf_error_add(&err, TF_ERR_IO, "s.csv", 0, 0, NULL, "cannot open");
+    tf_error_add(&err, TF_ERR_PARSE, "s.csv", 7, 0, NULL, "bad row");
+    char buf[4096];
+    FILE *f = fmemopen(buf, sizeof buf, "w");
+    tf_error_print(&err, "tallyfit fit", f);
+    fclose(f);
+    ck_assert_str_eq(buf, "tallyfit fit: error: unknown option '--bogus'\n"
+                          "  hint: run 'tallyfit fit --help'\n"
+                          "tallyfit fit: error: no survey file given\n"
+                          "tallyfit fit: error: s.csv: cannot open\n"
+                          "tallyfit fit: error: s.csv:7: bad row\n");
+    f = fmemopen(buf, sizeof buf, "w");
+    tf_error_print_first(&err, 1, "tallyfit fit", f);
+    fclose(f);
+    ck_assert_str_eq(buf, "tallyfit fit: error: unknown option '--bogus'\n"
+                          "  hint: run 'tallyfit fit --help'\n");
 }
 END_TEST
 
@@ -116,6 +142,7 @@ static Suite *make_suite(void)
     tcase_set_timeout(tc, 60);
     tcase_add_test(tc, status_table_matches_enum);
     tcase_add_test(tc, error_record_caps_and_counts);
+    tcase_add_test(tc, error_print_one_format);
     tcase_add_test(tc, streams_reproduce_and_differ);
     tcase_add_test(tc, normals_have_normal_distribution);
     tcase_add_test(tc, gsl_view_uses_the_stream);

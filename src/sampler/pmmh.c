@@ -53,15 +53,15 @@ tf_pmmh_options tf_pmmh_default_options(void)
         .min_iter = 2000,
         .max_iter = 160000,
         .min_ess = TF_FIT_ESS_MIN,
-        /* Every iteration kept until 2000 per chain are, then every second, and so on: 8000
-         * draws of 4 chains are 20 times the ESS the run stops at, enough for the marginal
+        /* Every iteration kept until 1000 per chain are, then every second, and so on: 4000
+         * draws of 4 chains are 10 times the ESS the run stops at, enough for the marginal
          * likelihood's mixture fit and the projections' starts (common practice, no source),
          * and everything downstream holds and writes every draw (analyze's workbook has a sheet
-         * of them): with 4000 per chain the three-population demo survey peaked at 320 MB in
-         * bench_analyze. Thinning trims memory only: it never adds information (MacEachern &
-         * Berliner 1994, The American Statistician 48:188). */
+         * of them): the three-population demo survey peaked in bench_analyze at 320 MB with
+         * 4000 per chain and 186 MB with 2000. Thinning trims memory only: it never adds
+         * information (MacEachern & Berliner 1994, The American Statistician 48:188). */
         .thin = 1,
-        .max_kept = 2000,
+        .max_kept = 1000,
         .n_warmup = 5000,
         .n_threads = 1,
         .seed = 1,
@@ -83,9 +83,9 @@ tf_pmmh_options tf_pmmh_default_options(void)
          * (river-flats theta-logistic 1.3; heron gompertz 1.1 and 1.8, ricker 0.64 and 1.07 by
          * hand) and lost for the log-normal (heron exponential 0.57). With the guided filter,
          * tuned to 10 particles, a filter run costs little more than the screen and the chain
-         * step, and it loses everywhere: 0.84, 0.73, 0.72, 0.77 and 0.39 on the same cases
-         * (geometric mean 0.67). The second stage accepts with the ratio of (estimate / screen)
-         * between the two points, so it sees as noise the estimate's noise and how the screen's
+         * step: 1.21, 0.85, 1.30, 1.12 and 0.32 on the same cases (geometric mean 0.86), gains
+         * within the noise of two seeds beside a large loss. The second stage accepts with the
+         * ratio of (estimate / screen) between the two points, so it sees as noise the estimate's noise and how the screen's
          * error changes between points, and the chain mixes worse per iteration; that only pays
          * where a filter run is expensive. --delayed-acceptance on remains for such fits (the
          * bootstrap filter on large counts). */

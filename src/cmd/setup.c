@@ -108,10 +108,12 @@ tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *pri
         for (size_t i = 0; i < n; i++)
             names[i] = tf_model_param_name(m, i);
         /* A user's file naming a parameter the model lacks is a mistake worth stopping for, and
-         * so is a file made for another model (a copy of exponential.ini given to a Ricker fit
-         * would quietly set the shared parameters only). */
+         * so is a file made for another growth model (a copy of exponential.ini given to a Ricker
+         * fit would quietly set the shared parameters only). A name that is no growth model's (a
+         * label of the user's own) is taken as it is. */
         const char *fname = tf_model_file_name(user);
-        if (strcmp(fname, tf_model_growth(m)->name) && strcmp(fname, tf_model_name(m)) && strcmp(fname, "observation")) {
+        const tf_growth_type *named = tf_model_find_growth(fname);
+        if (named && named != tf_model_growth(m)) {
             st = tf_error_add(err, TF_ERR_INVALID, tf_model_file_label(user), 0, 0,
                               "set name in its [model] section to the model it is for",
                               "the priors file is for model '%s', not %s", fname, tf_model_name(m));

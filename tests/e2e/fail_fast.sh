@@ -98,7 +98,7 @@ expect "likelihood --population short" 3 "population 'short' has 1 surveyed year
 expect "check --population north" 2 "no population named 'north'" "$T" check "$tmp/three.csv" --population north
 expect "forecast --estimates --obs poisson" 2 "--obs poisson is a model of whole counts" \
   "$T" forecast "$S" --model ricker --obs poisson --estimates "${LONG[@]}" -o "$tmp/o-pop"
-expect "analyze, a bad threshold" 2 "--threshold" "$T" analyze "$S" --threshold 50,abc "${LONG[@]}" -o "$tmp/o-pop"
+expect "analyze, a bad threshold" 2 "threshold 'abc' is not a number" "$T" analyze "$S" --threshold 50,abc "${LONG[@]}" -o "$tmp/o-pop"
 # The last population suits no candidate (a zero under log-normal counting error): refused before
 # the first population is fitted.
 sed 's/^west,2003,5$/west,2003,0/; /^short,/d' "$tmp/three.csv" >"$tmp/zero.csv"

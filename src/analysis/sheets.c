@@ -12,6 +12,7 @@
 #include "analysis/wording.h"
 #include "compare/pareto.h"
 #include "export/compare_table.h"
+#include "export/csv_out.h"
 #include "export/projection_tables.h"
 #include "project/cautions.h"
 #include "util/version.h"
@@ -534,8 +535,8 @@ fail:
     return st;
 }
 
-static tf_status draws_sheet(const tf_analysis *a, const tf_analysis_pop *p, const size_t *order, tf_report *r,
-                             tf_error *err)
+static tf_status draws_sheet(const tf_analysis *a, const tf_analysis_pop *p, const size_t *order, int in_workbook,
+                             tf_report *r, tf_error *err)
 {
     tf_status st;
     tf_table *t = new_table(a, p, "draws", err);
@@ -604,10 +605,13 @@ static tf_status draws_sheet(const tf_analysis *a, const tf_analysis_pop *p, con
     size_t idx;
     tf_table *mine = t;
     t = NULL;
-    TRY(tf_report_add_table(r, mine, too_long ? "raw posterior draws of every model (too many rows for a sheet)"
-                                           : "raw posterior draws of every model",
+    TRY(tf_report_add_table(r, mine,
+                            too_long       ? "raw posterior draws of every model (CSV only: too many rows for a sheet)"
+                            : in_workbook ? "raw posterior draws of every model"
+                                          : "raw posterior draws of every model (CSV only; --workbook-draws puts "
+                                            "them in the workbook)",
                             &idx, err));
-    if (too_long)
+    if (too_long || !in_workbook)
         tf_report_set_csv_only(r, idx);
     return TF_OK;
 fail:
@@ -633,6 +637,31 @@ void tf_sheets_sentences(const tf_analysis *a, size_t population, char *buf, siz
         tf_wording_risk(&th, years, tf_projection_risk(pr, 0, years), risk, sizeof risk);
     }
     snprintf(buf, size, "%s%s%s", trend, risk[0] ? " " : "", risk);
+}
+
+/* Where the population's raw draws are: the first page says it, since by default they are not in
+ * the workbook. The file name is the one the report gives the draws table (its name made a file
+ * name, export/csv_out.h). */
+static tf_status draws_item(const tf_analysis *a, const tf_analysis_pop *p, const tf_sheets_provenance *prov,
+                            tf_table *t, tf_error *err)
+{
+    char name[128], file[96], text[512];
+    table_name(name, sizeof name, a, p, "draws");
+    tf_csv_file_name(name, file, sizeof file);
+    size_t n_rows = 0;
+    for (size_t i = 0; i < tf_analysis_pop_n_models(p); i++)
+        if (tf_analysis_pop_model(p, i)->fit)
+            n_rows += tf_fit_n_draws(tf_analysis_pop_model(p, i)->fit);
+    const char *place = prov->csv_place ? prov->csv_place : "the CSV files written with this workbook";
+    if (prov->workbook_draws && n_rows <= TF_REPORT_SHEET_ROWS)
+        snprintf(text, sizeof text, "on the sheet '%s', and as %s in %s", name, file, place);
+    else
+        snprintf(text, sizeof text, "CSV only: %s in %s", file, place);
+    return tf_table_add_item_text(t, "Raw posterior draws", text,
+                                  prov->workbook_draws ? "every kept draw of every model"
+                                                       : "every kept draw of every model; kept out of the workbook to "
+                                                         "keep it light (--workbook-draws puts them in)",
+                                  err);
 }
 
 static tf_status population_items(const tf_analysis *a, size_t pi, const tf_sheets_provenance *prov, tf_table *t,
@@ -706,6 +735,7 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_shee
                                err));
     if (!conv)
         TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
+    TRY(draws_item(a, p, prov, t, err));
     return TF_OK;
 fail:
     return st;
@@ -948,7 +978,7 @@ tf_status tf_sheets_build(const tf_analysis *a, const tf_sheets_provenance *prov
         if ((st = counts_sheet(a, p, r, err)) != TF_OK || (st = projection_sheets(a, p, r, err)) != TF_OK ||
             (st = models_sheet(a, p, r, err)) != TF_OK || (st = change_sheet(a, p, order, r, err)) != TF_OK ||
             (st = parameters_sheet(a, p, order, r, err)) != TF_OK ||
-            (st = diagnostics_sheet(a, p, order, !prov->omit_seconds, r, err)) != TF_OK || (st = draws_sheet(a, p, order, r, err)) != TF_OK)
+            (st = diagnostics_sheet(a, p, order, !prov->omit_seconds, r, err)) != TF_OK || (st = draws_sheet(a, p, order, prov->workbook_draws, r, err)) != TF_OK)
             break;
     }
     return st;

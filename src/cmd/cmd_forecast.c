@@ -793,7 +793,7 @@ static int finish(const options *o, job *jobs, size_t n_jobs)
         if (st == TF_ERR_INTERRUPTED)
             return TF_EXIT_INTERRUPTED;
         tf_error_print(&err, PROG, stderr);
-        return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_FAIL;
+        return tf_args_exit_code(st);
     }
     for (size_t i = 0; i < n_jobs; i++) {
         if (!o->quiet) {

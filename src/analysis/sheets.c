@@ -484,22 +484,13 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
         tf_table_set_number(t, row, c_k, k_main);
         const tf_fit *f = m->fit;
         const tf_fit_settings *fs = tf_fit_settings_of(f);
-        double acc = 0, acc_min = INFINITY, inv = 0, rhat = -INFINITY, bulk = INFINITY, tail = INFINITY;
+        /* One health summary with one NaN rule (sampler/fit.h): an undiagnosable parameter
+         * leaves the cell empty and flagged. */
+        tf_fit_health_summary h = tf_fit_health(f);
+        double rhat = h.max_rhat, bulk = h.min_bulk_ess, tail = h.min_tail_ess;
         size_t nc = tf_fit_n_chains(f);
-        for (size_t c = 0; c < nc; c++) {
-            acc += tf_fit_acceptance(f, c) / (double)nc;
-            acc_min = fmin(acc_min, tf_fit_acceptance(f, c));
-            inv += tf_fit_invalid_share(f, c) / (double)nc;
-        }
-        for (size_t j = 0; j < tf_fit_n_params(f); j++) {
-            const tf_fit_param_summary *ps = tf_fit_param(f, j);
-            /* NaN (a parameter that never moved) counts as the worst value. */
-            rhat = isnan(ps->rhat) ? INFINITY : fmax(rhat, ps->rhat);
-            bulk = isnan(ps->ess_bulk) ? 0 : fmin(bulk, ps->ess_bulk);
-            tail = isnan(ps->ess_tail) ? 0 : fmin(tail, ps->ess_tail);
-        }
         double v[] = {(double)nc, (double)fs->n_iterations, (double)tf_fit_n_iter(f), (double)fs->thin, (double)fs->n_warmup, (double)fs->n_particles,
-                      fs->loglik_sd, acc, acc_min, inv, rhat, bulk, tail};
+                      fs->loglik_sd, h.mean_acceptance, h.min_acceptance, h.mean_invalid, rhat, bulk, tail};
         size_t c[] = {c_chains, c_run, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail};
         for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
             tf_table_set_number(t, row, c[k], v[k]);
@@ -516,10 +507,16 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
                 used += (size_t)w_ < sizeof status - used ? (size_t)w_ : sizeof status - 1 - used;                     \
         }                                                                                                              \
     } while (0)
-        FLAG(!(rhat <= TF_FIT_RHAT_MAX), c_rhat, "R-hat high: run longer chains");
-        FLAG(!(bulk >= TF_FIT_ESS_MIN), c_bulk, "few effective draws");
-        FLAG(!(tail >= TF_FIT_ESS_MIN), c_tail, "few effective draws in the tails");
-        FLAG(acc_min < TF_SHEETS_ACCEPT_MIN, c_accmin, "a chain rarely moves");
+        FLAG(h.n_undiagnosed > 0, isnan(rhat) ? c_rhat : isnan(bulk) ? c_bulk : c_tail, "R-hat or ESS undefined: chains too sticky or too short to diagnose");
+        FLAG(rhat > TF_FIT_RHAT_MAX, c_rhat, "R-hat high: run longer chains");
+        FLAG(bulk < TF_FIT_ESS_MIN, c_bulk, "few effective draws");
+        FLAG(tail < TF_FIT_ESS_MIN, c_tail, "few effective draws in the tails");
+        /* An undefined ESS is flagged too; the status has said why once above. */
+        if (isnan(bulk))
+            TRY(tf_table_set_warning(t, row, c_bulk, err));
+        if (isnan(tail))
+            TRY(tf_table_set_warning(t, row, c_tail, err));
+        FLAG(h.min_acceptance < TF_SHEETS_ACCEPT_MIN, c_accmin, "a chain rarely moves");
         FLAG(fs->loglik_sd > TF_SHEETS_LOGLIK_SD_MAX, c_llsd, "noisy likelihood: use more particles");
         FLAG(!(k_main <= TF_PARETO_K_MAX), c_k, "log ML unreliable");
 #undef FLAG

@@ -165,9 +165,13 @@ def check_warnings(ws, rows, first):
     for i, crow in enumerate(rows[1:]):
         for col, bad in limits.items():
             j = h.index(col)
-            if crow[j] == "":
-                continue
             cell = ws.cell(row=first + i, column=j + 1)
+            if crow[j] == "":
+                # An undefined R-hat or ESS (NaN, shown empty) ranks worst and is flagged
+                # (tf_fit_health in src/sampler/fit.h).
+                if col in ("Max R-hat", "Min bulk ESS", "Min tail ESS"):
+                    check(warned(cell), f"Diagnostics!{cell.coordinate} ({col} undefined): not flagged")
+                continue
             check(warned(cell) == bad(float(crow[j])),
                   f"Diagnostics!{cell.coordinate} ({col} = {crow[j]}): warning colour {'missing' if bad(float(crow[j])) else 'unexpected'}")
 

@@ -12,6 +12,7 @@
 #include "analysis/wording.h"
 #include "compare/pareto.h"
 #include "export/compare_table.h"
+#include "export/csv_out.h"
 #include "export/projection_tables.h"
 #include "project/cautions.h"
 #include "util/version.h"
@@ -483,22 +484,13 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
         tf_table_set_number(t, row, c_k, k_main);
         const tf_fit *f = m->fit;
         const tf_fit_settings *fs = tf_fit_settings_of(f);
-        double acc = 0, acc_min = INFINITY, inv = 0, rhat = -INFINITY, bulk = INFINITY, tail = INFINITY;
+        /* One health summary with one NaN rule (sampler/fit.h): an undiagnosable parameter
+         * leaves the cell empty and flagged. */
+        tf_fit_health_summary h = tf_fit_health(f);
+        double rhat = h.max_rhat, bulk = h.min_bulk_ess, tail = h.min_tail_ess;
         size_t nc = tf_fit_n_chains(f);
-        for (size_t c = 0; c < nc; c++) {
-            acc += tf_fit_acceptance(f, c) / (double)nc;
-            acc_min = fmin(acc_min, tf_fit_acceptance(f, c));
-            inv += tf_fit_invalid_share(f, c) / (double)nc;
-        }
-        for (size_t j = 0; j < tf_fit_n_params(f); j++) {
-            const tf_fit_param_summary *ps = tf_fit_param(f, j);
-            /* NaN (a parameter that never moved) counts as the worst value. */
-            rhat = isnan(ps->rhat) ? INFINITY : fmax(rhat, ps->rhat);
-            bulk = isnan(ps->ess_bulk) ? 0 : fmin(bulk, ps->ess_bulk);
-            tail = isnan(ps->ess_tail) ? 0 : fmin(tail, ps->ess_tail);
-        }
         double v[] = {(double)nc, (double)fs->n_iterations, (double)tf_fit_n_iter(f), (double)fs->thin, (double)fs->n_warmup, (double)fs->n_particles,
-                      fs->loglik_sd, acc, acc_min, inv, rhat, bulk, tail};
+                      fs->loglik_sd, h.mean_acceptance, h.min_acceptance, h.mean_invalid, rhat, bulk, tail};
         size_t c[] = {c_chains, c_run, c_iter, c_thin, c_warm, c_part, c_llsd, c_acc, c_accmin, c_inv, c_rhat, c_bulk, c_tail};
         for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
             tf_table_set_number(t, row, c[k], v[k]);
@@ -515,10 +507,16 @@ static tf_status diagnostics_sheet(const tf_analysis *a, const tf_analysis_pop *
                 used += (size_t)w_ < sizeof status - used ? (size_t)w_ : sizeof status - 1 - used;                     \
         }                                                                                                              \
     } while (0)
-        FLAG(!(rhat <= TF_FIT_RHAT_MAX), c_rhat, "R-hat high: run longer chains");
-        FLAG(!(bulk >= TF_FIT_ESS_MIN), c_bulk, "few effective draws");
-        FLAG(!(tail >= TF_FIT_ESS_MIN), c_tail, "few effective draws in the tails");
-        FLAG(acc_min < TF_SHEETS_ACCEPT_MIN, c_accmin, "a chain rarely moves");
+        FLAG(h.n_undiagnosed > 0, isnan(rhat) ? c_rhat : isnan(bulk) ? c_bulk : c_tail, "R-hat or ESS undefined: chains too sticky or too short to diagnose");
+        FLAG(rhat > TF_FIT_RHAT_MAX, c_rhat, "R-hat high: run longer chains");
+        FLAG(bulk < TF_FIT_ESS_MIN, c_bulk, "few effective draws");
+        FLAG(tail < TF_FIT_ESS_MIN, c_tail, "few effective draws in the tails");
+        /* An undefined ESS is flagged too; the status has said why once above. */
+        if (isnan(bulk))
+            TRY(tf_table_set_warning(t, row, c_bulk, err));
+        if (isnan(tail))
+            TRY(tf_table_set_warning(t, row, c_tail, err));
+        FLAG(h.min_acceptance < TF_SHEETS_ACCEPT_MIN, c_accmin, "a chain rarely moves");
         FLAG(fs->loglik_sd > TF_SHEETS_LOGLIK_SD_MAX, c_llsd, "noisy likelihood: use more particles");
         FLAG(!(k_main <= TF_PARETO_K_MAX), c_k, "log ML unreliable");
 #undef FLAG
@@ -534,8 +532,8 @@ fail:
     return st;
 }
 
-static tf_status draws_sheet(const tf_analysis *a, const tf_analysis_pop *p, const size_t *order, tf_report *r,
-                             tf_error *err)
+static tf_status draws_sheet(const tf_analysis *a, const tf_analysis_pop *p, const size_t *order, int in_workbook,
+                             tf_report *r, tf_error *err)
 {
     tf_status st;
     tf_table *t = new_table(a, p, "draws", err);
@@ -604,10 +602,13 @@ static tf_status draws_sheet(const tf_analysis *a, const tf_analysis_pop *p, con
     size_t idx;
     tf_table *mine = t;
     t = NULL;
-    TRY(tf_report_add_table(r, mine, too_long ? "raw posterior draws of every model (too many rows for a sheet)"
-                                           : "raw posterior draws of every model",
+    TRY(tf_report_add_table(r, mine,
+                            too_long       ? "raw posterior draws of every model (CSV only: too many rows for a sheet)"
+                            : in_workbook ? "raw posterior draws of every model"
+                                          : "raw posterior draws of every model (CSV only; --workbook-draws puts "
+                                            "them in the workbook)",
                             &idx, err));
-    if (too_long)
+    if (too_long || !in_workbook)
         tf_report_set_csv_only(r, idx);
     return TF_OK;
 fail:
@@ -633,6 +634,31 @@ void tf_sheets_sentences(const tf_analysis *a, size_t population, char *buf, siz
         tf_wording_risk(&th, years, tf_projection_risk(pr, 0, years), risk, sizeof risk);
     }
     snprintf(buf, size, "%s%s%s", trend, risk[0] ? " " : "", risk);
+}
+
+/* Where the population's raw draws are: the first page says it, since by default they are not in
+ * the workbook. The file name is the one the report gives the draws table (its name made a file
+ * name, export/csv_out.h). */
+static tf_status draws_item(const tf_analysis *a, const tf_analysis_pop *p, const tf_sheets_provenance *prov,
+                            tf_table *t, tf_error *err)
+{
+    char name[128], file[96], text[512];
+    table_name(name, sizeof name, a, p, "draws");
+    tf_csv_file_name(name, file, sizeof file);
+    size_t n_rows = 0;
+    for (size_t i = 0; i < tf_analysis_pop_n_models(p); i++)
+        if (tf_analysis_pop_model(p, i)->fit)
+            n_rows += tf_fit_n_draws(tf_analysis_pop_model(p, i)->fit);
+    const char *place = prov->csv_place ? prov->csv_place : "the CSV files written with this workbook";
+    if (prov->workbook_draws && n_rows <= TF_REPORT_SHEET_ROWS)
+        snprintf(text, sizeof text, "on the sheet '%s', and as %s in %s", name, file, place);
+    else
+        snprintf(text, sizeof text, "CSV only: %s in %s", file, place);
+    return tf_table_add_item_text(t, "Raw posterior draws", text,
+                                  prov->workbook_draws ? "every kept draw of every model"
+                                                       : "every kept draw of every model; kept out of the workbook to "
+                                                         "keep it light (--workbook-draws puts them in)",
+                                  err);
 }
 
 static tf_status population_items(const tf_analysis *a, size_t pi, const tf_sheets_provenance *prov, tf_table *t,
@@ -706,6 +732,7 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_shee
                                err));
     if (!conv)
         TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
+    TRY(draws_item(a, p, prov, t, err));
     return TF_OK;
 fail:
     return st;
@@ -948,7 +975,7 @@ tf_status tf_sheets_build(const tf_analysis *a, const tf_sheets_provenance *prov
         if ((st = counts_sheet(a, p, r, err)) != TF_OK || (st = projection_sheets(a, p, r, err)) != TF_OK ||
             (st = models_sheet(a, p, r, err)) != TF_OK || (st = change_sheet(a, p, order, r, err)) != TF_OK ||
             (st = parameters_sheet(a, p, order, r, err)) != TF_OK ||
-            (st = diagnostics_sheet(a, p, order, !prov->omit_seconds, r, err)) != TF_OK || (st = draws_sheet(a, p, order, r, err)) != TF_OK)
+            (st = diagnostics_sheet(a, p, order, !prov->omit_seconds, r, err)) != TF_OK || (st = draws_sheet(a, p, order, prov->workbook_draws, r, err)) != TF_OK)
             break;
     }
     return st;

@@ -1,7 +1,8 @@
 /* The tables of an analysis, laid out for the report: a first page for managers, one row per
  * population, and per population its counts and estimated abundance, projection, quasi-extinction
- * curves, declines, model comparison, parameter summaries, sampler diagnostics and raw draws,
- * each with its legend, notes, warnings and charts. Only formats what the analysis holds. */
+ * curves, declines, model comparison, parameter summaries, sampler diagnostics and raw draws
+ * (CSV only unless asked for in the workbook), each with its legend, notes, warnings and charts.
+ * Only formats what the analysis holds. */
 #ifndef TF_SHEETS_H
 #define TF_SHEETS_H
 
@@ -24,6 +25,13 @@ typedef struct {
     /* The survey whose set-aside populations (tf_survey_rejected_at) were left out of the run on
      * request (--skip-unusable), each named on the first page with its problem; NULL = none. */
     const tf_survey *left_out_from;
+    /* Put each population's raw posterior draws in the workbook too. By default they are written
+     * as CSV only: a sheet of every draw weighs tens of megabytes of XML, which makes the
+     * workbook slow to open for readers who never look at it. */
+    int workbook_draws;
+    /* Where a reader of the workbook finds its CSV twins, in words, e.g. "the folder
+     * heron-colony/ beside this workbook"; NULL when not said. */
+    const char *csv_place;
 } tf_sheets_provenance;
 
 /* Thresholds for flagging a sampler diagnostic. R-hat and ESS use TF_FIT_RHAT_MAX and

@@ -176,7 +176,7 @@ tf_status tf_batch_new(const tf_survey *sv, const tf_batch_options *o, tf_batch 
         goto fail;
     tf_provenance_format_date(tf_provenance_now(), b->date);
     const tf_analysis_options *a = &b->o.analysis;
-    if ((st = tf_records_settings(a, b->sha256, b->workbooks, b->o.extra_settings, &b->settings, err)) != TF_OK)
+    if ((st = tf_records_settings(a, b->sha256, b->workbooks, b->o.workbook_draws, b->o.extra_settings, &b->settings, err)) != TF_OK)
         goto fail;
     tf_provenance_hash_bytes(b->settings, strlen(b->settings), b->settings_hash);
     if ((st = name_folders(b, err)) != TF_OK || (st = tf_records_header(&a->project, &b->header, err)) != TF_OK)
@@ -695,7 +695,9 @@ tf_status tf_batch_run_one(const tf_batch *b, size_t i, size_t n_threads, const 
                 snprintf(res->reason, sizeof res->reason, "%s", e->what);
         } else {
             res->state = TF_BATCH_DONE;
-            tf_sheets_provenance prov = {.input_name = b->o.survey_path, .title = b->o.title, .omit_seconds = 1};
+            tf_sheets_provenance prov = {.input_name = b->o.survey_path, .title = b->o.title, .omit_seconds = 1,
+                                         .workbook_draws = b->o.workbook_draws,
+                                         .csv_place = "the same folder as this workbook"};
             memcpy(prov.sha256, b->sha256, sizeof prov.sha256);
             memcpy(prov.date, b->date, sizeof prov.date);
             if (!(r = tf_report_new(err)) || (st = tf_sheets_build(a, &prov, r, err)) != TF_OK)
@@ -887,7 +889,10 @@ static tf_status about_table(const tf_batch *b, tf_table **out, tf_error *err)
     }
     snprintf(text, sizeof text, "%s/%s/<population>/", b->o.root, TF_BATCH_POP_DIR);
     TRY(tf_table_add_item_text(t, "Tables of each population", text,
-                               b->workbooks ? "CSV files and a workbook per population" : "CSV files", err));
+                               !b->workbooks         ? "CSV files"
+                               : b->o.workbook_draws ? "CSV files and a workbook per population"
+                                                     : "CSV files and a workbook per population (raw draws as CSV only)",
+                               err));
     TRY(tf_table_add_heading(t, "How this was made", err));
     TRY(tf_table_add_item_text(t, "Survey file", b->o.survey_path, NULL, err));
     TRY(tf_table_add_item_text(t, "SHA-256 of the file", b->sha256, "identifies the exact file that was read", err));

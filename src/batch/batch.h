@@ -37,6 +37,7 @@ typedef struct {
     const char *root;            /* the batch folder, e.g. output/scheme */
     const char *workbook;        /* the summary workbook, e.g. output/scheme.xlsx */
     size_t workbook_limit;       /* per-population workbooks up to this many populations */
+    int workbook_draws;          /* those workbooks hold the raw draws too (else CSV only) */
     /* More lines for the settings record (e.g. hashes of the model files the priors come
      * from); may be NULL. A run continues an earlier one only when every line is the same. */
     const char *extra_settings;

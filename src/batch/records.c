@@ -40,8 +40,8 @@ static void names_line(FILE *f, const char *key, const char *const *names, size_
 
 /* Every setting that changes a number in the outputs, one per line, so that a mismatch can be
  * named. The thread count is not among them: the results do not depend on it. */
-tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, int workbooks, const char *extra,
-                              char **out, tf_error *err)
+tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, int workbooks, int workbook_draws,
+                              const char *extra, char **out, tf_error *err)
 {
     char *text = NULL;
     size_t len = 0;
@@ -94,6 +94,10 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     fputc('\n', f);
     line(f, "decline-window", "%zu", p->decline_window);
     line(f, "population-workbooks", "%s", workbooks ? "yes" : "no");
+    /* Only with workbooks, where it changes what is written: a batch without them keeps the
+     * record it had before the draws left the workbooks. */
+    if (workbooks)
+        line(f, "workbook-draws", "%s", workbook_draws ? "yes" : "no");
     if (extra && extra[0]) {
         fputs(extra, f);
         if (extra[strlen(extra) - 1] != '\n')

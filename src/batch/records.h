@@ -15,11 +15,11 @@
 #include "util/error.h"
 
 /* The settings record: every setting of a that changes a number in the outputs, the survey's
- * SHA-256 (hex), whether per-population workbooks are written, then the lines of extra (may be
- * NULL), one "key value" per line after a comment line. *out is malloc'd (caller frees); NULL
- * on failure (TF_ERR_NOMEM). */
-tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, int workbooks, const char *extra,
-                              char **out, tf_error *err);
+ * SHA-256 (hex), whether per-population workbooks are written and, when they are, whether they
+ * hold the raw draws (workbook_draws), then the lines of extra (may be NULL), one "key value" per
+ * line after a comment line. *out is malloc'd (caller frees); NULL on failure (TF_ERR_NOMEM). */
+tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, int workbooks, int workbook_draws,
+                              const char *extra, char **out, tf_error *err);
 
 /* An empty summary table named name for projection settings p; NULL when out of memory (in
  * err, which may be NULL). */

@@ -196,8 +196,13 @@ tf_status tf_args_probe_output_dir(const char *dir, const char *input, tf_error 
  * same folder at once, and one must not remove a folder another is probing. */
 tf_status tf_args_probe_output_dir_keep(const char *dir, const char *input, int keep_dirs, tf_error *err);
 
-/* The exit code (cmd.h) for a library status of the model-fitting commands: usage and refused
- * combinations are command-line errors, invalid input an unusable input, interruption 130. */
+/* The exit code (cmd.h) for a library status, the one mapping every command uses once its input
+ * is read: usage and refused combinations are command-line errors (2), well-formed but unusable
+ * input (TF_ERR_INVALID: a value or name in the survey, a model or a priors file) is an unusable
+ * input (3, as every help's exit-status list says), interruption 130, anything else (memory,
+ * files that cannot be written, a computation that failed) a job that could not be done (1).
+ * Failures while the input file itself is read are the input's (3) whatever their status, and
+ * the commands say so where they read it. */
 int tf_args_exit_code(tf_status st);
 
 #endif

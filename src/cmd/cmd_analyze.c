@@ -58,8 +58,9 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  DIR/<survey>.xlsx   a workbook: a first page for managers (abundance, trend, best model,\n"
             "                      risk of falling below each threshold, cautions, provenance), then\n"
             "                      per population counts, projection, risk, models, parameters,\n"
-            "                      sampler diagnostics and the raw draws, with charts\n"
-            "  DIR/<survey>/       the same tables as CSV files, and contents.csv naming them\n"
+            "                      and sampler diagnostics, with charts\n"
+            "  DIR/<survey>/       the same tables as CSV files, the raw posterior draws (in the\n"
+            "                      workbook too with --workbook-draws), and contents.csv naming them\n"
             "and prints a few plain lines per population. Files are written only when everything\n"
             "succeeded, and never over the survey file.\n\n"
             "options:\n"
@@ -92,6 +93,9 @@ static void help(FILE *out, const tf_analysis_options *d)
             "                     that was made with other settings, instead of refusing to run\n"
             "  --workbook-limit N in batch mode: a workbook per population when the batch has at most N\n"
             "                     populations (default %d); the CSV tables are always written\n"
+            "  --workbook-draws   put the raw posterior draws in the workbook too (also the batch's\n"
+            "                     workbooks per population); by default they are CSV only, since a\n"
+            "                     sheet of every draw makes the workbook slow to open\n"
             "  -q, --quiet        print nothing but errors\n"
             "  -h, --help         show this help\n\n"
             "Batch mode (--batch, more than %d populations, or several MPI processes): the populations\n"
@@ -202,13 +206,14 @@ static void show_batch(void *ctx, const tf_batch_event *e)
 /* The batch: every rank runs this; only rank 0 prints and writes the summary. Returns the exit
  * code, the same on every rank. */
 static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const char *path, const char *name,
-                     const char *xlsx, const char *root, size_t workbook_limit, int fresh, int quiet, int rank,
-                     int size, tf_error *err)
+                     const char *xlsx, const char *root, size_t workbook_limit, int workbook_draws, int fresh,
+                     int quiet, int rank, int size, tf_error *err)
 {
     char extra[4096];
     model_file_lines(opt, extra, sizeof extra);
     tf_batch_options bo = {.analysis = *opt, .survey_path = path, .title = name, .root = root, .workbook = xlsx,
-                           .workbook_limit = workbook_limit, .extra_settings = extra, .fresh = fresh};
+                           .workbook_limit = workbook_limit, .workbook_draws = workbook_draws,
+                           .extra_settings = extra, .fresh = fresh};
     tf_batch *b = NULL;
     tf_status st = tf_batch_new(sv, &bo, &b, err);
     /* Rank 0 alone looks at the folder; every rank learns whether all are ready. */
@@ -290,7 +295,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
-           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT,
+           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT, OPT_WB_DRAWS,
            OPT_PROPOSAL, OPT_SKIP,
            OPT_ESTIMATES };
     static const struct option longopts[] = {
@@ -315,6 +320,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"batch", no_argument, NULL, OPT_BATCH},
         {"fresh", no_argument, NULL, OPT_FRESH},
         {"workbook-limit", required_argument, NULL, OPT_WB_LIMIT},
+        {"workbook-draws", no_argument, NULL, OPT_WB_DRAWS},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
@@ -330,7 +336,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     /* Under MPI one process per core is the rule: each takes one thread unless told otherwise. */
     if (size > 1)
         opt.n_threads = 1;
-    int batch = size > 1, fresh = 0;
+    int batch = size > 1, fresh = 0, workbook_draws = 0;
     size_t workbook_limit = TF_BATCH_WORKBOOK_LIMIT;
     /* Only rank 0 of an MPI run prints; the others would repeat every line. */
     FILE *errs = rank == 0 ? stderr : NULL;
@@ -383,6 +389,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_BATCH: batch = 1; break;
         case OPT_FRESH: fresh = 1; break;
         case OPT_WB_LIMIT: tf_args_parse_size("--workbook-limit", optarg, 0, SIZE_MAX, &workbook_limit, &err); break;
+        case OPT_WB_DRAWS: workbook_draws = 1; break;
         case 'q': quiet = 1; break;
         case 'h':
             if (rank == 0)
@@ -438,7 +445,10 @@ static int analyze(int argc, char **argv, int rank, int size)
     tf_signals saved;
     const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
-    tf_sheets_provenance prov = {.input_name = path, .title = name};
+    char csv_place[300];
+    snprintf(csv_place, sizeof csv_place, "the folder %s/ beside this workbook", name);
+    tf_sheets_provenance prov = {.input_name = path, .title = name, .workbook_draws = workbook_draws,
+                                 .csv_place = csv_place};
     tf_status st;
     /* A survey of many populations is read so that a population with bad rows is set aside and
      * reported while the others are analysed; a small one without --batch keeps the strict
@@ -469,7 +479,8 @@ static int analyze(int argc, char **argv, int rank, int size)
                 goto out;
             }
             in_batch = 1;
-            status = run_batch(sv, &opt, path, name, xlsx, csv_dir, workbook_limit, fresh, quiet, rank, size, &err);
+            status = run_batch(sv, &opt, path, name, xlsx, csv_dir, workbook_limit, workbook_draws, fresh, quiet, rank,
+                               size, &err);
             goto out;
         }
         tf_survey_free(sv);

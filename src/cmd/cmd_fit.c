@@ -444,16 +444,6 @@ static void print_warnings(const job *j)
                 tf_model_name(j->model));
 }
 
-static int exit_for(tf_status st)
-{
-    switch (st) {
-    case TF_OK: return TF_EXIT_OK;
-    case TF_ERR_USAGE: return TF_EXIT_USAGE;
-    case TF_ERR_INTERRUPTED: return TF_EXIT_INTERRUPTED;
-    default: return TF_EXIT_FAIL;
-    }
-}
-
 int tf_cmd_fit(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
@@ -621,7 +611,7 @@ int tf_cmd_fit(int argc, char **argv)
         if (show)
             clear_progress();
         if (st != TF_OK) {
-            status = exit_for(st);
+            status = tf_args_exit_code(st);
             goto out;
         }
     }
@@ -633,7 +623,7 @@ int tf_cmd_fit(int argc, char **argv)
     tf_status wst = write_all(jobs, n_jobs, path, &err);
     tf_signals_release(&old_mask);
     if (wst != TF_OK) {
-        status = exit_for(wst);
+        status = tf_args_exit_code(wst);
         goto out;
     }
     for (size_t i = 0; i < n_jobs; i++) {

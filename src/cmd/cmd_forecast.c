@@ -336,17 +336,13 @@ static int per_effort(const tf_series *s)
     return 0;
 }
 
-/* The largest R-hat and the smallest bulk or tail ESS over a fit's parameters. */
+/* The largest R-hat and the smallest bulk or tail ESS over a fit's parameters, NaN ranking
+ * worst (tf_fit_health). */
 static void fit_mixing(const tf_fit *f, double *rhat_max, double *ess_min)
 {
-    *rhat_max = -INFINITY;
-    *ess_min = INFINITY;
-    for (size_t p = 0; p < tf_fit_n_params(f); p++) {
-        const tf_fit_param_summary *s = tf_fit_param(f, p);
-        *rhat_max = isnan(s->rhat) || s->rhat > *rhat_max ? s->rhat : *rhat_max;
-        double e = s->ess_bulk < s->ess_tail ? s->ess_bulk : s->ess_tail;
-        *ess_min = isnan(e) || e < *ess_min ? e : *ess_min;
-    }
+    tf_fit_health_summary h = tf_fit_health(f);
+    *rhat_max = h.max_rhat;
+    *ess_min = h.min_ess;
 }
 
 /* 1 when every fit the projection draws from passed the convergence checks. */
@@ -793,7 +789,7 @@ static int finish(const options *o, job *jobs, size_t n_jobs)
         if (st == TF_ERR_INTERRUPTED)
             return TF_EXIT_INTERRUPTED;
         tf_error_print(&err, PROG, stderr);
-        return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_FAIL;
+        return tf_args_exit_code(st);
     }
     for (size_t i = 0; i < n_jobs; i++) {
         if (!o->quiet) {

@@ -364,18 +364,10 @@ static void *run_thread(void *arg)
 /* Convergence summary and cautions of a fitted candidate. */
 static void describe_fitted(entry *e)
 {
-    /* NaN (undefined diagnostics, e.g. a parameter that never moved) wins over any number. */
-    double rhat = -INFINITY, ess = INFINITY;
-    for (size_t p = 0; p < tf_fit_n_params(e->fit); p++) {
-        const tf_fit_param_summary *ps = tf_fit_param(e->fit, p);
-        double m = fmin(ps->ess_bulk, ps->ess_tail);
-        if (isnan(ps->ess_bulk) || isnan(ps->ess_tail))
-            m = NAN;
-        rhat = isnan(rhat) || isnan(ps->rhat) ? NAN : fmax(rhat, ps->rhat);
-        ess = isnan(ess) || isnan(m) ? NAN : fmin(ess, m);
-    }
-    e->fig.rhat_max = rhat;
-    e->fig.ess_min = ess;
+    /* The fit's one health summary, with its NaN rule (sampler/fit.h). */
+    tf_fit_health_summary h = tf_fit_health(e->fit);
+    e->fig.rhat_max = h.max_rhat;
+    e->fig.ess_min = h.min_ess;
     size_t len = 0;
     e->note[0] = '\0';
 #define ADD_NOTE(...)                                                                                   \
@@ -391,9 +383,9 @@ static void describe_fitted(entry *e)
                 len += (size_t)k_;                                                                      \
         }                                                                                               \
     } while (0)
-    if (!tf_fit_converged(e->fit))
-        ADD_NOTE("the chains may not have converged (R-hat max %.3f, ESS min %.0f; wanted <= %.2f and >= %.0f)", rhat,
-                 ess, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
+    if (!h.converged)
+        ADD_NOTE("the chains may not have converged (R-hat max %.3f, ESS min %.0f; wanted <= %.2f and >= %.0f)",
+                 h.max_rhat, h.min_ess, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
     const tf_evidence *ev = &e->ev;
     if (!(ev->main.pareto_k <= TF_PARETO_K_MAX) || !(ev->check.pareto_k <= TF_PARETO_K_MAX))
         ADD_NOTE("importance weights unreliable (Pareto k %.2f and %.2f; above %.1f the estimate cannot be trusted)",

@@ -33,17 +33,9 @@ void tf_report_free(tf_report *r);
 tf_status tf_report_add_table(tf_report *r, tf_table *t, const char *about, size_t *index, tf_error *err);
 
 /* Keeps table index out of the workbook, as CSV only: for a table longer than a sheet can hold
- * (TF_REPORT_SHEET_ROWS). Its contents row names no sheet. A chart over it is refused. */
-void tf_report_set_csv_only(tf_report *r, size_t index);
-/* Whether table index is written as CSV only. */
-int tf_report_csv_only(const tf_report *r, size_t index);
-
-/* Data rows a sheet holds with room for notes, header and legend (Excel's 1,048,576 rows less a
- * margin of 64). */
-#define TF_REPORT_SHEET_ROWS ((size_t)1048576 - 64)
-
-/* Keeps table index out of the workbook, as CSV only: for a table longer than a sheet can hold
- * (TF_REPORT_SHEET_ROWS). Its contents row names no sheet. A chart over it is refused. */
+ * (TF_REPORT_SHEET_ROWS), or one too bulky for the people who open the workbook (the raw draws).
+ * The CSV twin is written as for any table, and its contents row names no sheet. A chart over it
+ * is refused. An index out of range is ignored. */
 void tf_report_set_csv_only(tf_report *r, size_t index);
 /* Whether table index is written as CSV only. */
 int tf_report_csv_only(const tf_report *r, size_t index);

@@ -379,3 +379,30 @@ int tf_fit_converged(const tf_fit *f)
 {
     return tf_fit_meets(f, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
 }
+
+/* The larger (worst) of two R-hats and the smaller (worst) of two ESSs, NaN ranking worst
+ * (fit.h): fmax and fmin would drop the NaN instead. */
+static double worse_rhat(double a, double b) { return isnan(a) || isnan(b) ? NAN : a > b ? a : b; }
+static double worse_ess(double a, double b) { return isnan(a) || isnan(b) ? NAN : a < b ? a : b; }
+
+tf_fit_health_summary tf_fit_health(const tf_fit *f)
+{
+    tf_fit_health_summary h = {.max_rhat = -INFINITY, .min_bulk_ess = INFINITY, .min_tail_ess = INFINITY};
+    for (size_t p = 0; p < f->n_params; p++) {
+        const tf_fit_param_summary *ps = &f->params[p];
+        h.max_rhat = worse_rhat(h.max_rhat, ps->rhat);
+        h.min_bulk_ess = worse_ess(h.min_bulk_ess, ps->ess_bulk);
+        h.min_tail_ess = worse_ess(h.min_tail_ess, ps->ess_tail);
+        h.n_undiagnosed += isnan(ps->rhat) || isnan(ps->ess_bulk) || isnan(ps->ess_tail);
+    }
+    h.min_ess = worse_ess(h.min_bulk_ess, h.min_tail_ess);
+    /* Summed in chain order, so that the mean is the same bits as the tables always showed. */
+    h.min_acceptance = INFINITY;
+    for (size_t c = 0; c < f->n_chains; c++) {
+        h.mean_acceptance += f->acceptance[c] / (double)f->n_chains;
+        h.min_acceptance = fmin(h.min_acceptance, f->acceptance[c]);
+        h.mean_invalid += f->invalid[c] / (double)f->n_chains;
+    }
+    h.converged = tf_fit_converged(f);
+    return h;
+}

@@ -169,4 +169,31 @@ tf_status tf_fit_check(const tf_fit *f, double rhat_max, double ess_min, int *pa
  * TF_FIT_ESS_MIN. */
 int tf_fit_converged(const tf_fit *f);
 
+/* The health of a fit in a few numbers, for every table and message that shows it: the worst
+ * R-hat and smallest ESS over the parameters, and the acceptance over the chains.
+ *
+ * The NaN rule. A parameter's R-hat or ESS is NaN when its draws cannot be diagnosed
+ * (diagnostics.c): chains shorter than TF_DIAG_MIN_ITER, draws that are not finite, a parameter
+ * that never moved (zero variance: a constant parameter, or chains that accepted nothing), or
+ * chains so sticky that the autocorrelation estimate breaks down, which shows first in the tail
+ * ESS. Such a parameter is not known to be mixed, so NaN ranks worse than any number: one NaN makes the worst R-hat (or
+ * the smallest ESS) NaN, and every threshold test written as !(max_rhat <= TF_FIT_RHAT_MAX)
+ * or !(min_ess >= TF_FIT_ESS_MIN) flags it. It is shown as NaN (an empty cell), never as a
+ * made-up infinity or zero; n_undiagnosed says how many parameters it came from. */
+typedef struct {
+    double max_rhat;          /* largest R-hat over the parameters (NaN rule above) */
+    double min_bulk_ess;      /* smallest bulk ESS over the parameters */
+    double min_tail_ess;      /* smallest tail ESS over the parameters */
+    double min_ess;           /* the smaller of those two */
+    size_t n_undiagnosed;     /* parameters whose R-hat, bulk or tail ESS is NaN */
+    double mean_acceptance;   /* acceptance rate, mean over the chains */
+    double min_acceptance;    /* lowest acceptance rate of any chain */
+    double mean_invalid;      /* share of proposals with a non-finite likelihood, mean over chains */
+    int converged;            /* tf_fit_converged: also watches the first and last year */
+} tf_fit_health_summary;
+
+/* The health summary of f; valid after tf_fit_summarise (before it, as tf_fit_meets, it is not
+ * converged and its R-hat and ESS are whatever the unset summaries hold). */
+tf_fit_health_summary tf_fit_health(const tf_fit *f);
+
 #endif

@@ -94,6 +94,32 @@ if [ -z "$slow" ]; then
   [ -s "$tmp/quiet/heron-colony.xlsx" ] || bad "--quiet wrote no workbook"
 fi
 
+# The raw draws stay out of the workbook unless --workbook-draws: by default the workbook has no
+# draws sheet, while draws.csv is written and contents.csv lists it with no sheet; with the option
+# the sheet is back. Sheet names read with openpyxl (Debian's python3-openpyxl).
+sheet_names() {
+  /usr/bin/python3 -c 'import openpyxl, sys; print("\n".join(openpyxl.load_workbook(sys.argv[1], read_only=True).sheetnames))' "$1"
+}
+if [ -z "$slow" ]; then
+  "$T" analyze surveys/heron-colony.csv -o "$tmp/wd0" -q --threads 2 "${FAST[@]}" || bad "analyze (draws as CSV only) failed"
+  "$T" analyze surveys/heron-colony.csv -o "$tmp/wd1" -q --threads 2 --workbook-draws "${FAST[@]}" ||
+    bad "analyze --workbook-draws failed"
+  sheet_names "$tmp/wd0/heron-colony.xlsx" >"$tmp/names0" || bad "cannot read the default workbook"
+  sheet_names "$tmp/wd1/heron-colony.xlsx" >"$tmp/names1" || bad "cannot read the --workbook-draws workbook"
+  grep -qx "Counts" "$tmp/names0" || bad "default workbook: no Counts sheet: $(tr '\n' ' ' <"$tmp/names0")"
+  grep -qx "Draws" "$tmp/names0" && bad "default workbook has a Draws sheet"
+  grep -qx "Draws" "$tmp/names1" || bad "--workbook-draws: no Draws sheet: $(tr '\n' ' ' <"$tmp/names1")"
+  for d in wd0 wd1; do
+    [ "$(wc -l <"$tmp/$d/heron-colony/draws.csv")" -gt 100 ] || bad "$d: draws.csv missing or short"
+  done
+  grep -q '^,draws\.csv,' "$tmp/wd0/heron-colony/contents.csv" || bad "default contents.csv does not list draws.csv as CSV only"
+  grep -q '^Draws,draws\.csv,' "$tmp/wd1/heron-colony/contents.csv" || bad "--workbook-draws: contents.csv lacks the Draws sheet"
+  grep -q 'CSV only: draws\.csv in the folder heron-colony/' "$tmp/wd0/heron-colony/summary.csv" ||
+    bad "the first page does not say where the draws are"
+  # The same draws either way: only where they are shown changes.
+  cmp -s "$tmp/wd0/heron-colony/draws.csv" "$tmp/wd1/heron-colony/draws.csv" || bad "--workbook-draws changed draws.csv"
+fi
+
 # An index that is not a whole count: refused unless --estimates says so, and then only the
 # continuous log-normal counting error is compared, and the first page says why.
 "$T" analyze tests/data/analyze/index.csv -o "$tmp/frac" -q "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?

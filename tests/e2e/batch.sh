@@ -71,6 +71,12 @@ for d in "$B2"/populations/*/; do
   [ -f "$d/$lab.xlsx" ] || bad "$lab: no workbook (the batch is below the limit)"
 done
 case "$h" in Population,*) ;; *) bad "counts.csv does not start with a Population column: $h" ;; esac
+# The per-population workbooks leave the raw draws to draws.csv (no --workbook-draws), and the
+# settings record says so, since the option changes what a resumed batch would write.
+[ -s "$B2/populations/site-0001/draws.csv" ] || bad "site-0001: no draws.csv"
+/usr/bin/python3 -c 'import openpyxl, sys; n = openpyxl.load_workbook(sys.argv[1], read_only=True).sheetnames; sys.exit("Draws" in n or "Counts" not in n)' \
+  "$B2/populations/site-0001/site-0001.xlsx" || bad "site-0001.xlsx: a Draws sheet without --workbook-draws, or no Counts sheet"
+grep -qx "workbook-draws no" "$B2/settings.txt" || bad "settings.txt lacks 'workbook-draws no'"
 
 # The summary workbook: one row per population below the header and legend, numbers as
 # numbers, sort and filter buttons over the columns (checked with openpyxl).

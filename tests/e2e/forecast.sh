@@ -383,6 +383,23 @@ bad "unknown population" "$herds" --average --population nowhere
 [ $? -eq 3 ] || fail "fractional counts with poisson should exit 3"
 grep -q -- "--estimates" "$tmp/stderr" || fail "the fractional-count refusal should point to --estimates"
 [ -e "$tmp/frac" ] && fail "the refused fit left $tmp/frac"
+# The same failure gives the same exit status from fit and forecast --model (cmd.h: one mapping
+# for every command): a sampler that cannot start (priors that put the population at overflowing
+# sizes, so that no likelihood is finite) is a job that could not be done, 1; a priors file with
+# a parameter the model lacks is an unusable input, 3. Nothing is written either way.
+printf '[model]\nname = exponential\n[r]\nprior = normal\nmean = 800\nsd = 0.001\n[sigma]\nprior = uniform\nmin = 0.001\nmax = 0.002\n' \
+  >"$tmp/overflow.ini"
+printf '[model]\nname = mine\n[K]\nprior = normal\nmean = 1\nsd = 1\n' >"$tmp/strange.ini"
+for case in "overflow.ini 1 no starting point" "strange.ini 3 K"; do
+  read -r ini want phrase <<<"$case"
+  for cmd in fit forecast; do
+    "$TALLYFIT" "$cmd" "$heron" --model exponential --obs poisson --priors "$tmp/$ini" --iterations 200 --warmup 40 --particles 30 --threads 2 -o "$tmp/same-$cmd" -q \
+      >/dev/null 2>"$tmp/stderr"; rc=$?
+    [ $rc -eq "$want" ] || fail "$cmd with $ini: exit $rc, want $want"
+    grep -q "$phrase" "$tmp/stderr" || fail "$cmd with $ini: stderr lacks '$phrase': $(head -c 300 "$tmp/stderr")"
+    [ -e "$tmp/same-$cmd" ] && fail "$cmd with $ini left $tmp/same-$cmd"
+  done
+done
 # With --estimates the log-normal is the default, and the summary says why.
 "$TALLYFIT" forecast "$repo/tests/data/analyze/index.csv" --estimates --model exponential "${FIT[@]}" -o "$tmp/est" -q \
   >/dev/null 2>"$tmp/stderr" || fail "--estimates: exit $?: $(head -c 300 "$tmp/stderr")"

@@ -42,8 +42,10 @@ SURVEY = "surveys/heron-colony.csv"
 FAST = ["--iterations", "800", "--warmup", "200", "--draws", "200", "--particles", "150", "--seed", "7"]
 EPOCH = "1700000000"   # SOURCE_DATE_EPOCH: 2023-11-14 22:13:20 UTC
 WARN_FILL = "F9D3C2"   # COLOUR_WARN_FILL in src/export/workbook.c
+# The raw draws are CSV only by default (draws.csv, named in contents.csv with no sheet), so that
+# the workbook stays quick to open; --workbook-draws puts them back (tests/e2e/analyze.sh).
 SHEETS = ["Summary", "All populations", "Counts", "Projection", "Risk", "Declines", "Models", "Change",
-          "Parameters", "Diagnostics", "Draws"]
+          "Parameters", "Diagnostics"]
 # Number formats the writer promises for each column kind (src/export/workbook.h).
 FORMATS = {
     "Counts": {"Year": "0", "Count": "0"},
@@ -163,9 +165,13 @@ def check_warnings(ws, rows, first):
     for i, crow in enumerate(rows[1:]):
         for col, bad in limits.items():
             j = h.index(col)
-            if crow[j] == "":
-                continue
             cell = ws.cell(row=first + i, column=j + 1)
+            if crow[j] == "":
+                # An undefined R-hat or ESS (NaN, shown empty) ranks worst and is flagged
+                # (tf_fit_health in src/sampler/fit.h).
+                if col in ("Max R-hat", "Min bulk ESS", "Min tail ESS"):
+                    check(warned(cell), f"Diagnostics!{cell.coordinate} ({col} undefined): not flagged")
+                continue
             check(warned(cell) == bad(float(crow[j])),
                   f"Diagnostics!{cell.coordinate} ({col} = {crow[j]}): warning colour {'missing' if bad(float(crow[j])) else 'unexpected'}")
 
@@ -378,13 +384,16 @@ def main():
         wb = openpyxl.load_workbook(xlsx)
         contents = read_csv(os.path.join(base, "contents.csv"))
         check(contents[0] == ["sheet", "file", "contents"], f"contents header {contents[0]}")
-        sheets = [row[0] for row in contents[1:]]
+        sheets = [row[0] for row in contents[1:] if row[0]]
+        csv_only = [row[1] for row in contents[1:] if not row[0]]
+        check(csv_only == ["draws.csv"], f"contents.csv lists {csv_only} as CSV only, want draws.csv")
         check(wb.sheetnames == SHEETS, f"sheets {wb.sheetnames} != {SHEETS}")
         check(sheets == wb.sheetnames, f"contents.csv lists {sheets}, the workbook has {wb.sheetnames}")
         tables = {}
         for sheet, file, _ in contents[1:]:
             rows = read_csv(os.path.join(base, file))
-            tables[sheet] = rows
+            if sheet:
+                tables[sheet] = rows
             if sheet in wb.sheetnames:
                 first = check_sheet(wb[sheet], rows, summary=(sheet == "Summary"))
                 if sheet == "Diagnostics" and first:
@@ -400,6 +409,10 @@ def main():
         check(items.get("SHA-256 of the file") == digest, f"SHA-256 {items.get('SHA-256 of the file')} != {digest}")
         check(items.get("Run on") == "2023-11-14 22:13:20 UTC", f"date {items.get('Run on')!r}")
         check(items.get("Random seed") == "7", f"seed {items.get('Random seed')!r}")
+        # The first page says where the draws went.
+        where = items.get("Raw posterior draws", "")
+        check(where.startswith("CSV only: draws.csv in the folder heron-colony/"),
+              f"first page on the draws: {where!r}")
         n_th = len({r[2] for r in tables["Risk"][1:]})
         check_charts(xlsx, wb.sheetnames, n_th)
         check_summary(base, items)

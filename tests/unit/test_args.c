@@ -5,8 +5,24 @@
 #include <string.h>
 
 #include "cmd/args.h"
+#include "cmd/cmd.h"
 
 static const char *first_what(const tf_error *err) { return err->n_items ? err->items[0].what : ""; }
+
+/* One mapping from status to exit code for every command (cmd.h and the exit-status list of
+ * every help): the codes are the interface scripts test, so each status is pinned here. */
+START_TEST(exit_codes_one_mapping)
+{
+    ck_assert_int_eq(tf_args_exit_code(TF_OK), TF_EXIT_OK);
+    ck_assert_int_eq(tf_args_exit_code(TF_ERR_USAGE), TF_EXIT_USAGE);
+    ck_assert_int_eq(tf_args_exit_code(TF_ERR_UNSUPPORTED), TF_EXIT_USAGE);
+    ck_assert_int_eq(tf_args_exit_code(TF_ERR_INVALID), TF_EXIT_INPUT);
+    ck_assert_int_eq(tf_args_exit_code(TF_ERR_INTERRUPTED), TF_EXIT_INTERRUPTED);
+    ck_assert_int_eq(tf_args_exit_code(TF_ERR_NUMERIC), TF_EXIT_FAIL);
+    ck_assert_int_eq(tf_args_exit_code(TF_ERR_NOMEM), TF_EXIT_FAIL);
+    ck_assert_int_eq(tf_args_exit_code(TF_ERR_IO), TF_EXIT_FAIL);
+}
+END_TEST
 
 START_TEST(pairs_parse_and_accumulate)
 {
@@ -333,6 +349,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, names_split);
     tcase_add_test(tc, model_names_known_or_all);
     tcase_add_test(tc, operand_draws_and_folders);
+    tcase_add_test(tc, exit_codes_one_mapping);
     suite_add_tcase(s, tc);
     return s;
 }

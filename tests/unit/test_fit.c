@@ -183,6 +183,80 @@ START_TEST(convergence_flag_follows_diagnostics)
 }
 END_TEST
 
+/* The health summary: the worst R-hat and smallest ESS over the parameters and the acceptance
+ * over the chains, with its NaN rule (fit.h): a parameter that never moved has an undefined R-hat
+ * and ESS, which makes the worst values NaN wherever the parameter stands in the model's order,
+ * and fails every threshold test. */
+START_TEST(health_takes_the_worst_with_nan_worst_of_all)
+{
+    tf_model *m = make_model("exponential", "poisson");
+    double y[5] = {1, 2, 3, 4, 5};
+    tf_series *s = tf_series_new("h", 2000, 5, y, NULL, NULL, NULL);
+    const size_t n = 1000;
+    const double acc[4] = {0.2, 0.3, 0.1, 0.4}, inv[4] = {0.0, 0.02, 0.0, 0.02};
+    /* frozen: -1 every parameter moves; 0 or 1 that parameter stays at its start in every chain. */
+    for (int frozen = -1; frozen <= 1; frozen++) {
+        tf_fit *f = tf_fit_alloc(m, s, 4, n);
+        tf_rng rng;
+        tf_rng_derive(&rng, 23, NULL, 0);
+        for (size_t c = 0; c < 4; c++) {
+            for (size_t i = 0; i < n; i++) {
+                double theta[2] = {0.1 * tf_rng_normal(&rng), 0.5 + 0.1 * tf_rng_normal(&rng)};
+                if (frozen >= 0)
+                    theta[frozen] = 0.25;
+                double path[5] = {1 + 0.1 * tf_rng_normal(&rng), 1, 1, 1, 1 + 0.1 * tf_rng_normal(&rng)};
+                tf_fit_record(f, c, i, theta, -1.0, path);
+            }
+            tf_fit_set_chain_stats(f, c, acc[c], inv[c]);
+        }
+        ck_assert_int_eq(tf_fit_summarise(f, NULL), TF_OK);
+        tf_fit_health_summary h = tf_fit_health(f);
+        /* Acceptance: the mean and the lowest of the four chains, exactly (sums of four doubles
+         * divided as the tables divide them). */
+        ck_assert_double_eq(h.mean_acceptance, 0.2 / 4 + 0.3 / 4 + 0.1 / 4 + 0.4 / 4);
+        ck_assert_double_eq(h.min_acceptance, 0.1);
+        ck_assert_double_eq_tol(h.mean_invalid, 0.01, 1e-15);
+        const tf_fit_param_summary *a = tf_fit_param(f, 0), *b = tf_fit_param(f, 1);
+        if (frozen < 0) {
+            /* Independent draws: every figure defined, and the worst of the two parameters. */
+            ck_assert(isfinite(a->rhat) && isfinite(b->rhat));
+            ck_assert_uint_eq(h.n_undiagnosed, 0);
+            ck_assert_double_eq(h.max_rhat, fmax(a->rhat, b->rhat));
+            ck_assert_double_eq(h.min_bulk_ess, fmin(a->ess_bulk, b->ess_bulk));
+            ck_assert_double_eq(h.min_tail_ess, fmin(a->ess_tail, b->ess_tail));
+            ck_assert_double_eq(h.min_ess, fmin(h.min_bulk_ess, h.min_tail_ess));
+            ck_assert_int_eq(h.converged, tf_fit_converged(f));
+        } else {
+            /* The frozen parameter cannot be diagnosed; the other one can. */
+            const tf_fit_param_summary *still = frozen == 0 ? a : b, *moving = frozen == 0 ? b : a;
+            ck_assert(isnan(still->rhat) && isnan(still->ess_bulk) && isnan(still->ess_tail));
+            ck_assert(isfinite(moving->rhat) && isfinite(moving->ess_bulk));
+            ck_assert_uint_eq(h.n_undiagnosed, 1);
+            ck_assert(isnan(h.max_rhat));
+            ck_assert(isnan(h.min_bulk_ess) && isnan(h.min_tail_ess) && isnan(h.min_ess));
+            ck_assert(!(h.max_rhat <= TF_FIT_RHAT_MAX) && !(h.min_ess >= TF_FIT_ESS_MIN));
+            ck_assert_int_eq(h.converged, 0);
+        }
+        tf_fit_free(f);
+    }
+    /* Chains too short to diagnose: every parameter undefined. */
+    tf_fit *f = tf_fit_alloc(m, s, 2, 3);
+    for (size_t c = 0; c < 2; c++)
+        for (size_t i = 0; i < 3; i++) {
+            double theta[2] = {0.1 * (double)(i + c), 0.5 + 0.01 * (double)i}, path[5] = {1, 1, 1, 1, 1};
+            tf_fit_record(f, c, i, theta, -1.0, path);
+        }
+    ck_assert_int_eq(tf_fit_summarise(f, NULL), TF_OK);
+    tf_fit_health_summary h = tf_fit_health(f);
+    ck_assert_uint_eq(h.n_undiagnosed, 2);
+    ck_assert(isnan(h.max_rhat) && isnan(h.min_ess));
+    ck_assert_int_eq(h.converged, 0);
+    tf_fit_free(f);
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
 /* A fit counting fewer draws than it has room for (a run by need between blocks) summarises the
  * first n_iter of each chain, and tf_fit_compact moves them together for the whole-block
  * accessors without changing a summary. */
@@ -403,6 +477,7 @@ static Suite *make_suite(void)
     TCase *tc = tcase_create("result");
     tcase_add_test(tc, summaries_of_known_draws);
     tcase_add_test(tc, convergence_flag_follows_diagnostics);
+    tcase_add_test(tc, health_takes_the_worst_with_nan_worst_of_all);
     tcase_add_test(tc, partly_filled_fit_summarises_and_compacts);
     tcase_add_test(tc, fit_alloc_refuses_bad_sizes);
     tcase_add_test(tc, halving_keeps_every_second_draw);

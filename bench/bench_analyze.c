@@ -33,6 +33,8 @@
 #include "survey/survey.h"
 #include "util/rng.h"
 
+#include "floor.h"
+
 /* Targets on a machine whose floor step costs FLOOR_REF_NS, 2 cores. */
 #define TARGET_SURVEY "surveys/heron-colony.csv"
 #define TARGET_SECONDS 5.0
@@ -50,70 +52,38 @@ static double now(void)
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
 }
 
-/* ---- the floor: one bootstrap particle-filter step of Gompertz + Poisson by hand, as in
- * bench_filter.c (a copy, so that the two benchmarks build apart) ---- */
+static volatile double floor_sink;
 
+/* Nanoseconds per particle-step of the floor (floor.h, the loop bench_filter times): best of
+ * FLOOR_REPS timings of about 0.1 s at FLOOR_N particles. */
 #define FLOOR_N 1000
 #define FLOOR_REPS 5
 
-static double floor_run(double *x, double *xr, double *w, uint32_t *anc, const double *y, size_t n_years,
-                        uint64_t *st)
-{
-    const size_t n = FLOOR_N;
-    const double a = 0.4, c = 1 - 0.4 / log(4000.0), sigma = 0.08;
-    for (size_t i = 0; i < n; i++)
-        x[i] = log(y[0]) + 0.5 * tf_rng_normal_s(st);
-    double ll = 0;
-    for (size_t t = 0; t < n_years; t++) {
-        double mx = -INFINITY, sum = 0;
-        for (size_t i = 0; i < n; i++) {
-            w[i] = y[t] * x[i] - exp(x[i]);
-            mx = w[i] > mx ? w[i] : mx;
-        }
-        for (size_t i = 0; i < n; i++)
-            sum += (w[i] = exp(w[i] - mx));
-        ll += mx + log(sum / (double)n);
-        /* Systematic resampling (Kitagawa 1996). */
-        double u = tf_rng_uniform_s(st), step = sum / (double)n, cum = w[0];
-        size_t j = 0;
-        for (size_t i = 0; i < n; i++) {
-            double target = (u + (double)i) * step;
-            while (cum < target && j + 1 < n)
-                cum += w[++j];
-            anc[i] = (uint32_t)j;
-        }
-        for (size_t i = 0; i < n; i++)
-            xr[i] = x[anc[i]];
-        for (size_t i = 0; i < n; i++)
-            x[i] = a + c * xr[i] + sigma * tf_rng_normal_s(st);
-    }
-    return ll;
-}
-
-static volatile double floor_sink;
-
-/* Nanoseconds per particle-step of the floor: best of FLOOR_REPS timings of about 0.1 s. */
 static double floor_ns(void)
 {
     double y[LARGE_YEARS], best = INFINITY, sink = 0;
     for (size_t t = 0; t < LARGE_YEARS; t++)
         y[t] = 3000.0 + 30.0 * (double)t;
-    double *x = malloc(FLOOR_N * sizeof *x), *xr = malloc(FLOOR_N * sizeof *xr), *w = malloc(FLOOR_N * sizeof *w);
-    uint32_t *anc = malloc(FLOOR_N * sizeof *anc);
+    floor_ws ws = {FLOOR_N, malloc(FLOOR_N * sizeof(double)), malloc(FLOOR_N * sizeof(double)),
+                   malloc(FLOOR_N * sizeof(double)), malloc(FLOOR_N * sizeof(double)),
+                   malloc((FLOOR_N + 1) * sizeof(uint32_t)), malloc(FLOOR_N * sizeof(uint32_t))};
+    const double a = 0.4, c = 1 - 0.4 / log(4000.0), sigma = 0.08;
     tf_rng rng;
     tf_rng_derive(&rng, 7, NULL, 0);
     size_t calls = 3000;
-    for (int rep = 0; x && xr && w && anc && rep < FLOOR_REPS; rep++) {
+    for (int rep = 0; ws.x && ws.xr && ws.lw && ws.w && ws.pos && ws.anc && rep < FLOOR_REPS; rep++) {
         double t0 = now();
         for (size_t k = 0; k < calls; k++)
-            sink += floor_run(x, xr, w, anc, y, LARGE_YEARS, rng.s);
+            sink += floor_loglik(&ws, y, LARGE_YEARS, a, c, sigma, log(y[0]), 0.5, rng.s);
         double ns = 1e9 * (now() - t0) / ((double)calls * FLOOR_N * LARGE_YEARS);
         best = ns < best ? ns : best;
     }
-    free(x);
-    free(xr);
-    free(w);
-    free(anc);
+    free(ws.x);
+    free(ws.xr);
+    free(ws.lw);
+    free(ws.w);
+    free(ws.pos);
+    free(ws.anc);
     floor_sink = sink;   /* so that the timed work cannot be optimised away */
     return best;
 }

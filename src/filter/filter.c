@@ -416,16 +416,33 @@ static pseudo recentre(const tf_obs_type *o, const double *p_obs, double y, doub
  * real case, a count of 10^6 met by a first-year prior 4 sd away, makes 2e7. */
 #define TERM_MAX 1e12
 
-/* Whether the pseudo-observation ps may guide the moves of particles whose drifted states are
- * m[0 .. n): the largest |b d| + prec d^2 over the finite m stays below TERM_MAX. */
-static int usable(const double *m, size_t n, pseudo ps)
+/* One pass over the drifted states m[0 .. n): the range [*lo, *hi] of the finite ones (empty,
+ * *lo > *hi, when none is) and the mean of all, each clamped to [c_lo, c_hi] (the centre the
+ * pseudo-observation is re-expanded about). */
+static void scan_states(const double *m, size_t n, double c_lo, double c_hi, double *lo, double *hi,
+                        double *centre)
 {
-    double lo = INFINITY, hi = -INFINITY;
+    double l = INFINITY, h = -INFINITY, sum = 0.0;
     for (size_t i = 0; i < n; i++) {
-        double v = isfinite(m[i]) ? m[i] : ps.x0;
-        lo = v < lo ? v : lo;
-        hi = v > hi ? v : hi;
+        double v = m[i];
+        if (isfinite(v)) {
+            l = v < l ? v : l;
+            h = v > h ? v : h;
+        }
+        double c = v > c_lo ? v : c_lo;
+        sum += c < c_hi ? c : c_hi;
     }
+    *lo = l;
+    *hi = h;
+    *centre = sum / (double)n;
+}
+
+/* Whether the pseudo-observation ps may guide the moves of particles whose finite drifted states
+ * span [lo, hi]: the largest |b d| + prec d^2, d = m - x0, stays below TERM_MAX. */
+static int usable(double lo, double hi, pseudo ps)
+{
+    if (lo > hi)
+        return 1;
     double d = fmax(fabs(lo - ps.x0), fabs(hi - ps.x0));
     return fabs(ps.b) * d + ps.prec * d * d < TERM_MAX;
 }
@@ -528,25 +545,20 @@ static double run(tf_filter *f, const double *theta, tf_rng *rng, const double *
             g->drift(p_growth, x, mv, n);
         }
         pseudo ps = {f->pmode[t], 0.0, f->pprec[t]};
-        if (info && f->pkind[t] != TF_PSEUDO_EXACT) {
+        if (info) {
             /* The centre is the mean of the drifted states, each clamped to within CENTRE_RANGE
              * of the count's mode, so that a few particles thrown far off (a chaotic growth map at
              * a wild parameter set) cannot drag it away from where the rest are. */
-            const double lo = ps.x0 - CENTRE_RANGE, hi = ps.x0 + CENTRE_RANGE;
-            double centre = 0.0;
-            for (size_t i = 0; i < n; i++) {
-                double v = mv[i] > lo ? mv[i] : lo;
-                centre += v < hi ? v : hi;
-            }
-            /* Only a count that is surprising, more than RECENTRE_Z sd of the predictive from the
-             * centre, is worth the Newton steps (a few exp each, per year: at 10 particles they
-             * would otherwise cost as much as the particles themselves). */
-            double dz = centre / (double)n - ps.x0;
-            if (dz * dz * ps.prec > RECENTRE_Z * RECENTRE_Z * (1.0 + s2 * ps.prec))
-                ps = recentre(o, p_obs, f->y[t], f->log_effort[t], centre / (double)n, s2, ps);
+            double lo, hi, centre;
+            scan_states(mv, n, ps.x0 - CENTRE_RANGE, ps.x0 + CENTRE_RANGE, &lo, &hi, &centre);
+            /* Only a surprising count, more than RECENTRE_Z sd of the predictive from the centre,
+             * is worth the Newton steps (a few exp each, per year: at a dozen particles they would
+             * otherwise cost as much as the particles themselves). */
+            double dz = centre - ps.x0;
+            if (f->pkind[t] != TF_PSEUDO_EXACT && dz * dz * ps.prec > RECENTRE_Z * RECENTRE_Z * (1.0 + s2 * ps.prec))
+                ps = recentre(o, p_obs, f->y[t], f->log_effort[t], centre, s2, ps);
+            info = usable(lo, hi, ps);
         }
-        if (info && !usable(mv, n, ps))
-            info = 0;
         /* The first stage: v_i = integral of N(x; m_i, s2) exp(b u - prec u^2 / 2) dx, whose log is
          * -ln(1 + k) / 2 + (2 b d_i + b^2 s2 - prec d_i^2) / (2 (1 + k)), d_i = m_i - x0,
          * k = s2 prec (completing the square; it holds for prec = 0, an exponential tilt). */

@@ -64,26 +64,20 @@ static double floor_ns(void)
     double y[LARGE_YEARS], best = INFINITY, sink = 0;
     for (size_t t = 0; t < LARGE_YEARS; t++)
         y[t] = 3000.0 + 30.0 * (double)t;
-    floor_ws ws = {FLOOR_N, malloc(FLOOR_N * sizeof(double)), malloc(FLOOR_N * sizeof(double)),
-                   malloc(FLOOR_N * sizeof(double)), malloc(FLOOR_N * sizeof(double)),
-                   malloc((FLOOR_N + 1) * sizeof(uint32_t)), malloc(FLOOR_N * sizeof(uint32_t))};
+    floor_ws ws;
+    int ws_ok = floor_ws_alloc(&ws, FLOOR_N);
     const double a = 0.4, c = 1 - 0.4 / log(4000.0), sigma = 0.08;
     tf_rng rng;
     tf_rng_derive(&rng, 7, NULL, 0);
     size_t calls = 3000;
-    for (int rep = 0; ws.x && ws.xr && ws.lw && ws.w && ws.pos && ws.anc && rep < FLOOR_REPS; rep++) {
+    for (int rep = 0; ws_ok && rep < FLOOR_REPS; rep++) {
         double t0 = now();
         for (size_t k = 0; k < calls; k++)
             sink += floor_loglik(&ws, y, LARGE_YEARS, a, c, sigma, log(y[0]), 0.5, rng.s);
         double ns = 1e9 * (now() - t0) / ((double)calls * FLOOR_N * LARGE_YEARS);
         best = ns < best ? ns : best;
     }
-    free(ws.x);
-    free(ws.xr);
-    free(ws.lw);
-    free(ws.w);
-    free(ws.pos);
-    free(ws.anc);
+    floor_ws_free(&ws);
     floor_sink = sink;   /* so that the timed work cannot be optimised away */
     return best;
 }

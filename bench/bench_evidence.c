@@ -20,6 +20,8 @@
 #include "sampler/posterior.h"
 #include "survey/survey.h"
 
+#include "setup.h"
+
 typedef struct {
     const char *file, *population, *growth, *obs;
 } bench_case;
@@ -86,17 +88,13 @@ int main(void)
         const bench_case *bc = &cases[i];
         tf_error err;
         tf_error_init(&err);
-        tf_survey *sv = NULL;
-        tf_model *m = NULL;
-        tf_prior_set *priors = NULL;
-        tf_posterior *post = NULL;
         tf_fit *fit = NULL;
-        const tf_series *s = NULL;
-        if (tf_survey_read(bc->file, &sv, &err) != TF_OK ||
-            !(s = bc->population ? tf_survey_find(sv, bc->population) : tf_survey_series(sv, 0)) ||
-            tf_model_new(bc->growth, bc->obs, &m, &err) != TF_OK || tf_model_initial_from_series(m, s, &err) != TF_OK ||
-            tf_setup_priors(m, s, NULL, &priors, &err) != TF_OK || tf_posterior_new(m, priors, &post, &err) != TF_OK) {
-            tf_error_print(&err, "bench_evidence", stderr);
+        bench_setup b;
+        int opened = bench_setup_open(&b, bc->file, bc->population, bc->growth, bc->obs, "bench_evidence");
+        const tf_series *s = b.s;
+        const tf_posterior *post = b.post;
+        const tf_model *m = b.m;
+        if (!opened) {
             failed = 1;
             goto next;
         }
@@ -129,10 +127,7 @@ int main(void)
         }
     next:
         tf_fit_free(fit);
-        tf_posterior_free(post);
-        tf_prior_set_free(priors);
-        tf_model_free(m);
-        tf_survey_free(sv);
+        bench_setup_close(&b);
     }
     return failed;
 }

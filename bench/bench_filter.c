@@ -77,13 +77,12 @@ int main(void)
             size_t calls = (size_t)(STEPS_PER_MEASURE / (double)(n * N_YEARS)) + 1;
             tf_filter *fg = tf_filter_alloc(gp, s, n), *fr = tf_filter_alloc(rn, s, n), *fb = tf_filter_alloc(gp, s, n);
             tf_filter_set_proposal(fb, TF_PROPOSAL_BOOTSTRAP);
-            floor_ws ws = {n, malloc(n * sizeof(double)), malloc(n * sizeof(double)), malloc(n * sizeof(double)),
-                           malloc(n * sizeof(double)), malloc((n + 1) * sizeof(uint32_t)),
-                           malloc(n * sizeof(uint32_t))};
+            floor_ws ws;
+            int ws_ok = floor_ws_alloc(&ws, n);
             size_t n_move = fg ? tf_filter_n_move(fg) : 0, n_pick = fg ? tf_filter_n_pick(fg) : 0;
             double *zm = malloc(n_move * sizeof *zm), *zp = malloc(n_pick * sizeof *zp);
             double *path = malloc(N_YEARS * sizeof *path);
-            if (!fg || !fr || !fb || !ws.x || !ws.xr || !ws.lw || !ws.w || !ws.pos || !ws.anc || !zm || !zp || !path)
+            if (!fg || !fr || !fb || !ws_ok || !zm || !zp || !path)
                 die("out of memory");
             tf_rng_fill_normal(&rng, zm, n_move);
             tf_rng_fill_normal(&rng, zp, n_pick);
@@ -122,12 +121,7 @@ int main(void)
             tf_filter_free(fg);
             tf_filter_free(fr);
             tf_filter_free(fb);
-            free(ws.x);
-            free(ws.xr);
-            free(ws.lw);
-            free(ws.w);
-            free(ws.pos);
-            free(ws.anc);
+            floor_ws_free(&ws);
             free(zm);
             free(zp);
             free(path);

@@ -35,6 +35,8 @@
 #include "sampler/screen.h"
 #include "survey/survey.h"
 
+#include "setup.h"
+
 #include "../tests/unit/kalman_ref.h"
 
 typedef struct {
@@ -454,21 +456,10 @@ done:
 static int compare_exact(void)
 {
     const char *file = "surveys/heron-colony.csv";
-    tf_error err;
-    tf_error_init(&err);
-    tf_survey *sv = NULL;
-    tf_model *m = NULL;
-    tf_prior_set *priors = NULL;
-    tf_posterior *post = NULL;
-    const tf_series *s = NULL;
-    int ok = 1;
-    if (tf_survey_read(file, &sv, &err) != TF_OK || !(s = tf_survey_series(sv, 0)) ||
-        tf_model_new("gompertz", "lognormal", &m, &err) != TF_OK ||
-        tf_model_initial_from_series(m, s, &err) != TF_OK || tf_setup_priors(m, s, NULL, &priors, &err) != TF_OK ||
-        tf_posterior_new(m, priors, &post, &err) != TF_OK) {
-        tf_error_print(&err, "bench_fit", stderr);
-        ok = 0;
-    }
+    bench_setup b;
+    int ok = bench_setup_open(&b, file, NULL, "gompertz", "lognormal", "bench_fit");
+    const tf_series *s = b.s;
+    const tf_posterior *post = b.post;
     tf_pmmh_options d = fixed_options();
     if (ok)
         printf("\nbench_fit: PMMH against Metropolis-Hastings with the exact (Kalman) likelihood, %s "
@@ -517,10 +508,7 @@ static int compare_exact(void)
                "pass, so its ESS is near 400 and its ratio is that of the whole fit, warm-up included, as a user "
                "waits for it\n",
                (size_t)KEPT * THIN);
-    tf_posterior_free(post);
-    tf_prior_set_free(priors);
-    tf_model_free(m);
-    tf_survey_free(sv);
+    bench_setup_close(&b);
     return ok;
 }
 
@@ -555,20 +543,11 @@ static int walk_efficiency(void)
     int ok = 1;
     for (size_t k = 0; ok && k < N_WALK; k++) {
         const bench_case *c = &walk_cases[k];
-        tf_error err;
-        tf_error_init(&err);
-        tf_survey *sv = NULL;
-        tf_model *m = NULL;
-        tf_prior_set *priors = NULL;
-        tf_posterior *post = NULL;
-        const tf_series *s = NULL;
-        if (tf_survey_read(c->file, &sv, &err) != TF_OK ||
-            !(s = c->population ? tf_survey_find(sv, c->population) : tf_survey_series(sv, 0)) ||
-            tf_model_new(c->growth, c->obs, &m, &err) != TF_OK || tf_model_initial_from_series(m, s, &err) != TF_OK ||
-            tf_setup_priors(m, s, NULL, &priors, &err) != TF_OK || tf_posterior_new(m, priors, &post, &err) != TF_OK) {
-            tf_error_print(&err, "bench_fit", stderr);
-            ok = 0;
-        }
+        bench_setup b;
+        ok = bench_setup_open(&b, c->file, c->population, c->growth, c->obs, "bench_fit");
+        const tf_series *s = b.s;
+        const tf_posterior *post = b.post;
+        const tf_model *m = b.m;
         int exact = !strcmp(c->growth, "gompertz") && !strcmp(c->obs, "lognormal");
         outcome o;
         if (ok && (ok = run_exact(post, s, !exact, 1, &o))) {
@@ -582,10 +561,7 @@ static int walk_efficiency(void)
                    tf_model_param_name(m, o.corr_j), o.max_corr);
             fflush(stdout);
         }
-        tf_posterior_free(post);
-        tf_prior_set_free(priors);
-        tf_model_free(m);
-        tf_survey_free(sv);
+        bench_setup_close(&b);
     }
     return ok;
 }
@@ -607,22 +583,11 @@ int main(void)
     int ok = 1;
     for (size_t k = 0; k < N_CASES; k++) {
         const bench_case *c = &cases[k];
-        tf_error err;
-        tf_error_init(&err);
-        tf_survey *sv = NULL;
-        tf_model *m = NULL;
-        tf_prior_set *priors = NULL;
-        tf_posterior *post = NULL;
-        const tf_series *s = NULL;
-        if (tf_survey_read(c->file, &sv, &err) != TF_OK ||
-            !(s = c->population ? tf_survey_find(sv, c->population) : tf_survey_series(sv, 0)) ||
-            tf_model_new(c->growth, c->obs, &m, &err) != TF_OK ||
-            tf_model_initial_from_series(m, s, &err) != TF_OK ||
-            tf_setup_priors(m, s, NULL, &priors, &err) != TF_OK ||
-            tf_posterior_new(m, priors, &post, &err) != TF_OK) {
-            tf_error_print(&err, "bench_fit", stderr);
+        bench_setup b;
+        if (!bench_setup_open(&b, c->file, c->population, c->growth, c->obs, "bench_fit"))
             ok = 0;
-        }
+        const tf_series *s = b.s;
+        const tf_posterior *post = b.post;
         char name[128];
         snprintf(name, sizeof name, "%s%s%s %s+%s", strrchr(c->file, '/') + 1, c->population ? ":" : "",
                  c->population ? c->population : "", c->growth, c->obs);
@@ -647,10 +612,7 @@ int main(void)
         }
         if (ok)
             printf("%-40s delayed acceptance / standard, ESS per second: %.2f\n", name, exp(case_da));
-        tf_posterior_free(post);
-        tf_prior_set_free(priors);
-        tf_model_free(m);
-        tf_survey_free(sv);
+        bench_setup_close(&b);
         fflush(stdout);
     }
     if (!ok)

@@ -14,13 +14,14 @@
 #include <string.h>
 #include <time.h>
 
-#include "cmd/setup.h"
 #include "filter/filter.h"
 #include "model/model.h"
 #include "sampler/fit.h"
 #include "sampler/pmmh.h"
 #include "sampler/posterior.h"
 #include "survey/survey.h"
+
+#include "setup.h"
 
 #define REPS 60
 #define N_YEARS 30
@@ -110,19 +111,14 @@ static int fit_once(const tf_posterior *post, const tf_series *s, tf_proposal p,
 static int row(const char *name, const tf_series *s, const char *growth, const char *obs, int with_fit,
                double *log_ratio_sum, int *n_ratio)
 {
-    tf_error err;
-    tf_error_init(&err);
-    tf_model *m = NULL;
-    tf_prior_set *priors = NULL;
-    tf_posterior *post = NULL;
-    int ok = tf_model_new(growth, obs, &m, &err) == TF_OK && tf_model_initial_from_series(m, s, &err) == TF_OK &&
-             tf_setup_priors(m, s, NULL, &priors, &err) == TF_OK && tf_posterior_new(m, priors, &post, &err) == TF_OK;
+    bench_setup b = {0};
+    int ok = bench_setup_series(&b, s, growth, obs, "bench_guided");
+    const tf_model *m = b.m;
+    const tf_posterior *post = b.post;
     double theta[TF_MAX_PARAMS], secs;
     size_t np;
     ok = ok && fit_once(post, s, TF_PROPOSAL_GUIDED, 1, theta, &secs, &np);
-    if (!ok) {
-        tf_error_print(&err, "bench_guided", stderr);
-    } else {
+    if (ok) {
         double ns_g, ns_b;
         double ng = particles_for_sd1(m, s, theta, TF_PROPOSAL_GUIDED, &ns_g);
         double nb = particles_for_sd1(m, s, theta, TF_PROPOSAL_BOOTSTRAP, &ns_b);
@@ -141,9 +137,7 @@ static int row(const char *name, const tf_series *s, const char *growth, const c
         printf("\n");
         fflush(stdout);
     }
-    tf_posterior_free(post);
-    tf_prior_set_free(priors);
-    tf_model_free(m);
+    bench_setup_close(&b);
     return ok;
 }
 

@@ -9,6 +9,7 @@
 
 #include <math.h>
 #include <stdint.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "model/vector_math.h"
@@ -21,6 +22,24 @@ typedef struct {
     double *x, *xr, *lw, *w;
     uint32_t *pos, *anc;
 } floor_ws;
+
+/* A workspace for n particles: 1 when every buffer was had (free with floor_ws_free either way). */
+static inline int floor_ws_alloc(floor_ws *ws, size_t n)
+{
+    *ws = (floor_ws){n, malloc(n * sizeof(double)), malloc(n * sizeof(double)), malloc(n * sizeof(double)),
+                     malloc(n * sizeof(double)), malloc((n + 1) * sizeof(uint32_t)), malloc(n * sizeof(uint32_t))};
+    return ws->x && ws->xr && ws->lw && ws->w && ws->pos && ws->anc;
+}
+
+static inline void floor_ws_free(floor_ws *ws)
+{
+    free(ws->x);
+    free(ws->xr);
+    free(ws->lw);
+    free(ws->w);
+    free(ws->pos);
+    free(ws->anc);
+}
 
 /* Not inlined: with the particle count a constant of the caller gcc 12 misjudged the tail loops
  * (a false -Waggressive-loop-optimizations), and one call per run costs nothing here. */

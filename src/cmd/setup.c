@@ -1,8 +1,6 @@
 /* Series checks and prior sets for the fitting commands; see setup.h. */
 #include "cmd/setup.h"
 
-#include <string.h>
-
 #include <math.h>
 #include <stdlib.h>
 
@@ -47,25 +45,19 @@ tf_status tf_setup_check_any_suits(const char *const *obs, size_t n_obs, const t
 
 static tf_status check_obs(const tf_obs_type *o, const tf_series *s, const char *path, tf_error *err)
 {
-    const double *y = tf_series_counts(s);
-    size_t n = tf_series_n_years(s);
-    int year0 = tf_series_first_year(s);
-    if (o->needs_integer) {
-        size_t i = tf_series_first_fractional(s);
-        if (i < n)
-            return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
-                                "use --obs lognormal for indices that are not whole counts",
-                                "count %g in year %d is not a whole number, which the %s model needs",
-                                y[i], year0 + (int)i, o->name);
-    }
-    if (o->needs_positive)
-        for (size_t i = 0; i < n; i++)
-            if (y[i] == 0)
-                return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
-                                    "use a count model such as poisson or negbin, which allow zero counts",
-                                    "count 0 in year %d is impossible under the %s model",
-                                    year0 + (int)i, o->name);
-    return TF_OK;
+    int zero;
+    size_t i = tf_model_obs_unsuited(o, s, &zero);
+    if (i == tf_series_n_years(s))
+        return TF_OK;
+    int year = tf_series_first_year(s) + (int)i;
+    if (zero)
+        return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
+                            "use a count model such as poisson or negbin, which allow zero counts",
+                            "count 0 in year %d is impossible under the %s model", year, o->name);
+    return tf_error_add(err, TF_ERR_INVALID, path, tf_series_source_line(s, i), 0,
+                        "use --obs lognormal for indices that are not whole counts",
+                        "count %g in year %d is not a whole number, which the %s model needs",
+                        tf_series_counts(s)[i], year, o->name);
 }
 
 double tf_setup_survey_median(const tf_series *s)

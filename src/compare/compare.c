@@ -112,25 +112,17 @@ const char *tf_compare_kass_raftery(double two_ln_b)
 /* Why series s does not suit observation model o ("" when it does). */
 static void unsuited_reason(const tf_series *s, const tf_obs_type *o, char *buf, size_t size)
 {
-    const double *y = tf_series_counts(s);
-    size_t n = tf_series_n_years(s);
-    int year0 = tf_series_first_year(s);
+    int zero;
+    size_t i = tf_model_obs_unsuited(o, s, &zero);
+    int year = tf_series_first_year(s) + (int)i;
     buf[0] = '\0';
-    if (o->needs_integer) {
-        size_t i = tf_series_first_fractional(s);
-        if (i < n) {
-            snprintf(buf, size, "count %g in %d is not a whole number, which %s counting error needs", y[i],
-                     year0 + (int)i, o->label);
-            return;
-        }
-    }
-    if (o->needs_positive)
-        for (size_t i = 0; i < n; i++)
-            if (y[i] == 0) {
-                snprintf(buf, size, "the count of 0 in %d is impossible under %s counting error", year0 + (int)i,
-                         o->label);
-                return;
-            }
+    if (i == tf_series_n_years(s))
+        return;
+    if (zero)
+        snprintf(buf, size, "the count of 0 in %d is impossible under %s counting error", year, o->label);
+    else
+        snprintf(buf, size, "count %g in %d is not a whole number, which %s counting error needs",
+                 tf_series_counts(s)[i], year, o->label);
 }
 
 static tf_status add_names(tf_error *err, const char *what, const char *const *names, size_t n, size_t n_known,

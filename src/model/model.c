@@ -186,3 +186,22 @@ tf_status tf_model_simulate(const tf_model *m, const double *theta, double x1, c
     }
     return TF_OK;
 }
+
+size_t tf_model_obs_unsuited(const tf_obs_type *o, const tf_series *s, int *zero)
+{
+    const double *y = tf_series_counts(s);
+    size_t n = tf_series_n_years(s);
+    *zero = 0;
+    if (o->needs_integer) {
+        size_t i = tf_series_first_fractional(s);
+        if (i < n)
+            return i;
+    }
+    if (o->needs_positive)
+        for (size_t i = 0; i < n; i++)
+            if (y[i] == 0) {
+                *zero = 1;
+                return i;
+            }
+    return n;
+}

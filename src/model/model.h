@@ -101,6 +101,11 @@ void tf_model_set_initial(tf_model *m, double x1_mean, double x1_sd);
 double tf_model_x1_mean(const tf_model *m);
 double tf_model_x1_sd(const tf_model *m);
 
+/* The first year of s whose count o cannot have: a fraction where o->needs_integer (looked for
+ * first), else a zero where o->needs_positive; tf_series_n_years(s) when every count suits. *zero
+ * says which (1: a zero, 0: a fraction). The one rule the commands and the comparison share. */
+size_t tf_model_obs_unsuited(const tf_obs_type *o, const tf_series *s, int *zero);
+
 /* Checks a full parameter vector against the supports; TF_ERR_RANGE names the parameter. */
 tf_status tf_model_check_params(const tf_model *m, const double *theta, tf_error *err);
 

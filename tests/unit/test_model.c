@@ -404,6 +404,29 @@ START_TEST(pseudo_observations_follow_their_definitions)
 }
 END_TEST
 
+/* The shared suitability rule: a fraction is looked for first (whole-count models), then a zero
+ * (models that cannot count zero); every count suiting gives the number of years. */
+START_TEST(unsuited_counts_are_found)
+{
+    const double y[] = {3, 0, 2.5, 4, NAN, 0};
+    tf_error err;
+    tf_error_init(&err);
+    tf_series *s = tf_series_new("u", 2000, 6, y, NULL, NULL, &err);
+    ck_assert_ptr_nonnull(s);
+    int zero = -1;
+    ck_assert_uint_eq(tf_model_obs_unsuited(tf_model_find_obs("poisson"), s, &zero), 2);
+    ck_assert_int_eq(zero, 0);
+    ck_assert_uint_eq(tf_model_obs_unsuited(tf_model_find_obs("lognormal"), s, &zero), 1);
+    ck_assert_int_eq(zero, 1);
+    const double w[] = {3, 1, 2, 4, NAN, 5};
+    tf_series *t = tf_series_new("w", 2000, 6, w, NULL, NULL, &err);
+    ck_assert_uint_eq(tf_model_obs_unsuited(tf_model_find_obs("negbin"), t, &zero), 6);
+    ck_assert_uint_eq(tf_model_obs_unsuited(tf_model_find_obs("lognormal"), t, &zero), 6);
+    tf_series_free(s);
+    tf_series_free(t);
+}
+END_TEST
+
 START_TEST(draws_have_the_model_moments)
 {
     tf_rng rng;
@@ -498,6 +521,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, densities_match_scipy);
     tcase_add_test(tc, vector_kernel_equals_scalar_density);
     tcase_add_test(tc, pseudo_observations_follow_their_definitions);
+    tcase_add_test(tc, unsuited_counts_are_found);
     tcase_add_test(tc, draws_have_the_model_moments);
     tcase_add_test(tc, simulation_reproduces_and_scales);
     suite_add_tcase(s, tc);

@@ -18,7 +18,6 @@
 #include <unistd.h>
 
 #include "analysis/provenance.h"
-#include "analysis/sheets.h"
 #include "export/atomic.h"
 #include "export/csv_out.h"
 #include "export/report.h"
@@ -26,6 +25,10 @@
 #include "export/workbook.h"
 #include "model/model.h"
 #include "project/cautions.h"
+#include "tables/analysis_tables.h"
+#include "tables/columns.h"
+#include "tables/populations_table.h"
+#include "util/path.h"
 #include "util/version.h"
 
 /* Room for a path inside the batch folder. */
@@ -91,52 +94,63 @@ static tf_status join(char *buf, size_t size, const char *dir, const char *name,
 
 /* The label as one folder name that every file system takes: ASCII letters, digits, '-' and '_'
  * kept, '.' kept except first, everything else '_'; "population" for an empty label. */
-static void safe_name(const char *label, char *out, size_t size)
-{
-    size_t k = 0;
-    for (const char *p = label; *p && k + 1 < size; p++) {
-        char c = *p;
-        int ok = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' || c == '_' ||
-                 (c == '.' && k > 0);
-        out[k++] = ok ? c : '_';
-    }
-    out[k] = '\0';
-    if (!k)
-        snprintf(out, size, "population");
-}
-
-/* Folder names, unique without regard to case (file systems that ignore case would merge
- * "Site-1" and "site-1"): a later population whose name is taken gets "-2", "-3"... in file
- * order, so the same file always gives the same names. */
+/* Folder names: the one rule of every command (tf_path_folder_names), in the batch's folder. */
 static tf_status name_folders(tf_batch *b, tf_error *err)
 {
-    char base[TF_SURVEY_MAX_LABEL + 16], name[TF_SURVEY_MAX_LABEL + 40], dir[PATH_BUF];
-    tf_status st = join(dir, sizeof dir, b->o.root, TF_BATCH_POP_DIR, err);
-    if (st != TF_OK)
-        return st;
-    char **names = calloc(b->n, sizeof *names);
-    if (!names)
-        return nomem(err);
+    const char **labels = calloc(b->n ? b->n : 1, sizeof *labels);
+    char **names = calloc(b->n ? b->n : 1, sizeof *names);
+    tf_status st = labels && names ? TF_OK : nomem(err);
+    for (size_t i = 0; st == TF_OK && i < b->n; i++)
+        labels[i] = b->items[i].label;
+    if (st == TF_OK && !tf_path_folder_names(labels, b->n, names))
+        st = nomem(err);
     for (size_t i = 0; i < b->n && st == TF_OK; i++) {
-        safe_name(b->items[i].label, base, sizeof base);
-        snprintf(name, sizeof name, "%s", base);
-        for (unsigned k = 2;; k++) {
-            size_t j = 0;
-            while (j < i && strcasecmp(names[j], name))
-                j++;
-            if (j == i)
-                break;
-            snprintf(name, sizeof name, "%s-%u", base, k);
-        }
         char path[PATH_BUF];
-        if (!(names[i] = strdup(name)))
-            st = nomem(err);
-        else if ((st = join(path, sizeof path, dir, name, err)) == TF_OK && !(b->items[i].folder = strdup(path)))
+        if ((st = join(path, sizeof path, b->o.root, names[i], err)) == TF_OK && !(b->items[i].folder = strdup(path)))
             st = nomem(err);
     }
-    for (size_t i = 0; i < b->n; i++)
+    for (size_t i = 0; names && i < b->n; i++)
         free(names[i]);
     free(names);
+    free(labels);
+    return st;
+}
+
+/* The CSV header of the table of populations under the batch's projection settings. */
+static tf_status populations_header(const tf_batch *b, char **out, tf_error *err)
+{
+    *out = NULL;
+    tf_table *t = tf_populations_table_new(&b->o.analysis.project, TF_POPULATIONS_TABLE_NAME, err);
+    if (!t)
+        return tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
+    char *body = NULL;
+    tf_status st = tf_populations_csv_text(t, out, &body, err);
+    free(body);
+    tf_table_free(t);
+    return st;
+}
+
+/* The one-row table of populations of one population, and its row as CSV text in *line
+ * (malloc'd): the form the batch keeps, hands between processes and combines. */
+static tf_status population_row(const tf_batch *b, const char *label, const tf_series *s, const tf_analysis_pop *pop,
+                                tf_batch_state state, const char *reason, tf_table **table, char **line, tf_error *err)
+{
+    *line = NULL;
+    if (table)
+        *table = NULL;
+    tf_table *t = tf_populations_table_new(&b->o.analysis.project, TF_POPULATIONS_TABLE_NAME, err);
+    if (!t)
+        return tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
+    char *head = NULL;
+    tf_status st = tf_populations_table_add(t, &b->o.analysis.project, label, s, pop, tf_batch_state_name(state), reason,
+                                            err);
+    if (st == TF_OK)
+        st = tf_populations_csv_text(t, &head, line, err);
+    free(head);
+    if (st == TF_OK && table)
+        *table = t;
+    else
+        tf_table_free(t);
     return st;
 }
 
@@ -179,7 +193,7 @@ tf_status tf_batch_new(const tf_survey *sv, const tf_batch_options *o, tf_batch 
     if ((st = tf_records_settings(a, b->sha256, b->workbooks, b->o.workbook_draws, b->o.extra_settings, &b->settings, err)) != TF_OK)
         goto fail;
     tf_provenance_hash_bytes(b->settings, strlen(b->settings), b->settings_hash);
-    if ((st = name_folders(b, err)) != TF_OK || (st = tf_records_header(&a->project, &b->header, err)) != TF_OK)
+    if ((st = name_folders(b, err)) != TF_OK || (st = populations_header(b, &b->header, err)) != TF_OK)
         goto fail;
     *out = b;
     return TF_OK;
@@ -320,7 +334,7 @@ static int read_finished(tf_batch *b, size_t i)
         const char *line = rows + hl + 2;
         ok = !strstr(line, "\r\n");
         char *f[3] = {0};
-        size_t n = ok ? tf_records_split(line, f, 2) : 0;
+        size_t n = ok ? tf_populations_split_line(line, f, 2) : 0;
         ok = n == 2 && !strcmp(f[0], it->label);
         tf_batch_state st = TF_BATCH_PENDING;
         for (int s = TF_BATCH_DONE; ok && s <= TF_BATCH_BAD_DATA; s++)
@@ -332,8 +346,8 @@ static int read_finished(tf_batch *b, size_t i)
             it->state = st;
             it->seconds = seconds;
             /* The reason is the last field. */
-            tf_table *t = tf_records_table(&b->o.analysis.project, "r", NULL);
-            if (t && tf_records_append(t, line, NULL) == TF_OK && tf_table_n_rows(t) == 1) {
+            tf_table *t = tf_populations_table_new(&b->o.analysis.project, TF_POPULATIONS_TABLE_NAME, NULL);
+            if (t && tf_populations_table_add_line(t, line, NULL) == TF_OK && tf_table_n_rows(t) == 1) {
                 const char *r = tf_table_text(t, 0, tf_table_n_columns(t) - 1);
                 it->reason = r ? strdup(r) : NULL;
             }
@@ -360,12 +374,15 @@ static void clear_folder(const char *dir, const char *name)
                 *next = '\0', next += 2;
             else
                 next = p + strlen(p);
-            char *f[1] = {0};
-            /* Only plain file names: a contents file cannot send this anywhere else. */
-            if (tf_records_split(p, f, 1) == 1 && !strchr(f[0], '/') && strcmp(f[0], "..") && strcmp(f[0], ".") &&
-                join(path, sizeof path, dir, f[0], NULL) == TF_OK)
+            char *f[2] = {0};
+            /* The file is the second field. Only plain file names: a contents file cannot send
+             * this anywhere else. */
+            size_t nf = tf_populations_split_line(p, f, 2);
+            if (nf == 2 && !strchr(f[1], '/') && strcmp(f[1], "..") && strcmp(f[1], ".") &&
+                join(path, sizeof path, dir, f[1], NULL) == TF_OK)
                 unlink(path);
-            free(f[0]);
+            for (size_t k = 0; k < nf; k++)
+                free(f[k]);
         }
         free(text);
         if (join(path, sizeof path, dir, "contents.csv", NULL) == TF_OK)
@@ -383,9 +400,8 @@ static void clear_folder(const char *dir, const char *name)
 /* --fresh: every population folder of the earlier batch that carries a marker or contents file. */
 static void clear_earlier(const tf_batch *b)
 {
-    char dir[PATH_BUF], sub[PATH_BUF], probe[PATH_BUF];
-    if (join(dir, sizeof dir, b->o.root, TF_BATCH_POP_DIR, NULL) != TF_OK)
-        return;
+    char sub[PATH_BUF], probe[PATH_BUF];
+    const char *dir = b->o.root;
     DIR *d = opendir(dir);
     if (!d)
         return;
@@ -424,10 +440,7 @@ tf_status tf_batch_prepare(tf_batch *b, tf_error *err)
         clear_earlier(b);
     }
     free(earlier);
-    char dir[PATH_BUF];
-    if ((st = join(dir, sizeof dir, b->o.root, TF_BATCH_POP_DIR, err)) != TF_OK ||
-        (st = tf_atomic_mkdirs(dir, NULL, err)) != TF_OK ||
-        (st = write_text(path, b->settings, b->o.survey_path, err)) != TF_OK)
+    if ((st = write_text(path, b->settings, b->o.survey_path, err)) != TF_OK)
         return st;
     b->n_todo = b->n_resumed = 0;
     for (size_t i = 0; i < b->n; i++) {
@@ -454,163 +467,49 @@ tf_status tf_batch_prepare(tf_batch *b, tf_error *err)
 
 /* ---- one population ---- */
 
-/* The columns a table has in every population's folder, so that the same table of every
- * population concatenates under one header: the counts table gains its effort columns only
- * where effort varies, and the draws table has a column per parameter of the fitted models, so
- * for these two the batch writes every column that any population can have (blank where it
- * does not apply). Other tables have the same columns everywhere already. Writes at most max
- * headers into out; returns their number, 0 for "the table's own columns". */
-static size_t canonical_columns(const char *table, const char **out, size_t max)
-{
-    static const char *const counts[] = {"Year",     "Count",      "Effort",     "Count per effort", "Estimate",
-                                         "Lower 50 %", "Upper 50 %", "Lower 95 %", "Upper 95 %"};
-    size_t n = 0;
-    if (!strcmp(table, "Counts")) {
-        for (; n < sizeof counts / sizeof counts[0] && n < max; n++)
-            out[n] = counts[n];
-        return n;
-    }
-    if (strcmp(table, "Draws"))
-        return 0;
-    static const char *const head[] = {"Model", "Chain", "Draw", "Log-likelihood"};
-    for (size_t k = 0; k < 4 && n < max; k++)
-        out[n++] = head[k];
-    /* Parameters in the joined models' order: drift parameters, sigma, counting error. */
-    const char *names[64];
-    size_t nn = 0;
-    for (size_t g = 0; g < tf_model_n_growth(); g++)
-        for (size_t k = 0; k < tf_model_growth_at(g)->n_params && nn < 63; k++)
-            names[nn++] = tf_model_growth_at(g)->param_names[k];
-    names[nn++] = "sigma";
-    for (size_t o = 0; o < tf_model_n_obs(); o++)
-        for (size_t k = 0; k < tf_model_obs_at(o)->n_params && nn < 64; k++)
-            names[nn++] = tf_model_obs_at(o)->param_names[k];
-    for (size_t k = 0; k < nn && n < max; k++) {
-        size_t j = 4;
-        while (j < n && strcmp(out[j], names[k]))
-            j++;
-        if (j == n)
-            out[n++] = names[k];
-    }
-    if (n < max)
-        out[n++] = "Last-year abundance";
-    return n;
-}
-
-/* A copy of t with a first column Population holding label in every row and the canonical
- * columns of its kind (see canonical_columns), each cell copied from the column of the same
- * header; a column of t outside the canonical ones (none, short of a bug) comes last. */
-static tf_table *with_population(const tf_table *t, const char *label, tf_error *err)
-{
-    tf_table *c = tf_table_new(tf_table_name(t), err);
-    if (!c)
-        return NULL;
-    size_t nc = tf_table_n_columns(t), nr = tf_table_n_rows(t);
-    const char *want[96];
-    size_t nw = canonical_columns(tf_table_name(t), want, sizeof want / sizeof want[0]);
-    size_t map[96 + 64], n_out = 0;   /* map[k]: the column of t shown as column k + 1, or NONE */
-    const size_t NONE = TF_TABLE_NO_COLUMN;
-    tf_status st = tf_table_add_column(c, "Population", "the population's label", TF_COL_TEXT, NULL, err);
-    for (size_t k = 0; k < nw && st == TF_OK; k++) {
-        size_t j = tf_table_find_column(t, want[k]);
-        if (j != NONE) {
-            const char *legend = tf_table_legend(t, j);
-            st = tf_table_add_column(c, want[k], legend[0] ? legend : NULL, tf_table_column_kind(t, j), NULL, err);
-        } else {
-            char legend[128];
-            snprintf(legend, sizeof legend, "%s (blank: does not apply to this population)", want[k]);
-            st = tf_table_add_column(c, want[k], legend, TF_COL_NUMBER, NULL, err);
-        }
-        map[n_out++] = j;
-    }
-    for (size_t j = 0; j < nc && st == TF_OK && n_out < sizeof map / sizeof map[0]; j++) {
-        size_t k = 0;
-        while (k < nw && strcmp(want[k], tf_table_header(t, j)))
-            k++;
-        if (nw && k < nw)
-            continue;
-        const char *legend = tf_table_legend(t, j);
-        st = tf_table_add_column(c, tf_table_header(t, j), legend[0] ? legend : NULL, tf_table_column_kind(t, j), NULL,
-                                 err);
-        map[n_out++] = j;
-    }
-    for (size_t k = 0; k < tf_table_n_notes(t) && st == TF_OK; k++)
-        st = tf_table_add_note(c, tf_table_note_kind(t, k), tf_table_note(t, k), err);
-    for (size_t i = 0; i < nr && st == TF_OK; i++) {
-        size_t row;
-        if ((st = tf_table_add_row(c, &row, err)) != TF_OK || (st = tf_table_set_text(c, row, 0, label, err)) != TF_OK)
-            break;
-        for (size_t k = 0; k < n_out && st == TF_OK; k++) {
-            size_t j = map[k];
-            if (j == NONE)
-                continue;
-            const char *text = tf_table_text(t, i, j);
-            if (text)
-                st = tf_table_set_text(c, row, k + 1, text, err);
-            else if (!tf_table_is_empty(t, i, j))
-                tf_table_set_number(c, row, k + 1, tf_table_number(t, i, j));
-            if (st == TF_OK && tf_table_cell_kind(t, i, j) != tf_table_column_kind(t, j))
-                st = tf_table_set_cell_kind(c, row, k + 1, tf_table_cell_kind(t, i, j), err);
-            if (st == TF_OK && tf_table_warning(t, i, j))
-                st = tf_table_set_warning(c, row, k + 1, err);
-        }
-    }
-    if (st != TF_OK) {
-        tf_table_free(c);
-        return NULL;
-    }
-    return c;
-}
-
-/* The population's tables as CSV files (with the Population column), its contents file and its
- * summary row, written together, all or none. */
-static tf_status write_tables(const tf_batch *b, const item *it, const tf_report *r, const char *row_text,
+/* The population's tables as CSV files, each with its population column (the report's tables, or
+ * only its row of the table of populations when it was not analysed), and its contents file,
+ * written together, all or none. */
+static tf_status write_tables(const tf_batch *b, const item *it, const tf_report *r, const tf_table *row,
                               tf_error *err)
 {
     size_t nt = r ? tf_report_n_tables(r) : 0, n = 0;
-    tf_table **tables = calloc(nt + 2, sizeof *tables);
-    tf_table *contents = tf_table_new("contents", err), *row = NULL;
+    const tf_table **tables = calloc(nt + 2, sizeof *tables);
+    tf_table *contents = tf_table_new("contents", err);
     tf_status st = tables && contents ? TF_OK : nomem(err);
+    size_t c_pop, c_file, c_sheet, c_about;
     if (st == TF_OK)
-        st = tf_table_add_column(contents, "file", "the CSV file", TF_COL_TEXT, NULL, err);
+        st = tf_columns_add(contents, TF_C_POPULATION, NULL, &c_pop, err);
     if (st == TF_OK)
-        st = tf_table_add_column(contents, "table", "what it holds", TF_COL_TEXT, NULL, err);
-    for (size_t k = 0; k < nt && st == TF_OK; k++) {
-        const tf_table *t = tf_report_table(r, k);
-        /* The one-row overview of the analysis: the summary row replaces it. */
-        if (!strcmp(tf_table_name(t), "All populations"))
+        st = tf_columns_add(contents, TF_C_FILE, NULL, &c_file, err);
+    if (st == TF_OK)
+        st = tf_columns_add(contents, TF_C_SHEET, NULL, &c_sheet, err);
+    if (st == TF_OK)
+        st = tf_columns_add(contents, TF_C_ABOUT, NULL, &c_about, err);
+    for (size_t k = 0; k < nt + 1 && st == TF_OK; k++) {
+        const tf_table *t = k < nt ? tf_report_table(r, k) : (r ? NULL : row);
+        if (!t)
             continue;
-        if (!(tables[n] = with_population(t, it->label, err))) {
-            st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
-            break;
-        }
         char file[128];
         tf_csv_file_name(tf_table_name(t), file, sizeof file);
         size_t cr;
-        if ((st = tf_table_add_row(contents, &cr, err)) == TF_OK && (st = tf_table_set_text(contents, cr, 0, file, err)) == TF_OK)
-            st = tf_table_set_text(contents, cr, 1, tf_table_name(t), err);
-        n++;
+        if ((st = tf_table_add_row(contents, &cr, err)) == TF_OK &&
+            (st = tf_table_set_text(contents, cr, c_pop, it->label, err)) == TF_OK &&
+            (st = tf_table_set_text(contents, cr, c_file, file, err)) == TF_OK &&
+            (st = tf_table_set_text(contents, cr, c_sheet,
+                                    k < nt && b->workbooks && !tf_report_csv_only(r, k) ? tf_table_name(t) : NULL,
+                                    err)) == TF_OK)
+            st = tf_table_set_text(contents, cr, c_about, k < nt ? tf_report_about(r, k) : "the population's row of "
+                                                                                          "the table of populations",
+                                   err);
+        tables[n++] = t;
     }
-    if (st == TF_OK && !(row = tf_records_table(&b->o.analysis.project, "summary-row", err)))
-        st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
-    if (st == TF_OK)
-        st = tf_records_append(row, row_text, err);
-    size_t cr;
-    if (st == TF_OK && (st = tf_table_add_row(contents, &cr, err)) == TF_OK &&
-        (st = tf_table_set_text(contents, cr, 0, TF_BATCH_ROW_CSV, err)) == TF_OK)
-        st = tf_table_set_text(contents, cr, 1, "the population's row of the batch summary", err);
     if (st == TF_OK) {
-        tables[n++] = row;
-        row = NULL;
         tables[n++] = contents;
-        contents = NULL;
-        st = tf_csv_write_all((const tf_table *const *)tables, n, it->folder, b->o.survey_path, err);
+        st = tf_csv_write_all(tables, n, it->folder, b->o.survey_path, err);
     }
-    for (size_t k = 0; tables && k < n; k++)
-        tf_table_free(tables[k]);
     free(tables);
     tf_table_free(contents);
-    tf_table_free(row);
     return st;
 }
 
@@ -661,6 +560,7 @@ tf_status tf_batch_run_one(const tf_batch *b, size_t i, size_t n_threads, const 
 
     tf_analysis *a = NULL;
     tf_report *r = NULL;
+    tf_table *row = NULL;
     if (it->rej) {
         res->state = TF_BATCH_BAD_DATA;
         const tf_survey_rejected *x = it->rej;
@@ -695,18 +595,17 @@ tf_status tf_batch_run_one(const tf_batch *b, size_t i, size_t n_threads, const 
                 snprintf(res->reason, sizeof res->reason, "%s", e->what);
         } else {
             res->state = TF_BATCH_DONE;
-            tf_sheets_provenance prov = {.input_name = b->o.survey_path, .title = b->o.title, .omit_seconds = 1,
+            tf_analysis_tables_provenance prov = {.input_name = b->o.survey_path, .title = b->o.title, .omit_seconds = 1,
                                          .workbook_draws = b->o.workbook_draws,
                                          .csv_place = "the same folder as this workbook"};
             memcpy(prov.sha256, b->sha256, sizeof prov.sha256);
             memcpy(prov.date, b->date, sizeof prov.date);
-            if (!(r = tf_report_new(err)) || (st = tf_sheets_build(a, &prov, r, err)) != TF_OK)
+            if (!(r = tf_report_new(err)) || (st = tf_analysis_tables_build(a, &prov, r, err)) != TF_OK)
                 goto fail;
         }
     }
     const tf_analysis_pop *pop = a ? tf_analysis_population(a, 0) : NULL;
-    if ((st = tf_records_row(&b->o.analysis.project, it->label, it->s, pop, tf_batch_state_name(res->state),
-                             res->reason, &res->row, err)) != TF_OK)
+    if ((st = population_row(b, it->label, it->s, pop, res->state, res->reason, &row, &res->row, err)) != TF_OK)
         goto fail;
     if (r && b->workbooks) {
         char wb[PATH_BUF];
@@ -719,7 +618,7 @@ tf_status tf_batch_run_one(const tf_batch *b, size_t i, size_t n_threads, const 
         if ((st = tf_report_write(r, wb, NULL, b->o.survey_path, stop, err)) != TF_OK)
             goto fail;
     }
-    if ((st = write_tables(b, it, r, res->row, err)) != TF_OK)
+    if ((st = write_tables(b, it, r, row, err)) != TF_OK)
         goto fail;
     if (stop && *stop) {
         st = tf_error_add(err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "interrupted");
@@ -728,11 +627,13 @@ tf_status tf_batch_run_one(const tf_batch *b, size_t i, size_t n_threads, const 
     res->seconds = seconds_since(&t0);
     if ((st = write_marker(b, it, res->state, res->seconds, err)) != TF_OK)
         goto fail;
+    tf_table_free(row);
     tf_report_free(r);
     tf_analysis_free(a);
     return TF_OK;
 fail:
     tf_batch_result_clear(res);
+    tf_table_free(row);
     tf_report_free(r);
     tf_analysis_free(a);
     return st;
@@ -858,7 +759,7 @@ tf_status tf_batch_run_threads(tf_batch *b, size_t n_workers, const volatile sig
 static tf_status about_table(const tf_batch *b, tf_table **out, tf_error *err)
 {
     tf_status st = TF_OK;
-    tf_table *t = tf_table_new_summary("About", err);
+    tf_table *t = tf_table_new_summary("Summary", err);
     if (!t)
         return tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
     char text[PATH_BUF + 64];
@@ -887,7 +788,7 @@ static tf_status about_table(const tf_batch *b, tf_table **out, tf_error *err)
         if (n && states[k] != TF_BATCH_DONE && st == TF_OK)
             st = tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err);
     }
-    snprintf(text, sizeof text, "%s/%s/<population>/", b->o.root, TF_BATCH_POP_DIR);
+    snprintf(text, sizeof text, "%s/<population>/", b->o.root);
     TRY(tf_table_add_item_text(t, "Tables of each population", text,
                                !b->workbooks         ? "CSV files"
                                : b->o.workbook_draws ? "CSV files and a workbook per population"
@@ -925,25 +826,26 @@ tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t 
         st = nomem(err);
         goto done;
     }
-    if (!(rows = tf_records_table(&b->o.analysis.project, "Populations", err))) {
+    if (!(rows = tf_populations_table_new(&b->o.analysis.project, "Populations", err))) {
         st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
         goto done;
     }
     tf_table_set_filter(rows, 1);
     fprintf(f, "%s\r\n", b->header);
-    fputs("Population,Status,Seconds\r\n", g);
+    fprintf(g, "%s,%s,%s\r\n", tf_column_name(TF_C_POPULATION), tf_column_name(TF_C_STATUS),
+            tf_column_name(TF_C_SECONDS));
     for (size_t i = 0; i < b->n && st == TF_OK; i++) {
         const item *it = &b->items[i];
         char *pending = NULL;
         const char *line = it->row;
         if (!line) {
-            if ((st = tf_records_row(&b->o.analysis.project, it->label, it->s, NULL,
-                                     tf_batch_state_name(TF_BATCH_PENDING), NULL, &pending, err)) != TF_OK)
+            if ((st = population_row(b, it->label, it->s, NULL, TF_BATCH_PENDING, NULL, NULL, &pending, err)) !=
+                TF_OK)
                 break;
             line = pending;
         }
         fprintf(f, "%s\r\n", line);
-        st = tf_records_append(rows, line, err);
+        st = tf_populations_table_add_line(rows, line, err);
         /* The label as the summary writes it (quoted when it must be): the first field. */
         size_t k = 0;
         for (int q = 0; line[k] && (q || line[k] != ','); k++)
@@ -980,8 +882,9 @@ tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t 
         st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_IO;
         goto done;
     }
-    if ((st = tf_workbook_add_table(wb, rows, NULL, err)) != TF_OK ||
-        (st = tf_workbook_add_table(wb, about, NULL, err)) != TF_OK) {
+    /* The first page first, with its cautions, as the single report has it. */
+    if ((st = tf_workbook_add_table(wb, about, NULL, err)) != TF_OK ||
+        (st = tf_workbook_add_table(wb, rows, NULL, err)) != TF_OK) {
         goto done;
     }
     st = tf_workbook_close(wb, err);
@@ -990,6 +893,9 @@ tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t 
         goto done;
     if ((st = join(path, sizeof path, b->o.root, TF_BATCH_SUMMARY_CSV, err)) != TF_OK ||
         (st = write_text(path, csv, b->o.survey_path, err)) != TF_OK)
+        goto done;
+    if ((st = join(path, sizeof path, b->o.root, TF_BATCH_FIRST_PAGE_CSV, err)) != TF_OK ||
+        (st = tf_csv_write(about, path, b->o.survey_path, err)) != TF_OK)
         goto done;
     if ((st = join(path, sizeof path, b->o.root, TF_BATCH_TIMINGS_CSV, err)) == TF_OK)
         st = write_text(path, times, b->o.survey_path, err);

@@ -20,12 +20,14 @@
  * tables and the summary workbook are always written. */
 #define TF_BATCH_WORKBOOK_LIMIT 25
 
-/* The folder of the per-population results inside the batch folder, and the files of each. */
-#define TF_BATCH_POP_DIR "populations"
+/* The files of the batch folder: each population's results in a folder of its own (named by
+ * tf_path_folder_names), with its marker and its row of the table of populations; beside them the
+ * settings record, the combined table of populations, the first page and the timings. */
 #define TF_BATCH_MARKER "finished.txt"
-#define TF_BATCH_ROW_CSV "summary-row.csv"
+#define TF_BATCH_ROW_CSV "populations.csv"
 #define TF_BATCH_SETTINGS "settings.txt"
-#define TF_BATCH_SUMMARY_CSV "all-populations.csv"
+#define TF_BATCH_SUMMARY_CSV "populations.csv"
+#define TF_BATCH_FIRST_PAGE_CSV "summary.csv"
 #define TF_BATCH_TIMINGS_CSV "timings.csv"
 
 typedef struct {

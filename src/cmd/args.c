@@ -3,6 +3,7 @@
 #include "cmd/cmd.h"
 #include "export/atomic.h"
 #include "util/buf.h"
+#include "util/path.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -579,21 +580,6 @@ done:
     return st;
 }
 
-void tf_args_safe_name(const char *label, char *out, size_t size)
-{
-    size_t k = 0;
-    for (const char *p = label; *p && k + 1 < size; p++) {
-        unsigned char c = (unsigned char)*p;
-        int keep = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-' ||
-                   c == '_' || (c == '.' && k > 0);
-        out[k++] = keep ? (char)c : '_';
-    }
-    if (k == 0 && size > 1)
-        out[k++] = '_';
-    if (size)
-        out[k] = '\0';
-}
-
 void tf_args_survey_name(const char *path, char *out, size_t size)
 {
     if (!strcmp(path, "-")) {
@@ -614,7 +600,7 @@ tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const 
                              int several, tf_error *err)
 {
     char sub[256];
-    tf_args_safe_name(label, sub, sizeof sub);
+    tf_path_safe_name(label, sub, sizeof sub);
     int n = out_dir ? snprintf(dir, size, several ? "%s/%s" : "%s", out_dir, sub)
                     : snprintf(dir, size, several ? "output/%s/%s" : "output/%s", base, sub);
     if (n < 0 || (size_t)n >= size)

@@ -171,17 +171,13 @@ tf_status tf_args_read_survey(const char *path, tf_survey **out, tf_error *err);
 /* The same under the reading options o (survey.h). */
 tf_status tf_args_read_survey_with(const char *path, const tf_survey_options *o, tf_survey **out, tf_error *err);
 
-/* label made safe as one file or folder name: letters, digits, '-', '_' and (not first) '.' are
- * kept, anything else becomes '_'; "_" when label is empty. Writes at most size bytes. */
-void tf_args_safe_name(const char *label, char *out, size_t size);
-
 /* The survey's file name without directories and without a final ".csv": the name its output
  * folder and workbook take. "stdin" for "-", "survey" when nothing is left. */
 void tf_args_survey_name(const char *path, char *out, size_t size);
 
 /* The output folder of one population, as fit, compare and forecast choose it: out_dir, or
  * output/<base> when out_dir is NULL (base: the survey's name, tf_args_survey_name), with
- * /<label made safe> below it when several. A folder too long for dir (size bytes) is refused,
+ * /<label made safe> (tf_path_safe_name) below it when several. A folder too long for dir (size bytes) is refused,
  * not cut (a cut name would be another folder): TF_ERR_USAGE. */
 tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const char *base, const char *label,
                              int several, tf_error *err);

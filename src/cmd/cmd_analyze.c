@@ -13,7 +13,6 @@
 
 #include "analysis/analysis.h"
 #include "analysis/provenance.h"
-#include "analysis/sheets.h"
 #include "batch/batch.h"
 #include "batch/batch_mpi.h"
 #include "cmd/args.h"
@@ -27,7 +26,11 @@
 #include "model/model_file.h"
 #include "project/cautions.h"
 #include "survey/survey.h"
+#include "tables/analysis_tables.h"
+#include "tables/fit_tables.h"
+#include "tables/populations_table.h"
 #include "util/error.h"
+#include "util/path.h"
 
 #define CMD "analyze"
 #define PROG "tallyfit " CMD
@@ -56,15 +59,18 @@ static void help(FILE *out, const tf_analysis_options *d)
             "every population by particle MCMC, compares the models by marginal likelihood, projects\n"
             "the population forward averaging the models by their posterior probabilities, and writes\n"
             "  DIR/<survey>.xlsx   a workbook: a first page for managers (abundance, trend, best model,\n"
-            "                      risk of falling below each threshold, cautions, provenance), then\n"
-            "                      per population counts, projection, risk, models, parameters,\n"
-            "                      and sampler diagnostics, with charts\n"
-            "  DIR/<survey>/       the same tables as CSV files, the raw posterior draws (in the\n"
-            "                      workbook too with --workbook-draws), and contents.csv naming them\n"
+            "                      risk of falling below each threshold, cautions, provenance), one\n"
+            "                      row per population, then per population abundance, projection,\n"
+            "                      risk, declines, models, change, parameters, diagnostics and chains,\n"
+            "                      with charts\n"
+            "  DIR/*.csv           the same tables as CSV files (summary.csv, populations.csv; each\n"
+            "                      population's tables in DIR/<population>/ when the survey holds\n"
+            "                      several), the raw posterior draws (draws.csv; in the workbook too\n"
+            "                      with --workbook-draws), and contents.csv naming every file\n"
             "and prints a few plain lines per population. Files are written only when everything\n"
             "succeeded, and never over the survey file.\n\n"
             "options:\n"
-            "  -o, --output DIR   folder for the results (default %s)\n"
+            "  -o, --output DIR   folder for the results (default %s/<survey>)\n"
             "  --threshold LIST   quasi-extinction thresholds: animals, or percentages of the current\n"
             "                     abundance, e.g. 50,100 or 20%% (default 50%%,20%%,10%%)\n"
             "  --years H          years to project (default %zu)\n"
@@ -100,8 +106,8 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  -h, --help         show this help\n\n"
             "Batch mode (--batch, more than %d populations, or several MPI processes): the populations\n"
             "are shared among the threads (one population each at a time) or the MPI processes, and\n"
-            "each one's tables are written as it finishes into DIR/<survey>/populations/<label>/,\n"
-            "ending with a marker file; DIR/<survey>.xlsx and DIR/<survey>/all-populations.csv then\n"
+            "each one's tables are written as it finishes into DIR/<population>/, ending with a\n"
+            "marker file; DIR/<survey>.xlsx, DIR/summary.csv and DIR/populations.csv then\n"
             "hold one row per population (failed ones with their reason). A population whose rows are\n"
             "invalid is set aside and reported; the others are analysed. An interrupted batch\n"
             "continues where it stopped when the same command is run again. A batch ends with status 1\n"
@@ -128,12 +134,12 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
     snprintf(med, sizeof med, fmt, last->median);
     snprintf(lo, sizeof lo, fmt, last->q025);
     snprintf(hi, sizeof hi, fmt, last->q975);
-    int per_effort = tf_sheets_effort_varies(s);
+    int per_effort = tf_tables_effort_varies(s);
     fprintf(out, "  abundance in %d: about %s %s (95 %% interval %s to %s)\n", last->year, med,
             per_effort ? "per unit of effort" : "animals", lo, hi);
     fprintf(out, "  best-supported growth model: %s (probability %.2f)\n", tf_analysis_pop_growth(p, g)->label,
             tf_analysis_pop_growth_probability(p, g));
-    tf_sheets_sentences(a, i, text, sizeof text);
+    tf_analysis_tables_sentences(a, i, text, sizeof text);
     /* Wrapped at spaces to about 92 columns for the terminal. */
     const char *q = text;
     while (*q) {
@@ -150,7 +156,7 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
         while (*q == ' ')
             q++;
     }
-    if (!tf_sheets_all_converged(p))
+    if (!tf_populations_all_converged(p))
         fprintf(out, "  caution: some fits did not pass the convergence checks; see the diagnostics sheet\n");
 }
 
@@ -276,8 +282,8 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
                 for (size_t i = 0; i < tf_project_n_cautions(); i++)
                     printf("caution: %s\n", tf_project_caution(i));
                 printf("summary:  %s\ntables:   %s/%s (one row per population)\n"
-                       "          %s/%s/<population>/ (each population's tables)\n",
-                       xlsx, root, TF_BATCH_SUMMARY_CSV, root, TF_BATCH_POP_DIR);
+                       "          %s/<population>/ (each population's tables)\n",
+                       xlsx, root, TF_BATCH_SUMMARY_CSV, root);
             }
             if (tf_messages_flush(err) != TF_OK) {
                 code = TF_EXIT_FAIL;
@@ -340,7 +346,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     size_t workbook_limit = TF_BATCH_WORKBOOK_LIMIT;
     /* Only rank 0 of an MPI run prints; the others would repeat every line. */
     FILE *errs = rank == 0 ? stderr : NULL;
-    const char *out_dir = DEFAULT_DIR;
+    const char *out_dir = NULL;
     char growth_buf[1024], obs_buf[1024];
     size_t n_particles = 0;
     tf_args_run run;
@@ -427,10 +433,13 @@ static int analyze(int argc, char **argv, int rank, int size)
     if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)
         opt.evidence.n_adapt_draws = opt.evidence.n_draws;
 
+    /* -o names the folder that receives the results, as in every command. */
     char name[256], xlsx[4096], csv_dir[4096];
     tf_args_survey_name(path, name, sizeof name);
-    int k1 = snprintf(xlsx, sizeof xlsx, "%s/%s.xlsx", out_dir, name);
-    int k2 = snprintf(csv_dir, sizeof csv_dir, "%s/%s", out_dir, name);
+    int k2 = out_dir ? snprintf(csv_dir, sizeof csv_dir, "%s", out_dir)
+                     : snprintf(csv_dir, sizeof csv_dir, "%s/%s", DEFAULT_DIR, name);
+    out_dir = csv_dir;
+    int k1 = snprintf(xlsx, sizeof xlsx, "%s/%s.xlsx", csv_dir, name);
     if (k1 < 0 || (size_t)k1 >= sizeof xlsx || k2 < 0 || (size_t)k2 >= sizeof csv_dir) {
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o folder", "the output path is too long");
         if (errs)
@@ -445,10 +454,10 @@ static int analyze(int argc, char **argv, int rank, int size)
     tf_signals saved;
     const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
-    char csv_place[300];
-    snprintf(csv_place, sizeof csv_place, "the folder %s/ beside this workbook", name);
-    tf_sheets_provenance prov = {.input_name = path, .title = name, .workbook_draws = workbook_draws,
-                                 .csv_place = csv_place};
+    char **folders = NULL;
+    size_t n_folders = 0;
+    tf_analysis_tables_provenance prov = {.input_name = path, .title = name, .workbook_draws = workbook_draws,
+                                 .csv_place = "the folder of this workbook"};
     tf_status st;
     /* A survey of many populations is read so that a population with bad rows is set aside and
      * reported while the others are analysed; a small one without --batch keeps the strict
@@ -537,7 +546,23 @@ static int analyze(int argc, char **argv, int rank, int size)
         status = tf_args_exit_code(st);
         goto out;
     }
-    if (!(r = tf_report_new(&err)) || (st = tf_sheets_build(a, &prov, r, &err)) != TF_OK)
+    /* A survey of several populations gives each its folder, also when only some are analysed,
+     * so that leaving some out does not move the others' tables. */
+    if (tf_survey_n_in_file(sv) > 1) {
+        n_folders = tf_analysis_n_populations(a);
+        const char **labels = calloc(n_folders, sizeof *labels);
+        folders = calloc(n_folders, sizeof *folders);
+        for (size_t i = 0; labels && i < n_folders; i++)
+            labels[i] = tf_tables_population(tf_analysis_pop_series(tf_analysis_population(a, i)), name);
+        int ok = labels && folders && tf_path_folder_names(labels, n_folders, folders);
+        free(labels);
+        if (!ok) {
+            tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+            goto out;
+        }
+        prov.folders = (const char *const *)folders;
+    }
+    if (!(r = tf_report_new(&err)) || (st = tf_analysis_tables_build(a, &prov, r, &err)) != TF_OK)
         goto out;
     if ((st = tf_report_write(r, xlsx, csv_dir, path, interrupted, &err)) != TF_OK) {
         status = tf_args_exit_code(st);
@@ -561,6 +586,9 @@ out:
     /* Only rank 0 prints; an interrupted batch has said how far it got. */
     if (errs && !(status == TF_EXIT_INTERRUPTED && in_batch))
         tf_messages_outcome(PROG, status, &err, errs);
+    for (size_t i = 0; folders && i < n_folders; i++)
+        free(folders[i]);
+    free(folders);
     tf_report_free(r);
     tf_analysis_free(a);
     tf_survey_free(sv);

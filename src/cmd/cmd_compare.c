@@ -16,10 +16,11 @@
 #include "cmd/signals.h"
 #include "compare/compare.h"
 #include "compare/pareto.h"
-#include "export/atomic.h"
-#include "export/compare_table.h"
+#include "cmd/fileset.h"
 #include "export/csv_out.h"
 #include "survey/survey.h"
+#include "tables/fit_tables.h"
+#include "tables/models_table.h"
 #include "util/error.h"
 
 #define CMD "compare"
@@ -43,8 +44,9 @@ static void help(FILE *out)
             "Fits every candidate model (each growth model with each counting-error model) to the counts\n"
             "of each population, estimates each model's marginal likelihood p(counts | model) by\n"
             "importance sampling squared, and ranks them by Bayes factor and posterior probability.\n"
-            "Writes model-comparison.csv (one row per candidate, excluded ones with the reason) and\n"
-            "prints the table.\n\n"
+            "Writes models.csv (one row per candidate, excluded ones with the reason), the fit tables\n"
+            "of every fitted candidate (change, parameters, diagnostics, chains and draws .csv, the\n"
+            "model a column of each) and prints the table.\n\n"
             "Marginal likelihoods compare only on one scale. For whole counts every count model is\n"
             "compared, and log-normal counting error enters as lognormal-int (the log-normal rounded to\n"
             "whole counts); the continuous log-normal density is listed as excluded. Counts that are not\n"
@@ -172,6 +174,47 @@ static void print_warnings(const tf_comparison *c)
                          "  hint: run longer (--iterations, --warmup)\n",
                     label, label[0] ? " " : "", tf_comparison_name(c, i), f->rhat_max, f->ess_min);
     }
+}
+
+#define N_TABLES 6
+
+/* The comparison's tables: the models table and the fit tables of every command. On failure
+ * every entry is NULL. */
+static tf_status comparison_tables(const tf_comparison *c, const char *population, tf_table *out[N_TABLES],
+                                   tf_error *err)
+{
+    size_t n = tf_comparison_n_models(c);
+    size_t *order = calloc(n ? n : 1, sizeof *order);
+    tf_tables_model *m = calloc(n ? n : 1, sizeof *m);
+    tf_status st = order && m ? TF_OK : tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    if (st == TF_OK) {
+        tf_compare_table_order(c, order);
+        for (size_t k = 0; k < n; k++) {
+            size_t i = order[k];
+            const tf_evidence *ev = tf_comparison_evidence(c, i);
+            m[k] = (tf_tables_model){.name = tf_comparison_name(c, i), .fit = tf_comparison_fit(c, i),
+                                     .excluded = tf_comparison_state(c, i) == TF_CANDIDATE_EXCLUDED,
+                                     .note = tf_comparison_note(c, i),
+                                     .probability = ev ? tf_comparison_figures(c, i)->prob : NAN,
+                                     .pareto_k = ev ? ev->main.pareto_k : NAN};
+        }
+    }
+    tf_tables_context ctx = {.population = population, .series = tf_comparison_series(c)};
+    if (st == TF_OK && !(out[0] = tf_compare_table(c, population, err)))
+        st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
+    if (st == TF_OK && (st = tf_tables_change_of(&ctx, m, n, NULL, &out[1], err)) == TF_OK &&
+        (st = tf_tables_parameters(&ctx, m, n, &out[2], err)) == TF_OK &&
+        (st = tf_tables_diagnostics(&ctx, m, n, &out[3], err)) == TF_OK &&
+        (st = tf_tables_chains(&ctx, m, n, &out[4], err)) == TF_OK)
+        st = tf_tables_draws(&ctx, m, n, &out[5], err);
+    if (st != TF_OK)
+        for (size_t k = 0; k < N_TABLES; k++) {
+            tf_table_free(out[k]);
+            out[k] = NULL;
+        }
+    free(order);
+    free(m);
+    return st;
 }
 
 int tf_cmd_compare(int argc, char **argv)
@@ -340,7 +383,9 @@ int tf_cmd_compare(int argc, char **argv)
         }
     char base[256];
     tf_args_survey_name(path, base, sizeof base);
-    int several = tf_survey_n_in_file(sv) > 1 && !only;
+    /* As in every command: a survey of several populations gives each its folder, also when
+     * only one is chosen. */
+    int several = tf_survey_n_in_file(sv) > 1;
     /* Every output folder is checked before the first fit. */
     for (size_t i = 0; i < n_jobs; i++) {
         const tf_series *s = only ? only : tf_survey_series(sv, i);
@@ -369,31 +414,41 @@ int tf_cmd_compare(int argc, char **argv)
         }
     }
 
-    /* Signals wait until the files are written (the atomic writes rule out half-written files;
-     * this keeps one population from being written and the next not). */
+    /* Signals wait until the files are written, and the files of every population are one
+     * group (fileset.h): all of them are replaced or none. */
     sigset_t old_mask;
     tf_signals_hold(&old_mask);
     tf_status wst = TF_OK;
+    tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_TABLES, &err);
+    if (!g)
+        wst = TF_ERR_NOMEM;
     for (size_t i = 0; i < n_jobs && wst == TF_OK; i++) {
         const tf_series *s = tf_comparison_series(comps[i]);
         char dir[4096];
-        if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), several,
-                                      &err)) != TF_OK)
+        if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), several, &err)) != TF_OK)
             break;
-        tf_table *t = tf_compare_table(comps[i], &err);
-        if (!t) {
-            wst = TF_ERR_NOMEM;
-            break;
-        }
-        size_t created = 0;
-        wst = tf_atomic_mkdirs(dir, &created, &err);
+        snprintf(written[i], sizeof written[i], "%s", dir);
+        tf_table *tables[N_TABLES] = {0};
+        wst = comparison_tables(comps[i], tf_tables_population(s, base), tables, &err);
         if (wst == TF_OK)
-            wst = tf_csv_write_in_dir(t, dir, path, written[i], sizeof written[i], &err);
-        /* A failed write leaves no empty directories behind that this run made. */
-        if (wst != TF_OK)
-            tf_atomic_rmdirs(dir, created);
-        tf_table_free(t);
+            wst = tf_fileset_mkdir(g, dir, &err);
+        for (size_t k = 0; k < N_TABLES && wst == TF_OK; k++) {
+            char file[4600];
+            int n = snprintf(file, sizeof file, "%s/%s.csv", dir, tf_table_name(tables[k]));
+            if (n < 0 || (size_t)n >= sizeof file) {
+                wst = tf_error_add(&err, TF_ERR_RANGE, NULL, 0, 0, "choose a shorter -o directory",
+                                   "the output path is too long");
+                break;
+            }
+            FILE *f;
+            if ((wst = tf_fileset_open(g, file, path, &f, &err)) == TF_OK)
+                wst = tf_csv_write_stream(tables[k], f, file, &err);
+        }
+        for (size_t k = 0; k < N_TABLES; k++)
+            tf_table_free(tables[k]);
     }
+    if (g)
+        wst = tf_fileset_finish(g, wst, &err);
     tf_signals_release(&old_mask);
     if (wst != TF_OK) {
         status = tf_args_exit_code(wst);
@@ -402,7 +457,7 @@ int tf_cmd_compare(int argc, char **argv)
     for (size_t i = 0; i < n_jobs; i++) {
         if (!quiet) {
             print_table(comps[i], stdout);
-            printf("  file: %s\n", written[i]);
+            printf("  files: %s/ (models, change, parameters, diagnostics, chains, draws .csv)\n", written[i]);
         }
         print_warnings(comps[i]);
     }

@@ -9,7 +9,6 @@
 #include <sys/ioctl.h>
 #include <unistd.h>
 
-#include "analysis/sheets.h"
 #include "cmd/args.h"
 #include "cmd/input.h"
 #include "cmd/cmd.h"
@@ -25,6 +24,7 @@
 #include "sampler/pmmh.h"
 #include "sampler/posterior.h"
 #include "survey/survey.h"
+#include "tables/fit_tables.h"
 #include "util/error.h"
 
 #define CMD "fit"
@@ -43,12 +43,14 @@ static void help(FILE *out)
     fprintf(out,
             "usage: tallyfit fit SURVEY.csv --model M [--obs O] [options]\n\n"
             "Fits a state-space population model to the counts of each population in SURVEY.csv by\n"
-            "particle marginal Metropolis-Hastings and writes, per population and model:\n"
-            "  M+O-draws.csv       every kept draw: chain, iteration, the parameters, log-likelihood\n"
-            "  M+O-parameters.csv  per parameter: mean, sd, 2.5/50/97.5 %%, R-hat, bulk and tail ESS\n"
-            "  M+O-abundance.csv   per year: the count and the posterior of the true abundance\n"
-            "  M+O-trend.csv       average annual change over the survey period, with its interval\n"
-            "  M+O-sampler.csv     per chain: acceptance rate; the particle count and its spread\n"
+            "particle marginal Metropolis-Hastings and writes, per population (the population and\n"
+            "the model are columns of every table):\n"
+            "  abundance.csv    per year: the count and the posterior of the true abundance\n"
+            "  change.csv       average annual change over the survey period, with its interval\n"
+            "  parameters.csv   per parameter: mean, sd, 95 %% interval, median, R-hat, bulk and tail ESS\n"
+            "  diagnostics.csv  the sampler's health: worst R-hat, smallest ESS, acceptance, checks\n"
+            "  chains.csv       per chain: acceptance, particles, the spread of the log-likelihood\n"
+            "  draws.csv        every kept draw: chain, draw, log-likelihood, the parameters\n"
             "and prints a short summary.\n\n"
             "options:\n"
             "  --model M          growth model: %s\n"
@@ -157,179 +159,6 @@ static void clear_progress(void)
     fflush(stderr);
 }
 
-/* ---- output tables ---- */
-
-static int add_col(tf_table *t, const char *header, const char *legend, tf_col_kind kind, tf_error *err)
-{
-    return tf_table_add_column(t, header, legend, kind, NULL, err) == TF_OK;
-}
-
-static tf_table *draws_table(const tf_fit *f, tf_error *err)
-{
-    tf_table *t = tf_table_new("draws", err);
-    if (!t)
-        return NULL;
-    size_t np = tf_fit_n_params(f);
-    int ok = add_col(t, "chain", "chain number, from 1", TF_COL_INTEGER, err) &&
-             add_col(t, "iteration", "kept iteration within the chain, from 1", TF_COL_INTEGER, err);
-    for (size_t p = 0; ok && p < np; p++)
-        ok = add_col(t, tf_fit_param_name(f, p), "parameter value (natural scale)", TF_COL_NUMBER, err);
-    ok = ok && add_col(t, "loglik", "log of the particle filter's likelihood estimate held with the draw",
-                       TF_COL_NUMBER, err);
-    double row[TF_MAX_PARAMS + 3];
-    for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++)
-        for (size_t i = 0; ok && i < tf_fit_n_iter(f); i++) {
-            row[0] = (double)(c + 1);
-            row[1] = (double)(i + 1);
-            memcpy(row + 2, tf_fit_draw(f, c, i), np * sizeof(double));
-            row[2 + np] = tf_fit_loglik(f, c, i);
-            ok = tf_table_add_row_numbers(t, row, np + 3, err) == TF_OK;
-        }
-    if (!ok) {
-        tf_table_free(t);
-        return NULL;
-    }
-    return t;
-}
-
-static tf_table *parameters_table(const tf_fit *f, const tf_prior_set *priors, tf_error *err)
-{
-    tf_table *t = tf_table_new("parameters", err);
-    if (!t)
-        return NULL;
-    int ok = add_col(t, "parameter", NULL, TF_COL_TEXT, err) &&
-             add_col(t, "mean", "posterior mean", TF_COL_NUMBER, err) &&
-             add_col(t, "sd", "posterior standard deviation", TF_COL_NUMBER, err) &&
-             add_col(t, "q2.5", "2.5 % posterior quantile", TF_COL_NUMBER, err) &&
-             add_col(t, "median", "posterior median", TF_COL_NUMBER, err) &&
-             add_col(t, "q97.5", "97.5 % posterior quantile", TF_COL_NUMBER, err) &&
-             add_col(t, "rhat", "rank-normalised split R-hat (want <= 1.01)", TF_COL_NUMBER, err) &&
-             add_col(t, "ess_bulk", "bulk effective sample size (want >= 400)", TF_COL_NUMBER, err) &&
-             add_col(t, "ess_tail", "tail effective sample size (want >= 400)", TF_COL_NUMBER, err) &&
-             add_col(t, "mcse_mean", "Monte Carlo standard error of the mean", TF_COL_NUMBER, err) &&
-             add_col(t, "prior", "the prior used", TF_COL_TEXT, err);
-    for (size_t p = 0; ok && p < tf_fit_n_params(f); p++) {
-        const tf_fit_param_summary *s = tf_fit_param(f, p);
-        double v[10] = {NAN, s->mean, s->sd, s->q025, s->q50, s->q975, s->rhat, s->ess_bulk, s->ess_tail,
-                        s->mcse_mean};
-        size_t row = tf_table_n_rows(t);
-        char prior[200];
-        tf_prior_describe(tf_prior_set_prior(priors, p), prior, sizeof prior);
-        ok = tf_table_add_row_numbers(t, v, 10, err) == TF_OK &&
-             tf_table_set_text(t, row, 0, tf_fit_param_name(f, p), err) == TF_OK &&
-             tf_table_set_text(t, row, 10, prior, err) == TF_OK;
-        if (ok && !(s->rhat <= TF_FIT_RHAT_MAX))
-            ok = tf_table_set_warning(t, row, 6, err) == TF_OK;
-        if (ok && !(s->ess_bulk >= TF_FIT_ESS_MIN))
-            ok = tf_table_set_warning(t, row, 7, err) == TF_OK;
-        if (ok && !(s->ess_tail >= TF_FIT_ESS_MIN))
-            ok = tf_table_set_warning(t, row, 8, err) == TF_OK;
-    }
-    if (!ok) {
-        tf_table_free(t);
-        return NULL;
-    }
-    return t;
-}
-
-static tf_table *abundance_table(const tf_fit *f, tf_error *err)
-{
-    tf_table *t = tf_table_new("abundance", err);
-    if (!t)
-        return NULL;
-    int ok = add_col(t, "year", NULL, TF_COL_YEAR, err) &&
-             add_col(t, "count", "observed count; empty when the year was not surveyed", TF_COL_NUMBER, err) &&
-             add_col(t, "effort", "survey effort; empty when the year was not surveyed", TF_COL_NUMBER, err) &&
-             add_col(t, "median", "posterior median of the true abundance per unit effort", TF_COL_NUMBER, err) &&
-             add_col(t, "q25", "25 % posterior quantile", TF_COL_NUMBER, err) &&
-             add_col(t, "q75", "75 % posterior quantile", TF_COL_NUMBER, err) &&
-             add_col(t, "q2.5", "2.5 % posterior quantile", TF_COL_NUMBER, err) &&
-             add_col(t, "q97.5", "97.5 % posterior quantile", TF_COL_NUMBER, err);
-    for (size_t y = 0; ok && y < tf_fit_n_years(f); y++) {
-        const tf_fit_year_summary *s = tf_fit_year(f, y);
-        int surveyed = !isnan(s->count);
-        double v[8] = {s->year, s->count, surveyed ? s->effort : NAN, s->median, s->q25, s->q75, s->q025, s->q975};
-        ok = tf_table_add_row_numbers(t, v, 8, err) == TF_OK;
-    }
-    if (!ok) {
-        tf_table_free(t);
-        return NULL;
-    }
-    return t;
-}
-
-static tf_table *trend_table(const tf_fit *f, tf_error *err)
-{
-    tf_table *t = tf_table_new("trend", err);
-    if (!t)
-        return NULL;
-    const tf_fit_trend_summary *s = tf_fit_trend(f);
-    const tf_series *ser = tf_fit_series(f);
-    int first = tf_series_first_year(ser), last = first + (int)tf_series_n_years(ser) - 1;
-    int ok = add_col(t, "first_year", NULL, TF_COL_YEAR, err) && add_col(t, "last_year", NULL, TF_COL_YEAR, err) &&
-             add_col(t, "change_mean", "posterior mean of the average annual change, % per year", TF_COL_NUMBER, err) &&
-             add_col(t, "change_median", "posterior median, % per year", TF_COL_NUMBER, err) &&
-             add_col(t, "change_q2.5", "2.5 % posterior quantile, % per year", TF_COL_NUMBER, err) &&
-             add_col(t, "change_q97.5", "97.5 % posterior quantile, % per year", TF_COL_NUMBER, err) &&
-             add_col(t, "p_decline", "posterior probability that the abundance fell over the period",
-                     TF_COL_PROBABILITY, err) &&
-             add_col(t, "rhat", "R-hat of the change", TF_COL_NUMBER, err) &&
-             add_col(t, "ess_bulk", "bulk ESS of the change", TF_COL_NUMBER, err);
-    double v[9] = {first, last, s->mean, s->median, s->q025, s->q975, s->p_decline, s->rhat, s->ess_bulk};
-    ok = ok && tf_table_add_row_numbers(t, v, 9, err) == TF_OK;
-    if (!ok) {
-        tf_table_free(t);
-        return NULL;
-    }
-    return t;
-}
-
-static tf_table *sampler_table(const tf_fit *f, tf_error *err)
-{
-    tf_table *t = tf_table_new("sampler", err);
-    if (!t)
-        return NULL;
-    const tf_fit_settings *st = tf_fit_settings_of(f);
-    int ok = add_col(t, "chain", NULL, TF_COL_INTEGER, err) &&
-             add_col(t, "acceptance", "share of proposals accepted over the kept draws", TF_COL_PROBABILITY, err) &&
-             add_col(t, "invalid", "share of proposals with a zero prior or a non-finite likelihood estimate",
-                     TF_COL_PROBABILITY, err) &&
-             add_col(t, "warmup", "discarded iterations per chain", TF_COL_INTEGER, err) &&
-             add_col(t, "iterations", "iterations per chain after the warm-up", TF_COL_INTEGER, err) &&
-             add_col(t, "kept", "kept draws per chain", TF_COL_INTEGER, err) &&
-             add_col(t, "thin", "iterations per kept draw at the end (doubled whenever the kept draws filled "
-                     "their store)", TF_COL_INTEGER, err) &&
-             add_col(t, "converged", "1 when the run stopped because the convergence checks passed, 0 when it "
-                     "ran its fixed or maximum length", TF_COL_INTEGER, err) &&
-             add_col(t, "particles", "particles of the filter", TF_COL_INTEGER, err) &&
-             add_col(t, "loglik_sd", "measured sd of the log-likelihood estimate at the pilot centre "
-                     "(correlated method: of the log-ratio of two successive estimates)", TF_COL_NUMBER, err) &&
-             add_col(t, "method", "standard or correlated pseudo-marginal", TF_COL_TEXT, err) &&
-             add_col(t, "rho", "correlation of successive random numbers (correlated method)", TF_COL_NUMBER, err) &&
-             add_col(t, "screened", "delayed acceptance: share of proposals the cheap screen rejected without a "
-                     "particle filter run (mean over chains; empty when off)", TF_COL_PROBABILITY, err) &&
-             add_col(t, "seed", NULL, TF_COL_TEXT, err) &&
-             add_col(t, "proposal", "how the particle filter moved: guided or bootstrap", TF_COL_TEXT, err);
-    for (size_t c = 0; ok && c < tf_fit_n_chains(f); c++) {
-        double v[13] = {(double)(c + 1), tf_fit_acceptance(f, c), tf_fit_invalid_share(f, c), (double)st->n_warmup,
-                        (double)st->n_iterations, (double)tf_fit_n_iter(f), (double)st->thin,
-                        (double)st->stopped_early, (double)st->n_particles, st->loglik_sd, NAN,
-                        st->correlated ? st->rho : NAN, st->delayed ? st->screened : NAN};
-        char seed[32];
-        snprintf(seed, sizeof seed, "%llu", (unsigned long long)st->seed);
-        size_t row = tf_table_n_rows(t);
-        ok = tf_table_add_row_numbers(t, v, 13, err) == TF_OK &&
-             tf_table_set_text(t, row, 10, st->correlated ? "correlated" : "standard", err) == TF_OK &&
-             tf_table_set_text(t, row, 13, seed, err) == TF_OK &&
-             tf_table_set_text(t, row, 14, tf_filter_proposal_name(st->proposal), err) == TF_OK;
-    }
-    if (!ok) {
-        tf_table_free(t);
-        return NULL;
-    }
-    return t;
-}
-
 /* ---- one population ---- */
 
 typedef struct {
@@ -338,6 +167,7 @@ typedef struct {
     tf_prior_set *priors;
     tf_posterior *post;
     tf_fit *fit;
+    const char *population;   /* its label in the tables */
     char dir[4096];
 } job;
 
@@ -350,28 +180,32 @@ static void job_clear(job *j)
     memset(j, 0, sizeof *j);
 }
 
-#define N_TABLES 5
+#define N_TABLES 6
 
 /* Writes the tables of every population as one group (fileset.h): either every file
- * is replaced or none is, and directories this call made are taken away again on failure. */
+ * is replaced or none is, and directories this call made are taken away again on failure. The
+ * tables are the fit tables every command writes (tables/fit_tables.h), one file each. */
 static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
 {
     tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_TABLES, err);
     tf_status st = g ? TF_OK : TF_ERR_NOMEM;
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
         const job *j = &jobs[i];
-        tf_table *tables[N_TABLES] = {draws_table(j->fit, err), parameters_table(j->fit, j->priors, err),
-                                      abundance_table(j->fit, err), trend_table(j->fit, err),
-                                      sampler_table(j->fit, err)};
-        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++)
-            if (!tables[k])
-                st = tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
+        tf_tables_context c = {.population = j->population, .series = j->series};
+        tf_tables_model m = {.name = tf_model_name(j->model), .fit = j->fit, .probability = NAN, .pareto_k = NAN,
+                             .priors = j->priors};
+        tf_table *tables[N_TABLES] = {0};
+        if ((st = tf_tables_abundance_fit(&c, &m, &tables[0], err)) == TF_OK &&
+            (st = tf_tables_change_of(&c, &m, 1, NULL, &tables[1], err)) == TF_OK &&
+            (st = tf_tables_parameters(&c, &m, 1, &tables[2], err)) == TF_OK &&
+            (st = tf_tables_diagnostics(&c, &m, 1, &tables[3], err)) == TF_OK &&
+            (st = tf_tables_chains(&c, &m, 1, &tables[4], err)) == TF_OK)
+            st = tf_tables_draws(&c, &m, 1, &tables[5], err);
         if (st == TF_OK)
             st = tf_fileset_mkdir(g, j->dir, err);
         for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
             char path[4600];
-            int n = snprintf(path, sizeof path, "%s/%s-%s.csv", j->dir, tf_model_name(j->model),
-                             tf_table_name(tables[k]));
+            int n = snprintf(path, sizeof path, "%s/%s.csv", j->dir, tf_table_name(tables[k]));
             if (n < 0 || (size_t)n >= sizeof path) {
                 st = tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "choose a shorter -o directory",
                                   "the output path is too long");
@@ -408,15 +242,15 @@ static void print_summary(const job *j, FILE *out)
                 s->mean, s->sd, s->q025, s->q50, s->q975, s->rhat, s->ess_bulk, s->ess_tail);
     }
     const tf_fit_year_summary *last = tf_fit_year(f, tf_fit_n_years(f) - 1);
-    /* As the analysis's first page words it (tf_sheets_effort_varies): per unit of effort only
-     * where the effort differs between years. */
+    /* The unit of the tables (tf_tables_unit): per unit of effort only where the effort differs
+     * between years. */
     fprintf(out, "  abundance in %d: median %.4g (95%% interval %.4g to %.4g) %s\n", last->year, last->median,
-            last->q025, last->q975, tf_sheets_effort_varies(j->series) ? "animals per unit of effort" : "animals");
+            last->q025, last->q975, tf_tables_unit(j->series));
     const tf_fit_trend_summary *tr = tf_fit_trend(f);
     if (!isnan(tr->median))
         fprintf(out, "  average change %d-%d: %+.2f%% per year (95%% interval %+.2f%% to %+.2f%%), "
                      "P(decline) = %.3f\n",
-                tf_fit_year(f, 0)->year, last->year, tr->median, tr->q025, tr->q975, tr->p_decline);
+                tf_fit_year(f, 0)->year, last->year, 100 * tr->median, 100 * tr->q025, 100 * tr->q975, tr->p_decline);
     fputs("  acceptance by chain:", out);
     for (size_t c = 0; c < tf_fit_n_chains(f); c++)
         fprintf(out, " %.3f", tf_fit_acceptance(f, c));
@@ -570,6 +404,7 @@ int tf_cmd_fit(int argc, char **argv)
         job *j = &jobs[i];
         j->series = only ? only : tf_survey_series(sv, i);
         const char *label = tf_series_label(j->series);
+        j->population = tf_tables_population(j->series, base);
         if (tf_model_new(growth, obs, &j->model, &err) != TF_OK)
             goto out;
         if (tf_setup_check_counts(j->model, j->series, path, &err) != TF_OK) {
@@ -629,7 +464,7 @@ int tf_cmd_fit(int argc, char **argv)
     for (size_t i = 0; i < n_jobs; i++) {
         if (!quiet) {
             print_summary(&jobs[i], stdout);
-            printf("  files: %s/%s-*.csv\n", jobs[i].dir, tf_model_name(jobs[i].model));
+            printf("  files: %s/ (abundance, change, parameters, diagnostics, chains, draws .csv)\n", jobs[i].dir);
         }
         print_warnings(&jobs[i]);
     }

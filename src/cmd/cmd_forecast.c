@@ -20,7 +20,6 @@
 #include "cmd/setup.h"
 #include "cmd/signals.h"
 #include "export/csv_out.h"
-#include "export/projection_tables.h"
 #include "export/table.h"
 #include "model/model.h"
 #include "model/prior.h"
@@ -30,6 +29,9 @@
 #include "sampler/pmmh.h"
 #include "sampler/posterior.h"
 #include "survey/survey.h"
+#include "tables/columns.h"
+#include "tables/fit_tables.h"
+#include "tables/projection_tables.h"
 #include "util/rng.h"
 
 #define CMD "forecast"
@@ -45,7 +47,7 @@
 /* The three projection tables and the summary that says what was projected, with the cautions. */
 #define SUMMARY_TABLE TF_PROJECTION_N_TABLES
 #define N_TABLES (TF_PROJECTION_N_TABLES + 1)
-#define SUMMARY_NAME "forecast_summary"
+#define SUMMARY_NAME "summary"
 
 /* Where the futures come from. */
 typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
@@ -145,10 +147,11 @@ static void help(FILE *out)
             "                          depend on T\n"
             "  -h, --help              this text\n"
             "\n"
-            "Writes forecast_bands.csv (median, 50 %% and 90 %% bands per year), forecast_quasi_extinction.csv\n"
-            "(the cumulative risk per threshold and year, with its Monte Carlo error),\n"
-            "forecast_declines.csv, and forecast_summary.csv (what was projected: the model or the model\n"
-            "probabilities, the posterior draws, the settings, and the cautions), all or none.\n"
+            "Writes projection.csv (median, 50 %% and 95 %% bands per year), risk.csv (the cumulative\n"
+            "risk per threshold and year, with its Monte Carlo error), declines.csv, and summary.csv\n"
+            "(what was projected: the model or the model probabilities, the posterior draws, the\n"
+            "settings, and the cautions), all or none; the population and the model are columns of\n"
+            "every table.\n"
             TF_CMD_HELP_END,
             d.n_warmup, a.evidence.n_draws, a.evidence.target_se);
 }
@@ -423,6 +426,9 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
     tf_table *t = tf_table_new_summary(SUMMARY_NAME, err);
     if (!t)
         return tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
+    char base[256];
+    tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
+    TRY(tf_table_set_summary_population(t, j->label[0] ? j->label : o->survey_path ? base : "fixed", err));
     TRY(tf_table_add_heading(t, "Forecast", err));
     TRY(tf_table_add_item_text(t, "Survey", o->survey_path ? o->survey_path : "none", NULL, err));
     if (j->label[0])
@@ -528,7 +534,16 @@ fail:
  * holds all of them in the CSV files). */
 static tf_status build_tables(const options *o, job *j, tf_error *err)
 {
-    tf_status st = tf_projection_tables_build(j->proj, j->year0, j->tables, err);
+    char base[256];
+    tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
+    const char *population = j->label[0] ? j->label : o->survey_path ? base : "fixed";
+    tf_projection_place place = {.population = population,
+                                 .model = o->from == FROM_AVERAGE ? "average"
+                                          : o->from == FROM_FIXED ? "fixed"
+                                                                  : tf_model_name(j->model),
+                                 .unit = j->s ? tf_tables_unit(j->s) : TF_UNIT_ANIMALS,
+                                 .year0 = j->year0};
+    tf_status st = tf_projection_tables_build(j->proj, &place, j->tables, err);
     const char *cautions[MAX_CAUTIONS];
     size_t nc = cautions_for(o, j, cautions);
     for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
@@ -678,14 +693,14 @@ static void print_projection(const options *o, const job *j)
            (unsigned long long)o->seed);
     int cal = j->year0 != TF_PROJECTION_NO_YEAR;
     size_t step = H <= 100 ? 10 : (H + 9) / 10;
-    printf("\nAbundance (median and 90 %% band of the simulated futures)\n%s      median        5 %%       95 %%\n",
+    printf("\nAbundance (median and 95 %% band of the simulated futures)\n%s      median      2.5 %%     97.5 %%\n",
            cal ? "  ahead  year" : "   year");
     for (size_t t = 0;; t = t + step < H ? t + step : H) {
         printf("  %5zu", t);
         if (cal)
             printf(" %5d", j->year0 + (int)t);
-        printf("  %10.4g %10.4g %10.4g\n", tf_projection_band(p, t, TF_BAND_MEDIAN), tf_projection_band(p, t, TF_BAND_P05),
-               tf_projection_band(p, t, TF_BAND_P95));
+        printf("  %10.4g %10.4g %10.4g\n", tf_projection_band(p, t, TF_BAND_MEDIAN), tf_projection_band(p, t, TF_BAND_P025),
+               tf_projection_band(p, t, TF_BAND_P975));
         if (t == H)
             break;
     }

@@ -17,6 +17,8 @@
 typedef struct {
     tf_table *table;
     char *about;
+    char *population;            /* what the contents file says the table is about; NULL = the file */
+    char folder[CSV_NAME_BUF];   /* "" = the CSV folder itself */
     char csv[CSV_NAME_BUF];
     int csv_only;
 } entry;
@@ -78,6 +80,7 @@ void tf_report_free(tf_report *r)
     for (size_t i = 0; i < r->n_tables; i++) {
         tf_table_free(r->tables[i].table);
         free(r->tables[i].about);
+        free(r->tables[i].population);
     }
     for (size_t i = 0; i < r->n_charts; i++)
         free_chart(&r->charts[i]);
@@ -86,15 +89,28 @@ void tf_report_free(tf_report *r)
     free(r);
 }
 
-/* Whether name is taken by an earlier table or by the contents file. */
-static int csv_taken(const tf_report *r, const char *name)
+/* Whether name in folder is taken by another table than skip, or by the contents file. */
+static int csv_taken(const tf_report *r, const char *folder, const char *name, size_t skip)
 {
-    if (!strcmp(name, TF_REPORT_CONTENTS_CSV))
+    if (!folder[0] && !strcmp(name, TF_REPORT_CONTENTS_CSV))
         return 1;
     for (size_t i = 0; i < r->n_tables; i++)
-        if (!strcmp(r->tables[i].csv, name))
+        if (i != skip && !strcmp(r->tables[i].folder, folder) && !strcmp(r->tables[i].csv, name))
             return 1;
     return 0;
+}
+
+/* e->csv from stem, made unique within e's folder with "-2", "-3"... */
+static void unique_csv(const tf_report *r, size_t index, const char *stem_name)
+{
+    entry *e = &r->tables[index];
+    /* The base name leaves room for the suffix, so that "-2" never cuts into ".csv". */
+    char base[CSV_NAME_BUF - 8];
+    tf_csv_file_name(stem_name, base, sizeof base);
+    snprintf(e->csv, sizeof e->csv, "%s", base);
+    size_t stem = strlen(base) - 4;   /* without ".csv" */
+    for (unsigned k = 2; csv_taken(r, e->folder, e->csv, index); k++)
+        snprintf(e->csv, sizeof e->csv, "%.*s-%u.csv", (int)stem, base, k);
 }
 
 tf_status tf_report_add_table(tf_report *r, tf_table *t, const char *about, size_t *index, tf_error *err)
@@ -113,18 +129,34 @@ tf_status tf_report_add_table(tf_report *r, tf_table *t, const char *about, size
         tf_table_free(t);
         return nomem(err);
     }
-    /* The base name leaves room for the suffix, so that "-2" never cuts into ".csv". */
-    char base[CSV_NAME_BUF - 8];
-    tf_csv_file_name(tf_table_name(t), base, sizeof base);
-    snprintf(e->csv, sizeof e->csv, "%s", base);
-    size_t stem = strlen(base) - 4;   /* without ".csv" */
-    for (unsigned k = 2; csv_taken(r, e->csv); k++)
-        snprintf(e->csv, sizeof e->csv, "%.*s-%u.csv", (int)stem, base, k);
     e->table = t;
+    unique_csv(r, r->n_tables, tf_table_name(t));
     if (index)
         *index = r->n_tables;
     r->n_tables++;
     return TF_OK;
+}
+
+tf_status tf_report_set_place(tf_report *r, size_t index, const char *population, const char *folder,
+                              const char *stem, tf_error *err)
+{
+    if (index >= r->n_tables || !stem || !stem[0] || (folder && (strlen(folder) >= CSV_NAME_BUF || strchr(folder, '/') ||
+                                                                !strcmp(folder, ".") || !strcmp(folder, ".."))))
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "report: bad CSV place for table %zu", index);
+    entry *e = &r->tables[index];
+    char *pop = population && population[0] ? strdup(population) : NULL;
+    if (population && population[0] && !pop)
+        return nomem(err);
+    free(e->population);
+    e->population = pop;
+    snprintf(e->folder, sizeof e->folder, "%s", folder ? folder : "");
+    unique_csv(r, index, stem);
+    return TF_OK;
+}
+
+const char *tf_report_csv_folder(const tf_report *r, size_t index)
+{
+    return index < r->n_tables ? r->tables[index].folder : NULL;
 }
 
 size_t tf_report_n_tables(const tf_report *r) { return r->n_tables; }
@@ -143,6 +175,11 @@ int tf_report_csv_only(const tf_report *r, size_t index)
 const tf_table *tf_report_table(const tf_report *r, size_t index)
 {
     return index < r->n_tables ? r->tables[index].table : NULL;
+}
+
+const char *tf_report_about(const tf_report *r, size_t index)
+{
+    return index < r->n_tables && r->tables[index].about ? r->tables[index].about : "";
 }
 
 const char *tf_report_csv_name(const tf_report *r, size_t index)
@@ -228,23 +265,29 @@ static tf_status interrupted(tf_error *err)
     return tf_error_add(err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "stopped before the results were written");
 }
 
-/* The contents table: one row per sheet. names holds the sheets' final names. */
+/* The contents table: one row per table. names holds the sheets' final names. */
 static tf_table *contents_table(const tf_report *r, char (*names)[TF_SHEET_NAME_BUF], tf_error *err)
 {
     tf_table *t = tf_table_new("contents", err);
     if (!t)
         return NULL;
-    size_t c_sheet, c_file, c_about;
-    if (tf_table_add_column(t, "sheet", "name of the sheet in the workbook (empty: CSV only)", TF_COL_TEXT, &c_sheet,
-                            err) != TF_OK ||
-        tf_table_add_column(t, "file", "the CSV file holding the same table", TF_COL_TEXT, &c_file, err) != TF_OK ||
-        tf_table_add_column(t, "contents", "what the table shows", TF_COL_TEXT, &c_about, err) != TF_OK)
+    size_t c_pop, c_file, c_sheet, c_about;
+    if (tf_table_add_column(t, "population", "the population the table is about (blank: the whole file)", TF_COL_TEXT,
+                            &c_pop, err) != TF_OK ||
+        tf_table_add_column(t, "file", "the CSV file, relative to this folder", TF_COL_TEXT, &c_file, err) != TF_OK ||
+        tf_table_add_column(t, "sheet", "the sheet of the workbook showing the same table (blank: CSV only)",
+                            TF_COL_TEXT, &c_sheet, err) != TF_OK ||
+        tf_table_add_column(t, "about", "what the table holds", TF_COL_TEXT, &c_about, err) != TF_OK)
         goto fail;
     for (size_t i = 0; i < r->n_tables; i++) {
+        const entry *e = &r->tables[i];
         size_t row;
-        if (tf_table_add_row(t, &row, err) != TF_OK || tf_table_set_text(t, row, c_sheet, names[i], err) != TF_OK ||
-            tf_table_set_text(t, row, c_file, r->tables[i].csv, err) != TF_OK ||
-            tf_table_set_text(t, row, c_about, r->tables[i].about, err) != TF_OK)
+        char file[2 * CSV_NAME_BUF];
+        snprintf(file, sizeof file, "%s%s%s", e->folder, e->folder[0] ? "/" : "", e->csv);
+        if (tf_table_add_row(t, &row, err) != TF_OK || tf_table_set_text(t, row, c_pop, e->population, err) != TF_OK ||
+            tf_table_set_text(t, row, c_file, file, err) != TF_OK ||
+            tf_table_set_text(t, row, c_sheet, names[i], err) != TF_OK ||
+            tf_table_set_text(t, row, c_about, e->about, err) != TF_OK)
             goto fail;
     }
     return t;
@@ -283,11 +326,12 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
     size_t n_made = 0;   /* folders made for the CSV files, taken away again on failure */
     size_t n_files = r->n_tables + 1;   /* the tables and the contents file */
     tf_atomic **files = calloc(n_files, sizeof *files);
+    size_t *sub_made = calloc(n_files, sizeof *sub_made);   /* per table: folders its folder needed */
     tf_sheet **sheets = calloc(r->n_tables ? r->n_tables : 1, sizeof *sheets);
     char(*names)[TF_SHEET_NAME_BUF] = calloc(r->n_tables ? r->n_tables : 1, sizeof *names);
     tf_workbook *wb = NULL;
     tf_table *contents = NULL;
-    if (!files || !sheets || !names) {
+    if (!files || !sub_made || !sheets || !names) {
         st = nomem(err);
         goto done;
     }
@@ -310,8 +354,18 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
                 goto done;
             snprintf(names[i], sizeof names[i], "%s", tf_sheet_name(sheets[i]));
         }
-        if (csv_dir &&
-            (st = csv_to_temp(r->tables[i].table, csv_dir, r->tables[i].csv, protect, &files[i], err)) != TF_OK)
+        if (!csv_dir)
+            continue;
+        const entry *e = &r->tables[i];
+        char dir[PATH_MAX];
+        if (!join_path(dir, sizeof dir, csv_dir, e->folder)) {
+            st = tf_error_add(err, TF_ERR_IO, csv_dir, 0, 0, "use a shorter output folder", "output path too long");
+            goto done;
+        }
+        /* A population's folder is made with its first table and taken away on failure. */
+        if (e->folder[0] && (st = tf_atomic_mkdirs(dir, &sub_made[i], err)) != TF_OK)
+            goto done;
+        if ((st = csv_to_temp(e->table, dir, e->csv, protect, &files[i], err)) != TF_OK)
             goto done;
     }
     for (size_t i = 0; i < r->n_charts; i++) {
@@ -351,7 +405,8 @@ tf_status tf_report_write(const tf_report *r, const char *xlsx_path, const char 
     wb = NULL;
     if (st != TF_OK)
         goto done;
-    n_made = 0;   /* the workbook is in place: the folder stays whatever happens next */
+    n_made = 0;   /* the workbook is in place: the folders stay whatever happens next */
+    memset(sub_made, 0, n_files * sizeof *sub_made);
     st = csv_dir ? tf_atomic_commit_all(files, n_files, err) : TF_OK;
     for (size_t i = 0; i < n_files; i++)
         files[i] = NULL;
@@ -360,8 +415,15 @@ done:
     if (files)
         for (size_t i = 0; i < n_files; i++)
             tf_atomic_abort(files[i]);
+    for (size_t i = r->n_tables; st != TF_OK && sub_made && i-- > 0;)
+        if (sub_made[i]) {
+            char dir[PATH_MAX];
+            if (join_path(dir, sizeof dir, csv_dir, r->tables[i].folder))
+                tf_atomic_rmdirs(dir, sub_made[i]);
+        }
     if (st != TF_OK && n_made)
         tf_atomic_rmdirs(csv_dir, n_made);
+    free(sub_made);
     tf_table_free(contents);
     free(files);
     free(sheets);

@@ -32,6 +32,16 @@ void tf_report_free(tf_report *r);
  * Errors: TF_ERR_NOMEM, TF_ERR_INVALID for a NULL table. */
 tf_status tf_report_add_table(tf_report *r, tf_table *t, const char *about, size_t *index, tf_error *err);
 
+/* Where table index's CSV twin goes: folder (a single folder name inside the CSV folder, such as
+ * a population's; NULL or "" = the CSV folder itself) and the file stem (e.g. "draws"; made a
+ * file name and unique within the folder as tf_report_add_table does). population (may be NULL)
+ * is what the contents file says the table is about. TF_ERR_INVALID for a bad index or folder
+ * (a path, "." or ".."), TF_ERR_NOMEM. */
+tf_status tf_report_set_place(tf_report *r, size_t index, const char *population, const char *folder,
+                              const char *stem, tf_error *err);
+/* The folder of table index's CSV twin ("" = the CSV folder). */
+const char *tf_report_csv_folder(const tf_report *r, size_t index);
+
 /* Keeps table index out of the workbook, as CSV only: for a table longer than a sheet can hold
  * (TF_REPORT_SHEET_ROWS), or one too bulky for the people who open the workbook (the raw draws).
  * The CSV twin is written as for any table, and its contents row names no sheet. A chart over it
@@ -46,6 +56,8 @@ int tf_report_csv_only(const tf_report *r, size_t index);
 
 size_t tf_report_n_tables(const tf_report *r);
 const tf_table *tf_report_table(const tf_report *r, size_t index);
+/* The about line of table index ("" when none). */
+const char *tf_report_about(const tf_report *r, size_t index);
 /* The CSV file name of table index (no directory). */
 const char *tf_report_csv_name(const tf_report *r, size_t index);
 
@@ -69,8 +81,8 @@ typedef struct {
 tf_status tf_report_add_chart(tf_report *r, const tf_report_chart *c, tf_error *err);
 
 /* Writes the workbook to xlsx_path and every table as CSV into csv_dir (created with its parents
- * when missing), plus TF_REPORT_CONTENTS_CSV listing sheet name, CSV file and the about line of
- * each table. Neither may be, or be written over, protect (the input file; may be NULL).
+ * when missing), plus TF_REPORT_CONTENTS_CSV listing population, CSV file (relative to csv_dir), sheet
+ * name and the about line of each table; the folders of tf_report_set_place are made as needed. Neither may be, or be written over, protect (the input file; may be NULL).
  * Every CSV goes to a temporary first; the workbook is assembled and renamed into place, then
  * the CSV temporaries are renamed over their names together (tf_atomic_commit_all). When *stop
  * (may be NULL) becomes non-zero before the workbook is renamed, nothing is written and

@@ -20,6 +20,7 @@
 
 typedef struct {
     char *header;
+    char *label;               /* the heading readers see; NULL = the header itself */
     char *legend;
     tf_col_kind kind;
     double *num;               /* cap_rows entries; NAN = no number */
@@ -35,6 +36,7 @@ typedef struct {
 
 struct tf_table {
     char *name;
+    char *population;          /* summary tables: the population of the rows added next */
     bool summary;
     bool filter;
     column *cols;
@@ -81,6 +83,7 @@ void tf_table_free(tf_table *t)
     for (size_t j = 0; j < t->n_cols; j++) {
         column *c = &t->cols[j];
         free(c->header);
+        free(c->label);
         free(c->legend);
         free(c->num);
         free(c->text);
@@ -92,6 +95,7 @@ void tf_table_free(tf_table *t)
     free(t->cols);
     free(t->notes);
     free(t->arena);
+    free(t->population);
     free(t->name);
     free(t);
 }
@@ -124,6 +128,23 @@ tf_status tf_table_add_column(tf_table *t, const char *header, const char *legen
     return TF_OK;
 nomem:
     return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory adding a column to table '%s'", t->name);
+}
+
+tf_status tf_table_set_label(tf_table *t, size_t col, const char *label, tf_error *err)
+{
+    assert(col < t->n_cols);
+    char *copy = label && label[0] ? strdup(label) : NULL;
+    if (label && label[0] && !copy)
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory labelling table '%s'", t->name);
+    free(t->cols[col].label);
+    t->cols[col].label = copy;
+    return TF_OK;
+}
+
+const char *tf_table_label(const tf_table *t, size_t col)
+{
+    assert(col < t->n_cols);
+    return t->cols[col].label ? t->cols[col].label : t->cols[col].header;
 }
 
 /* Makes room for one more row in every array of every column. On failure nothing that was
@@ -421,21 +442,33 @@ tf_note_kind tf_table_note_kind(const tf_table *t, size_t i)
 
 /* ---- Summary tables ---- */
 
-enum { ITEM_COL, VALUE_COL, NOTE_COL };
+enum { POPULATION_COL, ITEM_COL, VALUE_COL, NOTE_COL };
 
 tf_table *tf_table_new_summary(const char *name, tf_error *err)
 {
     tf_table *t = tf_table_new(name, err);
     if (!t)
         return NULL;
-    if (tf_table_add_column(t, "Item", "what is reported", TF_COL_TEXT, NULL, err) != TF_OK ||
-        tf_table_add_column(t, "Value", "the result", TF_COL_NUMBER, NULL, err) != TF_OK ||
-        tf_table_add_column(t, "Note", "how to read it", TF_COL_TEXT, NULL, err) != TF_OK) {
+    if (tf_table_add_column(t, "population", "the population the row is about (empty: the whole file)", TF_COL_TEXT,
+                            NULL, err) != TF_OK ||
+        tf_table_add_column(t, "item", "what is reported", TF_COL_TEXT, NULL, err) != TF_OK ||
+        tf_table_add_column(t, "value", "the result", TF_COL_NUMBER, NULL, err) != TF_OK ||
+        tf_table_add_column(t, "note", "how to read it", TF_COL_TEXT, NULL, err) != TF_OK) {
         tf_table_free(t);
         return NULL;
     }
     t->summary = true;
     return t;
+}
+
+tf_status tf_table_set_summary_population(tf_table *t, const char *label, tf_error *err)
+{
+    char *copy = label && label[0] ? strdup(label) : NULL;
+    if (label && label[0] && !copy)
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory in table '%s'", t->name);
+    free(t->population);
+    t->population = copy;
+    return TF_OK;
 }
 
 void tf_table_set_filter(tf_table *t, bool on) { t->filter = on; }
@@ -454,6 +487,8 @@ static tf_status add_item_row(tf_table *t, const char *label, const char *note_t
     if (!label || !label[0])
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "table '%s': a summary item needs a label", t->name);
     tf_status st = tf_table_add_row(t, row, err);
+    if (st == TF_OK)
+        st = tf_table_set_text(t, *row, POPULATION_COL, t->population, err);
     if (st == TF_OK)
         st = tf_table_set_text(t, *row, ITEM_COL, label, err);
     if (st == TF_OK)

@@ -55,6 +55,12 @@ tf_status tf_table_set_name(tf_table *t, const char *name, tf_error *err);
 tf_status tf_table_add_column(tf_table *t, const char *header, const char *legend, tf_col_kind kind,
                               size_t *col, tf_error *err);
 
+/* Gives column col the heading readers of the workbook see (e.g. "Lower 95 %" for the CSV
+ * header "lower_95"); a copy, NULL or "" = the header itself. TF_ERR_NOMEM on failure. */
+tf_status tf_table_set_label(tf_table *t, size_t col, const char *label, tf_error *err);
+/* The column's label, or its header when it has none. */
+const char *tf_table_label(const tf_table *t, size_t col);
+
 /* Appends a row of empty cells (NAN, no text) and stores its index in *row when row is not
  * NULL. Storage grows geometrically; numbers are never allocated one by one. */
 tf_status tf_table_add_row(tf_table *t, size_t *row, tf_error *err);
@@ -116,11 +122,14 @@ tf_note_kind tf_table_note_kind(const tf_table *t, size_t i);
 void tf_table_set_filter(tf_table *t, bool on);
 bool tf_table_filter(const tf_table *t);
 
-/* A key-value table for a first page of results: columns "Item", "Value", "Note". Values are
+/* A key-value table for a first page of results: columns "population", "item", "value", "note"
+ * (the workbook hides the population column: the page's headings name it). Values are
  * numbers or text, each row with its own display kind; tf_table_add_heading adds section
  * headings. The row each call adds is tf_table_n_rows(t) - 1 (to flag it with
  * tf_table_set_warning). On failure no row is added. */
 tf_table *tf_table_new_summary(const char *name, tf_error *err);
+/* The population written into the rows added from now on (a copy; NULL or "" = none). */
+tf_status tf_table_set_summary_population(tf_table *t, const char *label, tf_error *err);
 /* Appends "label | value | note" with value shown as kind (note may be NULL). */
 tf_status tf_table_add_item_number(tf_table *t, const char *label, double value, tf_col_kind kind,
                                    const char *note, tf_error *err);

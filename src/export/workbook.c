@@ -690,7 +690,7 @@ static tf_status write_table(tf_workbook *wb, tf_sheet *s, const tf_table *t, tf
     column_formats(t, nf);
     /* Widths come first: the notes are merged across them. */
     for (size_t j = 0; j < s->n_cols; j++) {
-        double w = 1.1 * (double)text_len(tf_table_header(t, j)) + 1;   /* bold is wider */
+        double w = 1.1 * (double)text_len(tf_table_label(t, j)) + 1;   /* bold is wider */
         double legend = (double)text_len(tf_table_legend(t, j));
         w = fmax(w, fmin(legend, WIDTH_LEGEND_CAP));
         w = fmax(w, widest_cell(wb, t, j, nf));
@@ -708,7 +708,7 @@ static tf_status write_table(tf_workbook *wb, tf_sheet *s, const tf_table *t, tf
     }
     double header_lines = 1, legend_lines = 1;
     for (size_t j = 0; j < s->n_cols; j++) {
-        lxw_error rc = put_text(wb, s->ws, row, (lxw_col_t)j, tf_table_header(t, j), hf);
+        lxw_error rc = put_text(wb, s->ws, row, (lxw_col_t)j, tf_table_label(t, j), hf);
         if (rc == LXW_NO_ERROR)
             rc = tf_table_legend(t, j)[0] ? put_text(wb, s->ws, row + 1, (lxw_col_t)j, tf_table_legend(t, j), lf)
                                           : worksheet_write_blank(s->ws, row + 1, (lxw_col_t)j, lf);
@@ -718,7 +718,7 @@ static tf_status write_table(tf_workbook *wb, tf_sheet *s, const tf_table *t, tf
             st = lxw_fail(wb, rc, "header", err);
             goto done;
         }
-        header_lines = fmax(header_lines, wrapped_lines(text_len(tf_table_header(t, j)) * 11 / 10, width[j]));
+        header_lines = fmax(header_lines, wrapped_lines(text_len(tf_table_label(t, j)) * 11 / 10, width[j]));
         legend_lines = fmax(legend_lines, wrapped_lines(text_len(tf_table_legend(t, j)), width[j]));
     }
     lxw_error rc = worksheet_set_row(s->ws, row, row_height(header_lines), NULL);
@@ -747,17 +747,19 @@ done:
 
 static tf_status write_summary(tf_workbook *wb, tf_sheet *s, const tf_table *t, tf_error *err)
 {
-    /* tf_table_new_summary makes exactly these three columns. */
-    assert(s->n_cols == 3);
-    static const double caps[3] = {WIDTH_SUMMARY_ITEM, WIDTH_SUMMARY_VALUE, WIDTH_SUMMARY_NOTE};
-    static const unsigned col_flags[3] = {F_LABEL, F_LEFT, F_WRAP};
-    numfmt nf[3];
-    double width[3];
+    /* tf_table_new_summary makes exactly these four columns; the first, the population, is
+     * hidden: the page's headings name the population, and the CSV twin keeps the column. */
+    assert(s->n_cols == 4);
+    static const double caps[4] = {WIDTH_MIN, WIDTH_SUMMARY_ITEM, WIDTH_SUMMARY_VALUE, WIDTH_SUMMARY_NOTE};
+    static const unsigned col_flags[4] = {0, F_LABEL, F_LEFT, F_WRAP};
+    numfmt nf[4];
+    double width[4];
     column_formats(t, nf);
-    for (size_t j = 0; j < 3; j++) {
-        double w = fmax(1.1 * (double)text_len(tf_table_header(t, j)) + 1, widest_cell(wb, t, j, nf));
+    for (size_t j = 0; j < 4; j++) {
+        double w = fmax(1.1 * (double)text_len(tf_table_label(t, j)) + 1, widest_cell(wb, t, j, nf));
         width[j] = clamp(w + 2, WIDTH_MIN, caps[j]);
     }
+    width[0] = 0;   /* hidden: it takes no room from the notes */
     lxw_row_t row = 0;
     tf_status st = write_notes(wb, s, t, width, &row, err);
     if (st != TF_OK)
@@ -766,10 +768,11 @@ static tf_status write_summary(tf_workbook *wb, tf_sheet *s, const tf_table *t, 
     lxw_format *hf = get_format(wb, NF_NONE, F_HEADER);
     if (!hf)
         return nomem(wb, err);
-    for (size_t j = 0; j < 3; j++) {
-        lxw_error rc = put_text(wb, s->ws, row, (lxw_col_t)j, tf_table_header(t, j), hf);
+    for (size_t j = 0; j < 4; j++) {
+        lxw_error rc = put_text(wb, s->ws, row, (lxw_col_t)j, tf_table_label(t, j), hf);
+        lxw_row_col_options hide = {.hidden = 1};
         if (rc == LXW_NO_ERROR)
-            rc = worksheet_set_column(s->ws, (lxw_col_t)j, (lxw_col_t)j, width[j], NULL);
+            rc = worksheet_set_column_opt(s->ws, (lxw_col_t)j, (lxw_col_t)j, width[j], NULL, j == 0 ? &hide : NULL);
         if (rc != LXW_NO_ERROR)
             return lxw_fail(wb, rc, "header", err);
     }
@@ -779,8 +782,8 @@ static tf_status write_summary(tf_workbook *wb, tf_sheet *s, const tf_table *t, 
         return st;
     /* Wrapped notes get the height their text needs; headings some air above them. */
     for (size_t i = 0; i < s->n_rows; i++) {
-        const char *note_text = tf_table_text(t, i, 2);
-        double h = tf_table_is_heading(t, i) ? HEADING_HEIGHT : note_text ? row_height(wrapped_lines(text_len(note_text), width[2])) : 0;
+        const char *note_text = tf_table_text(t, i, 3);
+        double h = tf_table_is_heading(t, i) ? HEADING_HEIGHT : note_text ? row_height(wrapped_lines(text_len(note_text), width[3])) : 0;
         if (h > LINE_HEIGHT) {
             lxw_error rc = worksheet_set_row(s->ws, s->first_data_row + (lxw_row_t)i, h, NULL);
             if (rc != LXW_NO_ERROR)

@@ -14,7 +14,7 @@
  * so 10^7 runs need about 0.5 GB. Far beyond what a Monte Carlo error of 0.0002 (10^7 runs) needs. */
 #define MAX_RUNS 10000000u
 
-static const double band_levels[TF_BAND_COUNT] = {0.05, 0.25, 0.5, 0.75, 0.95};
+static const double band_levels[TF_BAND_COUNT] = {0.025, 0.25, 0.5, 0.75, 0.975};
 
 struct tf_projection {
     size_t horizon;

@@ -131,7 +131,7 @@ size_t tf_projection_input_runs(const tf_projection *p, size_t i);
 
 /* Abundance bands: quantiles of N = exp(x) over the runs in year t = 0..horizon (t = 0 is the last
  * survey year), by linear interpolation between order statistics (Hyndman & Fan 1996, definition 7). */
-typedef enum { TF_BAND_P05, TF_BAND_P25, TF_BAND_MEDIAN, TF_BAND_P75, TF_BAND_P95, TF_BAND_COUNT } tf_band;
+typedef enum { TF_BAND_P025, TF_BAND_P25, TF_BAND_MEDIAN, TF_BAND_P75, TF_BAND_P975, TF_BAND_COUNT } tf_band;
 double tf_project_band_level(tf_band b);      /* 0.05, 0.25, 0.5, 0.75, 0.95; NAN when out of range */
 double tf_projection_band(const tf_projection *p, size_t t, tf_band b);
 

@@ -259,7 +259,7 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         const double *path = f->paths + at(f, k) * f->n_years;
         double slope = f->n_years > 1 ? (path[f->n_years - 1] - path[0]) / (double)(f->n_years - 1)
                                       : NAN;
-        x[k] = 100.0 * expm1(slope);
+        x[k] = expm1(slope);
         n_decline += slope < 0;
     }
     if (f->n_years > 1 && all_finite(x, n_draws)) {

@@ -46,8 +46,8 @@ typedef struct {
     double rhat, ess_bulk, ess_tail;
 } tf_fit_year_summary;
 
-/* Average annual change over the series, per draw 100 (exp((x_last - x_first)/(n_years - 1)) - 1)
- * percent per year from the latent path. */
+/* Average annual change over the series, per draw exp((x_last - x_first)/(n_years - 1)) - 1 from
+ * the latent path: a fraction per year (-0.02 = 2 % decline a year). */
 typedef struct {
     double mean, median, q025, q975;
     double p_decline;         /* share of draws with a negative change */

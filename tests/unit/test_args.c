@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cmd/args.h"
+#include "util/path.h"
 #include "cmd/cmd.h"
 
 static const char *first_what(const tf_error *err) { return err->n_items ? err->items[0].what : ""; }
@@ -166,13 +167,13 @@ END_TEST
 START_TEST(output_names_are_portable)
 {
     char buf[64];
-    tf_args_safe_name("north valley/2", buf, sizeof buf);
+    tf_path_safe_name("north valley/2", buf, sizeof buf);
     ck_assert_str_eq(buf, "north_valley_2");
-    tf_args_safe_name(".hidden", buf, sizeof buf);
+    tf_path_safe_name(".hidden", buf, sizeof buf);
     ck_assert_str_eq(buf, "_hidden");
-    tf_args_safe_name("", buf, sizeof buf);
+    tf_path_safe_name("", buf, sizeof buf);
     ck_assert_str_eq(buf, "_");
-    tf_args_safe_name("abcdef", buf, 4);
+    tf_path_safe_name("abcdef", buf, 4);
     ck_assert_str_eq(buf, "abc");
     tf_args_survey_name("surveys/heron-colony.CSV", buf, sizeof buf);
     ck_assert_str_eq(buf, "heron-colony");

@@ -116,7 +116,7 @@ START_TEST(folders_unique_and_safe)
     static const char *const want[] = {"Site_A", "site_a-2", "pond_3", "__tang"};
     for (size_t i = 0; i < 4; i++) {
         char path[256];
-        snprintf(path, sizeof path, "%s/%s/%s", f.root, TF_BATCH_POP_DIR, want[i]);
+        snprintf(path, sizeof path, "%s/%s", f.root, want[i]);
         ck_assert_str_eq(tf_batch_folder(b, i), path);
     }
     ck_assert_str_eq(tf_batch_label(b, 2), "pond/3");

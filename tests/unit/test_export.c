@@ -807,10 +807,13 @@ START_TEST(summary_rows)
     tf_error_init(&err);
     tf_table *t = tf_table_new_summary("Summary", &err);
     ck_assert(tf_table_is_summary(t));
-    ck_assert_uint_eq(tf_table_n_columns(t), 3);
+    ck_assert_uint_eq(tf_table_n_columns(t), 4);
+    ck_assert_str_eq(tf_table_header(t, 0), "population");
+    ck_assert_int_eq(tf_table_set_summary_population(t, "north", &err), TF_OK);
     ck_assert_int_eq(tf_table_add_heading(t, "Trend", &err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_number(t, "Decline", 0.25, TF_COL_PERCENT, "since 2001", &err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_number(t, "Unknown", NAN, TF_COL_NUMBER, NULL, &err), TF_OK);
+    ck_assert_int_eq(tf_table_set_summary_population(t, NULL, &err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_text(t, "Model", "Ricker", NULL, &err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_text(t, "", "Ricker", NULL, &err), TF_ERR_INVALID);
     ck_assert_uint_eq(tf_table_n_rows(t), 4);
@@ -818,10 +821,14 @@ START_TEST(summary_rows)
     ck_assert(!tf_table_is_heading(t, 1));
     ck_assert(!tf_table_is_heading(t, 2));   /* a missing value is not a heading */
     ck_assert(!tf_table_is_heading(t, 3));
-    ck_assert_int_eq(tf_table_cell_kind(t, 1, 1), TF_COL_PERCENT);
-    ck_assert(tf_table_number(t, 1, 1) == 0.25);
-    ck_assert_str_eq(tf_table_text(t, 1, 2), "since 2001");
-    ck_assert_str_eq(tf_table_text(t, 3, 1), "Ricker");
+    ck_assert_int_eq(tf_table_cell_kind(t, 1, 2), TF_COL_PERCENT);
+    ck_assert(tf_table_number(t, 1, 2) == 0.25);
+    ck_assert_str_eq(tf_table_text(t, 1, 3), "since 2001");
+    ck_assert_str_eq(tf_table_text(t, 3, 2), "Ricker");
+    /* The rows carry the population they are about; rows about the whole file none. */
+    ck_assert_str_eq(tf_table_text(t, 0, 0), "north");
+    ck_assert_str_eq(tf_table_text(t, 2, 0), "north");
+    ck_assert(tf_table_is_empty(t, 3, 0));
     tf_table_free(t);
 }
 END_TEST

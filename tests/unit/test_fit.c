@@ -69,7 +69,7 @@ START_TEST(summaries_of_known_draws)
                 all[p][k] = theta[p];
             memcpy(paths[k], path, sizeof path);
             double slope = (path[YR - 1] - path[0]) / (YR - 1);
-            trend[k] = 100.0 * (exp(slope) - 1.0);
+            trend[k] = exp(slope) - 1.0;
             n_decline += slope < 0;
         }
     tf_fit_set_chain_stats(f, 1, 0.25, 0.01);

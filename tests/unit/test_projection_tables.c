@@ -1,4 +1,4 @@
-/* Unit tests for the export tables of a projection (export/projection_tables.c): columns,
+/* Unit tests for the tables of a projection (tables/projection_tables.c): columns,
  * kinds, legends, notes, and that every cell is the projection's own number. A projection
  * without noise has a closed form (exponential growth, N_t = N_0 e^{r t}; Dennis, Munholland &
  * Scott 1991, eq. 1 with sigma = 0) that the cells are also checked against. */
@@ -8,10 +8,11 @@
 #include <string.h>
 
 #include "export/csv_out.h"
-#include "export/projection_tables.h"
 #include "model/model.h"
 #include "project/cautions.h"
 #include "project/project.h"
+#include "tables/columns.h"
+#include "tables/projection_tables.h"
 
 #define HORIZON 20
 #define R (-0.1)
@@ -73,10 +74,17 @@ static const tf_table *build(const tf_projection *p, int year0, tf_table **t, si
 {
     tf_error err;
     tf_error_init(&err);
-    ck_assert_int_eq(tf_projection_tables_build(p, year0, t, &err), TF_OK);
+    tf_projection_place place = {.population = "north, upper", .model = "fixed", .unit = TF_UNIT_ANIMALS,
+                                 .year0 = year0};
+    ck_assert_int_eq(tf_projection_tables_build(p, &place, t, &err), TF_OK);
     char name[64];
     tf_csv_file_name(tf_table_name(t[which]), name, sizeof name);
     ck_assert_str_eq(name, file);
+    /* Every row says whose projection it is. */
+    for (size_t i = 0; i < tf_table_n_rows(t[which]); i++) {
+        ck_assert_str_eq(tf_table_text(t[which], i, 0), "north, upper");
+        ck_assert_str_eq(tf_table_text(t[which], i, 1), "fixed");
+    }
     return t[which];
 }
 
@@ -89,19 +97,21 @@ START_TEST(bands_table)
 {
     tf_projection *p = deterministic();
     tf_table *t[TF_PROJECTION_N_TABLES];
-    const tf_table *b = build(p, 2010, t, TF_PROJECTION_TABLE_BANDS, "forecast_bands.csv");
-    static const char *const headers[] = {"year", "calendar_year", "median", "pct25", "pct75", "pct5", "pct95"};
-    static const tf_col_kind kinds[] = {TF_COL_INTEGER, TF_COL_YEAR,   TF_COL_NUMBER, TF_COL_NUMBER,
-                                        TF_COL_NUMBER,  TF_COL_NUMBER, TF_COL_NUMBER};
-    assert_columns(b, headers, kinds, 7);
+    const tf_table *b = build(p, 2010, t, TF_PROJECTION_TABLE_BANDS, "projection.csv");
+    static const char *const headers[] = {"population", "model",    "years_ahead", "year",    "unit",
+                                          "median",     "lower_50", "upper_50",    "lower_95", "upper_95"};
+    static const tf_col_kind kinds[] = {TF_COL_TEXT,   TF_COL_TEXT,   TF_COL_INTEGER, TF_COL_YEAR,   TF_COL_TEXT,
+                                        TF_COL_NUMBER, TF_COL_NUMBER, TF_COL_NUMBER,  TF_COL_NUMBER, TF_COL_NUMBER};
+    assert_columns(b, headers, kinds, 10);
     assert_notes(b);
-    static const tf_band order[] = {TF_BAND_MEDIAN, TF_BAND_P25, TF_BAND_P75, TF_BAND_P05, TF_BAND_P95};
+    static const tf_band order[] = {TF_BAND_MEDIAN, TF_BAND_P25, TF_BAND_P75, TF_BAND_P025, TF_BAND_P975};
     ck_assert_uint_eq(tf_table_n_rows(b), HORIZON + 1);
     for (size_t y = 0; y <= HORIZON; y++) {
-        ck_assert(tf_table_number(b, y, 0) == (double)y);
-        ck_assert(tf_table_number(b, y, 1) == 2010.0 + (double)y);
+        ck_assert(tf_table_number(b, y, 2) == (double)y);
+        ck_assert(tf_table_number(b, y, 3) == 2010.0 + (double)y);
+        ck_assert_str_eq(tf_table_text(b, y, 4), "animals");
         for (size_t k = 0; k < 5; k++) {
-            double v = tf_table_number(b, y, 2 + k);
+            double v = tf_table_number(b, y, 5 + k);
             ck_assert(v == tf_projection_band(p, y, order[k]));
             ck_assert(close_to(v, N0 * exp(R * (double)y)));
         }
@@ -118,23 +128,28 @@ START_TEST(risk_table)
 {
     tf_projection *p = deterministic();
     tf_table *t[TF_PROJECTION_N_TABLES];
-    const tf_table *r = build(p, TF_PROJECTION_NO_YEAR, t, TF_PROJECTION_TABLE_RISK, "forecast_quasi_extinction.csv");
-    static const char *const headers[] = {"year", "calendar_year", "threshold", "probability", "se"};
-    static const tf_col_kind kinds[] = {TF_COL_INTEGER, TF_COL_YEAR, TF_COL_TEXT, TF_COL_PROBABILITY, TF_COL_NUMBER};
-    assert_columns(r, headers, kinds, 5);
+    const tf_table *r = build(p, TF_PROJECTION_NO_YEAR, t, TF_PROJECTION_TABLE_RISK, "risk.csv");
+    static const char *const headers[] = {"population", "model", "threshold",   "threshold_kind",
+                                          "years_ahead", "year", "probability", "probability_mcse"};
+    static const tf_col_kind kinds[] = {TF_COL_TEXT,    TF_COL_TEXT, TF_COL_NUMBER,      TF_COL_TEXT,
+                                        TF_COL_INTEGER, TF_COL_YEAR, TF_COL_PROBABILITY, TF_COL_NUMBER};
+    assert_columns(r, headers, kinds, 8);
     assert_notes(r);
     ck_assert_uint_eq(tf_table_n_rows(r), 2 * (HORIZON + 1));
-    static const char *const labels[] = {"50", "20%"};
+    /* A threshold is a number and its kind, never text: 50 animals, and 20 % as 0.2. */
+    static const double values[] = {50, 0.2};
+    static const char *const kinds_of[] = {"animals", "fraction_of_current"};
     static const size_t first_year[] = {7, 17};
     for (size_t k = 0; k < 2; k++)
         for (size_t y = 0; y <= HORIZON; y++) {
             size_t row = k * (HORIZON + 1) + y;
-            ck_assert(tf_table_number(r, row, 0) == (double)y);
-            ck_assert(tf_table_is_empty(r, row, 1));
-            ck_assert_str_eq(tf_table_text(r, row, 2), labels[k]);
-            ck_assert(tf_table_number(r, row, 3) == tf_projection_risk(p, k, y));
-            ck_assert(tf_table_number(r, row, 3) == (y >= first_year[k] ? 1.0 : 0.0));
-            ck_assert(tf_table_number(r, row, 4) == tf_projection_risk_se(p, k, y));
+            ck_assert(tf_table_number(r, row, 2) == values[k]);
+            ck_assert_str_eq(tf_table_text(r, row, 3), kinds_of[k]);
+            ck_assert(tf_table_number(r, row, 4) == (double)y);
+            ck_assert(tf_table_is_empty(r, row, 5));
+            ck_assert(tf_table_number(r, row, 6) == tf_projection_risk(p, k, y));
+            ck_assert(tf_table_number(r, row, 6) == (y >= first_year[k] ? 1.0 : 0.0));
+            ck_assert(tf_table_number(r, row, 7) == tf_projection_risk_se(p, k, y));
         }
     tf_projection_tables_free(t);
     tf_projection_free(p);
@@ -147,10 +162,12 @@ START_TEST(declines_table)
 {
     tf_projection *p = deterministic();
     tf_table *t[TF_PROJECTION_N_TABLES];
-    const tf_table *d = build(p, 1999, t, TF_PROJECTION_TABLE_DECLINES, "forecast_declines.csv");
-    static const char *const headers[] = {"window", "decline", "probability", "se"};
-    static const tf_col_kind kinds[] = {TF_COL_INTEGER, TF_COL_PERCENT, TF_COL_PROBABILITY, TF_COL_NUMBER};
-    assert_columns(d, headers, kinds, 4);
+    const tf_table *d = build(p, 1999, t, TF_PROJECTION_TABLE_DECLINES, "declines.csv");
+    static const char *const headers[] = {"population", "model",       "window_years",
+                                          "decline",    "probability", "probability_mcse"};
+    static const tf_col_kind kinds[] = {TF_COL_TEXT,    TF_COL_TEXT,        TF_COL_INTEGER,
+                                        TF_COL_PERCENT, TF_COL_PROBABILITY, TF_COL_NUMBER};
+    assert_columns(d, headers, kinds, 6);
     assert_notes(d);
     ck_assert_uint_eq(tf_table_n_rows(d), 6);
     static const double windows[] = {10, 20}, declines[] = {0.3, 0.5, 0.8};
@@ -158,11 +175,11 @@ START_TEST(declines_table)
     for (size_t w = 0; w < 2; w++)
         for (size_t k = 0; k < 3; k++) {
             size_t row = w * 3 + k;
-            ck_assert(tf_table_number(d, row, 0) == windows[w]);
-            ck_assert(tf_table_number(d, row, 1) == declines[k]);
-            ck_assert(tf_table_number(d, row, 2) == tf_projection_decline_prob(p, w, k));
-            ck_assert(tf_table_number(d, row, 2) == happens[w][k]);
-            ck_assert(tf_table_number(d, row, 3) == tf_projection_decline_se(p, w, k));
+            ck_assert(tf_table_number(d, row, 2) == windows[w]);
+            ck_assert(tf_table_number(d, row, 3) == declines[k]);
+            ck_assert(tf_table_number(d, row, 4) == tf_projection_decline_prob(p, w, k));
+            ck_assert(tf_table_number(d, row, 4) == happens[w][k]);
+            ck_assert(tf_table_number(d, row, 5) == tf_projection_decline_se(p, w, k));
         }
     tf_projection_tables_free(t);
     tf_projection_free(p);

@@ -147,10 +147,10 @@ START_TEST(names_and_files)
     ck_assert_int_eq(count_entries(csv, ".csv"), 4);
     /* The contents file maps the workbook's sheet names (cleaned: '/' -> '_') to the files. */
     const char *contents = slurp(csv, TF_REPORT_CONTENTS_CSV);
-    ck_assert_str_eq(contents, "sheet,file,contents\r\n"
-                               "Summary,summary.csv,the first page\r\n"
-                               "North _ trend,north-trend.csv,trend\r\n"
-                               "north trend,north-trend-2.csv,\r\n");
+    ck_assert_str_eq(contents, "population,file,sheet,about\r\n"
+                               ",summary.csv,Summary,the first page\r\n"
+                               ",north-trend.csv,North _ trend,trend\r\n"
+                               ",north-trend-2.csv,north trend,\r\n");
     ck_assert_str_eq(slurp(csv, "north-trend.csv"), "year,value,lower,upper\r\n"
                                                    "2010,100,50,200\r\n"
                                                    "2011,97.5,48.75,195\r\n"
@@ -316,6 +316,39 @@ START_TEST(unwritable)
 }
 END_TEST
 
+/* Tables of several populations: each in its population's folder under its own stem, listed in
+ * the contents file with the population; a bad folder is refused. */
+START_TEST(places_in_folders)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_report *r = tf_report_new(&err);
+    size_t a, b;
+    ck_assert_int_eq(tf_report_add_table(r, year_table("north draws", &err), "draws", &a, &err), TF_OK);
+    ck_assert_int_eq(tf_report_add_table(r, year_table("south draws", &err), "draws", &b, &err), TF_OK);
+    ck_assert_int_eq(tf_report_set_place(r, a, "north", "north", "draws", &err), TF_OK);
+    ck_assert_int_eq(tf_report_set_place(r, b, "south, upper", "south_upper", "draws", &err), TF_OK);
+    ck_assert_str_eq(tf_report_csv_name(r, a), "draws.csv");
+    ck_assert_str_eq(tf_report_csv_folder(r, b), "south_upper");
+    ck_assert_int_eq(tf_report_set_place(r, a, "x", "../up", "draws", &err), TF_ERR_INVALID);
+    ck_assert_int_eq(tf_report_set_place(r, a, "x", "..", "draws", &err), TF_ERR_INVALID);
+    const char *d = fresh_dir("places");
+    char xlsx[1024];
+    snprintf(xlsx, sizeof xlsx, "%s/out.xlsx", d);
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_report_write(r, xlsx, d, NULL, NULL, &err), TF_OK);
+    char sub[1100];
+    snprintf(sub, sizeof sub, "%s/north", d);
+    ck_assert(exists(sub, "draws.csv"));
+    snprintf(sub, sizeof sub, "%s/south_upper", d);
+    ck_assert(exists(sub, "draws.csv"));
+    ck_assert_str_eq(slurp(d, TF_REPORT_CONTENTS_CSV), "population,file,sheet,about\r\n"
+                                                       "north,north/draws.csv,north draws,draws\r\n"
+                                                       "\"south, upper\",south_upper/draws.csv,south draws,draws\r\n");
+    tf_report_free(r);
+}
+END_TEST
+
 START_TEST(csv_only)
 {
     tf_error err;
@@ -345,9 +378,9 @@ START_TEST(csv_only)
     ck_assert(exists(csv, "long.csv"));
     ck_assert(has_member(xlsx, "xl/worksheets/sheet1.xml"));
     ck_assert(!has_member(xlsx, "xl/worksheets/sheet2.xml"));
-    ck_assert_str_eq(slurp(csv, TF_REPORT_CONTENTS_CSV), "sheet,file,contents\r\n"
-                                                         "kept,kept.csv,\r\n"
-                                                         ",long.csv,too long for a sheet\r\n");
+    ck_assert_str_eq(slurp(csv, TF_REPORT_CONTENTS_CSV), "population,file,sheet,about\r\n"
+                                                         ",kept.csv,kept,\r\n"
+                                                         ",long.csv,,too long for a sheet\r\n");
     tf_report_free(r);
 }
 END_TEST
@@ -362,6 +395,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, protected_input);
     tcase_add_test(tc, unwritable);
     tcase_add_test(tc, csv_only);
+    tcase_add_test(tc, places_in_folders);
     suite_add_tcase(s, tc);
     return s;
 }

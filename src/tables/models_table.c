@@ -1,5 +1,5 @@
 /* The model-comparison table. */
-#include "export/compare_table.h"
+#include "tables/models_table.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -9,7 +9,7 @@
 #include "compare/pareto.h"
 
 enum {
-    C_MODEL, C_GROWTH, C_OBS, C_SCALE, C_STATUS, C_LOG_ML, C_LOG_ML_SE, C_CHECK, C_CHECK_SE, C_CHECK_Z, C_BF, C_LN_BF,
+    C_POP, C_MODEL, C_GROWTH, C_OBS, C_SCALE, C_STATUS, C_LOG_ML, C_LOG_ML_SE, C_CHECK, C_CHECK_SE, C_CHECK_Z, C_BF, C_LN_BF,
     C_LN_BF_SE, C_TWO_LN_B, C_READING, C_PRIOR, C_PROB, C_PROB_SE, C_K, C_K_CHECK, C_W_ESS, C_PARTICLES, C_PARTICLES_MEAN, C_RHAT,
     C_ESS, C_NOTE, N_COLS
 };
@@ -18,6 +18,7 @@ static const struct {
     const char *header, *legend;
     tf_col_kind kind;
 } columns[N_COLS] = {
+    {"population", "the population's label", TF_COL_TEXT},
     {"model", "candidate model, growth+observation", TF_COL_TEXT},
     {"growth", "growth model of log abundance", TF_COL_TEXT},
     {"observation", "counting-error model", TF_COL_TEXT},
@@ -29,24 +30,24 @@ static const struct {
     {"log_ml", "log marginal likelihood ln p(counts | model) by importance sampling squared with the adapted "
                "Student-t mixture",
      TF_COL_NUMBER},
-    {"log_ml_se", "Monte Carlo standard error of log_ml (delta method)", TF_COL_NUMBER},
+    {"log_ml_mcse", "Monte Carlo standard error of log_ml (delta method)", TF_COL_NUMBER},
     {"log_ml_check", "the same from a second importance density (Student-t, 3 degrees of freedom, centred on the "
                      "posterior median, twice as wide)",
      TF_COL_NUMBER},
-    {"log_ml_check_se", "Monte Carlo standard error of log_ml_check", TF_COL_NUMBER},
+    {"log_ml_check_mcse", "Monte Carlo standard error of log_ml_check", TF_COL_NUMBER},
     {"check_z", "(log_ml - log_ml_check) / their combined standard error; beyond +-3 the two disagree",
      TF_COL_NUMBER},
     {"bayes_factor", "Bayes factor against the best model, p(counts | model) / p(counts | best)", TF_COL_NUMBER},
     {"ln_bf", "natural log of bayes_factor", TF_COL_NUMBER},
-    {"ln_bf_se", "Monte Carlo standard error of ln_bf", TF_COL_NUMBER},
+    {"ln_bf_mcse", "Monte Carlo standard error of ln_bf", TF_COL_NUMBER},
     {"two_ln_b", "2 ln of the Bayes factor of the best model over this one (Kass & Raftery 1995 scale)",
      TF_COL_NUMBER},
     {"reading", "Kass & Raftery (1995) reading of two_ln_b: 0-2 not worth more than a bare mention, 2-6 positive, "
                 "6-10 strong, above 10 very strong evidence for the best model",
      TF_COL_TEXT},
-    {"prior_weight", "prior model probability", TF_COL_PROBABILITY},
-    {"post_prob", "posterior model probability", TF_COL_PROBABILITY},
-    {"post_prob_se", "Monte Carlo standard error of post_prob (delta method from the log_ml standard errors)",
+    {"prior_prob", "prior model probability", TF_COL_PROBABILITY},
+    {"model_prob", "posterior model probability", TF_COL_PROBABILITY},
+    {"model_prob_mcse", "Monte Carlo standard error of model_prob (delta method from the log_ml standard errors)",
      TF_COL_NUMBER},
     {"pareto_k", "Pareto k of the importance weights (above 0.7: unreliable)", TF_COL_NUMBER},
     {"pareto_k_check", "Pareto k of the second density's weights", TF_COL_NUMBER},
@@ -54,8 +55,8 @@ static const struct {
     {"particles", "base particle count of the likelihood estimates in the importance sampling", TF_COL_INTEGER},
     {"particles_mean", "particles spent per importance draw, pilot runs included (each draw sets its own count)",
      TF_COL_NUMBER},
-    {"rhat_max", "largest R-hat of the fit's parameters (want <= 1.01)", TF_COL_NUMBER},
-    {"ess_min", "smallest bulk or tail ESS of the fit's parameters (want >= 400)", TF_COL_NUMBER},
+    {"max_r_hat", "largest R-hat of the fit's parameters (want <= 1.01)", TF_COL_NUMBER},
+    {"min_ess", "smallest bulk or tail ESS of the fit's parameters (want >= 400)", TF_COL_NUMBER},
     {"note", "why a model was excluded or failed, or a caution", TF_COL_TEXT},
 };
 
@@ -95,7 +96,7 @@ static const char *state_name(tf_candidate_state s)
     return s == TF_CANDIDATE_FITTED ? "fitted" : s == TF_CANDIDATE_FAILED ? "failed" : "excluded";
 }
 
-tf_table *tf_compare_table(const tf_comparison *c, tf_error *err)
+tf_table *tf_compare_table(const tf_comparison *c, const char *population, tf_error *err)
 {
     tf_table *t = tf_table_new(TF_COMPARE_TABLE_NAME, err);
     if (!t)
@@ -114,6 +115,7 @@ tf_table *tf_compare_table(const tf_comparison *c, tf_error *err)
             size_t i = order[r];
             size_t row;
             ok = tf_table_add_row(t, &row, err) == TF_OK &&
+                 tf_table_set_text(t, row, C_POP, population, err) == TF_OK &&
                  tf_table_set_text(t, row, C_MODEL, tf_comparison_name(c, i), err) == TF_OK &&
                  tf_table_set_text(t, row, C_GROWTH, tf_comparison_growth(c, i)->name, err) == TF_OK &&
                  tf_table_set_text(t, row, C_OBS, tf_comparison_obs(c, i)->name, err) == TF_OK &&
@@ -170,8 +172,7 @@ tf_table *tf_compare_table(const tf_comparison *c, tf_error *err)
                 unconverged = 1;
             }
         }
-        const tf_series *s = tf_comparison_series(c);
-        const char *label = tf_series_label(s);
+        const char *label = population ? population : "";
         ok = ok &&
              tf_table_add_notef(t, TF_NOTE_INFO, err, "Model comparison%s%s: marginal likelihoods by importance "
                                 "sampling squared (Tran, Scharth, Pitt & Kohn 2014) with particle-filter likelihood "

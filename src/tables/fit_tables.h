@@ -1,0 +1,89 @@
+/* The tables of fitted models, the same from `fit`, `compare`, `forecast`, `analyze` and a batch:
+ * abundance per year, annual change, parameter summaries, raw draws, per-model diagnostics and
+ * per-chain sampler records. Each table starts with `population`, then `model`; the columns
+ * come from the vocabulary (tables/columns.h). Only lays out what the fits hold. */
+#ifndef TF_FIT_TABLES_H
+#define TF_FIT_TABLES_H
+
+#include <stddef.h>
+
+#include "export/table.h"
+#include "model/prior.h"
+#include "sampler/fit.h"
+#include "survey/series.h"
+#include "util/error.h"
+
+/* One model as the tables see it. */
+typedef struct {
+    const char *name;             /* "ricker+poisson" */
+    const tf_fit *fit;            /* NULL when it was not fitted or its fit failed */
+    int excluded;                 /* not fitted by design (unsuited to the counts): no diagnostics row */
+    const char *note;             /* why it failed or was excluded; NULL or "" = none */
+    double probability;           /* posterior model probability; NAN when the models were not compared */
+    double pareto_k;              /* of its marginal likelihood; NAN when none was estimated */
+    const tf_prior_set *priors;   /* may be NULL: the prior column is then blank */
+} tf_tables_model;
+
+/* What every table of one population shares. */
+typedef struct {
+    const char *population;       /* the population's label */
+    const tf_series *series;
+    int omit_seconds;             /* leave the seconds blank, so that files compare byte for byte */
+} tf_tables_context;
+
+/* A year of abundance: the fit's or a model average's (same fields as tf_fit_year_summary). */
+typedef struct {
+    int year;
+    double count, effort;         /* count NAN when the year was not surveyed */
+    double median, q25, q75, q025, q975;
+} tf_tables_year;
+
+/* The average annual change (a fraction per year) of one model or of the average. */
+typedef struct {
+    double mean, median, q025, q975, p_decline;
+    double rhat, ess_bulk;        /* NAN when not diagnosed (the model average) */
+} tf_tables_change;
+
+/* The label a population has in every table: its own, or fallback (the survey's name) when the
+ * survey has no population column. */
+const char *tf_tables_population(const tf_series *s, const char *fallback);
+
+/* The unit of the abundances of s: TF_UNIT_PER_EFFORT when effort differs between surveyed years,
+ * else TF_UNIT_ANIMALS. */
+const char *tf_tables_unit(const tf_series *s);
+/* Whether effort differs between the surveyed years of s. */
+int tf_tables_effort_varies(const tf_series *s);
+
+/* Each builder returns a new table named by its file stem ("abundance", "change", "parameters",
+ * "draws", "diagnostics", "chains") in *out (the caller frees), or fills err (TF_ERR_NOMEM). */
+
+/* Counts and estimated abundance per year under model (its name or "average"). */
+tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, const tf_tables_year *years, size_t n,
+                              tf_table **out, tf_error *err);
+/* The same from a fit's own years. */
+tf_status tf_tables_abundance_fit(const tf_tables_context *c, const tf_tables_model *m, tf_table **out, tf_error *err);
+
+/* One row per fitted model, then the average when average is not NULL. */
+tf_status tf_tables_change_of(const tf_tables_context *c, const tf_tables_model *models, size_t n,
+                              const tf_tables_change *average, tf_table **out, tf_error *err);
+tf_status tf_tables_parameters(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
+                               tf_error *err);
+/* A column for every parameter of every model the program knows, so that the same table of
+ * every population and command has one header; blank where a model lacks the parameter. */
+tf_status tf_tables_draws(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
+                          tf_error *err);
+tf_status tf_tables_diagnostics(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
+                                tf_error *err);
+tf_status tf_tables_chains(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
+                           tf_error *err);
+
+/* Thresholds for flagging a sampler diagnostic. R-hat and ESS use TF_FIT_RHAT_MAX and
+ * TF_FIT_ESS_MIN (sampler/fit.h). A chain accepting fewer than 5 % of its proposals is
+ * sticky: random-walk PMMH on a few parameters with a well-tuned particle count accepts about
+ * 10-25 % (Sherlock, Thiery, Roberts & Rosenthal 2015, Annals of Statistics 43:238, section 3;
+ * the 5 % floor is common practice, no source). A log-likelihood SD above 2 makes the chain
+ * mix very poorly (Doucet, Pitt, Deligiannidis & Kohn 2015, Biometrika 102:295, section 4). */
+#define TF_TABLES_ACCEPT_MIN 0.05
+#define TF_TABLES_LOGLIK_SD_MAX 2.0
+
+#endif

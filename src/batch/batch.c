@@ -788,8 +788,8 @@ static tf_status about_table(const tf_batch *b, tf_table **out, tf_error *err)
         if (n && states[k] != TF_BATCH_DONE && st == TF_OK)
             st = tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err);
     }
-    snprintf(text, sizeof text, "%s/<population>/", b->o.root);
-    TRY(tf_table_add_item_text(t, "Tables of each population", text,
+    /* Named relative to this folder, so that the file is the same wherever the batch ran. */
+    TRY(tf_table_add_item_text(t, "Tables of each population", "<population>/ in this folder",
                                !b->workbooks         ? "CSV files"
                                : b->o.workbook_draws ? "CSV files and a workbook per population"
                                                      : "CSV files and a workbook per population (raw draws as CSV only)",
@@ -799,8 +799,7 @@ static tf_status about_table(const tf_batch *b, tf_table **out, tf_error *err)
     TRY(tf_table_add_item_text(t, "SHA-256 of the file", b->sha256, "identifies the exact file that was read", err));
     TRY(tf_table_add_item_text(t, "Program", "tallyfit " TF_VERSION, NULL, err));
     TRY(tf_table_add_item_text(t, "Summary written", b->date, NULL, err));
-    snprintf(text, sizeof text, "%s/%s", b->o.root, TF_BATCH_SETTINGS);
-    TRY(tf_table_add_item_text(t, "Settings", text,
+    TRY(tf_table_add_item_text(t, "Settings", TF_BATCH_SETTINGS " in this folder",
                                "every setting that changes a number; the same seed and settings give the same numbers, "
                                "whatever the number of threads or processes",
                                err));

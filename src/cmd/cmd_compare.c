@@ -199,7 +199,7 @@ static tf_status comparison_tables(const tf_comparison *c, const char *populatio
                                      .pareto_k = ev ? ev->main.pareto_k : NAN};
         }
     }
-    tf_tables_context ctx = {.population = population, .series = tf_comparison_series(c)};
+    tf_tables_context ctx = {.population = population, .series = tf_comparison_series(c), .omit_seconds = 1};
     if (st == TF_OK && !(out[0] = tf_compare_table(c, population, err)))
         st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
     if (st == TF_OK && (st = tf_tables_change_of(&ctx, m, n, NULL, &out[1], err)) == TF_OK &&

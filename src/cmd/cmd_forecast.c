@@ -428,7 +428,7 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
         return tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
     char base[256];
     tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
-    TRY(tf_table_set_summary_population(t, j->label[0] ? j->label : o->survey_path ? base : "fixed", err));
+    TRY(tf_table_set_summary_population(t, j->label[0] ? j->label : o->survey_path ? base : "", err));
     TRY(tf_table_add_heading(t, "Forecast", err));
     TRY(tf_table_add_item_text(t, "Survey", o->survey_path ? o->survey_path : "none", NULL, err));
     if (j->label[0])
@@ -536,7 +536,7 @@ static tf_status build_tables(const options *o, job *j, tf_error *err)
 {
     char base[256];
     tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
-    const char *population = j->label[0] ? j->label : o->survey_path ? base : "fixed";
+    const char *population = j->label[0] ? j->label : o->survey_path ? base : "";
     tf_projection_place place = {.population = population,
                                  .model = o->from == FROM_AVERAGE ? "average"
                                           : o->from == FROM_FIXED ? "fixed"

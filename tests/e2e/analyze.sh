@@ -37,17 +37,29 @@ print("\n".join(seen))
 PY
 }
 
-# Every file named in contents.csv exists, and every CSV file of the folder is named there.
+# Every file named in contents.csv exists, every CSV file of the folder and of its population
+# folders is named there, and every CSV header follows the convention of docs/tables.md: snake_case
+# names, population first.
 contents_complete() {
   /usr/bin/python3 - "$1" <<'PY'
-import csv, os, sys
+import csv, os, re, sys
 d = sys.argv[1]
 rows = list(csv.reader(open(os.path.join(d, "contents.csv"), newline="")))
 named = {r[1] for r in rows[1:]}
-have = {f for f in os.listdir(d) if f.endswith(".csv")} - {"contents.csv"}
+have = set()
+for root, dirs, files in os.walk(d):
+    for f in files:
+        if f.endswith(".csv"):
+            have.add(os.path.relpath(os.path.join(root, f), d))
+have -= {"contents.csv"}
 missing, extra = named - have, have - named
-if missing or extra or rows[0] != ["sheet", "file", "contents"]:
-    print("missing", sorted(missing), "extra", sorted(extra))
+bad_headers = []
+for f in have | {"contents.csv"}:
+    head = next(csv.reader(open(os.path.join(d, f), newline="")))
+    if head[0] != "population" or not all(re.fullmatch(r"[a-z][a-z0-9_]*", h) for h in head):
+        bad_headers.append((f, head[:4]))
+if missing or extra or bad_headers or rows[0] != ["population", "file", "sheet", "about"]:
+    print("missing", sorted(missing), "extra", sorted(extra), "bad headers", bad_headers)
     sys.exit(1)
 PY
 }
@@ -58,24 +70,26 @@ for f in surveys/*.csv; do
   "$T" analyze "$f" -o "$out" --threads 2 "${FAST[@]}" >"$tmp/stdout" 2>"$tmp/stderr"; rc=$?
   if [ $rc -ne 0 ]; then bad "$f: exit $rc, want 0"; cat "$tmp/stderr" >&2; continue; fi
   [ -s "$out/$name.xlsx" ] || bad "$f: no workbook $out/$name.xlsx"
-  [ -f "$out/$name/contents.csv" ] || { bad "$f: no contents.csv"; continue; }
-  contents_complete "$out/$name" || bad "$f: contents.csv and the CSV files disagree"
+  [ -f "$out/contents.csv" ] || { bad "$f: no contents.csv"; continue; }
+  contents_complete "$out" || bad "$f: contents.csv and the CSV files disagree"
   grep -qF "workbook: $out/$name.xlsx" "$tmp/stdout" || bad "$f: stdout does not name the workbook"
-  ls -a "$out" "$out/$name" | grep -q '\.tmp-' && bad "$f: temporary files left behind"
+  ls -a "$out" | grep -q '\.tmp-' && bad "$f: temporary files left behind"
   mapfile -t want < <(labels "$f")
   n=${#want[@]}
-  rows=$(($(wc -l <"$out/$name/all-populations.csv") - 1))
-  [ "$rows" -eq "$n" ] || bad "$f: all-populations.csv has $rows rows, want $n"
+  rows=$(($(wc -l <"$out/populations.csv") - 1))
+  [ "$rows" -eq "$n" ] || bad "$f: populations.csv has $rows rows, want $n"
+  [ -f "$out/summary.csv" ] || bad "$f: no summary.csv"
+  roles="abundance projection risk declines models change parameters diagnostics chains draws"
   if [ "$n" -gt 1 ]; then
     for lab in "${want[@]}"; do
-      for role in counts projection risk declines models change parameters diagnostics draws; do
-        [ -f "$out/$name/$lab-$role.csv" ] || bad "$f: no $lab-$role.csv"
+      for role in $roles; do
+        [ -f "$out/$lab/$role.csv" ] || bad "$f: no $lab/$role.csv"
       done
       grep -qx "$lab" "$tmp/stdout" || bad "$f: stdout has no block for $lab"
     done
   else
-    for role in counts projection risk declines models change parameters diagnostics draws; do
-      [ -f "$out/$name/$role.csv" ] || bad "$f: no $role.csv"
+    for role in $roles; do
+      [ -f "$out/$role.csv" ] || bad "$f: no $role.csv"
     done
   fi
   grep -q "not a formal status listing" "$tmp/stdout" || bad "$f: the caution is not printed"
@@ -106,18 +120,18 @@ if [ -z "$slow" ]; then
     bad "analyze --workbook-draws failed"
   sheet_names "$tmp/wd0/heron-colony.xlsx" >"$tmp/names0" || bad "cannot read the default workbook"
   sheet_names "$tmp/wd1/heron-colony.xlsx" >"$tmp/names1" || bad "cannot read the --workbook-draws workbook"
-  grep -qx "Counts" "$tmp/names0" || bad "default workbook: no Counts sheet: $(tr '\n' ' ' <"$tmp/names0")"
+  grep -qx "Abundance" "$tmp/names0" || bad "default workbook: no Abundance sheet: $(tr '\n' ' ' <"$tmp/names0")"
   grep -qx "Draws" "$tmp/names0" && bad "default workbook has a Draws sheet"
   grep -qx "Draws" "$tmp/names1" || bad "--workbook-draws: no Draws sheet: $(tr '\n' ' ' <"$tmp/names1")"
   for d in wd0 wd1; do
-    [ "$(wc -l <"$tmp/$d/heron-colony/draws.csv")" -gt 100 ] || bad "$d: draws.csv missing or short"
+    [ "$(wc -l <"$tmp/$d/draws.csv")" -gt 100 ] || bad "$d: draws.csv missing or short"
   done
-  grep -q '^,draws\.csv,' "$tmp/wd0/heron-colony/contents.csv" || bad "default contents.csv does not list draws.csv as CSV only"
-  grep -q '^Draws,draws\.csv,' "$tmp/wd1/heron-colony/contents.csv" || bad "--workbook-draws: contents.csv lacks the Draws sheet"
-  grep -q 'CSV only: draws\.csv in the folder heron-colony/' "$tmp/wd0/heron-colony/summary.csv" ||
+  grep -q '^heron-colony,draws\.csv,,' "$tmp/wd0/contents.csv" || bad "default contents.csv does not list draws.csv as CSV only"
+  grep -q '^heron-colony,draws\.csv,Draws,' "$tmp/wd1/contents.csv" || bad "--workbook-draws: contents.csv lacks the Draws sheet"
+  grep -q 'CSV only: draws\.csv in the folder of this workbook' "$tmp/wd0/summary.csv" ||
     bad "the first page does not say where the draws are"
   # The same draws either way: only where they are shown changes.
-  cmp -s "$tmp/wd0/heron-colony/draws.csv" "$tmp/wd1/heron-colony/draws.csv" || bad "--workbook-draws changed draws.csv"
+  cmp -s "$tmp/wd0/draws.csv" "$tmp/wd1/draws.csv" || bad "--workbook-draws changed draws.csv"
 fi
 
 # An index that is not a whole count: refused unless --estimates says so, and then only the
@@ -129,11 +143,11 @@ grep -qF -- "--estimates" "$tmp/stderr" || bad "index.csv without --estimates: t
 [ -e "$tmp/frac" ] && bad "index.csv without --estimates: something was written"
 "$T" analyze tests/data/analyze/index.csv --estimates -o "$tmp/frac" -q --threads 2 "${FAST[@]}" 2>"$tmp/stderr" ||
   { bad "index.csv: exit $?"; cat "$tmp/stderr" >&2; }
-if [ -f "$tmp/frac/index/models.csv" ]; then
-  grep -q '+lognormal,.*,fitted,' "$tmp/frac/index/models.csv" || bad "index.csv: no log-normal model fitted"
-  grep -q '+poisson,.*,fitted,' "$tmp/frac/index/models.csv" && bad "index.csv: a count model was fitted to fractions"
-  grep -qF "Counts,\"read as estimates (--estimates), not whole counts\",so only counting-error models of continuous" \
-    "$tmp/frac/index/summary.csv" || bad "index.csv: the first page does not say the counts are estimates"
+if [ -f "$tmp/frac/models.csv" ]; then
+  grep -q '+lognormal,.*,fitted,' "$tmp/frac/models.csv" || bad "index.csv: no log-normal model fitted"
+  grep -q '+poisson,.*,fitted,' "$tmp/frac/models.csv" && bad "index.csv: a count model was fitted to fractions"
+  grep -qF ",Counts,\"read as estimates (--estimates), not whole counts\",so only counting-error models of continuous" \
+    "$tmp/frac/summary.csv" || bad "index.csv: the first page does not say the counts are estimates"
 else
   bad "index.csv: no models.csv"
 fi
@@ -150,8 +164,8 @@ grep -q "no candidate counting-error model suits the counts" "$tmp/stderr" || ba
 grep -qF "tallyfit analyze: warning: tests/data/good/outlier-extra-zero.csv:18: year 2010: count 3390 is 9.3 times" \
   "$tmp/stderr" || bad "outlier: no warning: $(head -c 300 "$tmp/stderr")"
 grep -qF "Count to check,year 2010: count 3390 is 9.3 times the median of the neighbouring years (362.2),line 18 of the survey file" \
-  "$tmp/outlier/outlier-extra-zero/summary.csv" || bad "outlier: not among the first page's cautions"
-grep -q '^2010,3390,' "$tmp/outlier/outlier-extra-zero/counts.csv" || bad "outlier: the count was not kept as it is"
+  "$tmp/outlier/summary.csv" || bad "outlier: not among the first page's cautions"
+grep -q '^outlier-extra-zero,average,2010,3390,' "$tmp/outlier/abundance.csv" || bad "outlier: the count was not kept as it is"
 
 # One population of several, and the same tables for 1 and 2 threads (except the seconds each
 # fit took, a wall-clock time).
@@ -161,22 +175,24 @@ for t in "${threads[@]}"; do
   "$T" analyze surveys/three-herds.csv --population river-flats -o "$tmp/t$t" -q --threads $t "${FAST[@]}" ||
     bad "--population river-flats --threads $t: exit $?"
 done
-one=$tmp/t${threads[0]}/three-herds
-[ "$(($(wc -l <"$one/all-populations.csv") - 1))" -eq 1 ] || bad "--population: not one population"
+# Chosen from several, the population keeps its folder, as it would among the others.
+one=$tmp/t${threads[0]}
+[ "$(($(wc -l <"$one/populations.csv") - 1))" -eq 1 ] || bad "--population: not one population"
+[ -f "$one/river-flats/draws.csv" ] || bad "--population: no river-flats/draws.csv"
 ls "$one" | grep -q '^north-valley' && bad "--population: other populations written"
 if [ ${#threads[@]} -eq 2 ]; then
-  for f in "$tmp/t1/three-herds"/*.csv; do
-    b=$(basename "$f")
+  for f in "$tmp/t1"/*.csv "$tmp/t1"/river-flats/*.csv; do
+    b=${f#"$tmp/t1/"}
     if [[ $b == *diagnostics.csv ]]; then
-      /usr/bin/python3 - "$f" "$tmp/t2/three-herds/$b" <<'PY' || bad "$b differs between 1 and 2 threads"
+      /usr/bin/python3 - "$f" "$tmp/t2/$b" <<'PY' || bad "$b differs between 1 and 2 threads"
 import csv, sys
 a, b = (list(csv.reader(open(p, newline=""))) for p in sys.argv[1:])
-k = a[0].index("Seconds")
+k = a[0].index("seconds")
 strip = lambda rows: [r[:k] + r[k + 1:] for r in rows]
 sys.exit(strip(a) != strip(b))
 PY
     else
-      cmp -s "$f" "$tmp/t2/three-herds/$b" || bad "$b differs between 1 and 2 threads"
+      cmp -s "$f" "$tmp/t2/$b" || bad "$b differs between 1 and 2 threads"
     fi
   done
 fi
@@ -216,7 +232,7 @@ ln -s colony.csv "$tmp/p/colony.xlsx"
 "$T" analyze "$tmp/p/colony.csv" -o "$tmp/p" "${FAST[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 2 ] || bad "workbook onto the survey: exit $rc, want 2"
 cmp -s "$tmp/p/colony.csv" surveys/heron-colony.csv || bad "the survey was changed"
-[ -e "$tmp/p/colony" ] && bad "CSV folder written although the workbook was refused"
+[ -e "$tmp/p/summary.csv" ] && bad "CSV tables written although the workbook was refused"
 
 # An output folder that cannot be made: exit 1, nothing written.
 touch "$tmp/file"

@@ -40,8 +40,8 @@ status_of() {  # summary.csv label
   /usr/bin/python3 - "$1" "$2" <<'PY'
 import csv, sys
 for r in csv.DictReader(open(sys.argv[1], newline="")):
-    if r["Population"] == sys.argv[2]:
-        print(r["Status"] + "|" + r["Reason"])
+    if r["population"] == sys.argv[2]:
+        print(r["status"] + "|" + r["reason"])
 PY
 }
 
@@ -50,32 +50,42 @@ PY
 [ $rc -eq 0 ] || { bad "1 thread: exit $rc"; cat "$tmp/err1" >&2; }
 "$T" analyze "$tmp/scheme.csv" --batch -o "$tmp/t2" --threads 2 "${FAST[@]}" >"$tmp/out2" 2>"$tmp/err2"; rc=$?
 [ $rc -eq 0 ] || { bad "2 threads: exit $rc"; cat "$tmp/err2" >&2; }
-B1=$tmp/t1/scheme B2=$tmp/t2/scheme
+B1=$tmp/t1 B2=$tmp/t2
 same_files "$B1" "$B2" "1 thread vs 2 threads"
 grep -q "batch: $N populations: $N done, 0 failed" "$tmp/out2" || bad "stdout lacks the batch line: $(head -c 300 "$tmp/out2")"
 [ "$(grep -c ': done in' "$tmp/err2")" -eq $N ] || bad "stderr has not one line per population"
 [ -s "$tmp/t2/scheme.xlsx" ] || bad "no summary workbook"
 [ -s "$B2/timings.csv" ] || bad "no timings.csv"
-[ "$(($(wc -l <"$B2/all-populations.csv") - 1))" -eq $N ] || bad "all-populations.csv has not $N rows"
+[ "$(($(wc -l <"$B2/populations.csv") - 1))" -eq $N ] || bad "populations.csv has not $N rows"
+[ -s "$B2/summary.csv" ] || bad "no summary.csv"
 
-# The tables concatenate: every population's summary row under the one header, in file order,
-# is the summary; every counts.csv has the same header and the population's label first.
-{ head -n 1 "$B2/all-populations.csv"; for d in "$B2"/populations/*/; do tail -n +2 "$d/summary-row.csv"; done; } >"$tmp/cat.csv"
-cmp -s "$tmp/cat.csv" "$B2/all-populations.csv" || bad "the summary rows do not concatenate into all-populations.csv"
-h=$(head -n 1 "$B2/populations/site-0001/counts.csv")
-for d in "$B2"/populations/*/; do
+# The tables concatenate: every population's row of the table of populations under the one
+# header, in file order, is the batch's table; every table of a population has the header the
+# same table has everywhere (docs/tables.md), with the population's label first in every row.
+{ head -n 1 "$B2/populations.csv"; for d in "$B2"/*/; do tail -n +2 "$d/populations.csv"; done; } >"$tmp/cat.csv"
+cmp -s "$tmp/cat.csv" "$B2/populations.csv" || bad "the population rows do not concatenate into populations.csv"
+for t in abundance projection risk declines models change parameters diagnostics chains draws summary; do
+  h=$(head -n 1 "$B2/site-0001/$t.csv")
+  case "$h" in population,*) ;; *) bad "$t.csv does not start with a population column: $h" ;; esac
+  for d in "$B2"/*/; do
+    lab=$(basename "$d")
+    [ "$(head -n 1 "$d/$t.csv")" = "$h" ] || bad "$lab: $t.csv has another header"
+    # The first page's lines about the whole file (cautions, provenance) name no population.
+    want=$lab
+    [ "$t" = summary ] && want=$(printf '\n%s' "$lab")
+    [ "$(tail -n +2 "$d/$t.csv" | cut -d, -f1 | sort -u)" = "$want" ] || bad "$lab: $t.csv rows not labelled $lab"
+  done
+done
+for d in "$B2"/*/; do
   lab=$(basename "$d")
   [ -f "$d/finished.txt" ] || bad "$lab: no marker"
-  [ "$(head -n 1 "$d/counts.csv")" = "$h" ] || bad "$lab: counts.csv has another header"
-  [ "$(tail -n +2 "$d/counts.csv" | cut -d, -f1 | sort -u)" = "$lab" ] || bad "$lab: counts.csv rows not labelled $lab"
   [ -f "$d/$lab.xlsx" ] || bad "$lab: no workbook (the batch is below the limit)"
 done
-case "$h" in Population,*) ;; *) bad "counts.csv does not start with a Population column: $h" ;; esac
 # The per-population workbooks leave the raw draws to draws.csv (no --workbook-draws), and the
 # settings record says so, since the option changes what a resumed batch would write.
-[ -s "$B2/populations/site-0001/draws.csv" ] || bad "site-0001: no draws.csv"
-/usr/bin/python3 -c 'import openpyxl, sys; n = openpyxl.load_workbook(sys.argv[1], read_only=True).sheetnames; sys.exit("Draws" in n or "Counts" not in n)' \
-  "$B2/populations/site-0001/site-0001.xlsx" || bad "site-0001.xlsx: a Draws sheet without --workbook-draws, or no Counts sheet"
+[ -s "$B2/site-0001/draws.csv" ] || bad "site-0001: no draws.csv"
+/usr/bin/python3 -c 'import openpyxl, sys; n = openpyxl.load_workbook(sys.argv[1], read_only=True).sheetnames; sys.exit("Draws" in n or "Abundance" not in n)' \
+  "$B2/site-0001/site-0001.xlsx" || bad "site-0001.xlsx: a Draws sheet without --workbook-draws, or no Abundance sheet"
 grep -qx "workbook-draws no" "$B2/settings.txt" || bad "settings.txt lacks 'workbook-draws no'"
 
 # The summary workbook: one row per population below the header and legend, numbers as
@@ -92,7 +102,8 @@ assert len(data) == n, (len(data), n)
 assert ws.auto_filter.ref, "no autofilter"
 col = rows[hdr].index("Abundance")
 assert all(isinstance(r[col], (int, float)) for r in data), "abundance not numeric"
-assert "About" in wb.sheetnames
+# The first page first, with the cautions, as in every workbook.
+assert wb.sheetnames[0] == "Summary", wb.sheetnames
 PY
 
 # ---- 3 MPI processes (2 workers and the manager) ----
@@ -104,11 +115,11 @@ elif [ -x "$M" ] && command -v mpirun >/dev/null; then
   [ "$(id -u)" -eq 0 ] && export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
   mpirun --oversubscribe -n 3 "$M" analyze "$tmp/scheme.csv" -o "$tmp/m3" -q "${FAST[@]}" >"$tmp/outm" 2>"$tmp/errm"; rc=$?
   [ $rc -eq 0 ] || { bad "mpirun -n 3: exit $rc"; tail -20 "$tmp/errm" >&2; }
-  same_files "$B1" "$tmp/m3/scheme" "1 thread vs 3 MPI processes"
+  same_files "$B1" "$tmp/m3" "1 thread vs 3 MPI processes"
   # A single process of the MPI build runs the threads as the plain build does.
   "$M" analyze "$tmp/scheme.csv" --batch -o "$tmp/m1" --threads 2 -q "${FAST[@]}" 2>"$tmp/errm1" ||
     bad "MPI build without mpirun: exit $?"
-  same_files "$B1" "$tmp/m1/scheme" "plain vs MPI build without mpirun"
+  same_files "$B1" "$tmp/m1" "plain vs MPI build without mpirun"
 elif [ "${CI:-}" ]; then
   bad "CI must run the MPI part: no MPI build ($M) or no mpirun"
 else
@@ -123,7 +134,7 @@ for y in 2001 2002 2003 2004 2005 2006; do echo "index-z,$y,$((y % 3)).5,1"; don
 sed -i 's/^index-z,2003,.*/index-z,2003,0,1/' "$tmp/mixed.csv"
 "$T" analyze "$tmp/mixed.csv" --batch -o "$tmp/bad" --threads 2 --workbook-limit 0 "${FAST[@]}" >"$tmp/outb" 2>"$tmp/errb"; rc=$?
 [ $rc -eq 1 ] || bad "bad data: exit $rc, want 1"
-S=$tmp/bad/mixed/all-populations.csv
+S=$tmp/bad/populations.csv
 [ "$(($(wc -l <"$S") - 1))" -eq $((N + 1)) ] || bad "bad data: the summary has not every population"
 case "$(status_of "$S" site-0002)" in
   "bad data|line $bad_line, field 3: count 'abc' is not a number"*) ;;
@@ -135,11 +146,11 @@ case "$(status_of "$S" index-z)" in
 esac
 grep -q "site-0002: bad data: line $bad_line" "$tmp/outb" || bad "bad data: stdout does not list site-0002"
 grep -q "could not be analysed" "$tmp/errb" || bad "bad data: stderr does not say that some failed"
-ls "$tmp"/bad/mixed/populations/*/*.xlsx >/dev/null 2>&1 && bad "--workbook-limit 0 wrote workbooks"
+ls "$tmp"/bad/*/*.xlsx >/dev/null 2>&1 && bad "--workbook-limit 0 wrote workbooks"
 # The others are done, with the numbers they have in the clean batch.
-for lab in $(cut -d, -f1 "$B1/all-populations.csv" | tail -n +2); do
+for lab in $(cut -d, -f1 "$B1/populations.csv" | tail -n +2); do
   [ "$lab" = site-0002 ] && continue
-  grep "^$lab," "$B1/all-populations.csv" >"$tmp/want"
+  grep "^$lab," "$B1/populations.csv" >"$tmp/want"
   grep "^$lab," "$S" >"$tmp/got"
   cmp -s "$tmp/want" "$tmp/got" || bad "bad data: $lab's row differs from the clean batch"
 done
@@ -148,33 +159,33 @@ done
 "$T" analyze "$tmp/scheme.csv" --batch -o "$tmp/r" --threads 2 -q "${FAST[@]}" 2>"$tmp/errr" &
 pid=$!
 for _ in $(seq 1 600); do
-  ls "$tmp"/r/scheme/populations/*/finished.txt >/dev/null 2>&1 && break
+  ls "$tmp"/r/*/finished.txt >/dev/null 2>&1 && break
   sleep 0.1
 done
 kill -TERM $pid
 wait $pid; rc=$?
-n_done=$(ls "$tmp"/r/scheme/populations/*/finished.txt 2>/dev/null | wc -l)
+n_done=$(ls "$tmp"/r/*/finished.txt 2>/dev/null | wc -l)
 if [ $rc -eq 0 ]; then
   echo "batch.sh: the batch finished before SIGTERM arrived; the resume part checks less"
 else
   [ $rc -eq 130 ] || bad "SIGTERM: exit $rc, want 130"
   grep -q "the same command continues" "$tmp/errr" || bad "SIGTERM: stderr does not say how to go on"
-  grep -q "not done" "$tmp/r/scheme/all-populations.csv" || bad "SIGTERM: the summary does not show what is left"
+  grep -q "not done" "$tmp/r/populations.csv" || bad "SIGTERM: the summary does not show what is left"
   [ "$n_done" -ge 1 ] && [ "$n_done" -lt $N ] || echo "batch.sh: $n_done of $N finished at SIGTERM"
 fi
-ls -a "$tmp"/r/scheme "$tmp"/r/scheme/populations/* | grep -q '\.tmp-' && bad "SIGTERM: temporary files left behind"
+ls -a "$tmp"/r "$tmp"/r/*/ | grep -q '\.tmp-' && bad "SIGTERM: temporary files left behind"
 "$T" analyze "$tmp/scheme.csv" --batch -o "$tmp/r" --threads 2 "${FAST[@]}" >/dev/null 2>"$tmp/errr2" ||
   bad "resume: exit $?"
 [ $rc -eq 0 ] || grep -q "settled by an earlier run" "$tmp/errr2" || bad "resume: the earlier populations were redone"
 [ "$(grep -c ': done in' "$tmp/errr2")" -eq $((N - n_done)) ] || bad "resume: not exactly the $((N - n_done)) unfinished populations were run"
-same_files "$B1" "$tmp/r/scheme" "uninterrupted vs resumed"
+same_files "$B1" "$tmp/r" "uninterrupted vs resumed"
 
 # ---- other settings in the same folder ----
 "$T" analyze "$tmp/scheme.csv" --batch -o "$tmp/t1" --seed 2 "${FAST[@]}" >"$tmp/outs" 2>"$tmp/errs"; rc=$?
 [ $rc -eq 2 ] || bad "other seed: exit $rc, want 2"
 grep -q "other settings: it has 'seed 1', this run has 'seed 2'" "$tmp/errs" || bad "other seed: $(head -c 300 "$tmp/errs")"
 grep -q -- "--fresh" "$tmp/errs" || bad "other seed: the hint does not name --fresh"
-cmp -s "$B1/all-populations.csv" "$B2/all-populations.csv" || bad "other seed: the refused run changed the folder"
+cmp -s "$B1/populations.csv" "$B2/populations.csv" || bad "other seed: the refused run changed the folder"
 # --fresh: a small batch of two populations takes over the folder of the mixed one.
 head -n 2 "$tmp/scheme.csv" >"$tmp/two.csv"
 grep -E '^site-000[12],' "$tmp/scheme.csv" >>"$tmp/two.csv"
@@ -183,9 +194,10 @@ cp "$tmp/two.csv" "$tmp/mixed.csv"
 [ $rc -eq 2 ] || bad "another survey in the folder: exit $rc, want 2"
 "$T" analyze "$tmp/mixed.csv" --batch --fresh -o "$tmp/bad" --threads 2 -q "${FAST[@]}" 2>"$tmp/errf" ||
   { bad "--fresh: exit $?"; cat "$tmp/errf" >&2; }
-[ "$(ls "$tmp/bad/mixed/populations" | tr '\n' ' ')" = "site-0001 site-0002 " ] ||
-  bad "--fresh: the earlier populations' folders stay: $(ls "$tmp/bad/mixed/populations" | tr '\n' ' ')"
-cmp -s <(grep '^site-0001,' "$B1/all-populations.csv") <(grep '^site-0001,' "$tmp/bad/mixed/all-populations.csv") ||
+folders() { find "$1" -mindepth 1 -maxdepth 1 -type d -printf '%f\n' | sort | tr '\n' ' '; }
+[ "$(folders "$tmp/bad")" = "site-0001 site-0002 " ] ||
+  bad "--fresh: the earlier populations' folders stay: $(folders "$tmp/bad")"
+cmp -s <(grep '^site-0001,' "$B1/populations.csv") <(grep '^site-0001,' "$tmp/bad/populations.csv") ||
   bad "--fresh: site-0001 differs"
 
 # ---- command line ----

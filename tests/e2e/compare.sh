@@ -27,7 +27,7 @@ fi
 heron_models=exponential,gompertz heron_counts="6 2" heron_excluded=gompertz+lognormal
 if [ -n "${TF_VALGRIND:-}" ]; then heron_models=exponential heron_counts="3 1" heron_excluded=exponential+lognormal; fi
 
-want_header='model,growth,observation,likelihood_of,status,log_ml,log_ml_se,log_ml_check,log_ml_check_se,check_z,bayes_factor,ln_bf,ln_bf_se,two_ln_b,reading,prior_weight,post_prob,post_prob_se,pareto_k,pareto_k_check,weight_ess,particles,particles_mean,rhat_max,ess_min,note'
+want_header='population,model,growth,observation,likelihood_of,status,log_ml,log_ml_mcse,log_ml_check,log_ml_check_mcse,check_z,bayes_factor,ln_bf,ln_bf_mcse,two_ln_b,reading,prior_prob,model_prob,model_prob_mcse,pareto_k,pareto_k_check,weight_ess,particles,particles_mean,max_r_hat,min_ess,note'
 
 # Checks one comparison CSV with Python's csv module: header, fitted rows complete, the best
 # model first with Bayes factor 1, probabilities summing to 1, every excluded row with a reason.
@@ -52,14 +52,14 @@ if len({x["likelihood_of"] for x in fitted}) > 1:
     problems.append("fitted rows on different likelihood scales")
 excluded = [x for x in rows if x["status"] == "excluded"]
 for x in fitted:
-    keys = ["log_ml", "log_ml_se", "log_ml_check", "bayes_factor", "post_prob", "post_prob_se"]
+    keys = ["log_ml", "log_ml_mcse", "log_ml_check", "bayes_factor", "model_prob", "model_prob_mcse"]
     if not short:
-        keys += ["pareto_k", "rhat_max", "ess_min"]
+        keys += ["pareto_k", "max_r_hat", "min_ess"]
     for k in keys:
         # Runs this short can leave a tail ESS undefined (a quantile indicator that one split
         # chain never crosses); that is allowed only when R-hat shows the chains apart, so that
         # the table still flags the fit.
-        if k == "ess_min" and not x[k] and x["rhat_max"] and float(x["rhat_max"]) > 1.1:
+        if k == "min_ess" and not x[k] and x["max_r_hat"] and float(x["max_r_hat"]) > 1.1:
             continue
         if not x[k] or not math.isfinite(float(x[k])):
             problems.append(f"{x['model']}: {k} = {x[k]!r}")
@@ -69,8 +69,8 @@ if fitted:
     lm = [float(x["log_ml"]) for x in fitted]
     if lm != sorted(lm, reverse=True):
         problems.append("fitted rows not in decreasing log_ml")
-    s = sum(float(x["post_prob"]) for x in fitted)
-    if any(x["log_ml"] or x["post_prob"] for x in failed):
+    s = sum(float(x["model_prob"]) for x in fitted)
+    if any(x["log_ml"] or x["model_prob"] for x in failed):
         problems.append("a failed row has numbers")
     if abs(s - 1) > 1e-9:
         problems.append(f"posterior probabilities sum to {s}")
@@ -94,11 +94,11 @@ out="$tmp/heron"
 "$T" compare surveys/heron-colony.csv --models $heron_models -o "$out" "${SHORT[@]}" --threads 2 \
   >"$tmp/stdout" 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "heron: exit $rc"; cat "$tmp/stderr" >&2; }
-csv="$out/model-comparison.csv"
+csv="$out/models.csv"
 if [ -f "$csv" ]; then
   counts=$(check_csv "$csv") || bad "heron: $counts"
   [ "$counts" = "$heron_counts" ] || bad "heron: fitted/excluded counts '$counts', want '$heron_counts'"
-  grep -q '^exponential+lognormal,exponential,lognormal,continuous amounts,excluded,.*does not compare with the count models' "$csv" ||
+  grep -q '^heron-colony,exponential+lognormal,exponential,lognormal,continuous amounts,excluded,.*does not compare with the count models' "$csv" ||
     bad "heron: the continuous log-normal is not excluded with its reason"
 else
   bad "heron: no $csv"
@@ -106,13 +106,15 @@ fi
 grep -q 'likelihoods are probabilities of whole counts' "$tmp/stdout" || bad "heron: stdout does not name the scale"
 grep -q "excluded: $heron_excluded: " "$tmp/stdout" || bad "heron: stdout does not list the excluded models"
 grep -q 'Kass & Raftery (1995)' "$tmp/stdout" || bad "heron: no Kass & Raftery reading printed"
-grep -q "file: $csv" "$tmp/stdout" || bad "heron: stdout does not name the file"
+grep -q "files: $out/ (models," "$tmp/stdout" || bad "heron: stdout does not name the files"
 
 # 2. The same seed with one thread: the same file.
 if [ -z "${TF_VALGRIND:-}" ]; then
   "$T" compare surveys/heron-colony.csv --models $heron_models -o "$tmp/heron1" "${SHORT[@]}" --threads 1 \
     --quiet 2>/dev/null || bad "heron, 1 thread: failed"
-  cmp -s "$csv" "$tmp/heron1/model-comparison.csv" || bad "heron: results differ between 1 and 2 threads"
+  for t in models change parameters diagnostics chains draws; do
+    cmp -s "$out/$t.csv" "$tmp/heron1/$t.csv" || bad "heron: $t.csv differs between 1 and 2 threads"
+  done
 fi
 
 # 3. An index survey (fractional, positive): only the continuous log-normal can be fitted.
@@ -136,10 +138,10 @@ grep -qF "tallyfit compare: error: $tmp/index.csv:2:2: count 12.5 is not a whole
 [ -e "$tmp/index" ] && bad "index without --estimates: something was written"
 "$T" compare "$tmp/index.csv" --estimates --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "index: exit $rc"; cat "$tmp/stderr" >&2; }
-counts=$(check_csv "$tmp/index/model-comparison.csv") || bad "index: $counts"
+counts=$(check_csv "$tmp/index/models.csv") || bad "index: $counts"
 [ "$counts" = "1 0" ] || bad "index: fitted/excluded counts '$counts', want '1 0'"
-grep -q '^ricker+lognormal,' "$tmp/index/model-comparison.csv" || bad "index: ricker+lognormal not compared"
-grep -q '^ricker+poisson,' "$tmp/index/model-comparison.csv" && bad "index: a count model was listed under --estimates"
+grep -q '^index,ricker+lognormal,' "$tmp/index/models.csv" || bad "index: ricker+lognormal not compared"
+grep -q '^index,ricker+poisson,' "$tmp/index/models.csv" && bad "index: a count model was listed under --estimates"
 "$T" compare "$tmp/index.csv" --estimates --obs negbin -o "$tmp/index2" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 2 ] || bad "--estimates --obs negbin: exit $rc, want 2"
 grep -qF -- "--obs negbin is a model of whole counts" "$tmp/stderr" || bad "--estimates --obs negbin: $(head -n 1 "$tmp/stderr")"
@@ -171,11 +173,11 @@ done
 # 5. Prior model weights enter the probabilities: ricker weighted 3 against exponential 1.
 "$T" compare surveys/heron-colony.csv --models exponential,ricker --obs poisson -o "$tmp/w" "${SHORT[@]}" \
   --model-weights ricker=3 --quiet 2>/dev/null || bad "weights: failed"
-/usr/bin/python3 - "$tmp/w/model-comparison.csv" <<'PY' || bad "weights: prior weights not 0.25 / 0.75"
+/usr/bin/python3 - "$tmp/w/models.csv" <<'PY' || bad "weights: prior weights not 0.25 / 0.75"
 import csv, sys
 rows = {r["model"]: r for r in csv.DictReader(open(sys.argv[1], newline=""))}
-ok = abs(float(rows["exponential+poisson"]["prior_weight"]) - 0.25) < 1e-12 and \
-     abs(float(rows["ricker+poisson"]["prior_weight"]) - 0.75) < 1e-12
+ok = abs(float(rows["exponential+poisson"]["prior_prob"]) - 0.25) < 1e-12 and \
+     abs(float(rows["ricker+poisson"]["prior_prob"]) - 0.75) < 1e-12
 sys.exit(0 if ok else 1)
 PY
 

@@ -30,18 +30,31 @@ expect() {  # CODE PATTERN CMD...: exit code CODE and PATTERN (grep -E) on stder
 # Files, headers and row counts.
 "$T" fit "$tmp/s.csv" --model exponential -o "$tmp/one" $short --quiet --threads 2 2>/dev/null ||
   bad "fit failed: $(cat "$tmp/one" 2>&1 | head -c 200)"
-for t in draws parameters abundance trend sampler; do
-  [ -s "$tmp/one/exponential+poisson-$t.csv" ] || bad "missing exponential+poisson-$t.csv"
+for t in draws parameters abundance change diagnostics chains; do
+  [ -s "$tmp/one/$t.csv" ] || bad "missing $t.csv"
+  # The convention of docs/tables.md: snake_case names, population first, then the model.
+  head -n 1 "$tmp/one/$t.csv" | tr -d '\r' | grep -qE '^population,model(,[a-z][a-z0-9_]*)+$' ||
+    bad "$t.csv header: $(head -n 1 "$tmp/one/$t.csv")"
 done
-[ "$(head -n 1 "$tmp/one/exponential+poisson-draws.csv" | tr -d '\r')" = "chain,iteration,r,sigma,loglik" ] ||
-  bad "draws header: $(head -n 1 "$tmp/one/exponential+poisson-draws.csv")"
+# The draws have a column for every parameter the program knows (blank where the model lacks it),
+# so that the draws of every command and model share one header.
+head -n 1 "$tmp/one/draws.csv" | tr -d '\r' | grep -q '^population,model,chain,draw,log_likelihood,r,k,' ||
+  bad "draws header: $(head -n 1 "$tmp/one/draws.csv")"
+grep -q '^s,exponential+poisson,1,1,' "$tmp/one/draws.csv" || bad "draws: no row of chain 1 named by population and model"
 n_iter=$(echo "$short" | sed 's/--iterations \([0-9]*\).*/\1/')
 want=$((4 * (n_iter / 4) + 1))   # 4 chains, every 4th iteration kept
-[ "$(wc -l <"$tmp/one/exponential+poisson-draws.csv")" -eq $want ] || bad "draws: want $want lines"
-[ "$(head -n 1 "$tmp/one/exponential+poisson-abundance.csv" | tr -d '\r')" = "year,count,effort,median,q25,q75,q2.5,q97.5" ] ||
+[ "$(wc -l <"$tmp/one/draws.csv")" -eq $want ] || bad "draws: want $want lines"
+[ "$(head -n 1 "$tmp/one/abundance.csv" | tr -d '\r')" = \
+  "population,model,year,count,effort,count_per_effort,unit,median,lower_50,upper_50,lower_95,upper_95" ] ||
   bad "abundance header"
-[ "$(wc -l <"$tmp/one/exponential+poisson-abundance.csv")" -eq 16 ] || bad "abundance: want 15 years"
-grep -q '^r,' "$tmp/one/exponential+poisson-parameters.csv" || bad "parameters: no row for r"
+[ "$(wc -l <"$tmp/one/abundance.csv")" -eq 16 ] || bad "abundance: want 15 years"
+grep -q '^s,exponential+poisson,r,' "$tmp/one/parameters.csv" || bad "parameters: no row for r"
+# The change is a fraction a year, as in every table (the simulated growth rate is 0.02).
+/usr/bin/python3 - "$tmp/one/change.csv" <<'PY' || bad "change.csv: not a fraction: $(cat "$tmp/one/change.csv")"
+import csv, sys
+r = next(csv.DictReader(open(sys.argv[1])))
+sys.exit(0 if abs(float(r["median"])) < 0.5 and r["model"] == "exponential+poisson" else 1)
+PY
 # The stdout summary is silent with --quiet, present without.
 "$T" fit "$tmp/s.csv" --model exponential -o "$tmp/one" $short --threads 2 >"$tmp/sum" 2>/dev/null
 grep -q "average change" "$tmp/sum" || bad "summary lacks the average change"
@@ -55,12 +68,12 @@ for f in "$tmp"/t1/*/*.csv; do
   g="$tmp/t3/${f#"$tmp"/t1/}"
   cmp -s "$f" "$g" || bad "threads 1 and 3 differ: ${f#"$tmp"/t1/}"
 done
-[ "$(ls "$tmp"/t1/a/*.csv "$tmp"/t1/b/*.csv | wc -l)" -eq 10 ] || bad "two populations: want 5 files in each of a/ and b/"
+[ "$(ls "$tmp"/t1/a/*.csv "$tmp"/t1/b/*.csv | wc -l)" -eq 12 ] || bad "two populations: want 6 files in each of a/ and b/"
 "$T" fit "$tmp/two.csv" --model exponential -o "$tmp/pb" $short --quiet --population b 2>/dev/null || bad "--population b failed"
-cmp -s "$tmp/t1/b/exponential+poisson-draws.csv" "$tmp/pb/b/exponential+poisson-draws.csv" ||
+cmp -s "$tmp/t1/b/draws.csv" "$tmp/pb/b/draws.csv" ||
   bad "--population b differs from b fitted with a"
 "$T" fit "$tmp/two.csv" --model exponential -o "$tmp/s9" $short --quiet --seed 9 --population b 2>/dev/null
-cmp -s "$tmp/pb/b/exponential+poisson-draws.csv" "$tmp/s9/b/exponential+poisson-draws.csv" &&
+cmp -s "$tmp/pb/b/draws.csv" "$tmp/s9/b/draws.csv" &&
   bad "--seed 9 gives the same draws as seed 1"
 
 # Interrupted runs stop within a second and leave nothing: no directory, no file, no temporary.
@@ -111,13 +124,13 @@ expect 2 "neither on nor off" "$T" fit "$tmp/s.csv" --model exponential --delaye
 # is quick), says so in the sampler table, and keeps at most --kept-draws draws per chain.
 "$T" fit "$tmp/s.csv" --model exponential -o "$tmp/need" --warmup 300 --min-ess 50 --min-iterations 200 \
   --max-iterations 100000 --kept-draws 64 --quiet --threads 2 2>/dev/null || bad "run by need failed"
-/usr/bin/python3 - "$tmp/need/exponential+poisson-sampler.csv" "$tmp/need/exponential+poisson-draws.csv" <<'PY' || bad "run by need: $(cat "$tmp/need/exponential+poisson-sampler.csv")"
+/usr/bin/python3 - "$tmp/need/chains.csv" "$tmp/need/draws.csv" <<'PY' || bad "run by need: $(cat "$tmp/need/chains.csv")"
 import csv, sys
 rows = list(csv.DictReader(open(sys.argv[1])))
 draws = list(csv.DictReader(open(sys.argv[2])))
 r = rows[0]
-ok = (r["converged"] == "1" and 200 <= int(r["iterations"]) < 100000 and int(r["kept"]) <= 64
-      and len(draws) == 4 * int(r["kept"]))
+ok = (r["converged"] == "1" and 200 <= int(r["iterations"]) < 100000 and int(r["kept_draws"]) <= 64
+      and len(draws) == 4 * int(r["kept_draws"]))
 sys.exit(0 if ok else 1)
 PY
 printf '[model]\nname = exponential\n[K]\nprior = normal\nmean = 1\nsd = 1\n' >"$tmp/p.ini"

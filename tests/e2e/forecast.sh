@@ -14,13 +14,14 @@ fails=0
 fail() { echo "forecast.sh: $*" >&2; fails=$((fails + 1)); }
 # The tables end their lines with CRLF (RFC 4180); lf FILE gives the lines without the CR.
 lf() { tr -d '\r' <"$1"; }
-# bands_flat FILE YEAR CALENDAR VALUE: the bands row of year YEAR has calendar year CALENDAR
-# ("" = none) and all five bands equal VALUE to 1e-12 relative. The CSV holds exact doubles, and
-# the start goes through log and exp on the way, which moves it by a few units in the last place.
+# bands_flat FILE YEAR CALENDAR VALUE: the projection row YEAR years ahead has calendar year
+# CALENDAR ("" = none) and all five bands equal VALUE to 1e-12 relative. The CSV holds exact
+# doubles, and the start goes through log and exp on the way, which moves it by a few units in the
+# last place. Columns: population,model,years_ahead,year,unit, then the five bands.
 bands_flat() {
   lf "$1" | awk -F, -v y="$2" -v c="$3" -v v="$4" '
-    NR > 1 && $1 == y { found = 1; ok = ($2 == c && NF == 7)
-      for (i = 3; i <= 7; i++) { d = $i - v; if (d < 0) d = -d; if (d > 1e-12 * v) ok = 0 } }
+    NR > 1 && $3 == y { found = 1; ok = ($4 == c && NF == 10)
+      for (i = 6; i <= 10; i++) { d = $i - v; if (d < 0) d = -d; if (d > 1e-12 * v) ok = 0 } }
     END { exit !(found && ok) }'
 }
 
@@ -34,22 +35,24 @@ expect_header() {  # file, header
   [ -f "$out/$1" ] || { fail "$1 was not written"; return; }
   [ "$(lf "$out/$1" | head -n 1)" = "$2" ] || fail "$1 header is '$(lf "$out/$1" | head -n 1)'"
 }
-expect_header forecast_bands.csv "year,calendar_year,median,pct25,pct75,pct5,pct95"
-expect_header forecast_quasi_extinction.csv "year,calendar_year,threshold,probability,se"
-expect_header forecast_declines.csv "window,decline,probability,se"
-[ "$(wc -l <"$out/forecast_bands.csv")" -eq 32 ] || fail "bands should have a header and 31 years"
+expect_header projection.csv "population,model,years_ahead,year,unit,median,lower_50,upper_50,lower_95,upper_95"
+expect_header risk.csv "population,model,threshold,threshold_kind,years_ahead,year,probability,probability_mcse"
+expect_header declines.csv "population,model,window_years,decline,probability,probability_mcse"
+[ "$(wc -l <"$out/projection.csv")" -eq 32 ] || fail "bands should have a header and 31 years"
 # 3 thresholds x 31 years, and 2 windows x 3 declines.
-[ "$(wc -l <"$out/forecast_quasi_extinction.csv")" -eq 94 ] || fail "quasi-extinction table has the wrong length"
-[ "$(wc -l <"$out/forecast_declines.csv")" -eq 7 ] || fail "declines table has the wrong length"
-bands_flat "$out/forecast_bands.csv" 0 "" 500 || fail "year 0 of the bands is not the start"
-lf "$out/forecast_declines.csv" | grep -q '^24,0.5,' || fail "the extra decline window is missing"
-lf "$out/forecast_quasi_extinction.csv" | grep -q '^30,,20%,' || fail "the relative threshold is missing"
+[ "$(wc -l <"$out/risk.csv")" -eq 94 ] || fail "quasi-extinction table has the wrong length"
+[ "$(wc -l <"$out/declines.csv")" -eq 7 ] || fail "declines table has the wrong length"
+bands_flat "$out/projection.csv" 0 "" 500 || fail "year 0 of the bands is not the start"
+# Without a survey there is no population: the column is blank; the model is 'fixed'.
+lf "$out/declines.csv" | grep -q '^,fixed,24,0.5,' || fail "the extra decline window is missing"
+# A threshold is a number and its kind: 20% is 0.2 of the current abundance.
+lf "$out/risk.csv" | grep -q '^,fixed,0.2,fraction_of_current,30,,' || fail "the relative threshold is missing"
 [ -z "$(ls "$out" | grep -v '\.csv$')" ] || fail "stray files left in the output folder: $(ls "$out")"
 # The summary table says what was projected and carries every caution, the fixed-value one too.
-expect_header forecast_summary.csv "Item,Value,Note"
+expect_header summary.csv "population,item,value,note"
 for phrase in "fixed parameter values" "not a formal status listing" "responsible authority" \
               "model-based probabilities" "fixed by hand"; do
-  lf "$out/forecast_summary.csv" | grep -q "$phrase" || fail "forecast_summary.csv lacks '$phrase'"
+  lf "$out/summary.csv" | grep -q "$phrase" || fail "summary.csv lacks '$phrase'"
 done
 for phrase in "not a formal status listing" "responsible authority" "model-based probabilities" \
               "Quasi-extinction" "Decline"; do
@@ -59,7 +62,7 @@ done
 # The same seed gives the same tables.
 "$TALLYFIT" forecast --fixed r=-0.02,sigma=0.1 --start 500 --years 30 --runs 500 --threshold 50,100,20% \
   --decline-window 24 --seed 3 -o "$tmp/again" -q >/dev/null 2>&1 || fail "the repeat run failed"
-cmp -s "$out/forecast_quasi_extinction.csv" "$tmp/again/forecast_quasi_extinction.csv" || fail "same seed, other numbers"
+cmp -s "$out/risk.csv" "$tmp/again/risk.csv" || fail "same seed, other numbers"
 
 # --quiet still prints the cautions, and nothing else of the summary.
 "$TALLYFIT" forecast --fixed r=0.01,sigma=0.2 --start 80 -o "$tmp/quiet" --quiet >"$tmp/stdout" 2>&1 ||
@@ -117,8 +120,8 @@ mkdir -p "$tmp/cwd"
 (cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/leading-trailing-na.csv" --fixed r=0,sigma=0.1 \
    --years 5 --runs 100) >"$tmp/stdout" 2>"$tmp/stderr" || fail "survey run failed: $(cat "$tmp/stderr")"
 sv="$tmp/cwd/output/leading-trailing-na"
-bands_flat "$sv/forecast_bands.csv" 0 2004 9 2>/dev/null || fail "survey start is not 9 in 2004"
-lf "$sv/forecast_quasi_extinction.csv" 2>/dev/null | grep -q '^5,2009,' || fail "calendar years do not run on"
+bands_flat "$sv/projection.csv" 0 2004 9 2>/dev/null || fail "survey start is not 9 in 2004"
+lf "$sv/risk.csv" 2>/dev/null | grep -q '^leading-trailing-na,fixed,[^,]*,[a-z_]*,5,2009,' || fail "calendar years do not run on"
 grep -q "last surveyed count" "$tmp/stdout" || fail "the survey start is not announced"
 # Several populations: one must be chosen; the folder then names it.
 (cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --fixed r=0,sigma=0.1 -q) \
@@ -128,7 +131,7 @@ grep -q "'west'" "$tmp/stderr" || fail "the populations are not listed"
 [ -e "$tmp/cwd/output/multi-pop" ] && fail "a refused run created output/multi-pop"
 (cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population east \
    --fixed r=0,sigma=0.1 --runs 100 -q) >/dev/null 2>&1 || fail "--population east failed"
-bands_flat "$tmp/cwd/output/multi-pop/east/forecast_bands.csv" 0 2004 198 2>/dev/null ||
+bands_flat "$tmp/cwd/output/multi-pop/east/projection.csv" 0 2004 198 2>/dev/null ||
   fail "population east does not start from 198 in 2004"
 # Last count zero (south, 2002): cannot start on the log scale; --start overrides.
 "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --fixed r=0,sigma=0.1 \
@@ -138,7 +141,7 @@ bands_flat "$tmp/cwd/output/multi-pop/east/forecast_bands.csv" 0 2004 198 2>/dev
 "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --start 4 \
   --fixed r=0,sigma=0.1 --runs 100 -o "$tmp/south" -q >/dev/null 2>&1 || fail "--start did not override"
 # -o DIR holds one folder per population when the file has several, as with fit.
-bands_flat "$tmp/south/south/forecast_bands.csv" 0 2002 4 2>/dev/null || fail "--start 4 not used"
+bands_flat "$tmp/south/south/projection.csv" 0 2002 4 2>/dev/null || fail "--start 4 not used"
 "$TALLYFIT" forecast "$tmp/no-such.csv" --fixed r=0,sigma=0.1 -o "$tmp/nosurvey" -q >/dev/null 2>&1
 [ $? -eq 3 ] || fail "a missing survey file should exit 3"
 bad "population without survey" --fixed r=0,sigma=0.1 --start 5 --population east
@@ -147,16 +150,16 @@ bad "unknown population" "$repo/tests/data/good/multi-pop.csv" --fixed r=0,sigma
 # A failure after the folder exists: a folder where a table should go makes the group fail before
 # anything is renamed; exit 1, the earlier tables keep their content and no temporary file remains.
 "$TALLYFIT" forecast "${ok_fixed[@]}" --seed 3 -o "$tmp/clash" -q >/dev/null 2>&1 || fail "first run for the clash failed"
-cp "$tmp/clash/forecast_bands.csv" "$tmp/bands.before"
-rm "$tmp/clash/forecast_declines.csv"
-mkdir "$tmp/clash/forecast_declines.csv"
+cp "$tmp/clash/projection.csv" "$tmp/bands.before"
+rm "$tmp/clash/declines.csv"
+mkdir "$tmp/clash/declines.csv"
 "$TALLYFIT" forecast "${ok_fixed[@]}" --seed 4 -o "$tmp/clash" -q >/dev/null 2>"$tmp/stderr"
 rc=$?
 [ "$rc" -eq 1 ] || fail "write failure: exit $rc, expected 1"
-grep -q "forecast_declines.csv" "$tmp/stderr" || fail "write failure does not name the file"
-[ "$(ls -A "$tmp/clash" | tr '\n' ' ')" = "forecast_bands.csv forecast_declines.csv forecast_quasi_extinction.csv forecast_summary.csv " ] ||
+grep -q "declines.csv" "$tmp/stderr" || fail "write failure does not name the file"
+[ "$(ls -A "$tmp/clash" | tr '\n' ' ')" = "declines.csv projection.csv risk.csv summary.csv " ] ||
   fail "write failure left: $(ls -A "$tmp/clash")"
-cmp -s "$tmp/clash/forecast_bands.csv" "$tmp/bands.before" || fail "write failure changed an earlier table"
+cmp -s "$tmp/clash/projection.csv" "$tmp/bands.before" || fail "write failure changed an earlier table"
 # An output path through a file: nothing is created.
 : >"$tmp/plainfile"
 "$TALLYFIT" forecast "${ok_fixed[@]}" -o "$tmp/plainfile/sub" -q >/dev/null 2>&1
@@ -202,7 +205,7 @@ TH=(--threshold "10%,50%,100%,20,100,1000000")
 #   any set of simulated runs.
 # - se is the binomial standard error sqrt(p (1 - p) / n) with n the simulated futures
 #   (the variance of a binomial proportion; any statistics text), to 1e-12.
-# - bands are ordered 5 % <= 25 % <= median <= 75 % <= 95 %.
+# - bands are ordered 2.5 % <= 25 % <= median <= 75 % <= 97.5 %.
 # - the summary holds every caution, the median time to quasi-extinction that the curve gives,
 #   and, for --average, model probabilities summing to 1.
 check_tables() {
@@ -213,8 +216,8 @@ def rows(name):
     with open(os.path.join(d, name), newline="") as f:
         return list(csv.reader(f))
 problems = []
-summ = rows("forecast_summary.csv")
-if summ[0] != ["Item", "Value", "Note"]:
+summ = [r[1:] for r in rows("summary.csv")]   # the population column first, then item, value, note
+if summ[0] != ["item", "value", "note"]:
     problems.append(f"summary header {summ[0]}")
 items = {r[0]: r[1] for r in summ[1:]}
 n = int(items.get("Simulated futures", "0"))
@@ -233,12 +236,19 @@ if mode == "average":
 else:
     if "Model" not in items or int(items.get("Posterior draws", "0")) < 1:
         problems.append("summary lacks the model or the number of posterior draws")
-qe = rows("forecast_quasi_extinction.csv")
-if qe[0] != ["year", "calendar_year", "threshold", "probability", "se"]:
+qe = rows("risk.csv")
+if qe[0] != ["population", "model", "threshold", "threshold_kind", "years_ahead", "year", "probability",
+             "probability_mcse"]:
     problems.append(f"quasi-extinction header {qe[0]}")
+def label(value, kind):
+    """The threshold as the command line and the summary write it: 20 animals, or 10%."""
+    v = float(value)
+    if kind == "fraction_of_current":
+        return f"{round(v * 100, 9):g}%"
+    return str(int(v)) if v.is_integer() else repr(v)
 curve = {}
 for r in qe[1:]:
-    t, th, p, se = int(r[0]), r[2], float(r[3]), float(r[4])
+    t, th, p, se = int(r[4]), label(r[2], r[3]), float(r[6]), float(r[7])
     curve.setdefault(th, {})[t] = p
     if not 0 <= p <= 1 or abs(se - math.sqrt(p * (1 - p) / n)) > 1e-12:
         problems.append(f"threshold {th} year {t}: p {p} se {se} for {n} runs")
@@ -268,12 +278,12 @@ for th in labels:
         problems.append(f"median time for {th}: {items.get(f'Threshold {th}')}, the curve says {want}")
 if not any(0 < curve["50%"][t] for t in years):
     problems.append("the 50 % threshold is never reached: the monotonicity checks test nothing there")
-bands = rows("forecast_bands.csv")
+bands = rows("projection.csv")
 for r in bands[1:]:
-    v = [float(x) for x in r[2:]]   # median, pct25, pct75, pct5, pct95
+    v = [float(x) for x in r[5:10]]   # median, lower_50, upper_50, lower_95, upper_95
     if not (v[3] <= v[1] <= v[0] <= v[2] <= v[4]):
-        problems.append(f"bands out of order in year {r[0]}: {v}")
-if len(rows("forecast_declines.csv")) < 4:
+        problems.append(f"bands out of order in year {r[3]}: {v}")
+if len(rows("declines.csv")) < 4:
     problems.append("declines table too short")
 for p in problems[:10]:
     print(f"{d}: {p}")
@@ -334,31 +344,34 @@ heron="$repo/surveys/heron-colony.csv"
   fail "the single-model run failed"
 "$TALLYFIT" forecast "$heron" --average --model ricker --obs negbin "${DRAWS[@]}" "${FIT[@]}" --seed 9 -o "$tmp/one-a" \
   >"$tmp/stdout" 2>&1 || fail "the one-candidate average failed"
-for t in bands quasi_extinction declines; do
-  cmp -s "$tmp/one-m/forecast_$t.csv" "$tmp/one-a/forecast_$t.csv" ||
-    fail "--average over ricker+negbin alone differs from --model ricker --obs negbin in forecast_$t.csv"
+# The model column says what was projected (the model, or 'average'); every other cell is the same.
+for t in projection risk declines; do
+  cmp -s <(cut -d, -f1,3- "$tmp/one-m/$t.csv") <(cut -d, -f1,3- "$tmp/one-a/$t.csv") ||
+    fail "--average over ricker+negbin alone differs from --model ricker --obs negbin in $t.csv"
 done
-lf "$tmp/one-a/forecast_summary.csv" | grep -q '^P(ricker+negbin),1,' || fail "the one candidate's probability is not 1"
+lf "$tmp/one-a/projection.csv" | sed -n 2p | grep -q '^heron-colony,average,' || fail "the average is not named in the model column"
+lf "$tmp/one-m/projection.csv" | sed -n 2p | grep -q '^heron-colony,ricker+negbin,' || fail "the model is not named in the model column"
+lf "$tmp/one-a/summary.csv" | grep -q '^heron-colony,P(ricker+negbin),1,' || fail "the one candidate's probability is not 1"
 # --average --model restricts the candidates: two growth models x two counting-error models.
 "$TALLYFIT" forecast "$heron" --average --model exponential,gompertz "${DRAWS[@]}" "${FIT[@]}" -o "$tmp/two" -q \
   >/dev/null 2>&1 || fail "--average --model exponential,gompertz failed"
-[ "$(lf "$tmp/two/forecast_summary.csv" | grep -c '^P(')" -eq 4 ] || fail "--average --model did not restrict the candidates"
-lf "$tmp/two/forecast_summary.csv" | grep -q '^P(ricker' && fail "ricker is a candidate although not asked for"
+[ "$(lf "$tmp/two/summary.csv" | grep -c '^heron-colony,P(')" -eq 4 ] || fail "--average --model did not restrict the candidates"
+lf "$tmp/two/summary.csv" | grep -q ',P(ricker' && fail "ricker is a candidate although not asked for"
 
 # --start with a posterior: every draw starts from N (year 0 is N in every band), the summary and
 # the cautions say so.
 "$TALLYFIT" forecast "$heron" --model gompertz --start 40 "${FIT[@]}" -o "$tmp/whatif" >"$tmp/stdout" 2>&1 ||
   fail "--start with --model failed"
-bands_flat "$tmp/whatif/forecast_bands.csv" 0 2025 40 || fail "--start 40 is not every draw's start"
+bands_flat "$tmp/whatif/projection.csv" 0 2025 40 || fail "--start 40 is not every draw's start"
 grep -q "set by hand" "$tmp/stdout" || fail "the what-if caution is not printed"
-lf "$tmp/whatif/forecast_summary.csv" | grep -q "given with --start" || fail "the summary does not name --start"
-lf "$tmp/whatif/forecast_summary.csv" | grep -q "set by hand" || fail "the summary lacks the what-if caution"
+lf "$tmp/whatif/summary.csv" | grep -q "given with --start" || fail "the summary does not name --start"
+lf "$tmp/whatif/summary.csv" | grep -q "set by hand" || fail "the summary lacks the what-if caution"
 
 # One population of several: its folder below -o DIR, as fit names it.
 herds="$repo/surveys/three-herds.csv"
 "$TALLYFIT" forecast "$herds" --population river-flats --model exponential "${FIT[@]}" -o "$tmp/rf" -q >/dev/null 2>&1 ||
   fail "--population with --model failed"
-lf "$tmp/rf/river-flats/forecast_summary.csv" 2>/dev/null | grep -q '^Population,river-flats,' ||
+lf "$tmp/rf/river-flats/summary.csv" 2>/dev/null | grep -q '^river-flats,Population,river-flats,' ||
   fail "--population river-flats not written to $tmp/rf/river-flats"
 [ "$(ls "$tmp/rf")" = river-flats ] || fail "--population wrote other folders: $(ls "$tmp/rf")"
 
@@ -403,9 +416,9 @@ done
 # With --estimates the log-normal is the default, and the summary says why.
 "$TALLYFIT" forecast "$repo/tests/data/analyze/index.csv" --estimates --model exponential "${FIT[@]}" -o "$tmp/est" -q \
   >/dev/null 2>"$tmp/stderr" || fail "--estimates: exit $?: $(head -c 300 "$tmp/stderr")"
-grep -qF 'Counts,"read as estimates (--estimates), not whole counts"' "$tmp/est/forecast_summary.csv" ||
+grep -qF ',Counts,"read as estimates (--estimates), not whole counts"' "$tmp/est/summary.csv" ||
   fail "--estimates: the summary does not say the counts are estimates"
-grep -qF 'exponential+lognormal' "$tmp/est/forecast_summary.csv" || fail "--estimates: the model is not the log-normal"
+grep -qF 'exponential+lognormal' "$tmp/est/summary.csv" || fail "--estimates: the model is not the log-normal"
 
 # Ctrl-C during the fits: exit 130 and no tables.
 "$TALLYFIT" forecast "$herds" --average --threads 2 -o "$tmp/int2" -q >/dev/null 2>&1 &

@@ -27,15 +27,15 @@ grep -qF "hint: survey more years, or leave this population out (--population to
 # --skip-unusable: a warning naming the population, line and problem; the others analysed.
 "$T" analyze "$H" --skip-unusable -o "$tmp/a1" "${AFAST[@]:1}" >/dev/null 2>"$tmp/err" || bad "analyze --skip-unusable: exit $?"
 grep -qF "tallyfit analyze: $warning" "$tmp/err" || bad "analyze --skip-unusable: no warning: $(head -c 300 "$tmp/err")"
-cut -d, -f1 "$tmp/a1/herds/all-populations.csv" | tail -n +2 | tr '\n' ' ' | grep -qx "east west " ||
-  bad "analyze --skip-unusable: populations $(cut -d, -f1 "$tmp/a1/herds/all-populations.csv" | tr '\n' ' ')"
+cut -d, -f1 "$tmp/a1/populations.csv" | tail -n +2 | tr '\n' ' ' | grep -qx "east west " ||
+  bad "analyze --skip-unusable: populations $(cut -d, -f1 "$tmp/a1/populations.csv" | tr '\n' ' ')"
 grep -qF "Population left out,\"'short', not analysed: population 'short' has 1 surveyed year; at least 5 are needed to fit a model\",line 7 of the survey file" \
-  "$tmp/a1/herds/summary.csv" || bad "analyze --skip-unusable: the first page does not name the population left out"
+  "$tmp/a1/summary.csv" || bad "analyze --skip-unusable: the first page does not name the population left out"
 
 # --population with two labels: only those, in file order, whatever the order given.
 "$T" analyze "$H" --population west,east -o "$tmp/a2" "${AFAST[@]}" 2>"$tmp/err" || bad "analyze --population: exit $?"
-cut -d, -f1 "$tmp/a2/herds/all-populations.csv" | tail -n +2 | tr '\n' ' ' | grep -qx "east west " ||
-  bad "analyze --population west,east: $(cut -d, -f1 "$tmp/a2/herds/all-populations.csv" | tr '\n' ' ')"
+cut -d, -f1 "$tmp/a2/populations.csv" | tail -n +2 | tr '\n' ' ' | grep -qx "east west " ||
+  bad "analyze --population west,east: $(cut -d, -f1 "$tmp/a2/populations.csv" | tr '\n' ' ')"
 [ -s "$tmp/err" ] && bad "analyze --population west,east: warned: $(cat "$tmp/err")"
 
 # fit and compare: one folder per chosen population, as with the whole file.
@@ -50,7 +50,7 @@ grep -qF "tallyfit fit: $warning" "$tmp/err" || bad "fit --skip-unusable: no war
 "$T" compare "$H" --skip-unusable --models exponential --obs poisson "${SHORT[@]}" --draws 150 --quiet -o "$tmp/c" \
   2>"$tmp/err" || bad "compare --skip-unusable: exit $?"
 grep -qF "tallyfit compare: $warning" "$tmp/err" || bad "compare --skip-unusable: no warning"
-[ -s "$tmp/c/east/model-comparison.csv" ] && [ -s "$tmp/c/west/model-comparison.csv" ] && [ ! -e "$tmp/c/short" ] ||
+[ -s "$tmp/c/east/models.csv" ] && [ -s "$tmp/c/west/models.csv" ] && [ ! -e "$tmp/c/short" ] ||
   bad "compare --skip-unusable: $(find "$tmp/c" -type f)"
 "$T" forecast "$H" --population east,west --model exponential "${SHORT[@]}" -q -o "$tmp/p" >/dev/null 2>&1 ||
   bad "forecast --population east,west: exit $?"

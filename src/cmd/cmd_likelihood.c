@@ -12,9 +12,11 @@
 #include "cmd/cmd.h"
 #include "cmd/messages.h"
 #include "cmd/setup.h"
+#include "export/csv_out.h"
 #include "filter/filter.h"
 #include "model/model.h"
 #include "survey/survey.h"
+#include "tables/fit_tables.h"
 #include "util/error.h"
 #include "util/rng.h"
 
@@ -36,10 +38,11 @@ static void help(FILE *out)
             "                           [--seed S] [--proposal guided|bootstrap]\n\n"
             "Estimates the log-likelihood of one population's counts under a state-space model at the\n"
             "given parameters with a particle filter, repeated R times with independent random numbers.\n"
-            "Prints a CSV header and one row: loglik,se,particles,repeats,loglik_sd,proposal, where loglik\n"
-            "is the log of the mean of the R likelihood estimates, se its Monte Carlo standard error, and\n"
-            "loglik_sd the standard deviation of the R log-likelihood estimates, the spread the particle\n"
-            "count is tuned by (both NA when R = 1).\n"
+            "Prints a CSV header and one row: population,model,log_likelihood,log_likelihood_mcse,\n"
+            "particles,repeats,loglik_sd,proposal, where log_likelihood is the log of the mean of the R\n"
+            "likelihood estimates, log_likelihood_mcse its Monte Carlo standard error, and loglik_sd the\n"
+            "standard deviation of the R log-likelihood estimates, the spread the particle count is tuned\n"
+            "by (both NA when R = 1).\n"
             "In a survey of several populations, name the one with --population.\n"
             "SURVEY.csv may be '-' for standard input.\n\n"
             "options:\n"
@@ -172,7 +175,12 @@ int tf_cmd_likelihood(int argc, char **argv)
     /* loglik = log of the mean of the R estimates L_r = exp(ll_r) (log-sum-exp); its standard
      * error by the delta method, sd(L) / (sqrt(R) mean(L)), computed on L_r / max L. */
     const char *pname = tf_filter_proposal_name(proposal);
-    printf("loglik,se,particles,repeats,loglik_sd,proposal\n");
+    /* The columns of the tables (docs/tables.md): the population and the model first. */
+    char base[256];
+    tf_args_survey_name(path, base, sizeof base);
+    printf("population,model,log_likelihood,log_likelihood_mcse,particles,repeats,loglik_sd,proposal\n");
+    tf_csv_write_field(stdout, tf_tables_population(s, base));
+    printf(",%s,", tf_model_name(m));
     if (lmax == -INFINITY) {
         printf("-inf,NA,%zu,%zu,NA,%s\n", n_particles, n_repeats, pname);
         fprintf(stderr, "tallyfit " CMD ": warning: every estimate is zero (all particles ruled out by a count)\n"

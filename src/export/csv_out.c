@@ -57,7 +57,7 @@ void tf_csv_file_name(const char *table_name, char *buf, size_t size)
     snprintf(buf + n, size - n, ".csv");
 }
 
-static void write_text(FILE *out, const char *s)
+void tf_csv_write_field(FILE *out, const char *s)
 {
     if (!strpbrk(s, ",\"\r\n")) {
         fputs(s, out);
@@ -78,7 +78,7 @@ tf_status tf_csv_write_stream(const tf_table *t, FILE *out, const char *where, t
     for (size_t j = 0; j < n_cols; j++) {
         if (j)
             putc(',', out);
-        write_text(out, tf_table_header(t, j));
+        tf_csv_write_field(out, tf_table_header(t, j));
     }
     fputs("\r\n", out);
     char num[TF_CSV_NUMBER_MAX];
@@ -88,7 +88,7 @@ tf_status tf_csv_write_stream(const tf_table *t, FILE *out, const char *where, t
                 putc(',', out);
             const char *text = tf_table_text(t, i, j);
             if (text) {
-                write_text(out, text);
+                tf_csv_write_field(out, text);
             } else {
                 tf_csv_format_number(tf_table_number(t, i, j), num, sizeof num);
                 fputs(num, out);

@@ -25,6 +25,10 @@ void tf_csv_file_name(const char *table_name, char *buf, size_t size);
  * tf_csv_format_number (so a reader gets the exact doubles back); empty cells as nothing; lines
  * end with CRLF (RFC 4180 section 2, rule 1). Notes, legends and warning flags are not written.
  * Returns TF_ERR_IO when out reports a write error; where names the output in messages (may be NULL). */
+/* Writes s as one CSV field (RFC 4180): quoted, with quotes doubled, when it holds a comma, a
+ * quote or a line end. */
+void tf_csv_write_field(FILE *out, const char *s);
+
 tf_status tf_csv_write_stream(const tf_table *t, FILE *out, const char *where, tf_error *err);
 
 /* Writes t to path atomically (export/atomic.h): the old file, if any, stays until the new one

@@ -18,13 +18,15 @@ expect() {
   grep -qE -- "$pat" "$tmp/e" || bad "'$*': stderr lacks /$pat/: $(head -c 300 "$tmp/e")"
 }
 
-# A finite log-likelihood row: loglik,se,particles,repeats,loglik_sd,proposal.
+# A finite log-likelihood row: population,model,log_likelihood,log_likelihood_mcse,particles,
+# repeats,loglik_sd,proposal.
 row_ok() {  # file particles repeats
   local line
   line=$(sed -n 2p "$1")
-  [ "$(head -n 1 "$1")" = "loglik,se,particles,repeats,loglik_sd,proposal" ] || { bad "$1: header '$(head -n 1 "$1")'"; return; }
+  [ "$(head -n 1 "$1")" = "population,model,log_likelihood,log_likelihood_mcse,particles,repeats,loglik_sd,proposal" ] ||
+    { bad "$1: header '$(head -n 1 "$1")'"; return; }
   [ "$(wc -l <"$1")" -eq 2 ] || bad "$1: want exactly one row"
-  echo "$line" | grep -qE "^-?[0-9]+\.[0-9]+,[0-9]+\.[0-9]+,$2,$3,[0-9]+\.[0-9]+,(guided|bootstrap)\$" || bad "$1: row '$line'"
+  echo "$line" | grep -qE "^[^,]*,[a-z-]+\+[a-z-]+,-?[0-9]+\.[0-9]+,[0-9]+\.[0-9]+,$2,$3,[0-9]+\.[0-9]+,(guided|bootstrap)\$" || bad "$1: row '$line'"
 }
 
 params() {  # growth obs -> --set value
@@ -81,13 +83,14 @@ cmp -s "$tmp/la" "$tmp/lc" && bad "likelihood: different seeds, same output"
 cmp -s "$tmp/r1" "$tmp/t1" || bad "simulate: theta-logistic with theta=1 differs from ricker"
 "$T" likelihood "$tmp/r1" --model ricker --obs negbin --set r=0.8,K=400,sigma=0.1,phi=9 >"$tmp/lr"
 "$T" likelihood "$tmp/r1" --model theta-logistic --obs negbin --set r=0.8,K=400,theta=1,sigma=0.1,phi=9 >"$tmp/lt"
-cmp -s "$tmp/lr" "$tmp/lt" || bad "likelihood: theta=1 $(sed -n 2p "$tmp/lt") vs ricker $(sed -n 2p "$tmp/lr")"
+# The model column names the model asked for; every number is the same.
+cmp -s <(cut -d, -f1,3- "$tmp/lr") <(cut -d, -f1,3- "$tmp/lt") || bad "likelihood: theta=1 $(sed -n 2p "$tmp/lt") vs ricker $(sed -n 2p "$tmp/lr")"
 
 # The true parameters beat a clearly wrong carrying capacity by far more than the se.
 "$T" likelihood "$tmp/r1" --model ricker --obs negbin --set r=0.8,K=120,sigma=0.1,phi=9 >"$tmp/lw"
 /usr/bin/python3 - "$tmp/lr" "$tmp/lw" <<'PY' || bad "true parameters do not beat K/3"
 import sys
-(l0, s0), (l1, s1) = [map(float, open(f).read().split("\n")[1].split(",")[:2]) for f in sys.argv[1:3]]
+(l0, s0), (l1, s1) = [map(float, open(f).read().split("\n")[1].split(",")[2:4]) for f in sys.argv[1:3]]
 sys.exit(0 if l0 - l1 > 10 * max(s0, s1) else 1)
 PY
 
@@ -146,9 +149,9 @@ row_ok "$tmp/l" 1000 10
 
 # One repeat has no standard error; an impossible data set gives -inf with a warning.
 "$T" likelihood "$tmp/a" --model gompertz --set r=0.4,K=900,sigma=0.1 --repeat 1 >"$tmp/l"
-sed -n 2p "$tmp/l" | grep -qE '^-?[0-9.]+,NA,1000,1,NA,guided$' || bad "--repeat 1: $(sed -n 2p "$tmp/l")"
+sed -n 2p "$tmp/l" | grep -qE '^[^,]*,[a-z+-]+,-?[0-9.]+,NA,1000,1,NA,guided$' || bad "--repeat 1: $(sed -n 2p "$tmp/l")"
 "$T" likelihood "$tmp/a" --model exponential --set r=1e6,sigma=0.1 >"$tmp/l" 2>"$tmp/e" || bad "-inf run failed"
-sed -n 2p "$tmp/l" | grep -qE '^-inf,NA,' || bad "impossible data: $(sed -n 2p "$tmp/l")"
+sed -n 2p "$tmp/l" | grep -qE '^[^,]*,[a-z+-]+,-inf,NA,' || bad "impossible data: $(sed -n 2p "$tmp/l")"
 grep -q warning "$tmp/e" || bad "no warning for a zero likelihood"
 
 # Help: exit 0 on stdout.

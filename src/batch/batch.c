@@ -26,7 +26,9 @@
 #include "model/model.h"
 #include "project/cautions.h"
 #include "tables/analysis_tables.h"
+#include "tables/batch_page.h"
 #include "tables/columns.h"
+#include "tables/contents_table.h"
 #include "tables/populations_table.h"
 #include "util/path.h"
 #include "util/version.h"
@@ -475,32 +477,17 @@ static tf_status write_tables(const tf_batch *b, const item *it, const tf_report
 {
     size_t nt = r ? tf_report_n_tables(r) : 0, n = 0;
     const tf_table **tables = calloc(nt + 2, sizeof *tables);
-    tf_table *contents = tf_table_new("contents", err);
+    tf_table *contents = tf_contents_table_new(err);
     tf_status st = tables && contents ? TF_OK : nomem(err);
-    size_t c_pop, c_file, c_sheet, c_about;
-    if (st == TF_OK)
-        st = tf_columns_add(contents, TF_C_POPULATION, NULL, &c_pop, err);
-    if (st == TF_OK)
-        st = tf_columns_add(contents, TF_C_FILE, NULL, &c_file, err);
-    if (st == TF_OK)
-        st = tf_columns_add(contents, TF_C_SHEET, NULL, &c_sheet, err);
-    if (st == TF_OK)
-        st = tf_columns_add(contents, TF_C_ABOUT, NULL, &c_about, err);
     for (size_t k = 0; k < nt + 1 && st == TF_OK; k++) {
         const tf_table *t = k < nt ? tf_report_table(r, k) : (r ? NULL : row);
         if (!t)
             continue;
         char file[128];
         tf_csv_file_name(tf_table_name(t), file, sizeof file);
-        size_t cr;
-        if ((st = tf_table_add_row(contents, &cr, err)) == TF_OK &&
-            (st = tf_table_set_text(contents, cr, c_pop, it->label, err)) == TF_OK &&
-            (st = tf_table_set_text(contents, cr, c_file, file, err)) == TF_OK &&
-            (st = tf_table_set_text(contents, cr, c_sheet,
-                                    k < nt && b->workbooks && !tf_report_csv_only(r, k) ? tf_table_name(t) : NULL,
-                                    err)) == TF_OK)
-            st = tf_table_set_text(contents, cr, c_about, k < nt ? tf_report_about(r, k) : "the population's row of "
-                                                                                          "the table of populations",
+        st = tf_contents_table_add(contents, it->label, file,
+                                   k < nt && b->workbooks && !tf_report_csv_only(r, k) ? tf_table_name(t) : NULL,
+                                   k < nt ? tf_report_about(r, k) : "the population's row of the table of populations",
                                    err);
         tables[n++] = t;
     }
@@ -756,60 +743,18 @@ tf_status tf_batch_run_threads(tf_batch *b, size_t n_workers, const volatile sig
 
 /* ---- the combined outputs ---- */
 
+/* The batch's first page (tables/batch_page.h). */
 static tf_status about_table(const tf_batch *b, tf_table **out, tf_error *err)
 {
-    tf_status st = TF_OK;
-    tf_table *t = tf_table_new_summary("Summary", err);
-    if (!t)
-        return tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
-    char text[PATH_BUF + 64];
-#define TRY(call)                                                                                                      \
-    do {                                                                                                               \
-        if (st == TF_OK)                                                                                               \
-            st = (call);                                                                                               \
-    } while (0)
-    TRY(tf_table_add_notef(t, TF_NOTE_INFO, err,
-                           "A batch analysis of the survey %s: one row per population on the Populations sheet, "
-                           "its tables in its own folder.",
-                           b->o.title));
-    for (size_t i = 0; i < tf_project_n_cautions(); i++)
-        TRY(tf_table_add_note(t, TF_NOTE_CAUTION, tf_project_caution(i), err));
-    TRY(tf_table_add_heading(t, "Populations", err));
-    TRY(tf_table_add_item_number(t, "In the survey", (double)b->n, TF_COL_INTEGER, NULL, err));
-    static const tf_batch_state states[] = {TF_BATCH_DONE, TF_BATCH_FAILED, TF_BATCH_BAD_DATA, TF_BATCH_PENDING};
-    static const char *const notes[] = {NULL, "every fit failed or no model suits the counts: see Reason",
-                                        "rows of the survey file are invalid: see Reason",
-                                        "run the same command again to finish them"};
-    for (size_t k = 0; k < sizeof states / sizeof states[0]; k++) {
-        size_t n = tf_batch_count(b, states[k]);
-        snprintf(text, sizeof text, "%c%s", tf_batch_state_name(states[k])[0] - 'a' + 'A',
-                 tf_batch_state_name(states[k]) + 1);
-        TRY(tf_table_add_item_number(t, text, (double)n, TF_COL_INTEGER, n ? notes[k] : NULL, err));
-        if (n && states[k] != TF_BATCH_DONE && st == TF_OK)
-            st = tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err);
+    static const tf_batch_state states[4] = {TF_BATCH_DONE, TF_BATCH_FAILED, TF_BATCH_BAD_DATA, TF_BATCH_PENDING};
+    tf_batch_page p = {.title = b->o.title, .survey_path = b->o.survey_path, .sha256 = b->sha256, .date = b->date,
+                       .settings_file = TF_BATCH_SETTINGS, .n_populations = b->n, .workbooks = b->workbooks,
+                       .workbook_draws = b->o.workbook_draws};
+    for (size_t k = 0; k < 4; k++) {
+        p.n_state[k] = tf_batch_count(b, states[k]);
+        p.state_word[k] = tf_batch_state_name(states[k]);
     }
-    /* Named relative to this folder, so that the file is the same wherever the batch ran. */
-    TRY(tf_table_add_item_text(t, "Tables of each population", "<population>/ in this folder",
-                               !b->workbooks         ? "CSV files"
-                               : b->o.workbook_draws ? "CSV files and a workbook per population"
-                                                     : "CSV files and a workbook per population (raw draws as CSV only)",
-                               err));
-    TRY(tf_table_add_heading(t, "How this was made", err));
-    TRY(tf_table_add_item_text(t, "Survey file", b->o.survey_path, NULL, err));
-    TRY(tf_table_add_item_text(t, "SHA-256 of the file", b->sha256, "identifies the exact file that was read", err));
-    TRY(tf_table_add_item_text(t, "Program", "tallyfit " TF_VERSION, NULL, err));
-    TRY(tf_table_add_item_text(t, "Summary written", b->date, NULL, err));
-    TRY(tf_table_add_item_text(t, "Settings", TF_BATCH_SETTINGS " in this folder",
-                               "every setting that changes a number; the same seed and settings give the same numbers, "
-                               "whatever the number of threads or processes",
-                               err));
-#undef TRY
-    if (st != TF_OK) {
-        tf_table_free(t);
-        return st;
-    }
-    *out = t;
-    return TF_OK;
+    return tf_batch_page_build(&p, out, err);
 }
 
 tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t *stop, tf_error *err)

@@ -453,7 +453,10 @@ tf_table *tf_table_new_summary(const char *name, tf_error *err)
                             NULL, err) != TF_OK ||
         tf_table_add_column(t, "item", "what is reported", TF_COL_TEXT, NULL, err) != TF_OK ||
         tf_table_add_column(t, "value", "the result", TF_COL_NUMBER, NULL, err) != TF_OK ||
-        tf_table_add_column(t, "note", "how to read it", TF_COL_TEXT, NULL, err) != TF_OK) {
+        tf_table_add_column(t, "note", "how to read it", TF_COL_TEXT, NULL, err) != TF_OK ||
+        tf_table_set_label(t, POPULATION_COL, "Population", err) != TF_OK ||
+        tf_table_set_label(t, ITEM_COL, "Item", err) != TF_OK || tf_table_set_label(t, VALUE_COL, "Value", err) != TF_OK ||
+        tf_table_set_label(t, NOTE_COL, "Note", err) != TF_OK) {
         tf_table_free(t);
         return NULL;
     }

@@ -14,6 +14,7 @@ enum {
     C_ESS, C_NOTE, N_COLS
 };
 
+/* Each column's CSV name, its legend and kind; the workbook's labels follow in labels[]. */
 static const struct {
     const char *header, *legend;
     tf_col_kind kind;
@@ -58,6 +59,13 @@ static const struct {
     {"max_r_hat", "largest R-hat of the fit's parameters (want <= 1.01)", TF_COL_NUMBER},
     {"min_ess", "smallest bulk or tail ESS of the fit's parameters (want >= 400)", TF_COL_NUMBER},
     {"note", "why a model was excluded or failed, or a caution", TF_COL_TEXT},
+};
+
+static const char *const labels[N_COLS] = {
+    "Population", "Model", "Growth model", "Counting error", "Likelihood of", "Status", "Log ML",
+    "Log ML MCSE", "Log ML check", "Log ML check MCSE", "Check z", "Bayes factor", "ln BF", "ln BF MCSE",
+    "2 ln B", "Reading", "Prior probability", "Model probability", "Model probability MCSE", "Pareto k",
+    "Pareto k check", "Weight ESS", "Particles", "Particles per draw", "Max R-hat", "Min ESS", "Note",
 };
 
 static int rank(const tf_comparison *c, size_t i)
@@ -107,7 +115,8 @@ tf_table *tf_compare_table(const tf_comparison *c, const char *population, tf_er
     if (!ok)
         tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
     for (size_t k = 0; ok && k < N_COLS; k++)
-        ok = tf_table_add_column(t, columns[k].header, columns[k].legend, columns[k].kind, NULL, err) == TF_OK;
+        ok = tf_table_add_column(t, columns[k].header, columns[k].legend, columns[k].kind, NULL, err) == TF_OK &&
+             tf_table_set_label(t, k, labels[k], err) == TF_OK;
     if (ok) {
         tf_compare_table_order(c, order);
         int unreliable = 0, disagree = 0, unconverged = 0;

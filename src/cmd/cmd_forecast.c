@@ -1023,9 +1023,8 @@ static int run_model(const options *o, const tf_project_options *po)
                 tf_project_input in = tf_project_input_from_model(j->model, tf_fit_draws(j->fit), nd, j->x_last, 1.0);
                 /* The stream analysis.c gives the projection of the same population, so that
                  * --average over this one model gives these very futures. */
-                uint64_t keys[2] = {tf_rng_key("projection"), tf_rng_key(j->label)};
                 tf_rng rng;
-                tf_rng_derive(&rng, o->seed, keys, 2);
+                tf_project_stream(&rng, o->seed, j->label);
                 st = tf_project_run(&in, 1, po, &rng, &j->own, &err);
                 j->proj = j->own;
             }

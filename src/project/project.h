@@ -116,6 +116,18 @@ typedef struct tf_projection tf_projection;
 tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const tf_project_options *opts,
                          tf_rng *rng, tf_projection **out, tf_error *err);
 
+/* The checks tf_project_run makes of its options (horizon, runs, thresholds, declines, window,
+ * start), for callers that refuse bad settings before long work that comes first. TF_OK, or
+ * TF_ERR_RANGE naming the first bad setting. */
+tf_status tf_project_check_options(const tf_project_options *opts, tf_error *err);
+
+/* Seeds rng with the stream of the projection of a population's posterior (one model's or the
+ * model average): derived from seed and the population's label ("" = unnamed) only, so that a
+ * population gets the same futures alone or among others, and `forecast --model M` and
+ * `analyze` / `forecast --average` over the one candidate M draw the very same futures. Every
+ * caller that projects a posterior takes its stream from here. */
+void tf_project_stream(tf_rng *rng, uint64_t seed, const char *population);
+
 void tf_projection_free(tf_projection *p); /* accepts NULL */
 
 /* Binomial Monte Carlo standard error of a proportion p estimated from n independent runs:

@@ -59,22 +59,12 @@ void tf_forecast_free(tf_forecast *f)
     free(f);
 }
 
-/* Gives the messages err received from index from on the status st: the caller's judgement of
- * what a callee's failure means here (a priors file that cannot be read is, for a forecast, an
- * input that cannot be used), so that the status the command maps is the same for the same
- * failure whichever step met it. Returns st. */
-static tf_status relabel(tf_error *err, size_t from, tf_status st)
-{
-    for (size_t i = from; err && i < err->n_items; i++)
-        err->items[i].status = st;
-    return st;
-}
-
-/* A callee's failure while a population is set up from the input, as forecast.h says: memory
- * and interruption stay, anything else is an input that cannot be used. */
+/* A callee's failure while a population is set up from the input, as forecast.h says (the
+ * fit command's judgement too): memory and interruption stay, anything else is an input that
+ * cannot be used. */
 static tf_status input_failure(tf_error *err, size_t from, tf_status st)
 {
-    return st == TF_ERR_NOMEM || st == TF_ERR_INTERRUPTED ? st : relabel(err, from, TF_ERR_INVALID);
+    return st == TF_ERR_NOMEM || st == TF_ERR_INTERRUPTED ? st : tf_error_restatus(err, from, TF_ERR_INVALID);
 }
 
 /* ---- fixed values ------------------------------------------------------------------------------ */
@@ -284,7 +274,7 @@ tf_status tf_forecast_check_options(const tf_forecast_options *o, tf_error *err)
     }
     size_t n1 = err->n_items;
     if (tf_project_check_options(&o->run.project, err) != TF_OK)
-        relabel(err, n1, TF_ERR_USAGE);
+        tf_error_restatus(err, n1, TF_ERR_USAGE);
     if (!isnan(o->start) && !(o->start > 0 && log(o->start) <= TF_PROJECT_LOG_MAX && log(o->start) >= TF_PROJECT_LOG_MIN))
         tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "the current abundance must be > 0 and below 5e21");
     return err->n_items + err->n_dropped > n0 ? TF_ERR_USAGE : TF_OK;
@@ -384,7 +374,7 @@ static tf_status run_fixed(tf_forecast *f, const tf_survey *sv, tf_error *err)
     p->view.projection = p->own;
     /* Range and validity errors of the projection come from the values given (fixed, start). */
     if (st != TF_OK && st != TF_ERR_NOMEM && st != TF_ERR_NUMERIC && st != TF_ERR_INTERRUPTED)
-        st = relabel(err, n0, TF_ERR_USAGE);
+        st = tf_error_restatus(err, n0, TF_ERR_USAGE);
     return st;
 }
 

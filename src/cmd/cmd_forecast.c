@@ -4,6 +4,7 @@
  * posterior probabilities (--average: the analysis of `tallyfit analyze`, without its workbook),
  * or parameter values given by hand (--fixed). */
 #define _GNU_SOURCE
+#include <assert.h>
 #include <getopt.h>
 #include <math.h>
 #include <stdio.h>
@@ -798,6 +799,7 @@ static int run(const options *o, const tf_project_options *po)
     if ((st = tf_forecast_run(sv, &fo, tf_signals_flag(), progress, progress_ctx, &f, &err)) != TF_OK)
         goto fail;
     /* The library's populations are the ones whose folders were checked, in the same order. */
+    assert(tf_forecast_n_populations(f) == n_jobs);
     for (size_t i = 0; i < n_jobs; i++)
         jobs[i].p = tf_forecast_population(f, i);
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++)

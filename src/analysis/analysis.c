@@ -227,9 +227,8 @@ static tf_status project(tf_analysis_pop *p, const tf_analysis_options *o, const
     tf_project_options po = o->project;
     po.stop = stop;
     /* Its own stream, keyed by the population: the same futures alone or among others. */
-    uint64_t keys[2] = {tf_rng_key("projection"), tf_rng_key(tf_series_label(p->s))};
     tf_rng rng;
-    tf_rng_derive(&rng, o->seed, keys, 2);
+    tf_project_stream(&rng, o->seed, tf_series_label(p->s));
     st = tf_project_run(in, n_in, &po, &rng, &p->proj, err);
 done:
     for (size_t i = 0; i < TF_ANALYSIS_MAX_MODELS; i++)

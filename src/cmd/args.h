@@ -198,7 +198,11 @@ tf_status tf_args_probe_output_dir_keep(const char *dir, const char *input, int 
  * input (3, as every help's exit-status list says), interruption 130, anything else (memory,
  * files that cannot be written, a computation that failed) a job that could not be done (1).
  * Failures while the input file itself is read are the input's (3) whatever their status, and
- * the commands say so where they read it. */
+ * the commands say so where they read it. The library steps of a fit give the status that maps
+ * to the same code in every command: counts a model cannot have, a series without a surveyed
+ * year, model and priors files that cannot be read or used (tf_setup_priors) are TF_ERR_INVALID
+ * (3); a sampler that cannot start and a population whose every candidate failed TF_ERR_NUMERIC
+ * (1); fit, compare, analyze and forecast map them through this function alone. */
 int tf_args_exit_code(tf_status st);
 
 #endif

@@ -477,7 +477,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         if (tf_survey_n_series(sv) &&
             (st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0),
                                             &err)) != TF_OK) {
-            status = TF_EXIT_INPUT;
+            status = tf_args_exit_code(st);
             goto out;
         }
         if (batch || tf_survey_n_series(sv) + tf_survey_n_rejected(sv) > BATCH_AUTO) {
@@ -501,7 +501,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     }
     if ((st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
         TF_OK) {
-        status = TF_EXIT_INPUT;
+        status = tf_args_exit_code(st);
         goto out;
     }
     /* Populations left out on request are named on the first page (with one chosen, the others
@@ -516,7 +516,7 @@ static int analyze(int argc, char **argv, int rank, int size)
             continue;
         size_t n = tf_analysis_candidate_obs(&opt, s, names, TF_ANALYSIS_MAX_NAMES);
         if ((st = tf_setup_check_any_suits(names, n, s, path, &err)) != TF_OK) {
-            status = TF_EXIT_INPUT;
+            status = tf_args_exit_code(st);
             goto out;
         }
     }

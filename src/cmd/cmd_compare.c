@@ -371,16 +371,14 @@ int tf_cmd_compare(int argc, char **argv)
         goto out;
     }
     /* The model files of every candidate are read now, not when each candidate's turn comes. */
-    if (tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs,
-                                  only ? only : tf_survey_series(sv, 0), &err) != TF_OK) {
-        status = TF_EXIT_INPUT;
+    tf_status cst = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs,
+                                              only ? only : tf_survey_series(sv, 0), &err);
+    for (size_t i = 0; i < n_jobs && cst == TF_OK; i++)
+        cst = tf_setup_check_any_suits(opt.obs, opt.n_obs, only ? only : tf_survey_series(sv, i), path, &err);
+    if (cst != TF_OK) {
+        status = tf_args_exit_code(cst);
         goto out;
     }
-    for (size_t i = 0; i < n_jobs; i++)
-        if (tf_setup_check_any_suits(opt.obs, opt.n_obs, only ? only : tf_survey_series(sv, i), path, &err) != TF_OK) {
-            status = TF_EXIT_INPUT;
-            goto out;
-        }
     char base[256];
     tf_args_survey_name(path, base, sizeof base);
     /* As in every command: a survey of several populations gives each its folder, also when

@@ -407,24 +407,17 @@ int tf_cmd_fit(int argc, char **argv)
         j->series = only ? only : tf_survey_series(sv, i);
         const char *label = tf_series_label(j->series);
         j->population = tf_tables_population(j->series, base);
-        if (tf_model_new(growth, obs, &j->model, &err) != TF_OK)
-            goto out;
-        if (tf_setup_check_counts(j->model, j->series, path, &err) != TF_OK) {
-            status = TF_EXIT_INPUT;
-            goto out;
-        }
+        /* The statuses the forecast library gives for the same steps (analysis/forecast.h):
+         * counts, first-year prior, priors and posterior that cannot be used are TF_ERR_INVALID. */
         double theta[TF_MAX_PARAMS];
-        if (tf_model_initial_from_series(j->model, j->series, &err) != TF_OK) {
-            status = TF_EXIT_INPUT;
-            goto out;
-        }
-        if (tf_args_bind_model(j->model, &set, 0, theta, NULL, &err) != TF_OK) {
-            status = TF_EXIT_USAGE;
-            goto out;
-        }
-        if (tf_setup_priors(j->model, j->series, priors_path, &j->priors, &err) != TF_OK ||
-            tf_posterior_new(j->model, j->priors, &j->post, &err) != TF_OK) {
-            status = TF_EXIT_INPUT;
+        tf_status sst;
+        if ((sst = tf_model_new(growth, obs, &j->model, &err)) != TF_OK ||
+            (sst = tf_setup_check_counts(j->model, j->series, path, &err)) != TF_OK ||
+            (sst = tf_model_initial_from_series(j->model, j->series, &err)) != TF_OK ||
+            (sst = tf_args_bind_model(j->model, &set, 0, theta, NULL, &err)) != TF_OK ||
+            (sst = tf_setup_priors(j->model, j->series, priors_path, &j->priors, &err)) != TF_OK ||
+            (sst = tf_posterior_new(j->model, j->priors, &j->post, &err)) != TF_OK) {
+            status = tf_args_exit_code(sst);
             goto out;
         }
         if (tf_args_output_dir(j->dir, sizeof j->dir, out_dir, base, label, tf_survey_n_in_file(sv) > 1, &err) !=

@@ -4,6 +4,7 @@
  * posterior probabilities (--average: the analysis of `tallyfit analyze`, without its workbook),
  * or parameter values given by hand (--fixed). */
 #define _GNU_SOURCE
+#include <assert.h>
 #include <getopt.h>
 #include <math.h>
 #include <stdio.h>
@@ -12,6 +13,7 @@
 #include <unistd.h>
 
 #include "analysis/analysis.h"
+#include "analysis/forecast.h"
 #include "cmd/args.h"
 #include "cmd/input.h"
 #include "cmd/cmd.h"
@@ -27,12 +29,10 @@
 #include "project/project.h"
 #include "sampler/fit.h"
 #include "sampler/pmmh.h"
-#include "sampler/posterior.h"
 #include "survey/survey.h"
 #include "tables/columns.h"
 #include "tables/fit_tables.h"
 #include "tables/projection_tables.h"
-#include "util/rng.h"
 
 #define CMD "forecast"
 #define PROG "tallyfit " CMD
@@ -156,177 +156,43 @@ static void help(FILE *out)
             d.n_warmup, a.evidence.n_draws, a.evidence.target_se);
 }
 
-/* ---- fixed parameters --------------------------------------------------------------------------- */
-
-static int growth_has(const tf_growth_type *g, const char *name)
+/* The priors of a --model fit: the defaults, overridden by the --priors file (ctx, may be NULL). */
+static tf_status priors_from_file(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
-    for (size_t j = 0; j < g->n_params; j++)
-        if (!strcmp(g->param_names[j], name))
-            return 1;
-    return 0;
+    return tf_setup_priors(m, s, ctx, out, err);
 }
 
-static int obs_has(const tf_obs_type *o, const char *name)
-{
-    for (size_t j = 0; o && j < o->n_params; j++)
-        if (!strcmp(o->param_names[j], name))
-            return 1;
-    return 0;
-}
+/* ---- one population's output -------------------------------------------------------------------- */
 
-/* "exponential (r, sigma), ricker (r, K, sigma), ..." for hints; as many models as fit. */
-static void growth_models_with_params(char *buf, size_t size)
-{
-    size_t used = 0;
-    buf[0] = '\0';
-    for (size_t i = 0; i < tf_model_n_growth(); i++) {
-        const tf_growth_type *g = tf_model_growth_at(i);
-        char item[96];
-        size_t n = (size_t)snprintf(item, sizeof item, "%s (", g->name);
-        for (size_t j = 0; j < g->n_params && n < sizeof item; j++)
-            n += (size_t)snprintf(item + n, sizeof item - n, "%s, ", g->param_names[j]);
-        if (n < sizeof item)
-            snprintf(item + n, sizeof item - n, "sigma)");
-        if (used + strlen(item) + 3 > size)
-            break;
-        used += (size_t)snprintf(buf + used, size - used, "%s%s", i ? ", " : "", item);
-    }
-}
-
-/* The growth model the fixed values describe: --model if given, else the only model whose drift
- * parameters are exactly the names given (besides sigma and counting-error parameters). */
-static const tf_growth_type *pick_growth(const options *o, const tf_obs_type *obs, tf_error *err)
-{
-    char known[256], hint[300];
-    growth_models_with_params(known, sizeof known);
-    snprintf(hint, sizeof hint, "known models: %s", known);
-    if (o->model) {
-        const tf_growth_type *g = tf_model_find_growth(o->model);
-        if (!g)
-            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown growth model '%s'", o->model);
-        return g;
-    }
-    const tf_arg_pairs *nv = &o->fixed;
-    size_t n_drift = 0;
-    for (size_t i = 0; i < nv->n; i++)
-        n_drift += strcmp(nv->items[i].name, "sigma") && !obs_has(obs, nv->items[i].name);
-    const tf_growth_type *found = NULL;
-    size_t n_match = 0;
-    for (size_t i = 0; i < tf_model_n_growth(); i++) {
-        const tf_growth_type *g = tf_model_growth_at(i);
-        int all = g->n_params == n_drift;
-        for (size_t j = 0; all && j < nv->n; j++)
-            if (strcmp(nv->items[j].name, "sigma") && !obs_has(obs, nv->items[j].name))
-                all = growth_has(g, nv->items[j].name);
-        if (all && n_match++ == 0)
-            found = g;
-    }
-    if (n_match == 1)
-        return found;
-    snprintf(hint, sizeof hint, "choose one with --model; known models: %s", known);
-    tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s growth model takes exactly the parameters given to --fixed",
-                 n_match ? "more than one" : "no");
-    return NULL;
-}
-
-/* Places the --fixed values into theta in m's order (drift parameters, sigma, counting error).
- * Every drift parameter and sigma must be given; counting-error values do not enter a
- * projection and are kept only as given (NAN where not). sigma = 0 is allowed: a projection
- * without noise. */
-static tf_status fixed_theta(const tf_model *m, const tf_arg_pairs *nv, double *theta, int quiet, tf_error *err)
-{
-    const tf_growth_type *g = tf_model_growth(m);
-    size_t n_params = tf_model_n_params(m), i_sigma = tf_model_sigma_index(m);
-    unsigned char given[TF_MAX_PARAMS] = {0};
-    for (size_t k = 0; k < n_params; k++)
-        theta[k] = NAN;
-    tf_status st = TF_OK;
-    char takes[160] = "";
-    for (size_t j = 0, used = 0; j < g->n_params && used < sizeof takes; j++)
-        used += (size_t)snprintf(takes + used, sizeof takes - used, "%s, ", g->param_names[j]);
-    for (size_t i = 0; i < nv->n; i++) {
-        int k = tf_model_param_index(m, nv->items[i].name);
-        if (k < 0) {
-            char hint[200];
-            snprintf(hint, sizeof hint, "it takes %sand sigma", takes);
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "the %s model has no parameter '%s'", g->name,
-                              nv->items[i].name);
-            continue;
-        }
-        theta[k] = nv->items[i].value;
-        given[k] = 1;
-        if ((size_t)k > i_sigma && !quiet)
-            printf("note: %s (counting error) does not enter a projection; ignored\n", nv->items[i].name);
-    }
-    for (size_t k = 0; k <= i_sigma; k++) {
-        const char *name = tf_model_param_name(m, k);
-        if (!given[k]) {
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed does not give %s, which the %s model needs",
-                              name, g->name);
-        } else if (k < i_sigma && !(theta[k] > g->lower[k] && theta[k] < g->upper[k])) {
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed %s = %g is outside the %s model's range (%g, %g)",
-                              name, theta[k], g->name, g->lower[k], g->upper[k]);
-        } else if (k == i_sigma && !(theta[k] >= 0)) {
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "0 projects without noise",
-                              "--fixed sigma = %g must be 0 or more", theta[k]);
-        }
-    }
-    return st;
-}
-
-/* ---- one population's forecast ------------------------------------------------------------------ */
-
+/* What the command adds to a population's forecast: its output folder and its tables. */
 typedef struct {
-    const tf_series *s;          /* NULL for a fixed forecast without a survey */
-    const char *label;           /* "" = unnamed */
+    const tf_forecast_pop *p;
     char dir[4096];
-    int year0;                   /* calendar year of year 0; TF_PROJECTION_NO_YEAR when unknown */
-    double start;                /* --fixed: the start */
-    double theta[TF_MAX_PARAMS]; /* --fixed: the values */
-    tf_model *model;             /* --fixed and --model */
-    tf_prior_set *priors;        /* --model */
-    tf_posterior *post;
-    tf_fit *fit;
-    double *x_last;              /* --model: each draw's latent log-abundance in the last year */
-    tf_projection *own;          /* --fixed and --model */
-    const tf_projection *proj;   /* the projection reported: own, or the analysis's */
-    const tf_analysis_pop *pop;  /* --average */
     tf_table *tables[N_TABLES];
 } job;
 
-static void job_clear(job *j)
+static void jobs_free(job *jobs, size_t n_jobs)
 {
-    for (size_t k = 0; k < N_TABLES; k++)
-        tf_table_free(j->tables[k]);
-    tf_projection_free(j->own);
-    free(j->x_last);
-    tf_fit_free(j->fit);
-    tf_posterior_free(j->post);
-    tf_prior_set_free(j->priors);
-    tf_model_free(j->model);
-    memset(j, 0, sizeof *j);
+    for (size_t i = 0; jobs && i < n_jobs; i++)
+        for (size_t k = 0; k < N_TABLES; k++)
+            tf_table_free(jobs[i].tables[k]);
+    free(jobs);
 }
 
 /* The output folder of a population, as fit chooses it, so that a population's fit and forecast
  * land together: -o DIR or by default output/<survey>/, with /<population> below it when the file
  * holds several populations (even if one is chosen); output/forecast without a survey. A name
  * too long for the buffer is refused, not cut: a cut name would be another folder. */
-static tf_status job_dir(const options *o, const tf_survey *sv, job *j, tf_error *err)
+static tf_status job_dir(const options *o, const tf_survey *sv, const char *label, char *dir, size_t size,
+                         tf_error *err)
 {
     char base[256] = "forecast";
     if (sv)
         tf_args_survey_name(o->survey_path, base, sizeof base);
-    if (tf_args_output_dir(j->dir, sizeof j->dir, o->out_dir, base, j->label, sv && tf_survey_n_in_file(sv) > 1,
-                           NULL) != TF_OK)
+    if (tf_args_output_dir(dir, size, o->out_dir, base, label, sv && tf_survey_n_in_file(sv) > 1, NULL) != TF_OK)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o DIR",
-                            "the output folder name is longer than %zu bytes", sizeof j->dir - 1);
+                            "the output folder name is longer than %zu bytes", size - 1);
     return TF_OK;
-}
-
-/* Calendar year of the last year of the series: where a posterior's latent starts lie. */
-static int last_year(const tf_series *s)
-{
-    return tf_series_first_year(s) + (int)tf_series_n_years(s) - 1;
 }
 
 /* 1 when the effort is not 1 in every surveyed year: abundances are then per unit of effort. */
@@ -348,43 +214,6 @@ static void fit_mixing(const tf_fit *f, double *rhat_max, double *ess_min)
     *ess_min = h.min_ess;
 }
 
-/* 1 when every fit the projection draws from passed the convergence checks. */
-static int job_converged(const options *o, const job *j)
-{
-    if (o->from == FROM_MODEL)
-        return tf_fit_converged(j->fit);
-    if (o->from == FROM_AVERAGE)
-        for (size_t i = 0; i < tf_analysis_pop_n_models(j->pop); i++) {
-            const tf_analysis_model *m = tf_analysis_pop_model(j->pop, i);
-            if (m->probability > 0 && !tf_fit_converged(m->fit))
-                return 0;
-        }
-    return 1;
-}
-
-static const char not_converged[] =
-    "Some chains behind this projection did not pass the convergence checks (R-hat above 1.01 or an "
-    "effective sample size below 400): the draws may not represent the posterior yet. Run longer "
-    "(--iterations, --warmup) before relying on the numbers.";
-
-/* Room for the general cautions and the three of a particular forecast. */
-#define MAX_CAUTIONS 8
-
-/* The cautions of a forecast: the general ones, then what this source of futures leaves out. */
-static size_t cautions_for(const options *o, const job *j, const char **out)
-{
-    size_t n = 0;
-    for (size_t i = 0; i < tf_project_n_cautions(); i++)
-        out[n++] = tf_project_caution(i);
-    if (o->from == FROM_FIXED)
-        out[n++] = tf_project_caution_fixed();
-    else if (!isnan(o->start))
-        out[n++] = tf_project_caution_start();
-    if (j && !job_converged(o, j))
-        out[n++] = not_converged;
-    return n;
-}
-
 /* The order of the candidates by posterior probability, highest first (stable). */
 static void by_probability(const tf_analysis_pop *p, size_t *order)
 {
@@ -400,18 +229,34 @@ static void by_probability(const tf_analysis_pop *p, size_t *order)
     }
 }
 
-/* Simulated futures given to candidate i: the projection's inputs are the candidates of positive
- * probability, in candidate order (analysis.c). */
-static size_t candidate_runs(const tf_analysis_pop *p, size_t i)
-{
-    size_t input = 0;
-    for (size_t k = 0; k < i; k++)
-        input += tf_analysis_pop_model(p, k)->probability > 0;
-    return tf_analysis_pop_model(p, i)->probability > 0 ? tf_projection_input_runs(tf_analysis_pop_projection(p), input)
-                                                         : 0;
-}
+/* ---- the tables ------------------------------------------------------------------------------------
+ * Built from the result alone (and the survey's path, which the summary names), and written as
+ * one group: forecast_tables and write_tables are all the rest of the command needs. */
 
-/* ---- the summary table -------------------------------------------------------------------------- */
+static const char not_converged[] =
+    "Some chains behind this projection did not pass the convergence checks (R-hat above 1.01 or an "
+    "effective sample size below 400): the draws may not represent the posterior yet. Run longer "
+    "(--iterations, --warmup) before relying on the numbers.";
+
+/* Room for the general cautions and the three of a particular forecast. */
+#define MAX_CAUTIONS 8
+
+/* The cautions of a forecast: the general ones, then what this source of futures leaves out,
+ * then the convergence caution when p (NULL: every population of f) needs it. */
+static size_t cautions_for(const tf_forecast *f, const tf_forecast_pop *p, const char **out)
+{
+    const tf_forecast_options *fo = tf_forecast_options_of(f);
+    size_t n = 0;
+    for (size_t i = 0; i < tf_project_n_cautions(); i++)
+        out[n++] = tf_project_caution(i);
+    if (fo->source == TF_FORECAST_FIXED)
+        out[n++] = tf_project_caution_fixed();
+    else if (!isnan(fo->start))
+        out[n++] = tf_project_caution_start();
+    if (p ? !p->converged : !tf_forecast_all_converged(f))
+        out[n++] = not_converged;
+    return n;
+}
 
 #define TRY(call)                \
     do {                         \
@@ -419,46 +264,55 @@ static size_t candidate_runs(const tf_analysis_pop *p, size_t i)
             goto fail;           \
     } while (0)
 
-static tf_status summary_table(const options *o, const job *j, tf_table **out, tf_error *err)
+/* The population as every table names it: its label, or the survey's name when the survey has
+ * none; blank for a forecast without a survey. base holds the survey's name. */
+static const char *population_of(const tf_forecast_pop *p, const char *survey_path, const char *base)
 {
+    return p->label[0] ? p->label : survey_path ? base : "";
+}
+
+static tf_status summary_table(const tf_forecast *f, const tf_forecast_pop *p, const char *survey_path,
+                               tf_table **out, tf_error *err)
+{
+    const tf_forecast_options *fo = tf_forecast_options_of(f);
     tf_status st = TF_OK;
     char text[512], note[256];
     tf_table *t = tf_table_new_summary(SUMMARY_NAME, err);
     if (!t)
         return tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
     char base[256];
-    tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
-    TRY(tf_table_set_summary_population(t, j->label[0] ? j->label : o->survey_path ? base : "", err));
+    tf_args_survey_name(survey_path ? survey_path : "-", base, sizeof base);
+    TRY(tf_table_set_summary_population(t, population_of(p, survey_path, base), err));
     TRY(tf_table_add_heading(t, "Forecast", err));
-    TRY(tf_table_add_item_text(t, "Survey", o->survey_path ? o->survey_path : "none", NULL, err));
-    if (j->label[0])
-        TRY(tf_table_add_item_text(t, "Population", j->label, NULL, err));
-    if (o->in.estimates && o->from != FROM_FIXED)
+    TRY(tf_table_add_item_text(t, "Survey", survey_path ? survey_path : "none", NULL, err));
+    if (p->label[0])
+        TRY(tf_table_add_item_text(t, "Population", p->label, NULL, err));
+    if (fo->run.estimates && fo->source != TF_FORECAST_FIXED)
         TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
                                    "so only counting-error models of continuous amounts (log-normal) were fitted",
                                    err));
-    if (o->from == FROM_FIXED) {
-        const tf_growth_type *g = tf_model_growth(j->model);
+    if (fo->source == TF_FORECAST_FIXED) {
+        const tf_growth_type *g = tf_model_growth(p->model);
         TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --fixed", err));
         TRY(tf_table_add_item_text(t, "Growth model", g->name, NULL, err));
         for (size_t k = 0; k <= g->n_params; k++)
-            TRY(tf_table_add_item_number(t, tf_model_param_name(j->model, k), j->theta[k], TF_COL_NUMBER,
+            TRY(tf_table_add_item_number(t, tf_model_param_name(p->model, k), p->theta[k], TF_COL_NUMBER,
                                          k == g->n_params ? "process-noise sd" : NULL, err));
-        snprintf(text, sizeof text, "%.10g", j->start);
+        snprintf(text, sizeof text, "%.10g", p->start);
         TRY(tf_table_add_item_text(t, "Start", text,
-                                   isnan(o->start) ? "the last surveyed count / effort" : "given with --start", err));
-    } else if (o->from == FROM_MODEL) {
-        const tf_fit *f = j->fit;
-        const tf_fit_settings *fs = tf_fit_settings_of(f);
+                                   isnan(fo->start) ? "the last surveyed count / effort" : "given with --start", err));
+    } else if (fo->source == TF_FORECAST_MODEL) {
+        const tf_fit *fit = p->fit;
+        const tf_fit_settings *fs = tf_fit_settings_of(fit);
         double rhat, ess;
-        fit_mixing(f, &rhat, &ess);
+        fit_mixing(fit, &rhat, &ess);
         TRY(tf_table_add_item_text(t, "Projected from", "the posterior of one fitted model",
                                    "particle marginal Metropolis-Hastings", err));
-        TRY(tf_table_add_item_text(t, "Model", tf_model_name(j->model), NULL, err));
+        TRY(tf_table_add_item_text(t, "Model", tf_model_name(p->model), NULL, err));
         snprintf(note, sizeof note, "%zu chains x %zu kept draws, after %zu warm-up; %zu particles, %s proposal",
-                 tf_fit_n_chains(f), tf_fit_n_iter(f), fs->n_warmup, fs->n_particles,
+                 tf_fit_n_chains(fit), tf_fit_n_iter(fit), fs->n_warmup, fs->n_particles,
                  tf_filter_proposal_name(fs->proposal));
-        TRY(tf_table_add_item_number(t, "Posterior draws", (double)tf_fit_n_draws(f), TF_COL_INTEGER, note, err));
+        TRY(tf_table_add_item_number(t, "Posterior draws", (double)tf_fit_n_draws(fit), TF_COL_INTEGER, note, err));
         TRY(tf_table_add_item_number(t, "R-hat, largest", rhat, TF_COL_NUMBER, "want <= 1.01", err));
         if (!(rhat <= TF_FIT_RHAT_MAX))
             TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
@@ -466,19 +320,19 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
         if (!(ess >= TF_FIT_ESS_MIN))
             TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
     } else {
-        const tf_analysis_pop *p = j->pop;
-        size_t n = tf_analysis_pop_n_models(p), order[TF_ANALYSIS_MAX_MODELS];
-        by_probability(p, order);
+        const tf_analysis_pop *ap = p->pop;
+        size_t n = tf_analysis_pop_n_models(ap), order[TF_ANALYSIS_MAX_MODELS];
+        by_probability(ap, order);
         TRY(tf_table_add_item_text(t, "Projected from", "the posterior model average of the fitted candidates",
                                    "each model's draws weighted by its posterior probability (marginal likelihood, "
                                    "equal prior weights)", err));
         for (size_t r = 0; r < n; r++) {
-            const tf_analysis_model *m = tf_analysis_pop_model(p, order[r]);
+            const tf_analysis_model *m = tf_analysis_pop_model(ap, order[r]);
             snprintf(text, sizeof text, "P(%s)", m->name);
             if (m->state == TF_CANDIDATE_FITTED) {
-                const tf_candidate_figures *fg = tf_comparison_figures(tf_analysis_pop_comparison(p), order[r]);
+                const tf_candidate_figures *fg = tf_comparison_figures(tf_analysis_pop_comparison(ap), order[r]);
                 snprintf(note, sizeof note, "Monte Carlo se %.3g; %zu posterior draws; %zu simulated futures",
-                         fg->prob_se, tf_fit_n_draws(m->fit), candidate_runs(p, order[r]));
+                         fg->prob_se, tf_fit_n_draws(m->fit), tf_forecast_candidate_runs(p, order[r]));
                 TRY(tf_table_add_item_number(t, text, m->probability, TF_COL_PROBABILITY, note, err));
             } else {
                 TRY(tf_table_add_item_text(t, text, m->state == TF_CANDIDATE_FAILED ? "failed" : "excluded", m->note,
@@ -486,29 +340,31 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
             }
         }
     }
-    if (o->from != FROM_FIXED) {
-        if (isnan(o->start))
+    if (fo->source != TF_FORECAST_FIXED) {
+        if (isnan(fo->start))
             snprintf(text, sizeof text, "each posterior draw's latent abundance in the last survey year");
         else
-            snprintf(text, sizeof text, "%.10g for every draw", o->start);
-        TRY(tf_table_add_item_text(t, "Start", text, isnan(o->start) ? NULL : "given with --start (a what-if)", err));
+            snprintf(text, sizeof text, "%.10g for every draw", fo->start);
+        TRY(tf_table_add_item_text(t, "Start", text, isnan(fo->start) ? NULL : "given with --start (a what-if)", err));
     }
-    if (j->year0 != TF_PROJECTION_NO_YEAR)
-        TRY(tf_table_add_item_number(t, "Year 0", j->year0, TF_COL_YEAR, "the last survey year", err));
-    TRY(tf_table_add_item_number(t, "Simulated futures", (double)tf_projection_n_runs(j->proj), TF_COL_INTEGER, NULL,
+    if (p->year0 != TF_PROJECTION_NO_YEAR)
+        TRY(tf_table_add_item_number(t, "Year 0", p->year0, TF_COL_YEAR, "the last survey year", err));
+    TRY(tf_table_add_item_number(t, "Simulated futures", (double)tf_projection_n_runs(p->projection), TF_COL_INTEGER,
+                                 NULL, err));
+    TRY(tf_table_add_item_number(t, "Years ahead", (double)tf_projection_horizon(p->projection), TF_COL_INTEGER, NULL,
                                  err));
-    TRY(tf_table_add_item_number(t, "Years ahead", (double)tf_projection_horizon(j->proj), TF_COL_INTEGER, NULL, err));
-    snprintf(text, sizeof text, "%llu", (unsigned long long)o->seed);
+    snprintf(text, sizeof text, "%llu", (unsigned long long)fo->run.seed);
     TRY(tf_table_add_item_text(t, "Seed", text, "the same seed gives the same numbers", err));
     /* The median time is one number per threshold, so it lives here rather than in the curves. */
     TRY(tf_table_add_heading(t, "Median time to quasi-extinction", err));
-    for (size_t k = 0; k < tf_projection_n_thresholds(j->proj); k++) {
-        tf_threshold th = tf_projection_threshold(j->proj, k);
+    for (size_t k = 0; k < tf_projection_n_thresholds(p->projection); k++) {
+        tf_threshold th = tf_projection_threshold(p->projection, k);
         char label[48];
         snprintf(text, sizeof text, "Threshold %s", tf_project_threshold_label(&th, label, sizeof label));
-        double mt = tf_projection_median_time(j->proj, k);
+        double mt = tf_projection_median_time(p->projection, k);
         if (isnan(mt)) {
-            snprintf(note, sizeof note, "the risk stays below 0.5 within %zu years", tf_projection_horizon(j->proj));
+            snprintf(note, sizeof note, "the risk stays below 0.5 within %zu years",
+                     tf_projection_horizon(p->projection));
             TRY(tf_table_add_item_text(t, text, "not reached", note, err));
         } else {
             TRY(tf_table_add_item_number(t, text, mt, TF_COL_INTEGER,
@@ -517,7 +373,7 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
     }
     TRY(tf_table_add_heading(t, "Cautions", err));
     const char *cautions[MAX_CAUTIONS];
-    size_t nc = cautions_for(o, j, cautions);
+    size_t nc = cautions_for(f, p, cautions);
     for (size_t i = 0; i < nc; i++) {
         snprintf(text, sizeof text, "Caution %zu", i + 1);
         TRY(tf_table_add_item_text(t, text, cautions[i], NULL, err));
@@ -529,35 +385,37 @@ fail:
     return st;
 }
 
-/* The projection tables and the summary, each projection table carrying this forecast's
- * cautions beyond the general ones as notes (for readers of the tables in memory; the summary
- * holds all of them in the CSV files). */
-static tf_status build_tables(const options *o, job *j, tf_error *err)
+/* The tables of population p of f into tables (N_TABLES; the caller frees them, also after a
+ * failure): the projection tables, each carrying this forecast's cautions beyond the general
+ * ones as notes (for readers of the tables in memory; the summary holds all of them in the CSV
+ * files), and the summary. */
+static tf_status forecast_tables(const tf_forecast *f, const tf_forecast_pop *p, const char *survey_path,
+                                 tf_table **tables, tf_error *err)
 {
     char base[256];
-    tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
-    const char *population = j->label[0] ? j->label : o->survey_path ? base : "";
-    tf_projection_place place = {.population = population,
-                                 .model = o->from == FROM_AVERAGE ? "average"
-                                          : o->from == FROM_FIXED ? "fixed"
-                                                                  : tf_model_name(j->model),
-                                 .unit = j->s ? tf_tables_unit(j->s) : TF_UNIT_ANIMALS,
-                                 .year0 = j->year0};
-    tf_status st = tf_projection_tables_build(j->proj, &place, j->tables, err);
+    tf_args_survey_name(survey_path ? survey_path : "-", base, sizeof base);
+    tf_forecast_source from = tf_forecast_options_of(f)->source;
+    tf_projection_place place = {.population = population_of(p, survey_path, base),
+                                 .model = from == TF_FORECAST_AVERAGE ? "average"
+                                          : from == TF_FORECAST_FIXED ? "fixed"
+                                                                        : tf_model_name(p->model),
+                                 .unit = p->series ? tf_tables_unit(p->series) : TF_UNIT_ANIMALS,
+                                 .year0 = p->year0};
+    tf_status st = tf_projection_tables_build(p->projection, &place, tables, err);
     const char *cautions[MAX_CAUTIONS];
-    size_t nc = cautions_for(o, j, cautions);
+    size_t nc = cautions_for(f, p, cautions);
     for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
         for (size_t i = tf_project_n_cautions(); i < nc && st == TF_OK; i++)
-            st = tf_table_add_note(j->tables[k], TF_NOTE_CAUTION, cautions[i], err);
+            st = tf_table_add_note(tables[k], TF_NOTE_CAUTION, cautions[i], err);
     if (st == TF_OK)
-        st = summary_table(o, j, &j->tables[SUMMARY_TABLE], err);
+        st = summary_table(f, p, survey_path, &tables[SUMMARY_TABLE], err);
     return st;
 }
 
 /* Writes every population's tables as one group (fileset.h): either every file is
  * replaced or none is, and folders this call made are taken away again on failure. Signals wait
  * until the renames are over, so that a late Ctrl-C cannot stop the group half-way. */
-static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
+static tf_status write_tables(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
 {
     tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_TABLES, err);
     tf_status st = g ? TF_OK : TF_ERR_NOMEM;
@@ -568,11 +426,11 @@ static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_pa
             char name[128], path[4300];
             tf_csv_file_name(tf_table_name(j->tables[k]), name, sizeof name);
             snprintf(path, sizeof path, "%s/%s", j->dir, name);
-            FILE *f;
-            if ((st = tf_fileset_open(g, path, survey_path, &f, err)) != TF_OK)
+            FILE *fp;
+            if ((st = tf_fileset_open(g, path, survey_path, &fp, err)) != TF_OK)
                 break;
             /* Write errors stay on the stream and are reported by the commit, with errno. */
-            tf_csv_write_stream(j->tables[k], f, path, NULL);
+            tf_csv_write_stream(j->tables[k], fp, path, NULL);
         }
     }
     sigset_t old_mask;
@@ -608,97 +466,104 @@ static void print_wrapped(FILE *out, const char *first, const char *text)
 }
 
 /* The cautions once for the whole run; the convergence caution when any population needs it. */
-static void print_cautions(const options *o, const job *jobs, size_t n_jobs)
+static void print_cautions(const tf_forecast *f)
 {
     const char *cautions[MAX_CAUTIONS];
-    size_t n = cautions_for(o, NULL, cautions);
-    for (size_t i = 0; i < n_jobs; i++)
-        if (!job_converged(o, &jobs[i])) {
-            cautions[n++] = not_converged;
-            break;
-        }
+    size_t n = cautions_for(f, NULL, cautions);
     fputs("\nCautions:\n", stdout);
     for (size_t i = 0; i < n; i++)
         print_wrapped(stdout, "  - ", cautions[i]);
 }
 
-/* What was projected: the source, the model(s), the posterior draws and the start. */
-static void print_source(const options *o, const job *j)
+/* What a fixed forecast took from the command line and the survey, said before its results. */
+static void print_fixed_notes(const tf_forecast *f, const tf_forecast_pop *p)
 {
+    for (size_t i = 0; i < tf_forecast_n_ignored(f); i++)
+        printf("note: %s (counting error) does not enter a projection; ignored\n", tf_forecast_ignored(f, i));
+    if (!isnan(p->start_count))
+        printf("Starting from the last surveyed count: %g in %d (effort %g), N = %g; --start N starts elsewhere\n",
+               p->start_count, p->year0, p->start_effort, p->start);
+}
+
+/* What was projected: the source, the model(s), the posterior draws and the start. */
+static void print_source(const tf_forecast *f, const tf_forecast_pop *p)
+{
+    const tf_forecast_options *fo = tf_forecast_options_of(f);
     /* "Forecast for population 'east' from ..." */
     char who[300] = "";
-    if (j->label[0])
-        snprintf(who, sizeof who, " for population '%s'", j->label);
-    if (o->from == FROM_FIXED) {
-        const tf_growth_type *g = tf_model_growth(j->model);
+    if (p->label[0])
+        snprintf(who, sizeof who, " for population '%s'", p->label);
+    if (fo->source == TF_FORECAST_FIXED) {
+        const tf_growth_type *g = tf_model_growth(p->model);
         printf("Forecast%s from fixed parameters, growth model %s:", who, g->name);
         for (size_t k = 0; k <= g->n_params; k++)
-            printf("%s %s = %g", k ? "," : "", tf_model_param_name(j->model, k), j->theta[k]);
-        printf("\n  start N = %g%s\n", j->start, j->year0 == TF_PROJECTION_NO_YEAR ? "" : " in the last survey year");
+            printf("%s %s = %g", k ? "," : "", tf_model_param_name(p->model, k), p->theta[k]);
+        printf("\n  start N = %g%s\n", p->start, p->year0 == TF_PROJECTION_NO_YEAR ? "" : " in the last survey year");
         return;
     }
-    const char *unit = per_effort(j->s) ? " per unit of effort" : "";
-    size_t ny = tf_series_n_years(j->s);
-    if (o->from == FROM_MODEL) {
-        const tf_fit *f = j->fit;
-        const tf_fit_settings *fs = tf_fit_settings_of(f);
+    const char *unit = per_effort(p->series) ? " per unit of effort" : "";
+    size_t ny = tf_series_n_years(p->series);
+    if (fo->source == TF_FORECAST_MODEL) {
+        const tf_fit *fit = p->fit;
+        const tf_fit_settings *fs = tf_fit_settings_of(fit);
         double rhat, ess;
-        fit_mixing(f, &rhat, &ess);
+        fit_mixing(fit, &rhat, &ess);
         printf("Forecast%s from the posterior of %s: %zu draws (%zu chains x %zu, after %zu warm-up;\n"
                "  %zu particles; R-hat largest %.3f, ESS smallest %.0f)\n",
-               who, tf_model_name(j->model), tf_fit_n_draws(f), tf_fit_n_chains(f), tf_fit_n_iter(f),
+               who, tf_model_name(p->model), tf_fit_n_draws(fit), tf_fit_n_chains(fit), tf_fit_n_iter(fit),
                fs->n_warmup, fs->n_particles, rhat, ess);
-        if (isnan(o->start)) {
-            const tf_fit_year_summary *y = tf_fit_year(f, ny - 1);
+        if (isnan(fo->start)) {
+            const tf_fit_year_summary *y = tf_fit_year(fit, ny - 1);
             printf("  start: each draw's latent abundance in %d (median %.4g, 95 %% interval %.4g to %.4g%s)\n",
-                   j->year0, y->median, y->q025, y->q975, unit);
+                   p->year0, y->median, y->q025, y->q975, unit);
         }
     } else {
-        const tf_analysis_pop *p = j->pop;
-        size_t n = tf_analysis_pop_n_models(p), n_fitted = 0, order[TF_ANALYSIS_MAX_MODELS];
+        const tf_analysis_pop *ap = p->pop;
+        size_t n = tf_analysis_pop_n_models(ap), n_fitted = 0, order[TF_ANALYSIS_MAX_MODELS];
         for (size_t i = 0; i < n; i++)
-            n_fitted += tf_analysis_pop_model(p, i)->state == TF_CANDIDATE_FITTED;
-        by_probability(p, order);
+            n_fitted += tf_analysis_pop_model(ap, i)->state == TF_CANDIDATE_FITTED;
+        by_probability(ap, order);
         printf("Forecast%s averaged over %zu fitted model%s by posterior model probability\n", who, n_fitted,
                n_fitted == 1 ? "" : "s");
         printf("  %-28s %8s %7s %8s %8s %7s %6s\n", "model", "P(model)", "se", "draws", "futures", "R-hat", "ESS");
         for (size_t r = 0; r < n; r++) {
-            const tf_analysis_model *m = tf_analysis_pop_model(p, order[r]);
+            const tf_analysis_model *m = tf_analysis_pop_model(ap, order[r]);
             if (m->state != TF_CANDIDATE_FITTED)
                 continue;
-            const tf_candidate_figures *fg = tf_comparison_figures(tf_analysis_pop_comparison(p), order[r]);
+            const tf_candidate_figures *fg = tf_comparison_figures(tf_analysis_pop_comparison(ap), order[r]);
             printf("  %-28s %8.3f %7.3f %8zu %8zu %7.3f %6.0f\n", m->name, m->probability, fg->prob_se,
-                   tf_fit_n_draws(m->fit), candidate_runs(p, order[r]), fg->rhat_max, fg->ess_min);
+                   tf_fit_n_draws(m->fit), tf_forecast_candidate_runs(p, order[r]), fg->rhat_max, fg->ess_min);
         }
         for (size_t r = 0; r < n; r++) {
-            const tf_analysis_model *m = tf_analysis_pop_model(p, order[r]);
+            const tf_analysis_model *m = tf_analysis_pop_model(ap, order[r]);
             if (m->state != TF_CANDIDATE_FITTED)
                 printf("  %s %s: %s\n", m->state == TF_CANDIDATE_FAILED ? "failed:  " : "excluded:", m->name, m->note);
         }
-        if (isnan(o->start)) {
-            const tf_analysis_year *y = tf_analysis_pop_year(p, ny - 1);
+        if (isnan(fo->start)) {
+            const tf_analysis_year *y = tf_analysis_pop_year(ap, ny - 1);
             printf("  start: each draw's latent abundance in %d (model-averaged median %.4g, 95 %% interval %.4g to "
-                   "%.4g%s)\n", j->year0, y->median, y->q025, y->q975, unit);
+                   "%.4g%s)\n", p->year0, y->median, y->q025, y->q975, unit);
         }
     }
-    if (!isnan(o->start))
-        printf("  start: N = %g for every draw (--start, a what-if), from %d\n", o->start, j->year0);
+    if (!isnan(fo->start))
+        printf("  start: N = %g for every draw (--start, a what-if), from %d\n", fo->start, p->year0);
 }
 
-static void print_projection(const options *o, const job *j)
+static void print_projection(const tf_forecast *f, const job *j)
 {
-    const tf_projection *p = j->proj;
+    const tf_projection *p = j->p->projection;
+    int year0 = j->p->year0;
     size_t H = tf_projection_horizon(p);
     printf("  %zu simulated futures, %zu years ahead, seed %llu\n", tf_projection_n_runs(p), H,
-           (unsigned long long)o->seed);
-    int cal = j->year0 != TF_PROJECTION_NO_YEAR;
+           (unsigned long long)tf_forecast_options_of(f)->run.seed);
+    int cal = year0 != TF_PROJECTION_NO_YEAR;
     size_t step = H <= 100 ? 10 : (H + 9) / 10;
     printf("\nAbundance (median and 95 %% band of the simulated futures)\n%s      median      2.5 %%     97.5 %%\n",
            cal ? "  ahead  year" : "   year");
     for (size_t t = 0;; t = t + step < H ? t + step : H) {
         printf("  %5zu", t);
         if (cal)
-            printf(" %5d", j->year0 + (int)t);
+            printf(" %5d", year0 + (int)t);
         printf("  %10.4g %10.4g %10.4g\n", tf_projection_band(p, t, TF_BAND_MEDIAN), tf_projection_band(p, t, TF_BAND_P025),
                tf_projection_band(p, t, TF_BAND_P975));
         if (t == H)
@@ -761,22 +626,23 @@ static void print_projection(const options *o, const job *j)
 }
 
 /* Plain warnings on stderr for fits that should not be trusted yet, and failed candidates. */
-static void print_warnings(const options *o, const job *j)
+static void print_warnings(const tf_forecast *f, const tf_forecast_pop *p)
 {
-    const char *label = j->label, *sp = label[0] ? " " : "";
-    if (o->from == FROM_MODEL && !tf_fit_converged(j->fit)) {
+    tf_forecast_source from = tf_forecast_options_of(f)->source;
+    const char *label = p->label, *sp = label[0] ? " " : "";
+    if (from == TF_FORECAST_MODEL && !p->converged) {
         double rhat, ess;
-        fit_mixing(j->fit, &rhat, &ess);
+        fit_mixing(p->fit, &rhat, &ess);
         fprintf(stderr,
                 PROG ": warning: %s%s%s: R-hat largest %.3f, ESS smallest %.0f; the chains may not have converged "
                      "(want R-hat <= %.2f and ESS >= %.0f)\n  hint: run longer (--iterations, --warmup)\n",
-                label, sp, tf_model_name(j->model), rhat, ess, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
+                label, sp, tf_model_name(p->model), rhat, ess, TF_FIT_RHAT_MAX, TF_FIT_ESS_MIN);
     }
-    if (o->from != FROM_AVERAGE)
+    if (from != TF_FORECAST_AVERAGE)
         return;
-    const tf_comparison *c = tf_analysis_pop_comparison(j->pop);
-    for (size_t i = 0; i < tf_analysis_pop_n_models(j->pop); i++) {
-        const tf_analysis_model *m = tf_analysis_pop_model(j->pop, i);
+    const tf_comparison *c = tf_analysis_pop_comparison(p->pop);
+    for (size_t i = 0; i < tf_analysis_pop_n_models(p->pop); i++) {
+        const tf_analysis_model *m = tf_analysis_pop_model(p->pop, i);
         if (m->state == TF_CANDIDATE_FAILED)
             fprintf(stderr, PROG ": warning: %s%s%s: %s\n", label, sp, m->name, m->note);
         if (m->probability > 0 && !tf_fit_converged(m->fit))
@@ -788,377 +654,206 @@ static void print_warnings(const options *o, const job *j)
     }
 }
 
-/* Builds the tables of every job, writes them as one group and prints the summaries. */
-static int finish(const options *o, job *jobs, size_t n_jobs)
+/* ---- the run ------------------------------------------------------------------------------------- */
+
+/* The forecast options from the command line: the source and its models, the projection
+ * settings po, and the sampler settings over the defaults of the source (a lone fit's for
+ * --model, the analysis's for --average). */
+static void forecast_options(const options *o, const tf_project_options *po, tf_forecast_options *fo,
+                             char *growth_buf, char *obs_buf, size_t buf_size, tf_error *err)
+{
+    tf_forecast_source from = o->from == FROM_FIXED ? TF_FORECAST_FIXED : o->from == FROM_MODEL ? TF_FORECAST_MODEL
+                              : o->from == FROM_AVERAGE ? TF_FORECAST_AVERAGE : TF_FORECAST_NONE;
+    tf_forecast_options_init(fo, from, err);
+    tf_analysis_options *ro = &fo->run;
+    ro->project = *po;
+    ro->seed = o->seed;
+    ro->estimates = o->in.estimates;
+    ro->population = o->population;
+    fo->start = o->start;
+    if (from == TF_FORECAST_FIXED) {
+        fo->growth = o->model;
+        fo->obs = o->obs;
+        for (size_t i = 0; i < o->fixed.n && i < TF_FORECAST_MAX_FIXED; i++) {
+            fo->fixed_names[i] = o->fixed.items[i].name;
+            fo->fixed_values[i] = o->fixed.items[i].value;
+        }
+        fo->n_fixed = o->fixed.n;
+        return;
+    }
+    ro->n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
+    if (from == TF_FORECAST_MODEL) {
+        fo->growth = o->model;
+        fo->obs = o->obs ? o->obs : tf_input_default_obs(&o->in);
+        ro->fit = tf_pmmh_default_options();
+        ro->priors = priors_from_file;
+        ro->priors_ctx = (void *)o->priors_path;
+    } else {
+        int all = 0;
+        if (o->model)
+            tf_args_model_names("--model", o->model, growth_buf, buf_size, ro->growth, TF_ANALYSIS_MAX_NAMES,
+                                &ro->n_growth, &all, 1, err);
+        if (o->obs)
+            tf_args_model_names("--obs", o->obs, obs_buf, buf_size, ro->obs, TF_ANALYSIS_MAX_NAMES, &ro->n_obs,
+                                &ro->obs_auto, 0, err);
+        tf_input_check_obs(&o->in, "--obs", ro->obs, ro->n_obs, err);
+        ro->priors = tf_setup_default_priors;
+        if (o->draws)
+            ro->evidence.n_draws = o->draws;
+        /* Fewer importance draws (as in short test runs) keep the adaptation rounds in
+         * proportion, as analyze and compare do. */
+        if (ro->evidence.n_adapt_draws > ro->evidence.n_draws)
+            ro->evidence.n_adapt_draws = ro->evidence.n_draws;
+        ro->evidence.n_particles = o->particles;
+        ro->evidence.proposal = o->proposal;
+    }
+    if (o->particles)
+        ro->fit.n_particles = o->particles;
+    ro->fit.proposal = o->proposal;
+    if (o->chains)
+        ro->fit.n_chains = o->chains;
+    if (o->warmup)
+        ro->fit.n_warmup = o->warmup;
+    tf_args_run_apply(&o->run, &ro->fit, err);
+}
+
+/* Progress of --model on a terminal: a line before each fit. */
+static void model_progress(void *ctx, const tf_analysis_event *e)
+{
+    const tf_pmmh_options *opt = ctx;
+    if (e->stage == TF_ANALYSIS_STARTED)
+        fprintf(stderr, "%s%s%s: fitting by PMMH (%zu chains, %zu warm-up iterations, then %zu to %zu until they "
+                "converge)...\n", e->label, e->label[0] ? " " : "", e->model, opt->n_chains, opt->n_warmup,
+                opt->min_iter, opt->max_iter);
+}
+
+/* The checks the command makes with the survey's path and the model files before the long work:
+ * every output folder, the counts against the model (naming the line), and for --average every
+ * candidate's model files and that some candidate suits each population. Fills the jobs' folders. */
+static tf_status check_before(const options *o, const tf_forecast_options *fo, const tf_survey *sv,
+                              const tf_series *only, job *jobs, size_t n_jobs, tf_error *err)
+{
+    tf_status st;
+    for (size_t i = 0; i < n_jobs; i++) {
+        const tf_series *s = sv ? (only ? only : tf_survey_series(sv, i)) : NULL;
+        const char *label = s ? tf_series_label(s) : "";
+        if ((st = job_dir(o, sv, label, jobs[i].dir, sizeof jobs[i].dir, err)) != TF_OK ||
+            (st = tf_args_probe_output_dir(jobs[i].dir, o->survey_path, err)) != TF_OK)
+            return st;
+    }
+    if (fo->source == TF_FORECAST_MODEL) {
+        for (size_t i = 0; i < n_jobs; i++) {
+            tf_model *m = NULL;
+            if ((st = tf_model_new(fo->growth, fo->obs, &m, err)) == TF_OK)
+                st = tf_setup_check_counts(m, only ? only : tf_survey_series(sv, i), o->survey_path, err);
+            tf_model_free(m);
+            if (st != TF_OK)
+                return st;
+        }
+    } else if (fo->source == TF_FORECAST_AVERAGE) {
+        const tf_analysis_options *ao = &fo->run;
+        if ((st = tf_setup_check_candidates(ao->growth, ao->n_growth, ao->obs, ao->n_obs,
+                                            only ? only : tf_survey_series(sv, 0), err)) != TF_OK)
+            return st;
+        for (size_t i = 0; i < n_jobs; i++) {
+            const tf_series *s = only ? only : tf_survey_series(sv, i);
+            const char *names[TF_ANALYSIS_MAX_NAMES];
+            size_t n = tf_analysis_candidate_obs(ao, s, names, TF_ANALYSIS_MAX_NAMES);
+            if ((st = tf_setup_check_any_suits(names, n, s, o->survey_path, err)) != TF_OK)
+                return st;
+        }
+    }
+    return TF_OK;
+}
+
+/* Reads the survey, checks, runs the forecast, writes the tables and prints the summaries.
+ * Returns the exit code. */
+static int run(const options *o, const tf_project_options *po)
 {
     tf_error err;
     tf_error_init(&err);
+    char growth_buf[1024], obs_buf[1024];
+    tf_forecast_options fo;
+    forecast_options(o, po, &fo, growth_buf, obs_buf, sizeof growth_buf, &err);
+    /* fit's own refusal of model names, so that both commands word it alike. */
+    if (fo.source == TF_FORECAST_MODEL && tf_error_status(&err) == TF_OK)
+        tf_args_check_model(fo.growth, fo.obs, &err);
+    if (tf_error_status(&err) != TF_OK || tf_forecast_check_options(&fo, &err) != TF_OK)
+        return tf_messages_usage(PROG, &err);
+
+    int rc = TF_EXIT_FAIL;
+    tf_survey *sv = NULL;
+    tf_forecast *f = NULL;
+    job *jobs = NULL;
+    size_t n_jobs = 0;
+    const tf_series *only = NULL;
     tf_status st = TF_OK;
+    if (o->survey_path) {
+        if ((st = tf_input_read(&o->in, o->survey_path, stderr, PROG, &sv, &err)) != TF_OK) {
+            /* A failure while the survey itself is read is the input's (tf_args_exit_code). */
+            rc = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
+            tf_error_print(&err, PROG, stderr);
+            goto out;
+        }
+        /* --fixed and --start describe one population. */
+        if ((fo.source == TF_FORECAST_FIXED || o->population || !isnan(o->start)) &&
+            !(only = tf_args_pick_series(sv, o->population, o->survey_path, &err))) {
+            if (!o->population && fo.source != TF_FORECAST_FIXED)
+                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--start gives the abundance of one population");
+            st = TF_ERR_USAGE;
+            goto fail;
+        }
+        fo.run.population = only ? tf_series_label(only) : NULL;
+    }
+    n_jobs = sv && !only ? tf_survey_n_series(sv) : 1;
+    if (!(jobs = calloc(n_jobs, sizeof *jobs))) {
+        st = tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+        goto fail;
+    }
+    if ((st = check_before(o, &fo, sv, only, jobs, n_jobs, &err)) != TF_OK)
+        goto fail;
+    int show = !o->quiet && isatty(STDERR_FILENO);
+    char name[256];
+    tf_args_survey_name(o->survey_path ? o->survey_path : "forecast", name, sizeof name);
+    tf_analysis_progress_fn progress = !show ? NULL : fo.source == TF_FORECAST_AVERAGE ? tf_messages_analysis
+                                                                                       : model_progress;
+    void *progress_ctx = fo.source == TF_FORECAST_AVERAGE ? (void *)name : (void *)&fo.run.fit;
+    if ((st = tf_forecast_run(sv, &fo, tf_signals_flag(), progress, progress_ctx, &f, &err)) != TF_OK)
+        goto fail;
+    /* The library's populations are the ones whose folders were checked, in the same order. */
+    assert(tf_forecast_n_populations(f) == n_jobs);
+    for (size_t i = 0; i < n_jobs; i++)
+        jobs[i].p = tf_forecast_population(f, i);
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++)
-        st = build_tables(o, &jobs[i], &err);
+        st = forecast_tables(f, jobs[i].p, o->survey_path, jobs[i].tables, &err);
     if (st == TF_OK && *tf_signals_flag())
         st = tf_error_add(&err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "interrupted");
     if (st == TF_OK)
-        st = write_all(jobs, n_jobs, o->survey_path, &err);
-    if (st != TF_OK) {
-        if (st == TF_ERR_INTERRUPTED)
-            return TF_EXIT_INTERRUPTED;
-        tf_error_print(&err, PROG, stderr);
-        return tf_args_exit_code(st);
-    }
+        st = write_tables(jobs, n_jobs, o->survey_path, &err);
+    if (st != TF_OK)
+        goto fail;
     for (size_t i = 0; i < n_jobs; i++) {
         if (!o->quiet) {
             if (i > 0)
                 putchar('\n');
-            print_source(o, &jobs[i]);
-            print_projection(o, &jobs[i]);
+            if (fo.source == TF_FORECAST_FIXED)
+                print_fixed_notes(f, jobs[i].p);
+            print_source(f, jobs[i].p);
+            print_projection(f, &jobs[i]);
         }
-        print_warnings(o, &jobs[i]);
+        print_warnings(f, jobs[i].p);
     }
-    print_cautions(o, jobs, n_jobs);
-    if (fflush(stdout) != 0) {
-        return tf_messages_error(PROG, TF_EXIT_FAIL, NULL, "cannot write to standard output");
-    }
-    return TF_EXIT_OK;
-}
-
-/* ---- the three sources ----------------------------------------------------------------------------- */
-
-/* The starting abundance from the survey (or --start) and the calendar year of t = 0 of a fixed
- * forecast: the last year with a count (rows listed after it without one add nothing to start
- * from). Returns an exit code. */
-static int fixed_start(const options *o, const tf_series *s, job *j)
-{
-    const double *counts = tf_series_counts(s);
-    size_t last = tf_series_n_years(s);
-    while (last > 0 && isnan(counts[last - 1]))
-        last--;
-    if (last == 0) {
-        return tf_messages_error(PROG, TF_EXIT_FAIL, "give the current abundance with --start N",
-                                 "population '%s' has no surveyed count to start from", j->label);
-    }
-    last--;
-    j->year0 = tf_series_first_year(s) + (int)last;
-    if (!isnan(o->start)) {
-        j->start = o->start;
-        return TF_EXIT_OK;
-    }
-    double y = counts[last], e = tf_series_effort(s)[last];
-    if (!(y > 0)) {
-        return tf_messages_error(PROG, TF_EXIT_FAIL, "give the current abundance with --start N",
-                                 "the last surveyed count (in %d) is 0, and a projection on the log scale cannot "
-                                 "start from zero", j->year0);
-    }
-    j->start = y / e;
-    if (!o->quiet)
-        printf("Starting from the last surveyed count: %g in %d (effort %g), N = %g; --start N starts elsewhere\n", y,
-               j->year0, e, j->start);
-    return TF_EXIT_OK;
-}
-
-static int run_fixed(const options *o, const tf_project_options *po)
-{
-    tf_error err;
-    tf_error_init(&err);
-    const tf_obs_type *obs = NULL;
-    if (o->obs && !(obs = tf_model_find_obs(o->obs))) {
-        char known[256], hint[300];
-        tf_model_list_obs(known, sizeof known);
-        snprintf(hint, sizeof hint, "known models: %s", known);
-        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown counting-error model '%s'", o->obs);
-        return tf_messages_usage(PROG, &err);
-    }
-    job j = {.label = "", .year0 = TF_PROJECTION_NO_YEAR, .start = o->start};
-    const tf_growth_type *g = pick_growth(o, obs, &err);
-    /* The joined model only lays out the parameters; without --obs any counting-error model
-     * will do, and Poisson has no parameters to give. */
-    if (!g || tf_model_new(g->name, obs ? obs->name : "poisson", &j.model, &err) != TF_OK)
-        return tf_messages_usage(PROG, &err);
-    int rc = TF_EXIT_OK;
-    tf_survey *sv = NULL;
-    if (fixed_theta(j.model, &o->fixed, j.theta, o->quiet, &err) != TF_OK) {
-        rc = tf_messages_usage(PROG, &err);
-    } else if (o->survey_path) {
-        tf_status rst = tf_input_read(&o->in, o->survey_path, stderr, PROG, &sv, &err);
-        if (rst) {
-            tf_error_print(&err, PROG, stderr);
-            rc = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
-        } else if (!(j.s = tf_args_pick_series(sv, o->population, o->survey_path, &err))) {
-            rc = tf_messages_usage(PROG, &err);
-        } else {
-            j.label = tf_series_label(j.s);
-            rc = fixed_start(o, j.s, &j);
-        }
-    }
-    tf_status dst = rc ? TF_OK : job_dir(o, sv, &j, &err);
-    if (dst == TF_OK && !rc)
-        dst = tf_args_probe_output_dir(j.dir, o->survey_path, &err);
-    if (dst != TF_OK) {
+    print_cautions(f);
+    rc = fflush(stdout) != 0 ? tf_messages_error(PROG, TF_EXIT_FAIL, NULL, "cannot write to standard output")
+                             : TF_EXIT_OK;
+    goto out;
+fail:
+    rc = tf_args_exit_code(st);
+    if (rc != TF_EXIT_INTERRUPTED)
         tf_error_print(&err, PROG, stderr);
-        rc = tf_args_exit_code(dst);
-    }
-    if (!rc) {
-        double x0 = log(j.start);
-        tf_project_input in = tf_project_input_from_model(j.model, j.theta, 1, &x0, 1.0);
-        uint64_t keys[2] = {tf_rng_key("forecast"), tf_rng_key(j.label)};
-        tf_rng rng;
-        tf_rng_derive(&rng, o->seed, keys, 2);
-        tf_status st = tf_project_run(&in, 1, po, &rng, &j.own, &err);
-        j.proj = j.own;
-        if (st == TF_ERR_INTERRUPTED) {
-            rc = TF_EXIT_INTERRUPTED;
-        } else if (st) {
-            tf_error_print(&err, PROG, stderr);
-            /* Range and validity errors of the projection come from the command line (--fixed, --start). */
-            rc = st == TF_ERR_NOMEM || st == TF_ERR_NUMERIC ? TF_EXIT_FAIL : TF_EXIT_USAGE;
-        }
-    }
-    if (!rc)
-        rc = finish(o, &j, 1);
-    job_clear(&j);
-    tf_survey_free(sv);
-    return rc;
-}
-
-/* Reads the survey of a posterior forecast and the populations it covers: --population, else
- * every one (*only NULL); --start gives one abundance, so it needs a single population. Returns
- * an exit code. */
-static int read_populations(const options *o, tf_survey **sv, const tf_series **only, tf_error *err)
-{
-    *only = NULL;
-    tf_status st = tf_input_read(&o->in, o->survey_path, stderr, PROG, sv, err);
-    if (st != TF_OK)
-        return st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
-    if (!o->population && isnan(o->start))
-        return TF_EXIT_OK;
-    if (!(*only = tf_args_pick_series(*sv, o->population, o->survey_path, err))) {
-        if (!o->population)
-            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--start gives the abundance of one population");
-        return TF_EXIT_USAGE;
-    }
-    return TF_EXIT_OK;
-}
-
-/* The sampler settings given on the command line, over the defaults in fit: chains, warm-up and
- * the run length (tf_args_run_apply). */
-static tf_status sampler_settings(const options *o, tf_pmmh_options *fit, tf_error *err)
-{
-    if (o->chains)
-        fit->n_chains = o->chains;
-    if (o->warmup)
-        fit->n_warmup = o->warmup;
-    return tf_args_run_apply(&o->run, fit, err);
-}
-
-/* The end of a posterior forecast: prints err unless the run succeeded or was interrupted (finish
- * prints its own errors, and the caller says when the run was interrupted), frees the jobs, and
- * returns rc. */
-static int end_run(int rc, const tf_error *err, job *jobs, size_t n_jobs)
-{
-    if (rc != TF_EXIT_OK && rc != TF_EXIT_INTERRUPTED && tf_error_status(err) != TF_OK)
-        tf_error_print(err, PROG, stderr);
-    for (size_t i = 0; jobs && i < n_jobs; i++)
-        job_clear(&jobs[i]);
-    free(jobs);
-    return rc;
-}
-
-static int run_model(const options *o, const tf_project_options *po)
-{
-    tf_error err;
-    tf_error_init(&err);
-    const char *obs = o->obs ? o->obs : tf_input_default_obs(&o->in);
-    if (tf_args_check_model(o->model, obs, &err) != TF_OK)
-        return tf_messages_usage(PROG, &err);
-
-    tf_pmmh_options opt = tf_pmmh_default_options();
-    opt.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
-    opt.seed = o->seed;
-    if (o->particles)
-        opt.n_particles = o->particles;
-    opt.proposal = o->proposal;
-    if (sampler_settings(o, &opt, &err) != TF_OK)
-        return tf_messages_usage(PROG, &err);
-
-    int rc = TF_EXIT_FAIL;
-    tf_survey *sv = NULL;
-    job *jobs = NULL;
-    size_t n_jobs = 0;
-    const tf_series *only;
-    int code = read_populations(o, &sv, &only, &err);
-    if (code != TF_EXIT_OK) {
-        rc = code;
-        goto out;
-    }
-    n_jobs = only ? 1 : tf_survey_n_series(sv);
-    if (!(jobs = calloc(n_jobs, sizeof *jobs))) {
-        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
-        goto out;
-    }
-    /* Every population is set up before the first long run, so that a bad count in the last one
-     * is reported at once. */
-    for (size_t i = 0; i < n_jobs; i++) {
-        job *j = &jobs[i];
-        j->s = only ? only : tf_survey_series(sv, i);
-        j->label = tf_series_label(j->s);
-        j->year0 = last_year(j->s);
-        if (tf_model_new(o->model, obs, &j->model, &err) != TF_OK)
-            goto out;
-        if (tf_setup_check_counts(j->model, j->s, o->survey_path, &err) != TF_OK ||
-            tf_model_initial_from_series(j->model, j->s, &err) != TF_OK ||
-            tf_setup_priors(j->model, j->s, o->priors_path, &j->priors, &err) != TF_OK ||
-            tf_posterior_new(j->model, j->priors, &j->post, &err) != TF_OK) {
-            rc = TF_EXIT_INPUT;
-            goto out;
-        }
-        if (job_dir(o, sv, j, &err) != TF_OK) {
-            rc = TF_EXIT_USAGE;
-            goto out;
-        }
-        tf_status pst = tf_args_probe_output_dir(j->dir, o->survey_path, &err);
-        if (pst != TF_OK) {
-            rc = tf_args_exit_code(pst);
-            goto out;
-        }
-    }
-    int show = !o->quiet && isatty(STDERR_FILENO);
-    for (size_t i = 0; i < n_jobs; i++) {
-        job *j = &jobs[i];
-        if (show)
-            fprintf(stderr, "%s%s%s: fitting by PMMH (%zu chains, %zu warm-up iterations, then %zu to %zu "
-                    "until they converge)...\n", j->label, j->label[0] ? " " : "", tf_model_name(j->model),
-                    opt.n_chains, opt.n_warmup, opt.min_iter, opt.max_iter);
-        tf_status st = tf_pmmh_run(j->post, j->s, &opt, tf_signals_flag(), NULL, NULL, &j->fit, &err);
-        if (st == TF_OK) {
-            size_t nd = tf_fit_n_draws(j->fit);
-            if (!(j->x_last = malloc(nd * sizeof *j->x_last))) {
-                st = tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for the projection");
-            } else {
-                tf_fit_year_draws(j->fit, tf_fit_n_years(j->fit) - 1, j->x_last);
-                tf_project_input in = tf_project_input_from_model(j->model, tf_fit_draws(j->fit), nd, j->x_last, 1.0);
-                /* The stream analysis.c gives the projection of the same population, so that
-                 * --average over this one model gives these very futures. */
-                uint64_t keys[2] = {tf_rng_key("projection"), tf_rng_key(j->label)};
-                tf_rng rng;
-                tf_rng_derive(&rng, o->seed, keys, 2);
-                st = tf_project_run(&in, 1, po, &rng, &j->own, &err);
-                j->proj = j->own;
-            }
-        }
-        if (st != TF_OK) {
-            rc = tf_args_exit_code(st);
-            goto out;
-        }
-    }
-    rc = finish(o, jobs, n_jobs);
 out:
-    rc = end_run(rc, &err, jobs, n_jobs);
-    tf_survey_free(sv);
-    return rc;
-}
-
-static int run_average(const options *o, const tf_project_options *po)
-{
-    tf_error err;
-    tf_error_init(&err);
-    tf_analysis_options ao;
-    if (tf_analysis_options_init(&ao, &err) != TF_OK) {
-        tf_error_print(&err, PROG, stderr);
-        return TF_EXIT_FAIL;
-    }
-    char growth_buf[1024], obs_buf[1024];
-    int all = 0;
-    if (o->model)
-        tf_args_model_names("--model", o->model, growth_buf, sizeof growth_buf, ao.growth, TF_ANALYSIS_MAX_NAMES,
-                            &ao.n_growth, &all, 1, &err);
-    if (o->obs)
-        tf_args_model_names("--obs", o->obs, obs_buf, sizeof obs_buf, ao.obs, TF_ANALYSIS_MAX_NAMES, &ao.n_obs,
-                            &ao.obs_auto, 0, &err);
-    tf_input_check_obs(&o->in, "--obs", ao.obs, ao.n_obs, &err);
-    ao.estimates = o->in.estimates;
-    ao.project = *po;
-    ao.seed = o->seed;
-    ao.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
-    sampler_settings(o, &ao.fit, &err);
-    ao.fit.n_particles = ao.evidence.n_particles = o->particles;
-    ao.fit.proposal = ao.evidence.proposal = o->proposal;
-    if (o->draws)
-        ao.evidence.n_draws = o->draws;
-    /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion, as
-     * analyze and compare do. */
-    if (ao.evidence.n_adapt_draws > ao.evidence.n_draws)
-        ao.evidence.n_adapt_draws = ao.evidence.n_draws;
-    ao.priors = tf_setup_default_priors;
-    if (tf_error_status(&err) != TF_OK)
-        return tf_messages_usage(PROG, &err);
-
-    int rc = TF_EXIT_FAIL;
-    tf_survey *sv = NULL;
-    tf_analysis *a = NULL;
-    job *jobs = NULL;
-    size_t n_jobs = 0;
-    const tf_series *only;
-    tf_status st;
-    int code = read_populations(o, &sv, &only, &err);
-    if (code != TF_EXIT_OK) {
-        rc = code;
-        goto out;
-    }
-    ao.population = only ? tf_series_label(only) : NULL;
-    /* A survey of one unnamed population has nothing to find by name. */
-    if (ao.population && !ao.population[0])
-        ao.population = NULL;
-    /* Every output folder is checked before the fits. */
-    for (size_t i = 0; i < (only ? 1 : tf_survey_n_series(sv)); i++) {
-        job probe = {.label = tf_series_label(only ? only : tf_survey_series(sv, i))};
-        if ((st = job_dir(o, sv, &probe, &err)) != TF_OK ||
-            (st = tf_args_probe_output_dir(probe.dir, o->survey_path, &err)) != TF_OK) {
-            rc = tf_args_exit_code(st);
-            goto out;
-        }
-    }
-    if ((st = tf_setup_check_candidates(ao.growth, ao.n_growth, ao.obs, ao.n_obs, only ? only : tf_survey_series(sv, 0),
-                                        &err)) != TF_OK) {
-        rc = TF_EXIT_INPUT;
-        goto out;
-    }
-    for (size_t i = 0; i < (only ? 1 : tf_survey_n_series(sv)); i++) {
-        const tf_series *s = only ? only : tf_survey_series(sv, i);
-        const char *names[TF_ANALYSIS_MAX_NAMES];
-        size_t n = tf_analysis_candidate_obs(&ao, s, names, TF_ANALYSIS_MAX_NAMES);
-        if ((st = tf_setup_check_any_suits(names, n, s, o->survey_path, &err)) != TF_OK) {
-            rc = TF_EXIT_INPUT;
-            goto out;
-        }
-    }
-    char name[256];
-    tf_args_survey_name(o->survey_path, name, sizeof name);
-    int show = !o->quiet && isatty(STDERR_FILENO);
-    if ((st = tf_analysis_run(sv, &ao, tf_signals_flag(), show ? tf_messages_analysis : NULL, name, &a, &err)) != TF_OK) {
-        rc = tf_args_exit_code(st);
-        goto out;
-    }
-    n_jobs = tf_analysis_n_populations(a);
-    if (!(jobs = calloc(n_jobs, sizeof *jobs))) {
-        tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
-        goto out;
-    }
-    for (size_t i = 0; i < n_jobs; i++) {
-        job *j = &jobs[i];
-        j->pop = tf_analysis_population(a, i);
-        j->s = tf_analysis_pop_series(j->pop);
-        j->label = tf_series_label(j->s);
-        j->year0 = last_year(j->s);
-        j->proj = tf_analysis_pop_projection(j->pop);
-        if (job_dir(o, sv, j, &err) != TF_OK) {
-            rc = TF_EXIT_USAGE;
-            goto out;
-        }
-    }
-    rc = finish(o, jobs, n_jobs);
-out:
-    rc = end_run(rc, &err, jobs, n_jobs);
-    tf_analysis_free(a);
+    jobs_free(jobs, n_jobs);
+    tf_forecast_free(f);
     tf_survey_free(sv);
     return rc;
 }
@@ -1348,18 +1043,13 @@ int tf_cmd_forecast(int argc, char **argv)
     po.horizon = o.years;
     po.n_runs = o.runs;
     po.decline_window = o.decline_window;
-    po.stop = tf_signals_flag();
-    /* A fixed forecast passes its start as the draw's own; a posterior one overrides the draws'. */
-    if (o.from != FROM_FIXED && !isnan(o.start))
-        po.start = o.start;
     tf_project_parse_thresholds(o.thresholds, po.thresholds, TF_PROJECT_MAX_THRESHOLDS, &po.n_thresholds, &err);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
     tf_signals saved;
     tf_signals_catch(&saved);
-    int rc = o.from == FROM_FIXED ? run_fixed(&o, &po) : o.from == FROM_MODEL ? run_model(&o, &po)
-                                                                              : run_average(&o, &po);
+    int rc = run(&o, &po);
     if (rc == TF_EXIT_INTERRUPTED)
         fprintf(stderr, PROG ": interrupted; no tables written\n");
     tf_signals_restore(&saved);

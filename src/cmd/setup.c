@@ -93,6 +93,7 @@ tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *pri
     tf_model_file *user = NULL, *growth = NULL, *obs = NULL;
     tf_prior_set *set = NULL, *defaults = NULL;
     double median = tf_setup_survey_median(s);
+    size_t n0 = err ? err->n_items : 0;
     tf_status st;
     if (priors_path) {
         if ((st = read_file(priors_path, NULL, &user, err)) != TF_OK)
@@ -158,7 +159,9 @@ out:
     tf_model_file_free(user);
     tf_model_file_free(growth);
     tf_model_file_free(obs);
-    return st;
+    /* Whatever the reason (missing, unreadable, malformed, unsuited), the file is an input that
+     * cannot be used: one status, so that every command gives it one exit status. */
+    return st == TF_OK || st == TF_ERR_NOMEM ? st : tf_error_restatus(err, n0, TF_ERR_INVALID);
 }
 
 tf_status tf_setup_default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out,

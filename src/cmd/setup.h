@@ -27,7 +27,9 @@ double tf_setup_survey_median(const tf_series *s);
  * priors_path when that file (may be NULL) has a section for it, else from the defaults: the
  * growth model's file (<growth>.ini) and the counting-error file (observation.ini). The user's
  * file may set any subset of the parameters, and only parameters of m. On success the caller
- * frees *out with tf_prior_set_free. Errors carry the model file's path and line. */
+ * frees *out with tf_prior_set_free. Errors carry the model file's path and line; their status is
+ * TF_ERR_INVALID (a model or priors file that cannot be read or used is an unusable input, exit
+ * status 3 through tf_args_exit_code) or TF_ERR_NOMEM. */
 tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *priors_path,
                           tf_prior_set **out, tf_error *err);
 

@@ -126,7 +126,7 @@ double tf_project_band_level(tf_band b)
     return (unsigned)b < TF_BAND_COUNT ? band_levels[b] : NAN;
 }
 
-static tf_status check_options(const tf_project_options *o, tf_error *err)
+tf_status tf_project_check_options(const tf_project_options *o, tf_error *err)
 {
     if (o->horizon < 1 || o->horizon > TF_PROJECT_MAX_HORIZON)
         return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, NULL, "projection horizon %zu is outside 1..%d years",
@@ -404,7 +404,7 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
                          tf_rng *rng, tf_projection **out, tf_error *err)
 {
     *out = NULL;
-    tf_status st = check_options(opts, err);
+    tf_status st = tf_project_check_options(opts, err);
     if (st)
         return st;
     if (n_inputs == 0 || n_inputs > TF_PROJECT_MAX_INPUTS)
@@ -575,4 +575,10 @@ double tf_projection_decline_prob(const tf_projection *p, size_t w, size_t d)
 double tf_projection_decline_se(const tf_projection *p, size_t w, size_t d)
 {
     return tf_project_se(tf_projection_decline_prob(p, w, d), p->n_runs);
+}
+
+void tf_project_stream(tf_rng *rng, uint64_t seed, const char *population)
+{
+    uint64_t keys[2] = {tf_rng_key("projection"), tf_rng_key(population)};
+    tf_rng_derive(rng, seed, keys, 2);
 }

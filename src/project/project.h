@@ -5,6 +5,7 @@
 #define TF_PROJECT_H
 
 #include <signal.h>
+#include <limits.h>
 #include <stddef.h>
 
 #include "model/model.h"
@@ -28,6 +29,10 @@
  * a strong negative feedback) would otherwise produce. A run at a bound stays a valid number. */
 #define TF_PROJECT_LOG_MAX 50.0
 #define TF_PROJECT_LOG_MIN (-50.0)
+
+/* The calendar year of a projection's year 0 when it is not known (a projection from given
+ * values without a survey): the tables then leave the year cells empty. */
+#define TF_PROJECTION_NO_YEAR INT_MIN
 
 /* A quasi-extinction threshold: an absolute abundance (relative == 0, value > 0 animals), or a
  * fraction of each run's starting abundance (relative == 1, 0 < value <= 1; "20%" is 0.2). */
@@ -115,6 +120,18 @@ typedef struct tf_projection tf_projection;
  * advanced by an unspecified amount. */
 tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const tf_project_options *opts,
                          tf_rng *rng, tf_projection **out, tf_error *err);
+
+/* The checks tf_project_run makes of its options (horizon, runs, thresholds, declines, window,
+ * start), for callers that refuse bad settings before long work that comes first. TF_OK, or
+ * TF_ERR_RANGE naming the first bad setting. */
+tf_status tf_project_check_options(const tf_project_options *opts, tf_error *err);
+
+/* Seeds rng with the stream of the projection of a population's posterior (one model's or the
+ * model average): derived from seed and the population's label ("" = unnamed) only, so that a
+ * population gets the same futures alone or among others, and `forecast --model M` and
+ * `analyze` / `forecast --average` over the one candidate M draw the very same futures. Every
+ * caller that projects a posterior takes its stream from here. */
+void tf_project_stream(tf_rng *rng, uint64_t seed, const char *population);
 
 void tf_projection_free(tf_projection *p); /* accepts NULL */
 

@@ -4,8 +4,6 @@
 #ifndef TF_PROJECTION_TABLES_H
 #define TF_PROJECTION_TABLES_H
 
-#include <limits.h>
-
 #include "export/table.h"
 #include "project/project.h"
 #include "util/error.h"
@@ -22,9 +20,6 @@ enum {
 #define TF_PROJECTION_BANDS_NAME "projection"
 #define TF_PROJECTION_RISK_NAME "risk"
 #define TF_PROJECTION_DECLINES_NAME "declines"
-
-/* year0 for "calendar year unknown": the year cells are then left empty. */
-#define TF_PROJECTION_NO_YEAR INT_MIN
 
 /* Whose projection it is. Strings are borrowed. */
 typedef struct {

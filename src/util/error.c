@@ -62,6 +62,13 @@ tf_status tf_error_status(const tf_error *err)
     return (err && err->n_items) ? err->items[0].status : TF_OK;
 }
 
+tf_status tf_error_restatus(tf_error *err, size_t from, tf_status st)
+{
+    for (size_t i = from; err && i < err->n_items; i++)
+        err->items[i].status = st;
+    return st;
+}
+
 void tf_error_print(const tf_error *err, const char *prog, FILE *out)
 {
     if (!err)

@@ -56,6 +56,12 @@ tf_status tf_error_add(tf_error *err, tf_status status, const char *file, long l
 /* The status of the first message, or TF_OK when the record is empty. */
 tf_status tf_error_status(const tf_error *err);
 
+/* Gives the messages err received from index from on (err->n_items before the call that failed)
+ * the status st, and returns st: for a caller that judges what a callee's failure means at its
+ * own level (a model file that cannot be read is, to a command that fits, an unusable input), so
+ * that one failure has one status whichever path met it. err may be NULL. */
+tf_status tf_error_restatus(tf_error *err, size_t from, tf_status st);
+
 /* The one printer of errors: every message as "prog: error: what", or "prog: error:
  * file:line:column: what" when it names a place in a file (the form of the commands' warnings),
  * each followed by "  hint: ..." when it has one, then a count of dropped messages. prog is the

@@ -39,6 +39,28 @@ START_TEST(error_record_caps_and_counts)
 END_TEST
 
 /* One format for every error: "prog: error: [file[:line[:column]]: ]what", then the hint. */
+START_TEST(error_restatus_from_an_index)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "first");
+    size_t from = err.n_items;
+    tf_error_add(&err, TF_ERR_IO, "a.ini", 3, 0, "a hint", "cannot open");
+    tf_error_add(&err, TF_ERR_PARSE, "a.ini", 4, 0, NULL, "bad key");
+    ck_assert_int_eq(tf_error_restatus(&err, from, TF_ERR_INVALID), TF_ERR_INVALID);
+    /* The earlier message keeps its status; the later ones change status only. */
+    ck_assert_int_eq(err.items[0].status, TF_ERR_USAGE);
+    ck_assert_int_eq(err.items[1].status, TF_ERR_INVALID);
+    ck_assert_int_eq(err.items[2].status, TF_ERR_INVALID);
+    ck_assert_str_eq(err.items[1].what, "cannot open");
+    ck_assert_str_eq(err.items[1].file, "a.ini");
+    ck_assert_int_eq(err.items[1].line, 3);
+    ck_assert_str_eq(err.items[1].hint, "a hint");
+    ck_assert_int_eq(tf_error_status(&err), TF_ERR_USAGE);
+    ck_assert_int_eq(tf_error_restatus(NULL, 0, TF_ERR_NOMEM), TF_ERR_NOMEM);
+}
+END_TEST
+
 START_TEST(error_print_one_format)
 {
     tf_error err;
@@ -142,6 +164,7 @@ static Suite *make_suite(void)
     tcase_set_timeout(tc, 60);
     tcase_add_test(tc, status_table_matches_enum);
     tcase_add_test(tc, error_record_caps_and_counts);
+    tcase_add_test(tc, error_restatus_from_an_index);
     tcase_add_test(tc, error_print_one_format);
     tcase_add_test(tc, streams_reproduce_and_differ);
     tcase_add_test(tc, normals_have_normal_distribution);

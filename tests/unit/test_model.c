@@ -8,6 +8,8 @@
 
 #include <gsl/gsl_rng.h>
 
+#include "analysis/analysis.h"
+#include "compare/compare.h"
 #include "model/model.h"
 #include "survey/series.h"
 #include "util/rng.h"
@@ -46,6 +48,8 @@ static void check_rows(size_t n, const char *(*name_at)(size_t), const char *(*l
         w += (size_t)snprintf(want + w, sizeof want - w, "%s%s", i ? ", " : "", name);
         ck_assert_uint_lt(w, sizeof want);
     }
+    /* The commands print the list from a buffer of 256 bytes (the hint of an unknown name). */
+    ck_assert_msg(w < 256, "the list of names is %zu bytes: widen the buffers of tf_model_new and the commands", w);
     list(got, sizeof got);
     ck_assert_str_eq(got, want);
     for (size_t u = 0; u < n_used; u++) {
@@ -75,6 +79,11 @@ START_TEST(table_lists_every_model)
     ck_assert_ptr_null(tf_model_find_obs(NULL));
     ck_assert_ptr_null(tf_model_growth_at(tf_model_n_growth()));
     ck_assert_ptr_null(tf_model_obs_at(tf_model_n_obs()));
+    /* The layers above hold names and candidates in fixed arrays: every pair of the table must fit
+     * a comparison, and every name the analysis's lists, or "all" would be refused or cut short. */
+    ck_assert_uint_le(tf_model_n_growth() * tf_model_n_obs(), TF_COMPARE_MAX_MODELS);
+    ck_assert_uint_le(tf_model_n_growth(), TF_ANALYSIS_MAX_NAMES);
+    ck_assert_uint_le(tf_model_n_obs(), TF_ANALYSIS_MAX_NAMES);
     /* A list cut short by its buffer stays a terminated string. */
     char buf[12];
     tf_model_list_obs(buf, sizeof buf);

@@ -8,7 +8,11 @@ tmp=$(mktemp -d); trap 'rm -rf "$tmp"' EXIT
 make -s --no-print-directory install PREFIX="$tmp/usr" >"$tmp/log" 2>&1 || { cat "$tmp/log"; exit 1; }
 fail() { echo "install.sh: $*"; exit 1; }
 [ -x "$tmp/usr/bin/tallyfit" ] || fail "no binary"
-for m in exponential ricker gompertz theta-logistic observation; do
+# A model file for every growth model of the installed program's table, and the observation file.
+T=$tmp/usr/bin/tallyfit
+. tests/e2e/lib/models.bash
+growth=$(tf_model_list growth) || exit 1
+for m in $growth observation; do
   [ -f "$tmp/usr/share/tallyfit/models/$m.ini" ] || fail "model file $m.ini missing"
 done
 page=$tmp/usr/share/man/man1/tallyfit.1

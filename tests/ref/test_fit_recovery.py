@@ -46,6 +46,17 @@ CASES = [
 ]
 
 
+def growth_models():
+    """The growth models of the program's table, from the hint of an unknown name (src/model/model.c),
+    so that a model added to the table without a case in CASES fails here by name."""
+    r = subprocess.run([TALLYFIT, "likelihood", os.devnull, "--model", ".", "--set", "r=1"],
+                       capture_output=True, text=True)
+    for line in r.stderr.splitlines():
+        if line.startswith("  hint: known growth models: "):
+            return line.split(": ", 2)[2].split(", ")
+    raise SystemExit(f"test_fit_recovery: {TALLYFIT} gave no list of growth models: {r.stderr!r}")
+
+
 def run(*args):
     return subprocess.run([TALLYFIT, *args], capture_output=True, text=True, check=True)
 
@@ -147,6 +158,10 @@ def calibration(tmp):
 
 
 def main():
+    missing = [g for g in growth_models() if g not in {case[0] for case in CASES}]
+    if missing:
+        print(f"test_fit_recovery: FAILED: no recovery case (CASES) for the growth models {missing}")
+        return 1
     with tempfile.TemporaryDirectory() as tmp:
         ok = coverage(tmp)
         if VALIDATE:

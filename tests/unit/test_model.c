@@ -8,6 +8,8 @@
 
 #include <gsl/gsl_rng.h>
 
+#include "analysis/analysis.h"
+#include "compare/compare.h"
 #include "model/model.h"
 #include "survey/series.h"
 #include "util/rng.h"
@@ -22,26 +24,71 @@ static tf_model *make(const char *g, const char *o)
     return m;
 }
 
+/* The table itself, whatever it holds: adding a model (DEVELOPERS.md, "Adding a growth model")
+ * must not break this test, so nothing here counts the rows or spells their list. The names the
+ * other tests use must be there, every row must be found by its own name, names must be unique
+ * and fit in a file name, and the printed lists must follow the table's order. */
+static void check_rows(size_t n, const char *(*name_at)(size_t), const char *(*label_at)(size_t),
+                       size_t (*n_params_at)(size_t), int (*found)(size_t), void (*list)(char *, size_t),
+                       const char *const *used, size_t n_used)
+{
+    char want[512] = "", got[512];
+    size_t w = 0;
+    ck_assert_uint_gt(n, 0);
+    for (size_t i = 0; i < n; i++) {
+        const char *name = name_at(i);
+        ck_assert_msg(name && *name && strlen(name) < 24, "row %zu: a name of 1 to 23 characters", i);
+        ck_assert_msg(strspn(name, "abcdefghijklmnopqrstuvwxyz0123456789-") == strlen(name),
+                      "'%s': names are lower case letters, digits and '-' (they name files and streams)", name);
+        ck_assert_msg(label_at(i) && *label_at(i), "'%s' has no label", name);
+        ck_assert_msg(n_params_at(i) < TF_MAX_PARAMS, "'%s' has too many parameters", name);
+        ck_assert_msg(found(i), "'%s' is not found by its own name", name);
+        for (size_t j = 0; j < i; j++)
+            ck_assert_msg(strcmp(name, name_at(j)), "'%s' is in the table twice", name);
+        w += (size_t)snprintf(want + w, sizeof want - w, "%s%s", i ? ", " : "", name);
+        ck_assert_uint_lt(w, sizeof want);
+    }
+    /* The commands print the list from a buffer of 256 bytes (the hint of an unknown name). */
+    ck_assert_msg(w < 256, "the list of names is %zu bytes: widen the buffers of tf_model_new and the commands", w);
+    list(got, sizeof got);
+    ck_assert_str_eq(got, want);
+    for (size_t u = 0; u < n_used; u++) {
+        size_t i = 0;
+        while (i < n && strcmp(name_at(i), used[u]))
+            i++;
+        ck_assert_msg(i < n, "'%s', used throughout the tests, is not in the table", used[u]);
+    }
+}
+
+static const char *g_name(size_t i) { return tf_model_growth_at(i)->name; }
+static const char *g_label(size_t i) { return tf_model_growth_at(i)->label; }
+static size_t g_n_params(size_t i) { return tf_model_growth_at(i)->n_params; }
+static int g_found(size_t i) { return tf_model_find_growth(g_name(i)) == tf_model_growth_at(i); }
+static const char *o_name(size_t i) { return tf_model_obs_at(i)->name; }
+static const char *o_label(size_t i) { return tf_model_obs_at(i)->label; }
+static size_t o_n_params(size_t i) { return tf_model_obs_at(i)->n_params; }
+static int o_found(size_t i) { return tf_model_find_obs(o_name(i)) == tf_model_obs_at(i); }
+
 START_TEST(table_lists_every_model)
 {
     static const char *const growth[] = {"exponential", "ricker", "gompertz", "theta-logistic"};
-    static const char *const obs[] = {"poisson", "lognormal", "negbin"};
-    ck_assert_uint_eq(tf_model_n_growth(), 4);
-    ck_assert_uint_eq(tf_model_n_obs(), 4);
-    for (size_t i = 0; i < 4; i++) {
-        ck_assert_ptr_eq(tf_model_find_growth(growth[i]), tf_model_growth_at(i));
-        ck_assert_str_eq(tf_model_growth_at(i)->name, growth[i]);
-    }
-    for (size_t i = 0; i < 3; i++)
-        ck_assert_ptr_eq(tf_model_find_obs(obs[i]), tf_model_obs_at(i));
+    static const char *const obs[] = {"poisson", "lognormal", "negbin", "lognormal-int"};
+    check_rows(tf_model_n_growth(), g_name, g_label, g_n_params, g_found, tf_model_list_growth, growth, 4);
+    check_rows(tf_model_n_obs(), o_name, o_label, o_n_params, o_found, tf_model_list_obs, obs, 4);
     ck_assert_ptr_null(tf_model_find_growth("logistic"));
     ck_assert_ptr_null(tf_model_find_obs(NULL));
-    ck_assert_ptr_null(tf_model_growth_at(4));
-    char buf[128];
-    tf_model_list_growth(buf, sizeof buf);
-    ck_assert_str_eq(buf, "exponential, ricker, gompertz, theta-logistic");
-    tf_model_list_obs(buf, 12);
-    ck_assert_str_eq(buf, "poisson, lo");
+    ck_assert_ptr_null(tf_model_growth_at(tf_model_n_growth()));
+    ck_assert_ptr_null(tf_model_obs_at(tf_model_n_obs()));
+    /* The layers above hold names and candidates in fixed arrays: every pair of the table must fit
+     * a comparison, and every name the analysis's lists, or "all" would be refused or cut short. */
+    ck_assert_uint_le(tf_model_n_growth() * tf_model_n_obs(), TF_COMPARE_MAX_MODELS);
+    ck_assert_uint_le(tf_model_n_growth(), TF_ANALYSIS_MAX_NAMES);
+    ck_assert_uint_le(tf_model_n_obs(), TF_ANALYSIS_MAX_NAMES);
+    /* A list cut short by its buffer stays a terminated string. */
+    char buf[12];
+    tf_model_list_obs(buf, sizeof buf);
+    ck_assert_uint_eq(strlen(buf), sizeof buf - 1);
+    ck_assert_int_eq(strncmp(buf, o_name(0), strlen(o_name(0)) < 11 ? strlen(o_name(0)) : 11), 0);
 }
 END_TEST
 
@@ -138,42 +185,56 @@ START_TEST(initial_prior_from_series)
 }
 END_TEST
 
-/* The drift kernels against the model equations written out here independently. */
+/* The drift kernels against the model equations, written out here independently of the model
+ * files. Every growth model of the table must have its equation here: a new model fails this
+ * test until its row is added (DEVELOPERS.md, "Adding a growth model"). */
+/* Dennis, Munholland & Scott 1991, Ecol. Monogr. 61:115. */
+static double eq_exponential(const double *p, double x) { return x + p[0]; }
+/* Ricker 1954, J. Fish. Res. Board Can. 11:559, on the log scale (Dennis & Taper 1994). */
+static double eq_ricker(const double *p, double x) { return x + p[0] * (1.0 - exp(x) / p[1]); }
+/* Dennis, Ponciano, Lele, Taper & Staples 2006, Ecol. Monogr. 76:323, eq. 1. */
+static double eq_gompertz(const double *p, double x) { return x + p[0] * (1.0 - x / log(p[1])); }
+/* Gilpin & Ayala 1973, PNAS 70:3590, on the log scale (Sibly et al. 2005, Science 309:607). */
+static double eq_theta_logistic(const double *p, double x) { return x + p[0] * (1.0 - pow(exp(x) / p[1], p[2])); }
+
+static const struct {
+    const char *name;
+    double p[4];
+    double (*eq)(const double *p, double x);
+    double rel_tol; /* pow and exp of large arguments lose a few more digits than the others */
+} drift_equations[] = {
+    {"exponential", {-0.2}, eq_exponential, 1e-14},
+    {"ricker", {0.7, 900.0}, eq_ricker, 1e-12},
+    {"gompertz", {0.7, 900.0}, eq_gompertz, 1e-12},
+    {"theta-logistic", {0.7, 900.0, 2.5}, eq_theta_logistic, 1e-11},
+};
+
 START_TEST(drift_kernels_follow_their_equations)
 {
     double x[] = {-3.0, 0.0, 1.5, 4.2, 6.9, 9.0, 12.0};
     enum { N = sizeof x / sizeof x[0] };
-    double out[N];
-    const tf_growth_type *g;
-    double pe[] = {-0.2};
-    tf_model_find_growth("exponential")->drift(pe, x, out, N);
-    for (int i = 0; i < N; i++)
-        ck_assert_double_eq_tol(out[i], x[i] - 0.2, 1e-14);
-    double pr[] = {0.7, 900.0};
-    tf_model_find_growth("ricker")->drift(pr, x, out, N);
-    for (int i = 0; i < N; i++) {
-        double want = x[i] + 0.7 * (1.0 - exp(x[i]) / 900.0);
-        ck_assert_double_eq_tol(out[i], want, 1e-12 * fmax(1.0, fabs(want)));
+    const size_t n_eq = sizeof drift_equations / sizeof drift_equations[0];
+    for (size_t gi = 0; gi < tf_model_n_growth(); gi++) {
+        const tf_growth_type *g = tf_model_growth_at(gi);
+        size_t e = 0;
+        while (e < n_eq && strcmp(drift_equations[e].name, g->name))
+            e++;
+        ck_assert_msg(e < n_eq, "growth model '%s' has no equation in drift_equations (tests/unit/test_model.c)",
+                      g->name);
+        const double *p = drift_equations[e].p;
+        double out[N], y[N];
+        g->drift(p, x, out, N);
+        for (int i = 0; i < N; i++) {
+            double want = drift_equations[e].eq(p, x[i]);
+            ck_assert_msg(fabs(out[i] - want) <= drift_equations[e].rel_tol * fmax(1.0, fabs(want)),
+                          "%s at x = %g: %.17g, the equation gives %.17g", g->name, x[i], out[i], want);
+        }
+        /* In place (out == x) is allowed. */
+        memcpy(y, x, sizeof y);
+        g->drift(p, y, y, N);
+        for (int i = 0; i < N; i++)
+            ck_assert_double_eq(y[i], out[i]);
     }
-    double pg[] = {0.7, 900.0};
-    tf_model_find_growth("gompertz")->drift(pg, x, out, N);
-    for (int i = 0; i < N; i++) {
-        double want = x[i] + 0.7 * (1.0 - x[i] / log(900.0));
-        ck_assert_double_eq_tol(out[i], want, 1e-12 * fmax(1.0, fabs(want)));
-    }
-    double pt[] = {0.7, 900.0, 2.5};
-    g = tf_model_find_growth("theta-logistic");
-    g->drift(pt, x, out, N);
-    for (int i = 0; i < N; i++) {
-        double want = x[i] + 0.7 * (1.0 - pow(exp(x[i]) / 900.0, 2.5));
-        ck_assert_double_eq_tol(out[i], want, 1e-11 * fmax(1.0, fabs(want)));
-    }
-    /* In place (out == x) is allowed. */
-    double y[N];
-    memcpy(y, x, sizeof y);
-    g->drift(pt, y, y, N);
-    for (int i = 0; i < N; i++)
-        ck_assert_double_eq(y[i], out[i]);
 }
 END_TEST
 
@@ -287,8 +348,18 @@ START_TEST(vector_kernel_equals_scalar_density)
     static const struct {
         const char *name;
         double p;
-    } models[] = {{"poisson", 0}, {"lognormal", 0.25}, {"negbin", 3.5}, {"negbin", 5e5}};
-    for (size_t mi = 0; mi < sizeof models / sizeof models[0]; mi++) {
+    } models[] = {{"poisson", 0}, {"lognormal", 0.25}, {"negbin", 3.5}, {"negbin", 5e5}, {"lognormal-int", 0.25}};
+    const size_t n_models = sizeof models / sizeof models[0];
+    /* Every counting-error model of the table has its row here: a new one fails by name until it has
+     * one (DEVELOPERS.md, "Adding an observation model"). */
+    for (size_t k = 0; k < tf_model_n_obs(); k++) {
+        size_t mi = 0;
+        while (mi < n_models && strcmp(models[mi].name, tf_model_obs_at(k)->name))
+            mi++;
+        ck_assert_msg(mi < n_models, "observation model '%s' has no row in vector_kernel_equals_scalar_density",
+                      tf_model_obs_at(k)->name);
+    }
+    for (size_t mi = 0; mi < n_models; mi++) {
         const tf_obs_type *o = tf_model_find_obs(models[mi].name);
         double p[1] = {models[mi].p}, c[TF_OBS_MAX_CONST];
         for (size_t yi = 0; yi < sizeof ys / sizeof ys[0]; yi++) {

@@ -9,6 +9,7 @@
 
 #include <gsl/gsl_errno.h>
 
+#include "model/model.h"
 #include "model/model_file.h"
 
 static tf_model_file *read_ok(const char *path)
@@ -247,52 +248,73 @@ START_TEST(names_are_checked_against_the_model)
 }
 END_TEST
 
-/* The files shipped in models/ read cleanly, name the parameters the models are expected to
- * have, give every prior a support inside the parameter's range, and resolve survey scaling. */
-static const struct {
-    const char *file;
-    const char *params[5];
-} shipped[] = {
-    {"models/exponential.ini", {"r", "sigma"}},
-    {"models/ricker.ini", {"r", "K", "sigma"}},
-    {"models/gompertz.ini", {"r", "K", "sigma"}},
-    {"models/theta-logistic.ini", {"r", "K", "theta", "sigma"}},
-    {"models/observation.ini", {"tau", "phi"}},
-};
+/* One shipped file: it reads cleanly, names exactly the parameters given, describes itself,
+ * gives every prior a support inside the parameter's range, and resolves survey scaling. */
+static void check_shipped(const char *path, const char *model_name, const char *const *params,
+                          const double *lower, const double *upper, size_t n)
+{
+    tf_model_file *mf = read_ok(path);
+    ck_assert_msg(!strcmp(tf_model_file_name(mf), model_name), "%s: [model] name = %s, want %s", path,
+                      tf_model_file_name(mf), model_name);
+    ck_assert_msg(tf_model_file_n_params(mf) == n, "%s: %zu parameters, the model table has %zu", path,
+                  tf_model_file_n_params(mf), n);
+    ck_assert_uint_gt(strlen(tf_model_file_description(mf)), 20);
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_model_file_check_names(mf, params, n, &err), TF_OK);
+    tf_prior_set *set;
+    ck_assert_int_eq(tf_prior_set_new(n, params, lower, upper, &set, &err), TF_OK);
+    tf_status st = tf_model_file_apply(mf, 350, set, &err);
+    if (st != TF_OK)
+        tf_error_print(&err, "test", stderr);
+    ck_assert_int_eq(st, TF_OK);
+    ck_assert_int_eq(tf_prior_set_check_complete(set, &err), TF_OK);
+    int k_index = tf_prior_set_index(set, "K");
+    if (k_index >= 0) {
+        ck_assert(tf_model_file_needs_survey(mf));
+        ck_assert_double_eq_tol(tf_prior_set_prior(set, (size_t)k_index)->par[0], log(350.0), 1e-12);
+    }
+    tf_prior_set_free(set);
+    tf_model_file_free(mf);
+}
 
+/* The files shipped in models/, taken from the model table rather than listed here, so that a
+ * new model is checked as soon as it is in the table: models/<name>.ini for every growth model
+ * (its parameters and sigma, with the supports of the table), and models/observation.ini with
+ * the parameters of every counting-error model. */
 START_TEST(shipped_files_are_complete)
 {
-    for (size_t i = 0; i < sizeof shipped / sizeof shipped[0]; i++) {
-        tf_model_file *mf = read_ok(shipped[i].file);
+    const char *names[TF_MAX_PARAMS * 4];
+    double lower[TF_MAX_PARAMS * 4], upper[TF_MAX_PARAMS * 4];
+    char path[128];
+    for (size_t i = 0; i < tf_model_n_growth(); i++) {
+        const tf_growth_type *g = tf_model_growth_at(i);
         size_t n = 0;
-        while (n < 5 && shipped[i].params[n])
-            n++;
-        ck_assert_uint_eq(tf_model_file_n_params(mf), n);
-        ck_assert_uint_gt(strlen(tf_model_file_description(mf)), 20);
-        tf_error err;
-        tf_error_init(&err);
-        ck_assert_int_eq(tf_model_file_check_names(mf, shipped[i].params, n, &err), TF_OK);
-        /* Every parameter except r of the exponential model must stay positive. */
-        double lower[5], upper[5];
-        for (size_t k = 0; k < n; k++) {
-            lower[k] = strcmp(shipped[i].params[k], "r") || i > 0 ? 0 : -INFINITY;
-            upper[k] = INFINITY;
+        for (size_t k = 0; k < g->n_params; k++, n++) {
+            names[n] = g->param_names[k];
+            lower[n] = g->lower[k];
+            upper[n] = g->upper[k];
         }
-        tf_prior_set *set;
-        ck_assert_int_eq(tf_prior_set_new(n, shipped[i].params, lower, upper, &set, &err), TF_OK);
-        tf_status st = tf_model_file_apply(mf, 350, set, &err);
-        if (st != TF_OK)
-            tf_error_print(&err, "test", stderr);
-        ck_assert_int_eq(st, TF_OK);
-        ck_assert_int_eq(tf_prior_set_check_complete(set, &err), TF_OK);
-        int k_index = tf_prior_set_index(set, "K");
-        if (k_index >= 0) {
-            ck_assert(tf_model_file_needs_survey(mf));
-            ck_assert_double_eq_tol(tf_prior_set_prior(set, (size_t)k_index)->par[0], log(350.0), 1e-12);
-        }
-        tf_prior_set_free(set);
-        tf_model_file_free(mf);
+        names[n] = "sigma", lower[n] = 0, upper[n] = INFINITY, n++;
+        snprintf(path, sizeof path, "models/%s.ini", g->name);
+        check_shipped(path, g->name, names, lower, upper, n);
     }
+    size_t n = 0;
+    for (size_t i = 0; i < tf_model_n_obs(); i++) {
+        const tf_obs_type *o = tf_model_obs_at(i);
+        for (size_t k = 0; k < o->n_params; k++) {
+            size_t j = 0;
+            while (j < n && strcmp(names[j], o->param_names[k]))
+                j++;
+            if (j < n) /* shared by several models (tau): the widest support */
+                lower[j] = fmin(lower[j], o->lower[k]), upper[j] = fmax(upper[j], o->upper[k]);
+            else {
+                ck_assert_uint_lt(n, sizeof names / sizeof names[0]);
+                names[n] = o->param_names[k], lower[n] = o->lower[k], upper[n] = o->upper[k], n++;
+            }
+        }
+    }
+    check_shipped("models/observation.ini", "observation", names, lower, upper, n);
 }
 END_TEST
 

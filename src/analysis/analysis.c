@@ -401,6 +401,21 @@ const tf_series *tf_analysis_pop_series(const tf_analysis_pop *p) { return p->s;
 const tf_comparison *tf_analysis_pop_comparison(const tf_analysis_pop *p) { return p->cmp; }
 size_t tf_analysis_pop_n_models(const tf_analysis_pop *p) { return p->n_models; }
 const tf_analysis_model *tf_analysis_pop_model(const tf_analysis_pop *p, size_t i) { return &p->models[i]; }
+void tf_analysis_pop_by_probability(const tf_analysis_pop *p, size_t *order)
+{
+    /* An insertion sort: a few dozen candidates at most, and stable. */
+    size_t n = tf_analysis_pop_n_models(p);
+    for (size_t i = 0; i < n; i++) {
+        size_t k = i;
+        double pi = tf_analysis_pop_model(p, i)->probability;
+        while (k > 0 && tf_analysis_pop_model(p, order[k - 1])->probability < pi) {
+            order[k] = order[k - 1];
+            k--;
+        }
+        order[k] = i;
+    }
+}
+
 size_t tf_analysis_pop_best(const tf_analysis_pop *p) { return p->best; }
 size_t tf_analysis_pop_n_growth(const tf_analysis_pop *p) { return p->n_growth; }
 const tf_growth_type *tf_analysis_pop_growth(const tf_analysis_pop *p, size_t i) { return p->growth[i]; }

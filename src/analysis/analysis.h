@@ -138,6 +138,9 @@ size_t tf_analysis_pop_n_models(const tf_analysis_pop *p);
 const tf_analysis_model *tf_analysis_pop_model(const tf_analysis_pop *p, size_t i);
 /* The fitted model of highest posterior probability. */
 size_t tf_analysis_pop_best(const tf_analysis_pop *p);
+/* The models of p in order of decreasing posterior probability into order[0 .. n_models); ties
+ * keep the candidates' order. */
+void tf_analysis_pop_by_probability(const tf_analysis_pop *p, size_t *order);
 /* The growth models among the fitted or failed candidates, in candidate order, with the summed
  * probability of their candidates. */
 size_t tf_analysis_pop_n_growth(const tf_analysis_pop *p);

@@ -134,7 +134,7 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
     snprintf(med, sizeof med, fmt, last->median);
     snprintf(lo, sizeof lo, fmt, last->q025);
     snprintf(hi, sizeof hi, fmt, last->q975);
-    int per_effort = tf_tables_effort_varies(s);
+    int per_effort = tf_tables_per_effort(s);
     fprintf(out, "  abundance in %d: about %s %s (95 %% interval %s to %s)\n", last->year, med,
             per_effort ? "per unit of effort" : "animals", lo, hi);
     fprintf(out, "  best-supported growth model: %s (probability %.2f)\n", tf_analysis_pop_growth(p, g)->label,

@@ -32,6 +32,7 @@
 #include "survey/survey.h"
 #include "tables/columns.h"
 #include "tables/fit_tables.h"
+#include "tables/forecast_tables.h"
 #include "tables/projection_tables.h"
 
 #define CMD "forecast"
@@ -45,9 +46,7 @@
 #define MAX_DRAWS 10000000
 #define MAX_THREADS 256
 /* The three projection tables and the summary that says what was projected, with the cautions. */
-#define SUMMARY_TABLE TF_PROJECTION_N_TABLES
-#define N_TABLES (TF_PROJECTION_N_TABLES + 1)
-#define SUMMARY_NAME "summary"
+#define N_TABLES TF_FORECAST_N_TABLES
 
 /* Where the futures come from. */
 typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
@@ -195,16 +194,6 @@ static tf_status job_dir(const options *o, const tf_survey *sv, const char *labe
     return TF_OK;
 }
 
-/* 1 when the effort is not 1 in every surveyed year: abundances are then per unit of effort. */
-static int per_effort(const tf_series *s)
-{
-    const double *y = tf_series_counts(s), *e = tf_series_effort(s);
-    for (size_t t = 0; t < tf_series_n_years(s); t++)
-        if (!isnan(y[t]) && e[t] != 1)
-            return 1;
-    return 0;
-}
-
 /* The largest R-hat and the smallest bulk or tail ESS over a fit's parameters, NaN ranking
  * worst (tf_fit_health). */
 static void fit_mixing(const tf_fit *f, double *rhat_max, double *ess_min)
@@ -214,203 +203,9 @@ static void fit_mixing(const tf_fit *f, double *rhat_max, double *ess_min)
     *ess_min = h.min_ess;
 }
 
-/* The order of the candidates by posterior probability, highest first (stable). */
-static void by_probability(const tf_analysis_pop *p, size_t *order)
-{
-    size_t n = tf_analysis_pop_n_models(p);
-    for (size_t i = 0; i < n; i++) {
-        size_t k = i;
-        double pi = tf_analysis_pop_model(p, i)->probability;
-        while (k > 0 && tf_analysis_pop_model(p, order[k - 1])->probability < pi) {
-            order[k] = order[k - 1];
-            k--;
-        }
-        order[k] = i;
-    }
-}
-
 /* ---- the tables ------------------------------------------------------------------------------------
- * Built from the result alone (and the survey's path, which the summary names), and written as
- * one group: forecast_tables and write_tables are all the rest of the command needs. */
-
-static const char not_converged[] =
-    "Some chains behind this projection did not pass the convergence checks (R-hat above 1.01 or an "
-    "effective sample size below 400): the draws may not represent the posterior yet. Run longer "
-    "(--iterations, --warmup) before relying on the numbers.";
-
-/* Room for the general cautions and the three of a particular forecast. */
-#define MAX_CAUTIONS 8
-
-/* The cautions of a forecast: the general ones, then what this source of futures leaves out,
- * then the convergence caution when p (NULL: every population of f) needs it. */
-static size_t cautions_for(const tf_forecast *f, const tf_forecast_pop *p, const char **out)
-{
-    const tf_forecast_options *fo = tf_forecast_options_of(f);
-    size_t n = 0;
-    for (size_t i = 0; i < tf_project_n_cautions(); i++)
-        out[n++] = tf_project_caution(i);
-    if (fo->source == TF_FORECAST_FIXED)
-        out[n++] = tf_project_caution_fixed();
-    else if (!isnan(fo->start))
-        out[n++] = tf_project_caution_start();
-    if (p ? !p->converged : !tf_forecast_all_converged(f))
-        out[n++] = not_converged;
-    return n;
-}
-
-#define TRY(call)                \
-    do {                         \
-        if ((st = (call)) != TF_OK) \
-            goto fail;           \
-    } while (0)
-
-/* The population as every table names it: its label, or the survey's name when the survey has
- * none; blank for a forecast without a survey. base holds the survey's name. */
-static const char *population_of(const tf_forecast_pop *p, const char *survey_path, const char *base)
-{
-    return p->label[0] ? p->label : survey_path ? base : "";
-}
-
-static tf_status summary_table(const tf_forecast *f, const tf_forecast_pop *p, const char *survey_path,
-                               tf_table **out, tf_error *err)
-{
-    const tf_forecast_options *fo = tf_forecast_options_of(f);
-    tf_status st = TF_OK;
-    char text[512], note[256];
-    tf_table *t = tf_table_new_summary(SUMMARY_NAME, err);
-    if (!t)
-        return tf_error_status(err) ? tf_error_status(err) : TF_ERR_NOMEM;
-    char base[256];
-    tf_args_survey_name(survey_path ? survey_path : "-", base, sizeof base);
-    TRY(tf_table_set_summary_population(t, population_of(p, survey_path, base), err));
-    TRY(tf_table_add_heading(t, "Forecast", err));
-    TRY(tf_table_add_item_text(t, "Survey", survey_path ? survey_path : "none", NULL, err));
-    if (p->label[0])
-        TRY(tf_table_add_item_text(t, "Population", p->label, NULL, err));
-    if (fo->run.estimates && fo->source != TF_FORECAST_FIXED)
-        TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
-                                   "so only counting-error models of continuous amounts (log-normal) were fitted",
-                                   err));
-    if (fo->source == TF_FORECAST_FIXED) {
-        const tf_growth_type *g = tf_model_growth(p->model);
-        TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --fixed", err));
-        TRY(tf_table_add_item_text(t, "Growth model", g->name, NULL, err));
-        for (size_t k = 0; k <= g->n_params; k++)
-            TRY(tf_table_add_item_number(t, tf_model_param_name(p->model, k), p->theta[k], TF_COL_NUMBER,
-                                         k == g->n_params ? "process-noise sd" : NULL, err));
-        snprintf(text, sizeof text, "%.10g", p->start);
-        TRY(tf_table_add_item_text(t, "Start", text,
-                                   isnan(fo->start) ? "the last surveyed count / effort" : "given with --start", err));
-    } else if (fo->source == TF_FORECAST_MODEL) {
-        const tf_fit *fit = p->fit;
-        const tf_fit_settings *fs = tf_fit_settings_of(fit);
-        double rhat, ess;
-        fit_mixing(fit, &rhat, &ess);
-        TRY(tf_table_add_item_text(t, "Projected from", "the posterior of one fitted model",
-                                   "particle marginal Metropolis-Hastings", err));
-        TRY(tf_table_add_item_text(t, "Model", tf_model_name(p->model), NULL, err));
-        snprintf(note, sizeof note, "%zu chains x %zu kept draws, after %zu warm-up; %zu particles, %s proposal",
-                 tf_fit_n_chains(fit), tf_fit_n_iter(fit), fs->n_warmup, fs->n_particles,
-                 tf_filter_proposal_name(fs->proposal));
-        TRY(tf_table_add_item_number(t, "Posterior draws", (double)tf_fit_n_draws(fit), TF_COL_INTEGER, note, err));
-        TRY(tf_table_add_item_number(t, "R-hat, largest", rhat, TF_COL_NUMBER, "want <= 1.01", err));
-        if (!(rhat <= TF_FIT_RHAT_MAX))
-            TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
-        TRY(tf_table_add_item_number(t, "ESS, smallest", ess, TF_COL_NUMBER, "bulk or tail; want >= 400", err));
-        if (!(ess >= TF_FIT_ESS_MIN))
-            TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
-    } else {
-        const tf_analysis_pop *ap = p->pop;
-        size_t n = tf_analysis_pop_n_models(ap), order[TF_ANALYSIS_MAX_MODELS];
-        by_probability(ap, order);
-        TRY(tf_table_add_item_text(t, "Projected from", "the posterior model average of the fitted candidates",
-                                   "each model's draws weighted by its posterior probability (marginal likelihood, "
-                                   "equal prior weights)", err));
-        for (size_t r = 0; r < n; r++) {
-            const tf_analysis_model *m = tf_analysis_pop_model(ap, order[r]);
-            snprintf(text, sizeof text, "P(%s)", m->name);
-            if (m->state == TF_CANDIDATE_FITTED) {
-                const tf_candidate_figures *fg = tf_comparison_figures(tf_analysis_pop_comparison(ap), order[r]);
-                snprintf(note, sizeof note, "Monte Carlo se %.3g; %zu posterior draws; %zu simulated futures",
-                         fg->prob_se, tf_fit_n_draws(m->fit), tf_forecast_candidate_runs(p, order[r]));
-                TRY(tf_table_add_item_number(t, text, m->probability, TF_COL_PROBABILITY, note, err));
-            } else {
-                TRY(tf_table_add_item_text(t, text, m->state == TF_CANDIDATE_FAILED ? "failed" : "excluded", m->note,
-                                           err));
-            }
-        }
-    }
-    if (fo->source != TF_FORECAST_FIXED) {
-        if (isnan(fo->start))
-            snprintf(text, sizeof text, "each posterior draw's latent abundance in the last survey year");
-        else
-            snprintf(text, sizeof text, "%.10g for every draw", fo->start);
-        TRY(tf_table_add_item_text(t, "Start", text, isnan(fo->start) ? NULL : "given with --start (a what-if)", err));
-    }
-    if (p->year0 != TF_PROJECTION_NO_YEAR)
-        TRY(tf_table_add_item_number(t, "Year 0", p->year0, TF_COL_YEAR, "the last survey year", err));
-    TRY(tf_table_add_item_number(t, "Simulated futures", (double)tf_projection_n_runs(p->projection), TF_COL_INTEGER,
-                                 NULL, err));
-    TRY(tf_table_add_item_number(t, "Years ahead", (double)tf_projection_horizon(p->projection), TF_COL_INTEGER, NULL,
-                                 err));
-    snprintf(text, sizeof text, "%llu", (unsigned long long)fo->run.seed);
-    TRY(tf_table_add_item_text(t, "Seed", text, "the same seed gives the same numbers", err));
-    /* The median time is one number per threshold, so it lives here rather than in the curves. */
-    TRY(tf_table_add_heading(t, "Median time to quasi-extinction", err));
-    for (size_t k = 0; k < tf_projection_n_thresholds(p->projection); k++) {
-        tf_threshold th = tf_projection_threshold(p->projection, k);
-        char label[48];
-        snprintf(text, sizeof text, "Threshold %s", tf_project_threshold_label(&th, label, sizeof label));
-        double mt = tf_projection_median_time(p->projection, k);
-        if (isnan(mt)) {
-            snprintf(note, sizeof note, "the risk stays below 0.5 within %zu years",
-                     tf_projection_horizon(p->projection));
-            TRY(tf_table_add_item_text(t, text, "not reached", note, err));
-        } else {
-            TRY(tf_table_add_item_number(t, text, mt, TF_COL_INTEGER,
-                                         "years ahead: the first year with a risk of 0.5 or more", err));
-        }
-    }
-    TRY(tf_table_add_heading(t, "Cautions", err));
-    const char *cautions[MAX_CAUTIONS];
-    size_t nc = cautions_for(f, p, cautions);
-    for (size_t i = 0; i < nc; i++) {
-        snprintf(text, sizeof text, "Caution %zu", i + 1);
-        TRY(tf_table_add_item_text(t, text, cautions[i], NULL, err));
-    }
-    *out = t;
-    return TF_OK;
-fail:
-    tf_table_free(t);
-    return st;
-}
-
-/* The tables of population p of f into tables (N_TABLES; the caller frees them, also after a
- * failure): the projection tables, each carrying this forecast's cautions beyond the general
- * ones as notes (for readers of the tables in memory; the summary holds all of them in the CSV
- * files), and the summary. */
-static tf_status forecast_tables(const tf_forecast *f, const tf_forecast_pop *p, const char *survey_path,
-                                 tf_table **tables, tf_error *err)
-{
-    char base[256];
-    tf_args_survey_name(survey_path ? survey_path : "-", base, sizeof base);
-    tf_forecast_source from = tf_forecast_options_of(f)->source;
-    tf_projection_place place = {.population = population_of(p, survey_path, base),
-                                 .model = from == TF_FORECAST_AVERAGE ? "average"
-                                          : from == TF_FORECAST_FIXED ? "fixed"
-                                                                        : tf_model_name(p->model),
-                                 .unit = p->series ? tf_tables_unit(p->series) : TF_UNIT_ANIMALS,
-                                 .year0 = p->year0};
-    tf_status st = tf_projection_tables_build(p->projection, &place, tables, err);
-    const char *cautions[MAX_CAUTIONS];
-    size_t nc = cautions_for(f, p, cautions);
-    for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
-        for (size_t i = tf_project_n_cautions(); i < nc && st == TF_OK; i++)
-            st = tf_table_add_note(tables[k], TF_NOTE_CAUTION, cautions[i], err);
-    if (st == TF_OK)
-        st = summary_table(f, p, survey_path, &tables[SUMMARY_TABLE], err);
-    return st;
-}
+ * Built by the table layer from the result alone (tables/forecast_tables.h), and written as one
+ * group here. */
 
 /* Writes every population's tables as one group (fileset.h): either every file is
  * replaced or none is, and folders this call made are taken away again on failure. Signals wait
@@ -468,8 +263,8 @@ static void print_wrapped(FILE *out, const char *first, const char *text)
 /* The cautions once for the whole run; the convergence caution when any population needs it. */
 static void print_cautions(const tf_forecast *f)
 {
-    const char *cautions[MAX_CAUTIONS];
-    size_t n = cautions_for(f, NULL, cautions);
+    const char *cautions[TF_FORECAST_MAX_CAUTIONS];
+    size_t n = tf_forecast_tables_cautions(f, NULL, cautions);
     fputs("\nCautions:\n", stdout);
     for (size_t i = 0; i < n; i++)
         print_wrapped(stdout, "  - ", cautions[i]);
@@ -501,7 +296,7 @@ static void print_source(const tf_forecast *f, const tf_forecast_pop *p)
         printf("\n  start N = %g%s\n", p->start, p->year0 == TF_PROJECTION_NO_YEAR ? "" : " in the last survey year");
         return;
     }
-    const char *unit = per_effort(p->series) ? " per unit of effort" : "";
+    const char *unit = tf_tables_per_effort(p->series) ? " per unit of effort" : "";
     size_t ny = tf_series_n_years(p->series);
     if (fo->source == TF_FORECAST_MODEL) {
         const tf_fit *fit = p->fit;
@@ -522,7 +317,7 @@ static void print_source(const tf_forecast *f, const tf_forecast_pop *p)
         size_t n = tf_analysis_pop_n_models(ap), n_fitted = 0, order[TF_ANALYSIS_MAX_MODELS];
         for (size_t i = 0; i < n; i++)
             n_fitted += tf_analysis_pop_model(ap, i)->state == TF_CANDIDATE_FITTED;
-        by_probability(ap, order);
+        tf_analysis_pop_by_probability(ap, order);
         printf("Forecast%s averaged over %zu fitted model%s by posterior model probability\n", who, n_fitted,
                n_fitted == 1 ? "" : "s");
         printf("  %-28s %8s %7s %8s %8s %7s %6s\n", "model", "P(model)", "se", "draws", "futures", "R-hat", "ESS");
@@ -824,8 +619,15 @@ static int run(const options *o, const tf_project_options *po)
     assert(tf_forecast_n_populations(f) == n_jobs);
     for (size_t i = 0; i < n_jobs; i++)
         jobs[i].p = tf_forecast_population(f, i);
-    for (size_t i = 0; i < n_jobs && st == TF_OK; i++)
-        st = forecast_tables(f, jobs[i].p, o->survey_path, jobs[i].tables, &err);
+    for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
+        char base[256];
+        tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
+        const tf_forecast_pop *fp = jobs[i].p;
+        /* The population as every table names it: its label, or the survey's name when the survey
+         * has none; blank for a forecast without a survey. */
+        const char *population = fp->label[0] ? fp->label : o->survey_path ? base : "";
+        st = tf_forecast_tables_build(f, fp, population, o->survey_path, jobs[i].tables, &err);
+    }
     if (st == TF_OK && *tf_signals_flag())
         st = tf_error_add(&err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "interrupted");
     if (st == TF_OK)

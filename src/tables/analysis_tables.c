@@ -97,23 +97,6 @@ static void model_label(const tf_analysis_model *m, char *buf, size_t size)
     snprintf(buf, size, "%s + %s", m->growth->label, m->obs->label);
 }
 
-/* Models in order of decreasing probability (ties keep the candidate order). */
-static void model_order(const tf_analysis_pop *p, size_t *order)
-{
-    size_t n = tf_analysis_pop_n_models(p);
-    for (size_t i = 0; i < n; i++)
-        order[i] = i;
-    for (size_t i = 1; i < n; i++) {
-        size_t k = order[i], j = i;
-        double pk = tf_analysis_pop_model(p, k)->probability;
-        while (j > 0 && tf_analysis_pop_model(p, order[j - 1])->probability < pk) {
-            order[j] = order[j - 1];
-            j--;
-        }
-        order[j] = k;
-    }
-}
-
 /* The risk windows that lie within the projection. */
 static size_t n_risk_years(const tf_projection *pr)
 {
@@ -161,7 +144,7 @@ static tf_status abundance_sheet(const tf_analysis *a, size_t pi, const tf_analy
         tf_table_free(t);
         return st;
     }
-    int per_effort = tf_tables_effort_varies(s);
+    int per_effort = tf_tables_per_effort(s);
     size_t c_year = tf_table_find_column(t, tf_column_name(TF_C_YEAR));
     size_t c_points = tf_table_find_column(t, tf_column_name(per_effort ? TF_C_COUNT_PER_EFFORT : TF_C_COUNT));
     size_t c_med = tf_table_find_column(t, tf_column_name(TF_C_MEDIAN));
@@ -209,10 +192,10 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
                                    "The futures start from the abundance of the last survey year and are shared among "
                                    "the models in proportion to their posterior probabilities.",
                                    err);
-        if (st == TF_OK && tf_tables_effort_varies(s))
+        if (st == TF_OK && tf_tables_per_effort(s))
             st = tf_table_add_note(t[i], TF_NOTE_INFO,
-                                   "Effort differs between survey years, so abundances and thresholds in animals are "
-                                   "per unit of effort.",
+                                   "Effort is not 1 in every survey year, so abundances and thresholds in animals "
+                                   "are per unit of effort.",
                                    err);
         /* The report owns the table from here on, also when adding fails. */
         tf_table *mine = t[i];
@@ -236,7 +219,7 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
     };
     char title[160];
     snprintf(title, sizeof title, "Projected abundance: %s", pop_title(prov, p));
-    const char *animals = tf_tables_effort_varies(s) ? "Count units per unit effort" : "Animals";
+    const char *animals = tf_tables_per_effort(s) ? "Count units per unit effort" : "Animals";
     tf_report_chart ch = {.kind = TF_CHART_XY, .title = title, .x_title = "Year", .y_title = animals,
                           .data = idx[TF_PROJECTION_TABLE_BANDS], .x_column = c_year, .series = se, .n_series = 3,
                           .place = TF_REPORT_SAME_SHEET};
@@ -302,7 +285,7 @@ static tf_status fit_sheets(const tf_analysis *a, size_t pi, const tf_analysis_t
     size_t order[TF_ANALYSIS_MAX_MODELS];
     tf_tables_model models[TF_ANALYSIS_MAX_MODELS];
     size_t n = tf_analysis_pop_n_models(p);
-    model_order(p, order);
+    tf_analysis_pop_by_probability(p, order);
     table_models(p, order, models);
     const tf_analysis_trend *tr = tf_analysis_pop_trend(p);
     tf_tables_change avg = {tr->mean, tr->median, tr->q025, tr->q975, tr->p_decline, NAN, NAN};

@@ -16,18 +16,14 @@
             goto fail;                                                                                                 \
     } while (0)
 
-int tf_tables_effort_varies(const tf_series *s)
+int tf_tables_per_effort(const tf_series *s)
 {
+    /* The model's abundance is the expected count at effort 1 (obs models: mean = effort x N),
+     * so any surveyed year at another effort makes it a count per unit of effort. */
     const double *y = tf_series_counts(s), *e = tf_series_effort(s);
-    double first = NAN;
-    for (size_t i = 0; i < tf_series_n_years(s); i++) {
-        if (isnan(y[i]))
-            continue;
-        if (isnan(first))
-            first = e[i];
-        else if (e[i] != first)
+    for (size_t i = 0; i < tf_series_n_years(s); i++)
+        if (!isnan(y[i]) && e[i] != 1)
             return 1;
-    }
     return 0;
 }
 
@@ -39,7 +35,7 @@ const char *tf_tables_population(const tf_series *s, const char *fallback)
 
 const char *tf_tables_unit(const tf_series *s)
 {
-    return tf_tables_effort_varies(s) ? TF_UNIT_PER_EFFORT : TF_UNIT_ANIMALS;
+    return tf_tables_per_effort(s) ? TF_UNIT_PER_EFFORT : TF_UNIT_ANIMALS;
 }
 
 /* A new table with `population` and, when with_model, `model` as its first columns. */
@@ -88,7 +84,7 @@ tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, con
     if (!t)
         return tf_error_status(err);
     const tf_series *s = c->series;
-    int per_effort = tf_tables_effort_varies(s);
+    int per_effort = tf_tables_per_effort(s);
     const char *unit = tf_tables_unit(s);
     char legend[200];
     size_t c_year, c_count, c_effort, c_rate, c_unit, c_med, c_q25, c_q75, c_lo, c_hi;
@@ -117,8 +113,8 @@ tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, con
     }
     if (per_effort)
         TRY(tf_table_add_note(t, TF_NOTE_INFO,
-                              "Effort differs between years, so the estimate is the abundance per unit of effort: the "
-                              "expected count is effort times the estimate.",
+                              "Effort is not 1 in every year, so the estimate is the abundance per unit of effort: "
+                              "the expected count is effort times the estimate.",
                               err));
     if (tf_series_n_surveyed(s) < tf_series_n_years(s))
         TRY(tf_table_add_notef(t, TF_NOTE_INFO, err,

@@ -48,11 +48,11 @@ typedef struct {
  * survey has no population column. */
 const char *tf_tables_population(const tf_series *s, const char *fallback);
 
-/* The unit of the abundances of s: TF_UNIT_PER_EFFORT when effort differs between surveyed years,
+/* The unit of the abundances of s: TF_UNIT_PER_EFFORT when a surveyed year's effort is not 1,
  * else TF_UNIT_ANIMALS. */
 const char *tf_tables_unit(const tf_series *s);
-/* Whether effort differs between the surveyed years of s. */
-int tf_tables_effort_varies(const tf_series *s);
+/* Whether a surveyed year's effort is not 1: abundances are then per unit of effort. */
+int tf_tables_per_effort(const tf_series *s);
 
 /* Each builder returns a new table named by its file stem ("abundance", "change", "parameters",
  * "draws", "diagnostics", "chains") in *out (the caller frees), or fills err (TF_ERR_NOMEM). */

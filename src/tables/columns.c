@@ -91,7 +91,7 @@ static const tf_column vocabulary[N] = {
                        "delayed acceptance: share of proposals the cheap screen rejected without a particle filter "
                        "run (blank when off)",
                        TF_COL_PERCENT},
-    [TF_C_SEED] = {"seed", "Seed", "the chain's random seed", TF_COL_TEXT},
+    [TF_C_SEED] = {"seed", "Seed", "the random seed of the run", TF_COL_INTEGER},
     [TF_C_PROPOSAL] = {"proposal", "Proposal", "how the particle filter moved: guided or bootstrap", TF_COL_TEXT},
     [TF_C_PARETO_K] = {"pareto_k", "Pareto k",
                        "importance-weight diagnostic of the marginal likelihood (above 0.7: unreliable)",
@@ -131,10 +131,11 @@ static const tf_column vocabulary[N] = {
                               TF_COL_PERCENT},
     [TF_C_BEST_GROWTH_MODEL] = {"best_growth_model", "Best growth model",
                                 "growth model of highest posterior probability", TF_COL_TEXT},
-    [TF_C_BEST_GROWTH_PROB] = {"best_growth_prob", "Its probability",
+    [TF_C_BEST_GROWTH_PROB] = {"best_growth_prob", "Best growth model probability",
                                "its posterior probability, summed over the counting-error models", TF_COL_PROBABILITY},
     [TF_C_BEST_MODEL] = {"best_model", "Best model", "model of highest posterior probability", TF_COL_TEXT},
-    [TF_C_BEST_MODEL_PROB] = {"best_model_prob", "Its probability", "its posterior probability", TF_COL_PROBABILITY},
+    [TF_C_BEST_MODEL_PROB] = {"best_model_prob", "Best model probability", "its posterior probability",
+                              TF_COL_PROBABILITY},
     [TF_C_REASON] = {"reason", "Reason", "why the population was not analysed", TF_COL_TEXT},
     [TF_C_FILE] = {"file", "File", "the CSV file, relative to this folder", TF_COL_TEXT},
     [TF_C_SHEET] = {"sheet", "Sheet", "the sheet of the workbook showing the same table (blank: CSV only)",
@@ -176,6 +177,13 @@ tf_status tf_columns_add(tf_table *t, tf_column_id id, const char *legend, size_
 {
     const tf_column *c = tf_column_of(id);
     return add(t, c->name, c->label, legend ? legend : c->legend, c->kind, col, err);
+}
+
+tf_status tf_columns_add_as(tf_table *t, tf_column_id id, const char *legend, tf_col_kind kind, size_t *col,
+                            tf_error *err)
+{
+    const tf_column *c = tf_column_of(id);
+    return add(t, c->name, c->label, legend ? legend : c->legend, kind, col, err);
 }
 
 tf_status tf_columns_add_other(tf_table *t, const char *name, const char *label, const char *legend, tf_col_kind kind,

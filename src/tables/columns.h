@@ -112,6 +112,11 @@ const char *tf_column_name(tf_column_id id);
  * new column's index goes to *col when col is not NULL. Errors as tf_table_add_column. */
 tf_status tf_columns_add(tf_table *t, tf_column_id id, const char *legend, size_t *col, tf_error *err);
 
+/* The same with another display kind than the vocabulary's (whole counts as integers, a change
+ * shown as a percentage). */
+tf_status tf_columns_add_as(tf_table *t, tf_column_id id, const char *legend, tf_col_kind kind, size_t *col,
+                            tf_error *err);
+
 /* A column outside the vocabulary (a model parameter, a risk per threshold and horizon): name
  * must match ^[a-z][a-z0-9_]*$ (TF_ERR_INVALID otherwise); label and legend may be NULL. */
 tf_status tf_columns_add_other(tf_table *t, const char *name, const char *label, const char *legend, tf_col_kind kind,

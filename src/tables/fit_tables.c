@@ -2,6 +2,7 @@
 #include "tables/fit_tables.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -89,7 +90,9 @@ tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, con
     char legend[200];
     size_t c_year, c_count, c_effort, c_rate, c_unit, c_med, c_q25, c_q75, c_lo, c_hi;
     TRY(tf_columns_add(t, TF_C_YEAR, NULL, &c_year, err));
-    TRY(tf_columns_add(t, TF_C_COUNT, NULL, &c_count, err));
+    /* Whole counts shown as whole numbers; estimates (--estimates) as they are. */
+    int whole = tf_series_first_fractional(s) == tf_series_n_years(s);
+    TRY(tf_columns_add_as(t, TF_C_COUNT, NULL, whole ? TF_COL_INTEGER : TF_COL_NUMBER, &c_count, err));
     TRY(tf_columns_add(t, TF_C_EFFORT, NULL, &c_effort, err));
     TRY(tf_columns_add(t, TF_C_COUNT_PER_EFFORT, NULL, &c_rate, err));
     TRY(tf_columns_add(t, TF_C_UNIT, NULL, &c_unit, err));
@@ -155,11 +158,12 @@ tf_status tf_tables_change_of(const tf_tables_context *c, const tf_tables_model 
                        &c_prob, err));
     TRY(tf_columns_add(t, TF_C_FIRST_YEAR, NULL, &c_y0, err));
     TRY(tf_columns_add(t, TF_C_LAST_YEAR, NULL, &c_y1, err));
-    TRY(tf_columns_add(t, TF_C_MEAN, "average annual change from first to last year, posterior mean (a fraction per "
-                                     "year: -0.02 = 2 % decline a year)", &c_mean, err));
-    TRY(tf_columns_add(t, TF_C_MEDIAN, "the same, posterior median", &c_med, err));
-    TRY(tf_columns_add(t, TF_C_LOWER_95, NULL, &c_lo, err));
-    TRY(tf_columns_add(t, TF_C_UPPER_95, NULL, &c_hi, err));
+    /* Changes are fractions a year, shown as percentages. */
+    TRY(tf_columns_add_as(t, TF_C_MEAN, "average annual change from first to last year, posterior mean (a fraction "
+                                        "per year: -0.02 = 2 % decline a year)", TF_COL_PERCENT, &c_mean, err));
+    TRY(tf_columns_add_as(t, TF_C_MEDIAN, "the same, posterior median", TF_COL_PERCENT, &c_med, err));
+    TRY(tf_columns_add_as(t, TF_C_LOWER_95, NULL, TF_COL_PERCENT, &c_lo, err));
+    TRY(tf_columns_add_as(t, TF_C_UPPER_95, NULL, TF_COL_PERCENT, &c_hi, err));
     TRY(tf_columns_add(t, TF_C_P_DECLINE, NULL, &c_p, err));
     TRY(tf_columns_add(t, TF_C_R_HAT, "R-hat of the change (blank for the average)", &c_rhat, err));
     TRY(tf_columns_add(t, TF_C_BULK_ESS, "bulk ESS of the change (blank for the average)", &c_ess, err));
@@ -461,10 +465,15 @@ tf_status tf_tables_chains(const tf_tables_context *c, const tf_tables_model *mo
             size_t col[] = {c_chain, c_acc, c_inv, c_warm, c_run, c_kept, c_thin, c_conv, c_part, c_llsd, c_rho, c_scr};
             for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
                 tf_table_set_number(t, row, col[k], v[k]);
-            char seed[32];
-            snprintf(seed, sizeof seed, "%llu", (unsigned long long)fs->seed);
             TRY(tf_table_set_text(t, row, c_method, fs->correlated ? "correlated" : "standard", err));
-            TRY(tf_table_set_text(t, row, c_seed, seed, err));
+            /* A number when a double holds it exactly (below 2^53), else its digits as text. */
+            if (fs->seed <= (UINT64_C(1) << 53)) {
+                tf_table_set_number(t, row, c_seed, (double)fs->seed);
+            } else {
+                char seed[32];
+                snprintf(seed, sizeof seed, "%llu", (unsigned long long)fs->seed);
+                TRY(tf_table_set_text(t, row, c_seed, seed, err));
+            }
             TRY(tf_table_set_text(t, row, c_prop, tf_filter_proposal_name(fs->proposal), err));
         }
     }

@@ -125,16 +125,8 @@ static tf_status abundance_sheet(const tf_analysis *a, size_t pi, const tf_analy
     const tf_analysis_pop *p = tf_analysis_population(a, pi);
     const tf_series *s = tf_analysis_pop_series(p);
     size_t n = tf_series_n_years(s);
-    tf_tables_year *years = calloc(n ? n : 1, sizeof *years);
-    if (!years)
-        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
-    for (size_t i = 0; i < n; i++) {
-        const tf_analysis_year *y = tf_analysis_pop_year(p, i);
-        years[i] = (tf_tables_year){y->year, y->count, y->effort, y->median, y->q25, y->q75, y->q025, y->q975};
-    }
     tf_table *t = NULL;
-    tf_status st = tf_tables_abundance(c, "average", years, n, &t, err);
-    free(years);
+    tf_status st = tf_tables_abundance(c, "average", tf_analysis_pop_year(p, 0), n, &t, err);
     if (st == TF_OK)
         st = tf_table_add_notef(t, TF_NOTE_INFO, err,
                                 "Counts and the estimated true abundance of each year, averaged over the %zu fitted "

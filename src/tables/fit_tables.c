@@ -77,7 +77,7 @@ static tf_status finish(tf_table *t, tf_status st, tf_table **out)
 
 /* ---- abundance ---- */
 
-tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, const tf_tables_year *years, size_t n,
+tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, const tf_analysis_year *years, size_t n,
                               tf_table **out, tf_error *err)
 {
     tf_status st = TF_OK;
@@ -103,7 +103,7 @@ tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, con
     TRY(tf_columns_add(t, TF_C_LOWER_95, NULL, &c_lo, err));
     TRY(tf_columns_add(t, TF_C_UPPER_95, NULL, &c_hi, err));
     for (size_t i = 0; i < n; i++) {
-        const tf_tables_year *y = &years[i];
+        const tf_analysis_year *y = &years[i];
         size_t row;
         TRY(begin_row(t, c, model, &row, err));
         int surveyed = !isnan(y->count);
@@ -130,12 +130,12 @@ fail:
 tf_status tf_tables_abundance_fit(const tf_tables_context *c, const tf_tables_model *m, tf_table **out, tf_error *err)
 {
     size_t n = tf_fit_n_years(m->fit);
-    tf_tables_year *y = calloc(n ? n : 1, sizeof *y);
+    tf_analysis_year *y = calloc(n ? n : 1, sizeof *y);
     if (!y)
         return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
     for (size_t i = 0; i < n; i++) {
         const tf_fit_year_summary *s = tf_fit_year(m->fit, i);
-        y[i] = (tf_tables_year){s->year, s->count, s->effort, s->median, s->q25, s->q75, s->q025, s->q975};
+        y[i] = (tf_analysis_year){s->year, s->count, s->effort, s->median, s->q25, s->q75, s->q025, s->q975};
     }
     tf_status st = tf_tables_abundance(c, m->name, y, n, out, err);
     free(y);

@@ -7,6 +7,7 @@
 
 #include <stddef.h>
 
+#include "analysis/analysis.h"
 #include "export/table.h"
 #include "model/prior.h"
 #include "sampler/fit.h"
@@ -31,13 +32,6 @@ typedef struct {
     int omit_seconds;             /* leave the seconds blank, so that files compare byte for byte */
 } tf_tables_context;
 
-/* A year of abundance: the fit's or a model average's (same fields as tf_fit_year_summary). */
-typedef struct {
-    int year;
-    double count, effort;         /* count NAN when the year was not surveyed */
-    double median, q25, q75, q025, q975;
-} tf_tables_year;
-
 /* The average annual change (a fraction per year) of one model or of the average. */
 typedef struct {
     double mean, median, q025, q975, p_decline;
@@ -57,8 +51,9 @@ int tf_tables_per_effort(const tf_series *s);
 /* Each builder returns a new table named by its file stem ("abundance", "change", "parameters",
  * "draws", "diagnostics", "chains") in *out (the caller frees), or fills err (TF_ERR_NOMEM). */
 
-/* Counts and estimated abundance per year under model (its name or "average"). */
-tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, const tf_tables_year *years, size_t n,
+/* Counts and estimated abundance per year under model (its name or "average"); the years are the
+ * model average's (analysis.h), or a fit's in the same form. */
+tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, const tf_analysis_year *years, size_t n,
                               tf_table **out, tf_error *err);
 /* The same from a fit's own years. */
 tf_status tf_tables_abundance_fit(const tf_tables_context *c, const tf_tables_model *m, tf_table **out, tf_error *err);

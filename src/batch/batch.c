@@ -760,24 +760,18 @@ static tf_status about_table(const tf_batch *b, tf_table **out, tf_error *err)
 tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t *stop, tf_error *err)
 {
     char path[PATH_BUF];
-    char *csv = NULL, *times = NULL;
-    size_t len = 0, tlen = 0;
-    tf_table *rows = NULL, *about = NULL;
+    tf_table *rows = NULL, *about = NULL, *times = NULL;
     tf_workbook *wb = NULL;
     tf_status st = TF_OK;
-    FILE *f = open_memstream(&csv, &len), *g = open_memstream(&times, &tlen);
-    if (!f || !g) {
-        st = nomem(err);
-        goto done;
-    }
-    if (!(rows = tf_populations_table_new(&b->o.analysis.project, "Populations", err))) {
+    if (!(rows = tf_populations_table_new(&b->o.analysis.project, "Populations", err)) ||
+        !(times = tf_batch_timings_new(err))) {
         st = tf_error_status(err) != TF_OK ? tf_error_status(err) : TF_ERR_NOMEM;
         goto done;
     }
     tf_table_set_filter(rows, 1);
-    fprintf(f, "%s\r\n", b->header);
-    fprintf(g, "%s,%s,%s\r\n", tf_column_name(TF_C_POPULATION), tf_column_name(TF_C_STATUS),
-            tf_column_name(TF_C_SECONDS));
+    /* Each population's row is kept as the CSV line its folder holds (the form that comes back
+     * from an earlier run or another process); read back, it is written again to the same bytes,
+     * so that the rows of the folders concatenate into the combined table. */
     for (size_t i = 0; i < b->n && st == TF_OK; i++) {
         const item *it = &b->items[i];
         char *pending = NULL;
@@ -788,27 +782,12 @@ tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t 
                 break;
             line = pending;
         }
-        fprintf(f, "%s\r\n", line);
         st = tf_populations_table_add_line(rows, line, err);
-        /* The label as the summary writes it (quoted when it must be): the first field. */
-        size_t k = 0;
-        for (int q = 0; line[k] && (q || line[k] != ','); k++)
-            if (line[k] == '"')
-                q = !q;
-        char num[TF_CSV_NUMBER_MAX];
-        if (it->state == TF_BATCH_PENDING)
-            num[0] = '\0';
-        else
-            tf_csv_format_number(it->seconds, num, sizeof num);
-        fprintf(g, "%.*s,%s,%s\r\n", (int)k, line, tf_batch_state_name(it->state), num);
+        if (st == TF_OK)
+            st = tf_batch_timings_add(times, it->label, tf_batch_state_name(it->state),
+                                      it->state == TF_BATCH_PENDING ? NAN : it->seconds, err);
         free(pending);
     }
-    if (fclose(f) != 0 || fclose(g) != 0) {
-        f = g = NULL;
-        st = st != TF_OK ? st : nomem(err);
-        goto done;
-    }
-    f = g = NULL;
     if (st != TF_OK)
         goto done;
     tf_table_add_note(rows, TF_NOTE_INFO,
@@ -835,24 +814,18 @@ tf_status tf_batch_write_summary(const tf_batch *b, const volatile sig_atomic_t 
     wb = NULL;
     if (st != TF_OK)
         goto done;
-    if ((st = join(path, sizeof path, b->o.root, TF_BATCH_SUMMARY_CSV, err)) != TF_OK ||
-        (st = write_text(path, csv, b->o.survey_path, err)) != TF_OK)
-        goto done;
-    if ((st = join(path, sizeof path, b->o.root, TF_BATCH_FIRST_PAGE_CSV, err)) != TF_OK ||
-        (st = tf_csv_write(about, path, b->o.survey_path, err)) != TF_OK)
-        goto done;
-    if ((st = join(path, sizeof path, b->o.root, TF_BATCH_TIMINGS_CSV, err)) == TF_OK)
-        st = write_text(path, times, b->o.survey_path, err);
+    const struct {
+        const char *file;
+        const tf_table *t;
+    } files[] = {{TF_BATCH_SUMMARY_CSV, rows}, {TF_BATCH_FIRST_PAGE_CSV, about}, {TF_BATCH_TIMINGS_CSV, times}};
+    for (size_t k = 0; k < sizeof files / sizeof files[0] && st == TF_OK; k++)
+        if ((st = join(path, sizeof path, b->o.root, files[k].file, err)) == TF_OK)
+            st = tf_csv_write(files[k].t, path, b->o.survey_path, err);
 done:
-    if (f)
-        fclose(f);
-    if (g)
-        fclose(g);
     tf_workbook_free(wb);
     tf_table_free(rows);
     tf_table_free(about);
-    free(csv);
-    free(times);
+    tf_table_free(times);
     return st;
 }
 

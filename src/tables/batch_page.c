@@ -4,6 +4,7 @@
 #include <stdio.h>
 
 #include "project/cautions.h"
+#include "tables/columns.h"
 #include "util/version.h"
 
 tf_status tf_batch_page_build(const tf_batch_page *p, tf_table **out, tf_error *err)
@@ -60,4 +61,31 @@ tf_status tf_batch_page_build(const tf_batch_page *p, tf_table **out, tf_error *
     }
     *out = t;
     return TF_OK;
+}
+
+tf_table *tf_batch_timings_new(tf_error *err)
+{
+    tf_table *t = tf_table_new("timings", err);
+    if (t && (tf_columns_add(t, TF_C_POPULATION, NULL, NULL, err) != TF_OK ||
+              tf_columns_add(t, TF_C_STATUS, NULL, NULL, err) != TF_OK ||
+              tf_columns_add(t, TF_C_SECONDS, "seconds the population's analysis took (blank: not done)", NULL, err) !=
+                  TF_OK)) {
+        tf_table_free(t);
+        return NULL;
+    }
+    return t;
+}
+
+tf_status tf_batch_timings_add(tf_table *t, const char *population, const char *status, double seconds,
+                               tf_error *err)
+{
+    size_t row;
+    tf_status st = tf_table_add_row(t, &row, err);
+    if (st == TF_OK)
+        st = tf_table_set_text(t, row, 0, population, err);
+    if (st == TF_OK)
+        st = tf_table_set_text(t, row, 1, status, err);
+    if (st == TF_OK)
+        tf_table_set_number(t, row, 2, seconds);
+    return st;
 }

@@ -16,7 +16,7 @@ M=${TALLYFIT_MPI:-$PWD/build/mpi/tallyfit}
 export TALLYFIT_MODELS=${TALLYFIT_MODELS:-$PWD/models}
 N=${BENCH_POPULATIONS:-200}
 CORES=$(nproc)
-SETTINGS=(--models exponential,ricker --obs poisson --chains 2 --iterations 120 --warmup 40 --draws 100
+SETTINGS=(--model exponential,ricker --obs poisson --chains 2 --iterations 120 --warmup 40 --draws 100
           --particles 40 --runs 200 --years 20 --workbook-limit 0)
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT

@@ -33,11 +33,7 @@
 #define PROG "tallyfit " CMD
 #define DEFAULT_DIR "output"
 /* Limits that only guard memory and time against typos. */
-#define MAX_ITER 10000000
-#define MAX_PARTICLES 10000000
-#define MAX_DRAWS 10000000
 #define MAX_RUNS 10000000
-#define MAX_THREADS 256
 /* Above this many populations analyze runs as a batch: one workbook with nine sheets per
  * population stops being readable, and holding every population's fits until the end (some
  * 20 MB each at the default settings) stops fitting in memory. */
@@ -68,25 +64,13 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --threshold LIST   quasi-extinction thresholds: animals, or percentages of the current\n"
             "                     abundance, e.g. 50,100 or 20%% (default 50%%,20%%,10%%)\n"
             "  --years H          years to project (default %zu)\n"
+            "  --decline-window Y also report declines over Y whole years (e.g. three generations,\n"
+            "                     rounded); declines over 10 years are always reported\n"
             TF_INPUT_HELP
-            "  --models M,...     growth models to compare (default exponential,ricker,gompertz; 'all'\n"
+            "  --model M,...      growth models to compare (default exponential,ricker,gompertz; 'all'\n"
             "                     for every one of %s)\n"
             "  --obs O,...        counting-error models (default poisson,negbin for whole counts,\n"
             "                     lognormal otherwise; 'all' for every one of %s that suits)\n"
-            "  --seed S           random seed (default %llu); the same seed gives the same numbers\n"
-            "  --threads T        threads (default: the number of processors; 1 per MPI process); the\n"
-            "                     results do not depend on T. A batch analyses T populations at a time\n"
-            "  --chains C         chains per model (default %zu)\n",
-            DEFAULT_DIR, d->project.horizon, growth, obs, (unsigned long long)d->seed, d->fit.n_chains);
-    tf_args_run_help(out, &d->fit, 21);
-    fprintf(out,
-            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
-            "  --particles N      particles of the filter (default: tuned per model)\n"
-            TF_ARGS_PROPOSAL_HELP
-            "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
-            "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
-            "  --draws M          importance draws per density for each marginal likelihood, at most\n"
-            "                     (default %zu)\n"
             "  --runs R           simulated futures (default: at least %d)\n"
             "  --batch            analyse the populations as a batch even when there are few (see below)\n"
             "  --fresh            in batch mode: discard the results of an earlier batch in the folder\n"
@@ -96,8 +80,13 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --workbook-draws   put the raw posterior draws in the workbook too (also the batch's\n"
             "                     workbooks per population); by default they are CSV only, since a\n"
             "                     sheet of every draw makes the workbook slow to open\n"
-            "  -q, --quiet        print nothing but errors\n"
-            "  -h, --help         show this help\n\n"
+            "  -h, --help         show this help\n",
+            DEFAULT_DIR, d->project.horizon, growth, obs, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT);
+    tf_args_quiet_help(out, 21);
+    fputs("\nSampler and marginal likelihood:\n", out);
+    tf_args_sampler_help(out, &d->fit, &d->evidence, 21);
+    fprintf(out,
+            "  (--threads: with MPI, 1 per process by default; a batch analyses T populations at a time)\n\n"
             "Batch mode (--batch, more than %d populations, or several MPI processes): the populations\n"
             "are shared among the threads (one population each at a time) or the MPI processes, and\n"
             "each one's tables are written as it finishes into DIR/<survey>/populations/<label>/,\n"
@@ -108,7 +97,7 @@ static void help(FILE *out, const tf_analysis_options *d)
             "when some populations failed (the summary says why), with 2 in a folder made with other\n"
             "settings, and with 130 when interrupted (run it again to go on).\n"
             TF_CMD_HELP_END,
-            d->fit.n_warmup, d->evidence.target_se, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
+            BATCH_AUTO);
 }
 
 /* The plain lines on one population. */
@@ -294,28 +283,20 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 
 static int analyze(int argc, char **argv, int rank, int size)
 {
-    enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
-           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT, OPT_WB_DRAWS,
-           OPT_PROPOSAL, OPT_SKIP,
-           OPT_ESTIMATES };
+    enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_WINDOW, OPT_POP, OPT_MODEL, OPT_OBS, OPT_RUNS, OPT_BATCH, OPT_FRESH,
+           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
         {"years", required_argument, NULL, OPT_YEARS},
+        {"decline-window", required_argument, NULL, OPT_WINDOW},
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
-        {"models", required_argument, NULL, OPT_MODELS},
+        {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
-        {"seed", required_argument, NULL, OPT_SEED},
-        {"threads", required_argument, NULL, OPT_THREADS},
-        {"chains", required_argument, NULL, OPT_CHAINS},
-        TF_ARGS_RUN_LONGOPTS,
-        {"warmup", required_argument, NULL, OPT_WARMUP},
-        {"particles", required_argument, NULL, OPT_PARTICLES},
-        {"proposal", required_argument, NULL, OPT_PROPOSAL},
-        {"draws", required_argument, NULL, OPT_DRAWS},
-        {"ml-se", required_argument, NULL, OPT_ML_SE},
+        TF_ARGS_SAMPLER_LONGOPTS,
+        TF_ARGS_ML_LONGOPTS,
         {"runs", required_argument, NULL, OPT_RUNS},
         {"batch", no_argument, NULL, OPT_BATCH},
         {"fresh", no_argument, NULL, OPT_FRESH},
@@ -332,7 +313,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_error_print(&err, PROG, stderr);
         return TF_EXIT_FAIL;
     }
-    opt.n_threads = tf_args_default_threads(MAX_THREADS);
+    opt.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
     /* Under MPI one process per core is the rule: each takes one thread unless told otherwise. */
     if (size > 1)
         opt.n_threads = 1;
@@ -342,9 +323,8 @@ static int analyze(int argc, char **argv, int rank, int size)
     FILE *errs = rank == 0 ? stderr : NULL;
     const char *out_dir = DEFAULT_DIR;
     char growth_buf[1024], obs_buf[1024];
-    size_t n_particles = 0;
-    tf_args_run run;
-    tf_args_run_init(&run);
+    tf_args_sampler sampler;
+    tf_args_sampler_init(&sampler);
     int quiet = 0;
     tf_input in = {0};
 
@@ -363,28 +343,21 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_YEARS:
             tf_args_parse_size("--years", optarg, 1, TF_PROJECT_MAX_HORIZON, &opt.project.horizon, &err);
             break;
+        case OPT_WINDOW:
+            tf_args_parse_size("--decline-window", optarg, 1, TF_PROJECT_MAX_HORIZON, &opt.project.decline_window,
+                               &err);
+            break;
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
-        case OPT_MODELS:
-            tf_args_model_names("--models", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
+        case OPT_MODEL:
+            tf_args_model_names("--model", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
                                 &opt.n_growth, &all, 1, &err);
             break;
         case OPT_OBS:
             tf_args_model_names("--obs", optarg, obs_buf, sizeof obs_buf, opt.obs, TF_ANALYSIS_MAX_NAMES, &opt.n_obs,
                                 &opt.obs_auto, 0, &err);
             break;
-        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
-        case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
-        case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
-        case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
-        case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
-        case OPT_PROPOSAL:
-            tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
-            opt.evidence.proposal = opt.fit.proposal;
-            break;
-        case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
-        case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;
         case OPT_BATCH: batch = 1; break;
         case OPT_FRESH: fresh = 1; break;
@@ -396,7 +369,7 @@ static int analyze(int argc, char **argv, int rank, int size)
                 help(stdout, &opt);
             return TF_EXIT_OK;
         default:
-            if (!tf_args_run_option(c, optarg, &run, &err))
+            if (!tf_args_sampler_option(c, optarg, &sampler, &err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
             break;
         }
@@ -404,8 +377,10 @@ static int analyze(int argc, char **argv, int rank, int size)
     const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path && tf_error_status(&err) == TF_OK)
         tf_args_no_survey(CMD, &err);
-    if (tf_error_status(&err) == TF_OK)
-        tf_args_run_apply(&run, &opt.fit, &err);
+    if (tf_error_status(&err) == TF_OK) {
+        tf_args_sampler_apply(&sampler, &opt.fit, &opt.evidence, &opt.seed, &opt.n_threads, &err);
+        tf_args_sampler_one_model(&sampler, CMD, &err);
+    }
     if (path && !strcmp(path, "-"))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
                      "analyze needs a survey file: its name names the results and its hash is recorded");
@@ -420,12 +395,7 @@ static int analyze(int argc, char **argv, int rank, int size)
             tf_error_print(&err, PROG, errs);
         return TF_EXIT_USAGE;
     }
-    opt.fit.n_particles = opt.evidence.n_particles = n_particles;
     opt.priors = tf_setup_default_priors;
-    /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion,
-     * as the compare command does. */
-    if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)
-        opt.evidence.n_adapt_draws = opt.evidence.n_draws;
 
     char name[256], xlsx[4096], csv_dir[4096];
     tf_args_survey_name(path, name, sizeof name);
@@ -486,7 +456,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_survey_free(sv);
         sv = NULL;
     }
-    if ((st = tf_input_read(&in, path, quiet ? NULL : errs, PROG, &sv, &err)) != TF_OK) {
+    if ((st = tf_input_read(&in, path, errs, PROG, &sv, &err)) != TF_OK) {
         status = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
@@ -511,8 +481,9 @@ static int analyze(int argc, char **argv, int rank, int size)
             goto out;
         }
     }
-    /* Counts to check are named now, before the long part; the first page lists them too. */
-    if (!quiet)
+    /* Counts to check are named now, before the long part; the first page lists them too. They
+     * are warnings, which --quiet keeps. */
+    if (errs)
         tf_input_warn_outliers(sv, opt.population, path, PROG, errs);
     /* Before the long part: refuse a workbook that would land on the survey, and a file where
      * the CSV folder goes. */

@@ -36,12 +36,8 @@
 #define PROG "tallyfit " CMD
 #define DEFAULT_THRESHOLDS "50%,20%,10%"
 #define DEFAULT_SEED 1u
-/* Limits that only guard memory and time against typos; MAX_RUNS is tf_project_run's own. */
+/* A limit that only guards memory and time against typos; tf_project_run's own. */
 #define MAX_RUNS 10000000u
-#define MAX_ITER 10000000
-#define MAX_PARTICLES 10000000
-#define MAX_DRAWS 10000000
-#define MAX_THREADS 256
 /* The three projection tables and the summary that says what was projected, with the cautions. */
 #define SUMMARY_TABLE TF_PROJECTION_N_TABLES
 #define N_TABLES (TF_PROJECTION_N_TABLES + 1)
@@ -52,19 +48,15 @@ typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
 
 typedef struct {
     const char *survey_path;
-    const char *model, *obs, *population, *out_dir, *priors_path;
+    const char *model, *obs, *population, *out_dir;
     tf_input in;            /* --population list, --skip-unusable, --estimates; population = its single label */
     const char *thresholds;
     int average, quiet, have_fixed;
-    tf_arg_pairs fixed;
+    tf_arg_pairs fixed;      /* --parameter */
     size_t years, runs, decline_window;
     double start;
     uint64_t seed;
-    /* Sampler settings; 0 = the default of the source (no given value can be 0). */
-    size_t chains, warmup, particles, draws, threads;
-    tf_args_run run;         /* run length and thinning (tf_args_run_option) */
-    tf_proposal proposal;
-    const char *sampler_opt; /* the first sampler option given, for the --fixed refusal */
+    tf_args_sampler sampler; /* the sampler's options, as given */
     source from;
 } options;
 
@@ -81,7 +73,7 @@ static void help(FILE *out)
     fprintf(out,
             "usage: tallyfit forecast SURVEY.csv --model M [--obs O] [options]\n"
             "       tallyfit forecast SURVEY.csv --average [--model M,...] [--obs O,...] [options]\n"
-            "       tallyfit forecast [SURVEY.csv] --fixed NAME=VALUE,... [--start N] [options]\n"
+            "       tallyfit forecast [SURVEY.csv] --parameter NAME=VALUE,... [--start N] [options]\n"
             "\n"
             "Simulates the population forward and reports the abundance bands, the risk of falling to or\n"
             "below a threshold (quasi-extinction) and the chance of decline, each with its Monte Carlo error.\n"
@@ -97,7 +89,8 @@ static void help(FILE *out)
             "                          then take comma lists, or 'all', restricting the candidates\n"
             "                          (default exponential,ricker,gompertz with poisson,negbin for whole\n"
             "                          counts, lognormal otherwise)\n"
-            "  --fixed r=..,sigma=..[,K=..]  project from these parameter values (growth parameters and the\n"
+            "  --parameter r=..,sigma=..[,K=..]\n"
+            "                          project from these parameter values (growth parameters and the\n"
             "                          process-noise sd sigma, natural scale); --model picks the growth\n"
             "                          model when the names leave a choice\n"
             "Without one of them the command stops with a usage error rather than start a fit of\n"
@@ -107,12 +100,12 @@ static void help(FILE *out)
             "\n"
             "Projection:\n"
             "  --population LIST       only these populations, labels separated by commas (default:\n"
-            "                          every one in the file; --fixed and --start need one)\n"
+            "                          every one in the file; --parameter and --start need one)\n"
             "  --skip-unusable         leave out, with a warning, every population that cannot be fitted\n"
             "  --estimates             the counts are estimates that need not be whole numbers: only\n"
             "                          counting-error models of continuous amounts (lognormal) are fitted\n"
-            "  --start N               current abundance. --fixed: without it, the last surveyed count /\n"
-            "                          effort. With a posterior, a what-if: every draw starts from N\n"
+            "  --start N               current abundance. With --parameter: by default the last surveyed\n"
+            "                          count / effort. With a posterior, a what-if: every draw starts from N\n"
             "                          instead of its latent abundance, keeping the uncertainty about the\n"
             "                          parameters and leaving out that about the current abundance\n"
             "  --years H               years to project (default %d)\n"
@@ -122,35 +115,22 @@ static void help(FILE *out)
             "                          rounded); declines over 10 years are always reported\n"
             "  --runs R                simulated futures (default %d, or the number of posterior draws\n"
             "                          when that is more)\n"
-            "  --seed S                random seed (default %u); the same seed gives the same numbers\n"
             "  -o, --output DIR        where to write (default output/<survey name>/, or output/forecast/\n"
             "                          without a survey), with one sub-folder per population when the\n"
-            "                          file has several, as fit does\n"
-            "  -q, --quiet             print only the cautions\n"
-            "\n"
-            "Fitting (--model, --average):\n"
-            "  --chains C              chains per model (default %zu)\n",
-            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS, DEFAULT_SEED, d.n_chains);
-    tf_args_run_help(out, &d, 26);
-    fprintf(out,
-            "  --warmup W              discarded iterations per chain while the sampler adapts (default %zu)\n"
-            "  --particles N           particles of the filter (default: tuned per model)\n"
-            "  --proposal P            how the particle filter moves: guided (default; looks at each\n"
-            "                          year's count first) or bootstrap (the growth model alone)\n"
-            "  --priors FILE           --model only: a model file overriding some or all default priors\n"
-            "  --draws M               --average only: importance draws per density for each marginal\n"
-            "                          likelihood, at most (default %zu; fewer once its standard error\n"
-            "                          is at most %.2f, as in analyze)\n"
-            "  --threads T             threads (default: the number of processors); the results do not\n"
-            "                          depend on T\n"
-            "  -h, --help              this text\n"
-            "\n"
-            "Writes forecast_bands.csv (median, 50 %% and 90 %% bands per year), forecast_quasi_extinction.csv\n"
-            "(the cumulative risk per threshold and year, with its Monte Carlo error),\n"
-            "forecast_declines.csv, and forecast_summary.csv (what was projected: the model or the model\n"
-            "probabilities, the posterior draws, the settings, and the cautions), all or none.\n"
-            TF_CMD_HELP_END,
-            d.n_warmup, a.evidence.n_draws, a.evidence.target_se);
+            "                          file has several, as fit does\n",
+            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS);
+    tf_args_quiet_help(out, 26);
+    fputs("  -h, --help              show this help\n\n"
+          "Fitting (--model, --average; --ml-se and --draws with --average only; --seed seeds the\n"
+          "projection too, with --parameter as well):\n", out);
+    tf_args_sampler_help(out, &d, &a.evidence, 26);
+    fputs("\n"
+          "Writes forecast_bands.csv (median, 50 % and 90 % bands per year), forecast_quasi_extinction.csv\n"
+          "(the cumulative risk per threshold and year, with its Monte Carlo error),\n"
+          "forecast_declines.csv, and forecast_summary.csv (what was projected: the model or the model\n"
+          "probabilities, the posterior draws, the settings, and the cautions), all or none.\n"
+          TF_CMD_HELP_END,
+          out);
 }
 
 /* ---- fixed parameters --------------------------------------------------------------------------- */
@@ -221,7 +201,7 @@ static const tf_growth_type *pick_growth(const options *o, const tf_obs_type *ob
     if (n_match == 1)
         return found;
     snprintf(hint, sizeof hint, "choose one with --model; known models: %s", known);
-    tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s growth model takes exactly the parameters given to --fixed",
+    tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s growth model takes exactly the parameters given to --parameter",
                  n_match ? "more than one" : "no");
     return NULL;
 }
@@ -258,14 +238,14 @@ static tf_status fixed_theta(const tf_model *m, const tf_arg_pairs *nv, double *
     for (size_t k = 0; k <= i_sigma; k++) {
         const char *name = tf_model_param_name(m, k);
         if (!given[k]) {
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed does not give %s, which the %s model needs",
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--parameter does not give %s, which the %s model needs",
                               name, g->name);
         } else if (k < i_sigma && !(theta[k] > g->lower[k] && theta[k] < g->upper[k])) {
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed %s = %g is outside the %s model's range (%g, %g)",
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--parameter %s = %g is outside the %s model's range (%g, %g)",
                               name, theta[k], g->name, g->lower[k], g->upper[k]);
         } else if (k == i_sigma && !(theta[k] >= 0)) {
             st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "0 projects without noise",
-                              "--fixed sigma = %g must be 0 or more", theta[k]);
+                              "--parameter sigma = %g must be 0 or more", theta[k]);
         }
     }
     return st;
@@ -433,7 +413,7 @@ static tf_status summary_table(const options *o, const job *j, tf_table **out, t
                                    err));
     if (o->from == FROM_FIXED) {
         const tf_growth_type *g = tf_model_growth(j->model);
-        TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --fixed", err));
+        TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --parameter", err));
         TRY(tf_table_add_item_text(t, "Growth model", g->name, NULL, err));
         for (size_t k = 0; k <= g->n_params; k++)
             TRY(tf_table_add_item_number(t, tf_model_param_name(j->model, k), j->theta[k], TF_COL_NUMBER,
@@ -602,6 +582,8 @@ static void print_cautions(const options *o, const job *jobs, size_t n_jobs)
             cautions[n++] = not_converged;
             break;
         }
+    if (o->quiet)
+        return;
     fputs("\nCautions:\n", stdout);
     for (size_t i = 0; i < n; i++)
         print_wrapped(stdout, "  - ", cautions[i]);
@@ -924,17 +906,6 @@ static int read_populations(const options *o, tf_survey **sv, const tf_series **
     return TF_EXIT_OK;
 }
 
-/* The sampler settings given on the command line, over the defaults in fit: chains, warm-up and
- * the run length (tf_args_run_apply). */
-static tf_status sampler_settings(const options *o, tf_pmmh_options *fit, tf_error *err)
-{
-    if (o->chains)
-        fit->n_chains = o->chains;
-    if (o->warmup)
-        fit->n_warmup = o->warmup;
-    return tf_args_run_apply(&o->run, fit, err);
-}
-
 /* The end of a posterior forecast: prints err unless the run succeeded or was interrupted (finish
  * prints its own errors, and the caller says when the run was interrupted), frees the jobs, and
  * returns rc. */
@@ -957,12 +928,9 @@ static int run_model(const options *o, const tf_project_options *po)
         return tf_messages_usage(PROG, &err);
 
     tf_pmmh_options opt = tf_pmmh_default_options();
-    opt.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
+    opt.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
     opt.seed = o->seed;
-    if (o->particles)
-        opt.n_particles = o->particles;
-    opt.proposal = o->proposal;
-    if (sampler_settings(o, &opt, &err) != TF_OK)
+    if (tf_args_sampler_apply(&o->sampler, &opt, NULL, NULL, NULL, &err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
     int rc = TF_EXIT_FAIL;
@@ -991,7 +959,8 @@ static int run_model(const options *o, const tf_project_options *po)
             goto out;
         if (tf_setup_check_counts(j->model, j->s, o->survey_path, &err) != TF_OK ||
             tf_model_initial_from_series(j->model, j->s, &err) != TF_OK ||
-            tf_setup_priors(j->model, j->s, o->priors_path, &j->priors, &err) != TF_OK ||
+            tf_args_bind_model(j->model, &o->sampler.prior, 0, (double[TF_MAX_PARAMS]){0}, NULL, &err) != TF_OK ||
+            tf_setup_priors(j->model, j->s, o->sampler.prior_file, &j->priors, &err) != TF_OK ||
             tf_posterior_new(j->model, j->priors, &j->post, &err) != TF_OK) {
             rc = TF_EXIT_INPUT;
             goto out;
@@ -1063,16 +1032,8 @@ static int run_average(const options *o, const tf_project_options *po)
     ao.estimates = o->in.estimates;
     ao.project = *po;
     ao.seed = o->seed;
-    ao.n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
-    sampler_settings(o, &ao.fit, &err);
-    ao.fit.n_particles = ao.evidence.n_particles = o->particles;
-    ao.fit.proposal = ao.evidence.proposal = o->proposal;
-    if (o->draws)
-        ao.evidence.n_draws = o->draws;
-    /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion, as
-     * analyze and compare do. */
-    if (ao.evidence.n_adapt_draws > ao.evidence.n_draws)
-        ao.evidence.n_adapt_draws = ao.evidence.n_draws;
+    ao.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
+    tf_args_sampler_apply(&o->sampler, &ao.fit, &ao.evidence, &ao.seed, &ao.n_threads, &err);
     ao.priors = tf_setup_default_priors;
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
@@ -1150,10 +1111,8 @@ out:
 
 /* ---- the command line ---------------------------------------------------------------------------- */
 
-enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
-       OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_WARMUP, OPT_PARTICLES, OPT_PROPOSAL,
-       OPT_PRIORS, OPT_DRAWS, OPT_THREADS, OPT_SKIP,
-           OPT_ESTIMATES };
+enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_PARAMETER,
+       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -1167,20 +1126,13 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
         {"decline-window", required_argument, NULL, OPT_WINDOW},
         {"runs", required_argument, NULL, OPT_RUNS},
-        {"fixed", required_argument, NULL, OPT_FIXED},
+        {"parameter", required_argument, NULL, OPT_PARAMETER},
         {"start", required_argument, NULL, OPT_START},
-        {"seed", required_argument, NULL, OPT_SEED},
         {"population", required_argument, NULL, OPT_POPULATION},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
-        {"chains", required_argument, NULL, OPT_CHAINS},
-        TF_ARGS_RUN_LONGOPTS,
-        {"warmup", required_argument, NULL, OPT_WARMUP},
-        {"particles", required_argument, NULL, OPT_PARTICLES},
-        {"proposal", required_argument, NULL, OPT_PROPOSAL},
-        {"priors", required_argument, NULL, OPT_PRIORS},
-        {"draws", required_argument, NULL, OPT_DRAWS},
-        {"threads", required_argument, NULL, OPT_THREADS},
+        TF_ARGS_SAMPLER_LONGOPTS,
+        TF_ARGS_ML_LONGOPTS,
         {"output", required_argument, NULL, 'o'},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
@@ -1188,7 +1140,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     };
     memset(o, 0, sizeof *o);
     tf_args_pairs_init(&o->fixed);
-    tf_args_run_init(&o->run);
+    tf_args_sampler_init(&o->sampler);
     o->years = TF_PROJECT_DEFAULT_HORIZON;
     o->thresholds = DEFAULT_THRESHOLDS;
     o->start = NAN;
@@ -1197,16 +1149,14 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     optind = 0; /* glibc: 0 restarts the scan, so the command can be run twice in one process */
     int c;
     while ((c = getopt_long(argc, argv, ":o:qh", longs, NULL)) != -1) {
-        /* The sampler's options, named for the refusal under --fixed. */
-        const char *sampler = NULL;
         switch (c) {
         case OPT_MODEL: o->model = optarg; break;
         case OPT_OBS: o->obs = optarg; break;
         case OPT_AVERAGE: o->average = 1; break;
         case OPT_THRESHOLD: o->thresholds = optarg; break;
-        case OPT_FIXED:
+        case OPT_PARAMETER:
             o->have_fixed = 1;
-            tf_args_parse_pairs("--fixed", optarg, &o->fixed, err);
+            tf_args_parse_pairs("--parameter", optarg, &o->fixed, err);
             break;
         case OPT_POPULATION: tf_input_set_population(&o->in, optarg, err); break;
         case OPT_SKIP: o->in.skip_unusable = 1; break;
@@ -1226,43 +1176,14 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
                 tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                              "--start: the current abundance must be > 0 and below 5e21");
             break;
-        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &o->seed, err); break;
-        case OPT_CHAINS:
-            sampler = "--chains";
-            tf_args_parse_size(sampler, optarg, 1, TF_FIT_MAX_CHAINS, &o->chains, err);
-            break;
-        case OPT_WARMUP:
-            sampler = "--warmup";
-            tf_args_parse_size(sampler, optarg, 20, MAX_ITER, &o->warmup, err);
-            break;
-        case OPT_PROPOSAL:
-            sampler = "--proposal";
-            tf_args_parse_proposal(sampler, optarg, &o->proposal, err);
-            break;
-        case OPT_PARTICLES:
-            sampler = "--particles";
-            tf_args_parse_size(sampler, optarg, 1, MAX_PARTICLES, &o->particles, err);
-            break;
-        case OPT_DRAWS:
-            sampler = "--draws";
-            tf_args_parse_size(sampler, optarg, 100, MAX_DRAWS, &o->draws, err);
-            break;
-        case OPT_THREADS:
-            sampler = "--threads";
-            tf_args_parse_size(sampler, optarg, 1, MAX_THREADS, &o->threads, err);
-            break;
-        case OPT_PRIORS:
-            sampler = "--priors";
-            o->priors_path = optarg;
-            break;
         default:
-            if (!(sampler = tf_args_run_option(c, optarg, &o->run, err)))
+            if (!tf_args_sampler_option(c, optarg, &o->sampler, err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], err);
             break;
         }
-        if (sampler && !o->sampler_opt)
-            o->sampler_opt = sampler;
     }
+    if (o->sampler.seed_given)
+        o->seed = o->sampler.seed;
     o->survey_path = tf_args_survey_path(argc, argv, optind, err);
     o->population = tf_input_single(&o->in);
     return 0;
@@ -1273,7 +1194,7 @@ static void check_source(options *o, tf_error *err)
 {
     if (o->average && o->have_fixed) {
         tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                     "--average combines fitted models; with --fixed there is nothing to average");
+                     "--average combines fitted models; with --parameter there is nothing to average");
         return;
     }
     o->from = o->have_fixed ? FROM_FIXED : o->average ? FROM_AVERAGE : o->model ? FROM_MODEL : FROM_NONE;
@@ -1281,13 +1202,13 @@ static void check_source(options *o, tf_error *err)
     case FROM_NONE:
         tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
                      "give --model M [--obs O] to fit one model, --average to fit the candidate models and average "
-                     "them, or --fixed r=...,sigma=... for given values",
+                     "them, or --parameter r=...,sigma=... for given values",
                      o->obs ? "--obs needs --model M (or --average)" : "nothing to project from");
         return;
     case FROM_FIXED:
-        if (o->sampler_opt)
-            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "drop it, or fit with --model M instead of --fixed",
-                         "%s sets up a fit; --fixed projects from given values", o->sampler_opt);
+        if (o->sampler.first)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "drop it, or fit with --model M instead of --parameter",
+                         "%s sets up a fit; --parameter projects from given values", o->sampler.first);
         if (!o->survey_path && isnan(o->start))
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                          "without a survey file, --start N (the current abundance) is required");
@@ -1301,15 +1222,13 @@ static void check_source(options *o, tf_error *err)
         if (strchr(o->model, ',') || (o->obs && strchr(o->obs, ',')))
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "add --average to compare and average several models",
                          "--model and --obs name one model each without --average");
-        if (o->draws)
+        if (o->sampler.first_ml)
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                         "--draws sets the marginal likelihood's importance draws, which only --average estimates");
+                         "%s sets the marginal likelihood's importance draws, which only --average estimates",
+                         o->sampler.first_ml);
         break;
     case FROM_AVERAGE:
-        if (o->priors_path)
-            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "fit one model with --model M --priors FILE",
-                         "--priors applies to one model; the candidates of --average use the default priors, as "
-                         "analyze does");
+        tf_args_sampler_one_model(&o->sampler, "--average", err);
         break;
     }
     if (!o->survey_path)

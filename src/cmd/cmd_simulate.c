@@ -30,7 +30,7 @@ static void help(FILE *out)
     tf_model_list_growth(growth, sizeof growth);
     tf_model_list_obs(obs, sizeof obs);
     fprintf(out,
-            "usage: tallyfit simulate --model M [--obs O] --set NAME=VALUE,... --years N --start N1\n"
+            "usage: tallyfit simulate --model M [--obs O] --parameter NAME=VALUE,... --years N --start N1\n"
             "                         [--first-year Y] [--seed S] [--effort E|E1,E2,...] [--label L] [-o FILE]\n"
             "       tallyfit simulate --populations N [--seed S] [-o FILE]\n\n"
             "Draws annual counts from a state-space population model and writes them as a survey CSV\n"
@@ -45,7 +45,7 @@ static void help(FILE *out)
             "  --model M        growth model: %s\n"
             "  --obs O          counting error: %s (default poisson); lognormal values are\n"
             "                   not whole, so other commands read them with --estimates\n"
-            "  --set NAME=VALUE,...\n"
+            "  --parameter NAME=VALUE,...\n"
             "                   every parameter of the model, e.g. r=0.3,K=800,sigma=0.1,phi=20\n"
             "  --years N        number of years to simulate (%d to %d)\n"
             "  --start N1       abundance in the first year (> 0)\n"
@@ -55,11 +55,14 @@ static void help(FILE *out)
             "                   no effort column); the expected count is effort x abundance\n"
             "  --label L        population name written in a population column\n"
             "  -o, --output FILE\n"
-            "                   write to FILE (replaced only once complete) instead of standard output\n"
-            "  -h, --help       show this help\n"
-            TF_CMD_HELP_END,
+            "                   write to FILE (replaced only once complete) instead of standard output\n",
             SCHEME_MAX, SCHEME_MIN_YEARS, SCHEME_MAX_YEARS, growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN,
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
+    tf_args_quiet_help(out, 19);
+    fputs("                   (the survey written is the command's output)\n"
+          "  -h, --help       show this help\n"
+          TF_CMD_HELP_END,
+          out);
 }
 
 /* Writes the CSV; returns nonzero on a stream error. */
@@ -249,12 +252,12 @@ static int label_ok(const char *s)
 
 int tf_cmd_simulate(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL,
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_PARAMETER, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL,
            OPT_POPULATIONS };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
-        {"set", required_argument, NULL, OPT_SET},
+        {"parameter", required_argument, NULL, OPT_PARAMETER},
         {"years", required_argument, NULL, OPT_YEARS},
         {"start", required_argument, NULL, OPT_START},
         {"first-year", required_argument, NULL, OPT_FIRST},
@@ -263,6 +266,7 @@ int tf_cmd_simulate(int argc, char **argv)
         {"label", required_argument, NULL, OPT_LABEL},
         {"populations", required_argument, NULL, OPT_POPULATIONS},
         {"output", required_argument, NULL, 'o'},
+        {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -281,11 +285,11 @@ int tf_cmd_simulate(int argc, char **argv)
     opterr = 0;
     optind = 0;
     int c;
-    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":o:qh", longopts, NULL)) != -1) {
         switch (c) {
         case OPT_MODEL: single = 1; growth = optarg; break;
         case OPT_OBS: single = 1; obs = optarg; break;
-        case OPT_SET: single = 1; tf_args_parse_pairs("--set", optarg, &set, &err); break;
+        case OPT_PARAMETER: single = 1; tf_args_parse_pairs("--parameter", optarg, &set, &err); break;
         case OPT_YEARS:
             /* The importer's limits, so that every file written can be read back. */
             if (tf_args_parse_size("--years", optarg, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN, &n_years, &err) ==
@@ -304,6 +308,7 @@ int tf_cmd_simulate(int argc, char **argv)
         case OPT_LABEL: label = optarg; break;
         case OPT_POPULATIONS: tf_args_parse_size("--populations", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
         case 'o': output = optarg; break;
+        case 'q': break; /* nothing is printed but the survey, the warnings and the errors */
         case 'h': help(stdout); return TF_EXIT_OK;
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
@@ -333,6 +338,8 @@ int tf_cmd_simulate(int argc, char **argv)
     if (have_years && first_year + (long)n_years - 1 > TF_SURVEY_YEAR_MAX)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--years: %zu years from %ld run past the year %d",
                      n_years, first_year, TF_SURVEY_YEAR_MAX);
+    /* The first year is --start here; a first-year prior means nothing to a simulation. */
+    tf_args_merge_prior(&set, &(tf_arg_pairs){0}, &err);
     if (label && !label_ok(label))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                      "--label: '%s' must have 1 to %d bytes, not start with '#' and contain no comma, quote or "

@@ -19,7 +19,7 @@ FAST=(--iterations 480 --warmup 100 --draws 150 --particles 100 --years 30)
 # (no memory questions; the native and sanitizer runs check them) are left out.
 slow=${TF_VALGRIND:-}
 [ -n "$slow" ] && FAST=(--chains 2 --iterations 60 --thin 1 --warmup 120 --draws 100 --particles 50 --runs 500
-                       --years 30 --models exponential,ricker)
+                       --years 30 --model exponential,ricker)
 export SOURCE_DATE_EPOCH=1700000000
 
 # Population labels in order of first appearance, read with Python's csv module ("" = no label).
@@ -145,7 +145,7 @@ grep -q "no candidate counting-error model suits the counts" "$tmp/stderr" || ba
 
 # A count far from its neighbours (a typed extra zero): warned about before the fits, listed
 # among the first page's cautions with its line, and fitted as it is.
-"$T" analyze tests/data/good/outlier-extra-zero.csv -o "$tmp/outlier" --models exponential --obs poisson "${FAST[@]}" \
+"$T" analyze tests/data/good/outlier-extra-zero.csv -o "$tmp/outlier" --model exponential --obs poisson "${FAST[@]}" \
   >/dev/null 2>"$tmp/stderr" || bad "outlier: exit $?"
 grep -qF "tallyfit analyze: warning: tests/data/good/outlier-extra-zero.csv:18: year 2010: count 3390 is 9.3 times" \
   "$tmp/stderr" || bad "outlier: no warning: $(head -c 300 "$tmp/stderr")"
@@ -190,7 +190,7 @@ usage() {  # expected phrase, arguments...
   [ -s "$tmp/stdout" ] && bad "analyze $*: printed on stdout"
 }
 usage "no survey file given" -o "$tmp/u"
-usage "unknown model 'logistic'" surveys/heron-colony.csv --models logistic -o "$tmp/u"
+usage "unknown model 'logistic'" surveys/heron-colony.csv --model logistic -o "$tmp/u"
 usage "unknown model 'gauss'" surveys/heron-colony.csv --obs gauss -o "$tmp/u"
 usage "threshold 'abc' is not a number" surveys/heron-colony.csv --threshold 50,abc -o "$tmp/u"
 usage "--years" surveys/heron-colony.csv --years 0 -o "$tmp/u"

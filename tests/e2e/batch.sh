@@ -16,10 +16,10 @@ export SOURCE_DATE_EPOCH=1700000000
 # Short runs: this test is about the queue and the files, not about convergence.
 if [ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ]; then
   N=3
-  FAST=(--iterations 80 --warmup 40 --draws 100 --particles 30 --years 10 --runs 100 --models exponential,ricker)
+  FAST=(--iterations 80 --warmup 40 --draws 100 --particles 30 --years 10 --runs 100 --model exponential,ricker)
 else
   N=6
-  FAST=(--iterations 160 --warmup 40 --draws 100 --particles 40 --years 20 --runs 200 --models exponential,ricker)
+  FAST=(--iterations 160 --warmup 40 --draws 100 --particles 40 --years 20 --runs 200 --model exponential,ricker)
 fi
 "$T" simulate --populations $N --seed 11 -o "$tmp/scheme.csv" || { bad "simulate --populations failed"; exit 1; }
 

@@ -91,7 +91,7 @@ PY
 
 # 1. A demo survey of whole counts: count models compared, the continuous log-normal excluded.
 out="$tmp/heron"
-"$T" compare surveys/heron-colony.csv --models $heron_models -o "$out" "${SHORT[@]}" --threads 2 \
+"$T" compare surveys/heron-colony.csv --model $heron_models -o "$out" "${SHORT[@]}" --threads 2 \
   >"$tmp/stdout" 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "heron: exit $rc"; cat "$tmp/stderr" >&2; }
 csv="$out/model-comparison.csv"
@@ -110,7 +110,7 @@ grep -q "file: $csv" "$tmp/stdout" || bad "heron: stdout does not name the file"
 
 # 2. The same seed with one thread: the same file.
 if [ -z "${TF_VALGRIND:-}" ]; then
-  "$T" compare surveys/heron-colony.csv --models $heron_models -o "$tmp/heron1" "${SHORT[@]}" --threads 1 \
+  "$T" compare surveys/heron-colony.csv --model $heron_models -o "$tmp/heron1" "${SHORT[@]}" --threads 1 \
     --quiet 2>/dev/null || bad "heron, 1 thread: failed"
   cmp -s "$csv" "$tmp/heron1/model-comparison.csv" || bad "heron: results differ between 1 and 2 threads"
 fi
@@ -130,11 +130,11 @@ year,count
 2010,18.5
 EOF
 # Without --estimates the fractions are refused where they are read, before any fit.
-"$T" compare "$tmp/index.csv" --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
+"$T" compare "$tmp/index.csv" --model ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 3 ] || bad "index without --estimates: exit $rc, want 3"
 grep -qF "tallyfit compare: error: $tmp/index.csv:2:2: count 12.5 is not a whole number" "$tmp/stderr" || bad "index: $(head -n 1 "$tmp/stderr")"
 [ -e "$tmp/index" ] && bad "index without --estimates: something was written"
-"$T" compare "$tmp/index.csv" --estimates --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
+"$T" compare "$tmp/index.csv" --estimates --model ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "index: exit $rc"; cat "$tmp/stderr" >&2; }
 counts=$(check_csv "$tmp/index/model-comparison.csv") || bad "index: $counts"
 [ "$counts" = "1 0" ] || bad "index: fitted/excluded counts '$counts', want '1 0'"
@@ -145,16 +145,16 @@ grep -q '^ricker+poisson,' "$tmp/index/model-comparison.csv" && bad "index: a co
 grep -qF -- "--obs negbin is a model of whole counts" "$tmp/stderr" || bad "--estimates --obs negbin: $(head -n 1 "$tmp/stderr")"
 
 # 4. Refusals: mixing a density with count probabilities, unknown names, bad weights.
-"$T" compare surveys/heron-colony.csv --models ricker --obs poisson,lognormal -o "$tmp/x" "${SHORT[@]}" \
+"$T" compare surveys/heron-colony.csv --model ricker --obs poisson,lognormal -o "$tmp/x" "${SHORT[@]}" \
   >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 2 ] || bad "mixed scales: exit $rc, want 2"
 grep -q 'cannot be compared' "$tmp/stderr" && grep -q 'lognormal-int' "$tmp/stderr" ||
   bad "mixed scales: message does not explain ($(cat "$tmp/stderr"))"
 [ -e "$tmp/x" ] && bad "mixed scales: output written anyway"
-"$T" compare surveys/heron-colony.csv --models rikker "${SHORT[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+"$T" compare surveys/heron-colony.csv --model rikker "${SHORT[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 2 ] || bad "unknown model: exit $rc, want 2"
 grep -q "unknown growth model 'rikker'" "$tmp/stderr" || bad "unknown model: $(cat "$tmp/stderr")"
-"$T" compare surveys/heron-colony.csv --models ricker --model-weights gompertz+poisson=2 "${SHORT[@]}" \
+"$T" compare surveys/heron-colony.csv --model ricker --model-weights gompertz+poisson=2 "${SHORT[@]}" \
   >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -ne 0 ] && grep -q 'names no candidate' "$tmp/stderr" || bad "weight for a missing model: exit $rc"
 "$T" compare surveys/heron-colony.csv --model-weights ricker=abc >/dev/null 2>&1; rc=$?
@@ -169,7 +169,7 @@ done
 "$T" compare --help | grep -q 'usage: tallyfit compare' || bad "--help"
 
 # 5. Prior model weights enter the probabilities: ricker weighted 3 against exponential 1.
-"$T" compare surveys/heron-colony.csv --models exponential,ricker --obs poisson -o "$tmp/w" "${SHORT[@]}" \
+"$T" compare surveys/heron-colony.csv --model exponential,ricker --obs poisson -o "$tmp/w" "${SHORT[@]}" \
   --model-weights ricker=3 --quiet 2>/dev/null || bad "weights: failed"
 /usr/bin/python3 - "$tmp/w/model-comparison.csv" <<'PY' || bad "weights: prior weights not 0.25 / 0.75"
 import csv, sys

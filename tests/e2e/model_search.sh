@@ -15,7 +15,7 @@ trap 'rm -rf "$tmp"' EXIT
 fails=0
 bad() { echo "model_search.sh: $*" >&2; fails=$((fails + 1)); }
 unset TALLYFIT_MODELS
-FAST=(-q --iterations 480 --warmup 100 --draws 150 --particles 100 --years 30 --models exponential --obs poisson)
+FAST=(-q --iterations 480 --warmup 100 --draws 150 --particles 100 --years 30 --model exponential --obs poisson)
 
 "$T" simulate --populations 2 --seed 3 -o "$tmp/scheme.csv" || bad "simulate failed"
 

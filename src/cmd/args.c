@@ -407,7 +407,10 @@ static tf_status check_prior_names(const tf_arg_pairs *prior, tf_error *err)
 {
     tf_status st = TF_OK;
     for (size_t i = 0; i < prior->n; i++)
-        if (!is_x1(prior->items[i].name))
+        if (!strcmp(prior->items[i].name, TF_ARGS_X1_SD) && !(prior->items[i].value > 0))
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "the first-year prior needs a positive sd",
+                              "--prior: %s = %g is not > 0", TF_ARGS_X1_SD, prior->items[i].value);
+        else if (!is_x1(prior->items[i].name))
             st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
                               "the priors of the model's parameters go in a model file: --prior-file FILE",
                               "--prior takes %s and %s (the first year's log-abundance), not %s", TF_ARGS_X1_MEAN,
@@ -603,14 +606,10 @@ const char *tf_args_sampler_option(int code, const char *text, tf_args_sampler *
         case TF_ARGS_OPT_PRIOR_FILE:
             name = "--prior-file";
             s->prior_file = text;
-            if (!s->first_prior)
-                s->first_prior = name;
             break;
         case TF_ARGS_OPT_PRIOR:
             name = "--prior";
             tf_args_parse_pairs(name, text, &s->prior, err);
-            if (!s->first_prior)
-                s->first_prior = name;
             break;
         case TF_ARGS_OPT_ML_SE:
             name = "--ml-se";
@@ -677,14 +676,12 @@ tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, 
     return tf_error_status(err) != TF_OK ? tf_error_status(err) : st;
 }
 
-tf_status tf_args_sampler_one_model(const tf_args_sampler *s, const char *what, tf_error *err)
+void tf_args_sampler_user(const tf_args_sampler *s, tf_setup_user *u)
 {
-    if (!s->first_prior)
-        return TF_OK;
-    return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
-                        "fit one model with 'tallyfit fit --model M' (or 'forecast --model M') to set its priors",
-                        "%s applies to one model; the candidate models of %s take the default priors",
-                        s->first_prior, what);
+    const tf_arg_pair *mean = tf_args_pairs_get(&s->prior, TF_ARGS_X1_MEAN), *sd = tf_args_pairs_get(&s->prior, TF_ARGS_X1_SD);
+    u->prior_file = s->prior_file;
+    u->x1_mean = mean ? mean->value : NAN;
+    u->x1_sd = sd ? sd->value : NAN;
 }
 
 /* One option's help: its name padded to width, then the text; each further line of text (after
@@ -755,12 +752,12 @@ void tf_args_sampler_help(FILE *out, const tf_pmmh_options *d, const tf_evidence
               "threads (default: the number of processors); the results do not\n"
               "depend on T");
     help_item(out, width, "--prior-file FILE",
-              "a model file overriding some or all default priors of the one\n"
-              "model fitted (refused where several candidates are fitted)");
+              "a model file overriding some or all default priors: of the model\n"
+              "fitted, or of the candidates of the growth model it names (of\n"
+              "every candidate when it names none), each for the parameters it has");
     snprintf(t, sizeof t,
-             "prior of the first year's log-abundance (default: the log of the\n"
-             "mean of the first %d counts / effort, and 1); one model only, as\n"
-             "--prior-file",
+             "prior of the first year's log-abundance, for every model fitted\n"
+             "(default: the log of the mean of the first %d counts / effort, and 1)",
              TF_MODEL_X1_YEARS);
     help_item(out, width, "--prior x1_mean=V,x1_sd=V", t);
     if (!e)

@@ -11,6 +11,7 @@
 
 #include "filter/filter.h"
 #include "model/model.h"
+#include "cmd/setup.h"
 #include "compare/evidence.h"
 #include "sampler/pmmh.h"
 #include "survey/survey.h"
@@ -211,7 +212,6 @@ typedef struct {
     double ml_se;            /* NAN = not given */
     const char *first;       /* the first option of the group given, --seed aside */
     const char *first_ml;    /* the first marginal-likelihood option given */
-    const char *first_prior; /* the first of --prior-file and --prior given */
 } tf_args_sampler;
 
 void tf_args_sampler_init(tf_args_sampler *s);
@@ -230,10 +230,9 @@ const char *tf_args_sampler_option(int code, const char *text, tf_args_sampler *
 tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, tf_evidence_options *ml,
                                 uint64_t *seed, size_t *n_threads, tf_error *err);
 
-/* Refuses --prior-file and --prior where several candidate models are fitted (compare, analyze,
- * forecast --average): a priors file is written for one model, and the candidates take the
- * default priors. what names the command or mode ("compare"). */
-tf_status tf_args_sampler_one_model(const tf_args_sampler *s, const char *what, tf_error *err);
+/* The priors the user set (--prior-file, --prior) as the comparison's priors callback takes them
+ * (setup.h): u borrows s's file name. */
+void tf_args_sampler_user(const tf_args_sampler *s, tf_setup_user *u);
 
 /* Prints the help of the group with the defaults of fit (and, when ml is not NULL, of the
  * marginal likelihood), every option's name padded to width columns: the same text in every

@@ -145,9 +145,10 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
 
 /* ---- batch mode ---- */
 
-/* Hashes of the model files the priors come from, as lines of the batch's settings record: an
- * edited prior changes the numbers, so a batch must not continue across it. */
-static void model_file_lines(const tf_analysis_options *o, char *buf, size_t size)
+/* Hashes of the model files the priors come from, and the priors the user set (--prior-file,
+ * by its hash, and --prior), as lines of the batch's settings record: an edited prior changes
+ * the numbers, so a batch must not continue across it. */
+static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *user, char *buf, size_t size)
 {
     size_t used = 0;
     const char *names[TF_ANALYSIS_MAX_NAMES + 64];
@@ -171,6 +172,16 @@ static void model_file_lines(const tf_analysis_options *o, char *buf, size_t siz
             break;
         used += (size_t)w;
     }
+    /* Written only when given, so that the records of batches without them stay the same. */
+    if (user->prior_file && used < size) {
+        char hex[TF_PROVENANCE_HASH_BUF];
+        if (tf_provenance_hash_file(user->prior_file, hex, NULL) != TF_OK)
+            snprintf(hex, sizeof hex, "missing");
+        int w = snprintf(buf + used, size - used, "prior-file %s\n", hex);
+        used += w > 0 ? (size_t)w : 0;
+    }
+    if ((!isnan(user->x1_mean) || !isnan(user->x1_sd)) && used < size)
+        snprintf(buf + used, size - used, "prior x1_mean=%.17g,x1_sd=%.17g\n", user->x1_mean, user->x1_sd);
 }
 
 typedef struct {
@@ -199,7 +210,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
                      int quiet, int rank, int size, tf_error *err)
 {
     char extra[4096];
-    model_file_lines(opt, extra, sizeof extra);
+    model_file_lines(opt, opt->priors_ctx, extra, sizeof extra);
     tf_batch_options bo = {.analysis = *opt, .survey_path = path, .title = name, .root = root, .workbook = xlsx,
                            .workbook_limit = workbook_limit, .workbook_draws = workbook_draws,
                            .extra_settings = extra, .fresh = fresh};
@@ -379,7 +390,6 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_args_no_survey(CMD, &err);
     if (tf_error_status(&err) == TF_OK) {
         tf_args_sampler_apply(&sampler, &opt.fit, &opt.evidence, &opt.seed, &opt.n_threads, &err);
-        tf_args_sampler_one_model(&sampler, CMD, &err);
     }
     if (path && !strcmp(path, "-"))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
@@ -395,7 +405,10 @@ static int analyze(int argc, char **argv, int rank, int size)
             tf_error_print(&err, PROG, errs);
         return TF_EXIT_USAGE;
     }
-    opt.priors = tf_setup_default_priors;
+    tf_setup_user user;
+    tf_args_sampler_user(&sampler, &user);
+    opt.priors = tf_setup_user_priors;
+    opt.priors_ctx = &user;
 
     char name[256], xlsx[4096], csv_dir[4096];
     tf_args_survey_name(path, name, sizeof name);
@@ -436,7 +449,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         }
         /* The model files of every candidate are read now, not when each one's turn comes. */
         if (tf_survey_n_series(sv) &&
-            (st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0),
+            (st = tf_setup_check_candidates(&user, opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0),
                                             &err)) != TF_OK) {
             status = TF_EXIT_INPUT;
             goto out;
@@ -460,7 +473,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         status = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
-    if ((st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
+    if ((st = tf_setup_check_candidates(&user, opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
         TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;

@@ -219,7 +219,6 @@ int tf_cmd_compare(int argc, char **argv)
         tf_args_no_survey(CMD, &err);
     if (tf_error_status(&err) == TF_OK) {
         tf_args_sampler_apply(&sampler, &opt.fit, &opt.evidence, &seed, &opt.n_threads, &err);
-        tf_args_sampler_one_model(&sampler, CMD, &err);
     }
     /* Mistyped model names are usage errors, found before a large file is read. */
     char known[256];
@@ -253,7 +252,10 @@ int tf_cmd_compare(int argc, char **argv)
     opt.weights = wvals;
     opt.n_weights = weights.n;
     opt.fit.seed = opt.evidence.seed = seed;
-    opt.priors = tf_setup_default_priors;
+    tf_setup_user user;
+    tf_args_sampler_user(&sampler, &user);
+    opt.priors = tf_setup_user_priors;
+    opt.priors_ctx = &user;
 
     int status = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
@@ -284,7 +286,7 @@ int tf_cmd_compare(int argc, char **argv)
         goto out;
     }
     /* The model files of every candidate are read now, not when each candidate's turn comes. */
-    if (tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs,
+    if (tf_setup_check_candidates(&user, opt.growth, opt.n_growth, opt.obs, opt.n_obs,
                                   only ? only : tf_survey_series(sv, 0), &err) != TF_OK) {
         status = TF_EXIT_INPUT;
         goto out;

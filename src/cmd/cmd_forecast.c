@@ -1034,7 +1034,10 @@ static int run_average(const options *o, const tf_project_options *po)
     ao.seed = o->seed;
     ao.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
     tf_args_sampler_apply(&o->sampler, &ao.fit, &ao.evidence, &ao.seed, &ao.n_threads, &err);
-    ao.priors = tf_setup_default_priors;
+    tf_setup_user user;
+    tf_args_sampler_user(&o->sampler, &user);
+    ao.priors = tf_setup_user_priors;
+    ao.priors_ctx = &user;
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
@@ -1063,7 +1066,7 @@ static int run_average(const options *o, const tf_project_options *po)
             goto out;
         }
     }
-    if ((st = tf_setup_check_candidates(ao.growth, ao.n_growth, ao.obs, ao.n_obs, only ? only : tf_survey_series(sv, 0),
+    if ((st = tf_setup_check_candidates(&user, ao.growth, ao.n_growth, ao.obs, ao.n_obs, only ? only : tf_survey_series(sv, 0),
                                         &err)) != TF_OK) {
         rc = TF_EXIT_INPUT;
         goto out;
@@ -1228,7 +1231,6 @@ static void check_source(options *o, tf_error *err)
                          o->sampler.first_ml);
         break;
     case FROM_AVERAGE:
-        tf_args_sampler_one_model(&o->sampler, "--average", err);
         break;
     }
     if (!o->survey_path)

@@ -175,11 +175,13 @@ done
 # fit estimates no marginal likelihood, so its options are not fit's.
 "$T" fit --draws 100 >"$tmp/out" 2>"$tmp/err"
 grep -q "unknown option '--draws'" "$tmp/err" || bad "fit --draws: $(cat "$tmp/err")"
-# A priors file is for one model: the commands that fit several candidates say so.
+# Priors the candidates cannot take are refused before any fit, as the one-model commands refuse
+# theirs (compare.sh checks that the others reach their candidates).
 for c in compare analyze; do
-  "$T" "$c" surveys/heron-colony.csv --prior-file models/ricker.ini -o "$tmp/never" >"$tmp/out" 2>"$tmp/err"; rc=$?
-  [ $rc -eq 2 ] || bad "$c --prior-file: exit $rc, want 2"
-  one_error "$tmp/err" "tallyfit $c" "--prior-file applies to one model; .*" "$c --prior-file"
+  "$T" "$c" surveys/heron-colony.csv --model gompertz --prior-file models/ricker.ini -o "$tmp/never" >"$tmp/out" 2>"$tmp/err"; rc=$?
+  [ $rc -eq 3 ] || bad "$c --prior-file for no candidate: exit $rc, want 3"
+  one_error "$tmp/err" "tallyfit $c" ".*ricker.ini: the priors file is for model 'ricker', which is not among the candidates" \
+    "$c --prior-file for no candidate"
 done
 [ -e "$tmp/never" ] && bad "a refused --prior-file still wrote $tmp/never"
 

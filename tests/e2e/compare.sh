@@ -179,5 +179,42 @@ ok = abs(float(rows["exponential+poisson"]["prior_weight"]) - 0.25) < 1e-12 and 
 sys.exit(0 if ok else 1)
 PY
 
+# 6. The user's priors reach the candidates they are for (README, "One set of option names"): a
+# priors file naming ricker changes ricker's marginal likelihood and leaves gompertz's digit for
+# digit (same seed, same streams); the first-year prior changes both. A file for no candidate,
+# or with a section no candidate has, is refused before any fit, nothing written.
+printf '[model]\nname = ricker\n[K]\nprior = lognormal\nmeanlog = 3\nsdlog = 0.3\n' >"$tmp/rk.ini"
+for run in "p0" "p1 --prior-file $tmp/rk.ini" "p2 --prior x1_mean=3,x1_sd=0.2"; do
+  set -- $run
+  name=$1; shift
+  "$T" compare surveys/heron-colony.csv --model ricker,gompertz --obs poisson -o "$tmp/$name" "${SHORT[@]}" "$@" \
+    --quiet 2>/dev/null || bad "priors: compare $* failed"
+done
+/usr/bin/python3 - "$tmp/p0/model-comparison.csv" "$tmp/p1/model-comparison.csv" "$tmp/p2/model-comparison.csv" <<'PY' ||
+import csv, sys
+def log_ml(path):
+    return {r["model"]: float(r["log_ml"]) for r in csv.DictReader(open(path, newline=""))}
+p0, p1, p2 = (log_ml(p) for p in sys.argv[1:])
+problems = []
+if p1["gompertz+poisson"] != p0["gompertz+poisson"]:
+    problems.append("the ricker priors file changed gompertz")
+if p1["ricker+poisson"] == p0["ricker+poisson"]:
+    problems.append("the ricker priors file left ricker unchanged")
+if any(p2[m] == p0[m] for m in p0):
+    problems.append("--prior x1_mean,x1_sd left a model unchanged")
+if problems:
+    print("; ".join(problems), file=sys.stderr)
+sys.exit(1 if problems else 0)
+PY
+  bad "priors: not applied as documented"
+printf '[model]\nname = gompertz\n[K]\nprior = lognormal\nmeanlog = 3\nsdlog = 0.3\n' >"$tmp/gz.ini"
+printf '[model]\nname = mine\n[phi]\nprior = lognormal\nmeanlog = 1\nsdlog = 0.3\n' >"$tmp/phi.ini"
+for case in "gz.ini:which is not among the candidates" "phi.ini:section \[phi\]"; do
+  "$T" compare surveys/heron-colony.csv --model ricker --obs poisson --prior-file "$tmp/${case%%:*}" -o "$tmp/pn" \
+    "${SHORT[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+  [ $rc -eq 3 ] && grep -q "${case#*:}" "$tmp/stderr" || bad "priors file ${case%%:*}: exit $rc: $(cat "$tmp/stderr")"
+  [ -e "$tmp/pn" ] && bad "priors file ${case%%:*}: output written anyway"
+done
+
 [ $fail -eq 0 ] && echo "compare.sh: all checks passed"
 exit $fail

@@ -368,7 +368,13 @@ bad "several models without --average" "$heron" --model ricker,gompertz
 grep -q -- "--average" "$tmp/stderr" || fail "the hint should suggest --average"
 bad "--obs alone" "$heron" --obs poisson
 bad "--draws with --model" "$heron" --model ricker --draws 500
-bad "--prior-file with --average" "$heron" --average --prior-file "$repo/models/ricker.ini"
+# --average takes a priors file for the candidates of the growth model it names: one for a model
+# that is not a candidate is an unusable input (3), found before any fit.
+"$TALLYFIT" forecast "$heron" --average --model gompertz --prior-file "$repo/models/ricker.ini" -o "$tmp/pf" \
+  >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 3 ] && grep -q "for model 'ricker', which is not among the candidates" "$tmp/stderr" ||
+  fail "--average with a priors file for no candidate: exit $rc: $(head -c 300 "$tmp/stderr")"
+[ -e "$tmp/pf" ] && fail "the refused priors file left $tmp/pf"
 bad "--model without a survey" --model ricker
 bad "--average without a survey" --average
 bad "unknown growth model" "$heron" --model nosuchmodel

@@ -396,7 +396,6 @@ START_TEST(sampler_group)
     /* --seed alone does not set up a fit (forecast --parameter takes it). */
     ck_assert_str_eq(s.first, "--chains");
     ck_assert_str_eq(s.first_ml, "--ml-se");
-    ck_assert_str_eq(s.first_prior, "--prior");
 
     tf_pmmh_options fit = tf_pmmh_default_options();
     tf_evidence_options ml = tf_evidence_default_options();
@@ -424,10 +423,12 @@ START_TEST(sampler_group)
     ck_assert_ptr_nonnull(strstr(first_what(&err), "--ml-se"));
     ck_assert_uint_eq(fit.seed, 7);
     ck_assert_uint_eq(fit.n_threads, 2);
-    /* --prior and --prior-file are for one model. */
-    tf_error_init(&err);
-    ck_assert_int_eq(tf_args_sampler_one_model(&s, "compare", &err), TF_ERR_USAGE);
-    ck_assert_ptr_nonnull(strstr(first_what(&err), "--prior applies to one model"));
+    /* The priors the candidates of a comparison take. */
+    tf_setup_user u;
+    tf_args_sampler_user(&s, &u);
+    ck_assert_str_eq(u.prior_file, "p.ini");
+    ck_assert_double_eq(u.x1_mean, 5);
+    ck_assert_double_eq(u.x1_sd, 0.5);
     /* --standard after --correlated wins; --prior takes only the first-year prior. */
     tf_args_sampler_init(&s);
     tf_error_init(&err);
@@ -439,7 +440,9 @@ START_TEST(sampler_group)
     ck_assert_int_eq(tf_args_sampler_apply(&s, &fit, NULL, NULL, NULL, &err), TF_ERR_USAGE);
     ck_assert_int_eq(fit.correlated, 0);
     ck_assert_ptr_nonnull(strstr(first_what(&err), "--prior takes x1_mean and x1_sd"));
-    ck_assert_int_eq(tf_args_sampler_one_model(&(tf_args_sampler){.first_prior = NULL}, "analyze", &err), TF_OK);
+    tf_args_sampler_user(&s, &u);
+    ck_assert_ptr_null(u.prior_file);
+    ck_assert(isnan(u.x1_mean) && isnan(u.x1_sd));
 
     /* One set of limits, whatever the command. */
     static const struct {

@@ -180,8 +180,12 @@ static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *
         int w = snprintf(buf + used, size - used, "prior-file %s\n", hex);
         used += w > 0 ? (size_t)w : 0;
     }
-    if ((!isnan(user->x1_mean) || !isnan(user->x1_sd)) && used < size)
-        snprintf(buf + used, size - used, "prior x1_mean=%.17g,x1_sd=%.17g\n", user->x1_mean, user->x1_sd);
+    if (!isnan(user->x1_mean) && used < size) {
+        int w = snprintf(buf + used, size - used, "prior x1_mean=%.17g\n", user->x1_mean);
+        used += w > 0 ? (size_t)w : 0;
+    }
+    if (!isnan(user->x1_sd) && used < size)
+        snprintf(buf + used, size - used, "prior x1_sd=%.17g\n", user->x1_sd);
 }
 
 typedef struct {

@@ -339,7 +339,11 @@ int tf_cmd_simulate(int argc, char **argv)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--years: %zu years from %ld run past the year %d",
                      n_years, first_year, TF_SURVEY_YEAR_MAX);
     /* The first year is --start here; a first-year prior means nothing to a simulation. */
-    tf_args_merge_prior(&set, &(tf_arg_pairs){0}, &err);
+    for (size_t i = 0; i < set.n; i++)
+        if (!strcmp(set.items[i].name, TF_ARGS_X1_MEAN) || !strcmp(set.items[i].name, TF_ARGS_X1_SD))
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "the first year's abundance is --start N1",
+                         "--parameter: %s is the first year's prior, which a simulation does not use",
+                         set.items[i].name);
     if (label && !label_ok(label))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                      "--label: '%s' must have 1 to %d bytes, not start with '#' and contain no comma, quote or "

@@ -127,6 +127,10 @@ expect 2 "no survey file" "$T" likelihood --model ricker --parameter r=0.5,K=9,s
 expect 2 "--effort: 3 values for 10 years" "$T" simulate --model ricker --parameter r=0.5,K=9,sigma=0.1 --years 10 --start 5 --effort 1,2,3
 expect 2 "--years is required" "$T" simulate --model ricker --parameter r=0.5,K=9,sigma=0.1 --start 5
 expect 2 "x1_sd = 0 is not > 0" "$T" likelihood "$tmp/a" --model ricker --parameter r=0.5,K=9,sigma=0.1 --prior x1_sd=0
+# Parameter values and the first-year prior each in their own option.
+expect 2 "x1_mean is the first year's prior" "$T" likelihood "$tmp/a" --model ricker --parameter r=0.5,K=9,sigma=0.1,x1_mean=3
+expect 2 "--prior takes x1_mean and x1_sd" "$T" likelihood "$tmp/a" --model ricker --parameter r=0.5,sigma=0.1 --prior K=9
+expect 2 "x1_sd is the first year's prior" "$T" simulate --model ricker --parameter r=0.5,K=9,sigma=0.1,x1_sd=1 --years 10 --start 5
 expect 2 "3 populations" "$T" likelihood surveys/three-herds.csv --model ricker --parameter r=0.5,K=900,sigma=0.1
 expect 2 "no population named 'south'" "$T" likelihood surveys/three-herds.csv --population south --model ricker --parameter r=0.5,K=900,sigma=0.1
 

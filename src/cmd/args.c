@@ -271,6 +271,8 @@ tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char 
                 "year's prior"},
         {"fixed", "use --parameter NAME=VALUE,..."},
         {"priors", "use --prior-file FILE"},
+        {"populations", "use --scheme N for an invented scheme of N populations (simulate), --population LIST to "
+                        "choose populations"},
     };
     if (!strncmp(what, "--", 2)) {
         size_t len = strcspn(what + 2, "=");

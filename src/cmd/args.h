@@ -83,7 +83,7 @@ tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, t
 /* Describes a getopt_long failure (optstring starting with ':'): c is getopt's return (':' or
  * '?'), opt_char getopt's optopt, arg the argv element that caused it. cmd names the command
  * for the hint ("run 'tallyfit CMD --help'"); an option of an earlier version (--models, --set,
- * --fixed, --priors) gets its new name in the hint instead. Returns TF_ERR_USAGE. */
+ * --fixed, --priors, --populations) gets its new name in the hint instead. Returns TF_ERR_USAGE. */
 tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char *arg, tf_error *err);
 
 /* The survey file named after the options: argv[first], or NULL when there is none. A further

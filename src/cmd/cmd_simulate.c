@@ -32,10 +32,10 @@ static void help(FILE *out)
     fprintf(out,
             "usage: tallyfit simulate --model M [--obs O] --parameter NAME=VALUE,... --years N --start N1\n"
             "                         [--first-year Y] [--seed S] [--effort E|E1,E2,...] [--label L] [-o FILE]\n"
-            "       tallyfit simulate --populations N [--seed S] [-o FILE]\n\n"
+            "       tallyfit simulate --scheme N [--seed S] [-o FILE]\n\n"
             "Draws annual counts from a state-space population model and writes them as a survey CSV\n"
             "(columns year,count[,effort], with a first column population when --label is given).\n\n"
-            "With --populations N (1 to %d) it writes instead an invented monitoring scheme of N\n"
+            "With --scheme N (1 to %d) it writes instead an invented monitoring scheme of N\n"
             "populations site-0001, site-0002, ... for tests and benchmarks: each drawn with its own\n"
             "growth model (exponential, Ricker or Gompertz), trend, process noise, counting error\n"
             "(Poisson or negative binomial), abundance (about 15 to 3000), length (%d to %d years),\n"
@@ -203,7 +203,7 @@ static int write_scheme(size_t n_pop, uint64_t seed, const char *output)
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
         goto out;
     }
-    fprintf(mem, "# An invented monitoring scheme: tallyfit simulate --populations %zu --seed %llu\n", n_pop,
+    fprintf(mem, "# An invented monitoring scheme: tallyfit simulate --scheme %zu --seed %llu\n", n_pop,
             (unsigned long long)seed);
     fputs("population,year,count,effort\n", mem);
     tf_status st = TF_OK;
@@ -253,7 +253,7 @@ static int label_ok(const char *s)
 int tf_cmd_simulate(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_PARAMETER, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL,
-           OPT_POPULATIONS };
+           OPT_SCHEME };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -264,7 +264,7 @@ int tf_cmd_simulate(int argc, char **argv)
         {"seed", required_argument, NULL, OPT_SEED},
         {"effort", required_argument, NULL, OPT_EFFORT},
         {"label", required_argument, NULL, OPT_LABEL},
-        {"populations", required_argument, NULL, OPT_POPULATIONS},
+        {"scheme", required_argument, NULL, OPT_SCHEME},
         {"output", required_argument, NULL, 'o'},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
@@ -306,7 +306,7 @@ int tf_cmd_simulate(int argc, char **argv)
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
         case OPT_EFFORT: single = 1; effort_text = optarg; break;
         case OPT_LABEL: label = optarg; break;
-        case OPT_POPULATIONS: tf_args_parse_size("--populations", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
+        case OPT_SCHEME: tf_args_parse_size("--scheme", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
         case 'o': output = optarg; break;
         case 'q': break; /* nothing is printed but the survey, the warnings and the errors */
         case 'h': help(stdout); return TF_EXIT_OK;
@@ -318,8 +318,8 @@ int tf_cmd_simulate(int argc, char **argv)
                      "unexpected argument '%s'", argv[optind]);
     if (n_pop) {
         if ((single || have_years || !isnan(start) || label) && tf_error_status(&err) == TF_OK)
-            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give --populations with --seed and -o only",
-                         "--populations draws every population's model and settings itself");
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give --scheme with --seed and -o only",
+                         "--scheme draws every population's model and settings itself");
         if (tf_error_status(&err) != TF_OK)
             return tf_messages_usage("tallyfit " CMD, &err);
         tf_status pst = probe_output(output, &err);

@@ -188,7 +188,7 @@ done
 # Option names of earlier versions: one error whose hint names the new option.
 for c in $cmds; do
   for old in "--models=ricker:use --model" "--set=r=1:use --parameter NAME=VALUE" "--fixed=r=1:use --parameter" \
-             "--priors=x.ini:use --prior-file"; do
+             "--priors=x.ini:use --prior-file" "--populations=3:use --scheme N"; do
     arg=${old%%:*} hint=${old#*:} name=${arg%%=*}
     # Nothing is written in the source tree should an old name ever run.
     out=(); case $c in check|likelihood) ;; *) out=(-o "$tmp/old-$c") ;; esac

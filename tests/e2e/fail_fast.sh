@@ -51,7 +51,7 @@ expect "analyze -o FILE" 1 "'$tmp/file' is a file, not a directory" "$T" analyze
 expect "analyze --batch -o FILE" 1 "'$tmp/file' is a file, not a directory" \
   "$T" analyze "$S" --batch "${LONG[@]}" -o "$tmp/file"
 expect "simulate -o FILE/x.csv" 1 "Not a directory" \
-  "$T" simulate --populations 5000 -o "$tmp/file/x.csv"
+  "$T" simulate --scheme 5000 -o "$tmp/file/x.csv"
 [ "$(cat "$tmp/file")" = "not a folder" ] || fail "the file in the way was changed"
 
 # The survey file itself as the output folder.

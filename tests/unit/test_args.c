@@ -348,6 +348,7 @@ START_TEST(renamed_options_named)
         {"--set", "--parameter NAME=VALUE"},
         {"--fixed", "use --parameter"},
         {"--priors", "use --prior-file"},
+        {"--populations", "use --scheme N"},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
         tf_error err;

@@ -79,11 +79,10 @@ static void help(FILE *out, const tf_analysis_options *d)
             "                     populations (default %d); the CSV tables are always written\n"
             "  --workbook-draws   put the raw posterior draws in the workbook too (also the batch's\n"
             "                     workbooks per population); by default they are CSV only, since a\n"
-            "                     sheet of every draw makes the workbook slow to open\n"
-            "  -h, --help         show this help\n",
+            "                     sheet of every draw makes the workbook slow to open\n",
             DEFAULT_DIR, d->project.horizon, growth, obs, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT);
     tf_args_quiet_help(out, 21);
-    fputs("\nSampler and marginal likelihood:\n", out);
+    fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
     tf_args_sampler_help(out, &d->fit, &d->evidence, 21);
     fprintf(out,
             "  (--threads: with MPI, 1 per process by default; a batch analyses T populations at a time)\n\n"

@@ -288,6 +288,9 @@ static tf_status run_population(tf_analysis_pop *p, const tf_analysis_options *o
     co.n_threads = o->n_threads;
     co.priors = o->priors;
     co.priors_ctx = o->priors_ctx;
+    co.weight_names = o->weight_names;
+    co.weights = o->weights;
+    co.n_weights = o->n_weights;
     if (relay->fn) {
         co.progress = relay_compare;
         co.progress_ctx = relay;

@@ -567,6 +567,7 @@ void tf_args_sampler_init(tf_args_sampler *s)
     memset(s, 0, sizeof *s);
     tf_args_run_init(&s->run);
     tf_args_pairs_init(&s->prior);
+    tf_args_pairs_init(&s->weights);
     s->correlated = -1;
     s->ml_se = NAN;
 }
@@ -625,6 +626,12 @@ const char *tf_args_sampler_option(int code, const char *text, tf_args_sampler *
             if (!s->first_ml)
                 s->first_ml = name;
             break;
+        case TF_ARGS_OPT_WEIGHTS:
+            name = "--model-weights";
+            tf_args_parse_pairs(name, text, &s->weights, err);
+            if (!s->first_ml)
+                s->first_ml = name;
+            break;
         default:
             return NULL;
         }
@@ -656,9 +663,9 @@ tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, 
         st = TF_ERR_USAGE;
     if (!ml) {
         if (s->first_ml)
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                              "%s sets the marginal likelihood's importance draws, which this command does not "
-                              "estimate",
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "compare models with 'tallyfit compare'",
+                              "%s belongs to the comparison of models by marginal likelihood, which this command "
+                              "does not make",
                               s->first_ml);
         return tf_error_status(err) != TF_OK ? tf_error_status(err) : st;
     }
@@ -676,6 +683,42 @@ tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, 
     if (ml->n_adapt_draws > ml->n_draws)
         ml->n_adapt_draws = ml->n_draws;
     return tf_error_status(err) != TF_OK ? tf_error_status(err) : st;
+}
+
+/* Whether name is one of names[0 .. n) (n = 0: any). */
+static int listed(const char *name, size_t len, const char *const *names, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        if (strlen(names[i]) == len && !strncmp(names[i], name, len))
+            return 1;
+    return n == 0;
+}
+
+tf_status tf_args_sampler_weights(const tf_args_sampler *s, const char *const *growth, size_t n_growth,
+                                  const char *const *obs, size_t n_obs, const char **names, double *values,
+                                  size_t *n, tf_error *err)
+{
+    tf_status st = TF_OK;
+    *n = 0;
+    for (size_t i = 0; i < s->weights.n; i++) {
+        const tf_arg_pair *w = &s->weights.items[i];
+        const char *plus = strchr(w->name, '+');
+        size_t glen = plus ? (size_t)(plus - w->name) : strlen(w->name);
+        char g[TF_ARGS_NAME_MAX];
+        snprintf(g, sizeof g, "%.*s", (int)glen, w->name);
+        int known = tf_model_find_growth(g) && listed(w->name, glen, growth, n_growth) &&
+                    (!plus || (tf_model_find_obs(plus + 1) && listed(plus + 1, strlen(plus + 1), obs, n_obs)));
+        if (!known)
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
+                              "name a candidate growth model (ricker) or candidate model (ricker+poisson)",
+                              "--model-weights: '%s' names no candidate model", w->name);
+        else if (!(w->value > 0))
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "weights are relative: any positive number",
+                              "--model-weights: the weight of '%s' must be positive, not %g", w->name, w->value);
+        names[*n] = w->name;
+        values[(*n)++] = w->value;
+    }
+    return st;
 }
 
 void tf_args_sampler_user(const tf_args_sampler *s, tf_setup_user *u)
@@ -773,6 +816,10 @@ void tf_args_sampler_help(FILE *out, const tf_pmmh_options *d, const tf_evidence
     snprintf(t, sizeof t, "importance draws per density for each marginal likelihood, at\nmost (default %zu)",
              e->n_draws);
     help_item(out, width, "--draws M", t);
+    help_item(out, width, "--model-weights NAME=W,...",
+              "prior model weights (relative; default all equal). NAME is a\n"
+              "model (ricker+poisson) or a growth model (all its counting-error\n"
+              "models); models not named get 1");
 }
 
 void tf_args_quiet_help(FILE *out, int width)

@@ -136,7 +136,7 @@ enum { TF_ARGS_OPT_ITER = 1000, TF_ARGS_OPT_MIN_ITER, TF_ARGS_OPT_MAX_ITER, TF_A
        TF_ARGS_OPT_THIN, TF_ARGS_OPT_KEPT, TF_ARGS_OPT_DELAYED, TF_ARGS_OPT_CHAINS, TF_ARGS_OPT_WARMUP,
        TF_ARGS_OPT_PARTICLES, TF_ARGS_OPT_PROPOSAL, TF_ARGS_OPT_CORRELATED, TF_ARGS_OPT_STANDARD,
        TF_ARGS_OPT_SEED, TF_ARGS_OPT_THREADS, TF_ARGS_OPT_PRIOR_FILE, TF_ARGS_OPT_PRIOR, TF_ARGS_OPT_ML_SE,
-       TF_ARGS_OPT_DRAWS };
+       TF_ARGS_OPT_DRAWS, TF_ARGS_OPT_WEIGHTS };
 #define TF_ARGS_RUN_LONGOPTS                                                                      \
     {"iterations", required_argument, NULL, TF_ARGS_OPT_ITER},                                    \
     {"min-iterations", required_argument, NULL, TF_ARGS_OPT_MIN_ITER},                            \
@@ -188,7 +188,8 @@ tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error
     {"prior", required_argument, NULL, TF_ARGS_OPT_PRIOR}
 #define TF_ARGS_ML_LONGOPTS                                                                       \
     {"ml-se", required_argument, NULL, TF_ARGS_OPT_ML_SE},                                        \
-    {"draws", required_argument, NULL, TF_ARGS_OPT_DRAWS}
+    {"draws", required_argument, NULL, TF_ARGS_OPT_DRAWS},                                        \
+    {"model-weights", required_argument, NULL, TF_ARGS_OPT_WEIGHTS}
 
 /* Limits of the group that only guard memory and time against typos. */
 #define TF_ARGS_MIN_WARMUP ((size_t)20)
@@ -210,8 +211,9 @@ typedef struct {
     const char *prior_file;  /* --prior-file, borrowed from argv */
     tf_arg_pairs prior;      /* --prior x1_mean=..,x1_sd=.. */
     double ml_se;            /* NAN = not given */
+    tf_arg_pairs weights;    /* --model-weights NAME=W,... */
     const char *first;       /* the first option of the group given, --seed aside */
-    const char *first_ml;    /* the first marginal-likelihood option given */
+    const char *first_ml;    /* the first option of the comparison given (--ml-se, --draws, --model-weights) */
 } tf_args_sampler;
 
 void tf_args_sampler_init(tf_args_sampler *s);
@@ -233,6 +235,16 @@ tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, 
 /* The priors the user set (--prior-file, --prior) as the comparison's priors callback takes them
  * (setup.h): u borrows s's file name. */
 void tf_args_sampler_user(const tf_args_sampler *s, tf_setup_user *u);
+
+/* The prior model weights given (--model-weights) as the comparison takes them: names (borrowed
+ * from s) and values into arrays of TF_ARGS_MAX_PAIRS; returns how many. Checks, before any fit,
+ * that each name is a candidate's (a growth model of growth[0 .. n_growth), every one when
+ * n_growth = 0, or such a growth model joined with a counting-error model of obs[0 .. n_obs),
+ * any known one when n_obs = 0, as "ricker+poisson") and each weight positive: TF_ERR_USAGE
+ * otherwise. */
+tf_status tf_args_sampler_weights(const tf_args_sampler *s, const char *const *growth, size_t n_growth,
+                                  const char *const *obs, size_t n_obs, const char **names, double *values,
+                                  size_t *n, tf_error *err);
 
 /* Prints the help of the group with the defaults of fit (and, when ml is not NULL, of the
  * marginal likelihood), every option's name padded to width columns: the same text in every

@@ -144,9 +144,9 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
 
 /* ---- batch mode ---- */
 
-/* Hashes of the model files the priors come from, and the priors the user set (--prior-file,
- * by its hash, and --prior), as lines of the batch's settings record: an edited prior changes
- * the numbers, so a batch must not continue across it. */
+/* Hashes of the model files the priors come from, the priors the user set (--prior-file, by
+ * its hash, and --prior) and the prior model weights (--model-weights), as lines of the batch's
+ * settings record: an edited prior changes the numbers, so a batch must not continue across it. */
 static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *user, char *buf, size_t size)
 {
     size_t used = 0;
@@ -183,8 +183,14 @@ static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *
         int w = snprintf(buf + used, size - used, "prior x1_mean=%.17g\n", user->x1_mean);
         used += w > 0 ? (size_t)w : 0;
     }
-    if (!isnan(user->x1_sd) && used < size)
-        snprintf(buf + used, size - used, "prior x1_sd=%.17g\n", user->x1_sd);
+    if (!isnan(user->x1_sd) && used < size) {
+        int w = snprintf(buf + used, size - used, "prior x1_sd=%.17g\n", user->x1_sd);
+        used += w > 0 ? (size_t)w : 0;
+    }
+    for (size_t i = 0; i < o->n_weights && used < size; i++) {
+        int w = snprintf(buf + used, size - used, "model-weights %s=%.17g\n", o->weight_names[i], o->weights[i]);
+        used += w > 0 ? (size_t)w : 0;
+    }
 }
 
 typedef struct {
@@ -398,6 +404,13 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
                      "analyze needs a survey file: its name names the results and its hash is recorded");
     tf_input_check_obs(&in, "--obs", opt.obs, opt.n_obs, &err);
+    const char *wnames[TF_ARGS_MAX_PAIRS];
+    double wvals[TF_ARGS_MAX_PAIRS];
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_sampler_weights(&sampler, opt.growth, opt.n_growth, opt.obs, opt.obs_auto ? 0 : opt.n_obs, wnames,
+                                wvals, &opt.n_weights, &err);
+    opt.weight_names = wnames;
+    opt.weights = wvals;
     opt.estimates = in.estimates;
     opt.population = tf_input_single(&in);
     if (in.n_labels && batch && tf_error_status(&err) == TF_OK)

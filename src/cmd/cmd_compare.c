@@ -49,11 +49,7 @@ static void help(FILE *out)
             "  --obs O,...        counting-error models (default: those of %s that suit the counts)\n"
             TF_INPUT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
-            "                     sub-directory per population when the file has several)\n"
-            "  --model-weights NAME=W,...\n"
-            "                     prior model weights (relative; default all equal). NAME is a model\n"
-            "                     (ricker+poisson) or a growth model (all its counting-error models);\n"
-            "                     models not named get 1\n",
+            "                     sub-directory per population when the file has several)\n",
             growth, obs);
     tf_args_quiet_help(out, 21);
     fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
@@ -159,7 +155,7 @@ static void print_warnings(const tf_comparison *c)
 
 int tf_cmd_compare(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SKIP, OPT_ESTIMATES };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -167,7 +163,6 @@ int tf_cmd_compare(int argc, char **argv)
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"output", required_argument, NULL, 'o'},
-        {"model-weights", required_argument, NULL, OPT_WEIGHTS},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
         {"quiet", no_argument, NULL, 'q'},
@@ -181,8 +176,6 @@ int tf_cmd_compare(int argc, char **argv)
     const char *population = NULL, *out_dir = NULL;
     char growth_buf[1024], obs_buf[1024];
     const char *growth[MAX_NAMES], *obs[MAX_NAMES];
-    tf_arg_pairs weights;
-    tf_args_pairs_init(&weights);
     uint64_t seed = opt.fit.seed;
     int quiet = 0;
     tf_args_sampler sampler;
@@ -205,7 +198,6 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
         case 'o': out_dir = optarg; break;
-        case OPT_WEIGHTS: tf_args_parse_pairs("--model-weights", optarg, &weights, &err); break;
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default:
@@ -234,6 +226,10 @@ int tf_cmd_compare(int argc, char **argv)
                          known);
         }
     tf_input_check_obs(&in, "--obs", obs, opt.n_obs, &err);
+    const char *wnames[TF_ARGS_MAX_PAIRS];
+    double wvals[TF_ARGS_MAX_PAIRS];
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_sampler_weights(&sampler, growth, opt.n_growth, obs, opt.n_obs, wnames, wvals, &opt.n_weights, &err);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
     population = tf_input_single(&in);
@@ -242,15 +238,8 @@ int tf_cmd_compare(int argc, char **argv)
         opt.n_obs = tf_input_continuous_obs(obs, MAX_NAMES);
     opt.growth = growth;
     opt.obs = obs;
-    const char *wnames[TF_ARGS_MAX_PAIRS];
-    double wvals[TF_ARGS_MAX_PAIRS];
-    for (size_t i = 0; i < weights.n; i++) {
-        wnames[i] = weights.items[i].name;
-        wvals[i] = weights.items[i].value;
-    }
     opt.weight_names = wnames;
     opt.weights = wvals;
-    opt.n_weights = weights.n;
     opt.fit.seed = opt.evidence.seed = seed;
     tf_setup_user user;
     tf_args_sampler_user(&sampler, &user);

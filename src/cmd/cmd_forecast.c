@@ -121,8 +121,8 @@ static void help(FILE *out)
             growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS);
     tf_args_quiet_help(out, 26);
     fputs("  -h, --help              show this help\n\n"
-          "Fitting (--model, --average; --ml-se and --draws with --average only; --seed seeds the\n"
-          "projection too, with --parameter as well):\n", out);
+          "Fitting (--model, --average; --ml-se, --draws and --model-weights with --average only;\n"
+          "--seed seeds the projection too, with --parameter as well):\n", out);
     tf_args_sampler_help(out, &d, &a.evidence, 26);
     fputs("\n"
           "Writes forecast_bands.csv (median, 50 % and 90 % bands per year), forecast_quasi_extinction.csv\n"
@@ -1034,6 +1034,13 @@ static int run_average(const options *o, const tf_project_options *po)
     ao.seed = o->seed;
     ao.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
     tf_args_sampler_apply(&o->sampler, &ao.fit, &ao.evidence, &ao.seed, &ao.n_threads, &err);
+    const char *wnames[TF_ARGS_MAX_PAIRS];
+    double wvals[TF_ARGS_MAX_PAIRS];
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_sampler_weights(&o->sampler, ao.growth, ao.n_growth, ao.obs, ao.obs_auto ? 0 : ao.n_obs, wnames, wvals,
+                                &ao.n_weights, &err);
+    ao.weight_names = wnames;
+    ao.weights = wvals;
     tf_setup_user user;
     tf_args_sampler_user(&o->sampler, &user);
     ao.priors = tf_setup_user_priors;
@@ -1227,7 +1234,8 @@ static void check_source(options *o, tf_error *err)
                          "--model and --obs name one model each without --average");
         if (o->sampler.first_ml)
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                         "%s sets the marginal likelihood's importance draws, which only --average estimates",
+                         "%s belongs to the comparison of models by marginal likelihood, which only --average "
+                         "makes",
                          o->sampler.first_ml);
         break;
     case FROM_AVERAGE:

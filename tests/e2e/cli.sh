@@ -148,7 +148,7 @@ done
 sampler=(--chains 2 --warmup 40 --particles 30 --proposal bootstrap --correlated --standard
          --delayed-acceptance off --min-ess 100 --min-iterations 100 --max-iterations 200 --thin 2
          --kept-draws 50 --seed 3 --threads 1 --prior-file models/ricker.ini --prior x1_sd=1)
-ml=(--ml-se 0.1 --draws 100)
+ml=(--ml-se 0.1 --draws 100 --model-weights ricker=2)
 block() {  # the sampler options' help of command $1, blanks squeezed
   "$T" "$1" --help | awk '/^  --chains C/{on=1} last && !/^          /{exit} /^  --prior x1_mean/{last=1} on{print}' |
     tr -s ' '
@@ -160,21 +160,23 @@ for c in fit compare analyze forecast; do
   "$T" "$c" --help >"$tmp/h"
   for o in "${sampler[@]}" "${ml[@]}"; do
     case $o in --*) ;; *) continue ;; esac
-    [ "$c" = fit ] && case $o in --ml-se|--draws) continue ;; esac
+    [ "$c" = fit ] && case $o in --ml-se|--draws|--model-weights) continue ;; esac
     grep -q -- "^ *$o\b" "$tmp/h" || bad "$c --help does not list $o"
   done
   extra=("${ml[@]}"); [ "$c" = fit ] && extra=()
   # No survey file: the options are all read, then the one error is the missing survey (or,
   # for forecast, the survey its --model needs); none of them is unknown.
-  src=(); [ "$c" = forecast ] && src=(--model ricker)
+  src=(); [ "$c" = forecast ] && src=(--average)
   [ "$c" = fit ] && src=(--model ricker)
   "$T" "$c" "${src[@]}" "${sampler[@]}" "${extra[@]}" >"$tmp/out" 2>"$tmp/err"; rc=$?
   [ $rc -eq 2 ] || bad "$c with every sampler option: exit $rc, want 2 (no survey): $(cat "$tmp/err")"
   grep -q "unknown option\|needs a value\|is not\|outside" "$tmp/err" && bad "$c refused a sampler option: $(cat "$tmp/err")"
 done
-# fit estimates no marginal likelihood, so its options are not fit's.
-"$T" fit --draws 100 >"$tmp/out" 2>"$tmp/err"
-grep -q "unknown option '--draws'" "$tmp/err" || bad "fit --draws: $(cat "$tmp/err")"
+# fit compares no models, so the comparison's options are not fit's.
+for o in --draws --ml-se --model-weights; do
+  "$T" fit "$o" 1 >"$tmp/out" 2>"$tmp/err"
+  grep -q "unknown option '$o'" "$tmp/err" || bad "fit $o: $(cat "$tmp/err")"
+done
 # Priors the candidates cannot take are refused before any fit, as the one-model commands refuse
 # theirs (compare.sh checks that the others reach their candidates).
 for c in compare analyze; do

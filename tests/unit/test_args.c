@@ -389,6 +389,7 @@ START_TEST(sampler_group)
         {TF_ARGS_OPT_DRAWS, "100", "--draws"},
         {TF_ARGS_OPT_PRIOR, "x1_mean=5,x1_sd=0.5", "--prior"},
         {TF_ARGS_OPT_PRIOR_FILE, "p.ini", "--prior-file"},
+        {TF_ARGS_OPT_WEIGHTS, "ricker=3,gompertz+negbin=0.5", "--model-weights"},
     };
     for (size_t i = 0; i < sizeof given / sizeof given[0]; i++)
         ck_assert_str_eq(tf_args_sampler_option(given[i].code, given[i].text, &s, &err), given[i].name);
@@ -424,6 +425,20 @@ START_TEST(sampler_group)
     ck_assert_ptr_nonnull(strstr(first_what(&err), "--ml-se"));
     ck_assert_uint_eq(fit.seed, 7);
     ck_assert_uint_eq(fit.n_threads, 2);
+    /* Prior model weights: names of candidates, positive weights. */
+    tf_error_init(&err);
+    const char *wn[TF_ARGS_MAX_PAIRS];
+    double wv[TF_ARGS_MAX_PAIRS];
+    size_t nw = 0;
+    static const char *const growth2[] = {"ricker", "gompertz"}, *const obs1[] = {"negbin"};
+    ck_assert_int_eq(tf_args_sampler_weights(&s, growth2, 2, obs1, 1, wn, wv, &nw, &err), TF_OK);
+    ck_assert_uint_eq(nw, 2);
+    ck_assert_str_eq(wn[1], "gompertz+negbin");
+    ck_assert_double_eq(wv[0], 3);
+    ck_assert_int_eq(tf_args_sampler_weights(&s, growth2, 1, obs1, 1, wn, wv, &nw, &err), TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "'gompertz+negbin' names no candidate model"));
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_sampler_weights(&s, NULL, 0, obs1 + 1, 0, wn, wv, &nw, &err), TF_OK); /* all candidates */
     /* The priors the candidates of a comparison take. */
     tf_setup_user u;
     tf_args_sampler_user(&s, &u);
@@ -455,7 +470,7 @@ START_TEST(sampler_group)
         {TF_ARGS_OPT_THREADS, "0"},     {TF_ARGS_OPT_THREADS, "257"},    {TF_ARGS_OPT_DRAWS, "99"},
         {TF_ARGS_OPT_DRAWS, "10000001"}, {TF_ARGS_OPT_ML_SE, "11"},      {TF_ARGS_OPT_PROPOSAL, "blind"},
         {TF_ARGS_OPT_SEED, "-1"},       {TF_ARGS_OPT_THIN, "0"},         {TF_ARGS_OPT_THIN, "100000001"},
-        {TF_ARGS_OPT_PRIOR, "x1_mean"},
+        {TF_ARGS_OPT_PRIOR, "x1_mean"},     {TF_ARGS_OPT_WEIGHTS, "ricker"},
     };
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         tf_args_sampler_init(&s);

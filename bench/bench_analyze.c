@@ -233,7 +233,7 @@ static int bench_analyze(char *bin)
     snprintf(large, sizeof large, "%s/%s", stmp, LARGE_NAME);
     char years[16];
     snprintf(years, sizeof years, "%d", LARGE_YEARS);
-    char *sim[] = {bin, "simulate", "--model", "gompertz", "--set", "r=0.4,K=4000,sigma=0.08", "--years", years,
+    char *sim[] = {bin, "simulate", "--model", "gompertz", "--parameter", "r=0.4,K=4000,sigma=0.08", "--years", years,
                    "--start", "3000", "--seed", "5", "-o", large, NULL};
     usage su;
     if (!run_child(sim, serr, &su)) {

@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Batch benchmark: populations analysed per minute for an invented scheme of 200 populations
-# (tallyfit simulate --populations 200), on 1 thread, on every core as threads, and on MPI
+# (tallyfit simulate --scheme 200), on 1 thread, on every core as threads, and on MPI
 # processes (one manager and one worker per core), with the parallel efficiency (speed-up over
 # the 1-thread run divided by the cores used). Run by `make bench`; the MPI part is skipped with
 # a message where the MPI build (make MPI=1) or mpirun is missing.
@@ -16,13 +16,13 @@ M=${TALLYFIT_MPI:-$PWD/build/mpi/tallyfit}
 export TALLYFIT_MODELS=${TALLYFIT_MODELS:-$PWD/models}
 N=${BENCH_POPULATIONS:-200}
 CORES=$(nproc)
-SETTINGS=(--models exponential,ricker --obs poisson --chains 2 --iterations 120 --warmup 40 --draws 100
+SETTINGS=(--model exponential,ricker --obs poisson --chains 2 --iterations 120 --warmup 40 --draws 100
           --particles 40 --runs 200 --years 20 --workbook-limit 0)
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
-"$T" simulate --populations "$N" --seed 7 -o "$tmp/scheme.csv" || exit 1
+"$T" simulate --scheme "$N" --seed 7 -o "$tmp/scheme.csv" || exit 1
 
-echo "batch: $N populations of an invented scheme (simulate --populations $N --seed 7), $CORES cores"
+echo "batch: $N populations of an invented scheme (simulate --scheme $N --seed 7), $CORES cores"
 echo "batch: reduced settings: ${SETTINGS[*]}"
 now() { date +%s.%N; }
 # run LABEL OUTDIR COMMAND...: prints the line, sets $secs.

@@ -15,7 +15,7 @@ const size_t tf_analysis_risk_years[TF_ANALYSIS_N_RISK_YEARS] = {10, 20, 50};
  * so closely that a few decades of counts rarely tell them apart (Clark, Brook, Delean, Akcakaya
  * & Bradshaw 2010, "The theta-logistic is unreliable for modelling most census data", Methods in
  * Ecology and Evolution 1:253; recalled from memory), and its chains need several times longer
- * to converge; --models adds it. For whole counts, Poisson and negative binomial counting error
+ * to converge; --model adds it. For whole counts, Poisson and negative binomial counting error
  * cover counts without and with extra variation; the rounded log-normal (lognormal-int) tells
  * little more and costs about three times as much per likelihood estimate, so --obs adds it.
  * Amounts that are not whole numbers leave only the continuous log-normal. */
@@ -287,6 +287,9 @@ static tf_status run_population(tf_analysis_pop *p, const tf_analysis_options *o
     co.n_threads = o->n_threads;
     co.priors = o->priors;
     co.priors_ctx = o->priors_ctx;
+    co.weight_names = o->weight_names;
+    co.weights = o->weights;
+    co.n_weights = o->n_weights;
     if (relay->fn) {
         co.progress = relay_compare;
         co.progress_ctx = relay;

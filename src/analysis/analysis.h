@@ -50,6 +50,10 @@ typedef struct {
     /* Builds each candidate's priors (required; see tf_compare_priors_fn). */
     tf_compare_priors_fn priors;
     void *priors_ctx;
+    /* Prior model weights, as tf_compare_options takes them (borrowed; n_weights = 0: all equal). */
+    const char *const *weight_names;
+    const double *weights;
+    size_t n_weights;
 } tf_analysis_options;
 
 /* The defaults analyze uses (the reasons are in analysis.c): the exponential, Ricker and

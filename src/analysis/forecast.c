@@ -134,7 +134,7 @@ static const tf_growth_type *pick_growth(const tf_forecast_options *o, const tf_
     if (n_match == 1)
         return found;
     snprintf(hint, sizeof hint, "choose one with --model; known models: %s", known);
-    tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s growth model takes exactly the parameters given to --fixed",
+    tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "%s growth model takes exactly the parameters given to --parameter",
                  n_match ? "more than one" : "no");
     return NULL;
 }
@@ -172,14 +172,14 @@ static tf_status fixed_theta(const tf_model *m, const tf_forecast_options *o, do
     for (size_t k = 0; k <= i_sigma; k++) {
         const char *name = tf_model_param_name(m, k);
         if (!given[k]) {
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed does not give %s, which the %s model needs",
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--parameter does not give %s, which the %s model needs",
                               name, g->name);
         } else if (k < i_sigma && !(theta[k] > g->lower[k] && theta[k] < g->upper[k])) {
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--fixed %s = %g is outside the %s model's range (%g, %g)",
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--parameter %s = %g is outside the %s model's range (%g, %g)",
                               name, theta[k], g->name, g->lower[k], g->upper[k]);
         } else if (k == i_sigma && !(theta[k] >= 0)) {
             st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "0 projects without noise",
-                              "--fixed sigma = %g must be 0 or more", theta[k]);
+                              "--parameter sigma = %g must be 0 or more", theta[k]);
         }
     }
     return st;

@@ -25,7 +25,7 @@ typedef enum {
     TF_FORECAST_FIXED,     /* one draw of given parameter values */
 } tf_forecast_source;
 
-/* The most --fixed values one forecast takes. */
+/* The most --parameter values one forecast takes. */
 #define TF_FORECAST_MAX_FIXED 32
 
 typedef struct {

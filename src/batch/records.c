@@ -50,27 +50,32 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     line(f, "program", "tallyfit %s", TF_VERSION);
     line(f, "survey-sha256", "%s", sha256);
     line(f, "seed", "%llu", (unsigned long long)a->seed);
-    names_line(f, "growth-models", a->growth, a->n_growth, "all");
+    /* A setting that an option sets is keyed by the option's name; the others (the sampler's
+     * and the marginal likelihood's fixed constants) by plain names of their own. */
+    names_line(f, "model", a->growth, a->n_growth, "all");
     if (a->obs_auto)
-        line(f, "counting-error", "%s", "all that suit");
+        line(f, "obs", "%s", "all that suit");
     else
-        names_line(f, "counting-error", a->obs, a->n_obs, "default");
+        names_line(f, "obs", a->obs, a->n_obs, "default");
     /* Written only when set, so that the records of earlier batches stay the same. */
     if (a->estimates)
-        line(f, "counts", "%s", "estimates (continuous counting-error models only)");
+        line(f, "estimates", "%s", "yes (continuous counting-error models only)");
     line(f, "chains", "%zu", a->fit.n_chains);
-    line(f, "iterations", "%zu %zu", a->fit.min_iter, a->fit.max_iter);
+    line(f, "min-iterations", "%zu", a->fit.min_iter);
+    line(f, "max-iterations", "%zu", a->fit.max_iter);
     line(f, "min-ess", "%.17g", a->fit.min_ess);
     line(f, "kept-draws", "%zu", a->fit.max_kept);
     line(f, "thin", "%zu", a->fit.thin);
     line(f, "warmup", "%zu", a->fit.n_warmup);
     line(f, "particles", "%zu", a->fit.n_particles);
-    line(f, "correlated", "%d %.17g", a->fit.correlated, a->fit.rho);
+    line(f, "correlated", "%s", a->fit.correlated ? "on" : "off");
+    line(f, "correlated-rho", "%.17g", a->fit.rho);
     line(f, "pilot-particles", "%zu", a->fit.pilot_particles);
     line(f, "delayed-acceptance", "%s", a->fit.delayed ? "on" : "off");
     line(f, "proposal", "%s", tf_filter_proposal_name(a->fit.proposal));
     const tf_evidence_options *e = &a->evidence;
-    line(f, "ml-draws", "%zu %zu", e->min_draws, e->n_draws);
+    line(f, "draws", "%zu", e->n_draws);
+    line(f, "ml-min-draws", "%zu", e->min_draws);
     line(f, "ml-se", "%.17g", e->target_se);
     line(f, "ml-adapt", "%zu %zu", e->n_adapt_rounds, e->n_adapt_draws);
     line(f, "ml-mixture", "%.17g %zu %.17g %.17g", e->nu, e->n_components, e->defensive_weight, e->defensive_scale);
@@ -79,7 +84,7 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     const tf_project_options *p = &a->project;
     line(f, "years", "%zu", p->horizon);
     line(f, "runs", "%zu", p->n_runs);
-    fputs("thresholds", f);
+    fputs("threshold", f);
     for (size_t k = 0; k < p->n_thresholds; k++) {
         char lab[48];
         fprintf(f, "%c%s", k ? ',' : ' ', tf_project_threshold_label(&p->thresholds[k], lab, sizeof lab));

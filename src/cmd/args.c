@@ -263,6 +263,25 @@ tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char 
     }
     if (opt_char && (!arg || strncmp(arg, "--", 2)))
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '-%c'", opt_char);
+    /* Names of earlier versions: named with their new name rather than left to the help. */
+    static const struct {
+        const char *old, *hint;
+    } renamed[] = {
+        {"models", "use --model (a comma list)"},
+        {"set", "use --parameter NAME=VALUE,... for parameter values, --prior x1_mean=V,x1_sd=V for the first "
+                "year's prior"},
+        {"fixed", "use --parameter NAME=VALUE,..."},
+        {"priors", "use --prior-file FILE"},
+        {"populations", "use --scheme N for an invented scheme of N populations (simulate), --population LIST to "
+                        "choose populations"},
+    };
+    if (!strncmp(what, "--", 2)) {
+        size_t len = strcspn(what + 2, "=");
+        for (size_t i = 0; i < sizeof renamed / sizeof renamed[0]; i++)
+            if (strlen(renamed[i].old) == len && !strncmp(what + 2, renamed[i].old, len))
+                return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, renamed[i].hint, "unknown option '--%s'",
+                                    renamed[i].old);
+    }
     return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "unknown option '%s'", what);
 }
 
@@ -345,16 +364,16 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
             continue;
         int k = tf_model_param_index(m, p->name);
         if (k < 0) {
-            snprintf(hint, sizeof hint, "the parameters of %s are %s (and %s, %s for the first year)",
-                     tf_model_name(m), names, TF_ARGS_X1_MEAN, TF_ARGS_X1_SD);
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: %s is not a parameter of model %s",
+            snprintf(hint, sizeof hint, "the parameters of %s are %s (the first year's prior is set with "
+                     "--prior %s=..,%s=..)", tf_model_name(m), names, TF_ARGS_X1_MEAN, TF_ARGS_X1_SD);
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--parameter: %s is not a parameter of model %s",
                               p->name, tf_model_name(m));
             continue;
         }
         double lo = tf_model_param_lower(m, (size_t)k), hi = tf_model_param_upper(m, (size_t)k);
         if (!(p->value > lo && p->value < hi)) {
             snprintf(hint, sizeof hint, "%s must lie strictly between %g and %g", p->name, lo, hi);
-            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: %s = %g is outside its range for model %s",
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--parameter: %s = %g is outside its range for model %s",
                               p->name, p->value, tf_model_name(m));
             bad[k] = 1;
             continue;
@@ -365,22 +384,58 @@ tf_status tf_args_bind_model(tf_model *m, const tf_arg_pairs *set, int require_a
     if (require_all)
         for (size_t k = 0; k < n; k++)
             if (!seen[k] && !bad[k]) {
-                size_t used = (size_t)snprintf(hint, sizeof hint, "model %s needs --set ", tf_model_name(m));
+                size_t used = (size_t)snprintf(hint, sizeof hint, "model %s needs --parameter ", tf_model_name(m));
                 for (size_t j = 0; j < n && used < sizeof hint; j++)
                     used += (size_t)snprintf(hint + used, sizeof hint - used, "%s%s=...", j ? "," : "",
                                              tf_model_param_name(m, j));
-                st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--set: the value of %s is missing",
+                st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "--parameter: the value of %s is missing",
                                   tf_model_param_name(m, k));
             }
     const tf_arg_pair *mean = tf_args_pairs_get(set, TF_ARGS_X1_MEAN), *sd = tf_args_pairs_get(set, TF_ARGS_X1_SD);
     if (sd && !(sd->value > 0))
         st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "the first-year prior needs a positive sd",
-                          "--set: %s = %g is not > 0", TF_ARGS_X1_SD, sd->value);
+                          "--prior: %s = %g is not > 0", TF_ARGS_X1_SD, sd->value);
     if (st != TF_OK)
         return st;
     tf_model_set_initial(m, mean ? mean->value : tf_model_x1_mean(m), sd ? sd->value : tf_model_x1_sd(m));
     if (given)
         memcpy(given, seen, n);
+    return TF_OK;
+}
+
+static int is_x1(const char *name) { return !strcmp(name, TF_ARGS_X1_MEAN) || !strcmp(name, TF_ARGS_X1_SD); }
+
+/* Refuses a --prior name other than the first-year prior's. */
+static tf_status check_prior_names(const tf_arg_pairs *prior, tf_error *err)
+{
+    tf_status st = TF_OK;
+    for (size_t i = 0; i < prior->n; i++)
+        if (!strcmp(prior->items[i].name, TF_ARGS_X1_SD) && !(prior->items[i].value > 0))
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "the first-year prior needs a positive sd",
+                              "--prior: %s = %g is not > 0", TF_ARGS_X1_SD, prior->items[i].value);
+        else if (!is_x1(prior->items[i].name))
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
+                              "the priors of the model's parameters go in a model file: --prior-file FILE",
+                              "--prior takes %s and %s (the first year's log-abundance), not %s", TF_ARGS_X1_MEAN,
+                              TF_ARGS_X1_SD, prior->items[i].name);
+    return st;
+}
+
+tf_status tf_args_merge_prior(tf_arg_pairs *values, const tf_arg_pairs *prior, tf_error *err)
+{
+    tf_status st = check_prior_names(prior, err);
+    for (size_t i = 0; i < values->n; i++)
+        if (is_x1(values->items[i].name))
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give it with --prior x1_mean=V,x1_sd=V",
+                              "--parameter: %s is the first year's prior, not a parameter of the model",
+                              values->items[i].name);
+    if (st != TF_OK)
+        return st;
+    if (values->n + prior->n > TF_ARGS_MAX_PAIRS)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "more than %d names in --parameter and --prior",
+                            TF_ARGS_MAX_PAIRS);
+    for (size_t i = 0; i < prior->n; i++)
+        values->items[values->n++] = prior->items[i];
     return TF_OK;
 }
 
@@ -407,18 +462,6 @@ tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err
 #define RUN_MAX_ITER ((size_t)100000000)
 #define RUN_MAX_KEPT ((size_t)10000000)
 #define RUN_MIN_KEPT ((size_t)8)
-
-tf_status tf_args_parse_ml_se(const char *text, double *out, tf_error *err)
-{
-    double v;
-    if (tf_args_parse_double("--ml-se", text, &v, err) != TF_OK)
-        return TF_ERR_USAGE;
-    if (!(v >= 0 && v <= 10))
-        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --ml-se 0.05, or 0 for always --draws draws",
-                            "--ml-se: %s is not between 0 and 10", text);
-    *out = v;
-    return TF_OK;
-}
 
 void tf_args_run_init(tf_args_run *r)
 {
@@ -508,31 +551,281 @@ tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error
     return TF_OK;
 }
 
-void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width)
+static tf_status parse_ml_se(const char *text, double *out, tf_error *err)
+{
+    double v;
+    if (tf_args_parse_double("--ml-se", text, &v, err) != TF_OK)
+        return TF_ERR_USAGE;
+    if (!(v >= 0 && v <= 10))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --ml-se 0.05, or 0 for always --draws draws",
+                            "--ml-se: %s is not between 0 and 10", text);
+    *out = v;
+    return TF_OK;
+}
+
+void tf_args_sampler_init(tf_args_sampler *s)
+{
+    memset(s, 0, sizeof *s);
+    tf_args_run_init(&s->run);
+    tf_args_pairs_init(&s->prior);
+    tf_args_pairs_init(&s->weights);
+    s->correlated = -1;
+    s->ml_se = NAN;
+}
+
+const char *tf_args_sampler_option(int code, const char *text, tf_args_sampler *s, tf_error *err)
+{
+    const char *name = tf_args_run_option(code, text, &s->run, err);
+    if (!name) {
+        switch (code) {
+        case TF_ARGS_OPT_CHAINS:
+            name = "--chains";
+            tf_args_parse_size(name, text, 1, TF_FIT_MAX_CHAINS, &s->chains, err);
+            break;
+        case TF_ARGS_OPT_WARMUP:
+            name = "--warmup";
+            tf_args_parse_size(name, text, TF_ARGS_MIN_WARMUP, TF_ARGS_MAX_WARMUP, &s->warmup, err);
+            break;
+        case TF_ARGS_OPT_PARTICLES:
+            name = "--particles";
+            tf_args_parse_size(name, text, 1, TF_ARGS_MAX_PARTICLES, &s->particles, err);
+            break;
+        case TF_ARGS_OPT_PROPOSAL:
+            name = "--proposal";
+            if (tf_args_parse_proposal(name, text, &s->proposal, err) == TF_OK)
+                s->proposal_given = 1;
+            break;
+        case TF_ARGS_OPT_CORRELATED: name = "--correlated"; s->correlated = 1; break;
+        case TF_ARGS_OPT_STANDARD: name = "--standard"; s->correlated = 0; break;
+        case TF_ARGS_OPT_SEED:
+            /* The seed also drives projections and simulations, so it does not count as setting
+             * up a fit (s->first). */
+            if (tf_args_parse_seed("--seed", text, &s->seed, err) == TF_OK)
+                s->seed_given = 1;
+            return "--seed";
+        case TF_ARGS_OPT_THREADS:
+            name = "--threads";
+            tf_args_parse_size(name, text, 1, TF_ARGS_MAX_THREADS, &s->threads, err);
+            break;
+        case TF_ARGS_OPT_PRIOR_FILE:
+            name = "--prior-file";
+            s->prior_file = text;
+            break;
+        case TF_ARGS_OPT_PRIOR:
+            name = "--prior";
+            tf_args_parse_pairs(name, text, &s->prior, err);
+            break;
+        case TF_ARGS_OPT_ML_SE:
+            name = "--ml-se";
+            parse_ml_se(text, &s->ml_se, err);
+            if (!s->first_ml)
+                s->first_ml = name;
+            break;
+        case TF_ARGS_OPT_DRAWS:
+            name = "--draws";
+            tf_args_parse_size(name, text, TF_ARGS_MIN_DRAWS, TF_ARGS_MAX_DRAWS, &s->draws, err);
+            if (!s->first_ml)
+                s->first_ml = name;
+            break;
+        case TF_ARGS_OPT_WEIGHTS:
+            name = "--model-weights";
+            tf_args_parse_pairs(name, text, &s->weights, err);
+            if (!s->first_ml)
+                s->first_ml = name;
+            break;
+        default:
+            return NULL;
+        }
+    }
+    if (!s->first)
+        s->first = name;
+    return name;
+}
+
+tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, tf_evidence_options *ml,
+                                uint64_t *seed, size_t *n_threads, tf_error *err)
+{
+    tf_status st = tf_args_run_apply(&s->run, fit, err);
+    if (s->chains)
+        fit->n_chains = s->chains;
+    if (s->warmup)
+        fit->n_warmup = s->warmup;
+    if (s->particles)
+        fit->n_particles = s->particles;
+    if (s->proposal_given)
+        fit->proposal = s->proposal;
+    if (s->correlated >= 0)
+        fit->correlated = s->correlated;
+    if (s->seed_given)
+        *(seed ? seed : &fit->seed) = s->seed;
+    if (s->threads)
+        *(n_threads ? n_threads : &fit->n_threads) = s->threads;
+    if (check_prior_names(&s->prior, err) != TF_OK)
+        st = TF_ERR_USAGE;
+    if (!ml) {
+        if (s->first_ml)
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "compare models with 'tallyfit compare'",
+                              "%s belongs to the comparison of models by marginal likelihood, which this command "
+                              "does not make",
+                              s->first_ml);
+        return tf_error_status(err) != TF_OK ? tf_error_status(err) : st;
+    }
+    if (s->particles)
+        ml->n_particles = s->particles;
+    if (s->proposal_given)
+        ml->proposal = s->proposal;
+    if (s->seed_given && !seed)
+        ml->seed = s->seed;
+    if (s->draws)
+        ml->n_draws = s->draws;
+    if (!isnan(s->ml_se))
+        ml->target_se = s->ml_se;
+    /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion. */
+    if (ml->n_adapt_draws > ml->n_draws)
+        ml->n_adapt_draws = ml->n_draws;
+    return tf_error_status(err) != TF_OK ? tf_error_status(err) : st;
+}
+
+/* Whether name is one of names[0 .. n) (n = 0: any). */
+static int listed(const char *name, size_t len, const char *const *names, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        if (strlen(names[i]) == len && !strncmp(names[i], name, len))
+            return 1;
+    return n == 0;
+}
+
+tf_status tf_args_sampler_weights(const tf_args_sampler *s, const char *const *growth, size_t n_growth,
+                                  const char *const *obs, size_t n_obs, const char **names, double *values,
+                                  size_t *n, tf_error *err)
+{
+    tf_status st = TF_OK;
+    *n = 0;
+    for (size_t i = 0; i < s->weights.n; i++) {
+        const tf_arg_pair *w = &s->weights.items[i];
+        const char *plus = strchr(w->name, '+');
+        size_t glen = plus ? (size_t)(plus - w->name) : strlen(w->name);
+        char g[TF_ARGS_NAME_MAX];
+        snprintf(g, sizeof g, "%.*s", (int)glen, w->name);
+        int known = tf_model_find_growth(g) && listed(w->name, glen, growth, n_growth) &&
+                    (!plus || (tf_model_find_obs(plus + 1) && listed(plus + 1, strlen(plus + 1), obs, n_obs)));
+        if (!known)
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
+                              "name a candidate growth model (ricker) or candidate model (ricker+poisson)",
+                              "--model-weights: '%s' names no candidate model", w->name);
+        else if (!(w->value > 0))
+            st = tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "weights are relative: any positive number",
+                              "--model-weights: the weight of '%s' must be positive, not %g", w->name, w->value);
+        names[*n] = w->name;
+        values[(*n)++] = w->value;
+    }
+    return st;
+}
+
+void tf_args_sampler_user(const tf_args_sampler *s, tf_setup_user *u)
+{
+    const tf_arg_pair *mean = tf_args_pairs_get(&s->prior, TF_ARGS_X1_MEAN), *sd = tf_args_pairs_get(&s->prior, TF_ARGS_X1_SD);
+    u->prior_file = s->prior_file;
+    u->x1_mean = mean ? mean->value : NAN;
+    u->x1_sd = sd ? sd->value : NAN;
+}
+
+/* One option's help: its name padded to width, then the text; each further line of text (after
+ * '\n') indented to the same column. */
+static void help_item(FILE *out, int width, const char *name, const char *text)
 {
     int w = width - 3;
-    fprintf(out,
-            "  %-*s run each chain, after the warm-up, until every parameter and the true\n"
-            "  %-*s abundance of the first and last year have R-hat <= %.2f and bulk and tail\n"
-            "  %-*s ESS >= E (default %.0f)\n",
-            w, "--min-ess E", w, "", TF_FIT_RHAT_MAX, w, "", d->min_ess);
-    fprintf(out, "  %-*s but at least I iterations per chain (default %zu)\n", w, "--min-iterations I",
-            d->min_iter);
-    fprintf(out, "  %-*s and at most I (default %zu)\n", w, "--max-iterations I", d->max_iter);
-    fprintf(out,
-            "  %-*s run exactly I iterations per chain after the warm-up, without the\n"
-            "  %-*s convergence checks deciding\n",
-            w, "--iterations I", w, "");
-    fprintf(out,
-            "  %-*s keep every K-th iteration at first (default %zu); the thinning doubles\n"
-            "  %-*s whenever the kept draws fill their store\n",
-            w, "--thin K", d->thin, w, "");
-    fprintf(out, "  %-*s keep at most N draws per chain (default %zu)\n", w, "--kept-draws N", d->max_kept);
-    fprintf(out,
-            "  --delayed-acceptance on|off\n"
-            "  %-*s screen each proposal with a cheap approximate likelihood before the\n",
-            w, "");
-    fprintf(out, "  %-*s particle filter runs; exact either way (default %s)\n", w, "", d->delayed ? "on" : "off");
+    if ((int)strlen(name) > w)
+        fprintf(out, "  %s\n  %-*s ", name, w, "");
+    else
+        fprintf(out, "  %-*s ", w, name);
+    for (const char *p = text; *p; p++) {
+        fputc(*p, out);
+        if (*p == '\n' && p[1])
+            fprintf(out, "  %-*s ", w, "");
+    }
+    fputc('\n', out);
+}
+
+void tf_args_sampler_help(FILE *out, const tf_pmmh_options *d, const tf_evidence_options *e, int width)
+{
+    /* Lines of at most 66 characters, so that the widest padding (26) stays within 92 columns. */
+    char t[512];
+    snprintf(t, sizeof t, "chains per model (default %zu)", d->n_chains);
+    help_item(out, width, "--chains C", t);
+    snprintf(t, sizeof t, "discarded iterations per chain while the sampler adapts\n(default %zu)", d->n_warmup);
+    help_item(out, width, "--warmup W", t);
+    snprintf(t, sizeof t,
+             "run each chain, after the warm-up, until every parameter and the\n"
+             "true abundance of the first and last year have R-hat <= %.2f and\n"
+             "bulk and tail ESS >= E (default %.0f)",
+             TF_FIT_RHAT_MAX, d->min_ess);
+    help_item(out, width, "--min-ess E", t);
+    snprintf(t, sizeof t, "but at least I iterations per chain (default %zu)", d->min_iter);
+    help_item(out, width, "--min-iterations I", t);
+    snprintf(t, sizeof t, "and at most I (default %zu)", d->max_iter);
+    help_item(out, width, "--max-iterations I", t);
+    help_item(out, width, "--iterations I",
+              "run exactly I iterations per chain after the warm-up, without the\n"
+              "convergence checks deciding (no default: the bounds above apply)");
+    snprintf(t, sizeof t,
+             "keep every K-th iteration at first (default %zu); the thinning\n"
+             "doubles whenever the kept draws fill their store",
+             d->thin);
+    help_item(out, width, "--thin K", t);
+    snprintf(t, sizeof t, "keep at most N draws per chain (default %zu)", d->max_kept);
+    help_item(out, width, "--kept-draws N", t);
+    help_item(out, width, "--particles N",
+              "particles of the filter (default: chosen per model so that the\n"
+              "log-likelihood estimate's sd is near its target)");
+    help_item(out, width, "--proposal P",
+              "how the particle filter moves: guided (default; looks at each\n"
+              "year's count first, far fewer particles for large counts) or\n"
+              "bootstrap (the growth model alone, for checks and comparisons)");
+    snprintf(t, sizeof t, "correlated pseudo-marginal method (default: %s)", d->correlated ? "on" : "off");
+    help_item(out, width, "--correlated", t);
+    snprintf(t, sizeof t, "standard pseudo-marginal method (default: %s)", d->correlated ? "off" : "on");
+    help_item(out, width, "--standard", t);
+    snprintf(t, sizeof t,
+             "screen each proposal with a cheap approximate likelihood before\n"
+             "the particle filter runs; exact either way (default %s)",
+             d->delayed ? "on" : "off");
+    help_item(out, width, "--delayed-acceptance on|off", t);
+    snprintf(t, sizeof t, "random seed (default %llu); the same seed gives the same numbers",
+             (unsigned long long)d->seed);
+    help_item(out, width, "--seed S", t);
+    help_item(out, width, "--threads T",
+              "threads (default: the number of processors); the results do not\n"
+              "depend on T");
+    help_item(out, width, "--prior-file FILE",
+              "a model file overriding some or all default priors: of the model\n"
+              "fitted, or of the candidates of the growth model it names (of\n"
+              "every candidate when it names none), each for the parameters it has");
+    snprintf(t, sizeof t,
+             "prior of the first year's log-abundance, for every model fitted\n"
+             "(default: the log of the mean of the first %d counts / effort, and 1)",
+             TF_MODEL_X1_YEARS);
+    help_item(out, width, "--prior x1_mean=V,x1_sd=V", t);
+    if (!e)
+        return;
+    snprintf(t, sizeof t,
+             "draw importance draws until the standard error of each log\n"
+             "marginal likelihood is at most S (default %.2f; 0 = always --draws\n"
+             "draws)",
+             e->target_se);
+    help_item(out, width, "--ml-se S", t);
+    snprintf(t, sizeof t, "importance draws per density for each marginal likelihood, at\nmost (default %zu)",
+             e->n_draws);
+    help_item(out, width, "--draws M", t);
+    help_item(out, width, "--model-weights NAME=W,...",
+              "prior model weights (relative; default all equal). NAME is a\n"
+              "model (ricker+poisson) or a growth model (all its counting-error\n"
+              "models); models not named get 1");
+}
+
+void tf_args_quiet_help(FILE *out, int width)
+{
+    help_item(out, width, "-q, --quiet", "no progress display and no summary; warnings and errors are\nstill printed");
 }
 
 size_t tf_args_default_threads(size_t max)

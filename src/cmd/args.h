@@ -1,5 +1,5 @@
 /* Helpers the commands share for their options: numbers, comma lists, name=value pairs, getopt
- * error messages, and binding `--set` values to a model's parameters. Every helper records what
+ * error messages, and binding `--parameter` values to a model's parameters. Every helper records what
  * went wrong in a tf_error (status TF_ERR_USAGE, naming the option) and prints nothing. */
 #ifndef TF_ARGS_H
 #define TF_ARGS_H
@@ -11,11 +11,13 @@
 
 #include "filter/filter.h"
 #include "model/model.h"
+#include "cmd/setup.h"
+#include "compare/evidence.h"
 #include "sampler/pmmh.h"
 #include "survey/survey.h"
 #include "util/error.h"
 
-/* Most pairs one list of `--set` options holds, and the longest name. */
+/* Most pairs one list of name=value options holds, and the longest name. */
 #define TF_ARGS_MAX_PAIRS 32
 #define TF_ARGS_NAME_MAX 32
 
@@ -35,7 +37,7 @@ void tf_args_pairs_init(tf_arg_pairs *p);
 /* Appends the pairs of text "name=value,name=value,..." (spaces around items allowed) to p, so
  * an option may be repeated. Errors: an empty item, a missing '=', an empty or over-long name,
  * a value that is not a finite number, a name given twice, more than TF_ARGS_MAX_PAIRS pairs.
- * opt ("--set") names the option in messages. On error p keeps the pairs added before. */
+ * opt ("--parameter") names the option in messages. On error p keeps the pairs added before. */
 tf_status tf_args_parse_pairs(const char *opt, const char *text, tf_arg_pairs *p, tf_error *err);
 
 /* The pair with that name, or NULL. */
@@ -55,7 +57,7 @@ tf_status tf_args_parse_doubles(const char *opt, const char *text, double *out, 
 tf_status tf_args_split_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
                               size_t max, size_t *n, tf_error *err);
 
-/* A --models / --obs list of candidate models: "all" (*all = 1, *n = 0), or a comma list split as
+/* A --model / --obs list of candidate models: "all" (*all = 1, *n = 0), or a comma list split as
  * tf_args_split_names (at most max) whose every name is a known growth model (growth non-zero)
  * or counting-error model; an unknown one is TF_ERR_USAGE with the known names in the hint. */
 tf_status tf_args_model_names(const char *opt, const char *text, char *buf, size_t size, const char **names,
@@ -80,7 +82,8 @@ tf_status tf_args_parse_seed(const char *opt, const char *text, uint64_t *out, t
 
 /* Describes a getopt_long failure (optstring starting with ':'): c is getopt's return (':' or
  * '?'), opt_char getopt's optopt, arg the argv element that caused it. cmd names the command
- * for the hint ("run 'tallyfit CMD --help'"). Returns TF_ERR_USAGE. */
+ * for the hint ("run 'tallyfit CMD --help'"); an option of an earlier version (--models, --set,
+ * --fixed, --priors, --populations) gets its new name in the hint instead. Returns TF_ERR_USAGE. */
 tf_status tf_args_getopt_error(const char *cmd, int c, int opt_char, const char *arg, tf_error *err);
 
 /* The survey file named after the options: argv[first], or NULL when there is none. A further
@@ -96,9 +99,16 @@ tf_status tf_args_no_survey(const char *cmd, tf_error *err);
 const tf_series *tf_args_pick_series(const tf_survey *sv, const char *population, const char *path,
                                      tf_error *err);
 
-/* Names `--set` accepts besides the model's parameters: the first-year prior. */
+/* The names of `--prior`: the first-year prior, which tf_args_bind_model takes besides the model's
+ * parameters. */
 #define TF_ARGS_X1_MEAN "x1_mean"
 #define TF_ARGS_X1_SD "x1_sd"
+
+/* Checks that the --parameter list values names no first-year prior and that the --prior list
+ * prior names only x1_mean and x1_sd (TF_ERR_USAGE with the other option in the hint), then
+ * appends prior's pairs to values, for tf_args_bind_model. Errors are recorded in err; values
+ * is unchanged on error. */
+tf_status tf_args_merge_prior(tf_arg_pairs *values, const tf_arg_pairs *prior, tf_error *err);
 
 /* Binds set to m: every name must be a parameter of m or x1_mean / x1_sd (else an error whose
  * hint lists the model's names). Values go to theta (model order) and given[i] is set to 1 for
@@ -119,12 +129,14 @@ tf_status tf_args_model_at(const char *growth, const char *obs, const tf_arg_pai
  * large file is read. */
 tf_status tf_args_check_model(const char *growth, const char *obs, tf_error *err);
 
-/* The sampler's run-length options, shared by every command that fits: --iterations (a fixed
- * length), --min-iterations, --max-iterations, --min-ess, --thin and --kept-draws. A command
- * puts TF_ARGS_RUN_LONGOPTS in its getopt_long table and passes every option code it does not
- * know itself to tf_args_run_option. */
+/* The sampler's run-length options: --iterations (a fixed length), --min-iterations,
+ * --max-iterations, --min-ess, --thin, --kept-draws and --delayed-acceptance. They are part of
+ * the sampler group below (TF_ARGS_SAMPLER_LONGOPTS), which every command that fits declares. */
 enum { TF_ARGS_OPT_ITER = 1000, TF_ARGS_OPT_MIN_ITER, TF_ARGS_OPT_MAX_ITER, TF_ARGS_OPT_MIN_ESS,
-       TF_ARGS_OPT_THIN, TF_ARGS_OPT_KEPT, TF_ARGS_OPT_DELAYED };
+       TF_ARGS_OPT_THIN, TF_ARGS_OPT_KEPT, TF_ARGS_OPT_DELAYED, TF_ARGS_OPT_CHAINS, TF_ARGS_OPT_WARMUP,
+       TF_ARGS_OPT_PARTICLES, TF_ARGS_OPT_PROPOSAL, TF_ARGS_OPT_CORRELATED, TF_ARGS_OPT_STANDARD,
+       TF_ARGS_OPT_SEED, TF_ARGS_OPT_THREADS, TF_ARGS_OPT_PRIOR_FILE, TF_ARGS_OPT_PRIOR, TF_ARGS_OPT_ML_SE,
+       TF_ARGS_OPT_DRAWS, TF_ARGS_OPT_WEIGHTS };
 #define TF_ARGS_RUN_LONGOPTS                                                                      \
     {"iterations", required_argument, NULL, TF_ARGS_OPT_ITER},                                    \
     {"min-iterations", required_argument, NULL, TF_ARGS_OPT_MIN_ITER},                            \
@@ -154,13 +166,93 @@ const char *tf_args_run_option(int code, const char *text, tf_args_run *r, tf_er
  * and a thinning above the minimum (no draw would be kept). */
 tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error *err);
 
-/* Prints the help lines of the run-length options with defaults d, each option's name padded to
- * width columns. */
-void tf_args_run_help(FILE *out, const tf_pmmh_options *d, int width);
+/* ---- the sampler group ----
+ * One set of options, one set of limits and one help text for every command that fits models
+ * (fit, compare, analyze, forecast): chains, warm-up, particles, proposal, standard or
+ * correlated method, the run length (tf_args_run), seed, threads, the priors, and, on the
+ * commands that estimate a marginal likelihood, its options. A command puts
+ * TF_ARGS_SAMPLER_LONGOPTS (and TF_ARGS_ML_LONGOPTS when it estimates a marginal likelihood) in
+ * its getopt_long table and passes every option code it does not know itself to
+ * tf_args_sampler_option. */
+#define TF_ARGS_SAMPLER_LONGOPTS                                                                  \
+    TF_ARGS_RUN_LONGOPTS,                                                                         \
+    {"chains", required_argument, NULL, TF_ARGS_OPT_CHAINS},                                      \
+    {"warmup", required_argument, NULL, TF_ARGS_OPT_WARMUP},                                      \
+    {"particles", required_argument, NULL, TF_ARGS_OPT_PARTICLES},                                \
+    {"proposal", required_argument, NULL, TF_ARGS_OPT_PROPOSAL},                                  \
+    {"correlated", no_argument, NULL, TF_ARGS_OPT_CORRELATED},                                    \
+    {"standard", no_argument, NULL, TF_ARGS_OPT_STANDARD},                                        \
+    {"seed", required_argument, NULL, TF_ARGS_OPT_SEED},                                          \
+    {"threads", required_argument, NULL, TF_ARGS_OPT_THREADS},                                    \
+    {"prior-file", required_argument, NULL, TF_ARGS_OPT_PRIOR_FILE},                              \
+    {"prior", required_argument, NULL, TF_ARGS_OPT_PRIOR}
+#define TF_ARGS_ML_LONGOPTS                                                                       \
+    {"ml-se", required_argument, NULL, TF_ARGS_OPT_ML_SE},                                        \
+    {"draws", required_argument, NULL, TF_ARGS_OPT_DRAWS},                                        \
+    {"model-weights", required_argument, NULL, TF_ARGS_OPT_WEIGHTS}
 
-/* --ml-se S: the standard error of each log marginal likelihood that its importance draws stop
- * at, 0 (always the --draws cap) to 10. */
-tf_status tf_args_parse_ml_se(const char *text, double *out, tf_error *err);
+/* Limits of the group that only guard memory and time against typos. */
+#define TF_ARGS_MIN_WARMUP ((size_t)20)
+#define TF_ARGS_MAX_WARMUP ((size_t)10000000)
+#define TF_ARGS_MAX_PARTICLES ((size_t)10000000)
+#define TF_ARGS_MIN_DRAWS ((size_t)100)
+#define TF_ARGS_MAX_DRAWS ((size_t)10000000)
+#define TF_ARGS_MAX_THREADS ((size_t)256)
+
+/* The sampler options as given; 0, -1, NULL or NAN where not given. Set it up with
+ * tf_args_sampler_init. */
+typedef struct {
+    tf_args_run run;
+    size_t chains, warmup, particles, threads, draws;
+    int proposal_given, seed_given;
+    tf_proposal proposal;
+    int correlated;          /* --correlated (1), --standard (0), -1 = neither */
+    uint64_t seed;
+    const char *prior_file;  /* --prior-file, borrowed from argv */
+    tf_arg_pairs prior;      /* --prior x1_mean=..,x1_sd=.. */
+    double ml_se;            /* NAN = not given */
+    tf_arg_pairs weights;    /* --model-weights NAME=W,... */
+    const char *first;       /* the first option of the group given, --seed aside */
+    const char *first_ml;    /* the first option of the comparison given (--ml-se, --draws, --model-weights) */
+} tf_args_sampler;
+
+void tf_args_sampler_init(tf_args_sampler *s);
+
+/* Reads option code (with its argument text) into s when it is one of the group's options and
+ * returns the option's name ("--chains"); returns NULL for any other code. A bad value is
+ * recorded in err. */
+const char *tf_args_sampler_option(int code, const char *text, tf_args_sampler *s, tf_error *err);
+
+/* Puts the options given over fit's and, when ml is not NULL, over ml's (seed, particles and
+ * proposal go to both): the run length as tf_args_run_apply. --seed goes to *seed and --threads
+ * to *n_threads when given (either may be NULL: fit's own fields are then used). Refuses a
+ * marginal-likelihood option when ml is NULL, and a --prior name other than x1_mean and x1_sd.
+ * The importance draws' adaptation rounds are kept within --draws. Every problem is recorded in
+ * err; returns its status. */
+tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, tf_evidence_options *ml,
+                                uint64_t *seed, size_t *n_threads, tf_error *err);
+
+/* The priors the user set (--prior-file, --prior) as the comparison's priors callback takes them
+ * (setup.h): u borrows s's file name. */
+void tf_args_sampler_user(const tf_args_sampler *s, tf_setup_user *u);
+
+/* The prior model weights given (--model-weights) as the comparison takes them: names (borrowed
+ * from s) and values into arrays of TF_ARGS_MAX_PAIRS; returns how many. Checks, before any fit,
+ * that each name is a candidate's (a growth model of growth[0 .. n_growth), every one when
+ * n_growth = 0, or such a growth model joined with a counting-error model of obs[0 .. n_obs),
+ * any known one when n_obs = 0, as "ricker+poisson") and each weight positive: TF_ERR_USAGE
+ * otherwise. */
+tf_status tf_args_sampler_weights(const tf_args_sampler *s, const char *const *growth, size_t n_growth,
+                                  const char *const *obs, size_t n_obs, const char **names, double *values,
+                                  size_t *n, tf_error *err);
+
+/* Prints the help of the group with the defaults of fit (and, when ml is not NULL, of the
+ * marginal likelihood), every option's name padded to width columns: the same text in every
+ * command. */
+void tf_args_sampler_help(FILE *out, const tf_pmmh_options *fit, const tf_evidence_options *ml, int width);
+
+/* The help line of -q/--quiet, the same in every command, at width columns. */
+void tf_args_quiet_help(FILE *out, int width);
 
 /* The default number of threads: the processors online (1 when unknown), at most max. */
 size_t tf_args_default_threads(size_t max);

@@ -36,11 +36,7 @@
 #define PROG "tallyfit " CMD
 #define DEFAULT_DIR "output"
 /* Limits that only guard memory and time against typos. */
-#define MAX_ITER 10000000
-#define MAX_PARTICLES 10000000
-#define MAX_DRAWS 10000000
 #define MAX_RUNS 10000000
-#define MAX_THREADS 256
 /* Above this many populations analyze runs as a batch: one workbook with nine sheets per
  * population stops being readable, and holding every population's fits until the end (some
  * 20 MB each at the default settings) stops fitting in memory. */
@@ -74,25 +70,13 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --threshold LIST   quasi-extinction thresholds: animals, or percentages of the current\n"
             "                     abundance, e.g. 50,100 or 20%% (default 50%%,20%%,10%%)\n"
             "  --years H          years to project (default %zu)\n"
+            "  --decline-window Y also report declines over Y whole years (e.g. three generations,\n"
+            "                     rounded); declines over 10 years are always reported\n"
             TF_INPUT_HELP
-            "  --models M,...     growth models to compare (default exponential,ricker,gompertz; 'all'\n"
+            "  --model M,...      growth models to compare (default exponential,ricker,gompertz; 'all'\n"
             "                     for every one of %s)\n"
             "  --obs O,...        counting-error models (default poisson,negbin for whole counts,\n"
             "                     lognormal otherwise; 'all' for every one of %s that suits)\n"
-            "  --seed S           random seed (default %llu); the same seed gives the same numbers\n"
-            "  --threads T        threads (default: the number of processors; 1 per MPI process); the\n"
-            "                     results do not depend on T. A batch analyses T populations at a time\n"
-            "  --chains C         chains per model (default %zu)\n",
-            DEFAULT_DIR, d->project.horizon, growth, obs, (unsigned long long)d->seed, d->fit.n_chains);
-    tf_args_run_help(out, &d->fit, 21);
-    fprintf(out,
-            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
-            "  --particles N      particles of the filter (default: tuned per model)\n"
-            TF_ARGS_PROPOSAL_HELP
-            "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
-            "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
-            "  --draws M          importance draws per density for each marginal likelihood, at most\n"
-            "                     (default %zu)\n"
             "  --runs R           simulated futures (default: at least %d)\n"
             "  --batch            analyse the populations as a batch even when there are few (see below)\n"
             "  --fresh            in batch mode: discard the results of an earlier batch in the folder\n"
@@ -101,9 +85,13 @@ static void help(FILE *out, const tf_analysis_options *d)
             "                     populations (default %d); the CSV tables are always written\n"
             "  --workbook-draws   put the raw posterior draws in the workbook too (also the batch's\n"
             "                     workbooks per population); by default they are CSV only, since a\n"
-            "                     sheet of every draw makes the workbook slow to open\n"
-            "  -q, --quiet        print nothing but errors\n"
-            "  -h, --help         show this help\n\n"
+            "                     sheet of every draw makes the workbook slow to open\n",
+            DEFAULT_DIR, d->project.horizon, growth, obs, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT);
+    tf_args_quiet_help(out, 21);
+    fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
+    tf_args_sampler_help(out, &d->fit, &d->evidence, 21);
+    fprintf(out,
+            "  (--threads: with MPI, 1 per process by default; a batch analyses T populations at a time)\n\n"
             "Batch mode (--batch, more than %d populations, or several MPI processes): the populations\n"
             "are shared among the threads (one population each at a time) or the MPI processes, and\n"
             "each one's tables are written as it finishes into DIR/<population>/, ending with a\n"
@@ -114,7 +102,7 @@ static void help(FILE *out, const tf_analysis_options *d)
             "when some populations failed (the summary says why), with 2 in a folder made with other\n"
             "settings, and with 130 when interrupted (run it again to go on).\n"
             TF_CMD_HELP_END,
-            d->fit.n_warmup, d->evidence.target_se, d->evidence.n_draws, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT, BATCH_AUTO);
+            BATCH_AUTO);
 }
 
 /* The plain lines on one population. */
@@ -162,9 +150,10 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
 
 /* ---- batch mode ---- */
 
-/* Hashes of the model files the priors come from, as lines of the batch's settings record: an
- * edited prior changes the numbers, so a batch must not continue across it. */
-static void model_file_lines(const tf_analysis_options *o, char *buf, size_t size)
+/* Hashes of the model files the priors come from, the priors the user set (--prior-file, by
+ * its hash, and --prior) and the prior model weights (--model-weights), as lines of the batch's
+ * settings record: an edited prior changes the numbers, so a batch must not continue across it. */
+static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *user, char *buf, size_t size)
 {
     size_t used = 0;
     const char *names[TF_ANALYSIS_MAX_NAMES + 64];
@@ -187,6 +176,26 @@ static void model_file_lines(const tf_analysis_options *o, char *buf, size_t siz
         if (w < 0 || (size_t)w >= size - used)
             break;
         used += (size_t)w;
+    }
+    /* Written only when given, so that the records of batches without them stay the same. */
+    if (user->prior_file && used < size) {
+        char hex[TF_PROVENANCE_HASH_BUF];
+        if (tf_provenance_hash_file(user->prior_file, hex, NULL) != TF_OK)
+            snprintf(hex, sizeof hex, "missing");
+        int w = snprintf(buf + used, size - used, "prior-file %s\n", hex);
+        used += w > 0 ? (size_t)w : 0;
+    }
+    if (!isnan(user->x1_mean) && used < size) {
+        int w = snprintf(buf + used, size - used, "prior x1_mean=%.17g\n", user->x1_mean);
+        used += w > 0 ? (size_t)w : 0;
+    }
+    if (!isnan(user->x1_sd) && used < size) {
+        int w = snprintf(buf + used, size - used, "prior x1_sd=%.17g\n", user->x1_sd);
+        used += w > 0 ? (size_t)w : 0;
+    }
+    for (size_t i = 0; i < o->n_weights && used < size; i++) {
+        int w = snprintf(buf + used, size - used, "model-weights %s=%.17g\n", o->weight_names[i], o->weights[i]);
+        used += w > 0 ? (size_t)w : 0;
     }
 }
 
@@ -216,7 +225,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
                      int quiet, int rank, int size, tf_error *err)
 {
     char extra[4096];
-    model_file_lines(opt, extra, sizeof extra);
+    model_file_lines(opt, opt->priors_ctx, extra, sizeof extra);
     tf_batch_options bo = {.analysis = *opt, .survey_path = path, .title = name, .root = root, .workbook = xlsx,
                            .workbook_limit = workbook_limit, .workbook_draws = workbook_draws,
                            .extra_settings = extra, .fresh = fresh};
@@ -300,28 +309,20 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 
 static int analyze(int argc, char **argv, int rank, int size)
 {
-    enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_POP, OPT_MODELS, OPT_OBS, OPT_SEED, OPT_THREADS, OPT_CHAINS,
-           OPT_WARMUP, OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_RUNS, OPT_BATCH, OPT_FRESH, OPT_WB_LIMIT, OPT_WB_DRAWS,
-           OPT_PROPOSAL, OPT_SKIP,
-           OPT_ESTIMATES };
+    enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_WINDOW, OPT_POP, OPT_MODEL, OPT_OBS, OPT_RUNS, OPT_BATCH, OPT_FRESH,
+           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
         {"years", required_argument, NULL, OPT_YEARS},
+        {"decline-window", required_argument, NULL, OPT_WINDOW},
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
-        {"models", required_argument, NULL, OPT_MODELS},
+        {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
-        {"seed", required_argument, NULL, OPT_SEED},
-        {"threads", required_argument, NULL, OPT_THREADS},
-        {"chains", required_argument, NULL, OPT_CHAINS},
-        TF_ARGS_RUN_LONGOPTS,
-        {"warmup", required_argument, NULL, OPT_WARMUP},
-        {"particles", required_argument, NULL, OPT_PARTICLES},
-        {"proposal", required_argument, NULL, OPT_PROPOSAL},
-        {"draws", required_argument, NULL, OPT_DRAWS},
-        {"ml-se", required_argument, NULL, OPT_ML_SE},
+        TF_ARGS_SAMPLER_LONGOPTS,
+        TF_ARGS_ML_LONGOPTS,
         {"runs", required_argument, NULL, OPT_RUNS},
         {"batch", no_argument, NULL, OPT_BATCH},
         {"fresh", no_argument, NULL, OPT_FRESH},
@@ -338,7 +339,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_error_print(&err, PROG, stderr);
         return TF_EXIT_FAIL;
     }
-    opt.n_threads = tf_args_default_threads(MAX_THREADS);
+    opt.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
     /* Under MPI one process per core is the rule: each takes one thread unless told otherwise. */
     if (size > 1)
         opt.n_threads = 1;
@@ -348,9 +349,8 @@ static int analyze(int argc, char **argv, int rank, int size)
     FILE *errs = rank == 0 ? stderr : NULL;
     const char *out_dir = NULL;
     char growth_buf[1024], obs_buf[1024];
-    size_t n_particles = 0;
-    tf_args_run run;
-    tf_args_run_init(&run);
+    tf_args_sampler sampler;
+    tf_args_sampler_init(&sampler);
     int quiet = 0;
     tf_input in = {0};
 
@@ -369,28 +369,21 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_YEARS:
             tf_args_parse_size("--years", optarg, 1, TF_PROJECT_MAX_HORIZON, &opt.project.horizon, &err);
             break;
+        case OPT_WINDOW:
+            tf_args_parse_size("--decline-window", optarg, 1, TF_PROJECT_MAX_HORIZON, &opt.project.decline_window,
+                               &err);
+            break;
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
-        case OPT_MODELS:
-            tf_args_model_names("--models", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
+        case OPT_MODEL:
+            tf_args_model_names("--model", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
                                 &opt.n_growth, &all, 1, &err);
             break;
         case OPT_OBS:
             tf_args_model_names("--obs", optarg, obs_buf, sizeof obs_buf, opt.obs, TF_ANALYSIS_MAX_NAMES, &opt.n_obs,
                                 &opt.obs_auto, 0, &err);
             break;
-        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
-        case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
-        case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
-        case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
-        case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
-        case OPT_PROPOSAL:
-            tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
-            opt.evidence.proposal = opt.fit.proposal;
-            break;
-        case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
-        case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
         case OPT_RUNS: tf_args_parse_size("--runs", optarg, 1, MAX_RUNS, &opt.project.n_runs, &err); break;
         case OPT_BATCH: batch = 1; break;
         case OPT_FRESH: fresh = 1; break;
@@ -402,7 +395,7 @@ static int analyze(int argc, char **argv, int rank, int size)
                 help(stdout, &opt);
             return TF_EXIT_OK;
         default:
-            if (!tf_args_run_option(c, optarg, &run, &err))
+            if (!tf_args_sampler_option(c, optarg, &sampler, &err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
             break;
         }
@@ -410,12 +403,20 @@ static int analyze(int argc, char **argv, int rank, int size)
     const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path && tf_error_status(&err) == TF_OK)
         tf_args_no_survey(CMD, &err);
-    if (tf_error_status(&err) == TF_OK)
-        tf_args_run_apply(&run, &opt.fit, &err);
+    if (tf_error_status(&err) == TF_OK) {
+        tf_args_sampler_apply(&sampler, &opt.fit, &opt.evidence, &opt.seed, &opt.n_threads, &err);
+    }
     if (path && !strcmp(path, "-"))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "save the survey to a file first",
                      "analyze needs a survey file: its name names the results and its hash is recorded");
     tf_input_check_obs(&in, "--obs", opt.obs, opt.n_obs, &err);
+    const char *wnames[TF_ARGS_MAX_PAIRS];
+    double wvals[TF_ARGS_MAX_PAIRS];
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_sampler_weights(&sampler, opt.growth, opt.n_growth, opt.obs, opt.obs_auto ? 0 : opt.n_obs, wnames,
+                                wvals, &opt.n_weights, &err);
+    opt.weight_names = wnames;
+    opt.weights = wvals;
     opt.estimates = in.estimates;
     opt.population = tf_input_single(&in);
     if (in.n_labels && batch && tf_error_status(&err) == TF_OK)
@@ -426,12 +427,10 @@ static int analyze(int argc, char **argv, int rank, int size)
             tf_error_print(&err, PROG, errs);
         return TF_EXIT_USAGE;
     }
-    opt.fit.n_particles = opt.evidence.n_particles = n_particles;
-    opt.priors = tf_setup_default_priors;
-    /* Fewer importance draws (as in short test runs) keep the adaptation rounds in proportion,
-     * as the compare command does. */
-    if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)
-        opt.evidence.n_adapt_draws = opt.evidence.n_draws;
+    tf_setup_user user;
+    tf_args_sampler_user(&sampler, &user);
+    opt.priors = tf_setup_user_priors;
+    opt.priors_ctx = &user;
 
     /* -o names the folder that receives the results, as in every command. */
     char name[256], xlsx[4096], csv_dir[4096];
@@ -475,7 +474,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         }
         /* The model files of every candidate are read now, not when each one's turn comes. */
         if (tf_survey_n_series(sv) &&
-            (st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0),
+            (st = tf_setup_check_candidates(&user, opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0),
                                             &err)) != TF_OK) {
             status = tf_args_exit_code(st);
             goto out;
@@ -495,11 +494,11 @@ static int analyze(int argc, char **argv, int rank, int size)
         tf_survey_free(sv);
         sv = NULL;
     }
-    if ((st = tf_input_read(&in, path, quiet ? NULL : errs, PROG, &sv, &err)) != TF_OK) {
+    if ((st = tf_input_read(&in, path, errs, PROG, &sv, &err)) != TF_OK) {
         status = st == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
         goto out;
     }
-    if ((st = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
+    if ((st = tf_setup_check_candidates(&user, opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
         TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
@@ -520,8 +519,9 @@ static int analyze(int argc, char **argv, int rank, int size)
             goto out;
         }
     }
-    /* Counts to check are named now, before the long part; the first page lists them too. */
-    if (!quiet)
+    /* Counts to check are named now, before the long part; the first page lists them too. They
+     * are warnings, which --quiet keeps. */
+    if (errs)
         tf_input_warn_outliers(sv, opt.population, path, PROG, errs);
     /* Before the long part: refuse a workbook that would land on the survey, and a file where
      * the CSV folder goes. */

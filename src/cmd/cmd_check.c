@@ -40,8 +40,14 @@ static void help(FILE *out)
             "\n"
             "options:\n"
             TF_INPUT_HELP
-            "  -q, --quiet        print nothing when the file is usable (the exit status tells)\n"
+            "",
+            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED);
+    tf_args_quiet_help(out, 21);
+    fprintf(out,
             "  -h, --help         show this help\n"
+            "\n"
+            "The overview is the summary: with --quiet a usable file prints nothing but its warnings\n"
+            "(the exit status tells).\n"
             "\n"
             "For each population the overview gives:\n"
             "  years        first and last year listed, and how many years lie between them\n"
@@ -58,8 +64,7 @@ static void help(FILE *out)
             "               dependence and the missing years.\n"
             "\nA usable file ends with status 0, an unusable one with 3.\n"
             TF_CMD_HELP_END,
-            TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX, TF_SURVEY_MIN_SURVEYED, TF_SERIES_OUTLIER_FACTOR,
-            TF_SERIES_OUTLIER_WINDOW);
+            TF_SERIES_OUTLIER_FACTOR, TF_SERIES_OUTLIER_WINDOW);
 }
 
 /* Missing years with runs joined: "1999, 2004-2005", or "none". */

@@ -25,11 +25,6 @@
 
 #define CMD "compare"
 #define PROG "tallyfit " CMD
-/* Limits that only guard memory and time against typos. */
-#define MAX_ITER 10000000
-#define MAX_PARTICLES 10000000
-#define MAX_DRAWS 10000000
-#define MAX_THREADS 256
 #define MAX_NAMES TF_COMPARE_MAX_MODELS
 
 static void help(FILE *out)
@@ -40,7 +35,7 @@ static void help(FILE *out)
     tf_pmmh_options d = tf_pmmh_default_options();
     tf_evidence_options e = tf_evidence_default_options();
     fprintf(out,
-            "usage: tallyfit compare SURVEY.csv [--models M,...] [--obs O,...] [options]\n\n"
+            "usage: tallyfit compare SURVEY.csv [--model M,...] [--obs O,...] [options]\n\n"
             "Fits every candidate model (each growth model with each counting-error model) to the counts\n"
             "of each population, estimates each model's marginal likelihood p(counts | model) by\n"
             "importance sampling squared, and ranks them by Bayes factor and posterior probability.\n"
@@ -52,32 +47,16 @@ static void help(FILE *out)
             "whole counts); the continuous log-normal density is listed as excluded. Counts that are not\n"
             "whole numbers (densities, indices) are compared under the continuous log-normal only.\n\n"
             "options:\n"
-            "  --models M,...     growth models to compare (default: all of %s)\n"
+            "  --model M,...      growth models to compare (default: all of %s)\n"
             "  --obs O,...        counting-error models (default: those of %s that suit the counts)\n"
             TF_INPUT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
-            "                     sub-directory per population when the file has several)\n"
-            "  --model-weights NAME=W,...\n"
-            "                     prior model weights (relative; default all equal). NAME is a model\n"
-            "                     (ricker+poisson) or a growth model (all its counting-error models);\n"
-            "                     models not named get 1\n"
-            "  --seed S           random seed (default %llu); the same seed gives the same results\n"
-            "  --chains C         chains per model (default %zu)\n",
-            growth, obs, (unsigned long long)d.seed, d.n_chains);
-    tf_args_run_help(out, &d, 21);
-    fprintf(out,
-            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n"
-            "  --particles N      particles of the filter (default: tuned per model)\n"
-            TF_ARGS_PROPOSAL_HELP
-            "  --ml-se S          draw importance draws until the standard error of each log marginal\n"
-            "                     likelihood is at most S (default %.2f; 0 = always --draws draws)\n"
-            "  --draws M          importance draws per density at most (default %zu)\n"
-            "  --threads T        threads (default: the number of processors); models run in\n"
-            "                     parallel, and the results do not depend on T\n"
-            "  -q, --quiet        print nothing but warnings and errors\n"
-            "  -h, --help         show this help\n"
-            TF_CMD_HELP_END,
-            d.n_warmup, e.target_se, e.n_draws);
+            "                     sub-directory per population when the file has several)\n",
+            growth, obs);
+    tf_args_quiet_help(out, 21);
+    fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
+    tf_args_sampler_help(out, &d, &e, 21);
+    fputs(TF_CMD_HELP_END, out);
 }
 
 static void show_progress(void *ctx, size_t index, const char *model, tf_compare_event ev, double seconds)
@@ -219,44 +198,31 @@ static tf_status comparison_tables(const tf_comparison *c, const char *populatio
 
 int tf_cmd_compare(int argc, char **argv)
 {
-    enum { OPT_MODELS = 256, OPT_OBS, OPT_POP, OPT_WEIGHTS, OPT_SEED, OPT_CHAINS, OPT_WARMUP,
-           OPT_PARTICLES, OPT_DRAWS, OPT_ML_SE, OPT_THREADS, OPT_QUIET, OPT_PROPOSAL, OPT_SKIP,
-           OPT_ESTIMATES };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES };
     static const struct option longopts[] = {
-        {"models", required_argument, NULL, OPT_MODELS},
+        {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"output", required_argument, NULL, 'o'},
-        {"model-weights", required_argument, NULL, OPT_WEIGHTS},
-        {"seed", required_argument, NULL, OPT_SEED},
-        {"chains", required_argument, NULL, OPT_CHAINS},
-        TF_ARGS_RUN_LONGOPTS,
-        {"warmup", required_argument, NULL, OPT_WARMUP},
-        {"particles", required_argument, NULL, OPT_PARTICLES},
-        {"proposal", required_argument, NULL, OPT_PROPOSAL},
-        {"draws", required_argument, NULL, OPT_DRAWS},
-        {"ml-se", required_argument, NULL, OPT_ML_SE},
-        {"threads", required_argument, NULL, OPT_THREADS},
-        {"quiet", no_argument, NULL, OPT_QUIET},
+        TF_ARGS_SAMPLER_LONGOPTS,
+        TF_ARGS_ML_LONGOPTS,
+        {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
     tf_error err;
     tf_error_init(&err);
     tf_compare_options opt = tf_compare_default_options();
-    opt.n_threads = tf_args_default_threads(MAX_THREADS);
+    opt.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
     const char *population = NULL, *out_dir = NULL;
     char growth_buf[1024], obs_buf[1024];
     const char *growth[MAX_NAMES], *obs[MAX_NAMES];
-    tf_arg_pairs weights;
-    tf_args_pairs_init(&weights);
     uint64_t seed = opt.fit.seed;
-    size_t n_particles = 0;
     int quiet = 0;
-    tf_args_run run;
-    tf_args_run_init(&run);
+    tf_args_sampler sampler;
+    tf_args_sampler_init(&sampler);
     tf_input in = {0};
 
     opterr = 0;
@@ -264,8 +230,8 @@ int tf_cmd_compare(int argc, char **argv)
     int c;
     while ((c = getopt_long(argc, argv, ":o:hq", longopts, NULL)) != -1) {
         switch (c) {
-        case OPT_MODELS:
-            tf_args_split_names("--models", optarg, growth_buf, sizeof growth_buf, growth, MAX_NAMES, &opt.n_growth,
+        case OPT_MODEL:
+            tf_args_split_names("--model", optarg, growth_buf, sizeof growth_buf, growth, MAX_NAMES, &opt.n_growth,
                                 &err);
             break;
         case OPT_OBS:
@@ -275,25 +241,10 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
         case 'o': out_dir = optarg; break;
-        case OPT_WEIGHTS: tf_args_parse_pairs("--model-weights", optarg, &weights, &err); break;
-        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
-        case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.fit.n_chains, &err); break;
-        case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.fit.n_warmup, &err); break;
-        case OPT_PROPOSAL:
-            tf_args_parse_proposal("--proposal", optarg, &opt.fit.proposal, &err);
-            opt.evidence.proposal = opt.fit.proposal;
-            break;
-        case OPT_PARTICLES:
-            tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err);
-            break;
-        case OPT_DRAWS: tf_args_parse_size("--draws", optarg, 100, MAX_DRAWS, &opt.evidence.n_draws, &err); break;
-        case OPT_ML_SE: tf_args_parse_ml_se(optarg, &opt.evidence.target_se, &err); break;
-        case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
-        case OPT_QUIET:
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default:
-            if (!tf_args_run_option(c, optarg, &run, &err))
+            if (!tf_args_sampler_option(c, optarg, &sampler, &err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
             break;
         }
@@ -301,8 +252,9 @@ int tf_cmd_compare(int argc, char **argv)
     const char *path = tf_args_survey_path(argc, argv, optind, &err);
     if (!path)
         tf_args_no_survey(CMD, &err);
-    if (tf_error_status(&err) == TF_OK)
-        tf_args_run_apply(&run, &opt.fit, &err);
+    if (tf_error_status(&err) == TF_OK) {
+        tf_args_sampler_apply(&sampler, &opt.fit, &opt.evidence, &seed, &opt.n_threads, &err);
+    }
     /* Mistyped model names are usage errors, found before a large file is read. */
     char known[256];
     for (size_t i = 0; i < opt.n_growth; i++)
@@ -317,6 +269,10 @@ int tf_cmd_compare(int argc, char **argv)
                          known);
         }
     tf_input_check_obs(&in, "--obs", obs, opt.n_obs, &err);
+    const char *wnames[TF_ARGS_MAX_PAIRS];
+    double wvals[TF_ARGS_MAX_PAIRS];
+    if (tf_error_status(&err) == TF_OK)
+        tf_args_sampler_weights(&sampler, growth, opt.n_growth, obs, opt.n_obs, wnames, wvals, &opt.n_weights, &err);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
     population = tf_input_single(&in);
@@ -325,22 +281,13 @@ int tf_cmd_compare(int argc, char **argv)
         opt.n_obs = tf_input_continuous_obs(obs, MAX_NAMES);
     opt.growth = growth;
     opt.obs = obs;
-    const char *wnames[TF_ARGS_MAX_PAIRS];
-    double wvals[TF_ARGS_MAX_PAIRS];
-    for (size_t i = 0; i < weights.n; i++) {
-        wnames[i] = weights.items[i].name;
-        wvals[i] = weights.items[i].value;
-    }
     opt.weight_names = wnames;
     opt.weights = wvals;
-    opt.n_weights = weights.n;
     opt.fit.seed = opt.evidence.seed = seed;
-    opt.fit.n_particles = opt.evidence.n_particles = n_particles;
-    opt.priors = tf_setup_default_priors;
-    /* Importance draws scale with the requested effort: with --draws left alone, a short run
-     * (few iterations, as in tests) keeps its adaptation rounds in proportion. */
-    if (opt.evidence.n_adapt_draws > opt.evidence.n_draws)
-        opt.evidence.n_adapt_draws = opt.evidence.n_draws;
+    tf_setup_user user;
+    tf_args_sampler_user(&sampler, &user);
+    opt.priors = tf_setup_user_priors;
+    opt.priors_ctx = &user;
 
     int status = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
@@ -371,7 +318,7 @@ int tf_cmd_compare(int argc, char **argv)
         goto out;
     }
     /* The model files of every candidate are read now, not when each candidate's turn comes. */
-    tf_status cst = tf_setup_check_candidates(opt.growth, opt.n_growth, opt.obs, opt.n_obs,
+    tf_status cst = tf_setup_check_candidates(&user, opt.growth, opt.n_growth, opt.obs, opt.n_obs,
                                               only ? only : tf_survey_series(sv, 0), &err);
     for (size_t i = 0; i < n_jobs && cst == TF_OK; i++)
         cst = tf_setup_check_any_suits(opt.obs, opt.n_obs, only ? only : tf_survey_series(sv, i), path, &err);

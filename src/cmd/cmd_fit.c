@@ -29,10 +29,6 @@
 
 #define CMD "fit"
 #define PROG "tallyfit " CMD
-/* Limits that only guard memory and time against typos. */
-#define MAX_ITER 10000000
-#define MAX_PARTICLES 10000000
-#define MAX_THREADS 256
 
 static void help(FILE *out)
 {
@@ -58,29 +54,12 @@ static void help(FILE *out)
             "                     lognormal with --estimates)\n"
             TF_INPUT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
-            "                     sub-directory per population when the file has several)\n"
-            "  --chains C         chains (default %zu)\n"
-            "  --warmup W         discarded iterations per chain while the sampler adapts (default %zu)\n",
-            growth, obs, d.n_chains, d.n_warmup);
-    tf_args_run_help(out, &d, 21);
-    fprintf(out,
-            "  --seed S           random seed (default %llu); the same seed gives the same files\n"
-            "  --particles N      particles of the filter (default: chosen so that the log-likelihood\n"
-            "                     estimate's sd is near its target)\n"
-            TF_ARGS_PROPOSAL_HELP
-            "  --correlated       correlated pseudo-marginal method (default: %s)\n"
-            "  --standard         standard pseudo-marginal method\n"
-            "  --priors FILE      a model file overriding some or all default priors\n"
-            "  --set x1_mean=V,x1_sd=V\n"
-            "                     prior of the first year's log-abundance (default: the log of the mean\n"
-            "                     of the first %d counts / effort, and 1)\n"
-            "  --threads T        threads running chains (default: the number of processors); the\n"
-            "                     results do not depend on it\n"
-            "  -q, --quiet        no progress display and no summary\n"
-            "  -h, --help         show this help\n"
-            TF_CMD_HELP_END,
-            (unsigned long long)d.seed,
-            d.correlated ? "on" : "off", TF_MODEL_X1_YEARS);
+            "                     sub-directory per population when the file has several)\n",
+            growth, obs);
+    tf_args_quiet_help(out, 21);
+    fputs("  -h, --help         show this help\n\nSampler:\n", out);
+    tf_args_sampler_help(out, &d, NULL, 21);
+    fputs(TF_CMD_HELP_END, out);
 }
 
 /* ---- progress display ---- */
@@ -282,10 +261,7 @@ static void print_warnings(const job *j)
 
 int tf_cmd_fit(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_CHAINS, OPT_WARMUP, OPT_SEED, OPT_PARTICLES,
-           OPT_CORR, OPT_STD, OPT_PRIORS, OPT_SET, OPT_THREADS, OPT_QUIET,
-           OPT_PROPOSAL, OPT_SKIP,
-           OPT_ESTIMATES };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -293,31 +269,19 @@ int tf_cmd_fit(int argc, char **argv)
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"output", required_argument, NULL, 'o'},
-        {"chains", required_argument, NULL, OPT_CHAINS},
-        TF_ARGS_RUN_LONGOPTS,
-        {"warmup", required_argument, NULL, OPT_WARMUP},
-        {"seed", required_argument, NULL, OPT_SEED},
-        {"particles", required_argument, NULL, OPT_PARTICLES},
-        {"proposal", required_argument, NULL, OPT_PROPOSAL},
-        {"correlated", no_argument, NULL, OPT_CORR},
-        {"standard", no_argument, NULL, OPT_STD},
-        {"priors", required_argument, NULL, OPT_PRIORS},
-        {"set", required_argument, NULL, OPT_SET},
-        {"threads", required_argument, NULL, OPT_THREADS},
-        {"quiet", no_argument, NULL, OPT_QUIET},
+        TF_ARGS_SAMPLER_LONGOPTS,
+        {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
     tf_error err;
     tf_error_init(&err);
-    const char *growth = NULL, *obs = NULL, *population = NULL, *out_dir = NULL, *priors_path = NULL;
-    tf_arg_pairs set;
-    tf_args_pairs_init(&set);
+    const char *growth = NULL, *obs = NULL, *population = NULL, *out_dir = NULL;
     tf_pmmh_options opt = tf_pmmh_default_options();
-    opt.n_threads = tf_args_default_threads(SIZE_MAX);
+    opt.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
     int quiet = 0;
-    tf_args_run run;
-    tf_args_run_init(&run);
+    tf_args_sampler sampler;
+    tf_args_sampler_init(&sampler);
     tf_input in = {0};
 
     opterr = 0;
@@ -331,23 +295,10 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
         case 'o': out_dir = optarg; break;
-        case OPT_CHAINS: tf_args_parse_size("--chains", optarg, 1, TF_FIT_MAX_CHAINS, &opt.n_chains, &err); break;
-        case OPT_WARMUP: tf_args_parse_size("--warmup", optarg, 20, MAX_ITER, &opt.n_warmup, &err); break;
-        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &opt.seed, &err); break;
-        case OPT_PARTICLES:
-            tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &opt.n_particles, &err);
-            break;
-        case OPT_PROPOSAL: tf_args_parse_proposal("--proposal", optarg, &opt.proposal, &err); break;
-        case OPT_CORR: opt.correlated = 1; break;
-        case OPT_STD: opt.correlated = 0; break;
-        case OPT_PRIORS: priors_path = optarg; break;
-        case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
-        case OPT_THREADS: tf_args_parse_size("--threads", optarg, 1, MAX_THREADS, &opt.n_threads, &err); break;
-        case OPT_QUIET:
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default:
-            if (!tf_args_run_option(c, optarg, &run, &err))
+            if (!tf_args_sampler_option(c, optarg, &sampler, &err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
             break;
         }
@@ -356,14 +307,12 @@ int tf_cmd_fit(int argc, char **argv)
     if (!path)
         tf_args_no_survey(CMD, &err);
     if (tf_error_status(&err) == TF_OK)
-        tf_args_run_apply(&run, &opt, &err);
+        tf_args_sampler_apply(&sampler, &opt, NULL, NULL, NULL, &err);
     if (!growth)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --model ricker", "--model is required");
-    for (size_t i = 0; i < set.n; i++)
-        if (strcmp(set.items[i].name, TF_ARGS_X1_MEAN) && strcmp(set.items[i].name, TF_ARGS_X1_SD))
-            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give priors of the model's parameters with --priors FILE",
-                         "--set: fit takes only %s and %s, not %s", TF_ARGS_X1_MEAN, TF_ARGS_X1_SD,
-                         set.items[i].name);
+    else if (strchr(growth, ','))
+        tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "compare several models with 'tallyfit compare --model M,...'",
+                     "--model names one model in fit");
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage(PROG, &err);
 
@@ -414,8 +363,8 @@ int tf_cmd_fit(int argc, char **argv)
         if ((sst = tf_model_new(growth, obs, &j->model, &err)) != TF_OK ||
             (sst = tf_setup_check_counts(j->model, j->series, path, &err)) != TF_OK ||
             (sst = tf_model_initial_from_series(j->model, j->series, &err)) != TF_OK ||
-            (sst = tf_args_bind_model(j->model, &set, 0, theta, NULL, &err)) != TF_OK ||
-            (sst = tf_setup_priors(j->model, j->series, priors_path, &j->priors, &err)) != TF_OK ||
+            (sst = tf_args_bind_model(j->model, &sampler.prior, 0, theta, NULL, &err)) != TF_OK ||
+            (sst = tf_setup_priors(j->model, j->series, sampler.prior_file, &j->priors, &err)) != TF_OK ||
             (sst = tf_posterior_new(j->model, j->priors, &j->post, &err)) != TF_OK) {
             status = tf_args_exit_code(sst);
             goto out;

@@ -2,7 +2,7 @@
  * quasi-extinction risk and the chance of decline. Three sources of futures: the posterior of one
  * model fitted by PMMH (--model), the posteriors of the candidate models averaged by their
  * posterior probabilities (--average: the analysis of `tallyfit analyze`, without its workbook),
- * or parameter values given by hand (--fixed). */
+ * or parameter values given by hand (--parameter). */
 #define _GNU_SOURCE
 #include <assert.h>
 #include <getopt.h>
@@ -39,12 +39,8 @@
 #define PROG "tallyfit " CMD
 #define DEFAULT_THRESHOLDS "50%,20%,10%"
 #define DEFAULT_SEED 1u
-/* Limits that only guard memory and time against typos; MAX_RUNS is tf_project_run's own. */
+/* A limit that only guards memory and time against typos; tf_project_run's own. */
 #define MAX_RUNS 10000000u
-#define MAX_ITER 10000000
-#define MAX_PARTICLES 10000000
-#define MAX_DRAWS 10000000
-#define MAX_THREADS 256
 /* The three projection tables and the summary that says what was projected, with the cautions. */
 #define N_TABLES TF_FORECAST_N_TABLES
 
@@ -53,19 +49,18 @@ typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
 
 typedef struct {
     const char *survey_path;
-    const char *model, *obs, *population, *out_dir, *priors_path;
+    const char *model, *obs, *population, *out_dir;
     tf_input in;            /* --population list, --skip-unusable, --estimates; population = its single label */
     const char *thresholds;
     int average, quiet, have_fixed;
-    tf_arg_pairs fixed;
+    tf_arg_pairs fixed;      /* --parameter */
     size_t years, runs, decline_window;
     double start;
     uint64_t seed;
-    /* Sampler settings; 0 = the default of the source (no given value can be 0). */
-    size_t chains, warmup, particles, draws, threads;
-    tf_args_run run;         /* run length and thinning (tf_args_run_option) */
-    tf_proposal proposal;
-    const char *sampler_opt; /* the first sampler option given, for the --fixed refusal */
+    tf_args_sampler sampler; /* the sampler's options, as given */
+    tf_setup_user user;      /* the priors the user set (--prior-file, --prior), for the fits */
+    const char *weight_names[TF_ARGS_MAX_PAIRS];   /* --model-weights, as the comparison takes them */
+    double weights[TF_ARGS_MAX_PAIRS];
     source from;
 } options;
 
@@ -82,7 +77,7 @@ static void help(FILE *out)
     fprintf(out,
             "usage: tallyfit forecast SURVEY.csv --model M [--obs O] [options]\n"
             "       tallyfit forecast SURVEY.csv --average [--model M,...] [--obs O,...] [options]\n"
-            "       tallyfit forecast [SURVEY.csv] --fixed NAME=VALUE,... [--start N] [options]\n"
+            "       tallyfit forecast [SURVEY.csv] --parameter NAME=VALUE,... [--start N] [options]\n"
             "\n"
             "Simulates the population forward and reports the abundance bands, the risk of falling to or\n"
             "below a threshold (quasi-extinction) and the chance of decline, each with its Monte Carlo error.\n"
@@ -98,7 +93,8 @@ static void help(FILE *out)
             "                          then take comma lists, or 'all', restricting the candidates\n"
             "                          (default exponential,ricker,gompertz with poisson,negbin for whole\n"
             "                          counts, lognormal otherwise)\n"
-            "  --fixed r=..,sigma=..[,K=..]  project from these parameter values (growth parameters and the\n"
+            "  --parameter r=..,sigma=..[,K=..]\n"
+            "                          project from these parameter values (growth parameters and the\n"
             "                          process-noise sd sigma, natural scale); --model picks the growth\n"
             "                          model when the names leave a choice\n"
             "Without one of them the command stops with a usage error rather than start a fit of\n"
@@ -108,12 +104,12 @@ static void help(FILE *out)
             "\n"
             "Projection:\n"
             "  --population LIST       only these populations, labels separated by commas (default:\n"
-            "                          every one in the file; --fixed and --start need one)\n"
+            "                          every one in the file; --parameter and --start need one)\n"
             "  --skip-unusable         leave out, with a warning, every population that cannot be fitted\n"
             "  --estimates             the counts are estimates that need not be whole numbers: only\n"
             "                          counting-error models of continuous amounts (lognormal) are fitted\n"
-            "  --start N               current abundance. --fixed: without it, the last surveyed count /\n"
-            "                          effort. With a posterior, a what-if: every draw starts from N\n"
+            "  --start N               current abundance. With --parameter: by default the last surveyed\n"
+            "                          count / effort. With a posterior, a what-if: every draw starts from N\n"
             "                          instead of its latent abundance, keeping the uncertainty about the\n"
             "                          parameters and leaving out that about the current abundance\n"
             "  --years H               years to project (default %d)\n"
@@ -123,42 +119,35 @@ static void help(FILE *out)
             "                          rounded); declines over 10 years are always reported\n"
             "  --runs R                simulated futures (default %d, or the number of posterior draws\n"
             "                          when that is more)\n"
-            "  --seed S                random seed (default %u); the same seed gives the same numbers\n"
             "  -o, --output DIR        where to write (default output/<survey name>/, or output/forecast/\n"
             "                          without a survey), with one sub-folder per population when the\n"
-            "                          file has several, as fit does\n"
-            "  -q, --quiet             print only the cautions\n"
-            "\n"
-            "Fitting (--model, --average):\n"
-            "  --chains C              chains per model (default %zu)\n",
-            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS, DEFAULT_SEED, d.n_chains);
-    tf_args_run_help(out, &d, 26);
-    fprintf(out,
-            "  --warmup W              discarded iterations per chain while the sampler adapts (default %zu)\n"
-            "  --particles N           particles of the filter (default: tuned per model)\n"
-            "  --proposal P            how the particle filter moves: guided (default; looks at each\n"
-            "                          year's count first) or bootstrap (the growth model alone)\n"
-            "  --priors FILE           --model only: a model file overriding some or all default priors\n"
-            "  --draws M               --average only: importance draws per density for each marginal\n"
-            "                          likelihood, at most (default %zu; fewer once its standard error\n"
-            "                          is at most %.2f, as in analyze)\n"
-            "  --threads T             threads (default: the number of processors); the results do not\n"
-            "                          depend on T\n"
-            "  -h, --help              this text\n"
-            "\n"
-            "Writes projection.csv (median, 50 %% and 95 %% bands per year), risk.csv (the cumulative\n"
-            "risk per threshold and year, with its Monte Carlo error), declines.csv, and summary.csv\n"
-            "(what was projected: the model or the model probabilities, the posterior draws, the\n"
-            "settings, and the cautions), all or none; the population and the model are columns of\n"
-            "every table.\n"
-            TF_CMD_HELP_END,
-            d.n_warmup, a.evidence.n_draws, a.evidence.target_se);
+            "                          file has several, as fit does\n",
+            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS);
+    tf_args_quiet_help(out, 26);
+    fputs("  -h, --help              show this help\n\n"
+          "Fitting (--model, --average; --ml-se, --draws and --model-weights with --average only;\n"
+          "--seed seeds the projection too, with --parameter as well):\n", out);
+    tf_args_sampler_help(out, &d, &a.evidence, 26);
+    fputs("\n"
+          "Writes projection.csv (median, 50 % and 95 % bands per year), risk.csv (the cumulative\n"
+          "risk per threshold and year, with its Monte Carlo error), declines.csv, and summary.csv\n"
+          "(what was projected: the model or the model probabilities, the posterior draws, the\n"
+          "settings, and the cautions), all or none; the population and the model are columns of\n"
+          "every table.\n"
+          TF_CMD_HELP_END,
+          out);
 }
 
-/* The priors of a --model fit: the defaults, overridden by the --priors file (ctx, may be NULL). */
-static tf_status priors_from_file(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
+/* The priors of a --model fit, as fit sets them: the first-year prior given (--prior) over the
+ * series' own, and the defaults overridden by the priors file (--prior-file), which must be for
+ * the model fitted. ctx is the command's tf_setup_user. */
+static tf_status priors_of_one(void *ctx, tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
-    return tf_setup_priors(m, s, ctx, out, err);
+    const tf_setup_user *u = ctx;
+    if (!isnan(u->x1_mean) || !isnan(u->x1_sd))
+        tf_model_set_initial(m, isnan(u->x1_mean) ? tf_model_x1_mean(m) : u->x1_mean,
+                             isnan(u->x1_sd) ? tf_model_x1_sd(m) : u->x1_sd);
+    return tf_setup_priors(m, s, u->prior_file, out, err);
 }
 
 /* ---- one population's output -------------------------------------------------------------------- */
@@ -454,8 +443,8 @@ static void print_warnings(const tf_forecast *f, const tf_forecast_pop *p)
 /* The forecast options from the command line: the source and its models, the projection
  * settings po, and the sampler settings over the defaults of the source (a lone fit's for
  * --model, the analysis's for --average). */
-static void forecast_options(const options *o, const tf_project_options *po, tf_forecast_options *fo,
-                             char *growth_buf, char *obs_buf, size_t buf_size, tf_error *err)
+static void forecast_options(options *o, const tf_project_options *po, tf_forecast_options *fo, char *growth_buf,
+                             char *obs_buf, size_t buf_size, tf_error *err)
 {
     tf_forecast_source from = o->from == FROM_FIXED ? TF_FORECAST_FIXED : o->from == FROM_MODEL ? TF_FORECAST_MODEL
                               : o->from == FROM_AVERAGE ? TF_FORECAST_AVERAGE : TF_FORECAST_NONE;
@@ -476,40 +465,34 @@ static void forecast_options(const options *o, const tf_project_options *po, tf_
         fo->n_fixed = o->fixed.n;
         return;
     }
-    ro->n_threads = o->threads ? o->threads : tf_args_default_threads(MAX_THREADS);
+    ro->n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
+    tf_args_sampler_user(&o->sampler, &o->user);
     if (from == TF_FORECAST_MODEL) {
         fo->growth = o->model;
         fo->obs = o->obs ? o->obs : tf_input_default_obs(&o->in);
         ro->fit = tf_pmmh_default_options();
-        ro->priors = priors_from_file;
-        ro->priors_ctx = (void *)o->priors_path;
-    } else {
-        int all = 0;
-        if (o->model)
-            tf_args_model_names("--model", o->model, growth_buf, buf_size, ro->growth, TF_ANALYSIS_MAX_NAMES,
-                                &ro->n_growth, &all, 1, err);
-        if (o->obs)
-            tf_args_model_names("--obs", o->obs, obs_buf, buf_size, ro->obs, TF_ANALYSIS_MAX_NAMES, &ro->n_obs,
-                                &ro->obs_auto, 0, err);
-        tf_input_check_obs(&o->in, "--obs", ro->obs, ro->n_obs, err);
-        ro->priors = tf_setup_default_priors;
-        if (o->draws)
-            ro->evidence.n_draws = o->draws;
-        /* Fewer importance draws (as in short test runs) keep the adaptation rounds in
-         * proportion, as analyze and compare do. */
-        if (ro->evidence.n_adapt_draws > ro->evidence.n_draws)
-            ro->evidence.n_adapt_draws = ro->evidence.n_draws;
-        ro->evidence.n_particles = o->particles;
-        ro->evidence.proposal = o->proposal;
+        /* The comparison's options were refused with --model (check_source). */
+        tf_args_sampler_apply(&o->sampler, &ro->fit, NULL, &ro->seed, &ro->n_threads, err);
+        ro->priors = priors_of_one;
+        ro->priors_ctx = &o->user;
+        return;
     }
-    if (o->particles)
-        ro->fit.n_particles = o->particles;
-    ro->fit.proposal = o->proposal;
-    if (o->chains)
-        ro->fit.n_chains = o->chains;
-    if (o->warmup)
-        ro->fit.n_warmup = o->warmup;
-    tf_args_run_apply(&o->run, &ro->fit, err);
+    int all = 0;
+    if (o->model)
+        tf_args_model_names("--model", o->model, growth_buf, buf_size, ro->growth, TF_ANALYSIS_MAX_NAMES, &ro->n_growth,
+                            &all, 1, err);
+    if (o->obs)
+        tf_args_model_names("--obs", o->obs, obs_buf, buf_size, ro->obs, TF_ANALYSIS_MAX_NAMES, &ro->n_obs,
+                            &ro->obs_auto, 0, err);
+    tf_input_check_obs(&o->in, "--obs", ro->obs, ro->n_obs, err);
+    tf_args_sampler_apply(&o->sampler, &ro->fit, &ro->evidence, &ro->seed, &ro->n_threads, err);
+    if (tf_error_status(err) == TF_OK)
+        tf_args_sampler_weights(&o->sampler, ro->growth, ro->n_growth, ro->obs, ro->obs_auto ? 0 : ro->n_obs,
+                                o->weight_names, o->weights, &ro->n_weights, err);
+    ro->weight_names = o->weight_names;
+    ro->weights = o->weights;
+    ro->priors = tf_setup_user_priors;
+    ro->priors_ctx = &o->user;
 }
 
 /* Progress of --model on a terminal: a line before each fit. */
@@ -547,7 +530,7 @@ static tf_status check_before(const options *o, const tf_forecast_options *fo, c
         }
     } else if (fo->source == TF_FORECAST_AVERAGE) {
         const tf_analysis_options *ao = &fo->run;
-        if ((st = tf_setup_check_candidates(ao->growth, ao->n_growth, ao->obs, ao->n_obs,
+        if ((st = tf_setup_check_candidates(&o->user, ao->growth, ao->n_growth, ao->obs, ao->n_obs,
                                             only ? only : tf_survey_series(sv, 0), err)) != TF_OK)
             return st;
         for (size_t i = 0; i < n_jobs; i++) {
@@ -563,7 +546,7 @@ static tf_status check_before(const options *o, const tf_forecast_options *fo, c
 
 /* Reads the survey, checks, runs the forecast, writes the tables and prints the summaries.
  * Returns the exit code. */
-static int run(const options *o, const tf_project_options *po)
+static int run(options *o, const tf_project_options *po)
 {
     tf_error err;
     tf_error_init(&err);
@@ -590,7 +573,7 @@ static int run(const options *o, const tf_project_options *po)
             tf_error_print(&err, PROG, stderr);
             goto out;
         }
-        /* --fixed and --start describe one population. */
+        /* --parameter and --start describe one population. */
         if ((fo.source == TF_FORECAST_FIXED || o->population || !isnan(o->start)) &&
             !(only = tf_args_pick_series(sv, o->population, o->survey_path, &err))) {
             if (!o->population && fo.source != TF_FORECAST_FIXED)
@@ -645,7 +628,8 @@ static int run(const options *o, const tf_project_options *po)
         }
         print_warnings(f, jobs[i].p);
     }
-    print_cautions(f);
+    if (!o->quiet)
+        print_cautions(f);
     rc = fflush(stdout) != 0 ? tf_messages_error(PROG, TF_EXIT_FAIL, NULL, "cannot write to standard output")
                              : TF_EXIT_OK;
     goto out;
@@ -662,10 +646,8 @@ out:
 
 /* ---- the command line ---------------------------------------------------------------------------- */
 
-enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_FIXED,
-       OPT_START, OPT_SEED, OPT_POPULATION, OPT_CHAINS, OPT_WARMUP, OPT_PARTICLES, OPT_PROPOSAL,
-       OPT_PRIORS, OPT_DRAWS, OPT_THREADS, OPT_SKIP,
-           OPT_ESTIMATES };
+enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_PARAMETER,
+       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -679,20 +661,13 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
         {"decline-window", required_argument, NULL, OPT_WINDOW},
         {"runs", required_argument, NULL, OPT_RUNS},
-        {"fixed", required_argument, NULL, OPT_FIXED},
+        {"parameter", required_argument, NULL, OPT_PARAMETER},
         {"start", required_argument, NULL, OPT_START},
-        {"seed", required_argument, NULL, OPT_SEED},
         {"population", required_argument, NULL, OPT_POPULATION},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
-        {"chains", required_argument, NULL, OPT_CHAINS},
-        TF_ARGS_RUN_LONGOPTS,
-        {"warmup", required_argument, NULL, OPT_WARMUP},
-        {"particles", required_argument, NULL, OPT_PARTICLES},
-        {"proposal", required_argument, NULL, OPT_PROPOSAL},
-        {"priors", required_argument, NULL, OPT_PRIORS},
-        {"draws", required_argument, NULL, OPT_DRAWS},
-        {"threads", required_argument, NULL, OPT_THREADS},
+        TF_ARGS_SAMPLER_LONGOPTS,
+        TF_ARGS_ML_LONGOPTS,
         {"output", required_argument, NULL, 'o'},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
@@ -700,7 +675,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     };
     memset(o, 0, sizeof *o);
     tf_args_pairs_init(&o->fixed);
-    tf_args_run_init(&o->run);
+    tf_args_sampler_init(&o->sampler);
     o->years = TF_PROJECT_DEFAULT_HORIZON;
     o->thresholds = DEFAULT_THRESHOLDS;
     o->start = NAN;
@@ -709,16 +684,14 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
     optind = 0; /* glibc: 0 restarts the scan, so the command can be run twice in one process */
     int c;
     while ((c = getopt_long(argc, argv, ":o:qh", longs, NULL)) != -1) {
-        /* The sampler's options, named for the refusal under --fixed. */
-        const char *sampler = NULL;
         switch (c) {
         case OPT_MODEL: o->model = optarg; break;
         case OPT_OBS: o->obs = optarg; break;
         case OPT_AVERAGE: o->average = 1; break;
         case OPT_THRESHOLD: o->thresholds = optarg; break;
-        case OPT_FIXED:
+        case OPT_PARAMETER:
             o->have_fixed = 1;
-            tf_args_parse_pairs("--fixed", optarg, &o->fixed, err);
+            tf_args_parse_pairs("--parameter", optarg, &o->fixed, err);
             break;
         case OPT_POPULATION: tf_input_set_population(&o->in, optarg, err); break;
         case OPT_SKIP: o->in.skip_unusable = 1; break;
@@ -738,43 +711,14 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
                 tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                              "--start: the current abundance must be > 0 and below 5e21");
             break;
-        case OPT_SEED: tf_args_parse_seed("--seed", optarg, &o->seed, err); break;
-        case OPT_CHAINS:
-            sampler = "--chains";
-            tf_args_parse_size(sampler, optarg, 1, TF_FIT_MAX_CHAINS, &o->chains, err);
-            break;
-        case OPT_WARMUP:
-            sampler = "--warmup";
-            tf_args_parse_size(sampler, optarg, 20, MAX_ITER, &o->warmup, err);
-            break;
-        case OPT_PROPOSAL:
-            sampler = "--proposal";
-            tf_args_parse_proposal(sampler, optarg, &o->proposal, err);
-            break;
-        case OPT_PARTICLES:
-            sampler = "--particles";
-            tf_args_parse_size(sampler, optarg, 1, MAX_PARTICLES, &o->particles, err);
-            break;
-        case OPT_DRAWS:
-            sampler = "--draws";
-            tf_args_parse_size(sampler, optarg, 100, MAX_DRAWS, &o->draws, err);
-            break;
-        case OPT_THREADS:
-            sampler = "--threads";
-            tf_args_parse_size(sampler, optarg, 1, MAX_THREADS, &o->threads, err);
-            break;
-        case OPT_PRIORS:
-            sampler = "--priors";
-            o->priors_path = optarg;
-            break;
         default:
-            if (!(sampler = tf_args_run_option(c, optarg, &o->run, err)))
+            if (!tf_args_sampler_option(c, optarg, &o->sampler, err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], err);
             break;
         }
-        if (sampler && !o->sampler_opt)
-            o->sampler_opt = sampler;
     }
+    if (o->sampler.seed_given)
+        o->seed = o->sampler.seed;
     o->survey_path = tf_args_survey_path(argc, argv, optind, err);
     o->population = tf_input_single(&o->in);
     return 0;
@@ -785,7 +729,7 @@ static void check_source(options *o, tf_error *err)
 {
     if (o->average && o->have_fixed) {
         tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                     "--average combines fitted models; with --fixed there is nothing to average");
+                     "--average combines fitted models; with --parameter there is nothing to average");
         return;
     }
     o->from = o->have_fixed ? FROM_FIXED : o->average ? FROM_AVERAGE : o->model ? FROM_MODEL : FROM_NONE;
@@ -793,13 +737,13 @@ static void check_source(options *o, tf_error *err)
     case FROM_NONE:
         tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
                      "give --model M [--obs O] to fit one model, --average to fit the candidate models and average "
-                     "them, or --fixed r=...,sigma=... for given values",
+                     "them, or --parameter r=...,sigma=... for given values",
                      o->obs ? "--obs needs --model M (or --average)" : "nothing to project from");
         return;
     case FROM_FIXED:
-        if (o->sampler_opt)
-            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "drop it, or fit with --model M instead of --fixed",
-                         "%s sets up a fit; --fixed projects from given values", o->sampler_opt);
+        if (o->sampler.first)
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "drop it, or fit with --model M instead of --parameter",
+                         "%s sets up a fit; --parameter projects from given values", o->sampler.first);
         if (!o->survey_path && isnan(o->start))
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                          "without a survey file, --start N (the current abundance) is required");
@@ -813,15 +757,13 @@ static void check_source(options *o, tf_error *err)
         if (strchr(o->model, ',') || (o->obs && strchr(o->obs, ',')))
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "add --average to compare and average several models",
                          "--model and --obs name one model each without --average");
-        if (o->draws)
+        if (o->sampler.first_ml)
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL,
-                         "--draws sets the marginal likelihood's importance draws, which only --average estimates");
+                         "%s belongs to the comparison of models by marginal likelihood, which only --average "
+                         "makes",
+                         o->sampler.first_ml);
         break;
     case FROM_AVERAGE:
-        if (o->priors_path)
-            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "fit one model with --model M --priors FILE",
-                         "--priors applies to one model; the candidates of --average use the default priors, as "
-                         "analyze does");
         break;
     }
     if (!o->survey_path)

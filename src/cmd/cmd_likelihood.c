@@ -33,9 +33,9 @@ static void help(FILE *out)
     tf_model_list_growth(growth, sizeof growth);
     tf_model_list_obs(obs, sizeof obs);
     fprintf(out,
-            "usage: tallyfit likelihood SURVEY.csv --model M [--obs O] --set NAME=VALUE,...\n"
-            "                           [--population NAME] [--estimates] [--particles N] [--repeat R]\n"
-            "                           [--seed S] [--proposal guided|bootstrap]\n\n"
+            "usage: tallyfit likelihood SURVEY.csv --model M [--obs O] --parameter NAME=VALUE,...\n"
+            "                           [--prior x1_mean=V,x1_sd=V] [--population NAME] [--estimates]\n"
+            "                           [--particles N] [--repeat R] [--seed S] [--proposal P]\n\n"
             "Estimates the log-likelihood of one population's counts under a state-space model at the\n"
             "given parameters with a particle filter, repeated R times with independent random numbers.\n"
             "Prints a CSV header and one row: population,model,log_likelihood,log_likelihood_mcse,\n"
@@ -49,28 +49,34 @@ static void help(FILE *out)
             "  --model M          growth model: %s\n"
             "  --obs O            counting error: %s (default poisson;\n"
             "                     lognormal with --estimates)\n"
-            "  --set NAME=VALUE,...\n"
-            "                     every parameter of the model; x1_mean and x1_sd may also be given\n"
-            "                     (the first year's log-abundance prior; by default the log of the\n"
-            "                     mean of the first %d counts / effort, and 1)\n"
+            "  --parameter NAME=VALUE,...\n"
+            "                     every parameter of the model, e.g. r=0.3,K=800,sigma=0.1,phi=20\n"
+            "  --prior x1_mean=V,x1_sd=V\n"
+            "                     the first year's log-abundance prior, where the filter starts\n"
+            "                     (default: the log of the mean of the first %d counts / effort,\n"
+            "                     and 1)\n"
             TF_INPUT_HELP
             "  --particles N      particles (default %d)\n"
             "  --repeat R         independent estimates to average (default %d)\n"
             "  --seed S           random seed (default 1)\n"
-            TF_ARGS_PROPOSAL_HELP
-            "  -h, --help         show this help\n"
-            TF_CMD_HELP_END,
+            TF_ARGS_PROPOSAL_HELP,
             growth, obs, TF_MODEL_X1_YEARS, DEFAULT_PARTICLES, DEFAULT_REPEATS);
+    tf_args_quiet_help(out, 21);
+    fputs("                     (the row of results is the command's output, and is printed)\n"
+          "  -h, --help         show this help\n"
+          TF_CMD_HELP_END,
+          out);
 }
 
 int tf_cmd_likelihood(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED, OPT_SKIP, OPT_ESTIMATES,
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_PARAMETER, OPT_PRIOR, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED, OPT_SKIP, OPT_ESTIMATES,
            OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
-        {"set", required_argument, NULL, OPT_SET},
+        {"parameter", required_argument, NULL, OPT_PARAMETER},
+        {"prior", required_argument, NULL, OPT_PRIOR},
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
@@ -78,14 +84,16 @@ int tf_cmd_likelihood(int argc, char **argv)
         {"repeat", required_argument, NULL, OPT_REPEAT},
         {"seed", required_argument, NULL, OPT_SEED},
         {"proposal", required_argument, NULL, OPT_PROPOSAL},
+        {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
     tf_error err;
     tf_error_init(&err);
     const char *growth = NULL, *obs = NULL, *population = NULL;
-    tf_arg_pairs set;
+    tf_arg_pairs set, prior;
     tf_args_pairs_init(&set);
+    tf_args_pairs_init(&prior);
     size_t n_particles = DEFAULT_PARTICLES, n_repeats = DEFAULT_REPEATS;
     uint64_t seed = 1;
     tf_proposal proposal = TF_PROPOSAL_GUIDED;
@@ -94,11 +102,13 @@ int tf_cmd_likelihood(int argc, char **argv)
     opterr = 0;
     optind = 0;
     int c;
-    while ((c = getopt_long(argc, argv, ":h", longopts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":qh", longopts, NULL)) != -1) {
         switch (c) {
         case OPT_MODEL: growth = optarg; break;
         case OPT_OBS: obs = optarg; break;
-        case OPT_SET: tf_args_parse_pairs("--set", optarg, &set, &err); break;
+        case OPT_PARAMETER: tf_args_parse_pairs("--parameter", optarg, &set, &err); break;
+        case OPT_PRIOR: tf_args_parse_pairs("--prior", optarg, &prior, &err); break;
+        case 'q': break; /* nothing is printed but the result, the warnings and the errors */
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
@@ -118,6 +128,7 @@ int tf_cmd_likelihood(int argc, char **argv)
     if (!obs)
         obs = tf_input_default_obs(&in);
     tf_input_check_obs(&in, "--obs", &obs, 1, &err);
+    tf_args_merge_prior(&set, &prior, &err);
     if (tf_error_status(&err) != TF_OK)
         return tf_messages_usage("tallyfit " CMD, &err);
     population = tf_input_single(&in);

@@ -30,12 +30,12 @@ static void help(FILE *out)
     tf_model_list_growth(growth, sizeof growth);
     tf_model_list_obs(obs, sizeof obs);
     fprintf(out,
-            "usage: tallyfit simulate --model M [--obs O] --set NAME=VALUE,... --years N --start N1\n"
+            "usage: tallyfit simulate --model M [--obs O] --parameter NAME=VALUE,... --years N --start N1\n"
             "                         [--first-year Y] [--seed S] [--effort E|E1,E2,...] [--label L] [-o FILE]\n"
-            "       tallyfit simulate --populations N [--seed S] [-o FILE]\n\n"
+            "       tallyfit simulate --scheme N [--seed S] [-o FILE]\n\n"
             "Draws annual counts from a state-space population model and writes them as a survey CSV\n"
             "(columns year,count[,effort], with a first column population when --label is given).\n\n"
-            "With --populations N (1 to %d) it writes instead an invented monitoring scheme of N\n"
+            "With --scheme N (1 to %d) it writes instead an invented monitoring scheme of N\n"
             "populations site-0001, site-0002, ... for tests and benchmarks: each drawn with its own\n"
             "growth model (exponential, Ricker or Gompertz), trend, process noise, counting error\n"
             "(Poisson or negative binomial), abundance (about 15 to 3000), length (%d to %d years),\n"
@@ -45,7 +45,7 @@ static void help(FILE *out)
             "  --model M        growth model: %s\n"
             "  --obs O          counting error: %s (default poisson); lognormal values are\n"
             "                   not whole, so other commands read them with --estimates\n"
-            "  --set NAME=VALUE,...\n"
+            "  --parameter NAME=VALUE,...\n"
             "                   every parameter of the model, e.g. r=0.3,K=800,sigma=0.1,phi=20\n"
             "  --years N        number of years to simulate (%d to %d)\n"
             "  --start N1       abundance in the first year (> 0)\n"
@@ -55,11 +55,14 @@ static void help(FILE *out)
             "                   no effort column); the expected count is effort x abundance\n"
             "  --label L        population name written in a population column\n"
             "  -o, --output FILE\n"
-            "                   write to FILE (replaced only once complete) instead of standard output\n"
-            "  -h, --help       show this help\n"
-            TF_CMD_HELP_END,
+            "                   write to FILE (replaced only once complete) instead of standard output\n",
             SCHEME_MAX, SCHEME_MIN_YEARS, SCHEME_MAX_YEARS, growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN,
             TF_SURVEY_YEAR_MIN, TF_SURVEY_YEAR_MAX);
+    tf_args_quiet_help(out, 19);
+    fputs("                   (the survey written is the command's output)\n"
+          "  -h, --help       show this help\n"
+          TF_CMD_HELP_END,
+          out);
 }
 
 /* Writes the CSV; returns nonzero on a stream error. */
@@ -200,7 +203,7 @@ static int write_scheme(size_t n_pop, uint64_t seed, const char *output)
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
         goto out;
     }
-    fprintf(mem, "# An invented monitoring scheme: tallyfit simulate --populations %zu --seed %llu\n", n_pop,
+    fprintf(mem, "# An invented monitoring scheme: tallyfit simulate --scheme %zu --seed %llu\n", n_pop,
             (unsigned long long)seed);
     fputs("population,year,count,effort\n", mem);
     tf_status st = TF_OK;
@@ -249,20 +252,21 @@ static int label_ok(const char *s)
 
 int tf_cmd_simulate(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_SET, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL,
-           OPT_POPULATIONS };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_PARAMETER, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL,
+           OPT_SCHEME };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
-        {"set", required_argument, NULL, OPT_SET},
+        {"parameter", required_argument, NULL, OPT_PARAMETER},
         {"years", required_argument, NULL, OPT_YEARS},
         {"start", required_argument, NULL, OPT_START},
         {"first-year", required_argument, NULL, OPT_FIRST},
         {"seed", required_argument, NULL, OPT_SEED},
         {"effort", required_argument, NULL, OPT_EFFORT},
         {"label", required_argument, NULL, OPT_LABEL},
-        {"populations", required_argument, NULL, OPT_POPULATIONS},
+        {"scheme", required_argument, NULL, OPT_SCHEME},
         {"output", required_argument, NULL, 'o'},
+        {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -281,11 +285,11 @@ int tf_cmd_simulate(int argc, char **argv)
     opterr = 0;
     optind = 0;
     int c;
-    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":o:qh", longopts, NULL)) != -1) {
         switch (c) {
         case OPT_MODEL: single = 1; growth = optarg; break;
         case OPT_OBS: single = 1; obs = optarg; break;
-        case OPT_SET: single = 1; tf_args_parse_pairs("--set", optarg, &set, &err); break;
+        case OPT_PARAMETER: single = 1; tf_args_parse_pairs("--parameter", optarg, &set, &err); break;
         case OPT_YEARS:
             /* The importer's limits, so that every file written can be read back. */
             if (tf_args_parse_size("--years", optarg, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN, &n_years, &err) ==
@@ -302,8 +306,9 @@ int tf_cmd_simulate(int argc, char **argv)
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;
         case OPT_EFFORT: single = 1; effort_text = optarg; break;
         case OPT_LABEL: label = optarg; break;
-        case OPT_POPULATIONS: tf_args_parse_size("--populations", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
+        case OPT_SCHEME: tf_args_parse_size("--scheme", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
         case 'o': output = optarg; break;
+        case 'q': break; /* nothing is printed but the survey, the warnings and the errors */
         case 'h': help(stdout); return TF_EXIT_OK;
         default: tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err); break;
         }
@@ -313,8 +318,8 @@ int tf_cmd_simulate(int argc, char **argv)
                      "unexpected argument '%s'", argv[optind]);
     if (n_pop) {
         if ((single || have_years || !isnan(start) || label) && tf_error_status(&err) == TF_OK)
-            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give --populations with --seed and -o only",
-                         "--populations draws every population's model and settings itself");
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give --scheme with --seed and -o only",
+                         "--scheme draws every population's model and settings itself");
         if (tf_error_status(&err) != TF_OK)
             return tf_messages_usage("tallyfit " CMD, &err);
         tf_status pst = probe_output(output, &err);
@@ -333,6 +338,12 @@ int tf_cmd_simulate(int argc, char **argv)
     if (have_years && first_year + (long)n_years - 1 > TF_SURVEY_YEAR_MAX)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--years: %zu years from %ld run past the year %d",
                      n_years, first_year, TF_SURVEY_YEAR_MAX);
+    /* The first year is --start here; a first-year prior means nothing to a simulation. */
+    for (size_t i = 0; i < set.n; i++)
+        if (!strcmp(set.items[i].name, TF_ARGS_X1_MEAN) || !strcmp(set.items[i].name, TF_ARGS_X1_SD))
+            tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "the first year's abundance is --start N1",
+                         "--parameter: %s is the first year's prior, which a simulation does not use",
+                         set.items[i].name);
     if (label && !label_ok(label))
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL,
                      "--label: '%s' must have 1 to %d bytes, not start with '#' and contain no comma, quote or "

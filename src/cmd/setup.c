@@ -4,6 +4,7 @@
 #include <math.h>
 #include <stdlib.h>
 
+#include "compare/compare.h"
 #include "model/model_file.h"
 #include "util/stats.h"
 
@@ -83,8 +84,27 @@ static tf_status read_file(const char *path, const char *name, tf_model_file **o
     return path ? tf_model_file_read(path, out, err) : tf_model_file_read_default(name, out, err);
 }
 
+/* Whether the user's priors file applies to growth model g: when its [model] name is g, or is
+ * no growth model's name (a label of the user's own). */
+static int file_applies(const tf_model_file *user, const tf_growth_type *g)
+{
+    const tf_growth_type *named = tf_model_find_growth(tf_model_file_name(user));
+    return !named || named == g;
+}
+
+/* tf_setup_priors; with strict unset (a candidate among others) a file for another growth model
+ * is left aside and sections for parameters m lacks are skipped. */
+static tf_status build_priors(const tf_model *m, const tf_series *s, const char *priors_path, int strict,
+                              tf_prior_set **out, tf_error *err);
+
 tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *priors_path,
                           tf_prior_set **out, tf_error *err)
+{
+    return build_priors(m, s, priors_path, 1, out, err);
+}
+
+static tf_status build_priors(const tf_model *m, const tf_series *s, const char *priors_path, int strict,
+                              tf_prior_set **out, tf_error *err)
 {
     *out = NULL;
     size_t n = tf_model_n_params(m);
@@ -105,15 +125,19 @@ tf_status tf_setup_priors(const tf_model *m, const tf_series *s, const char *pri
          * fit would quietly set the shared parameters only). A name that is no growth model's (a
          * label of the user's own) is taken as it is. */
         const char *fname = tf_model_file_name(user);
-        const tf_growth_type *named = tf_model_find_growth(fname);
-        if (named && named != tf_model_growth(m)) {
-            st = tf_error_add(err, TF_ERR_INVALID, tf_model_file_label(user), 0, 0,
-                              "set name in its [model] section to the model it is for",
-                              "the priors file is for model '%s', not %s", fname, tf_model_name(m));
+        if (!file_applies(user, tf_model_growth(m))) {
+            if (strict) {
+                st = tf_error_add(err, TF_ERR_INVALID, tf_model_file_label(user), 0, 0,
+                                  "set name in its [model] section to the model it is for",
+                                  "the priors file is for model '%s', not %s", fname, tf_model_name(m));
+                goto out;
+            }
+            /* Another candidate's file: this one keeps the defaults. */
+            tf_model_file_free(user);
+            user = NULL;
+        } else if (strict && (st = tf_model_file_check_names(user, names, n, err)) != TF_OK) {
             goto out;
         }
-        if ((st = tf_model_file_check_names(user, names, n, err)) != TF_OK)
-            goto out;
     }
     /* Each parameter takes its prior from one file: the user's when it has a section for it,
      * else the defaults. So the defaults go into a set of only the remaining parameters, where
@@ -164,30 +188,51 @@ out:
     return st == TF_OK || st == TF_ERR_NOMEM ? st : tf_error_restatus(err, n0, TF_ERR_INVALID);
 }
 
-tf_status tf_setup_default_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out,
-                                  tf_error *err)
+tf_status tf_setup_user_priors(void *ctx, tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
-    (void)ctx;
-    return tf_setup_priors(m, s, NULL, out, err);
+    const tf_setup_user *u = ctx;
+    if (u && (!isnan(u->x1_mean) || !isnan(u->x1_sd)))
+        tf_model_set_initial(m, isnan(u->x1_mean) ? tf_model_x1_mean(m) : u->x1_mean,
+                             isnan(u->x1_sd) ? tf_model_x1_sd(m) : u->x1_sd);
+    return build_priors(m, s, u ? u->prior_file : NULL, 0, out, err);
 }
 
-tf_status tf_setup_check_candidates(const char *const *growth, size_t n_growth, const char *const *obs, size_t n_obs,
-                                    const tf_series *s, tf_error *err)
+tf_status tf_setup_check_candidates(const tf_setup_user *user, const char *const *growth, size_t n_growth,
+                                    const char *const *obs, size_t n_obs, const tf_series *s, tf_error *err)
 {
     size_t ng = n_growth ? n_growth : tf_model_n_growth(), no = n_obs ? n_obs : tf_model_n_obs();
-    for (size_t i = 0; i < ng; i++)
-        for (size_t k = 0; k < no; k++) {
+    tf_model_file *file = NULL;
+    tf_status st = TF_OK;
+    if (user && user->prior_file && (st = tf_model_file_read(user->prior_file, &file, err)) != TF_OK)
+        return st;
+    /* The parameters of the candidates the file applies to: each of its sections must name one. */
+    const char *names[TF_COMPARE_MAX_MODELS * TF_MAX_PARAMS];
+    size_t n_names = 0, n_applies = 0;
+    for (size_t i = 0; i < ng && st == TF_OK; i++)
+        for (size_t k = 0; k < no && st == TF_OK; k++) {
             const char *g = n_growth ? growth[i] : tf_model_growth_at(i)->name;
             const char *o = n_obs ? obs[k] : tf_model_obs_at(k)->name;
             tf_model *m = NULL;
             tf_prior_set *p = NULL;
-            tf_status st = tf_model_new(g, o, &m, err);
+            st = tf_model_new(g, o, &m, err);
             if (st == TF_OK)
-                st = tf_setup_priors(m, s, NULL, &p, err);
+                st = tf_setup_user_priors((void *)user, m, s, &p, err);
+            if (st == TF_OK && file && file_applies(file, tf_model_growth(m))) {
+                n_applies++;
+                for (size_t j = 0; j < tf_model_n_params(m) && n_names < sizeof names / sizeof names[0]; j++)
+                    names[n_names++] = tf_model_param_name(m, j);
+            }
             tf_prior_set_free(p);
             tf_model_free(m);
-            if (st != TF_OK)
-                return st;
         }
-    return TF_OK;
+    if (st == TF_OK && file && !n_applies)
+        st = tf_error_add(err, TF_ERR_INVALID, tf_model_file_label(file), 0, 0,
+                          "add that growth model to the candidates with --model, or name the model the file is for "
+                          "in its [model] section",
+                          "the priors file is for model '%s', which is not among the candidates",
+                          tf_model_file_name(file));
+    if (st == TF_OK && file)
+        st = tf_model_file_check_names(file, names, n_names, err);
+    tf_model_file_free(file);
+    return st;
 }

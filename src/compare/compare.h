@@ -17,8 +17,10 @@
 #include "util/error.h"
 
 /* Builds the prior set of model m for series s (e.g. from the model files); *out is freed by
- * the comparison with tf_prior_set_free. Called from the thread that calls tf_compare_run. */
-typedef tf_status (*tf_compare_priors_fn)(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out,
+ * the comparison with tf_prior_set_free. m's first-year prior has been set from the series
+ * (tf_model_initial_from_series); the callback may replace it (tf_model_set_initial), the one
+ * change to m it may make. Called from the thread that calls tf_compare_run. */
+typedef tf_status (*tf_compare_priors_fn)(void *ctx, tf_model *m, const tf_series *s, tf_prior_set **out,
                                           tf_error *err);
 
 /* What a progress callback hears: a model started, was fitted, or is done (or failed). */

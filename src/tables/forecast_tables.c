@@ -60,7 +60,7 @@ static tf_status summary_table(const tf_forecast *f, const tf_forecast_pop *p, c
                                    err));
     if (fo->source == TF_FORECAST_FIXED) {
         const tf_growth_type *g = tf_model_growth(p->model);
-        TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --fixed", err));
+        TRY(tf_table_add_item_text(t, "Projected from", "fixed parameter values", "given with --parameter", err));
         TRY(tf_table_add_item_text(t, "Growth model", g->name, NULL, err));
         for (size_t k = 0; k <= g->n_params; k++)
             TRY(tf_table_add_item_number(t, tf_model_param_name(p->model, k), p->theta[k], TF_COL_NUMBER,

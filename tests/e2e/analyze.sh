@@ -19,7 +19,7 @@ FAST=(--iterations 480 --warmup 100 --draws 150 --particles 100 --years 30)
 # (no memory questions; the native and sanitizer runs check them) are left out.
 slow=${TF_VALGRIND:-}
 [ -n "$slow" ] && FAST=(--chains 2 --iterations 60 --thin 1 --warmup 120 --draws 100 --particles 50 --runs 500
-                       --years 30 --models exponential,ricker)
+                       --years 30 --model exponential,ricker)
 export SOURCE_DATE_EPOCH=1700000000
 
 # Population labels in order of first appearance, read with Python's csv module ("" = no label).
@@ -159,7 +159,7 @@ grep -q "no candidate counting-error model suits the counts" "$tmp/stderr" || ba
 
 # A count far from its neighbours (a typed extra zero): warned about before the fits, listed
 # among the first page's cautions with its line, and fitted as it is.
-"$T" analyze tests/data/good/outlier-extra-zero.csv -o "$tmp/outlier" --models exponential --obs poisson "${FAST[@]}" \
+"$T" analyze tests/data/good/outlier-extra-zero.csv -o "$tmp/outlier" --model exponential --obs poisson "${FAST[@]}" \
   >/dev/null 2>"$tmp/stderr" || bad "outlier: exit $?"
 grep -qF "tallyfit analyze: warning: tests/data/good/outlier-extra-zero.csv:18: year 2010: count 3390 is 9.3 times" \
   "$tmp/stderr" || bad "outlier: no warning: $(head -c 300 "$tmp/stderr")"
@@ -206,7 +206,7 @@ usage() {  # expected phrase, arguments...
   [ -s "$tmp/stdout" ] && bad "analyze $*: printed on stdout"
 }
 usage "no survey file given" -o "$tmp/u"
-usage "unknown model 'logistic'" surveys/heron-colony.csv --models logistic -o "$tmp/u"
+usage "unknown model 'logistic'" surveys/heron-colony.csv --model logistic -o "$tmp/u"
 usage "unknown model 'gauss'" surveys/heron-colony.csv --obs gauss -o "$tmp/u"
 usage "threshold 'abc' is not a number" surveys/heron-colony.csv --threshold 50,abc -o "$tmp/u"
 usage "--years" surveys/heron-colony.csv --years 0 -o "$tmp/u"
@@ -262,5 +262,19 @@ for sig in INT TERM; do
   grep -q "interrupted" "$tmp/stderr" || bad "SIG$sig: no message"
   [ -e "$tmp/int-$sig" ] && [ -n "$(ls -A "$tmp/int-$sig")" ] && bad "SIG$sig: files left: $(ls -A "$tmp/int-$sig")"
 done
+
+# The comparison's options are analyze's too (cmd/args.h): prior model weights reach the models
+# table, and a weight for a model that is not a candidate is refused before any fit.
+"$T" analyze surveys/heron-colony.csv -o "$tmp/weights" -q --threads 2 "${FAST[@]}" --model exponential,ricker \
+  --obs poisson --model-weights ricker=3 2>/dev/null || bad "--model-weights: analyze failed"
+/usr/bin/python3 - "$tmp/weights/heron-colony/models.csv" <<'PY' || bad "--model-weights: prior weights not 0.25 / 0.75"
+import csv, sys
+rows = {r["model"]: r for r in csv.DictReader(open(sys.argv[1], newline=""))}
+sys.exit(0 if abs(float(rows["exponential+poisson"]["prior_weight"]) - 0.25) < 1e-12 and
+         abs(float(rows["ricker+poisson"]["prior_weight"]) - 0.75) < 1e-12 else 1)
+PY
+usage "--model-weights: 'gompertz' names no candidate model" surveys/heron-colony.csv --model ricker \
+  --model-weights gompertz=2 -o "$tmp/u"
+[ -e "$tmp/u" ] && bad "a refused --model-weights wrote $tmp/u"
 
 exit $fail

@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # End-to-end test of batch analysis (`tallyfit analyze --batch`) on an invented scheme from
-# `tallyfit simulate --populations`: the same CSV files byte for byte with 1 thread, 2 threads
+# `tallyfit simulate --scheme`: the same CSV files byte for byte with 1 thread, 2 threads
 # and 3 MPI processes; tables that concatenate under one header; a population with bad rows and
 # one whose fits cannot be made reported while the others finish with their own numbers; a
 # batch stopped by SIGTERM and run again ending with the files of an uninterrupted run; a
@@ -16,12 +16,12 @@ export SOURCE_DATE_EPOCH=1700000000
 # Short runs: this test is about the queue and the files, not about convergence.
 if [ -n "${TF_SANITIZE:-}${TF_VALGRIND:-}" ]; then
   N=3
-  FAST=(--iterations 80 --warmup 40 --draws 100 --particles 30 --years 10 --runs 100 --models exponential,ricker)
+  FAST=(--iterations 80 --warmup 40 --draws 100 --particles 30 --years 10 --runs 100 --model exponential,ricker)
 else
   N=6
-  FAST=(--iterations 160 --warmup 40 --draws 100 --particles 40 --years 20 --runs 200 --models exponential,ricker)
+  FAST=(--iterations 160 --warmup 40 --draws 100 --particles 40 --years 20 --runs 200 --model exponential,ricker)
 fi
-"$T" simulate --populations $N --seed 11 -o "$tmp/scheme.csv" || { bad "simulate --populations failed"; exit 1; }
+"$T" simulate --scheme $N --seed 11 -o "$tmp/scheme.csv" || { bad "simulate --scheme failed"; exit 1; }
 
 # Every CSV file under two batch folders, the same bytes; the timings (wall-clock seconds)
 # are the one file that must differ.
@@ -203,9 +203,9 @@ cmp -s <(grep '^site-0001,' "$B1/populations.csv") <(grep '^site-0001,' "$tmp/ba
 # ---- command line ----
 "$T" analyze "$tmp/scheme.csv" --batch --population site-0001 -o "$tmp/u" >/dev/null 2>"$tmp/erru"; rc=$?
 [ $rc -eq 2 ] && grep -q "not a batch" "$tmp/erru" || bad "--batch --population: exit $rc"
-"$T" simulate --populations 3 --model ricker >/dev/null 2>&1 && bad "simulate --populations with --model accepted"
-"$T" simulate --populations 0 >/dev/null 2>&1 && bad "simulate --populations 0 accepted"
-cmp -s <("$T" simulate --populations 3 --seed 11 | grep '^site-0003,') <(grep '^site-0003,' "$tmp/scheme.csv") ||
+"$T" simulate --scheme 3 --model ricker >/dev/null 2>&1 && bad "simulate --scheme with --model accepted"
+"$T" simulate --scheme 0 >/dev/null 2>&1 && bad "simulate --scheme 0 accepted"
+cmp -s <("$T" simulate --scheme 3 --seed 11 | grep '^site-0003,') <(grep '^site-0003,' "$tmp/scheme.csv") ||
   bad "simulate: population 3 depends on the number of populations"
 
 exit $fail

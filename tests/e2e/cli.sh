@@ -127,5 +127,79 @@ grep -vE '^(tallyfit check: error: |  hint: )' "$tmp/err" | grep -q . && bad "ba
 [ $rc -eq 2 ] || bad "fit --chains FILE: exit $rc, want 2"
 one_error "$tmp/err" "tallyfit fit" "--chains: .*" "fit --chains FILE"
 
-[ $fail -eq 0 ] && echo "cli.sh: help, --version, error format and exit statuses alike in every command"
+# ---- One vocabulary of options (src/cmd/args.h) ----
+# -q/--quiet on every command, with one help text.
+"$T" fit --help | awk '/^  -q, --quiet/{print; on=1; next} on && /^          /{print; next} {on=0}' | tr -s ' ' >"$tmp/quiet-fit"
+[ "$(wc -l <"$tmp/quiet-fit")" -ge 2 ] || bad "fit --help: no -q, --quiet text: $(cat "$tmp/quiet-fit")"
+for c in $cmds; do
+  "$T" "$c" --help | awk '/^  -q, --quiet/{print; on=1; next} on && /^          /{print; next} {on=0}' | tr -s ' ' >"$tmp/quiet-$c"
+  # check, likelihood and simulate add a line saying what their output is; the shared text comes first.
+  head -n "$(wc -l <"$tmp/quiet-fit")" "$tmp/quiet-$c" | cmp -s - "$tmp/quiet-fit" ||
+    bad "$c --help: the -q text differs from fit's: $(cat "$tmp/quiet-$c")"
+  for q in -q --quiet; do
+    "$T" "$c" $q --frobnicate >"$tmp/out" 2>"$tmp/err"
+    grep -q "unknown option '--frobnicate'" "$tmp/err" && ! grep -q "unknown option '$q'\|invalid option" "$tmp/err" ||
+      bad "$c does not take $q: $(cat "$tmp/err")"
+  done
+done
+
+# The sampler group: every fitting command takes every option of it (refusing only what does not
+# apply, never as an unknown option), and its help text is the same in each, padding aside.
+sampler=(--chains 2 --warmup 40 --particles 30 --proposal bootstrap --correlated --standard
+         --delayed-acceptance off --min-ess 100 --min-iterations 100 --max-iterations 200 --thin 2
+         --kept-draws 50 --seed 3 --threads 1 --prior-file models/ricker.ini --prior x1_sd=1)
+ml=(--ml-se 0.1 --draws 100 --model-weights ricker=2)
+block() {  # the sampler options' help of command $1, blanks squeezed
+  "$T" "$1" --help | awk '/^  --chains C/{on=1} last && !/^          /{exit} /^  --prior x1_mean/{last=1} on{print}' |
+    tr -s ' '
+}
+block fit >"$tmp/block-fit"
+[ "$(grep -c '^ --' "$tmp/block-fit")" -ge 16 ] || bad "fit --help: the sampler block is short: $(cat "$tmp/block-fit")"
+for c in fit compare analyze forecast; do
+  block "$c" | cmp -s - "$tmp/block-fit" || bad "$c --help: the sampler options' text differs from fit's"
+  "$T" "$c" --help >"$tmp/h"
+  for o in "${sampler[@]}" "${ml[@]}"; do
+    case $o in --*) ;; *) continue ;; esac
+    [ "$c" = fit ] && case $o in --ml-se|--draws|--model-weights) continue ;; esac
+    grep -q -- "^ *$o\b" "$tmp/h" || bad "$c --help does not list $o"
+  done
+  extra=("${ml[@]}"); [ "$c" = fit ] && extra=()
+  # No survey file: the options are all read, then the one error is the missing survey (or,
+  # for forecast, the survey its --model needs); none of them is unknown.
+  src=(); [ "$c" = forecast ] && src=(--average)
+  [ "$c" = fit ] && src=(--model ricker)
+  "$T" "$c" "${src[@]}" "${sampler[@]}" "${extra[@]}" >"$tmp/out" 2>"$tmp/err"; rc=$?
+  [ $rc -eq 2 ] || bad "$c with every sampler option: exit $rc, want 2 (no survey): $(cat "$tmp/err")"
+  grep -q "unknown option\|needs a value\|is not\|outside" "$tmp/err" && bad "$c refused a sampler option: $(cat "$tmp/err")"
+done
+# fit compares no models, so the comparison's options are not fit's.
+for o in --draws --ml-se --model-weights; do
+  "$T" fit "$o" 1 >"$tmp/out" 2>"$tmp/err"
+  grep -q "unknown option '$o'" "$tmp/err" || bad "fit $o: $(cat "$tmp/err")"
+done
+# Priors the candidates cannot take are refused before any fit, as the one-model commands refuse
+# theirs (compare.sh checks that the others reach their candidates).
+for c in compare analyze; do
+  "$T" "$c" surveys/heron-colony.csv --model gompertz --prior-file models/ricker.ini -o "$tmp/never" >"$tmp/out" 2>"$tmp/err"; rc=$?
+  [ $rc -eq 3 ] || bad "$c --prior-file for no candidate: exit $rc, want 3"
+  one_error "$tmp/err" "tallyfit $c" ".*ricker.ini: the priors file is for model 'ricker', which is not among the candidates" \
+    "$c --prior-file for no candidate"
+done
+[ -e "$tmp/never" ] && bad "a refused --prior-file still wrote $tmp/never"
+
+# Option names of earlier versions: one error whose hint names the new option.
+for c in $cmds; do
+  for old in "--models=ricker:use --model" "--set=r=1:use --parameter NAME=VALUE" "--fixed=r=1:use --parameter" \
+             "--priors=x.ini:use --prior-file" "--populations=3:use --scheme N"; do
+    arg=${old%%:*} hint=${old#*:} name=${arg%%=*}
+    # Nothing is written in the source tree should an old name ever run.
+    out=(); case $c in check|likelihood) ;; *) out=(-o "$tmp/old-$c") ;; esac
+    "$T" "$c" surveys/heron-colony.csv "$arg" "${out[@]}" >"$tmp/out" 2>"$tmp/err"; rc=$?
+    [ $rc -eq 2 ] || bad "$c $arg: exit $rc, want 2"
+    one_error "$tmp/err" "tallyfit $c" "unknown option '$name'" "$c $arg"
+    grep -q "^  hint: $hint" "$tmp/err" || bad "$c $arg: the hint does not say '$hint': $(cat "$tmp/err")"
+  done
+done
+
+[ $fail -eq 0 ] && echo "cli.sh: help, --version, error format, exit statuses, -q and option names alike in every command"
 exit $fail

@@ -94,7 +94,7 @@ PY
 
 # 1. A demo survey of whole counts: count models compared, the continuous log-normal excluded.
 out="$tmp/heron"
-"$T" compare surveys/heron-colony.csv --models $heron_models -o "$out" "${SHORT[@]}" --threads 2 \
+"$T" compare surveys/heron-colony.csv --model $heron_models -o "$out" "${SHORT[@]}" --threads 2 \
   >"$tmp/stdout" 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "heron: exit $rc"; cat "$tmp/stderr" >&2; }
 csv="$out/models.csv"
@@ -119,7 +119,7 @@ grep -q "files: $out/ (models," "$tmp/stdout" || bad "heron: stdout does not nam
 
 # 2. The same seed with one thread: the same file.
 if [ -z "${TF_VALGRIND:-}" ]; then
-  "$T" compare surveys/heron-colony.csv --models $heron_models -o "$tmp/heron1" "${SHORT[@]}" --threads 1 \
+  "$T" compare surveys/heron-colony.csv --model $heron_models -o "$tmp/heron1" "${SHORT[@]}" --threads 1 \
     --quiet 2>/dev/null || bad "heron, 1 thread: failed"
   for t in models change parameters diagnostics chains draws; do
     cmp -s "$out/$t.csv" "$tmp/heron1/$t.csv" || bad "heron: $t.csv differs between 1 and 2 threads"
@@ -141,11 +141,11 @@ year,count
 2010,18.5
 EOF
 # Without --estimates the fractions are refused where they are read, before any fit.
-"$T" compare "$tmp/index.csv" --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
+"$T" compare "$tmp/index.csv" --model ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 3 ] || bad "index without --estimates: exit $rc, want 3"
 grep -qF "tallyfit compare: error: $tmp/index.csv:2:2: count 12.5 is not a whole number" "$tmp/stderr" || bad "index: $(head -n 1 "$tmp/stderr")"
 [ -e "$tmp/index" ] && bad "index without --estimates: something was written"
-"$T" compare "$tmp/index.csv" --estimates --models ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
+"$T" compare "$tmp/index.csv" --estimates --model ricker -o "$tmp/index" "${SHORT[@]}" --quiet 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 0 ] || { bad "index: exit $rc"; cat "$tmp/stderr" >&2; }
 counts=$(check_csv "$tmp/index/models.csv") || bad "index: $counts"
 # Only the density models of the table are candidates, every one fitted.
@@ -159,16 +159,16 @@ grep -q '^index,ricker+poisson,' "$tmp/index/models.csv" && bad "index: a count 
 grep -qF -- "--obs negbin is a model of whole counts" "$tmp/stderr" || bad "--estimates --obs negbin: $(head -n 1 "$tmp/stderr")"
 
 # 4. Refusals: mixing a density with count probabilities, unknown names, bad weights.
-"$T" compare surveys/heron-colony.csv --models ricker --obs poisson,lognormal -o "$tmp/x" "${SHORT[@]}" \
+"$T" compare surveys/heron-colony.csv --model ricker --obs poisson,lognormal -o "$tmp/x" "${SHORT[@]}" \
   >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 2 ] || bad "mixed scales: exit $rc, want 2"
 grep -q 'cannot be compared' "$tmp/stderr" && grep -q 'lognormal-int' "$tmp/stderr" ||
   bad "mixed scales: message does not explain ($(cat "$tmp/stderr"))"
 [ -e "$tmp/x" ] && bad "mixed scales: output written anyway"
-"$T" compare surveys/heron-colony.csv --models rikker "${SHORT[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+"$T" compare surveys/heron-colony.csv --model rikker "${SHORT[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -eq 2 ] || bad "unknown model: exit $rc, want 2"
 grep -q "unknown growth model 'rikker'" "$tmp/stderr" || bad "unknown model: $(cat "$tmp/stderr")"
-"$T" compare surveys/heron-colony.csv --models ricker --model-weights gompertz+poisson=2 "${SHORT[@]}" \
+"$T" compare surveys/heron-colony.csv --model ricker --model-weights gompertz+poisson=2 "${SHORT[@]}" \
   >/dev/null 2>"$tmp/stderr"; rc=$?
 [ $rc -ne 0 ] && grep -q 'names no candidate' "$tmp/stderr" || bad "weight for a missing model: exit $rc"
 "$T" compare surveys/heron-colony.csv --model-weights ricker=abc >/dev/null 2>&1; rc=$?
@@ -183,7 +183,7 @@ done
 "$T" compare --help | grep -q 'usage: tallyfit compare' || bad "--help"
 
 # 5. Prior model weights enter the probabilities: ricker weighted 3 against exponential 1.
-"$T" compare surveys/heron-colony.csv --models exponential,ricker --obs poisson -o "$tmp/w" "${SHORT[@]}" \
+"$T" compare surveys/heron-colony.csv --model exponential,ricker --obs poisson -o "$tmp/w" "${SHORT[@]}" \
   --model-weights ricker=3 --quiet 2>/dev/null || bad "weights: failed"
 /usr/bin/python3 - "$tmp/w/models.csv" <<'PY' || bad "weights: prior weights not 0.25 / 0.75"
 import csv, sys
@@ -192,6 +192,43 @@ ok = abs(float(rows["exponential+poisson"]["prior_prob"]) - 0.25) < 1e-12 and \
      abs(float(rows["ricker+poisson"]["prior_prob"]) - 0.75) < 1e-12
 sys.exit(0 if ok else 1)
 PY
+
+# 6. The user's priors reach the candidates they are for (README, "One set of option names"): a
+# priors file naming ricker changes ricker's marginal likelihood and leaves gompertz's digit for
+# digit (same seed, same streams); the first-year prior changes both. A file for no candidate,
+# or with a section no candidate has, is refused before any fit, nothing written.
+printf '[model]\nname = ricker\n[K]\nprior = lognormal\nmeanlog = 3\nsdlog = 0.3\n' >"$tmp/rk.ini"
+for run in "p0" "p1 --prior-file $tmp/rk.ini" "p2 --prior x1_mean=3,x1_sd=0.2"; do
+  set -- $run
+  name=$1; shift
+  "$T" compare surveys/heron-colony.csv --model ricker,gompertz --obs poisson -o "$tmp/$name" "${SHORT[@]}" "$@" \
+    --quiet 2>/dev/null || bad "priors: compare $* failed"
+done
+/usr/bin/python3 - "$tmp/p0/model-comparison.csv" "$tmp/p1/model-comparison.csv" "$tmp/p2/model-comparison.csv" <<'PY' ||
+import csv, sys
+def log_ml(path):
+    return {r["model"]: float(r["log_ml"]) for r in csv.DictReader(open(path, newline=""))}
+p0, p1, p2 = (log_ml(p) for p in sys.argv[1:])
+problems = []
+if p1["gompertz+poisson"] != p0["gompertz+poisson"]:
+    problems.append("the ricker priors file changed gompertz")
+if p1["ricker+poisson"] == p0["ricker+poisson"]:
+    problems.append("the ricker priors file left ricker unchanged")
+if any(p2[m] == p0[m] for m in p0):
+    problems.append("--prior x1_mean,x1_sd left a model unchanged")
+if problems:
+    print("; ".join(problems), file=sys.stderr)
+sys.exit(1 if problems else 0)
+PY
+  bad "priors: not applied as documented"
+printf '[model]\nname = gompertz\n[K]\nprior = lognormal\nmeanlog = 3\nsdlog = 0.3\n' >"$tmp/gz.ini"
+printf '[model]\nname = mine\n[phi]\nprior = lognormal\nmeanlog = 1\nsdlog = 0.3\n' >"$tmp/phi.ini"
+for case in "gz.ini:which is not among the candidates" "phi.ini:section \[phi\]"; do
+  "$T" compare surveys/heron-colony.csv --model ricker --obs poisson --prior-file "$tmp/${case%%:*}" -o "$tmp/pn" \
+    "${SHORT[@]}" >/dev/null 2>"$tmp/stderr"; rc=$?
+  [ $rc -eq 3 ] && grep -q "${case#*:}" "$tmp/stderr" || bad "priors file ${case%%:*}: exit $rc: $(cat "$tmp/stderr")"
+  [ -e "$tmp/pn" ] && bad "priors file ${case%%:*}: output written anyway"
+done
 
 [ $fail -eq 0 ] && echo "compare.sh: all checks passed"
 exit $fail

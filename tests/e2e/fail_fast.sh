@@ -45,13 +45,13 @@ expect "forecast --model -o FILE" 1 "'$tmp/file' is a file, not a directory" \
   "$T" forecast "$S" --model ricker "${LONG[@]}" -o "$tmp/file"
 expect "forecast --average -o FILE" 1 "'$tmp/file' is a file, not a directory" \
   "$T" forecast "$S" --average "${LONG[@]}" -o "$tmp/file"
-expect "forecast --fixed -o FILE" 1 "'$tmp/file' is a file, not a directory" \
-  "$T" forecast "$S" --fixed r=0.1,sigma=0.1 --runs 10000000 --years 500 -q -o "$tmp/file"
+expect "forecast --parameter -o FILE" 1 "'$tmp/file' is a file, not a directory" \
+  "$T" forecast "$S" --parameter r=0.1,sigma=0.1 --runs 10000000 --years 500 -q -o "$tmp/file"
 expect "analyze -o FILE" 1 "'$tmp/file' is a file, not a directory" "$T" analyze "$S" "${LONG[@]}" -o "$tmp/file"
 expect "analyze --batch -o FILE" 1 "'$tmp/file' is a file, not a directory" \
   "$T" analyze "$S" --batch "${LONG[@]}" -o "$tmp/file"
 expect "simulate -o FILE/x.csv" 1 "Not a directory" \
-  "$T" simulate --populations 5000 -o "$tmp/file/x.csv"
+  "$T" simulate --scheme 5000 -o "$tmp/file/x.csv"
 [ "$(cat "$tmp/file")" = "not a folder" ] || fail "the file in the way was changed"
 
 # The survey file itself as the output folder.
@@ -85,7 +85,7 @@ expect "analyze, a broken model file" 3 "gompertz.ini" \
 expect "forecast --average, a broken model file" 3 "gompertz.ini" \
   env TALLYFIT_MODELS="$tmp/models" "$T" forecast "$S" --average "${LONG[@]}" -o "$tmp/o-models"
 expect "fit, a missing priors file" 3 "$tmp/none.ini" \
-  "$T" fit "$S" --model ricker --priors "$tmp/none.ini" "${LONG[@]}" -o "$tmp/o-models"
+  "$T" fit "$S" --model ricker --prior-file "$tmp/none.ini" "${LONG[@]}" -o "$tmp/o-models"
 
 # Populations: a label the file lacks, an unusable one, and options the data refuse.
 cp tests/data/multi/one-short-population.csv "$tmp/three.csv"
@@ -94,7 +94,7 @@ expect "fit --population north" 2 "no population named 'north'" \
 expect "analyze with an unusable population" 3 "population 'short' has 1 surveyed year" \
   "$T" analyze "$tmp/three.csv" "${LONG[@]}" -o "$tmp/o-pop"
 expect "likelihood --population short" 3 "population 'short' has 1 surveyed year" \
-  "$T" likelihood "$tmp/three.csv" --model ricker --set r=0.5,K=20,sigma=0.1 --population short
+  "$T" likelihood "$tmp/three.csv" --model ricker --parameter r=0.5,K=20,sigma=0.1 --population short
 expect "check --population north" 2 "no population named 'north'" "$T" check "$tmp/three.csv" --population north
 expect "forecast --estimates --obs poisson" 2 "--obs poisson is a model of whole counts" \
   "$T" forecast "$S" --model ricker --obs poisson --estimates "${LONG[@]}" -o "$tmp/o-pop"

@@ -21,9 +21,9 @@ expect() {  # CODE PATTERN CMD...: exit code CODE and PATTERN (grep -E) on stder
   grep -qE -- "$pat" "$tmp/e" || bad "'$*': stderr lacks /$pat/: $(head -c 300 "$tmp/e")"
 }
 
-"$T" simulate --model exponential --set r=0.02,sigma=0.1 --years 15 --start 200 --seed 4 -o "$tmp/s.csv" ||
+"$T" simulate --model exponential --parameter r=0.02,sigma=0.1 --years 15 --start 200 --seed 4 -o "$tmp/s.csv" ||
   bad "simulate failed"
-"$T" simulate --model exponential --set r=-0.01,sigma=0.1 --years 12 --start 80 --seed 5 --label b -o "$tmp/b.csv" ||
+"$T" simulate --model exponential --parameter r=-0.01,sigma=0.1 --years 12 --start 80 --seed 5 --label b -o "$tmp/b.csv" ||
   bad "simulate failed"
 { cat "$tmp/s.csv" | sed '1s/^/population,/; 2,$s/^/a,/'; tail -n +2 "$tmp/b.csv"; } >"$tmp/two.csv"
 
@@ -108,8 +108,8 @@ expect 3 "zero.csv:4:.*impossible under the lognormal" "$T" fit "$tmp/zero.csv" 
 expect 2 "no survey file" "$T" fit --model exponential
 expect 2 "--model is required" "$T" fit "$tmp/s.csv"
 expect 2 "unknown|not a known|known growth" "$T" fit "$tmp/s.csv" --model nosuch
-expect 2 "only x1_mean and x1_sd" "$T" fit "$tmp/s.csv" --model exponential --set r=0.1
-expect 2 "x1_sd" "$T" fit "$tmp/s.csv" --model exponential --set x1_sd=-1
+expect 2 "--prior takes x1_mean and x1_sd" "$T" fit "$tmp/s.csv" --model exponential --prior r=0.1
+expect 2 "x1_sd" "$T" fit "$tmp/s.csv" --model exponential --prior x1_sd=-1
 expect 2 "no population named" "$T" fit "$tmp/two.csv" --model exponential --population c
 expect 2 "keeps no draw" "$T" fit "$tmp/s.csv" --model exponential --iterations 3 --thin 4
 expect 2 "--chains" "$T" fit "$tmp/s.csv" --model exponential --chains 0
@@ -134,10 +134,10 @@ ok = (r["converged"] == "1" and 200 <= int(r["iterations"]) < 100000 and int(r["
 sys.exit(0 if ok else 1)
 PY
 printf '[model]\nname = exponential\n[K]\nprior = normal\nmean = 1\nsd = 1\n' >"$tmp/p.ini"
-expect 3 "K" "$T" fit "$tmp/s.csv" --model exponential --priors "$tmp/p.ini" --quiet -o "$tmp/x"
+expect 3 "K" "$T" fit "$tmp/s.csv" --model exponential --prior-file "$tmp/p.ini" --quiet -o "$tmp/x"
 # A priors file made for another model is refused, not applied to the parameters the two share.
 printf '[model]\nname = exponential\n[sigma]\nprior = halfnormal\nsd = 0.3\n' >"$tmp/p2.ini"
-expect 3 "for model 'exponential', not ricker" "$T" fit "$tmp/s.csv" --model ricker --priors "$tmp/p2.ini" --quiet -o "$tmp/x"
+expect 3 "for model 'exponential', not ricker" "$T" fit "$tmp/s.csv" --model ricker --prior-file "$tmp/p2.ini" --quiet -o "$tmp/x"
 # A models folder that is not there is refused, not silently replaced by the defaults.
 TALLYFIT_MODELS=$tmp/no-such-folder expect 3 "TALLYFIT_MODELS names .*not a folder" \
   "$T" fit "$tmp/s.csv" --model exponential --quiet -o "$tmp/x"

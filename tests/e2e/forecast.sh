@@ -27,7 +27,7 @@ bands_flat() {
 
 # A good run: three tables with their headers, one row per year (t = 0..H) for the bands.
 out="$tmp/good"
-if ! "$TALLYFIT" forecast --fixed r=-0.02,sigma=0.1 --start 500 --years 30 --runs 500 \
+if ! "$TALLYFIT" forecast --parameter r=-0.02,sigma=0.1 --start 500 --years 30 --runs 500 \
      --threshold 50,100,20% --decline-window 24 --seed 3 -o "$out" >"$tmp/stdout" 2>"$tmp/stderr"; then
   fail "a good run failed: $(cat "$tmp/stderr")"
 fi
@@ -60,19 +60,20 @@ for phrase in "not a formal status listing" "responsible authority" "model-based
 done
 
 # The same seed gives the same tables.
-"$TALLYFIT" forecast --fixed r=-0.02,sigma=0.1 --start 500 --years 30 --runs 500 --threshold 50,100,20% \
+"$TALLYFIT" forecast --parameter r=-0.02,sigma=0.1 --start 500 --years 30 --runs 500 --threshold 50,100,20% \
   --decline-window 24 --seed 3 -o "$tmp/again" -q >/dev/null 2>&1 || fail "the repeat run failed"
 cmp -s "$out/risk.csv" "$tmp/again/risk.csv" || fail "same seed, other numbers"
 
-# --quiet still prints the cautions, and nothing else of the summary.
-"$TALLYFIT" forecast --fixed r=0.01,sigma=0.2 --start 80 -o "$tmp/quiet" --quiet >"$tmp/stdout" 2>&1 ||
+# --quiet means what it means in every command: no progress and no summary (the cautions
+# printed under it included); the cautions stay in forecast_summary.csv.
+"$TALLYFIT" forecast --parameter r=0.01,sigma=0.2 --start 80 -o "$tmp/quiet" --quiet >"$tmp/stdout" 2>&1 ||
   fail "quiet run failed"
-grep -q "not a formal status listing" "$tmp/stdout" || fail "--quiet dropped the cautions"
-grep -q "Quasi-extinction" "$tmp/stdout" && fail "--quiet printed the summary"
+[ -s "$tmp/stdout" ] && fail "--quiet printed: $(head -c 200 "$tmp/stdout")"
+grep -q "not a formal status listing" "$tmp/quiet/forecast_summary.csv" || fail "--quiet: the summary file lacks the cautions"
 
 # --help succeeds and names the options.
 "$TALLYFIT" forecast --help >"$tmp/help" 2>&1 || fail "--help failed"
-grep -q -- "--fixed" "$tmp/help" && grep -q -- "--threshold" "$tmp/help" || fail "--help lacks the options"
+grep -q -- "--parameter" "$tmp/help" && grep -q -- "--threshold" "$tmp/help" || fail "--help lacks the options"
 "$TALLYFIT" --help | grep -q '^  forecast ' || fail "forecast is not listed by tallyfit --help"
 
 # Bad command lines: exit 2, a message with a hint or reason, and no output folder.
@@ -85,7 +86,7 @@ bad() {  # description, arguments...
   [ -s "$tmp/stderr" ] || fail "$what: no message"
   [ -e "$dir" ] && { fail "$what: left $dir behind"; rm -rf "$dir"; }
 }
-ok_fixed=(--fixed r=-0.02,sigma=0.1 --start 500)
+ok_fixed=(--parameter r=-0.02,sigma=0.1 --start 500)
 bad "unknown option" "${ok_fixed[@]}" --frobnicate
 grep -q "hint: run 'tallyfit forecast --help'" "$tmp/stderr" || fail "unknown option gives no hint"
 bad "missing value" "${ok_fixed[@]}" --years
@@ -97,55 +98,55 @@ bad "negative seed" "${ok_fixed[@]}" --seed -4
 bad "zero threshold" "${ok_fixed[@]}" --threshold 0
 bad "threshold not a number" "${ok_fixed[@]}" --threshold 50,lots
 bad "percentage above 100" "${ok_fixed[@]}" --threshold 120%
-bad "negative start" --fixed r=0,sigma=0.1 --start -5
-bad "no start and no survey" --fixed r=0,sigma=0.1
-bad "sigma missing" --fixed r=0 --start 100
-bad "unknown parameter" --fixed r=0,sigma=0.1,zeta=3 --start 100
-bad "parameter twice" --fixed r=0,r=1,sigma=0.1 --start 100
-bad "value not a number" --fixed r=fast,sigma=0.1 --start 100
-bad "negative sigma" --fixed r=0,sigma=-0.1 --start 100
-bad "unknown model" --model nosuchmodel --fixed r=0,sigma=0.1 --start 100
+bad "negative start" --parameter r=0,sigma=0.1 --start -5
+bad "no start and no survey" --parameter r=0,sigma=0.1
+bad "sigma missing" --parameter r=0 --start 100
+bad "unknown parameter" --parameter r=0,sigma=0.1,zeta=3 --start 100
+bad "parameter twice" --parameter r=0,r=1,sigma=0.1 --start 100
+bad "value not a number" --parameter r=fast,sigma=0.1 --start 100
+bad "negative sigma" --parameter r=0,sigma=-0.1 --start 100
+bad "unknown model" --model nosuchmodel --parameter r=0,sigma=0.1 --start 100
 bad "two survey files" "${ok_fixed[@]}" a.csv b.csv
 bad "average with fixed" "${ok_fixed[@]}" --average
 bad "nothing to project from" --start 100
-grep -q -- "--model M" "$tmp/stderr" && grep -q -- "--average" "$tmp/stderr" && grep -q -- "--fixed" "$tmp/stderr" ||
-  fail "with no source the message should name --model, --average and --fixed"
-bad "a sampler option with --fixed" "${ok_fixed[@]}" --chains 2
+grep -q -- "--model M" "$tmp/stderr" && grep -q -- "--average" "$tmp/stderr" && grep -q -- "--parameter" "$tmp/stderr" ||
+  fail "with no source the message should name --model, --average and --parameter"
+bad "a sampler option with --parameter" "${ok_fixed[@]}" --chains 2
 grep -q -- "--chains" "$tmp/stderr" || fail "the refused sampler option is not named"
 
 # From a survey: the last surveyed count / effort is the start (trailing years without a count are
 # skipped), the calendar year of year 0 is that survey year, and the default folder is
 # output/<survey name>/ below the working directory.
 mkdir -p "$tmp/cwd"
-(cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/leading-trailing-na.csv" --fixed r=0,sigma=0.1 \
+(cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/leading-trailing-na.csv" --parameter r=0,sigma=0.1 \
    --years 5 --runs 100) >"$tmp/stdout" 2>"$tmp/stderr" || fail "survey run failed: $(cat "$tmp/stderr")"
 sv="$tmp/cwd/output/leading-trailing-na"
 bands_flat "$sv/projection.csv" 0 2004 9 2>/dev/null || fail "survey start is not 9 in 2004"
 lf "$sv/risk.csv" 2>/dev/null | grep -q '^leading-trailing-na,fixed,[^,]*,[a-z_]*,5,2009,' || fail "calendar years do not run on"
 grep -q "last surveyed count" "$tmp/stdout" || fail "the survey start is not announced"
 # Several populations: one must be chosen; the folder then names it.
-(cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --fixed r=0,sigma=0.1 -q) \
+(cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --parameter r=0,sigma=0.1 -q) \
   >/dev/null 2>"$tmp/stderr"
 [ $? -eq 2 ] || fail "several populations without --population should exit 2"
 grep -q "'west'" "$tmp/stderr" || fail "the populations are not listed"
 [ -e "$tmp/cwd/output/multi-pop" ] && fail "a refused run created output/multi-pop"
 (cd "$tmp/cwd" && "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population east \
-   --fixed r=0,sigma=0.1 --runs 100 -q) >/dev/null 2>&1 || fail "--population east failed"
+   --parameter r=0,sigma=0.1 --runs 100 -q) >/dev/null 2>&1 || fail "--population east failed"
 bands_flat "$tmp/cwd/output/multi-pop/east/projection.csv" 0 2004 198 2>/dev/null ||
   fail "population east does not start from 198 in 2004"
 # Last count zero (south, 2002): cannot start on the log scale; --start overrides.
-"$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --fixed r=0,sigma=0.1 \
+"$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --parameter r=0,sigma=0.1 \
   -o "$tmp/south" -q >/dev/null 2>&1
 [ $? -eq 1 ] || fail "a zero last count should exit 1"
 [ -e "$tmp/south" ] && fail "the zero-count run left $tmp/south"
 "$TALLYFIT" forecast "$repo/tests/data/good/multi-pop.csv" --population south --start 4 \
-  --fixed r=0,sigma=0.1 --runs 100 -o "$tmp/south" -q >/dev/null 2>&1 || fail "--start did not override"
+  --parameter r=0,sigma=0.1 --runs 100 -o "$tmp/south" -q >/dev/null 2>&1 || fail "--start did not override"
 # -o DIR holds one folder per population when the file has several, as with fit.
 bands_flat "$tmp/south/south/projection.csv" 0 2002 4 2>/dev/null || fail "--start 4 not used"
-"$TALLYFIT" forecast "$tmp/no-such.csv" --fixed r=0,sigma=0.1 -o "$tmp/nosurvey" -q >/dev/null 2>&1
+"$TALLYFIT" forecast "$tmp/no-such.csv" --parameter r=0,sigma=0.1 -o "$tmp/nosurvey" -q >/dev/null 2>&1
 [ $? -eq 3 ] || fail "a missing survey file should exit 3"
-bad "population without survey" --fixed r=0,sigma=0.1 --start 5 --population east
-bad "unknown population" "$repo/tests/data/good/multi-pop.csv" --fixed r=0,sigma=0.1 --population north
+bad "population without survey" --parameter r=0,sigma=0.1 --start 5 --population east
+bad "unknown population" "$repo/tests/data/good/multi-pop.csv" --parameter r=0,sigma=0.1 --population north
 
 # A failure after the folder exists: a folder where a table should go makes the group fail before
 # anything is renamed; exit 1, the earlier tables keep their content and no temporary file remains.
@@ -168,7 +169,7 @@ cmp -s "$tmp/clash/projection.csv" "$tmp/bands.before" || fail "write failure ch
 # Ctrl-C during a long projection: exit 130 and no tables. A background job of a non-interactive
 # shell starts with SIGINT ignored until the command installs its handler, so the signal is
 # repeated until the process ends (a run this long would otherwise take minutes).
-"$TALLYFIT" forecast --fixed r=0,sigma=0.1 --start 100 --runs 5000000 --years 1000 -o "$tmp/int" -q \
+"$TALLYFIT" forecast --parameter r=0,sigma=0.1 --start 100 --runs 5000000 --years 1000 -o "$tmp/int" -q \
   >/dev/null 2>&1 &
 pid=$!
 for _ in $(seq 100); do
@@ -380,7 +381,13 @@ bad "several models without --average" "$heron" --model ricker,gompertz
 grep -q -- "--average" "$tmp/stderr" || fail "the hint should suggest --average"
 bad "--obs alone" "$heron" --obs poisson
 bad "--draws with --model" "$heron" --model ricker --draws 500
-bad "--priors with --average" "$heron" --average --priors "$repo/models/ricker.ini"
+# --average takes a priors file for the candidates of the growth model it names: one for a model
+# that is not a candidate is an unusable input (3), found before any fit.
+"$TALLYFIT" forecast "$heron" --average --model gompertz --prior-file "$repo/models/ricker.ini" -o "$tmp/pf" \
+  >/dev/null 2>"$tmp/stderr"; rc=$?
+[ $rc -eq 3 ] && grep -q "for model 'ricker', which is not among the candidates" "$tmp/stderr" ||
+  fail "--average with a priors file for no candidate: exit $rc: $(head -c 300 "$tmp/stderr")"
+[ -e "$tmp/pf" ] && fail "the refused priors file left $tmp/pf"
 bad "--model without a survey" --model ricker
 bad "--average without a survey" --average
 bad "unknown growth model" "$heron" --model nosuchmodel
@@ -406,7 +413,7 @@ printf '[model]\nname = mine\n[K]\nprior = normal\nmean = 1\nsd = 1\n' >"$tmp/st
 for case in "overflow.ini 1 no starting point" "strange.ini 3 K"; do
   read -r ini want phrase <<<"$case"
   for cmd in fit forecast; do
-    "$TALLYFIT" "$cmd" "$heron" --model exponential --obs poisson --priors "$tmp/$ini" --iterations 200 --warmup 40 --particles 30 --threads 2 -o "$tmp/same-$cmd" -q \
+    "$TALLYFIT" "$cmd" "$heron" --model exponential --obs poisson --prior-file "$tmp/$ini" --iterations 200 --warmup 40 --particles 30 --threads 2 -o "$tmp/same-$cmd" -q \
       >/dev/null 2>"$tmp/stderr"; rc=$?
     [ $rc -eq "$want" ] || fail "$cmd with $ini: exit $rc, want $want"
     grep -q "$phrase" "$tmp/stderr" || fail "$cmd with $ini: stderr lacks '$phrase': $(head -c 300 "$tmp/stderr")"

@@ -49,8 +49,8 @@ no_leftovers() {
   [ -z "$left" ] || fail "$1: temporaries left behind: $left"
 }
 
-sim=(simulate --model exponential --set r=0.01,sigma=0.1 --start 200)
-fc=(forecast --fixed r=-0.01,sigma=0.1 --start 200 --runs 200 -q)
+sim=(simulate --model exponential --parameter r=0.01,sigma=0.1 --start 200)
+fc=(forecast --parameter r=-0.01,sigma=0.1 --start 200 --runs 200 -q)
 
 # ---- survey files -------------------------------------------------------------------------------
 d=$tmp/in
@@ -81,9 +81,9 @@ PY
 truncate -s 40M "$d/huge.csv"
 
 expect "binary junk" 3 "not valid UTF-8" "$T" check "$d/junk.csv"
-expect "binary junk, likelihood" 3 "not valid UTF-8" "$T" likelihood "$d/junk.csv" --model exponential --set r=0,sigma=0.1
+expect "binary junk, likelihood" 3 "not valid UTF-8" "$T" likelihood "$d/junk.csv" --model exponential --parameter r=0,sigma=0.1
 expect "binary junk on standard input" 3 "not valid UTF-8" \
-  sh -c 'exec "$1" likelihood - --model exponential --set r=0,sigma=0.1 <"$2"' sh "$T" "$d/junk.csv"
+  sh -c 'exec "$1" likelihood - --model exponential --parameter r=0,sigma=0.1 <"$2"' sh "$T" "$d/junk.csv"
 expect "text junk" 3 "" "$T" check "$d/junk-text.csv"
 [ -s "$tmp/err" ] || fail "text junk: no message"
 expect "a million rows" 3 "more than 100000 data rows; reading stops here" "$T" check "$d/million.csv"
@@ -92,9 +92,9 @@ expect "a million rows, forecast" 3 "more than 100000 data rows" "$T" "${fc[@]}"
 expect "over 32 MiB" 3 "the file is larger than 32 MiB" "$T" check "$d/huge.csv"
 # Standard input has no size to check first: it is cut off while reading, even when endless.
 expect "over 32 MiB on standard input" 3 "the survey is larger than 32 MiB" \
-  sh -c 'head -c 40M /dev/zero | exec "$1" likelihood - --model exponential --set r=0,sigma=0.1' sh "$T"
+  sh -c 'head -c 40M /dev/zero | exec "$1" likelihood - --model exponential --parameter r=0,sigma=0.1' sh "$T"
 expect "an endless standard input" 3 "the survey is larger than 32 MiB" \
-  sh -c 'yes 2000,5 | exec "$1" likelihood - --model exponential --set r=0,sigma=0.1' sh "$T"
+  sh -c 'yes 2000,5 | exec "$1" likelihood - --model exponential --parameter r=0,sigma=0.1' sh "$T"
 expect "a 1 MiB count" 3 "is larger than 1e+09" "$T" check "$d/long-count.csv"
 grep -qF "77777777777777777777777777777777777777..." "$tmp/err" || fail "a 1 MiB count: value not shortened"
 # A 1 MiB note is free text in an ignored column: the survey is usable.

@@ -15,9 +15,9 @@ trap 'rm -rf "$tmp"' EXIT
 fails=0
 bad() { echo "model_search.sh: $*" >&2; fails=$((fails + 1)); }
 unset TALLYFIT_MODELS
-FAST=(-q --iterations 480 --warmup 100 --draws 150 --particles 100 --years 30 --models exponential --obs poisson)
+FAST=(-q --iterations 480 --warmup 100 --draws 150 --particles 100 --years 30 --model exponential --obs poisson)
 
-"$T" simulate --populations 2 --seed 3 -o "$tmp/scheme.csv" || bad "simulate failed"
+"$T" simulate --scheme 2 --seed 3 -o "$tmp/scheme.csv" || bad "simulate failed"
 
 # The plain binary, from another folder.
 (cd "$tmp" && "$T" analyze scheme.csv -o plain "${FAST[@]}" 2>"$tmp/err") || bad "plain binary: $(head -c 300 "$tmp/err")"

@@ -11,7 +11,7 @@ trap 'rm -rf "$tmp"' EXIT
 fails=0
 bad() { echo "populations.sh: $*" >&2; fails=$((fails + 1)); }
 SHORT=(--iterations 200 --warmup 100 --chains 2 --particles 100)
-AFAST=(-q --iterations 480 --warmup 100 --draws 150 --particles 100 --years 30 --models exponential --obs poisson)
+AFAST=(-q --iterations 480 --warmup 100 --draws 150 --particles 100 --years 30 --model exponential --obs poisson)
 
 cp tests/data/multi/one-short-population.csv "$tmp/herds.csv"
 H=$tmp/herds.csv
@@ -47,7 +47,7 @@ cut -d, -f1 "$tmp/a2/populations.csv" | tail -n +2 | tr '\n' ' ' | grep -qx "eas
 "$T" fit "$H" --skip-unusable --model exponential "${SHORT[@]}" -q -o "$tmp/f2" 2>"$tmp/err" || bad "fit --skip-unusable"
 grep -qF "tallyfit fit: $warning" "$tmp/err" || bad "fit --skip-unusable: no warning (-q keeps warnings)"
 [ "$(ls "$tmp/f2" | tr '\n' ' ')" = "east west " ] || bad "fit --skip-unusable: $(ls "$tmp/f2")"
-"$T" compare "$H" --skip-unusable --models exponential --obs poisson "${SHORT[@]}" --draws 150 --quiet -o "$tmp/c" \
+"$T" compare "$H" --skip-unusable --model exponential --obs poisson "${SHORT[@]}" --draws 150 --quiet -o "$tmp/c" \
   2>"$tmp/err" || bad "compare --skip-unusable: exit $?"
 grep -qF "tallyfit compare: $warning" "$tmp/err" || bad "compare --skip-unusable: no warning"
 [ -s "$tmp/c/east/models.csv" ] && [ -s "$tmp/c/west/models.csv" ] && [ ! -e "$tmp/c/short" ] ||

@@ -12,13 +12,13 @@ fail() { echo "signals.sh: $*" >&2; fails=$((fails + 1)); }
 # A projection that takes far longer than the test waits: 300000 runs over 1000 years is about ten
 # seconds of work (about 10 ms a year, a few times that under the sanitizers), and the command
 # polls between years.
-long=(forecast --fixed r=-0.01,sigma=0.1 --start 200 --runs 300000 --years 1000 -q)
+long=(forecast --parameter r=-0.01,sigma=0.1 --start 200 --runs 300000 --years 1000 -q)
 # Under valgrind (some 50 times slower) a tenth of the runs still lasts far longer than the test
 # waits and keeps a year short; the program needs a few seconds to start and its exit (the leak
 # check) takes longer. The second is checked by the native run; here the limit is 5 s.
 wait_s=1.5 limit_ms=1000
 if [ -n "${TF_VALGRIND:-}" ]; then
-  long=(forecast --fixed r=-0.01,sigma=0.1 --start 200 --runs 30000 --years 1000 -q)
+  long=(forecast --parameter r=-0.01,sigma=0.1 --start 200 --runs 30000 --years 1000 -q)
   wait_s=6 limit_ms=5000
 fi
 

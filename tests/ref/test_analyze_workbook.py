@@ -342,7 +342,7 @@ def check_compare_command(base, tmp):
         return
     out = os.path.join(tmp, "cmp")
     r = subprocess.run([T, "compare", SURVEY, "-o", out, "--quiet", "--threads", "2",
-                        "--models", "exponential,ricker,gompertz", "--obs", "poisson,negbin"] + FAST,
+                        "--model", "exponential,ricker,gompertz", "--obs", "poisson,negbin"] + FAST,
                        capture_output=True, text=True)
     check(r.returncode == 0, f"compare failed: {r.stderr[:400]}")
     if r.returncode != 0:

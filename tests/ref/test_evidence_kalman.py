@@ -217,7 +217,7 @@ def main():
                 fh.write(f"{2000 + t},{v:.6f}\n")
         out = os.path.join(tmp, "out")
         env = dict(os.environ, TALLYFIT_MODELS=models)
-        cmd = [TALLYFIT, "compare", survey, "--estimates", "--models", "gompertz", "--obs", "lognormal", "-o", out,
+        cmd = [TALLYFIT, "compare", survey, "--estimates", "--model", "gompertz", "--obs", "lognormal", "-o", out,
                "--seed", "5", "--quiet", "--threads", "2", "--iterations", "8000", "--thin", "4", "--warmup", "4000"]
         p = subprocess.run(cmd, capture_output=True, text=True, env=env)
         if p.returncode != 0:

@@ -63,7 +63,7 @@ def run(*args):
 
 def priors_args(growth):
     path = os.path.join(PRIORS, growth + ".ini")
-    return ["--priors", path] if os.path.exists(path) else []
+    return ["--prior-file", path] if os.path.exists(path) else []
 
 
 def read_rows(path):
@@ -85,7 +85,7 @@ def coverage(tmp):
         for seed in seeds:
             survey = os.path.join(tmp, f"{growth}-{seed}.csv")
             sets = ",".join(f"{k}={v}" for k, v in truth.items())
-            run("simulate", "--model", growth, "--set", sets, "--years", "30", "--start", str(start),
+            run("simulate", "--model", growth, "--parameter", sets, "--years", "30", "--start", str(start),
                 "--seed", str(seed), "-o", survey)
             prefix = fit(survey, growth, os.path.join(tmp, f"fit-{growth}-{seed}"), extra + ["--seed", str(seed)])
             for row in read_rows(prefix + "parameters.csv"):
@@ -129,7 +129,7 @@ def calibration(tmp):
         start = math.exp(theta["x1"])
         survey = os.path.join(tmp, f"sbc-{rep}.csv")
         sim = subprocess.run([TALLYFIT, "simulate", "--model", "exponential",
-                              "--set", f"r={theta['r']},sigma={theta['sigma']}", "--years", "15",
+                              "--parameter", f"r={theta['r']},sigma={theta['sigma']}", "--years", "15",
                               "--start", str(start), "--seed", str(1000 + rep), "-o", survey],
                              capture_output=True, text=True)
         counts = []
@@ -140,7 +140,7 @@ def calibration(tmp):
             continue
         out = os.path.join(tmp, f"sbc-fit-{rep}")
         run("fit", survey, "--model", "exponential", "-o", out, "--quiet", "--seed", str(rep + 1),
-            "--priors", SBC_PRIORS, "--set", f"x1_mean={SBC_X1_MEAN},x1_sd={SBC_X1_SD}",
+            "--prior-file", SBC_PRIORS, "--prior", f"x1_mean={SBC_X1_MEAN},x1_sd={SBC_X1_SD}",
             "--particles", "200", "--warmup", "3000")
         rows = read_rows(os.path.join(out, "exponential+poisson-draws.csv"))
         step = len(rows) // n_rank

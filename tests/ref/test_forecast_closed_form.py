@@ -1,5 +1,5 @@
 #!/usr/bin/python3
-"""Quasi-extinction risk of `tallyfit forecast --fixed` against closed-form and numerical references.
+"""Quasi-extinction risk of `tallyfit forecast --parameter` against closed-form and numerical references.
 
 Model: density-independent growth on the log scale, x_{t+1} = x_t + mu + sigma eps_t, from N0, with
 the threshold Ne at distance d = ln(N0 / Ne) > 0 below the start.
@@ -78,7 +78,7 @@ def grid_first_passage(horizons, mu, sigma, d, h):
 
 
 def simulate(binary, mu, sigma, n0, ne, seed, outdir):
-    cmd = [binary, "forecast", "--fixed", f"r={mu},sigma={sigma}", "--start", repr(n0), "--threshold", f"{ne:g}",
+    cmd = [binary, "forecast", "--parameter", f"r={mu},sigma={sigma}", "--start", repr(n0), "--threshold", f"{ne:g}",
            "--runs", str(RUNS), "--years", str(max(HORIZONS)), "--seed", str(seed), "-o", outdir, "--quiet"]
     subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
     with open(os.path.join(outdir, "forecast_quasi_extinction.csv"), newline="") as f:

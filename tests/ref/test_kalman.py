@@ -62,7 +62,7 @@ def default_x1_mean(y, effort):
 def simulated(path, r, K, sigma, tau, years, start, seed, effort=None, missing=()):
     """Simulates with tallyfit, blanks the missing years' counts, writes path; returns y, effort."""
     args = ["simulate", "--model", "gompertz", "--obs", "lognormal",
-            "--set", f"r={r},K={K},sigma={sigma},tau={tau}", "--years", str(years),
+            "--parameter", f"r={r},K={K},sigma={sigma},tau={tau}", "--years", str(years),
             "--start", str(start), "--seed", str(seed)]
     if effort is not None:
         args += ["--effort", ",".join(repr(e) for e in effort)]
@@ -77,7 +77,8 @@ def simulated(path, r, K, sigma, tau, years, start, seed, effort=None, missing=(
 
 
 def likelihood(path, setting, particles, repeats, seed, proposal):
-    out = run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", "--set", setting,
+    """setting: the options giving the values, ["--parameter", "r=..", "--prior", "x1_mean=.."]."""
+    out = run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", *setting,
               "--particles", str(particles), "--repeat", str(repeats), "--seed", str(seed), "--proposal", proposal)
     head, row = out.strip().split("\n")
     assert head == "loglik,se,particles,repeats,loglik_sd,proposal", head
@@ -99,11 +100,11 @@ def main():
     for name, r, K, sigma, tau, years, start, seed, effort, missing, x1 in scenarios:
         path = os.path.join(tmp, name + ".csv")
         y, e = simulated(path, r, K, sigma, tau, years, start, seed, effort, missing)
-        setting = f"r={r},K={K},sigma={sigma},tau={tau}"
+        setting = ["--parameter", f"r={r},K={K},sigma={sigma},tau={tau}"]
         if x1 is None:
             x1 = (default_x1_mean(y, e), 1.0)  # and tallyfit must use the same default
         else:
-            setting += f",x1_mean={x1[0]!r},x1_sd={x1[1]!r}"
+            setting += ["--prior", f"x1_mean={x1[0]!r},x1_sd={x1[1]!r}"]
         exact = exact_loglik(y, e, r, K, sigma, tau, *x1)
         for proposal in ("guided", "bootstrap"):
             ll, se = likelihood(path, setting, 1000, 40, 11, proposal)
@@ -122,11 +123,11 @@ def main():
     # 6 % at this N when the test was written; at N = 20 the bias is only 0.7 Var/2).
     path = os.path.join(tmp, "plain.csv")
     r, K, sigma, tau = 0.6, 800.0, 0.15, 0.2
-    setting = f"r={r},K={K},sigma={sigma},tau={tau},x1_mean={math.log(300.0)!r},x1_sd=0.5"
+    setting = ["--parameter", f"r={r},K={K},sigma={sigma},tau={tau}", "--prior", f"x1_mean={math.log(300.0)!r},x1_sd=0.5"]
     y, e = simulated(path, r, K, sigma, tau, 30, 300, 5)
     exact = exact_loglik(y, e, r, K, sigma, tau, math.log(300.0), 0.5)
     n = 400
-    ls = np.array([float(run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", "--set", setting,
+    ls = np.array([float(run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", *setting,
                              "--particles", "80", "--repeat", "1", "--seed", str(s + 1), "--proposal", "bootstrap").split("\n")[1].split(",")[0])
                    for s in range(n)])
     bias, half_var = ls.mean() - exact, ls.var(ddof=1) / 2

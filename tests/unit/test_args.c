@@ -31,8 +31,8 @@ START_TEST(pairs_parse_and_accumulate)
     tf_args_pairs_init(&p);
     tf_error err;
     tf_error_init(&err);
-    ck_assert_int_eq(tf_args_parse_pairs("--set", "r=0.5, K = 1e3 ,sigma=.1", &p, &err), TF_OK);
-    ck_assert_int_eq(tf_args_parse_pairs("--set", "phi=-2", &p, &err), TF_OK);
+    ck_assert_int_eq(tf_args_parse_pairs("--parameter", "r=0.5, K = 1e3 ,sigma=.1", &p, &err), TF_OK);
+    ck_assert_int_eq(tf_args_parse_pairs("--parameter", "phi=-2", &p, &err), TF_OK);
     ck_assert_uint_eq(p.n, 4);
     ck_assert_str_eq(p.items[1].name, "K");
     ck_assert_double_eq(p.items[1].value, 1000.0);
@@ -50,9 +50,9 @@ START_TEST(pairs_parse_and_accumulate)
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         tf_args_pairs_init(&p);
         tf_error_init(&err);
-        ck_assert_int_eq(tf_args_parse_pairs("--set", bad[i].text, &p, &err), TF_ERR_USAGE);
+        ck_assert_int_eq(tf_args_parse_pairs("--parameter", bad[i].text, &p, &err), TF_ERR_USAGE);
         ck_assert_msg(strstr(first_what(&err), bad[i].phrase), "'%s': %s", bad[i].text, first_what(&err));
-        ck_assert_ptr_nonnull(strstr(first_what(&err), "--set"));
+        ck_assert_ptr_nonnull(strstr(first_what(&err), "--parameter"));
     }
     /* The table is bounded. */
     tf_args_pairs_init(&p);
@@ -60,7 +60,7 @@ START_TEST(pairs_parse_and_accumulate)
     tf_status st = TF_OK;
     for (int i = 0; i <= TF_ARGS_MAX_PAIRS && st == TF_OK; i++) {
         snprintf(name, sizeof name, "p%d=1", i);
-        st = tf_args_parse_pairs("--set", name, &p, &err);
+        st = tf_args_parse_pairs("--parameter", name, &p, &err);
     }
     ck_assert_int_eq(st, TF_ERR_USAGE);
     ck_assert_uint_eq(p.n, TF_ARGS_MAX_PAIRS);
@@ -114,7 +114,7 @@ START_TEST(numbers_lists_and_seeds)
 }
 END_TEST
 
-START_TEST(set_binds_to_the_model)
+START_TEST(parameter_binds_to_the_model)
 {
     tf_model *m = NULL;
     tf_error err;
@@ -124,7 +124,7 @@ START_TEST(set_binds_to_the_model)
     tf_args_pairs_init(&p);
     double theta[TF_MAX_PARAMS] = {0};
     unsigned char given[TF_MAX_PARAMS];
-    ck_assert_int_eq(tf_args_parse_pairs("--set", "phi=4,r=0.5,K=300,sigma=0.2,x1_sd=0.3", &p, &err), TF_OK);
+    ck_assert_int_eq(tf_args_parse_pairs("--parameter", "phi=4,r=0.5,K=300,sigma=0.2,x1_sd=0.3", &p, &err), TF_OK);
     ck_assert_int_eq(tf_args_bind_model(m, &p, 1, theta, given, &err), TF_OK);
     ck_assert_double_eq(theta[0], 0.5);
     ck_assert_double_eq(theta[1], 300);
@@ -135,7 +135,7 @@ START_TEST(set_binds_to_the_model)
 
     /* Partial binding for commands that fix only some parameters. */
     tf_args_pairs_init(&p);
-    tf_args_parse_pairs("--set", "K=900", &p, &err);
+    tf_args_parse_pairs("--parameter", "K=900", &p, &err);
     ck_assert_int_eq(tf_args_bind_model(m, &p, 0, theta, given, &err), TF_OK);
     ck_assert_double_eq(theta[1], 900);
     ck_assert_double_eq(theta[0], 0.5);
@@ -148,7 +148,7 @@ START_TEST(set_binds_to_the_model)
     ck_assert_ptr_nonnull(strstr(err.items[0].what, "value of r is missing"));
     ck_assert_ptr_nonnull(strstr(err.items[0].hint, "r=...,K=...,sigma=...,phi=..."));
     tf_args_pairs_init(&p);
-    tf_args_parse_pairs("--set", "tau=1,K=-1,x1_sd=-2", &p, &err);
+    tf_args_parse_pairs("--parameter", "tau=1,K=-1,x1_sd=-2", &p, &err);
     tf_error_init(&err);
     ck_assert_int_eq(tf_args_bind_model(m, &p, 0, theta, NULL, &err), TF_ERR_USAGE);
     ck_assert_uint_eq(err.n_items, 3);
@@ -217,7 +217,7 @@ START_TEST(names_split)
 }
 END_TEST
 
-/* --models / --obs lists: "all", known names, and an unknown name refused with the known ones. */
+/* --model / --obs lists: "all", known names, and an unknown name refused with the known ones. */
 START_TEST(model_names_known_or_all)
 {
     tf_error err;
@@ -226,9 +226,9 @@ START_TEST(model_names_known_or_all)
     const char *names[4];
     size_t n = 9;
     int all = 0;
-    ck_assert_int_eq(tf_args_model_names("--models", "all", buf, sizeof buf, names, 4, &n, &all, 1, &err), TF_OK);
+    ck_assert_int_eq(tf_args_model_names("--model", "all", buf, sizeof buf, names, 4, &n, &all, 1, &err), TF_OK);
     ck_assert(all && n == 0);
-    ck_assert_int_eq(tf_args_model_names("--models", "ricker, gompertz", buf, sizeof buf, names, 4, &n, &all, 1, &err),
+    ck_assert_int_eq(tf_args_model_names("--model", "ricker, gompertz", buf, sizeof buf, names, 4, &n, &all, 1, &err),
                      TF_OK);
     ck_assert(!all && n == 2);
     ck_assert_str_eq(names[1], "gompertz");
@@ -240,7 +240,7 @@ START_TEST(model_names_known_or_all)
     ck_assert_ptr_nonnull(strstr(first_what(&err), "--obs: unknown model 'ricker'"));
     ck_assert_ptr_nonnull(strstr(err.items[0].hint, "negbin"));
     tf_error_init(&err);
-    ck_assert_int_eq(tf_args_model_names("--models", "ricker,,gompertz", buf, sizeof buf, names, 4, &n, &all, 1, &err),
+    ck_assert_int_eq(tf_args_model_names("--model", "ricker,,gompertz", buf, sizeof buf, names, 4, &n, &all, 1, &err),
                      TF_ERR_USAGE);
     ck_assert_ptr_nonnull(strstr(first_what(&err), "empty name"));
 }
@@ -338,6 +338,183 @@ START_TEST(operand_draws_and_folders)
 }
 END_TEST
 
+/* Options of earlier versions are answered with their new name (args.c, tf_args_getopt_error). */
+START_TEST(renamed_options_named)
+{
+    static const struct {
+        const char *arg, *hint;
+    } cases[] = {
+        {"--models", "use --model"},
+        {"--models=all", "use --model"},
+        {"--set", "--parameter NAME=VALUE"},
+        {"--fixed", "use --parameter"},
+        {"--priors", "use --prior-file"},
+        {"--populations", "use --scheme N"},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        tf_error err;
+        tf_error_init(&err);
+        ck_assert_int_eq(tf_args_getopt_error("compare", '?', 0, cases[i].arg, &err), TF_ERR_USAGE);
+        ck_assert_ptr_nonnull(strstr(first_what(&err), "unknown option"));
+        ck_assert_msg(strstr(err.items[0].hint, cases[i].hint), "%s: hint '%s'", cases[i].arg, err.items[0].hint);
+    }
+    /* A longer name is not an old one: the plain hint. */
+    tf_error err;
+    tf_error_init(&err);
+    tf_args_getopt_error("compare", '?', 0, "--modelsx", &err);
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "tallyfit compare --help"));
+}
+END_TEST
+
+/* The sampler group: every option read, one set of limits, applied to the sampler and the
+ * marginal likelihood, and the refusals. */
+START_TEST(sampler_group)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_args_sampler s;
+    tf_args_sampler_init(&s);
+    static const struct {
+        int code;
+        const char *text, *name;
+    } given[] = {
+        {TF_ARGS_OPT_SEED, "7", "--seed"},
+        {TF_ARGS_OPT_CHAINS, "3", "--chains"},
+        {TF_ARGS_OPT_WARMUP, "20", "--warmup"},
+        {TF_ARGS_OPT_PARTICLES, "50", "--particles"},
+        {TF_ARGS_OPT_PROPOSAL, "bootstrap", "--proposal"},
+        {TF_ARGS_OPT_CORRELATED, NULL, "--correlated"},
+        {TF_ARGS_OPT_THREADS, "2", "--threads"},
+        {TF_ARGS_OPT_ITER, "300", "--iterations"},
+        {TF_ARGS_OPT_ML_SE, "0.1", "--ml-se"},
+        {TF_ARGS_OPT_DRAWS, "100", "--draws"},
+        {TF_ARGS_OPT_PRIOR, "x1_mean=5,x1_sd=0.5", "--prior"},
+        {TF_ARGS_OPT_PRIOR_FILE, "p.ini", "--prior-file"},
+        {TF_ARGS_OPT_WEIGHTS, "ricker=3,gompertz+negbin=0.5", "--model-weights"},
+    };
+    for (size_t i = 0; i < sizeof given / sizeof given[0]; i++)
+        ck_assert_str_eq(tf_args_sampler_option(given[i].code, given[i].text, &s, &err), given[i].name);
+    ck_assert_uint_eq(err.n_items, 0);
+    ck_assert_ptr_null(tf_args_sampler_option(TF_ARGS_OPT_ITER - 1, "1", &s, &err));
+    /* --seed alone does not set up a fit (forecast --parameter takes it). */
+    ck_assert_str_eq(s.first, "--chains");
+    ck_assert_str_eq(s.first_ml, "--ml-se");
+
+    tf_pmmh_options fit = tf_pmmh_default_options();
+    tf_evidence_options ml = tf_evidence_default_options();
+    uint64_t seed = 1;
+    size_t threads = 1;
+    ck_assert_int_eq(tf_args_sampler_apply(&s, &fit, &ml, &seed, &threads, &err), TF_OK);
+    ck_assert_uint_eq(seed, 7);
+    ck_assert_uint_eq(threads, 2);
+    ck_assert_uint_eq(fit.n_chains, 3);
+    ck_assert_uint_eq(fit.n_warmup, 20);
+    ck_assert_uint_eq(fit.n_particles, 50);
+    ck_assert_uint_eq(ml.n_particles, 50);
+    ck_assert_int_eq(fit.proposal, TF_PROPOSAL_BOOTSTRAP);
+    ck_assert_int_eq(ml.proposal, TF_PROPOSAL_BOOTSTRAP);
+    ck_assert_int_eq(fit.correlated, 1);
+    ck_assert_uint_eq(fit.min_iter, 300);
+    ck_assert_uint_eq(fit.max_iter, 300);
+    ck_assert_double_eq(ml.target_se, 0.1);
+    ck_assert_uint_eq(ml.n_draws, 100);
+    ck_assert_uint_le(ml.n_adapt_draws, 100);
+
+    /* Without a marginal likelihood its options are refused; seed and threads then go to fit. */
+    fit = tf_pmmh_default_options();
+    ck_assert_int_eq(tf_args_sampler_apply(&s, &fit, NULL, NULL, NULL, &err), TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "--ml-se"));
+    ck_assert_uint_eq(fit.seed, 7);
+    ck_assert_uint_eq(fit.n_threads, 2);
+    /* Prior model weights: names of candidates, positive weights. */
+    tf_error_init(&err);
+    const char *wn[TF_ARGS_MAX_PAIRS];
+    double wv[TF_ARGS_MAX_PAIRS];
+    size_t nw = 0;
+    static const char *const growth2[] = {"ricker", "gompertz"}, *const obs1[] = {"negbin"};
+    ck_assert_int_eq(tf_args_sampler_weights(&s, growth2, 2, obs1, 1, wn, wv, &nw, &err), TF_OK);
+    ck_assert_uint_eq(nw, 2);
+    ck_assert_str_eq(wn[1], "gompertz+negbin");
+    ck_assert_double_eq(wv[0], 3);
+    ck_assert_int_eq(tf_args_sampler_weights(&s, growth2, 1, obs1, 1, wn, wv, &nw, &err), TF_ERR_USAGE);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "'gompertz+negbin' names no candidate model"));
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_sampler_weights(&s, NULL, 0, obs1 + 1, 0, wn, wv, &nw, &err), TF_OK); /* all candidates */
+    /* The priors the candidates of a comparison take. */
+    tf_setup_user u;
+    tf_args_sampler_user(&s, &u);
+    ck_assert_str_eq(u.prior_file, "p.ini");
+    ck_assert_double_eq(u.x1_mean, 5);
+    ck_assert_double_eq(u.x1_sd, 0.5);
+    /* --standard after --correlated wins; --prior takes only the first-year prior. */
+    tf_args_sampler_init(&s);
+    tf_error_init(&err);
+    tf_args_sampler_option(TF_ARGS_OPT_CORRELATED, NULL, &s, &err);
+    tf_args_sampler_option(TF_ARGS_OPT_STANDARD, NULL, &s, &err);
+    tf_args_sampler_option(TF_ARGS_OPT_PRIOR, "r=0.5", &s, &err);
+    fit = tf_pmmh_default_options();
+    fit.correlated = 1;
+    ck_assert_int_eq(tf_args_sampler_apply(&s, &fit, NULL, NULL, NULL, &err), TF_ERR_USAGE);
+    ck_assert_int_eq(fit.correlated, 0);
+    ck_assert_ptr_nonnull(strstr(first_what(&err), "--prior takes x1_mean and x1_sd"));
+    tf_args_sampler_user(&s, &u);
+    ck_assert_ptr_null(u.prior_file);
+    ck_assert(isnan(u.x1_mean) && isnan(u.x1_sd));
+
+    /* One set of limits, whatever the command. */
+    static const struct {
+        int code;
+        const char *text;
+    } bad[] = {
+        {TF_ARGS_OPT_CHAINS, "0"},      {TF_ARGS_OPT_CHAINS, "65"},      {TF_ARGS_OPT_WARMUP, "19"},
+        {TF_ARGS_OPT_WARMUP, "10000001"}, {TF_ARGS_OPT_PARTICLES, "0"}, {TF_ARGS_OPT_PARTICLES, "10000001"},
+        {TF_ARGS_OPT_THREADS, "0"},     {TF_ARGS_OPT_THREADS, "257"},    {TF_ARGS_OPT_DRAWS, "99"},
+        {TF_ARGS_OPT_DRAWS, "10000001"}, {TF_ARGS_OPT_ML_SE, "11"},      {TF_ARGS_OPT_PROPOSAL, "blind"},
+        {TF_ARGS_OPT_SEED, "-1"},       {TF_ARGS_OPT_THIN, "0"},         {TF_ARGS_OPT_THIN, "100000001"},
+        {TF_ARGS_OPT_PRIOR, "x1_mean"},     {TF_ARGS_OPT_WEIGHTS, "ricker"},
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        tf_args_sampler_init(&s);
+        tf_error_init(&err);
+        tf_args_sampler_option(bad[i].code, bad[i].text, &s, &err);
+        ck_assert_msg(tf_error_status(&err) == TF_ERR_USAGE, "option %d '%s' accepted", bad[i].code, bad[i].text);
+    }
+    tf_args_sampler_init(&s);
+    tf_error_init(&err);
+    tf_args_sampler_option(TF_ARGS_OPT_THIN, "100000000", &s, &err);
+    tf_args_sampler_option(TF_ARGS_OPT_CHAINS, "64", &s, &err);
+    tf_args_sampler_option(TF_ARGS_OPT_THREADS, "256", &s, &err);
+    ck_assert_uint_eq(err.n_items, 0);
+}
+END_TEST
+
+/* --parameter and --prior: each name in its own option, then one list to bind. */
+START_TEST(parameter_and_prior_merge)
+{
+    tf_error err;
+    tf_error_init(&err);
+    tf_arg_pairs values, prior;
+    tf_args_pairs_init(&values);
+    tf_args_pairs_init(&prior);
+    tf_args_parse_pairs("--parameter", "r=0.5,sigma=0.1", &values, &err);
+    tf_args_parse_pairs("--prior", "x1_sd=0.4", &prior, &err);
+    ck_assert_int_eq(tf_args_merge_prior(&values, &prior, &err), TF_OK);
+    ck_assert_uint_eq(values.n, 3);
+    ck_assert_double_eq(tf_args_pairs_get(&values, "x1_sd")->value, 0.4);
+    /* The first-year prior given as a parameter, and a parameter given as a prior. */
+    tf_args_pairs_init(&values);
+    tf_args_pairs_init(&prior);
+    tf_args_parse_pairs("--parameter", "r=0.5,x1_mean=3", &values, &err);
+    tf_args_parse_pairs("--prior", "K=3", &prior, &err);
+    ck_assert_int_eq(tf_args_merge_prior(&values, &prior, &err), TF_ERR_USAGE);
+    ck_assert_uint_eq(err.n_items, 2);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "--prior takes x1_mean and x1_sd"));
+    ck_assert_ptr_nonnull(strstr(err.items[1].what, "x1_mean is the first year's prior"));
+    ck_assert_ptr_nonnull(strstr(err.items[1].hint, "--prior x1_mean=V,x1_sd=V"));
+    ck_assert_uint_eq(values.n, 2); /* unchanged */
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("args");
@@ -345,12 +522,15 @@ static Suite *make_suite(void)
     tcase_set_timeout(tc, 60);
     tcase_add_test(tc, pairs_parse_and_accumulate);
     tcase_add_test(tc, numbers_lists_and_seeds);
-    tcase_add_test(tc, set_binds_to_the_model);
+    tcase_add_test(tc, parameter_binds_to_the_model);
     tcase_add_test(tc, output_names_are_portable);
     tcase_add_test(tc, names_split);
     tcase_add_test(tc, model_names_known_or_all);
     tcase_add_test(tc, operand_draws_and_folders);
     tcase_add_test(tc, exit_codes_one_mapping);
+    tcase_add_test(tc, renamed_options_named);
+    tcase_add_test(tc, sampler_group);
+    tcase_add_test(tc, parameter_and_prior_merge);
     suite_add_tcase(s, tc);
     return s;
 }

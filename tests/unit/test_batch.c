@@ -50,7 +50,7 @@ START_TEST(state_names)
 }
 END_TEST
 
-static tf_status no_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
+static tf_status no_priors(void *ctx, tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
     (void)ctx, (void)m, (void)s, (void)out;
     return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "not called here");

@@ -44,7 +44,7 @@ static void set_prior(tf_prior_set *set, const char *name, tf_prior_kind kind, d
  * support: r ~ half-normal(1) on (0, 5) (Normal(0, 0.5) for the exponential model's r),
  * K ~ log-normal(ln median, 1.5) (above 1 for Gompertz), theta ~ log-normal(0, 1) on (0, 20),
  * sigma, tau ~ half-normal(0.5), phi ~ log-normal(2.3, 1.5). */
-static tf_status hand_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
+static tf_status hand_priors(void *ctx, tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
     const prior_ctx *pc = ctx;
     size_t n = tf_model_n_params(m);

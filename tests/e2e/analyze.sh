@@ -267,11 +267,11 @@ done
 # table, and a weight for a model that is not a candidate is refused before any fit.
 "$T" analyze surveys/heron-colony.csv -o "$tmp/weights" -q --threads 2 "${FAST[@]}" --model exponential,ricker \
   --obs poisson --model-weights ricker=3 2>/dev/null || bad "--model-weights: analyze failed"
-/usr/bin/python3 - "$tmp/weights/heron-colony/models.csv" <<'PY' || bad "--model-weights: prior weights not 0.25 / 0.75"
+/usr/bin/python3 - "$tmp/weights/models.csv" <<'PY' || bad "--model-weights: prior weights not 0.25 / 0.75"
 import csv, sys
 rows = {r["model"]: r for r in csv.DictReader(open(sys.argv[1], newline=""))}
-sys.exit(0 if abs(float(rows["exponential+poisson"]["prior_weight"]) - 0.25) < 1e-12 and
-         abs(float(rows["ricker+poisson"]["prior_weight"]) - 0.75) < 1e-12 else 1)
+sys.exit(0 if abs(float(rows["exponential+poisson"]["prior_prob"]) - 0.25) < 1e-12 and
+         abs(float(rows["ricker+poisson"]["prior_prob"]) - 0.75) < 1e-12 else 1)
 PY
 usage "--model-weights: 'gompertz' names no candidate model" surveys/heron-colony.csv --model ricker \
   --model-weights gompertz=2 -o "$tmp/u"

@@ -204,7 +204,7 @@ for run in "p0" "p1 --prior-file $tmp/rk.ini" "p2 --prior x1_mean=3,x1_sd=0.2"; 
   "$T" compare surveys/heron-colony.csv --model ricker,gompertz --obs poisson -o "$tmp/$name" "${SHORT[@]}" "$@" \
     --quiet 2>/dev/null || bad "priors: compare $* failed"
 done
-/usr/bin/python3 - "$tmp/p0/model-comparison.csv" "$tmp/p1/model-comparison.csv" "$tmp/p2/model-comparison.csv" <<'PY' ||
+/usr/bin/python3 - "$tmp/p0/models.csv" "$tmp/p1/models.csv" "$tmp/p2/models.csv" <<'PY' ||
 import csv, sys
 def log_ml(path):
     return {r["model"]: float(r["log_ml"]) for r in csv.DictReader(open(path, newline=""))}

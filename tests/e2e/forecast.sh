@@ -65,11 +65,11 @@ done
 cmp -s "$out/risk.csv" "$tmp/again/risk.csv" || fail "same seed, other numbers"
 
 # --quiet means what it means in every command: no progress and no summary (the cautions
-# printed under it included); the cautions stay in forecast_summary.csv.
+# printed under it included); the cautions stay in summary.csv.
 "$TALLYFIT" forecast --parameter r=0.01,sigma=0.2 --start 80 -o "$tmp/quiet" --quiet >"$tmp/stdout" 2>&1 ||
   fail "quiet run failed"
 [ -s "$tmp/stdout" ] && fail "--quiet printed: $(head -c 200 "$tmp/stdout")"
-grep -q "not a formal status listing" "$tmp/quiet/forecast_summary.csv" || fail "--quiet: the summary file lacks the cautions"
+grep -q "not a formal status listing" "$tmp/quiet/summary.csv" || fail "--quiet: the summary file lacks the cautions"
 
 # --help succeeds and names the options.
 "$TALLYFIT" forecast --help >"$tmp/help" 2>&1 || fail "--help failed"

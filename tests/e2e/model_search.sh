@@ -36,7 +36,7 @@ elif [ -x "$M" ] && command -v mpirun >/dev/null; then
   [ $rc -eq 0 ] || bad "mpirun -n 3 build/mpi/tallyfit analyze: exit $rc: $(tail -c 400 "$tmp/err")"
   grep -qF "not found" "$tmp/err" && bad "MPI binary: a model file was not found: $(head -c 300 "$tmp/err")"
   [ -s "$tmp/results/scheme.xlsx" ] || bad "MPI binary: no summary workbook"
-  [ "$(ls "$tmp/results/scheme/populations" 2>/dev/null | wc -l)" -eq 2 ] || bad "MPI binary: not 2 population folders"
+  [ "$(find "$tmp/results" -mindepth 1 -maxdepth 1 -type d | wc -l)" -eq 2 ] || bad "MPI binary: not 2 population folders"
   # The same binary without mpirun, from another folder.
   (cd "$tmp" && "$M" fit scheme.csv --population site-0001 --model exponential --iterations 200 --warmup 100 \
     --chains 2 -q -o mpi-plain 2>"$tmp/err") || bad "MPI binary without mpirun: $(head -c 300 "$tmp/err")"

@@ -59,7 +59,7 @@ static void set_prior(tf_prior_set *set, const char *name, tf_prior_kind kind, d
 /* r ~ half-normal(1) on (0, 5), K ~ log-normal(ln 100, 1.5) above the model's bound, sigma ~
  * half-normal(0.5), phi ~ log-normal(2.3, 1.5): weakly informative, in the spirit of the model
  * files, for the growth models with r and K and the Poisson and negative-binomial counts. */
-static tf_status hand_priors(void *ctx, const tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
+static tf_status hand_priors(void *ctx, tf_model *m, const tf_series *s, tf_prior_set **out, tf_error *err)
 {
     prior_ctx *pc = ctx;
     pc->calls++;

@@ -16,7 +16,7 @@ tf_model_list() {
     observation) args=(--model "$(tf_model_list growth | head -n 1)" --obs .) ;;
     *) echo "tf_model_list: growth or observation, not '$kind'" >&2; return 1 ;;
   esac
-  line=$("$T" likelihood /dev/null "${args[@]}" --set r=1 2>&1 >/dev/null |
+  line=$("$T" likelihood /dev/null "${args[@]}" --parameter r=1 2>&1 >/dev/null |
          sed -n "s/^  hint: known $kind models: //p") || true  # the run itself fails, on purpose
   if [ -z "$line" ]; then
     echo "tf_model_list: '$T likelihood' gave no list of $kind models" >&2

@@ -32,6 +32,7 @@ of the draws), so given the draws its estimate has variance mean_d p_d (1 - p_d)
 the binomial se of the table is an upper bound. Tolerances are 4 combined se (a chance failure
 about 6e-5 per check).
 """
+import csv
 import math
 import os
 import subprocess
@@ -92,6 +93,14 @@ def main():
               f"risk.csv thresholds {sorted({(r['threshold'], r['threshold_kind']) for r in risk})}, "
               f"want 0.5 fraction_of_current")
         sim = {int(r["years_ahead"]): float(r["probability"]) for r in risk}
+        # year is the calendar year: the last survey year of the population (read here from the
+        # survey file) plus years_ahead.
+        with open(SURVEY, newline="") as f:
+            surveyed = [int(r["year"]) for r in csv.DictReader(line for line in f if not line.startswith("#"))
+                        if r["population"] == POPULATION and r["count"] not in ("", "NA")]
+        check(sorted(sim) == list(range(max(HORIZONS) + 1)) and
+              all(int(r["year"]) == max(surveyed) + int(r["years_ahead"]) for r in risk),
+              f"risk.csv: years_ahead 0..{max(HORIZONS)}, year = {max(surveyed)} + years_ahead")
         items = {r["item"]: r["value"] for r in output_tables.read(os.path.join(base, "summary.csv"))}
     check(int(items["Posterior draws"]) == n_draws, f"the forecast projects {items['Posterior draws']} draws, "
                                                     f"the fit wrote {n_draws}")

@@ -98,7 +98,8 @@ def header_problem(header, table):
                 i += len(want)
                 k += 1
             if k == 0:
-                return f"columns from {i + 1} are {header[i:i + len(names)]}, docs/tables.md has {names} ({letter} = 1, 2...)"
+                return (f"columns from {i + 1} are {header[i:i + len(names)]}, docs/tables.md has {names} "
+                        f"({letter} = 1, 2...)")
     if i != len(header):
         return f"extra columns {header[i:]} beyond docs/tables.md"
     return None

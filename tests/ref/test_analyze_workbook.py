@@ -415,7 +415,8 @@ def check_summary(base, items):
     allp = column(output_tables.read_lists(os.path.join(base, "populations.csv")))
     check(len(allp) == 1, "populations.csv should have one row")
     ar = allp[0]
-    check(ar["population"] == population and ar["status"] == "done", f"populations.csv row {ar['population']} {ar['status']}")
+    check(ar["population"] == population and ar["status"] == "done",
+          f"populations.csv row {ar['population']} {ar['status']}")
     check(num(ar["abundance"]) == num(items[a]), "populations abundance")
     check(num(ar["abundance_lower_95"]) == num(last["lower_95"]), "populations abundance_lower_95 != abundance.csv")
     check(num(ar["abundance_upper_95"]) == num(last["upper_95"]), "populations abundance_upper_95 != abundance.csv")
@@ -517,7 +518,8 @@ def main():
               f"unexpected entries in the results folder: {sorted(os.listdir(base))}")
         for e in entries:
             want = "" if e["file"] in ("summary.csv", "populations.csv") else "heron-colony"
-            check(e["population"] == want, f"contents.csv: {e['file']} has population {e['population']!r}, want {want!r}")
+            check(e["population"] == want,
+                  f"contents.csv: {e['file']} has population {e['population']!r}, want {want!r}")
         tables, layout = {}, {}
         for e in entries:
             sheet, file = e["sheet"], e["file"]

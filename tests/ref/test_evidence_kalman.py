@@ -29,7 +29,6 @@ plus 0.02 of the reference. The allowance covers the log of a mean being biased 
 -se^2 / 2 and the delta-method se being itself estimated from the same draws (both well below
 0.01 at the se seen here, about 0.07); it is documented rather than derived.
 """
-import csv
 import math
 import os
 import subprocess
@@ -38,6 +37,8 @@ import tempfile
 
 import numpy as np
 from scipy import optimize, special, stats
+
+import output_tables
 
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..")
 TALLYFIT = os.environ.get("TALLYFIT", os.path.join(ROOT, "tallyfit"))
@@ -223,16 +224,15 @@ def main():
         if p.returncode != 0:
             print(f"FAIL: {' '.join(cmd)} exited {p.returncode}: {p.stderr}")
             return 1
-        with open(os.path.join(out, "model-comparison.csv"), newline="") as fh:
-            rows = list(csv.DictReader(fh))
+        rows = output_tables.read(os.path.join(out, "models.csv"))
     row = [r for r in rows if r["model"] == "gompertz+lognormal"]
     if len(row) != 1 or row[0]["status"] != "fitted":
         print(f"FAIL: no fitted gompertz+lognormal row in {rows}")
         return 1
     row = row[0]
     bad = 0
-    for what, est, se in (("estimate", float(row["log_ml"]), float(row["log_ml_se"])),
-                          ("second-density estimate", float(row["log_ml_check"]), float(row["log_ml_check_se"]))):
+    for what, est, se in (("estimate", float(row["log_ml"]), float(row["log_ml_mcse"])),
+                          ("second-density estimate", float(row["log_ml_check"]), float(row["log_ml_check_mcse"]))):
         comb = math.sqrt(se * se + ref_se * ref_se)
         ok = abs(est - ref_ml) <= 3 * comb + 0.02
         print(f"{'ok  ' if ok else 'FAIL'} tallyfit {what} {est:.4f} (se {se:.4f}) vs exact {ref_ml:.4f} "

@@ -30,6 +30,8 @@ import tempfile
 import numpy as np
 from scipy.stats import binom, chisquare
 
+import output_tables
+
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..")
 TALLYFIT = os.environ.get("TALLYFIT", os.path.join(ROOT, "tallyfit"))
 VALIDATE = bool(os.environ.get("TF_VALIDATE"))
@@ -72,8 +74,14 @@ def read_rows(path):
 
 
 def fit(survey, growth, out, extra):
+    """Fits growth + Poisson; returns the rows of its parameters table (one population: the tables
+    are in out itself)."""
     run("fit", survey, "--model", growth, "-o", out, "--quiet", *priors_args(growth), *extra)
-    return os.path.join(out, growth + "+poisson-")
+    rows = output_tables.read(os.path.join(out, "parameters.csv"))
+    model = growth + "+poisson"
+    if not rows or any(r["model"] != model for r in rows):
+        raise AssertionError(f"{out}/parameters.csv: models {sorted({r['model'] for r in rows})}, want {model}")
+    return rows
 
 
 def coverage(tmp):
@@ -87,9 +95,12 @@ def coverage(tmp):
             sets = ",".join(f"{k}={v}" for k, v in truth.items())
             run("simulate", "--model", growth, "--parameter", sets, "--years", "30", "--start", str(start),
                 "--seed", str(seed), "-o", survey)
-            prefix = fit(survey, growth, os.path.join(tmp, f"fit-{growth}-{seed}"), extra + ["--seed", str(seed)])
-            for row in read_rows(prefix + "parameters.csv"):
-                lo, hi, true = float(row["q2.5"]), float(row["q97.5"]), truth[row["parameter"]]
+            rows = fit(survey, growth, os.path.join(tmp, f"fit-{growth}-{seed}"), extra + ["--seed", str(seed)])
+            if sorted(r["parameter"] for r in rows) != sorted(truth):
+                raise AssertionError(f"{growth}: parameters {[r['parameter'] for r in rows]}, want {sorted(truth)}")
+            for row in rows:
+                # lower_95 / upper_95: the 2.5 % and 97.5 % posterior quantiles.
+                lo, hi, true = float(row["lower_95"]), float(row["upper_95"]), truth[row["parameter"]]
                 n += 1
                 if lo <= true <= hi:
                     covered += 1
@@ -142,7 +153,8 @@ def calibration(tmp):
         run("fit", survey, "--model", "exponential", "-o", out, "--quiet", "--seed", str(rep + 1),
             "--prior-file", SBC_PRIORS, "--prior", f"x1_mean={SBC_X1_MEAN},x1_sd={SBC_X1_SD}",
             "--particles", "200", "--warmup", "3000")
-        rows = read_rows(os.path.join(out, "exponential+poisson-draws.csv"))
+        rows = output_tables.read(os.path.join(out, "draws.csv"))
+        assert all(d["model"] == "exponential+poisson" for d in rows), f"{out}/draws.csv holds other models"
         step = len(rows) // n_rank
         thinned = rows[step // 2::step][:n_rank]
         for p in ranks:

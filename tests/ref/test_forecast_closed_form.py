@@ -27,8 +27,20 @@ lies below the continuous [DMS] curve, most at short horizons (up to about 0.07 
   3. the allowance is the right size: |G(t; d + beta sigma) - [GRID]| <= 0.25 A + GRID_TOL.
 se = sqrt(p (1 - p) / runs) is the binomial Monte Carlo error; with 4 se, each single check fails
 by chance with probability 6e-5.
+
+The abundance bands of projection.csv have a closed form for this model: ln N_t ~ Normal(ln N0 + mu t,
+sigma^2 t) (the walk's increments are independent normals), so the p-quantile of N_t is
+N0 exp(mu t + sigma sqrt(t) z_p) with z_p = scipy.stats.norm.ppf(p): 1.959964 for the 95 % band
+(2.5 % and 97.5 %), 0.674490 for the 50 % band (25 % and 75 %), 0 for the median.
+  4. each of median, lower_50, upper_50, lower_95, upper_95 at the horizons, on the log scale,
+     within 4 se of the closed form, se = sigma sqrt(t) sqrt(p (1 - p) / runs) / phi(z_p): the
+     asymptotic standard error of a sample quantile, sqrt(p (1 - p) / n) / f(q_p) (Serfling 1980,
+     Approximation Theorems of Mathematical Statistics, section 2.3.3, recalled from memory). The
+     interpolation between order statistics moves a quantile by about one spacing,
+     1 / (runs f(q_p)), under 1 % of that se at 20000 runs, so no allowance is added for it.
+     Power: a 5 %/95 % band (z = 1.644854) in place of the 2.5 %/97.5 % one would sit
+     (1.959964 - 1.644854) / 0.0189 = 16.7 se away (0.0189 = sqrt(0.025 * 0.975 / 20000) / phi(1.959964)).
 """
-import csv
 import math
 import os
 import subprocess
@@ -36,6 +48,7 @@ import sys
 import tempfile
 
 import numpy as np
+import output_tables
 from scipy.signal import fftconvolve
 from scipy.special import zeta
 from scipy.stats import norm
@@ -81,9 +94,13 @@ def simulate(binary, mu, sigma, n0, ne, seed, outdir):
     cmd = [binary, "forecast", "--parameter", f"r={mu},sigma={sigma}", "--start", repr(n0), "--threshold", f"{ne:g}",
            "--runs", str(RUNS), "--years", str(max(HORIZONS)), "--seed", str(seed), "-o", outdir, "--quiet"]
     subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL)
-    with open(os.path.join(outdir, "forecast_quasi_extinction.csv"), newline="") as f:
-        rows = list(csv.DictReader(f))
-    return {int(r["year"]): (float(r["probability"]), float(r["se"])) for r in rows if r["threshold"] == f"{ne:g}"}
+    # risk.csv: years_ahead counts from the start (year is blank without a survey); a threshold
+    # in animals is the number itself, with threshold_kind "animals".
+    rows = output_tables.read(os.path.join(outdir, "risk.csv"))
+    risk = {int(r["years_ahead"]): (float(r["probability"]), float(r["probability_mcse"])) for r in rows
+            if r["threshold_kind"] == "animals" and float(r["threshold"]) == ne}
+    bands = {int(r["years_ahead"]): r for r in output_tables.read(os.path.join(outdir, "projection.csv"))}
+    return risk, bands
 
 
 def main():
@@ -99,7 +116,9 @@ def main():
         d = math.log(n0 / ne)
         exact = grid_first_passage(HORIZONS, mu, sigma, d, sigma / 100)
         with tempfile.TemporaryDirectory() as tmp:
-            sim = simulate(binary, mu, sigma, n0, ne, seed, tmp)
+            sim, bands = simulate(binary, mu, sigma, n0, ne, seed, tmp)
+        check(sorted(sim) == list(range(max(HORIZONS) + 1)) and sorted(bands) == list(range(max(HORIZONS) + 1)),
+              f"{label}: risk.csv and projection.csv have years_ahead 0..{max(HORIZONS)}")
         for t in HORIZONS:
             p, se_file = sim[t]
             se = math.sqrt(p * (1 - p) / RUNS)
@@ -107,9 +126,9 @@ def main():
             g_shift = dms_g(t, mu, sigma, d + BETA * sigma)
             allowance = g - g_shift
             tag = f"{label} mu={mu} sigma={sigma} N0={n0:g} Ne={ne:g} t={t}: sim {p:.4f} (se {se:.4f})"
-            # The table's se column is the binomial formula; the CSV holds exact doubles, so only
-            # the rounding of the few operations in the formula separates the two.
-            check(abs(se_file - se) <= 1e-12 * se, f"{tag}, se column {se_file:.4g} = sqrt(p(1-p)/n)")
+            # The table's probability_mcse column is the binomial formula; the CSV holds exact
+            # doubles, so only the rounding of the few operations in the formula separates the two.
+            check(abs(se_file - se) <= 1e-12 * se, f"{tag}, probability_mcse {se_file:.4g} = sqrt(p(1-p)/n)")
             # 1. Same discrete-time model: [GRID].
             check(abs(p - exact[t]) <= 4 * se + GRID_TOL, f"{tag} vs discrete-time exact [GRID] {exact[t]:.4f}")
             # 2. The diffusion formula [DMS], with the discretisation allowance of [BGK].
@@ -118,6 +137,21 @@ def main():
             # 3. The allowance accounts for the gap between [DMS] and the discrete model.
             check(abs(g_shift - exact[t]) <= 0.25 * allowance + GRID_TOL,
                   f"{label} t={t}: shifted G [BGK] {g_shift:.4f} vs [GRID] {exact[t]:.4f}")
+        # Year 0 is the start itself, every quantile N0 (up to the rounding of exp(ln N0)).
+        check(all(math.isclose(float(bands[0][c]), n0, rel_tol=1e-12)
+                  for c in ("median", "lower_50", "upper_50", "lower_95", "upper_95")),
+              f"{label}: the bands at years_ahead 0 are the start {n0:g}")
+        # 4. The bands against the log-normal law of N_t; z_p from scipy (1.959964 for 97.5 %).
+        for t in HORIZONS:
+            for col, q in (("median", 0.5), ("lower_50", 0.25), ("upper_50", 0.75),
+                           ("lower_95", 0.025), ("upper_95", 0.975)):
+                z = norm.ppf(q)
+                want = math.log(n0) + mu * t + sigma * math.sqrt(t) * z
+                se = sigma * math.sqrt(t) * math.sqrt(q * (1 - q) / RUNS) / norm.pdf(z)
+                got = math.log(float(bands[t][col]))
+                check(abs(got - want) <= 4 * se,
+                      f"{label} t={t}: {col} {math.exp(got):.4g} vs closed form N0 exp(mu t + {z:+.6f} sigma sqrt t) "
+                      f"= {math.exp(want):.4g} (log scale {(got - want) / se:+.2f} se)")
         # A population that grows (mu > 0) is not certain to cross: G(inf) = exp(-2 mu d / sigma^2) [DMS].
         if mu > 0:
             check(sim[max(HORIZONS)][0] < math.exp(-2 * mu * d / sigma**2),

@@ -43,6 +43,8 @@ import numpy as np
 from scipy.special import zeta
 from scipy.stats import norm
 
+import output_tables
+
 REPO = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 SURVEY = os.path.join(REPO, "surveys", "three-herds.csv")
 POPULATION = "high-plateau"  # declining: the 50 % threshold is reached within the horizon
@@ -73,18 +75,33 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         subprocess.run([binary, "fit", SURVEY, *SAMPLER, "-o", os.path.join(tmp, "fit"), "--quiet"], check=True,
                        stderr=subprocess.DEVNULL)
-        with open(os.path.join(tmp, "fit", POPULATION, "exponential+poisson-draws.csv"), newline="") as f:
-            draws = [(float(r["r"]), float(r["sigma"])) for r in csv.DictReader(f)]
+        # A survey of several populations: each one's tables in its own folder, also when one is chosen.
+        rows = output_tables.read(os.path.join(tmp, "fit", POPULATION, "draws.csv"))
+        check({(r["population"], r["model"]) for r in rows} == {(POPULATION, "exponential+poisson")},
+              f"the fit's draws.csv holds {POPULATION}'s exponential+poisson draws only")
+        draws = [(float(r["r"]), float(r["sigma"])) for r in rows]
         n_draws = len(draws)
         runs = RUNS_PER_DRAW * n_draws
         subprocess.run([binary, "forecast", SURVEY, *SAMPLER, "--threshold", "50%", "--runs", str(runs), "--years",
                         str(max(HORIZONS)), "-o", os.path.join(tmp, "fc"), "--quiet"], check=True,
                        stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         base = os.path.join(tmp, "fc", POPULATION)
-        with open(os.path.join(base, "forecast_quasi_extinction.csv"), newline="") as f:
-            sim = {int(r["year"]): float(r["probability"]) for r in csv.DictReader(f)}
-        with open(os.path.join(base, "forecast_summary.csv"), newline="") as f:
-            items = {r[0]: r[1] for r in csv.reader(f)}
+        risk = output_tables.read(os.path.join(base, "risk.csv"))
+        # --threshold 50% is the fraction 0.5 of the current abundance; years_ahead counts from
+        # the last survey year.
+        check({(r["threshold"], r["threshold_kind"]) for r in risk} == {("0.5", "fraction_of_current")},
+              f"risk.csv thresholds {sorted({(r['threshold'], r['threshold_kind']) for r in risk})}, "
+              f"want 0.5 fraction_of_current")
+        sim = {int(r["years_ahead"]): float(r["probability"]) for r in risk}
+        # year is the calendar year: the last survey year of the population (read here from the
+        # survey file) plus years_ahead.
+        with open(SURVEY, newline="") as f:
+            surveyed = [int(r["year"]) for r in csv.DictReader(line for line in f if not line.startswith("#"))
+                        if r["population"] == POPULATION and r["count"] not in ("", "NA")]
+        check(sorted(sim) == list(range(max(HORIZONS) + 1)) and
+              all(int(r["year"]) == max(surveyed) + int(r["years_ahead"]) for r in risk),
+              f"risk.csv: years_ahead 0..{max(HORIZONS)}, year = {max(surveyed)} + years_ahead")
+        items = {r["item"]: r["value"] for r in output_tables.read(os.path.join(base, "summary.csv"))}
     check(int(items["Posterior draws"]) == n_draws, f"the forecast projects {items['Posterior draws']} draws, "
                                                     f"the fit wrote {n_draws}")
     check(int(items["Simulated futures"]) == runs, f"{runs} simulated futures")

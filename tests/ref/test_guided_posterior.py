@@ -6,7 +6,7 @@ Both are particle marginal Metropolis-Hastings samplers of the same posterior wh
 likelihood estimator they use (Andrieu, Doucet & Holenstein 2010, JRSS B 72:269, Theorem 4; for the
 auxiliary particle filter's estimator, Pitt, Silva, Giordani & Kohn 2012, J. Econometrics 171:134,
 Theorem 1), so their posterior means must agree up to the Monte Carlo standard errors the fits report
-(column mcse_mean, from the effective sample size). Tolerance: 4 combined standard errors,
+(column mean_mcse of parameters.csv, from the effective sample size). Tolerance: 4 combined standard errors,
 sqrt(mcse_g^2 + mcse_b^2), a chance failure of about 6e-5 per parameter if the errors are right.
 
 The check has power: the same comparison of one proposal's run against a run with the counts raised
@@ -18,6 +18,8 @@ import os
 import subprocess
 import sys
 import tempfile
+
+import output_tables
 
 REPO = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 CASES = [  # survey, population, growth, counting error
@@ -35,11 +37,20 @@ def fit(binary, survey, population, growth, obs, proposal, out):
     subprocess.run(cmd, check=True, stderr=subprocess.DEVNULL)
     if population:  # a survey of several populations gets a folder per population
         out = os.path.join(out, population)
-    with open(os.path.join(out, f"{growth}+{obs}-parameters.csv"), newline="") as f:
-        params = {r["parameter"]: (float(r["mean"]), float(r["mcse_mean"])) for r in csv.DictReader(f)}
-    with open(os.path.join(out, f"{growth}+{obs}-sampler.csv"), newline="") as f:
-        row = next(csv.DictReader(f))
-    return params, row
+    model = f"{growth}+{obs}"
+    rows = output_tables.read(os.path.join(out, "parameters.csv"))
+    if not rows or any(r["model"] != model for r in rows):
+        raise AssertionError(f"{out}/parameters.csv: models {sorted({r['model'] for r in rows})}, want {model}")
+    params = {r["parameter"]: (float(r["mean"]), float(r["mean_mcse"])) for r in rows}
+    # chains.csv has one row per chain, each with its proposal; diagnostics.csv one row for the
+    # model, with the particle count the tuning chose.
+    chains = output_tables.read(os.path.join(out, "chains.csv"))
+    diag = output_tables.read(os.path.join(out, "diagnostics.csv"))
+    if not chains or any(r["model"] != model for r in chains) or [r["model"] for r in diag] != [model]:
+        raise AssertionError(f"{out}: chains.csv / diagnostics.csv are not about {model} alone")
+    proposals = {r["proposal"] for r in chains}
+    return params, {"proposal": proposals.pop() if len(proposals) == 1 else sorted(proposals),
+                    "particles": diag[0]["particles"]}
 
 
 def main():
@@ -57,7 +68,7 @@ def main():
             g, gs = fit(binary, path, population, growth, obs, "guided", os.path.join(tmp, "g"))
             b, bs = fit(binary, path, population, growth, obs, "bootstrap", os.path.join(tmp, "b"))
             check(gs["proposal"] == "guided" and bs["proposal"] == "bootstrap",
-                  f"{survey} {growth}+{obs}: the sampler table records the proposal")
+                  f"{survey} {growth}+{obs}: chains.csv records the proposal")
             check(int(gs["particles"]) <= int(bs["particles"]),
                   f"{survey} {growth}+{obs}: guided tuned to {gs['particles']} particles, bootstrap to {bs['particles']}")
             for name, (mg, sg) in g.items():

@@ -134,6 +134,10 @@ def check_sheet(wb, name, csv_name, legends):
     else:
         first = hrow + 1
     data = rows[1:]
+    # A summary table starts with the hidden column population (blank for lines about the whole
+    # file); its items are in the column item.
+    item = headers.index("item") if "item" in headers else 0
+    formatted = set()
     for i, crow in enumerate(data):
         r = first + i
         for j, text in enumerate(crow):
@@ -148,13 +152,22 @@ def check_sheet(wb, name, csv_name, legends):
                 if name in FORMATS and headers[j] in FORMATS[name]:
                     want = FORMATS[name][headers[j]]
                     check(cell.number_format == want, f"{where}: number format {cell.number_format!r}, expected {want!r}")
-                if name == "Summary" and crow[0] in SUMMARY_FORMATS:
-                    want = SUMMARY_FORMATS[crow[0]]
+                if name == "Summary" and crow[item] in SUMMARY_FORMATS and j == item + 1:
+                    want = SUMMARY_FORMATS[crow[item]]
+                    formatted.add(crow[item])
                     check(cell.number_format == want, f"{where}: number format {cell.number_format!r}, expected {want!r}")
+    if name == "Summary":
+        check(formatted == set(SUMMARY_FORMATS), f"{name}: items {sorted(set(SUMMARY_FORMATS) - formatted)} not found "
+                                                 f"with a number")
     check(ws.max_row == first + len(data) - 1, f"{name}: {ws.max_row} rows, expected {first + len(data) - 1}")
-    # Widths fit the headers (bold text is a little wider) and stay within the caps of workbook.c.
+    # Widths fit the headers (bold text is a little wider) and stay within the caps of workbook.c;
+    # the population column of a summary is hidden.
     for j, h in enumerate(headers):
         letter = openpyxl.utils.get_column_letter(j + 1)
+        if name == "Summary" and h == "population":
+            check(j == 0 and ws.column_dimensions[letter].hidden, f"{name}: column {letter} (population) is not hidden")
+            continue
+        check(not ws.column_dimensions[letter].hidden, f"{name}: column {letter} ({h!r}) is hidden")
         w = ws.column_dimensions[letter].width
         check(w is not None and len(h) + 1 <= w <= 71, f"{name}: column {letter} ({h!r}) width {w}")
 

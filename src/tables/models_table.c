@@ -63,9 +63,10 @@ static const struct {
 
 static const char *const labels[N_COLS] = {
     "Population", "Model", "Growth model", "Counting error", "Likelihood of", "Status", "Log ML",
-    "Log ML MCSE", "Log ML check", "Log ML check MCSE", "Check z", "Bayes factor", "ln BF", "ln BF MCSE",
-    "2 ln B", "Reading", "Prior probability", "Model probability", "Model probability MCSE", "Pareto k",
-    "Pareto k check", "Weight ESS", "Particles", "Particles per draw", "Max R-hat", "Min ESS", "Note",
+    "Log ML MCSE", "Log ML check", "Log ML check MCSE", "Check z", "Bayes factor", "Log Bayes factor",
+    "Log Bayes factor MCSE", "Twice log Bayes factor", "Reading", "Prior probability", "Model probability",
+    "Model probability MCSE", "Pareto k", "Pareto k check", "Weight ESS", "Particles", "Particles per draw",
+    "Max R-hat", "Min ESS", "Note",
 };
 
 static int rank(const tf_comparison *c, size_t i)

@@ -51,7 +51,7 @@ CASES = [
 def growth_models():
     """The growth models of the program's table, from the hint of an unknown name (src/model/model.c),
     so that a model added to the table without a case in CASES fails here by name."""
-    r = subprocess.run([TALLYFIT, "likelihood", os.devnull, "--model", ".", "--set", "r=1"],
+    r = subprocess.run([TALLYFIT, "likelihood", os.devnull, "--model", ".", "--parameter", "r=1"],
                        capture_output=True, text=True)
     for line in r.stderr.splitlines():
         if line.startswith("  hint: known growth models: "):

@@ -81,8 +81,9 @@ def likelihood(path, setting, particles, repeats, seed, proposal):
     out = run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", *setting,
               "--particles", str(particles), "--repeat", str(repeats), "--seed", str(seed), "--proposal", proposal)
     head, row = out.strip().split("\n")
-    assert head == "loglik,se,particles,repeats,loglik_sd,proposal", head
-    ll, se, n, rep, _, prop = row.split(",")
+    assert head == "population,model,log_likelihood,log_likelihood_mcse,particles,repeats,loglik_sd,proposal", head
+    _, model, ll, se, n, rep, _, prop = row.split(",")
+    assert model == "gompertz+lognormal", model
     assert int(n) == particles and int(rep) == repeats and prop == proposal
     return float(ll), float(se)
 
@@ -128,7 +129,7 @@ def main():
     exact = exact_loglik(y, e, r, K, sigma, tau, math.log(300.0), 0.5)
     n = 400
     ls = np.array([float(run("likelihood", path, "--estimates", "--model", "gompertz", "--obs", "lognormal", *setting,
-                             "--particles", "80", "--repeat", "1", "--seed", str(s + 1), "--proposal", "bootstrap").split("\n")[1].split(",")[0])
+                             "--particles", "80", "--repeat", "1", "--seed", str(s + 1), "--proposal", "bootstrap").split("\n")[1].split(",")[2])
                    for s in range(n)])
     bias, half_var = ls.mean() - exact, ls.var(ddof=1) / 2
     se_mean, se_half_var = ls.std(ddof=1) / math.sqrt(n), half_var * math.sqrt(2.0 / (n - 1))

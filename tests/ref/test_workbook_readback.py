@@ -83,9 +83,12 @@ def is_number(v):
 
 
 def find_header(ws, headers):
+    """The row of the sheet that heads the CSV's columns: the workbook shows each column's label,
+    which for the tables built here is its CSV name, and for a first page the name capitalised
+    ("item" is shown as "Item")."""
     for row in ws.iter_rows(min_row=1, max_row=20):
         vals = [c.value for c in row[:len(headers)]]
-        if vals == headers:
+        if vals == headers or vals == [h[:1].upper() + h[1:] for h in headers]:
             return row[0].row
     return None
 

@@ -40,8 +40,20 @@ void tf_path_safe_name(const char *label, char *out, size_t size)
 int tf_path_folder_names(const char *const *labels, size_t n, char **out)
 {
     char base[512], name[560];
+    /* Endings of the files that sit beside the population folders (tables, workbook, records):
+     * a label "summary.csv" must not name a folder where the file summary.csv goes. */
+    static const char *const file_ends[] = {".csv", ".xlsx", ".txt"};
     for (size_t i = 0; i < n; i++) {
         tf_path_safe_name(labels[i], base, sizeof base);
+        size_t len = strlen(base);
+        for (size_t k = 0; k < sizeof file_ends / sizeof file_ends[0]; k++) {
+            size_t e = strlen(file_ends[k]);
+            if (len >= e && !strcasecmp(base + len - e, file_ends[k]) && len + 1 < sizeof base) {
+                base[len] = '_';
+                base[len + 1] = '\0';
+                break;
+            }
+        }
         snprintf(name, sizeof name, "%s", base);
         for (unsigned k = 2;; k++) {
             size_t j = 0;

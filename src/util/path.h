@@ -14,9 +14,10 @@ char *tf_path_dir(const char *path);
 void tf_path_safe_name(const char *label, char *out, size_t size);
 
 /* The folder names of n populations (labels in file order), the one rule of every command and
- * mode: each label made safe (tf_path_safe_name), unique without regard to case (file systems
- * that ignore case would merge "Site-1" and "site-1"): a later population whose name is taken
- * gets "-2", "-3"... in file order, so the same file always gives the same names. out[i] are
+ * mode: each label made safe (tf_path_safe_name), with "_" after a name ending as a file beside
+ * the folders does (".csv", ".xlsx", ".txt"), unique without regard to case (file systems that
+ * ignore case would merge "Site-1" and "site-1"): a later population whose name is taken gets
+ * "-2", "-3"... in file order, so the same file always gives the same names. out[i] are
  * malloc'd (the caller frees each); returns 0 when memory runs out (nothing then to free). */
 int tf_path_folder_names(const char *const *labels, size_t n, char **out);
 

@@ -143,6 +143,21 @@ START_TEST(path_dir_of)
 }
 END_TEST
 
+/* One folder rule for every command (util/path.h): safe names, unique without regard to case in
+ * file order, and never the name of a file that sits beside the folders. */
+START_TEST(path_folder_names)
+{
+    const char *labels[] = {"Site A", "site a", "pond/3", "summary.csv", "north.XLSX", "north"};
+    const char *want[] = {"Site_A", "site_a-2", "pond_3", "summary.csv_", "north.XLSX_", "north"};
+    char *out[6] = {0};
+    ck_assert(tf_path_folder_names(labels, 6, out));
+    for (size_t i = 0; i < 6; i++) {
+        ck_assert_str_eq(out[i], want[i]);
+        free(out[i]);
+    }
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("helpers");
@@ -152,6 +167,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, stats_quantiles_and_median);
     tcase_add_test(tc, utf8_sequences);
     tcase_add_test(tc, path_dir_of);
+    tcase_add_test(tc, path_folder_names);
     suite_add_tcase(s, tc);
     return s;
 }

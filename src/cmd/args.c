@@ -889,6 +889,32 @@ void tf_args_survey_name(const char *path, char *out, size_t size)
         snprintf(out, size, "survey");
 }
 
+void tf_args_population_folder(const tf_survey *sv, const char *label, char *out, size_t size)
+{
+    size_t n = sv ? tf_survey_n_series(sv) : 0, at = n;
+    const char **labels = n ? calloc(n, sizeof *labels) : NULL;
+    char **names = n ? calloc(n, sizeof *names) : NULL;
+    for (size_t i = 0; labels && i < n; i++) {
+        labels[i] = tf_series_label(tf_survey_series(sv, i));
+        if (at == n && !strcmp(labels[i], label))
+            at = i;
+    }
+    /* A label the survey does not hold: the rule applied to that label alone; out of memory:
+     * the label made safe. */
+    char *alone = NULL;
+    if (at < n && labels && names && tf_path_folder_names(labels, n, names))
+        snprintf(out, size, "%s", names[at]);
+    else if (tf_path_folder_names(&label, 1, &alone))
+        snprintf(out, size, "%s", alone);
+    else
+        tf_path_safe_name(label, out, size);
+    free(alone);
+    for (size_t i = 0; names && i < n; i++)
+        free(names[i]);
+    free(names);
+    free(labels);
+}
+
 tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const char *base, const char *label,
                              int several, tf_error *err)
 {

@@ -550,12 +550,14 @@ static int analyze(int argc, char **argv, int rank, int size)
      * so that leaving some out does not move the others' tables. */
     if (tf_survey_n_in_file(sv) > 1) {
         n_folders = tf_analysis_n_populations(a);
-        const char **labels = calloc(n_folders, sizeof *labels);
         folders = calloc(n_folders, sizeof *folders);
-        for (size_t i = 0; labels && i < n_folders; i++)
-            labels[i] = tf_tables_population(tf_analysis_pop_series(tf_analysis_population(a, i)), name);
-        int ok = labels && folders && tf_path_folder_names(labels, n_folders, folders);
-        free(labels);
+        int ok = folders != NULL;
+        for (size_t i = 0; ok && i < n_folders; i++) {
+            char folder[300];
+            tf_args_population_folder(sv, tf_series_label(tf_analysis_pop_series(tf_analysis_population(a, i))), folder,
+                                      sizeof folder);
+            ok = (folders[i] = strdup(folder)) != NULL;
+        }
         if (!ok) {
             tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
             goto out;

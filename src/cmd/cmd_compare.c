@@ -334,8 +334,9 @@ int tf_cmd_compare(int argc, char **argv)
     /* Every output folder is checked before the first fit. */
     for (size_t i = 0; i < n_jobs; i++) {
         const tf_series *s = only ? only : tf_survey_series(sv, i);
-        char dir[4096];
-        if (tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), several, &err) != TF_OK) {
+        char dir[4096], folder[300];
+        tf_args_population_folder(sv, tf_series_label(s), folder, sizeof folder);
+        if (tf_args_output_dir(dir, sizeof dir, out_dir, base, folder, several, &err) != TF_OK) {
             status = TF_EXIT_USAGE;
             goto out;
         }
@@ -369,8 +370,9 @@ int tf_cmd_compare(int argc, char **argv)
         wst = TF_ERR_NOMEM;
     for (size_t i = 0; i < n_jobs && wst == TF_OK; i++) {
         const tf_series *s = tf_comparison_series(comps[i]);
-        char dir[4096];
-        if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, tf_series_label(s), several, &err)) != TF_OK)
+        char dir[4096], folder[300];
+        tf_args_population_folder(sv, tf_series_label(s), folder, sizeof folder);
+        if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, folder, several, &err)) != TF_OK)
             break;
         snprintf(written[i], sizeof written[i], "%s", dir);
         tf_table *tables[N_TABLES] = {0};

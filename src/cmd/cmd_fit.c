@@ -369,7 +369,9 @@ int tf_cmd_fit(int argc, char **argv)
             status = tf_args_exit_code(sst);
             goto out;
         }
-        if (tf_args_output_dir(j->dir, sizeof j->dir, out_dir, base, label, tf_survey_n_in_file(sv) > 1, &err) !=
+        char folder[300];
+        tf_args_population_folder(sv, label, folder, sizeof folder);
+        if (tf_args_output_dir(j->dir, sizeof j->dir, out_dir, base, folder, tf_survey_n_in_file(sv) > 1, &err) !=
             TF_OK) {
             status = TF_EXIT_USAGE;
             goto out;

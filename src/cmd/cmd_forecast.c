@@ -177,7 +177,9 @@ static tf_status job_dir(const options *o, const tf_survey *sv, const char *labe
     char base[256] = "forecast";
     if (sv)
         tf_args_survey_name(o->survey_path, base, sizeof base);
-    if (tf_args_output_dir(dir, size, o->out_dir, base, label, sv && tf_survey_n_in_file(sv) > 1, NULL) != TF_OK)
+    char folder[300];
+    tf_args_population_folder(sv, label, folder, sizeof folder);
+    if (tf_args_output_dir(dir, size, o->out_dir, base, folder, sv && tf_survey_n_in_file(sv) > 1, NULL) != TF_OK)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o DIR",
                             "the output folder name is longer than %zu bytes", size - 1);
     return TF_OK;

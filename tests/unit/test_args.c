@@ -335,6 +335,20 @@ START_TEST(operand_draws_and_folders)
     ck_assert_int_eq(tf_args_output_dir(dir, sizeof dir, "a-folder-name-of-thirty-two-byte", "s", "x", 0, &err),
                      TF_ERR_USAGE);
     ck_assert_ptr_nonnull(strstr(first_what(&err), "too long"));
+
+    /* A population's folder is the name the one folder rule gives it among the survey's
+     * populations (util/path.h), in every command. */
+    tf_survey *sv = NULL;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_args_read_survey(TF_TEST_DATA("good/multi-pop.csv"), &sv, &err), TF_OK);
+    char folder[64];
+    tf_args_population_folder(sv, "east", folder, sizeof folder);
+    ck_assert_str_eq(folder, "east");
+    tf_args_population_folder(sv, "no such/one", folder, sizeof folder);
+    ck_assert_str_eq(folder, "no_such_one");
+    tf_args_population_folder(NULL, "summary.csv", folder, sizeof folder);
+    ck_assert_str_eq(folder, "summary.csv_");
+    tf_survey_free(sv);
 }
 END_TEST
 

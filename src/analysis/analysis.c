@@ -8,6 +8,7 @@
 #include <time.h>
 
 #include "analysis/average.h"
+#include "util/stats.h"
 
 const size_t tf_analysis_risk_years[TF_ANALYSIS_N_RISK_YEARS] = {10, 20, 50};
 
@@ -40,7 +41,7 @@ struct tf_analysis_pop {
     double growth_prob[TF_ANALYSIS_MAX_MODELS];
     size_t n_growth, best_growth;
     tf_analysis_year *years;
-    tf_analysis_trend trend;
+    tf_analysis_trend trend, trend_recent;
     tf_projection *proj;
     double seconds;
 };
@@ -131,9 +132,35 @@ static void report(progress_relay *r, tf_analysis_stage stage, double seconds)
 /* Quantile levels of the year and trend summaries, in the order q025, q25, median, q75, q975. */
 static const double levels[] = {0.025, 0.25, 0.5, 0.75, 0.975};
 
-/* Fills p->years and p->trend from the paths of the fitted models, each draw of model m weighted
- * by prob_m / n_draws_m. */
-static tf_status average(tf_analysis_pop *p, tf_error *err)
+/* The model-averaged trend over years first..first + n - 1 into out: each draw's least-squares
+ * slope (tf_stats_slope) weighted by prob_m / n_draws_m; pts has room for every draw. */
+static void average_trend(const tf_analysis_pop *p, tf_average_point *pts, size_t first, size_t n,
+                          tf_analysis_trend *out)
+{
+    size_t ny = tf_series_n_years(p->s), k = 0;
+    for (size_t i = 0; i < p->n_models; i++) {
+        const tf_analysis_model *m = &p->models[i];
+        if (!(m->probability > 0))
+            continue;
+        size_t nd = tf_fit_n_draws(m->fit);
+        const double *paths = tf_fit_paths(m->fit);
+        double w = m->probability / (double)nd;
+        for (size_t d = 0; d < nd; d++)
+            pts[k++] = (tf_average_point){expm1(tf_stats_slope(paths + d * ny + first, n, 1)), w};
+    }
+    out->first_year = tf_series_first_year(p->s) + (int)first;
+    out->last_year = out->first_year + (int)n - 1;
+    tf_average_moments(pts, k, &out->mean, &out->p_decline);
+    double q[N_OF(levels)];
+    tf_average_quantiles(pts, k, levels, N_OF(levels), q);
+    out->q025 = q[0];
+    out->median = q[2];
+    out->q975 = q[4];
+}
+
+/* Fills p->years and the trends from the paths of the fitted models, each draw of model m
+ * weighted by prob_m / n_draws_m. */
+static tf_status average(tf_analysis_pop *p, size_t recent_years, tf_error *err)
 {
     size_t ny = tf_series_n_years(p->s), total = 0;
     for (size_t i = 0; i < p->n_models; i++)
@@ -171,25 +198,11 @@ static tf_status average(tf_analysis_pop *p, tf_error *err)
         ys->q75 = exp(q[3]);
         ys->q975 = exp(q[4]);
     }
-    size_t k = 0;
-    for (size_t i = 0; i < p->n_models; i++) {
-        const tf_analysis_model *m = &p->models[i];
-        if (!(m->probability > 0))
-            continue;
-        size_t nd = tf_fit_n_draws(m->fit);
-        const double *paths = tf_fit_paths(m->fit);
-        double w = m->probability / (double)nd;
-        for (size_t d = 0; d < nd; d++) {
-            const double *x = paths + d * ny;
-            pts[k++] = (tf_average_point){expm1((x[ny - 1] - x[0]) / (double)(ny - 1)), w};
-        }
-    }
-    tf_average_moments(pts, k, &p->trend.mean, &p->trend.p_decline);
-    double q[N_OF(levels)];
-    tf_average_quantiles(pts, k, levels, N_OF(levels), q);
-    p->trend.q025 = q[0];
-    p->trend.median = q[2];
-    p->trend.q975 = q[4];
+    size_t recent = recent_years ? recent_years : TF_FIT_RECENT_YEARS;
+    if (recent > ny)
+        recent = ny;
+    average_trend(p, pts, 0, ny, &p->trend);
+    average_trend(p, pts, ny - recent, recent, &p->trend_recent);
     free(pts);
     return TF_OK;
 }
@@ -351,7 +364,7 @@ static tf_status run_population(tf_analysis_pop *p, const tf_analysis_options *o
     for (size_t g = 1; g < p->n_growth; g++)
         if (p->growth_prob[g] > p->growth_prob[p->best_growth])
             p->best_growth = g;
-    if ((st = average(p, err)) != TF_OK)
+    if ((st = average(p, o->fit.recent_years, err)) != TF_OK)
         return st;
     report(relay, TF_ANALYSIS_PROJECTING, seconds_since(&t0));
     if ((st = project(p, o, stop, err)) != TF_OK)
@@ -426,5 +439,14 @@ double tf_analysis_pop_growth_probability(const tf_analysis_pop *p, size_t i) { 
 size_t tf_analysis_pop_best_growth(const tf_analysis_pop *p) { return p->best_growth; }
 const tf_analysis_year *tf_analysis_pop_year(const tf_analysis_pop *p, size_t i) { return &p->years[i]; }
 const tf_analysis_trend *tf_analysis_pop_trend(const tf_analysis_pop *p) { return &p->trend; }
+
+int tf_analysis_growth_levels_off(const tf_growth_type *g)
+{
+    for (size_t k = 0; k < g->n_params; k++)
+        if (!strcmp(g->param_names[k], "K"))
+            return 1;
+    return 0;
+}
+const tf_analysis_trend *tf_analysis_pop_trend_recent(const tf_analysis_pop *p) { return &p->trend_recent; }
 const tf_projection *tf_analysis_pop_projection(const tf_analysis_pop *p) { return p->proj; }
 double tf_analysis_pop_seconds(const tf_analysis_pop *p) { return p->seconds; }

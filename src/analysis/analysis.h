@@ -109,9 +109,11 @@ typedef struct {
     double median, q25, q75, q025, q975;
 } tf_analysis_year;
 
-/* Model-averaged average annual change over the survey period, as a fraction per year
- * (-0.02 = 2 % decline a year): per draw exp((x_last - x_first) / (n_years - 1)) - 1. */
+/* Model-averaged trend over first_year..last_year, as a fraction per year (-0.02 = 2 % decline a
+ * year): per draw exp(b) - 1 with b the least-squares slope of the latent log-abundance on the
+ * year over every year of the period (as tf_fit_trend_summary). */
 typedef struct {
+    int first_year, last_year;
     double mean, median, q025, q975;
     double p_decline;             /* posterior probability of a negative change */
 } tf_analysis_trend;
@@ -155,6 +157,11 @@ size_t tf_analysis_pop_best_growth(const tf_analysis_pop *p);
 /* Model-averaged abundance per year (n_years of the series) and trend. */
 const tf_analysis_year *tf_analysis_pop_year(const tf_analysis_pop *p, size_t i);
 const tf_analysis_trend *tf_analysis_pop_trend(const tf_analysis_pop *p);
+/* Whether growth model g is density dependent (it has a carrying capacity K), so that its
+ * projections level off near K whatever the past trend. */
+int tf_analysis_growth_levels_off(const tf_growth_type *g);
+/* The same over the last years (the fits' recent_years, tf_fit_set_recent_years). */
+const tf_analysis_trend *tf_analysis_pop_trend_recent(const tf_analysis_pop *p);
 /* The model-averaged projection from the last survey year. */
 const tf_projection *tf_analysis_pop_projection(const tf_analysis_pop *p);
 /* Seconds the population took. */

@@ -33,14 +33,15 @@ char *tf_wording_chance(double p, char *buf, size_t size)
     return buf;
 }
 
-void tf_wording_trend(const tf_analysis_trend *t, int first_year, int last_year, char *buf, size_t size)
+void tf_wording_trend(const tf_analysis_trend *t, char *buf, size_t size)
 {
     char m[32], lo[32], hi[32];
+    int first_year = t->first_year, last_year = t->last_year;
     tf_wording_percent(100 * t->median, m, sizeof m);
     tf_wording_percent(100 * t->q025, lo, sizeof lo);
     tf_wording_percent(100 * t->q975, hi, sizeof hi);
     if (!isfinite(t->median))
-        snprintf(buf, size, "The average annual change over %d-%d could not be estimated.", first_year, last_year);
+        snprintf(buf, size, "The trend over %d-%d could not be estimated.", first_year, last_year);
     else if (t->q975 < 0)
         snprintf(buf, size, "The counts point to a decline of about %s %% a year (95 %% interval %s %% to %s %%) over %d-%d.",
                  tf_wording_percent(-100 * t->median, m, sizeof m), lo, hi, first_year, last_year);
@@ -53,6 +54,30 @@ void tf_wording_trend(const tf_analysis_trend *t, int first_year, int last_year,
                  "The counts show no clear trend over %d-%d: about %s %% a year, with a 95 %% interval from %s %% to %s %% "
                  "that includes no change.",
                  first_year, last_year, m, lo, hi);
+}
+
+void tf_wording_recent(const tf_analysis_trend *whole, const tf_analysis_trend *recent, char *buf, size_t size)
+{
+    if (recent->first_year == whole->first_year || !isfinite(recent->median)) {
+        buf[0] = '\0';
+        return;
+    }
+    char m[32], lo[32], hi[32];
+    int n = recent->last_year - recent->first_year + 1;
+    tf_wording_percent(100 * recent->q025, lo, sizeof lo);
+    tf_wording_percent(100 * recent->q975, hi, sizeof hi);
+    if (recent->q975 < 0)
+        snprintf(buf, size, "Over the last %d years (%d-%d) it is still declining, by about %s %% a year (95 %% "
+                 "interval %s %% to %s %%).", n, recent->first_year, recent->last_year,
+                 tf_wording_percent(-100 * recent->median, m, sizeof m), lo, hi);
+    else if (recent->q025 > 0)
+        snprintf(buf, size, "Over the last %d years (%d-%d) it is increasing, by about %s %% a year (95 %% interval "
+                 "%s %% to %s %%).", n, recent->first_year, recent->last_year,
+                 tf_wording_percent(100 * recent->median, m, sizeof m), lo, hi);
+    else
+        snprintf(buf, size, "Over the last %d years (%d-%d) there is no clear trend: about %s %% a year (95 %% "
+                 "interval %s %% to %s %%).", n, recent->first_year, recent->last_year,
+                 tf_wording_percent(100 * recent->median, m, sizeof m), lo, hi);
 }
 
 void tf_wording_threshold(const tf_threshold *t, char *buf, size_t size)

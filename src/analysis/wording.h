@@ -16,9 +16,13 @@ char *tf_wording_percent(double v, char *buf, size_t size);
  * the nearest whole percent. buf of size >= 32. Returns buf. */
 char *tf_wording_chance(double p, char *buf, size_t size);
 
-/* The sentence on the average annual change over first_year..last_year ("The counts point to a
- * decline of about 2 % a year (95 % interval -4 % to -0.5 %) over 1996-2025."). */
-void tf_wording_trend(const tf_analysis_trend *t, int first_year, int last_year, char *buf, size_t size);
+/* The sentence on the trend over its period ("The counts point to a decline of about 2 % a year
+ * (95 % interval -4 % to -0.5 %) over 1996-2025."). */
+void tf_wording_trend(const tf_analysis_trend *t, char *buf, size_t size);
+
+/* The sentence on the recent trend ("Over the last 10 years, 2016-2025, no clear trend: about
+ * -0.5 % a year, 95 % interval -2 % to 1 %."); "" when its period is the whole survey. */
+void tf_wording_recent(const tf_analysis_trend *whole, const tf_analysis_trend *recent, char *buf, size_t size);
 
 /* The threshold for reading: "100 animals" or "20 % of the current abundance". */
 void tf_wording_threshold(const tf_threshold *t, char *buf, size_t size);

@@ -66,6 +66,7 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     line(f, "min-ess", "%.17g", a->fit.min_ess);
     line(f, "kept-draws", "%zu", a->fit.max_kept);
     line(f, "thin", "%zu", a->fit.thin);
+    line(f, "recent-years", "%zu", a->fit.recent_years ? a->fit.recent_years : (size_t)TF_FIT_RECENT_YEARS);
     line(f, "warmup", "%zu", a->fit.n_warmup);
     line(f, "particles", "%zu", a->fit.n_particles);
     line(f, "correlated", "%s", a->fit.correlated ? "on" : "off");

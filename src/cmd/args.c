@@ -607,6 +607,10 @@ const char *tf_args_sampler_option(int code, const char *text, tf_args_sampler *
             name = "--threads";
             tf_args_parse_size(name, text, 1, TF_ARGS_MAX_THREADS, &s->threads, err);
             break;
+        case TF_ARGS_OPT_RECENT:
+            name = "--recent-years";
+            tf_args_parse_size(name, text, 2, 200, &s->recent_years, err);
+            break;
         case TF_ARGS_OPT_PRIOR_FILE:
             name = "--prior-file";
             s->prior_file = text;
@@ -660,6 +664,8 @@ tf_status tf_args_sampler_apply(const tf_args_sampler *s, tf_pmmh_options *fit, 
         *(seed ? seed : &fit->seed) = s->seed;
     if (s->threads)
         *(n_threads ? n_threads : &fit->n_threads) = s->threads;
+    if (s->recent_years)
+        fit->recent_years = s->recent_years;
     if (check_prior_names(&s->prior, err) != TF_OK)
         st = TF_ERR_USAGE;
     if (!ml) {
@@ -797,6 +803,9 @@ void tf_args_sampler_help(FILE *out, const tf_pmmh_options *d, const tf_evidence
     help_item(out, width, "--threads T",
               "threads (default: the number of processors); the results do not\n"
               "depend on T");
+    snprintf(t, sizeof t, "years of the recent trend, the last Y years of the survey (default %d;\n"
+             "judge recent change over about three generations, at least 10 years)", TF_FIT_RECENT_YEARS);
+    help_item(out, width, "--recent-years Y", t);
     help_item(out, width, "--prior-file FILE",
               "a model file overriding some or all default priors: of the model\n"
               "fitted, or of the candidates of the growth model it names (of\n"

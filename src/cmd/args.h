@@ -136,7 +136,7 @@ enum { TF_ARGS_OPT_ITER = 1000, TF_ARGS_OPT_MIN_ITER, TF_ARGS_OPT_MAX_ITER, TF_A
        TF_ARGS_OPT_THIN, TF_ARGS_OPT_KEPT, TF_ARGS_OPT_DELAYED, TF_ARGS_OPT_CHAINS, TF_ARGS_OPT_WARMUP,
        TF_ARGS_OPT_PARTICLES, TF_ARGS_OPT_PROPOSAL, TF_ARGS_OPT_CORRELATED, TF_ARGS_OPT_STANDARD,
        TF_ARGS_OPT_SEED, TF_ARGS_OPT_THREADS, TF_ARGS_OPT_PRIOR_FILE, TF_ARGS_OPT_PRIOR, TF_ARGS_OPT_ML_SE,
-       TF_ARGS_OPT_DRAWS, TF_ARGS_OPT_WEIGHTS };
+       TF_ARGS_OPT_DRAWS, TF_ARGS_OPT_WEIGHTS, TF_ARGS_OPT_RECENT };
 #define TF_ARGS_RUN_LONGOPTS                                                                      \
     {"iterations", required_argument, NULL, TF_ARGS_OPT_ITER},                                    \
     {"min-iterations", required_argument, NULL, TF_ARGS_OPT_MIN_ITER},                            \
@@ -184,6 +184,7 @@ tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error
     {"standard", no_argument, NULL, TF_ARGS_OPT_STANDARD},                                        \
     {"seed", required_argument, NULL, TF_ARGS_OPT_SEED},                                          \
     {"threads", required_argument, NULL, TF_ARGS_OPT_THREADS},                                    \
+    {"recent-years", required_argument, NULL, TF_ARGS_OPT_RECENT},                                \
     {"prior-file", required_argument, NULL, TF_ARGS_OPT_PRIOR_FILE},                              \
     {"prior", required_argument, NULL, TF_ARGS_OPT_PRIOR}
 #define TF_ARGS_ML_LONGOPTS                                                                       \
@@ -203,7 +204,7 @@ tf_status tf_args_run_apply(const tf_args_run *r, tf_pmmh_options *opt, tf_error
  * tf_args_sampler_init. */
 typedef struct {
     tf_args_run run;
-    size_t chains, warmup, particles, threads, draws;
+    size_t chains, warmup, particles, threads, draws, recent_years;
     int proposal_given, seed_given;
     tf_proposal proposal;
     int correlated;          /* --correlated (1), --standard (0), -1 = neither */

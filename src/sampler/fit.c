@@ -9,6 +9,7 @@
 #include <gsl/gsl_statistics_double.h>
 
 #include "sampler/diagnostics.h"
+#include "util/stats.h"
 
 struct tf_fit {
     const tf_model *model;
@@ -23,7 +24,8 @@ struct tf_fit {
     tf_fit_settings settings;
     tf_fit_param_summary *params;
     tf_fit_year_summary *years;
-    tf_fit_trend_summary trend;
+    tf_fit_trend_summary trend, recent;
+    size_t recent_years;   /* 0: TF_FIT_RECENT_YEARS */
     int summarised;
 };
 
@@ -197,6 +199,38 @@ static void diagnose(const tf_fit *f, tf_diag_workspace *w, const double *base, 
         *mcse_mean = d.mcse_mean;
 }
 
+/* The trend over years first..first + n - 1 of the series into out (see tf_fit_trend_summary);
+ * x holds n_draws doubles of scratch. */
+static void trend_over(const tf_fit *f, tf_diag_workspace *w, double *x, size_t first, size_t n,
+                       tf_fit_trend_summary *out)
+{
+    size_t n_draws = f->n_chains * f->n_iter, n_decline = 0;
+    out->first_year = tf_series_first_year(f->series) + (int)first;
+    out->last_year = out->first_year + (int)n - 1;
+    for (size_t k = 0; k < n_draws; k++) {
+        double b = tf_stats_slope(f->paths + at(f, k) * f->n_years + first, n, 1);
+        x[k] = expm1(b);
+        n_decline += b < 0;
+    }
+    if (n > 1 && all_finite(x, n_draws)) {
+        diagnose(f, w, x, f->n_iter, 1, &out->rhat, &out->ess_bulk, NULL, NULL);
+        double prob[3] = {0.5, 0.025, 0.975}, q[3];
+        moments_and_quantiles(x, n_draws, &out->mean, NULL, prob, q, 3);
+        out->median = q[0];
+        out->q025 = q[1];
+        out->q975 = q[2];
+        out->p_decline = (double)n_decline / (double)n_draws;
+    } else {
+        out->mean = out->median = out->q025 = out->q975 = out->p_decline = out->rhat = out->ess_bulk = NAN;
+    }
+}
+
+void tf_fit_set_recent_years(tf_fit *f, size_t n)
+{
+    f->recent_years = n;
+    f->summarised = 0;
+}
+
 tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
 {
     size_t n_draws = f->n_chains * f->n_iter;
@@ -253,26 +287,11 @@ tf_status tf_fit_summarise(tf_fit *f, tf_error *err)
         ys->q975 = q[4];
     }
 
-    tf_fit_trend_summary *tr = &f->trend;
-    size_t n_decline = 0;
-    for (size_t k = 0; k < n_draws; k++) {
-        const double *path = f->paths + at(f, k) * f->n_years;
-        double slope = f->n_years > 1 ? (path[f->n_years - 1] - path[0]) / (double)(f->n_years - 1)
-                                      : NAN;
-        x[k] = expm1(slope);
-        n_decline += slope < 0;
-    }
-    if (f->n_years > 1 && all_finite(x, n_draws)) {
-        diagnose(f, w, x, f->n_iter, 1, &tr->rhat, &tr->ess_bulk, NULL, NULL);
-        double prob[3] = {0.5, 0.025, 0.975}, q[3];
-        moments_and_quantiles(x, n_draws, &tr->mean, NULL, prob, q, 3);
-        tr->median = q[0];
-        tr->q025 = q[1];
-        tr->q975 = q[2];
-        tr->p_decline = (double)n_decline / (double)n_draws;
-    } else {
-        tr->mean = tr->median = tr->q025 = tr->q975 = tr->p_decline = tr->rhat = tr->ess_bulk = NAN;
-    }
+    size_t recent = f->recent_years ? f->recent_years : TF_FIT_RECENT_YEARS;
+    if (recent > f->n_years)
+        recent = f->n_years;
+    trend_over(f, w, x, 0, f->n_years, &f->trend);
+    trend_over(f, w, x, f->n_years - recent, recent, &f->recent);
 
     free(x);
     tf_diag_workspace_free(w);
@@ -326,6 +345,7 @@ const tf_fit_year_summary *tf_fit_year(const tf_fit *f, size_t year_index)
     return &f->years[year_index];
 }
 const tf_fit_trend_summary *tf_fit_trend(const tf_fit *f) { return &f->trend; }
+const tf_fit_trend_summary *tf_fit_trend_recent(const tf_fit *f) { return &f->recent; }
 
 static int passes(double rhat, double ess_bulk, double ess_tail, double rhat_max, double ess_min)
 {

@@ -46,13 +46,22 @@ typedef struct {
     double rhat, ess_bulk, ess_tail;
 } tf_fit_year_summary;
 
-/* Average annual change over the series, per draw exp((x_last - x_first)/(n_years - 1)) - 1 from
- * the latent path: a fraction per year (-0.02 = 2 % decline a year). */
+/* The trend over years first_year..last_year: per draw exp(b) - 1, with b the least-squares slope
+ * of the latent log-abundance on the year over every year of the period (tf_stats_slope), so
+ * that every year counts and not only the two ends: a fraction per year (-0.02 = 2 % decline a
+ * year). */
 typedef struct {
+    int first_year, last_year;
     double mean, median, q025, q975;
-    double p_decline;         /* share of draws with a negative change */
+    double p_decline;         /* share of draws with a negative slope */
     double rhat, ess_bulk;
 } tf_fit_trend_summary;
+
+/* Years of the recent trend by default: about three generations of a long-lived waterbird, and
+ * ten years is the window of the IUCN Red List criterion A (IUCN Standards and Petitions
+ * Committee 2022, Guidelines for Using the IUCN Red List Categories and Criteria, version 15.1,
+ * section 4.4: "10 years or three generations, whichever is the longer"; recalled from memory). */
+#define TF_FIT_RECENT_YEARS 10
 
 /* ---- Building (the sampler does this) ---- */
 
@@ -119,6 +128,10 @@ void tf_fit_set_posterior(tf_fit *f, const tf_posterior *post);
  * Errors: TF_ERR_NOMEM (the result keeps its draws; summaries stay unset). */
 tf_status tf_fit_summarise(tf_fit *f, tf_error *err);
 
+/* The length of the recent trend's period, the last n years of the series (0: TF_FIT_RECENT_YEARS);
+ * the whole series when it is shorter. Summaries are stale until the next tf_fit_summarise. */
+void tf_fit_set_recent_years(tf_fit *f, size_t n);
+
 /* ---- Reading ---- */
 
 const tf_model *tf_fit_model(const tf_fit *f);
@@ -156,6 +169,8 @@ double tf_fit_invalid_share(const tf_fit *f, size_t chain);
 const tf_fit_param_summary *tf_fit_param(const tf_fit *f, size_t param);
 const tf_fit_year_summary *tf_fit_year(const tf_fit *f, size_t year_index);
 const tf_fit_trend_summary *tf_fit_trend(const tf_fit *f);
+/* The trend over the last years of the series (tf_fit_set_recent_years). */
+const tf_fit_trend_summary *tf_fit_trend_recent(const tf_fit *f);
 /* 1 when every parameter, and the log-abundance of the first and the last year, has R-hat <=
  * rhat_max and bulk and tail ESS >= ess_min; 0 otherwise or before tf_fit_summarise. */
 int tf_fit_meets(const tf_fit *f, double rhat_max, double ess_min);

@@ -762,6 +762,7 @@ tf_status tf_pmmh_run(const tf_posterior *post, const tf_series *s, const tf_pmm
     }
     /* The summaries once, of the draws the run ends with. */
     tf_fit_compact(r.fit);
+    tf_fit_set_recent_years(r.fit, opt->recent_years);
     if ((st = tf_fit_summarise(r.fit, err)) != TF_OK)
         goto fail;
 

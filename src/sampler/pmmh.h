@@ -40,6 +40,8 @@ typedef struct {
      * pmmh.c says why). */
     int delayed;
     tf_proposal proposal;    /* how the particle filter moves (filter.h); guided by default */
+    /* Years of the recent trend the fit summarises (tf_fit_set_recent_years; 0 = its default). */
+    size_t recent_years;
 } tf_pmmh_options;
 
 /* Blocks: an eighth of max_kept kept draws each, so that the run looks at its diagnostics eight

@@ -279,10 +279,15 @@ static tf_status fit_sheets(const tf_analysis *a, size_t pi, const tf_analysis_t
     size_t n = tf_analysis_pop_n_models(p);
     tf_analysis_pop_by_probability(p, order);
     table_models(p, order, models);
-    const tf_analysis_trend *tr = tf_analysis_pop_trend(p);
-    tf_tables_change avg = {tr->mean, tr->median, tr->q025, tr->q975, tr->p_decline, NAN, NAN};
+    const tf_analysis_trend *whole = tf_analysis_pop_trend(p), *recent = tf_analysis_pop_trend_recent(p);
+    tf_fit_trend_summary avg[2];
+    for (size_t k = 0; k < 2; k++) {
+        const tf_analysis_trend *tr = k ? recent : whole;
+        avg[k] = (tf_fit_trend_summary){tr->first_year, tr->last_year, tr->mean,      tr->median, tr->q025,
+                                        tr->q975,       tr->p_decline, NAN, NAN};
+    }
     tf_table *t = NULL;
-    tf_status st = tf_tables_change_of(c, models, n, &avg, &t, err);
+    tf_status st = tf_tables_change_of(c, models, n, avg, &t, err);
     if (st == TF_OK)
         st = add_table(a, pi, prov, r, t, "change", "average annual change per model and averaged", 0, NULL, err);
     if (st == TF_OK && (st = tf_tables_parameters(c, models, n, &t, err)) == TF_OK)
@@ -307,10 +312,9 @@ static tf_status fit_sheets(const tf_analysis *a, size_t pi, const tf_analysis_t
 void tf_analysis_tables_sentences(const tf_analysis *a, size_t population, char *buf, size_t size)
 {
     const tf_analysis_pop *p = tf_analysis_population(a, population);
-    const tf_series *s = tf_analysis_pop_series(p);
-    int y0 = tf_series_first_year(s), y1 = y0 + (int)tf_series_n_years(s) - 1;
-    char trend[512] = "", risk[512] = "";
-    tf_wording_trend(tf_analysis_pop_trend(p), y0, y1, trend, sizeof trend);
+    char trend[512] = "", recent[512] = "", risk[512] = "";
+    tf_wording_trend(tf_analysis_pop_trend(p), trend, sizeof trend);
+    tf_wording_recent(tf_analysis_pop_trend(p), tf_analysis_pop_trend_recent(p), recent, sizeof recent);
     const tf_projection *pr = tf_analysis_pop_projection(p);
     if (tf_projection_n_thresholds(pr) > 0) {
         /* The middle window when the horizon reaches it (20 years), else the horizon. */
@@ -319,7 +323,7 @@ void tf_analysis_tables_sentences(const tf_analysis *a, size_t population, char 
         tf_threshold th = tf_projection_threshold(pr, 0);
         tf_wording_risk(&th, years, tf_projection_risk(pr, 0, years), risk, sizeof risk);
     }
-    snprintf(buf, size, "%s%s%s", trend, risk[0] ? " " : "", risk);
+    snprintf(buf, size, "%s%s%s%s%s", trend, recent[0] ? " " : "", recent, risk[0] ? " " : "", risk);
 }
 
 /* Where the population's raw draws are: the first page says it, since by default they are not in
@@ -376,16 +380,36 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     TRY(tf_table_add_item_number(t, "  lower 95 %", last->q025, TF_COL_NUMBER, "2.5 % posterior quantile", err));
     TRY(tf_table_add_item_number(t, "  upper 95 %", last->q975, TF_COL_NUMBER, "97.5 % posterior quantile", err));
 
-    const tf_analysis_trend *tr = tf_analysis_pop_trend(p);
-    TRY(tf_table_add_item_number(t, "Average annual change", tr->median, TF_COL_PERCENT,
-                                 "per year over the survey years, posterior median", err));
-    TRY(tf_table_add_item_number(t, "  lower 95 %", tr->q025, TF_COL_PERCENT, NULL, err));
-    TRY(tf_table_add_item_number(t, "  upper 95 %", tr->q975, TF_COL_PERCENT, NULL, err));
-    TRY(tf_table_add_item_number(t, "Chance the population declined", tr->p_decline, TF_COL_PROBABILITY,
-                                 "posterior probability that the annual change was negative", err));
+    /* The trend over every survey year, then over the last years: "declining" is read as "still
+     * declining", and a decline in the first years alone says little about now. */
+    const tf_analysis_trend *trends[2] = {tf_analysis_pop_trend(p), tf_analysis_pop_trend_recent(p)};
+    for (size_t k = 0; k < 2; k++) {
+        const tf_analysis_trend *tr = trends[k];
+        if (k == 1 && tr->first_year == trends[0]->first_year)
+            break;   /* the survey is no longer than the recent period */
+        if (k == 0)
+            snprintf(text, sizeof text, "Trend over %d-%d", tr->first_year, tr->last_year);
+        else
+            snprintf(text, sizeof text, "Recent trend, %d-%d", tr->first_year, tr->last_year);
+        snprintf(note, sizeof note, "yearly change, posterior median; from the slope of the log-abundance over %s",
+                 k ? "the last years, each year counting" : "every survey year, not only the first and last");
+        TRY(tf_table_add_item_number(t, text, tr->median, TF_COL_PERCENT, note, err));
+        TRY(tf_table_add_item_number(t, "  lower 95 %", tr->q025, TF_COL_PERCENT, NULL, err));
+        TRY(tf_table_add_item_number(t, "  upper 95 %", tr->q975, TF_COL_PERCENT, NULL, err));
+        snprintf(text, sizeof text, "Chance of a downward trend over %d-%d", tr->first_year, tr->last_year);
+        TRY(tf_table_add_item_number(t, text, tr->p_decline, TF_COL_PERCENT,
+                                     "posterior probability that the slope is negative", err));
+    }
 
     size_t g = tf_analysis_pop_best_growth(p);
     TRY(tf_table_add_item_text(t, "Best-supported growth model", tf_analysis_pop_growth(p, g)->label, NULL, err));
+    if (tf_analysis_growth_levels_off(tf_analysis_pop_growth(p, g))) {
+        snprintf(text, sizeof text, "The %s model is density dependent: its projection levels off near the "
+                 "abundance it takes as the carrying capacity, so a past decline does not go on in it.",
+                 tf_analysis_pop_growth(p, g)->label);
+        TRY(tf_table_add_item_text(t, "  what it implies", text,
+                                   "look at the exponential model's projection too (the models sheet)", err));
+    }
     TRY(tf_table_add_item_number(t, "  its probability", tf_analysis_pop_growth_probability(p, g), TF_COL_PROBABILITY,
                                  "summed over the counting-error models it was paired with", err));
     const tf_analysis_model *best = tf_analysis_pop_model(p, tf_analysis_pop_best(p));

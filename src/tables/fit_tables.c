@@ -145,58 +145,65 @@ tf_status tf_tables_abundance_fit(const tf_tables_context *c, const tf_tables_mo
 /* ---- change ---- */
 
 tf_status tf_tables_change_of(const tf_tables_context *c, const tf_tables_model *models, size_t n,
-                              const tf_tables_change *average, tf_table **out, tf_error *err)
+                              const tf_fit_trend_summary *average, tf_table **out, tf_error *err)
 {
     tf_status st = TF_OK;
     tf_table *t = start("change", 1, err);
     if (!t)
         return tf_error_status(err);
-    const tf_series *s = c->series;
-    double y0 = tf_series_first_year(s), y1 = y0 + (double)tf_series_n_years(s) - 1;
-    size_t c_prob, c_y0, c_y1, c_mean, c_med, c_lo, c_hi, c_p, c_rhat, c_ess;
-    TRY(tf_columns_add(t, TF_C_MODEL_PROB, "posterior probability of the model (1 for the average; blank: the models were not compared)",
-                       &c_prob, err));
-    TRY(tf_columns_add(t, TF_C_FIRST_YEAR, NULL, &c_y0, err));
-    TRY(tf_columns_add(t, TF_C_LAST_YEAR, NULL, &c_y1, err));
+    size_t c_period, c_prob, c_y0, c_y1, c_mean, c_med, c_lo, c_hi, c_p, c_rhat, c_ess;
+    TRY(tf_columns_add(t, TF_C_PERIOD, NULL, &c_period, err));
+    TRY(tf_columns_add(t, TF_C_MODEL_PROB, "posterior probability of the model (1 for the average; blank: the models "
+                                           "were not compared)", &c_prob, err));
+    TRY(tf_columns_add(t, TF_C_FIRST_YEAR, "first year of the period", &c_y0, err));
+    TRY(tf_columns_add(t, TF_C_LAST_YEAR, "last year of the period", &c_y1, err));
     /* Changes are fractions a year, shown as percentages. */
-    TRY(tf_columns_add_as(t, TF_C_MEAN, "average annual change from first to last year, posterior mean (a fraction "
-                                        "per year: -0.02 = 2 % decline a year)", TF_COL_PERCENT, &c_mean, err));
+    TRY(tf_columns_add_as(t, TF_C_MEAN, "yearly change over the period from the least-squares slope of the "
+                                        "log-abundance on the year, posterior mean (a fraction per year: -0.02 = 2 % "
+                                        "decline a year)", TF_COL_PERCENT, &c_mean, err));
     TRY(tf_columns_add_as(t, TF_C_MEDIAN, "the same, posterior median", TF_COL_PERCENT, &c_med, err));
     TRY(tf_columns_add_as(t, TF_C_LOWER_95, NULL, TF_COL_PERCENT, &c_lo, err));
     TRY(tf_columns_add_as(t, TF_C_UPPER_95, NULL, TF_COL_PERCENT, &c_hi, err));
-    TRY(tf_columns_add(t, TF_C_P_DECLINE, NULL, &c_p, err));
+    TRY(tf_columns_add(t, TF_C_P_DECLINE, "posterior probability that the slope over the period is negative", &c_p,
+                       err));
     TRY(tf_columns_add(t, TF_C_R_HAT, "R-hat of the change (blank for the average)", &c_rhat, err));
     TRY(tf_columns_add(t, TF_C_BULK_ESS, "bulk ESS of the change (blank for the average)", &c_ess, err));
+    static const char *const periods[2] = {"whole", "recent"};
     for (size_t i = 0; i <= n; i++) {
-        const tf_tables_change *ch;
-        tf_tables_change own;
+        const tf_fit_trend_summary *tr[2];
         const char *name;
         double prob;
         if (i < n) {
             if (!models[i].fit)
                 continue;
-            const tf_fit_trend_summary *tr = tf_fit_trend(models[i].fit);
-            own = (tf_tables_change){tr->mean, tr->median, tr->q025, tr->q975, tr->p_decline, tr->rhat, tr->ess_bulk};
-            ch = &own;
+            tr[0] = tf_fit_trend(models[i].fit);
+            tr[1] = tf_fit_trend_recent(models[i].fit);
             name = models[i].name;
             prob = models[i].probability;
         } else {
             if (!average)
                 break;
-            ch = average;
+            tr[0] = &average[0];
+            tr[1] = &average[1];
             name = "average";
             prob = 1.0;
         }
-        size_t row;
-        TRY(begin_row(t, c, name, &row, err));
-        double v[] = {prob, y0, y1, ch->mean, ch->median, ch->q025, ch->q975, ch->p_decline, ch->rhat, ch->ess_bulk};
-        size_t col[] = {c_prob, c_y0, c_y1, c_mean, c_med, c_lo, c_hi, c_p, c_rhat, c_ess};
-        for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
-            tf_table_set_number(t, row, col[k], v[k]);
+        for (size_t k = 0; k < 2; k++) {
+            const tf_fit_trend_summary *ch = tr[k];
+            size_t row;
+            TRY(begin_row(t, c, name, &row, err));
+            TRY(tf_table_set_text(t, row, c_period, periods[k], err));
+            double v[] = {prob,      ch->first_year, ch->last_year, ch->mean,  ch->median,
+                          ch->q025, ch->q975,       ch->p_decline, ch->rhat, ch->ess_bulk};
+            size_t col[] = {c_prob, c_y0, c_y1, c_mean, c_med, c_lo, c_hi, c_p, c_rhat, c_ess};
+            for (size_t j = 0; j < sizeof v / sizeof v[0]; j++)
+                tf_table_set_number(t, row, col[j], v[j]);
+        }
     }
     TRY(tf_table_add_note(t, TF_NOTE_INFO,
-                          "Average annual change over the survey years, exp((x_last - x_first) / (years - 1)) - 1 per "
-                          "draw of the latent log-abundance x; 'average' weights each model by its probability.",
+                          "Trends: per draw exp(b) - 1, with b the least-squares slope of the latent log-abundance on "
+                          "the year over every year of the period, the whole survey or its last years ('recent'); "
+                          "'average' weights each model by its probability.",
                           err));
 fail:
     return finish(t, st, out);

@@ -32,11 +32,6 @@ typedef struct {
     int omit_seconds;             /* leave the seconds blank, so that files compare byte for byte */
 } tf_tables_context;
 
-/* The average annual change (a fraction per year) of one model or of the average. */
-typedef struct {
-    double mean, median, q025, q975, p_decline;
-    double rhat, ess_bulk;        /* NAN when not diagnosed (the model average) */
-} tf_tables_change;
 
 /* The label a population has in every table: its own, or fallback (the survey's name) when the
  * survey has no population column. */
@@ -58,9 +53,11 @@ tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, con
 /* The same from a fit's own years. */
 tf_status tf_tables_abundance_fit(const tf_tables_context *c, const tf_tables_model *m, tf_table **out, tf_error *err);
 
-/* One row per fitted model, then the average when average is not NULL. */
+/* The trends: per fitted model a row for the whole period and one for the recent years
+ * (tf_fit_trend, tf_fit_trend_recent), then the average's two rows when average is not NULL
+ * (average[0] the whole period, average[1] the recent years; R-hat and ESS NaN). */
 tf_status tf_tables_change_of(const tf_tables_context *c, const tf_tables_model *models, size_t n,
-                              const tf_tables_change *average, tf_table **out, tf_error *err);
+                              const tf_fit_trend_summary *average, tf_table **out, tf_error *err);
 tf_status tf_tables_parameters(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
                                tf_error *err);
 /* A column for every parameter of every model the program knows, so that the same table of

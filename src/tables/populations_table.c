@@ -27,7 +27,8 @@ static size_t window(const tf_project_options *p, size_t w) { return w ? p->decl
 
 enum {
     C_POP, C_STATUS, C_FIRST, C_LAST, C_SURVEYED, C_UNIT, C_ABUND, C_ABUND_LO, C_ABUND_HI, C_CHANGE, C_CHANGE_LO,
-    C_CHANGE_HI, C_PDEC, C_GROWTH, C_GROWTH_P, C_MODEL, C_MODEL_P, C_RISK0 /* then risks, declines, checks, reason */
+    C_CHANGE_HI, C_PDEC, C_RECENT_FIRST, C_RECENT, C_RECENT_LO, C_RECENT_HI, C_RECENT_PDEC, C_GROWTH, C_GROWTH_P,
+    C_MODEL, C_MODEL_P, C_RISK0 /* then risks, declines, checks, reason */
 };
 
 int tf_populations_all_converged(const tf_analysis_pop *p)
@@ -69,6 +70,11 @@ tf_table *tf_populations_table_new(const tf_project_options *p, const char *name
     COL(TF_C_CHANGE_LOWER_95, NULL);
     COL(TF_C_CHANGE_UPPER_95, NULL);
     COL(TF_C_P_DECLINE, NULL);
+    COL(TF_C_RECENT_FIRST_YEAR, NULL);
+    COL(TF_C_RECENT_CHANGE, NULL);
+    COL(TF_C_RECENT_CHANGE_LOWER_95, NULL);
+    COL(TF_C_RECENT_CHANGE_UPPER_95, NULL);
+    COL(TF_C_RECENT_P_DECLINE, NULL);
     COL(TF_C_BEST_GROWTH_MODEL, NULL);
     COL(TF_C_BEST_GROWTH_PROB, NULL);
     COL(TF_C_BEST_MODEL, NULL);
@@ -158,8 +164,9 @@ tf_status tf_populations_table_add(tf_table *t, const tf_project_options *p, con
     if (!pop)
         return TF_OK;
     const tf_analysis_year *last = tf_analysis_pop_year(pop, ny - 1);
-    const tf_analysis_trend *tr = tf_analysis_pop_trend(pop);
-    double v[] = {last->median, last->q025, last->q975, tr->median, tr->q025, tr->q975, tr->p_decline};
+    const tf_analysis_trend *tr = tf_analysis_pop_trend(pop), *rt = tf_analysis_pop_trend_recent(pop);
+    double v[] = {last->median, last->q025, last->q975, tr->median,    tr->q025,   tr->q975,
+                  tr->p_decline, rt->first_year, rt->median, rt->q025, rt->q975, rt->p_decline};
     for (size_t k = 0; k < sizeof v / sizeof v[0]; k++)
         tf_table_set_number(t, row, C_ABUND + k, v[k]);
     size_t g = tf_analysis_pop_best_growth(pop);

@@ -1,6 +1,8 @@
 /* Order statistics of doubles; see stats.h. */
 #include "util/stats.h"
 
+#include <math.h>
+
 #include <gsl/gsl_statistics_double.h>
 #include <stdlib.h>
 
@@ -24,4 +26,20 @@ double tf_stats_median(double *x, size_t n)
 {
     tf_stats_sort(x, n);
     return gsl_stats_median_from_sorted_data(x, 1, n);
+}
+
+double tf_stats_slope(const double *y, size_t n, size_t stride)
+{
+    if (n < 2)
+        return NAN;
+    double m = 0.5 * (double)(n - 1), ybar = 0, sxy = 0, sxx = 0;
+    for (size_t i = 0; i < n; i++)
+        ybar += y[i * stride];
+    ybar /= (double)n;
+    for (size_t i = 0; i < n; i++) {
+        double dx = (double)i - m;
+        sxy += dx * (y[i * stride] - ybar);
+        sxx += dx * dx;
+    }
+    return sxy / sxx;
 }

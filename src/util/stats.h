@@ -21,4 +21,9 @@ double tf_stats_quantile_sorted(const double *x, size_t n, double p);
  * middle value, or the mean of the two middle ones). */
 double tf_stats_median(double *x, size_t n);
 
+/* The least-squares slope of y[i * stride] on i, i = 0..n-1, n >= 2: sum (i - m)(y_i - ybar) /
+ * sum (i - m)^2 with m = (n - 1) / 2 (ordinary least squares, e.g. Draper & Smith 1998, Applied
+ * Regression Analysis, eq. 1.2.9). NaN when n < 2. */
+double tf_stats_slope(const double *y, size_t n, size_t stride);
+
 #endif

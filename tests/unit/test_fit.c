@@ -5,6 +5,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <gsl/gsl_fit.h>
+
 #include "model/model.h"
 #include "model/prior.h"
 #include "sampler/fit.h"
@@ -135,6 +137,59 @@ END_TEST
  * log-abundance of the first and last year: four chains of independent normals pass; the same
  * chains with one shifted by two sd fail on R-hat, whether the shift is in a parameter or in the
  * last year's abundance; a higher ESS target than the draws give fails tf_fit_meets. */
+/* The trends are the least-squares slopes of each draw's path on the year, checked against GSL's
+ * own linear regression (gsl_fit_linear, an independent computation); on paths that fall for
+ * five years and then stay level, the slope over every year lies between the endpoint ratio and
+ * zero, and the recent trend (the last 10 years) is level. */
+START_TEST(trends_are_least_squares_slopes)
+{
+    enum { C = 2, I = 6, Y = 20 };
+    tf_model *m = make_model("exponential", "poisson");
+    double y[Y], e[Y];
+    for (size_t t = 0; t < Y; t++)
+        y[t] = 100, e[t] = 1;
+    tf_error err;
+    tf_error_init(&err);
+    tf_series *s = tf_series_new("a", 2001, Y, y, e, NULL, &err);
+    tf_fit *f = tf_fit_alloc(m, s, C, I);
+    double slopes[C * I], recent[C * I], ends[C * I], years[Y];
+    for (size_t t = 0; t < Y; t++)
+        years[t] = 2001.0 + (double)t;
+    for (size_t c = 0; c < C; c++)
+        for (size_t i = 0; i < I; i++) {
+            size_t k = c * I + i;
+            double theta[2] = {0.0, 0.1}, path[Y];
+            for (size_t t = 0; t < Y; t++)
+                path[t] = log(500.0) - 0.1 * (double)(t < 5 ? t : 5) + 0.01 * sin((double)(k + 3 * t));
+            tf_fit_record(f, c, i, theta, -5.0, path);
+            double c0, c1, cov00, cov01, cov11, sumsq;
+            gsl_fit_linear(years, 1, path, 1, Y, &c0, &c1, &cov00, &cov01, &cov11, &sumsq);
+            slopes[k] = expm1(c1);
+            gsl_fit_linear(years + Y - 10, 1, path + Y - 10, 1, 10, &c0, &c1, &cov00, &cov01, &cov11, &sumsq);
+            recent[k] = expm1(c1);
+            ends[k] = expm1((path[Y - 1] - path[0]) / (Y - 1));
+        }
+    tf_fit_settings st = {.n_warmup = 10, .thin = 1, .n_particles = 50, .seed = 9};
+    tf_fit_set_settings(f, &st);
+    tf_fit_set_recent_years(f, 10);
+    ck_assert_int_eq(tf_fit_summarise(f, &err), TF_OK);
+    const tf_fit_trend_summary *whole = tf_fit_trend(f), *last = tf_fit_trend_recent(f);
+    /* To rounding: two ways of summing the same least-squares slope. */
+    ck_assert(fabs(whole->median - quantile7(slopes, C * I, 0.5)) <= 1e-12);
+    ck_assert(fabs(whole->q025 - quantile7(slopes, C * I, 0.025)) <= 1e-12);
+    ck_assert(fabs(last->median - quantile7(recent, C * I, 0.5)) <= 1e-12);
+    ck_assert(whole->first_year == 2001 && whole->last_year == 2020);
+    ck_assert(last->first_year == 2011 && last->last_year == 2020);
+    /* Between the endpoint ratio and zero; the recent years are level (the wiggle is 0.01). */
+    double end_median = quantile7(ends, C * I, 0.5);
+    ck_assert(end_median < whole->median && whole->median < 0);
+    ck_assert(fabs(last->median) < 0.005);
+    tf_fit_free(f);
+    tf_series_free(s);
+    tf_model_free(m);
+}
+END_TEST
+
 START_TEST(convergence_flag_follows_diagnostics)
 {
     tf_model *m = make_model("exponential", "poisson");
@@ -476,6 +531,7 @@ static Suite *make_suite(void)
     Suite *s = suite_create("fit");
     TCase *tc = tcase_create("result");
     tcase_add_test(tc, summaries_of_known_draws);
+    tcase_add_test(tc, trends_are_least_squares_slopes);
     tcase_add_test(tc, convergence_flag_follows_diagnostics);
     tcase_add_test(tc, health_takes_the_worst_with_nan_worst_of_all);
     tcase_add_test(tc, partly_filled_fit_summarises_and_compacts);

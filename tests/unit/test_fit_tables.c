@@ -86,18 +86,25 @@ START_TEST(headers_follow_the_vocabulary)
     ck_assert(tf_table_number(t, 4, 10) == tf_fit_year(x.fit, 4)->q025);
     tf_table_free(t);
 
-    static const char *const change[] = {"population", "model",  "model_prob", "first_year", "last_year", "mean",
-                                         "median",     "lower_95", "upper_95", "p_decline", "r_hat",     "bulk_ess"};
-    tf_tables_change avg = {0.01, 0.02, -0.1, 0.1, 0.4, NAN, NAN};
-    ck_assert_int_eq(tf_tables_change_of(&c, &m, 1, &avg, &t, &err), TF_OK);
+    static const char *const change[] = {"population", "model",    "period",   "model_prob", "first_year",
+                                         "last_year",  "mean",     "median",   "lower_95",   "upper_95",
+                                         "p_decline",  "r_hat",    "bulk_ess"};
+    tf_fit_trend_summary avg[2] = {{2001, 2005, 0.01, 0.02, -0.1, 0.1, 0.4, NAN, NAN},
+                                   {2002, 2005, 0.03, 0.04, -0.2, 0.2, 0.3, NAN, NAN}};
+    ck_assert_int_eq(tf_tables_change_of(&c, &m, 1, avg, &t, &err), TF_OK);
     assert_header(t, change, sizeof change / sizeof change[0]);
-    ck_assert_uint_eq(tf_table_n_rows(t), 2);
-    /* A fraction a year: the path rises by 0.02 on the log scale each year. */
-    ck_assert(fabs(tf_table_number(t, 0, 6) - expm1(0.02)) < 1e-12);
-    ck_assert(tf_table_is_empty(t, 0, 2));   /* not compared */
-    ck_assert_str_eq(tf_table_text(t, 1, 1), "average");
-    ck_assert(tf_table_number(t, 1, 2) == 1.0 && tf_table_number(t, 1, 9) == 0.4);
-    ck_assert_int_eq(tf_table_column_kind(t, 6), TF_COL_PERCENT);
+    ck_assert_uint_eq(tf_table_n_rows(t), 4);
+    /* A fraction a year: the path rises by 0.02 on the log scale each year, whatever the period. */
+    ck_assert_str_eq(tf_table_text(t, 0, 2), "whole");
+    ck_assert(fabs(tf_table_number(t, 0, 7) - expm1(0.02)) < 1e-12);
+    ck_assert_str_eq(tf_table_text(t, 1, 2), "recent");
+    ck_assert(fabs(tf_table_number(t, 1, 7) - expm1(0.02)) < 1e-12);
+    ck_assert(tf_table_number(t, 0, 4) == 2001 && tf_table_number(t, 0, 5) == 2005);
+    ck_assert(tf_table_is_empty(t, 0, 3));   /* not compared */
+    ck_assert_str_eq(tf_table_text(t, 2, 1), "average");
+    ck_assert(tf_table_number(t, 2, 3) == 1.0 && tf_table_number(t, 2, 10) == 0.4);
+    ck_assert(tf_table_number(t, 3, 4) == 2002 && tf_table_number(t, 3, 10) == 0.3);
+    ck_assert_int_eq(tf_table_column_kind(t, 7), TF_COL_PERCENT);
     tf_table_free(t);
 
     static const char *const parameters[] = {"population", "model",  "parameter", "mean",     "sd",

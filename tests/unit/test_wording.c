@@ -26,18 +26,28 @@ END_TEST
 START_TEST(trends)
 {
     char b[512];
-    tf_analysis_trend down = {.median = -0.021, .q025 = -0.04, .q975 = -0.005};
-    tf_wording_trend(&down, 1996, 2025, b, sizeof b);
+    tf_analysis_trend down = {.first_year = 1996, .last_year = 2025, .median = -0.021, .q025 = -0.04, .q975 = -0.005};
+    tf_wording_trend(&down, b, sizeof b);
     ck_assert_str_eq(b, "The counts point to a decline of about 2.1 % a year (95 % interval -4 % to -0.5 %) over 1996-2025.");
-    tf_analysis_trend up = {.median = 0.031, .q025 = 0.012, .q975 = 0.05};
-    tf_wording_trend(&up, 2001, 2020, b, sizeof b);
+    tf_analysis_trend up = {.first_year = 2001, .last_year = 2020, .median = 0.031, .q025 = 0.012, .q975 = 0.05};
+    tf_wording_trend(&up, b, sizeof b);
     ck_assert_str_eq(b, "The counts point to an increase of about 3.1 % a year (95 % interval 1.2 % to 5 %) over 2001-2020.");
-    tf_analysis_trend flat = {.median = -0.004, .q025 = -0.02, .q975 = 0.011};
-    tf_wording_trend(&flat, 2001, 2020, b, sizeof b);
+    tf_analysis_trend flat = {.first_year = 2001, .last_year = 2020, .median = -0.004, .q025 = -0.02, .q975 = 0.011};
+    tf_wording_trend(&flat, b, sizeof b);
     ck_assert(strstr(b, "no clear trend") && strstr(b, "-0.4 % a year") && strstr(b, "includes no change"));
-    tf_analysis_trend none = {.median = NAN, .q025 = NAN, .q975 = NAN};
-    tf_wording_trend(&none, 2001, 2020, b, sizeof b);
+    tf_analysis_trend none = {.first_year = 2001, .last_year = 2020, .median = NAN, .q025 = NAN, .q975 = NAN};
+    tf_wording_trend(&none, b, sizeof b);
     ck_assert(strstr(b, "could not be estimated"));
+    /* The recent trend: its own sentence, none when its period is the whole survey. */
+    tf_analysis_trend recent = {.first_year = 2011, .last_year = 2020, .median = -0.004, .q025 = -0.02, .q975 = 0.011};
+    tf_wording_recent(&up, &recent, b, sizeof b);
+    ck_assert_str_eq(b, "Over the last 10 years (2011-2020) there is no clear trend: about -0.4 % a year (95 % interval "
+                        "-2 % to 1.1 %).");
+    recent.median = -0.03, recent.q025 = -0.05, recent.q975 = -0.01;
+    tf_wording_recent(&up, &recent, b, sizeof b);
+    ck_assert(strstr(b, "still declining, by about 3 % a year"));
+    tf_wording_recent(&up, &up, b, sizeof b);
+    ck_assert_str_eq(b, "");
 }
 END_TEST
 

@@ -63,14 +63,15 @@ SHEETS = ["Summary", "Populations", "Abundance", "Projection", "Risk", "Declines
 FORMATS = {
     "Abundance": {"year": "0", "count": "0"},
     "Change": {"model_prob": "0.000", "mean": "0.0%", "median": "0.0%", "lower_95": "0.0%", "upper_95": "0.0%",
-               "p_decline": "0.000"},
+               "p_decline": "0.000", "first_year": "0"},
     "Risk": {"years_ahead": "0", "year": "0", "probability": "0.000"},
     "Declines": {"window_years": "0", "decline": "0.0%", "probability": "0.000"},
     "Models": {"model_prob": "0.000", "particles": "0"},
     "Diagnostics": {"acceptance": "0.0%", "chains": "0"},
     "Populations": {"first_year": "0", "change": "0.0%", "change_lower_95": "0.0%", "p_decline": "0.000"},
 }
-SUMMARY_FORMATS = {"Average annual change": "0.0%", "Chance the population declined": "0.000",
+# The trend items are named by their years ("Trend over 1996-2025"); matched by their start.
+SUMMARY_FORMATS = {"Trend over": "0.0%", "Recent trend,": "0.0%", "Chance of a downward trend over": "0.0%",
                    "Random seed": "0"}
 # Labels docs/tables.md gives by name ("`Lower 95 %` for `lower_95`"; the upper end by symmetry).
 LABELS = {"lower_95": "Lower 95 %", "upper_95": "Upper 95 %"}
@@ -183,7 +184,7 @@ def check_sheet(ws, rows, summary):
             if is_number(cell.value):
                 want = None
                 if summary and j == 2:
-                    want = SUMMARY_FORMATS.get(crow[1])
+                    want = next((f for k, f in SUMMARY_FORMATS.items() if crow[1].startswith(k)), None)
                 elif not summary:
                     want = FORMATS.get(name, {}).get(headers[j])
                 if want:
@@ -354,14 +355,23 @@ def check_summary(base, items):
     check(num(items[a + " /upper 95 %"]) == num(last["upper_95"]), "summary abundance upper != abundance.csv")
 
     change = column(output_tables.read_lists(os.path.join(base, "change.csv")))
-    avg = [r for r in change if r["model"] == "average"]
-    check(len(avg) == 1, "change.csv has no average row")
-    if avg:
-        avg = avg[0]
-        check(num(items["Average annual change"]) == num(avg["median"]), "summary change != change.csv median")
-        check(num(items["Average annual change /lower 95 %"]) == num(avg["lower_95"]), "change lower")
-        check(num(items["Average annual change /upper 95 %"]) == num(avg["upper_95"]), "change upper")
-        check(num(items["Chance the population declined"]) == num(avg["p_decline"]), "p_decline")
+    avg = {r["period"]: r for r in change if r["model"] == "average"}
+    check(sorted(avg) == ["recent", "whole"], f"change.csv average rows: {sorted(avg)}")
+    whole_label = recent_label = None
+    if len(avg) == 2:
+        w, rc = avg["whole"], avg["recent"]
+        # The trend over every survey year and over the last 10 (the default of --recent-years).
+        check(int(w["last_year"]) - int(w["first_year"]) + 1 == len(abundance), "whole period is not the survey")
+        check(int(rc["last_year"]) == int(w["last_year"]) and int(rc["last_year"]) - int(rc["first_year"]) == 9,
+              f"recent period {rc['first_year']}-{rc['last_year']}")
+        whole_label = f"Trend over {w['first_year']}-{w['last_year']}"
+        recent_label = f"Recent trend, {rc['first_year']}-{rc['last_year']}"
+        for label, r in ((whole_label, w), (recent_label, rc)):
+            check(num(items[label]) == num(r["median"]), f"summary {label} != change.csv median")
+            check(num(items[label + " /lower 95 %"]) == num(r["lower_95"]), f"{label} lower")
+            check(num(items[label + " /upper 95 %"]) == num(r["upper_95"]), f"{label} upper")
+            chance = f"Chance of a downward trend over {r['first_year']}-{r['last_year']}"
+            check(num(items[chance]) == num(r["p_decline"]), f"{chance} != change.csv p_decline")
 
     models = column(output_tables.read_lists(os.path.join(base, "models.csv")))
     fitted = [r for r in models if r["status"] == "fitted"]
@@ -420,7 +430,9 @@ def check_summary(base, items):
     check(num(ar["abundance"]) == num(items[a]), "populations abundance")
     check(num(ar["abundance_lower_95"]) == num(last["lower_95"]), "populations abundance_lower_95 != abundance.csv")
     check(num(ar["abundance_upper_95"]) == num(last["upper_95"]), "populations abundance_upper_95 != abundance.csv")
-    check(num(ar["change"]) == num(items["Average annual change"]), "populations change")
+    if whole_label:
+        check(num(ar["change"]) == num(items[whole_label]), "populations change")
+        check(num(ar["recent_change"]) == num(items[recent_label]), "populations recent_change")
     check(ar["best_growth_model"] == best_growth, f"populations best_growth_model {ar['best_growth_model']}, "
                                                   f"models.csv says {best_growth}")
     k = [i for i in range(1, 10) if ar.get(f"threshold_{i}_kind") == "fraction_of_current"

@@ -352,6 +352,17 @@ static tf_status draws_item(const tf_analysis *a, size_t pi, const tf_analysis_t
                                   err);
 }
 
+/* A Monte Carlo standard error for reading: "< 0.001" below what three decimals show, else with
+ * enough digits to be non-zero. */
+static const char *mcse_text(double v, char *buf, size_t size)
+{
+    if (!(v >= 0.0005))
+        snprintf(buf, size, "%s", isnan(v) ? "not available" : "< 0.001");
+    else
+        snprintf(buf, size, "%.3f", v);
+    return buf;
+}
+
 static tf_status population_items(const tf_analysis *a, size_t pi, const tf_analysis_tables_provenance *prov, tf_table *t,
                                   tf_error *err)
 {
@@ -374,7 +385,7 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     TRY(tf_table_add_item_text(t, "Survey years", text, note, err));
 
     const tf_analysis_year *last = tf_analysis_pop_year(p, n - 1);
-    snprintf(text, sizeof text, "Abundance in %d", y1);
+    snprintf(text, sizeof text, "Abundance in %d (%s)", y1, unit);
     snprintf(note, sizeof note, "posterior median, %s, averaged over the models", unit);
     TRY(tf_table_add_item_number(t, text, last->median, TF_COL_NUMBER, note, err));
     TRY(tf_table_add_item_number(t, "  lower 95 %", last->q025, TF_COL_NUMBER, "2.5 % posterior quantile", err));
@@ -410,32 +421,42 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
         TRY(tf_table_add_item_text(t, "  what it implies", text,
                                    "look at the exponential model's projection too (the models sheet)", err));
     }
-    TRY(tf_table_add_item_number(t, "  its probability", tf_analysis_pop_growth_probability(p, g), TF_COL_PROBABILITY,
+    TRY(tf_table_add_item_number(t, "  its probability", tf_analysis_pop_growth_probability(p, g), TF_COL_PERCENT,
                                  "summed over the counting-error models it was paired with", err));
     const tf_analysis_model *best = tf_analysis_pop_model(p, tf_analysis_pop_best(p));
     model_label(best, text, sizeof text);
     TRY(tf_table_add_item_text(t, "Best-supported model", text, NULL, err));
-    TRY(tf_table_add_item_number(t, "  its probability", best->probability, TF_COL_PROBABILITY, NULL, err));
+    TRY(tf_table_add_item_number(t, "  its probability", best->probability, TF_COL_PERCENT, NULL, err));
 
+    /* Two questions that read alike: a fall below a threshold at any time up to a year, and a
+     * decline measured in one year. Each block has its heading and each label says which. */
     size_t nry = n_risk_years(pr);
+    char se[32];
+    if (tf_projection_n_thresholds(pr) > 0)
+        TRY(tf_table_add_heading(t, "Quasi-extinction: a fall below a threshold at any time within the years", err));
     for (size_t k = 0; k < tf_projection_n_thresholds(pr); k++) {
         tf_threshold th = tf_projection_threshold(pr, k);
         char words[96];
         tf_wording_threshold(&th, words, sizeof words);
         for (size_t y = 0; y < nry; y++) {
             size_t yr = tf_analysis_risk_years[y];
-            snprintf(text, sizeof text, "Chance of falling below %s within %zu years", words, yr);
-            snprintf(note, sizeof note, "by %d; Monte Carlo s.e. %.3f", y1 + (int)yr, tf_projection_risk_se(pr, k, yr));
-            TRY(tf_table_add_item_number(t, text, tf_projection_risk(pr, k, yr), TF_COL_PROBABILITY, note, err));
+            snprintf(text, sizeof text, "Chance of falling below %s at any time within %zu years", words, yr);
+            snprintf(note, sizeof note, "by %d; Monte Carlo s.e. %s", y1 + (int)yr,
+                     mcse_text(tf_projection_risk_se(pr, k, yr), se, sizeof se));
+            TRY(tf_table_add_item_number(t, text, tf_projection_risk(pr, k, yr), TF_COL_PERCENT, note, err));
         }
     }
+    if (tf_projection_n_windows(pr) > 0 && tf_projection_n_declines(pr) > 0)
+        TRY(tf_table_add_heading(t, "Declines: the abundance in one year against today's", err));
     for (size_t w = 0; w < tf_projection_n_windows(pr); w++)
         for (size_t d = 0; d < tf_projection_n_declines(pr); d++) {
             char pct[32];
-            snprintf(text, sizeof text, "Chance of a decline of %s %% or more within %zu years",
-                     tf_wording_percent(100 * tf_projection_decline(pr, d), pct, sizeof pct), tf_projection_window(pr, w));
-            snprintf(note, sizeof note, "Monte Carlo s.e. %.3f", tf_projection_decline_se(pr, w, d));
-            TRY(tf_table_add_item_number(t, text, tf_projection_decline_prob(pr, w, d), TF_COL_PROBABILITY, note, err));
+            size_t yr = tf_projection_window(pr, w);
+            snprintf(text, sizeof text, "Chance of being %s %% or more below the current abundance in year %zu",
+                     tf_wording_percent(100 * tf_projection_decline(pr, d), pct, sizeof pct), yr);
+            snprintf(note, sizeof note, "in %d; Monte Carlo s.e. %s", y1 + (int)yr,
+                     mcse_text(tf_projection_decline_se(pr, w, d), se, sizeof se));
+            TRY(tf_table_add_item_number(t, text, tf_projection_decline_prob(pr, w, d), TF_COL_PERCENT, note, err));
         }
     int conv = tf_populations_all_converged(p);
     TRY(tf_table_add_item_text(t, "Sampler checks", conv ? "passed" : "not all passed",
@@ -526,6 +547,29 @@ fail:
     return st;
 }
 
+/* The words page one uses, in plain words (common practice of a report's glossary, no source). */
+static tf_status glossary_items(tf_table *t, tf_error *err)
+{
+    static const char *const words[][2] = {
+        {"Posterior median", "the middle of what the counts and the model leave possible: as likely above as below"},
+        {"95 % interval", "the range that holds the true value with 95 % probability under the model"},
+        {"Trend", "the yearly change of the estimated abundance, from a straight line through the log of every "
+                  "year's estimate; the recent trend uses the last years only"},
+        {"Growth model", "how the population is assumed to change from year to year: exponential (no limit), "
+                         "Ricker, Gompertz or theta-logistic (growth slows near a carrying capacity)"},
+        {"Counting error", "how the counts scatter around the true abundance (Poisson, negative binomial, "
+                           "log-normal)"},
+        {"Model probability", "how strongly the counts support a model against the others compared"},
+        {"Quasi-extinction", "falling below a threshold set for management, at any time within the years named"},
+        {"Monte Carlo s.e.", "the part of a figure's uncertainty that comes from simulating a limited number of "
+                             "futures; more runs make it smaller"},
+    };
+    tf_status st = tf_table_add_heading(t, "Words used on this page", err);
+    for (size_t i = 0; st == TF_OK && i < sizeof words / sizeof words[0]; i++)
+        st = tf_table_add_item_text(t, words[i][0], words[i][1], NULL, err);
+    return st;
+}
+
 /* Counts far from their neighbours (series.h), one caution each: they are fitted as they are,
  * and a typing error among them would move every figure. */
 static tf_status outlier_items(const tf_analysis *a, tf_table *t, tf_error *err)
@@ -570,6 +614,7 @@ static tf_status summary_sheet(const tf_analysis *a, const tf_analysis_tables_pr
         snprintf(label, sizeof label, "Caution %zu", i + 1);
         TRY(tf_table_add_item_text(t, label, tf_project_caution(i), NULL, err));
     }
+    TRY(glossary_items(t, err));
     TRY(outlier_items(a, t, err));
     for (size_t i = 0; prov->left_out_from && i < tf_survey_n_rejected(prov->left_out_from); i++) {
         const tf_survey_rejected *x = tf_survey_rejected_at(prov->left_out_from, i);

@@ -349,7 +349,8 @@ def check_summary(base, items):
           "abundance.csv should hold the model average of heron-colony only")
     last = abundance[-1]
     check(last["year"] == max(r["year"] for r in abundance), "abundance.csv does not end with the last year")
-    a = f"Abundance in {last['year']}"
+    # The unit is in the label (animals here: every effort is 1).
+    a = f"Abundance in {last['year']} ({last['unit']})"
     check(num(items[a]) == num(last["median"]), "summary abundance != abundance.csv median")
     check(num(items[a + " /lower 95 %"]) == num(last["lower_95"]), "summary abundance lower != abundance.csv")
     check(num(items[a + " /upper 95 %"]) == num(last["upper_95"]), "summary abundance upper != abundance.csv")
@@ -398,7 +399,9 @@ def check_summary(base, items):
             break
     n_risk = 0
     for label, value in items.items():
-        m = re.fullmatch(r"Chance of falling below (\d+(?:\.\d+)?) % of the current abundance within (\d+) years", label)
+        # "at any time within": the quasi-extinction risk, set apart from the declines below.
+        m = re.fullmatch(r"Chance of falling below (\d+(?:\.\d+)?) % of the current abundance at any time within "
+                         r"(\d+) years", label)
         if not m:
             continue
         n_risk += 1
@@ -411,7 +414,8 @@ def check_summary(base, items):
     declines = column(output_tables.read_lists(os.path.join(base, "declines.csv")))
     n_dec = 0
     for label, value in items.items():
-        m = re.fullmatch(r"Chance of a decline of (\d+) % or more within (\d+) years", label)
+        # "in year N": a decline measured in one year.
+        m = re.fullmatch(r"Chance of being (\d+) % or more below the current abundance in year (\d+)", label)
         if not m:
             continue
         n_dec += 1
@@ -440,7 +444,8 @@ def check_summary(base, items):
     check(len(k) == 1, "populations.csv has no threshold 0.2 fraction_of_current")
     if k:
         check(num(ar[f"risk_{k[0]}_20y"]) ==
-              num(items["Chance of falling below 20 % of the current abundance within 20 years"]), "populations risk")
+              num(items["Chance of falling below 20 % of the current abundance at any time within 20 years"]),
+              "populations risk")
 
     # Model averaging, recomputed from the raw draws: log of the last-year abundance, weighted by
     # P(model) / draws of the model, then the quantile, then exp (the order sheets use).

@@ -93,6 +93,6 @@ void tf_wording_risk(const tf_threshold *t, size_t years, double p, char *buf, s
 {
     char th[96], ch[32];
     tf_wording_threshold(t, th, sizeof th);
-    snprintf(buf, size, "Averaging the models by their support, the chance of falling below %s within %zu years is %s.", th,
+    snprintf(buf, size, "Averaging the models by their support, the chance of falling below %s at any time within %zu years is %s.", th,
              years, tf_wording_chance(p, ch, sizeof ch));
 }

@@ -414,6 +414,8 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
 
     size_t g = tf_analysis_pop_best_growth(p);
     TRY(tf_table_add_item_text(t, "Best-supported growth model", tf_analysis_pop_growth(p, g)->label, NULL, err));
+    TRY(tf_table_add_item_number(t, "  its probability", tf_analysis_pop_growth_probability(p, g), TF_COL_PERCENT,
+                                 "summed over the counting-error models it was paired with", err));
     if (tf_analysis_growth_levels_off(tf_analysis_pop_growth(p, g))) {
         snprintf(text, sizeof text, "The %s model is density dependent: its projection levels off near the "
                  "abundance it takes as the carrying capacity, so a past decline does not go on in it.",
@@ -421,8 +423,6 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
         TRY(tf_table_add_item_text(t, "  what it implies", text,
                                    "look at the exponential model's projection too (the models sheet)", err));
     }
-    TRY(tf_table_add_item_number(t, "  its probability", tf_analysis_pop_growth_probability(p, g), TF_COL_PERCENT,
-                                 "summed over the counting-error models it was paired with", err));
     const tf_analysis_model *best = tf_analysis_pop_model(p, tf_analysis_pop_best(p));
     model_label(best, text, sizeof text);
     TRY(tf_table_add_item_text(t, "Best-supported model", text, NULL, err));

@@ -60,8 +60,8 @@ START_TEST(risks)
     tf_wording_threshold(&rel_t, b, sizeof b);
     ck_assert_str_eq(b, "20 % of the current abundance");
     tf_wording_risk(&abs_t, 20, 0.12, b, sizeof b);
-    ck_assert_str_eq(b, "Averaging the models by their support, the chance of falling below 100 animals within 20 years "
-                        "is about 12 %.");
+    ck_assert_str_eq(b, "Averaging the models by their support, the chance of falling below 100 animals at any time "
+                        "within 20 years is about 12 %.");
 }
 END_TEST
 

@@ -61,6 +61,13 @@
 #define PRINT_DPI 96.0
 #define PRINT_PORTRAIT_PX ((210.0 / 25.4 - 2 * PRINT_MARGIN_SIDE) * PRINT_DPI)    /* 698 px */
 #define PRINT_LANDSCAPE_PX ((297.0 / 25.4 - 2 * PRINT_MARGIN_SIDE) * PRINT_DPI)   /* 1027 px */
+/* A sheet so wide that one landscape page would shrink it below PRINT_MIN_SCALE % (text of 11 pt
+ * below 6.6 pt, hard to read on paper) is printed at that scale over several pages across
+ * instead, with its leading text columns (population, model: what a row is about) repeated on
+ * each page, up to PRINT_KEY_SHARE of the page's width. */
+#define PRINT_MIN_SCALE 60
+#define PRINT_KEY_COLUMNS 2
+#define PRINT_KEY_SHARE 0.3
 
 /* Colours (0xRRGGBB), chosen for contrast on white and for readers with red-green colour vision
  * deficiency (blue, orange, green, purple, brown, grey). */
@@ -968,9 +975,20 @@ static tf_status print_setup(tf_workbook *wb, tf_sheet *s, tf_error *err)
         worksheet_set_landscape(ws);
     else
         worksheet_set_portrait(ws);
-    worksheet_fit_to_pages(ws, 1, 0);
     lxw_error rc = LXW_NO_ERROR;
-    if (s->first_data_row > s->top_row)
+    if (PRINT_LANDSCAPE_PX * 100 >= PRINT_MIN_SCALE * s->print_px) {
+        worksheet_fit_to_pages(ws, 1, 0);
+    } else {
+        worksheet_set_print_scale(ws, PRINT_MIN_SCALE);
+        size_t keys = 0;
+        double px = 0;
+        while (keys < PRINT_KEY_COLUMNS && keys < s->n_cols && s->kinds[keys] == TF_COL_TEXT &&
+               (px += col_px(s->widths[keys])) * PRINT_MIN_SCALE / 100 <= PRINT_KEY_SHARE * PRINT_LANDSCAPE_PX)
+            keys++;
+        if (keys > 0)
+            rc = worksheet_repeat_columns(ws, 0, (lxw_col_t)(keys - 1));
+    }
+    if (rc == LXW_NO_ERROR && s->first_data_row > s->top_row)
         rc = worksheet_repeat_rows(ws, s->top_row, s->first_data_row - 1);
     /* The sheet's name left and the page count right, so a loose page says where it belongs. */
     lxw_header_footer_options fo = {.margin = PRINT_MARGIN_FOOTER};

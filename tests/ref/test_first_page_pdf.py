@@ -47,15 +47,12 @@ SIGNED = "0.0 %"
 # First-page items that are percentages (a fraction shown as a percentage), with the bounds rows
 # that follow them (labels indented by spaces).
 PERCENT_ITEMS = ["Average annual change"]
-# Page geometry of the writer (src/export/workbook.c, PRINT_*): A4 is 210 x 297 mm (ISO 216) =
-# 595.3 x 841.9 pt; 0.5 in side margins leave 7.27 in = 698 px at 96 dpi for a portrait page; a
-# column of width w is 7 w + 5 px (Calibri 11 pt, the workbook's default font).
+# A4 is 210 x 297 mm (ISO 216) = 595.3 x 841.9 pt; the writer's page geometry is in PORTRAIT_PX
+# and LANDSCAPE_PX below.
 A4_PT = (595.3, 841.9)
-PORTRAIT_PX = (210 / 25.4 - 1.0) * 96
 BODY_PT = 11.0          # the workbook's default font size
-# The smallest print scale accepted for the first page: 60 %, body text of 6.6 pt. Below about
-# that size text on paper is hard to read for many readers (common practice, no source).
-MIN_SCALE = 0.60
+# The smallest print scale accepted (MIN_SCALE below): 60 %, body text of 6.6 pt; below about that
+# size text on paper is hard to read for many readers (common practice, no source).
 MAX_PAGES_PER_POPULATION = 2
 
 failures = []
@@ -64,6 +61,66 @@ failures = []
 def check(cond, msg):
     if not cond:
         failures.append(msg)
+
+
+def col_px(ws, j):
+    """Printed width in px of column j (from 1): a width of w units (digits of Calibri 11 pt, the
+    workbook's default font) is 7 w + 5 px, and the file stores (7 w + 5) / 7, the padding
+    included; 0 when hidden; a column without a width has Excel's default, 64 px."""
+    letter = openpyxl.utils.get_column_letter(j)
+    if letter not in ws.column_dimensions:   # openpyxl would make one of its own default width
+        return 64
+    d = ws.column_dimensions[letter]
+    return 0 if d.hidden else round(7 * d.width) if d.width is not None else 64
+
+
+def sheet_px(ws):
+    """The printed width of a sheet in px: its columns, and the charts beside them (a chart's right
+    edge: the left of its anchor's last column plus the offset, 9525 EMU a pixel, ECMA-376 Part 1,
+    20.1.2.1)."""
+    px = sum(col_px(ws, j) for j in range(1, ws.max_column + 1))
+    for ch in ws._charts:
+        to = getattr(ch.anchor, "to", None)
+        if to is not None:
+            px = max(px, sum(col_px(ws, j) for j in range(1, to.col + 1)) + to.colOff / 9525)
+    return px
+
+
+# Print rule of src/export/workbook.c: A4 less 0.5 in side margins at 96 dpi is 698 px wide
+# portrait and 1027 px landscape; a sheet prints one page wide unless that would shrink it below
+# 60 % (common practice, no source: 11 pt text below 6.6 pt is hard to read on paper), and then at
+# 60 % over pages across, its leading text columns repeated.
+PORTRAIT_PX = (210 / 25.4 - 1.0) * 96
+LANDSCAPE_PX = (297 / 25.4 - 1.0) * 96
+MIN_SCALE = 0.60
+
+
+def print_rule_problems(ws, title_rows):
+    """What is wrong with a sheet's print set-up (a list of messages)."""
+    bad = []
+    ps = ws.page_setup
+    name = ws.title
+    if ps.paperSize not in (9, "9"):   # A4: paperSize 9, ECMA-376 Part 1, 18.3.1.63
+        bad.append(f"{name}: paper size {ps.paperSize!r}, want 9 (A4)")
+    if ws.print_title_rows != title_rows:
+        bad.append(f"{name}: rows repeated on each page {ws.print_title_rows!r}, want {title_rows}")
+    px = sheet_px(ws)
+    want_o = "landscape" if px > PORTRAIT_PX + 2 else "portrait"
+    if ps.orientation != want_o and abs(px - PORTRAIT_PX) > 2:
+        bad.append(f"{name}: {ps.orientation} for {px:.0f} px, want {want_o}")
+    fit = ws.sheet_properties.pageSetUpPr is not None and bool(ws.sheet_properties.pageSetUpPr.fitToPage)
+    if LANDSCAPE_PX / px >= MIN_SCALE + 0.005:
+        # openpyxl leaves out fitToWidth when it is the default, 1.
+        if not fit or ps.fitToWidth not in (None, 1, "1") or ps.fitToHeight not in (0, "0"):
+            bad.append(f"{name}: {px:.0f} px, want fit to 1 page wide x any tall, found fit={fit} "
+                       f"{ps.fitToWidth} x {ps.fitToHeight}")
+    elif LANDSCAPE_PX / px <= MIN_SCALE - 0.005:
+        if fit or ps.scale not in (60, "60"):
+            bad.append(f"{name}: {px:.0f} px ({LANDSCAPE_PX / px:.0%} to fit), want a scale of 60 % without "
+                       f"fitting, found fit={fit}, scale {ps.scale}")
+        if not (ws.print_title_cols or "").startswith("$A:$"):
+            bad.append(f"{name}: printed over pages across without repeated key columns ({ws.print_title_cols!r})")
+    return bad
 
 
 def is_number(v):
@@ -79,46 +136,26 @@ def heading_row(ws, n):
     return None
 
 
-def printed_px(ws):
-    px = 0
-    for j in range(1, ws.max_column + 1):
-        d = ws.column_dimensions[openpyxl.utils.get_column_letter(j)]
-        if not d.hidden:
-            px += 7 * (d.width if d.width is not None else 8.43) + 5
-    return px
-
-
 def check_print_setup(wb, label):
     for k, ws in enumerate(wb.worksheets):
         name = f"{label}:{ws.title}"
-        ps = ws.page_setup
-        check(ps.paperSize in (9, "9"), f"{name}: paper size {ps.paperSize!r}, want 9 (A4)")
-        pr = ws.sheet_properties.pageSetUpPr
-        check(pr is not None and pr.fitToPage, f"{name}: not set to fit to the page")
-        # openpyxl leaves out fitToWidth when it is the default, 1.
-        check(ps.fitToWidth in (None, 1, "1") and ps.fitToHeight in (0, "0"),
-              f"{name}: fit to {ps.fitToWidth} wide x {ps.fitToHeight} tall, want 1 x any")
         summary = k == 0
         h = heading_row(ws, 4 if summary else ws.max_column)
         check(h is not None, f"{name}: no heading row found")
         if h is None:
             continue
         # The summary has one heading row; a table its heading row and its legend row.
-        want = f"${h}:${h}" if summary else f"${h}:${h + 1}"
-        check(ws.print_title_rows == want, f"{name}: rows repeated on each page {ws.print_title_rows!r}, "
-                                           f"want {want}")
-        px = printed_px(ws)
+        for msg in print_rule_problems(ws, f"${h}:${h}" if summary else f"${h}:${h + 1}"):
+            check(False, f"{label}:{msg}")
         if summary:
+            ps = ws.page_setup
             check(ps.orientation == "portrait", f"{name}: the first page is {ps.orientation}, want portrait")
             # One page wide: the print scale is the page's width over the columns' width.
+            px = sheet_px(ws)
             scale = min(1.0, PORTRAIT_PX / px)
             check(scale >= MIN_SCALE, f"{name}: columns {px:.0f} px wide print at {scale:.0%} < {MIN_SCALE:.0%}")
-        elif not ws._charts:
-            # Charts stand right of the table (about 720 px): a sheet with one is wide.
-            want_o = "landscape" if px > PORTRAIT_PX else "portrait"
-            check(ps.orientation == want_o, f"{name}: {ps.orientation} for {px:.0f} px of columns, want {want_o}")
-        else:
-            check(ps.orientation == "landscape", f"{name}: a table with a chart beside it is {ps.orientation}")
+            check(ws.sheet_properties.pageSetUpPr is not None and ws.sheet_properties.pageSetUpPr.fitToPage,
+                  f"{name}: the first page is not fitted to the page width")
 
 
 # ---- PDF ----

@@ -64,7 +64,9 @@ tf_status tf_workbook_close(tf_workbook *wb, tf_error *err);
  * Printing (set when the workbook is closed, for every sheet): A4, 0.5 in side margins, one page
  * wide and as many tall as needed, the heading rows (and legend row) repeated on each page, the
  * sheet name and "Page N of M" in the footer; portrait when the printed width (columns, merged
- * notes, charts) fits a portrait page at full size, else landscape.
+ * notes, charts) fits a portrait page at full size, else landscape; a sheet that one landscape
+ * page would shrink below 60 % prints at 60 % over pages across, its leading text columns
+ * repeated on each page.
  *
  * Column widths fit headers, cells and (capped) legends. Fails with TF_ERR_IO (libxlsxwriter's
  * reason, e.g. too many rows for a sheet) or TF_ERR_NOMEM; the workbook then cannot be written. */

@@ -110,7 +110,7 @@ typedef enum {
  * simulated future crossed, not that crossing is impossible; the Monte Carlo s.e. is written beside
  * them. A fraction with a sign (an annual change, -0.026 = 2.6 % a year down) cannot take these
  * conditions, since a negative value would match the first one, and gets the plain NF_PERCENT:
- * a column of the percent kind is a share when all its values lie in [0, 1] (see percent_format).
+ * a column of the percent kind is a share when all its values lie in [0, 1] (column_formats).
  * A space before the sign, as in the program's sentences ("about 27 %"; the SI Brochure, 9th
  * edition 2019, section 5.4.7, recalled from memory). */
 #define SHARE_FORMAT "[<0.001]\"< 0.1 %\";[>0.999]\"> 99.9 %\";0.0 %"
@@ -346,7 +346,7 @@ static numfmt kind_format(tf_col_kind kind)
     case TF_COL_YEAR:
         return NF_INT;
     case TF_COL_PERCENT:
-        return NF_SHARE;   /* a signed column is told apart by its values (percent_format) */
+        return NF_SHARE;   /* a signed column is told apart by its values (column_formats) */
     case TF_COL_PROBABILITY:
         return NF_PROB;
     case TF_COL_TEXT:

@@ -44,9 +44,11 @@ EPOCH = "1700000000"
 # a percentage with a sign (a change) "0.0 %".
 SHARE = '[<0.001]"< 0.1 %";[>0.999]"> 99.9 %";0.0 %'
 SIGNED = "0.0 %"
-# First-page items that are percentages (a fraction shown as a percentage), with the bounds rows
-# that follow them (labels indented by spaces).
-PERCENT_ITEMS = ["Average annual change"]
+# Figures the first page must show as percentages, found by value rather than by label: the
+# model-averaged annual change of each population and its 95 % bounds (change.csv, the row of the
+# model "average": median, lower_95, upper_95; docs/tables.md, "Scales": a change is a fraction
+# that the workbook shows as a percentage).
+PERCENT_COLUMNS = ["median", "lower_95", "upper_95"]
 # A4 is 210 x 297 mm (ISO 216) = 595.3 x 841.9 pt; the writer's page geometry is in PORTRAIT_PX
 # and LANDSCAPE_PX below.
 A4_PT = (595.3, 841.9)
@@ -232,39 +234,55 @@ def shown(v):
     return f"{100 * v:.1f} %"
 
 
-def check_cells(ws, label, as_shown):
-    """Percentage items carry a percentage format, the one their value asks for; every cell in a
-    percentage format is shown by LibreOffice as the writer means (as_shown: rows of the sheet
-    converted to CSV as shown, or None)."""
+def change_figures(out):
+    """The model-averaged change and its bounds of every population under the results folder."""
+    found = []
+    for folder, _, files in os.walk(out):
+        if "change.csv" in files:
+            with open(os.path.join(folder, "change.csv"), newline="", encoding="utf-8") as f:
+                for row in csv.DictReader(f):
+                    if row["model"] == "average":
+                        found += [(row["population"], c, float(row[c])) for c in PERCENT_COLUMNS]
+    return found
+
+
+def check_cells(ws, label, as_shown, figures, n_pop):
+    """The change figures carry a percentage format, the one their value asks for; every cell in a
+    percentage format is in one of the writer's two and is shown by LibreOffice as the writer means
+    (as_shown: rows of the sheet converted to CSV as shown, or None)."""
     h = heading_row(ws, 4)
     if h is None:
         return
-    in_item = None
-    n_percent = 0
-    for r in range(h + 1, ws.max_row + 1):
-        item, value = ws.cell(row=r, column=2).value, ws.cell(row=r, column=3)
-        if isinstance(item, str) and not item.startswith(" "):
-            in_item = item
-        is_pct_item = in_item in PERCENT_ITEMS and is_number(value.value)
-        fmt = value.number_format
-        if is_pct_item:
-            n_percent += 1
-            want = SHARE if 0 <= value.value <= 1 else SIGNED
-            check(fmt == want, f"{label}:{value.coordinate} ({item.strip()} of {in_item}): format {fmt!r}, "
-                               f"want {want!r}")
-        if "%" in fmt and is_number(value.value):
-            check(fmt in (SHARE, SIGNED), f"{label}:{value.coordinate}: a percentage in the format {fmt!r}")
-            check(fmt == (SHARE if 0 <= value.value <= 1 else SIGNED),
-                  f"{label}:{value.coordinate}: {value.value} in {fmt!r}")
-            if as_shown is not None:
-                got = as_shown[r - 1][2] if r - 1 < len(as_shown) and len(as_shown[r - 1]) > 2 else None
-                # LibreOffice may round the last decimal of a value ending in 5 the other way.
-                want_s = shown(value.value)
-                ok = got == want_s or (got and want_s[-1] == "%" and re.fullmatch(r"-?\d+\.\d %", got) and
-                                       abs(float(got[:-2]) - 100 * value.value) <= 0.05 + 1e-9)
-                check(ok, f"{label}:{value.coordinate}: {value.value} shown as {got!r}, want {want_s!r}")
-    check(n_percent >= 3, f"{label}: {n_percent} percentage cells found among {PERCENT_ITEMS}, want the value "
-                          f"and its bounds at least")
+    cells = [ws.cell(row=r, column=3) for r in range(h + 1, ws.max_row + 1)]
+    numbers = [c for c in cells if is_number(c.value)]
+    check(len(figures) == len(PERCENT_COLUMNS) * n_pop, f"{label}: {len(figures)} change figures in change.csv, "
+                                                         f"want {len(PERCENT_COLUMNS)} for each of {n_pop} populations")
+    for pop, col, v in figures:
+        match = [c for c in numbers if math.isclose(c.value, v, rel_tol=1e-15, abs_tol=0)]
+        check(match, f"{label}: the change {col} of {pop}, {v}, is not on the first page")
+        for c in match:
+            want = SHARE if 0 <= v <= 1 else SIGNED
+            check(c.number_format == want, f"{label}:{c.coordinate} (change {col} of {pop}): format "
+                                           f"{c.number_format!r}, want {want!r}")
+    n_shown = 0
+    for c in numbers:
+        fmt = c.number_format
+        if "%" not in fmt:
+            continue
+        check(fmt == (SHARE if 0 <= c.value <= 1 else SIGNED), f"{label}:{c.coordinate}: {c.value} in {fmt!r}")
+        if as_shown is None:
+            continue
+        row = as_shown[c.row - 1] if c.row - 1 < len(as_shown) else []
+        got = row[2] if len(row) > 2 else None
+        want_s = shown(c.value)
+        # LibreOffice may round a last decimal that ends in 5 the other way.
+        ok = got == want_s or (got is not None and re.fullmatch(r"-?\d+\.\d %", got) is not None and
+                               re.fullmatch(r"-?\d+\.\d %", want_s) is not None and
+                               abs(float(got[:-2]) - 100 * c.value) <= 0.05 + 1e-9)
+        check(ok, f"{label}:{c.coordinate}: {c.value} shown as {got!r}, want {want_s!r}")
+        n_shown += 1
+    if as_shown is not None:
+        check(n_shown >= len(figures), f"{label}: {n_shown} percentages compared with LibreOffice's display")
 
 
 def main():
@@ -289,7 +307,7 @@ def main():
                 del wb[name]
             first = os.path.join(tmp, stem + "-first.xlsx")
             wb.save(first)
-            firsts.append((first, stem, n_pop))
+            firsts.append((first, stem, n_pop, change_figures(out)))
         if not soffice:
             msg = "soffice (LibreOffice) is not on PATH: the first page was not printed to PDF"
             if ci:
@@ -299,13 +317,13 @@ def main():
         else:
             profile = os.path.join(tmp, "profile")
             pdfdir, csvdir = os.path.join(tmp, "pdf"), os.path.join(tmp, "csv")
-            files = [f for f, _, _ in firsts]
+            files = [f for f, _, _, _ in firsts]
             soffice_convert(soffice, profile, pdfdir, "pdf", files)
             # CSV as LibreOffice shows the cells: comma, double quote, UTF-8 (76), from line 1,
             # no cell format, ..., "save cell contents as shown" = true (the 9th token).
             soffice_convert(soffice, profile, csvdir, "csv:Text - txt - csv (StarCalc):44,34,76,1,,0,false,true,true",
                             files)
-            for first, stem, n_pop in firsts:
+            for first, stem, n_pop, figures in firsts:
                 base = os.path.splitext(os.path.basename(first))[0]
                 why = check_pdf(os.path.join(pdfdir, base + ".pdf"), stem, n_pop)
                 if why:
@@ -321,10 +339,10 @@ def main():
                     with open(csv_path, newline="", encoding="utf-8") as f:
                         shown_rows = list(csv.reader(f))
                 ws = openpyxl.load_workbook(first).worksheets[0]
-                check_cells(ws, stem, shown_rows)
+                check_cells(ws, stem, shown_rows, figures, n_pop)
         if not soffice:
-            for first, stem, _ in firsts:
-                check_cells(openpyxl.load_workbook(first).worksheets[0], stem, None)
+            for first, stem, n_pop, figures in firsts:
+                check_cells(openpyxl.load_workbook(first).worksheets[0], stem, None, figures, n_pop)
     for f in failures:
         print("FAIL:", f)
     print(f"first page in print: {len(failures)} problem(s)")

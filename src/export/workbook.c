@@ -25,9 +25,16 @@
 #define WIDTH_MAX_NUMBER 24.0
 #define WIDTH_MAX_TEXT 50.0
 #define WIDTH_LEGEND_CAP 16.0     /* a legend wraps beyond this instead of widening its column */
-#define WIDTH_SUMMARY_ITEM 45.0
-#define WIDTH_SUMMARY_VALUE 30.0
-#define WIDTH_SUMMARY_NOTE 70.0
+/* A first page (summary) is read on paper: its three visible columns together fit the width of
+ * a portrait A4 page at full size (PRINT_PORTRAIT_PX); the item column fits its labels up to a
+ * cap, and longer labels, values and notes wrap within their columns. A long text value with no
+ * note spreads over the note column too (the sentence in brief, the cautions), which keeps the
+ * page short enough to print on two pages. */
+#define WIDTH_SUMMARY_MIN 12.0
+#define WIDTH_SUMMARY_ITEM 36.0
+#define WIDTH_SUMMARY_VALUE 36.0
+#define WIDTH_SUMMARY_NOTE_MIN 20.0
+#define WIDTH_SUMMARY_PAGE 95.0   /* item + value + note: 7 * 95 + 3 * 5 = 680 px < 698 px */
 #define NOTE_MIN_WIDTH 70.0       /* a note line is merged across at least this much width */
 #define DEFAULT_COL_WIDTH 8.43    /* Excel's default column width */
 #define LINE_HEIGHT 15.0          /* points per line of the default 11 pt font */
@@ -38,6 +45,29 @@
 #define CHART_X_SCALE 1.5
 #define CHART_Y_SCALE 1.4
 #define CHART_ROWS 22
+#define CHART_PX (480.0 * CHART_X_SCALE)
+
+/* Printing (common practice, no source, but for the page size): every sheet is printed on A4
+ * (210 x 297 mm, ISO 216) one page wide, its heading rows repeated on every page; portrait when
+ * its printed width fits a portrait page at full size, else landscape, where it is shrunk only
+ * as far as the landscape width asks. Widths in pixels at 96 dpi: a column of width w (in digits
+ * of the default 11 pt font, 7 px each) is 7 w + 5 px wide (the padding libxlsxwriter and Excel
+ * use for that font). Margins in inches: 0.5 left and right, 0.6 top and bottom, with room for
+ * the footer. */
+#define PRINT_PAPER_A4 9          /* the paperSize code of A4 (ECMA-376 Part 1, 18.3.1.63) */
+#define PRINT_MARGIN_SIDE 0.5
+#define PRINT_MARGIN_END 0.6
+#define PRINT_MARGIN_FOOTER 0.3
+#define PRINT_DPI 96.0
+#define PRINT_PORTRAIT_PX ((210.0 / 25.4 - 2 * PRINT_MARGIN_SIDE) * PRINT_DPI)    /* 698 px */
+#define PRINT_LANDSCAPE_PX ((297.0 / 25.4 - 2 * PRINT_MARGIN_SIDE) * PRINT_DPI)   /* 1027 px */
+/* A sheet so wide that one landscape page would shrink it below PRINT_MIN_SCALE % (text of 11 pt
+ * below 6.6 pt, hard to read on paper) is printed at that scale over several pages across
+ * instead, with its leading text columns (population, model: what a row is about) repeated on
+ * each page, up to PRINT_KEY_SHARE of the page's width. */
+#define PRINT_MIN_SCALE 60
+#define PRINT_KEY_COLUMNS 2
+#define PRINT_KEY_SHARE 0.3
 
 /* Colours (0xRRGGBB), chosen for contrast on white and for readers with red-green colour vision
  * deficiency (blue, orange, green, purple, brown, grey). */
@@ -67,12 +97,30 @@ enum {
 };
 
 /* Number formats, with a printf equivalent used to estimate the displayed width. */
-typedef enum { NF_NONE, NF_GENERAL, NF_INT, NF_THOUSANDS, NF_FIX1, NF_FIX2, NF_FIX3, NF_FIX4, NF_SCI, NF_PERCENT, NF_PROB } numfmt;
+typedef enum {
+    NF_NONE, NF_GENERAL, NF_INT, NF_THOUSANDS, NF_FIX1, NF_FIX2, NF_FIX3, NF_FIX4, NF_SCI, NF_PERCENT, NF_SHARE, NF_PROB
+} numfmt;
+
+/* Percentages. A fraction that lies in [0, 1] (a share, a probability, a decline) is shown with one
+ * decimal, and a value that one decimal would round to 0.0 % or 100.0 % says so instead of
+ * pretending to a certainty: "< 0.1 %" below 0.001, "> 99.9 %" above 0.999. Conditions in square
+ * brackets compare the stored value (ECMA-376 Part 1, 18.8.31 numFmts; at most two conditions and
+ * one section for the rest); the "%" inside quotes is literal text and does not scale. This holds
+ * for exactly 0 and 1 as well: these are mostly Monte Carlo frequencies, where 0 means that no
+ * simulated future crossed, not that crossing is impossible; the Monte Carlo s.e. is written beside
+ * them. A fraction with a sign (an annual change, -0.026 = 2.6 % a year down) cannot take these
+ * conditions, since a negative value would match the first one, and gets the plain NF_PERCENT:
+ * a column of the percent kind is a share when all its values lie in [0, 1] (column_formats).
+ * A space before the sign, as in the program's sentences ("about 27 %"; the SI Brochure, 9th
+ * edition 2019, section 5.4.7, recalled from memory). */
+#define SHARE_FORMAT "[<0.001]\"< 0.1 %\";[>0.999]\"> 99.9 %\";0.0 %"
+#define SHARE_LOW 0.001
+#define SHARE_HIGH 0.999
 
 static const char *const excel_format[] = {
-    [NF_NONE] = NULL,        [NF_GENERAL] = NULL,    [NF_INT] = "0",       [NF_THOUSANDS] = "#,##0",
-    [NF_FIX1] = "0.0",       [NF_FIX2] = "0.00",     [NF_FIX3] = "0.000",  [NF_FIX4] = "0.0000",
-    [NF_SCI] = "0.00E+00",   [NF_PERCENT] = "0.0%",  [NF_PROB] = "0.000",
+    [NF_NONE] = NULL,        [NF_GENERAL] = NULL,     [NF_INT] = "0",       [NF_THOUSANDS] = "#,##0",
+    [NF_FIX1] = "0.0",       [NF_FIX2] = "0.00",      [NF_FIX3] = "0.000",  [NF_FIX4] = "0.0000",
+    [NF_SCI] = "0.00E+00",   [NF_PERCENT] = "0.0 %",  [NF_SHARE] = SHARE_FORMAT, [NF_PROB] = "0.000",
 };
 
 typedef struct {
@@ -88,6 +136,8 @@ struct tf_sheet {
     size_t n_cols, n_rows;
     lxw_row_t top_row;         /* the header row */
     lxw_row_t first_data_row;  /* sheet row of table row 0 */
+    double *widths;            /* column widths as set (0 = hidden) */
+    double print_px;           /* printed width in pixels: columns, merged notes and charts */
     tf_col_kind *kinds;        /* column kinds */
     double **values;           /* a copy of each year/integer column (possible x axes), else NULL */
     size_t n_auto_charts;
@@ -296,7 +346,7 @@ static numfmt kind_format(tf_col_kind kind)
     case TF_COL_YEAR:
         return NF_INT;
     case TF_COL_PERCENT:
-        return NF_PERCENT;
+        return NF_SHARE;   /* a signed column is told apart by its values (column_formats) */
     case TF_COL_PROBABILITY:
         return NF_PROB;
     case TF_COL_TEXT:
@@ -352,7 +402,9 @@ static size_t number_len(tf_workbook *wb, double v, numfmt nf)
     case NF_SCI:
         return (size_t)snprintf(b, sz, "%.2E", v);
     case NF_PERCENT:
-        return (size_t)snprintf(b, sz, "%.1f%%", v * 100);
+        return (size_t)snprintf(b, sz, "%.1f %%", v * 100);
+    case NF_SHARE:
+        return v < SHARE_LOW || v > SHARE_HIGH ? 7 : (size_t)snprintf(b, sz, "%.1f %%", v * 100);
     default:
         return (size_t)snprintf(b, sz, "%.10g", v);
     }
@@ -398,6 +450,7 @@ static void free_sheet(tf_sheet *s)
         for (size_t j = 0; j < s->n_cols; j++)
             free(s->values[j]);
     free(s->values);
+    free(s->widths);
     free(s->kinds);
     free(s->name);
     free(s);
@@ -428,6 +481,8 @@ void tf_workbook_free(tf_workbook *wb)
     free_parts(wb);
 }
 
+static tf_status print_setup(tf_workbook *wb, tf_sheet *s, tf_error *err);
+
 tf_status tf_workbook_close(tf_workbook *wb, tf_error *err)
 {
     if (wb->failed != TF_OK) {
@@ -436,6 +491,12 @@ tf_status tf_workbook_close(tf_workbook *wb, tf_error *err)
         tf_workbook_free(wb);
         return st;
     }
+    for (size_t i = 0; i < wb->n_sheets; i++)
+        if (print_setup(wb, wb->sheets[i], err) != TF_OK) {
+            tf_status st = wb->failed;
+            tf_workbook_free(wb);
+            return st;
+        }
     /* workbook_close frees the libxlsxwriter workbook whatever it returns. */
     lxw_error rc = workbook_close(wb->lxw);
     wb->lxw = NULL;
@@ -488,7 +549,8 @@ static tf_status new_sheet(tf_workbook *wb, const tf_table *t, tf_sheet **out, t
     s->n_rows = tf_table_n_rows(t);
     s->kinds = calloc(s->n_cols ? s->n_cols : 1, sizeof *s->kinds);
     s->values = calloc(s->n_cols ? s->n_cols : 1, sizeof *s->values);
-    if (!s->name || !s->kinds || !s->values) {
+    s->widths = calloc(s->n_cols ? s->n_cols : 1, sizeof *s->widths);
+    if (!s->name || !s->kinds || !s->values || !s->widths) {
         free_sheet(s);
         return nomem(wb, err);
     }
@@ -516,9 +578,6 @@ static tf_status new_sheet(tf_workbook *wb, const tf_table *t, tf_sheet **out, t
         free_sheet(s);
         return nomem(wb, err);
     }
-    /* Printed, a sheet keeps its columns together: landscape, one page wide. */
-    worksheet_set_landscape(s->ws);
-    worksheet_fit_to_pages(s->ws, 1, 0);
     wb->sheets[wb->n_sheets++] = s;
     *out = s;
     return TF_OK;
@@ -558,6 +617,58 @@ static double wrapped_lines(size_t len, double width)
     return ceil((double)len / usable);
 }
 
+/* Lines text takes in a wrapped cell of the given width, found by breaking it at spaces as a
+ * spreadsheet does (a word longer than a line is cut); bold text is about a tenth wider. A width
+ * unit holds about 1.15 letters of running text in the default font (measured on the first page
+ * printed through LibreOffice with a Calibri-compatible font; common practice, no source); the
+ * estimate errs towards more lines, since a row too low cuts its text off on paper. */
+static double text_lines(const char *text, double width, bool bold)
+{
+    double cap = fmax(1, (width - 1) * 1.15 / (bold ? 1.1 : 1.0));
+    double lines = 1, at = 0;   /* characters on the current line */
+    for (const char *p = text; *p;) {
+        if (*p == '\n') {
+            lines++, at = 0, p++;
+            continue;
+        }
+        size_t n = strcspn(p, " \n");
+        char word[256];
+        size_t k = n < sizeof word - 1 ? n : sizeof word - 1;
+        memcpy(word, p, k);
+        word[k] = '\0';
+        double w = (double)text_len(word) + (double)(n - k);
+        if (at > 0 && at + 1 + w > cap) {
+            lines++;
+            at = 0;
+        }
+        if (w > cap) {   /* cut across lines */
+            lines += ceil(w / cap) - 1;
+            w = fmod(w, cap);
+        }
+        at += (at > 0) + w;
+        p += n;
+        while (*p == ' ')
+            p++;
+    }
+    return lines;
+}
+
+/* Printed width in pixels of a column of width w (0 = hidden). */
+static double col_px(double w)
+{
+    return w > 0 ? floor(7 * w + 5 + 0.5) : 0;
+}
+
+/* Printed pixels from the left edge to the left of column c (columns beyond the table are of the
+ * default width). */
+static double left_px(const tf_sheet *s, size_t c)
+{
+    double px = 0;
+    for (size_t j = 0; j < c; j++)
+        px += col_px(j < s->n_cols ? s->widths[j] : DEFAULT_COL_WIDTH);
+    return px;
+}
+
 /* Writes the notes from row 0 down, each merged across the table's width (and at least
  * NOTE_MIN_WIDTH). Returns the next free row in *row. */
 static tf_status write_notes(tf_workbook *wb, tf_sheet *s, const tf_table *t, const double *widths, lxw_row_t *row,
@@ -575,6 +686,7 @@ static tf_status write_notes(tf_workbook *wb, tf_sheet *s, const tf_table *t, co
         last++;
     }
     last = last ? last - 1 : 0;
+    s->print_px = fmax(s->print_px, left_px(s, last + 1));
     for (size_t i = 0; i < n_notes; i++, (*row)++) {
         unsigned flags = tf_table_note_kind(t, i) == TF_NOTE_CAUTION ? F_CAUTION : F_INFO;
         lxw_format *f = get_format(wb, NF_NONE, flags);
@@ -592,13 +704,29 @@ static tf_status write_notes(tf_workbook *wb, tf_sheet *s, const tf_table *t, co
     return TF_OK;
 }
 
-/* The number format of each column: the kind's, or for general numbers one chosen from the
+/* True unless v is a number outside [0, 1]: a fraction with a sign or above one (an empty cell,
+ * text or an infinity written as text does not decide). */
+static bool is_share(double v)
+{
+    return !isfinite(v) || (v >= 0 && v <= 1);
+}
+
+/* The number format of each column: the kind's (for percentages NF_SHARE when every value of the
+ * kind lies in [0, 1], else NF_PERCENT), or for general numbers one chosen from the
  * column's largest magnitude among cells that keep the column's kind. */
 static void column_formats(const tf_table *t, numfmt *nf)
 {
     size_t n_cols = tf_table_n_columns(t), n_rows = tf_table_n_rows(t);
     for (size_t j = 0; j < n_cols; j++) {
         tf_col_kind kind = tf_table_column_kind(t, j);
+        if (kind == TF_COL_PERCENT) {
+            bool share = true;
+            for (size_t i = 0; i < n_rows && share; i++)
+                if (tf_table_cell_kind(t, i, j) == TF_COL_PERCENT)
+                    share = is_share(tf_table_number(t, i, j));
+            nf[j] = share ? NF_SHARE : NF_PERCENT;
+            continue;
+        }
         if (kind != TF_COL_NUMBER) {
             nf[j] = kind_format(kind);
             continue;
@@ -618,9 +746,12 @@ static void column_formats(const tf_table *t, numfmt *nf)
 static numfmt cell_format(const tf_table *t, size_t i, size_t j, const numfmt *col_nf)
 {
     tf_col_kind kind = tf_table_cell_kind(t, i, j);
-    if (kind == tf_table_column_kind(t, j) && !(kind == TF_COL_NUMBER && tf_table_is_summary(t)))
+    if (kind == tf_table_column_kind(t, j) && !((kind == TF_COL_NUMBER || kind == TF_COL_PERCENT) && tf_table_is_summary(t)))
         return col_nf[j];
-    return kind == TF_COL_NUMBER ? number_format(fabs(tf_table_number(t, i, j))) : kind_format(kind);
+    double v = tf_table_number(t, i, j);
+    if (kind == TF_COL_PERCENT)
+        return is_share(v) ? NF_SHARE : NF_PERCENT;
+    return kind == TF_COL_NUMBER ? number_format(fabs(v)) : kind_format(kind);
 }
 
 /* Characters shown by the widest cell of column j (headings of a summary excluded: they may run
@@ -696,19 +827,23 @@ static tf_status write_table(tf_workbook *wb, tf_sheet *s, const tf_table *t, tf
         w = fmax(w, widest_cell(wb, t, j, nf));
         double cap = s->kinds[j] == TF_COL_TEXT ? WIDTH_MAX_TEXT : WIDTH_MAX_NUMBER;
         width[j] = clamp(w + 1.5, WIDTH_MIN, cap);
+        s->widths[j] = width[j];
     }
+    s->print_px = left_px(s, s->n_cols);
     lxw_row_t row = 0;
     if ((st = write_notes(wb, s, t, width, &row, err)) != TF_OK)
         goto done;
     s->top_row = row;
-    lxw_format *hf = get_format(wb, NF_NONE, F_HEADER), *lf = get_format(wb, NF_NONE, F_LEGEND);
-    if (!hf || !lf) {
+    /* A heading sits over its column's numbers: right-aligned over numbers, left over text. */
+    lxw_format *hf = get_format(wb, NF_NONE, F_HEADER), *hrf = get_format(wb, NF_NONE, F_HEADER | F_RIGHT),
+               *lf = get_format(wb, NF_NONE, F_LEGEND);
+    if (!hf || !hrf || !lf) {
         st = nomem(wb, err);
         goto done;
     }
     double header_lines = 1, legend_lines = 1;
     for (size_t j = 0; j < s->n_cols; j++) {
-        lxw_error rc = put_text(wb, s->ws, row, (lxw_col_t)j, tf_table_label(t, j), hf);
+        lxw_error rc = put_text(wb, s->ws, row, (lxw_col_t)j, tf_table_label(t, j), s->kinds[j] == TF_COL_TEXT ? hf : hrf);
         if (rc == LXW_NO_ERROR)
             rc = tf_table_legend(t, j)[0] ? put_text(wb, s->ws, row + 1, (lxw_col_t)j, tf_table_legend(t, j), lf)
                                           : worksheet_write_blank(s->ws, row + 1, (lxw_col_t)j, lf);
@@ -745,21 +880,38 @@ done:
     return st;
 }
 
+/* Characters of the longest label of a summary (headings excluded: they run over the empty cells
+ * beside them). */
+static double widest_label(const tf_table *t)
+{
+    double w = 0;
+    for (size_t i = 0, n = tf_table_n_rows(t); i < n; i++)
+        if (!tf_table_is_heading(t, i) && tf_table_text(t, i, 1))
+            w = fmax(w, (double)text_len(tf_table_text(t, i, 1)));
+    return w;
+}
+
 static tf_status write_summary(tf_workbook *wb, tf_sheet *s, const tf_table *t, tf_error *err)
 {
     /* tf_table_new_summary makes exactly these four columns; the first, the population, is
      * hidden: the page's headings name the population, and the CSV twin keeps the column. */
     assert(s->n_cols == 4);
-    static const double caps[4] = {WIDTH_MIN, WIDTH_SUMMARY_ITEM, WIDTH_SUMMARY_VALUE, WIDTH_SUMMARY_NOTE};
-    static const unsigned col_flags[4] = {0, F_LABEL, F_LEFT, F_WRAP};
+    static const unsigned col_flags[4] = {0, F_LABEL | F_WRAP, F_LEFT | F_WRAP, F_WRAP};
     numfmt nf[4];
     double width[4];
     column_formats(t, nf);
-    for (size_t j = 0; j < 4; j++) {
-        double w = fmax(1.1 * (double)text_len(tf_table_label(t, j)) + 1, widest_cell(wb, t, j, nf));
-        width[j] = clamp(w + 2, WIDTH_MIN, caps[j]);
-    }
+    /* The item column fits its labels (bold, so a tenth wider) up to its cap; the value column
+     * its values up to its cap; the note column takes what the page has left, or less when the
+     * notes are short. Longer text wraps. */
+    double label = fmax(1.1 * (double)text_len(tf_table_label(t, 1)), 1.1 * widest_label(t)) + 2;
+    width[1] = clamp(label, WIDTH_SUMMARY_MIN, WIDTH_SUMMARY_ITEM);
+    double val = fmax(1.1 * (double)text_len(tf_table_label(t, 2)), widest_cell(wb, t, 2, nf)) + 2;
+    width[2] = clamp(val, WIDTH_SUMMARY_MIN, WIDTH_SUMMARY_VALUE);
+    double note = fmax(1.1 * (double)text_len(tf_table_label(t, 3)), widest_cell(wb, t, 3, nf)) + 2;
+    width[3] = clamp(note, WIDTH_SUMMARY_MIN, fmax(WIDTH_SUMMARY_NOTE_MIN, WIDTH_SUMMARY_PAGE - width[1] - width[2]));
     width[0] = 0;   /* hidden: it takes no room from the notes */
+    memcpy(s->widths, width, sizeof width);
+    s->print_px = left_px(s, 4);
     lxw_row_t row = 0;
     tf_status st = write_notes(wb, s, t, width, &row, err);
     if (st != TF_OK)
@@ -780,17 +932,69 @@ static tf_status write_summary(tf_workbook *wb, tf_sheet *s, const tf_table *t, 
     st = write_cells(wb, s, t, nf, col_flags, err);
     if (st != TF_OK)
         return st;
-    /* Wrapped notes get the height their text needs; headings some air above them. */
+    /* A row is as high as its longest wrapped cell; headings get some air above them. */
     for (size_t i = 0; i < s->n_rows; i++) {
-        const char *note_text = tf_table_text(t, i, 3);
-        double h = tf_table_is_heading(t, i) ? HEADING_HEIGHT : note_text ? row_height(wrapped_lines(text_len(note_text), width[3])) : 0;
+        double lines = 1;
+        lxw_row_t r = s->first_data_row + (lxw_row_t)i;
+        const char *value = tf_table_text(t, i, 2);
+        bool spread = !tf_table_is_heading(t, i) && value && tf_table_is_empty(t, i, 3) &&
+                      text_lines(value, width[2], false) > 1;
+        if (spread) {
+            unsigned flags = col_flags[2] | (tf_table_warning(t, i, 2) ? F_WARN : 0);
+            lxw_format *f = get_format(wb, NF_NONE, flags);
+            const char *x = f ? clean_text(wb, value) : NULL;
+            if (!x)
+                return nomem(wb, err);
+            lxw_error rc = worksheet_merge_range(s->ws, r, 2, r, 3, x, f);
+            if (rc != LXW_NO_ERROR)
+                return lxw_fail(wb, rc, "merge", err);
+        }
+        for (size_t j = 1; j < 4 && !tf_table_is_heading(t, i); j++) {
+            const char *text = tf_table_text(t, i, j);
+            /* A number fits: its column is at least as wide as the widest one. */
+            if (text)
+                lines = fmax(lines, text_lines(text, spread && j == 2 ? width[2] + width[3] : width[j], j == 1));
+        }
+        double h = tf_table_is_heading(t, i) ? HEADING_HEIGHT : row_height(lines);
         if (h > LINE_HEIGHT) {
-            lxw_error rc = worksheet_set_row(s->ws, s->first_data_row + (lxw_row_t)i, h, NULL);
+            lxw_error rc = worksheet_set_row(s->ws, r, h, NULL);
             if (rc != LXW_NO_ERROR)
                 return lxw_fail(wb, rc, "row", err);
         }
     }
     return TF_OK;
+}
+
+/* The print set-up of a sheet, once its columns, notes and charts are known (see PRINT_*). */
+static tf_status print_setup(tf_workbook *wb, tf_sheet *s, tf_error *err)
+{
+    lxw_worksheet *ws = s->ws;
+    worksheet_set_paper(ws, PRINT_PAPER_A4);
+    worksheet_set_margins(ws, PRINT_MARGIN_SIDE, PRINT_MARGIN_SIDE, PRINT_MARGIN_END, PRINT_MARGIN_END);
+    if (s->print_px > PRINT_PORTRAIT_PX)
+        worksheet_set_landscape(ws);
+    else
+        worksheet_set_portrait(ws);
+    lxw_error rc = LXW_NO_ERROR;
+    if (PRINT_LANDSCAPE_PX * 100 >= PRINT_MIN_SCALE * s->print_px) {
+        worksheet_fit_to_pages(ws, 1, 0);
+    } else {
+        worksheet_set_print_scale(ws, PRINT_MIN_SCALE);
+        size_t keys = 0;
+        double px = 0;
+        while (keys < PRINT_KEY_COLUMNS && keys < s->n_cols && s->kinds[keys] == TF_COL_TEXT &&
+               (px += col_px(s->widths[keys])) * PRINT_MIN_SCALE / 100 <= PRINT_KEY_SHARE * PRINT_LANDSCAPE_PX)
+            keys++;
+        if (keys > 0)
+            rc = worksheet_repeat_columns(ws, 0, (lxw_col_t)(keys - 1));
+    }
+    if (rc == LXW_NO_ERROR && s->first_data_row > s->top_row)
+        rc = worksheet_repeat_rows(ws, s->top_row, s->first_data_row - 1);
+    /* The sheet's name left and the page count right, so a loose page says where it belongs. */
+    lxw_header_footer_options fo = {.margin = PRINT_MARGIN_FOOTER};
+    if (rc == LXW_NO_ERROR)
+        rc = worksheet_set_footer_opt(ws, "&L&A&RPage &P of &N", &fo);
+    return rc == LXW_NO_ERROR ? TF_OK : lxw_fail(wb, rc, "print set-up", err);
 }
 
 tf_status tf_workbook_add_table(tf_workbook *wb, const tf_table *t, tf_sheet **sheet, tf_error *err)
@@ -983,5 +1187,6 @@ tf_status tf_workbook_add_chart(tf_workbook *wb, const tf_chart_spec *spec, tf_e
         return lxw_fail(wb, rc, "chart", err);
     if (!spec->anchor)
         place->n_auto_charts++;
+    place->print_px = fmax(place->print_px, left_px(place, at_col) + CHART_PX);
     return TF_OK;
 }

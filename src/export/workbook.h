@@ -48,12 +48,25 @@ tf_status tf_workbook_close(tf_workbook *wb, tf_error *err);
  * An ordinary table is laid out as: its notes (one merged, wrapped line each; cautions in a
  * highlighted format), the header row (bold), a legend row (each column's legend, wrapped), then
  * the data rows; the rows down to the legend are frozen. Numbers are written as numbers in the
- * column's (or cell's) kind: percent 0.0%, probability 0.000, integer and year 0, other numbers
- * with digits chosen from the column's largest magnitude; empty cells stay blank; infinities are
- * written as the text "inf" / "-inf". Cells flagged as warnings are coloured.
+ * column's (or cell's) kind: percent `[<0.001]"< 0.1 %";[>0.999]"> 99.9 %";0.0 %` when every
+ * value of the column lies in [0, 1] (a share or a probability: 0.0004 reads "< 0.1 %", and so
+ * does 0, a Monte Carlo frequency with nothing counted), else `0.0 %` (a change with a sign);
+ * probability 0.000, integer and year 0, other numbers with digits chosen from the column's
+ * largest magnitude; empty cells stay blank; infinities are written as the text "inf" / "-inf".
+ * Cells flagged as warnings are coloured. Headings are right-aligned over numbers.
  *
  * A summary table (tf_table_new_summary) is laid out for reading: notes, an "Item | Value |
- * Note" header, then one row per item with its value in the item's own kind, headings in bold.
+ * Note" header, then one row per item with its value in the item's own kind (a percentage by
+ * its own value), headings in bold. Item, value and note wrap; the item column fits its labels
+ * up to a cap, the three together fit a portrait A4 page at full size, a long text value with no
+ * note spreads over the note column, and each row is as high as its wrapped text.
+ *
+ * Printing (set when the workbook is closed, for every sheet): A4, 0.5 in side margins, one page
+ * wide and as many tall as needed, the heading rows (and legend row) repeated on each page, the
+ * sheet name and "Page N of M" in the footer; portrait when the printed width (columns, merged
+ * notes, charts) fits a portrait page at full size, else landscape; a sheet that one landscape
+ * page would shrink below 60 % prints at 60 % over pages across, its leading text columns
+ * repeated on each page.
  *
  * Column widths fit headers, cells and (capped) legends. Fails with TF_ERR_IO (libxlsxwriter's
  * reason, e.g. too many rows for a sheet) or TF_ERR_NOMEM; the workbook then cannot be written. */

@@ -56,23 +56,35 @@ WARN_FILL = "F9D3C2"   # COLOUR_WARN_FILL in src/export/workbook.c
 SHEETS = ["Summary", "Populations", "Abundance", "Projection", "Risk", "Declines", "Models", "Change",
           "Parameters", "Diagnostics", "Chains"]
 # Number formats the writer promises for each column kind (kinds in src/export/table.h, formats in
-# src/export/workbook.c: a year or a whole number "0", a fraction shown as a percentage "0.0%", a
-# probability "0.000"), by CSV column name.
+# src/export/workbook.c: a year or a whole number "0", a probability "0.000", a fraction shown as a
+# percentage PERCENT), by CSV column name.
 # Every share and change is a fraction in the CSV and a percentage in the workbook (docs/tables.md,
 # "Scales"); the survey's counts here are whole animals.
+# A percentage is SHARE when every value of its column (on the first page: the value itself) lies
+# in [0, 1], a share or a probability whose tiny and near-certain values read "< 0.1 %" and
+# "> 99.9 %", else SIGNED (a change with a sign).
+SHARE = '[<0.001]"< 0.1 %";[>0.999]"> 99.9 %";0.0 %'
+SIGNED = "0.0 %"
+PERCENT = "percent"
 FORMATS = {
     "Abundance": {"year": "0", "count": "0"},
-    "Change": {"model_prob": "0.000", "mean": "0.0%", "median": "0.0%", "lower_95": "0.0%", "upper_95": "0.0%",
-               "p_decline": "0.000", "first_year": "0"},
+    "Change": {"model_prob": "0.000", "mean": PERCENT, "median": PERCENT, "lower_95": PERCENT,
+               "upper_95": PERCENT, "p_decline": "0.000", "first_year": "0"},
     "Risk": {"years_ahead": "0", "year": "0", "probability": "0.000"},
-    "Declines": {"window_years": "0", "decline": "0.0%", "probability": "0.000"},
+    "Declines": {"window_years": "0", "decline": SHARE, "probability": "0.000"},
     "Models": {"model_prob": "0.000", "particles": "0"},
-    "Diagnostics": {"acceptance": "0.0%", "chains": "0"},
-    "Populations": {"first_year": "0", "change": "0.0%", "change_lower_95": "0.0%", "p_decline": "0.000"},
+    "Diagnostics": {"acceptance": SHARE, "chains": "0"},
+    "Populations": {"first_year": "0", "change": PERCENT, "change_lower_95": PERCENT, "p_decline": "0.000"},
 }
-# The trend items are named by their years ("Trend over 1996-2025"); matched by their start.
-SUMMARY_FORMATS = {"Trend over": "0.0%", "Recent trend,": "0.0%", "Chance of a downward trend over": "0.0%",
+# The trend items are named by their years ("Trend over 1996-2025"); matched by their start. The
+# trends are signed changes (PERCENT); the chance of a downward trend is a share (SHARE).
+SUMMARY_FORMATS = {"Trend over": PERCENT, "Recent trend,": PERCENT, "Chance of a downward trend over": SHARE,
                    "Random seed": "0"}
+
+
+def percent_format(values):
+    """The percentage format the writer picks for these numbers (see SHARE above)."""
+    return SHARE if all(0 <= v <= 1 for v in values) else SIGNED
 # Labels docs/tables.md gives by name ("`Lower 95 %` for `lower_95`"; the upper end by symmetry).
 LABELS = {"lower_95": "Lower 95 %", "upper_95": "Upper 95 %"}
 
@@ -122,7 +134,7 @@ def find_header(ws, n):
 
 def check_value(where, cell, text):
     v = cell.value
-    key = (cell.parent.title, cell.column_letter, "value")
+    key = (cell.parent.title, openpyxl.utils.get_column_letter(cell.column), "value")
     if text == "":
         check(v is None, f"{where}: expected a blank cell, found {v!r}", key)
         return
@@ -187,10 +199,13 @@ def check_sheet(ws, rows, summary):
                     want = next((f for k, f in SUMMARY_FORMATS.items() if crow[1].startswith(k)), None)
                 elif not summary:
                     want = FORMATS.get(name, {}).get(headers[j])
+                if want == PERCENT:
+                    cells = [float(r[j]) for r in rows[1:] if r[j] != ""] if not summary else [float(text)]
+                    want = percent_format([v for v in cells if math.isfinite(v)])
                 if want:
                     check(cell.number_format == want,
                           f"{name}!{cell.coordinate} ({headers[j]}): number format {cell.number_format!r}, "
-                          f"expected {want!r}", (name, cell.column_letter, "format"))
+                          f"expected {want!r}", (name, openpyxl.utils.get_column_letter(cell.column), "format"))
     check(ws.max_row == first + len(rows) - 2, f"{name}: {ws.max_row} rows, expected {first + len(rows) - 2}")
     return first
 

@@ -53,22 +53,26 @@ SHEETS = {
                                                   "posterior draws kept"]),
 }
 
-# Number formats the writer promises (workbook.h): year/integer "0", percent "0.0%",
-# probability "0.000"; general numbers get digits from the column's largest magnitude
-# (Median up to 420 -> "0.0", R-hat about 1 -> "0.000", s.e. below 1 -> "0.0000").
+# Number formats the writer promises (workbook.h): year/integer "0", a percentage in [0, 1] (a
+# share, a probability) SHARE, one with a sign "0.0 %", probability "0.000"; general numbers get
+# digits from the column's largest magnitude (Median up to 420 -> "0.0", R-hat about 1 -> "0.000",
+# s.e. below 1 -> "0.0000").
+SHARE = '[<0.001]"< 0.1 %";[>0.999]"> 99.9 %";0.0 %'
+SIGNED = "0.0 %"
 FORMATS = {
     "Trend": {"Year": "0", "Count": "0", "Median": "0.0", "Lower 95%": "0.0", "Upper 95%": "0.0"},
     "Projection _ risk": {"Year": "0", "Median N": "0.0", "P(N<50)": "0.000", "P(N<20)": "0.000",
-                          "Halved": "0.0%"},
-    "Model comparison": {"log ML": "0.0", "MC s.e.": "0.0000", "Posterior probability": "0.0%",
+                          "Halved": SHARE},
+    "Model comparison": {"log ML": "0.0", "MC s.e.": "0.0000", "Posterior probability": SHARE,
                          "Max R-hat": "0.000", "Draws": "0"},
 }
 # Summary values carry their own kinds; general numbers get digits for their own size.
 SUMMARY_FORMATS = {"First year": "0", "Years surveyed": "0", "Growth rate r": "0.0000",
-                   "Carrying capacity K": "0.0", "Probability of decline": "0.0%",
+                   "Carrying capacity K": "0.0", "Probability of decline": SHARE, "Annual change": SIGNED,
+                   "Below 10 animals by 2045": SHARE, "Above 5 animals in 2045": SHARE,
                    "Quasi-extinction by 2045": "0.000", "Max R-hat": "0.000"}
 # Cells flagged as warnings in test_workbook.c: (sheet, data row index, column index or None = all).
-WARNINGS = {("Model comparison", 2, 4), ("Model comparison", 3, None), ("Summary", 11, None)}
+WARNINGS = {("Model comparison", 2, 4), ("Model comparison", 3, None), ("Summary", 15, None)}
 WARN_FILL = "F9D3C2"   # COLOUR_WARN_FILL in workbook.c
 
 
@@ -129,6 +133,17 @@ def check_sheet(wb, name, csv_name, legends):
         return
     for j, c in enumerate(ws[hrow][:len(headers)]):
         check(c.font.b, f"{name}: header {c.value!r} is not bold")
+    check_print(ws, hrow, hrow + (1 if legends is not None else 0))
+    if legends is not None:
+        # A heading sits over its column: right-aligned over numbers, left (the default) over text.
+        for j, c in enumerate(ws[hrow][:len(headers)]):
+            below = [ws.cell(row=r, column=j + 1).value for r in range(hrow + 2, ws.max_row + 1)]
+            numeric = any(is_number(v) for v in below) and not any(isinstance(v, str) and v not in ("inf", "-inf", "n/a")
+                                                                  for v in below)
+            want = "right" if numeric else None
+            check(c.alignment.horizontal in ((want,) if want else (None, "left", "general")),
+                  f"{name}: header {c.value!r} aligned {c.alignment.horizontal!r}, its column "
+                  f"{'numbers' if numeric else 'text'}")
     if legends is not None:
         got = [c.value for c in ws[hrow + 1][:len(headers)]]
         check(got == legends, f"{name}: legend row {got} != {legends}")
@@ -160,6 +175,7 @@ def check_sheet(wb, name, csv_name, legends):
                     formatted.add(crow[item])
                     check(cell.number_format == want, f"{where}: number format {cell.number_format!r}, expected {want!r}")
     if name == "Summary":
+        check_summary_wrap(ws, first, data, item)
         check(formatted == set(SUMMARY_FORMATS), f"{name}: items {sorted(set(SUMMARY_FORMATS) - formatted)} not found "
                                                  f"with a number")
     check(ws.max_row == first + len(data) - 1, f"{name}: {ws.max_row} rows, expected {first + len(data) - 1}")
@@ -173,6 +189,96 @@ def check_sheet(wb, name, csv_name, legends):
         check(not ws.column_dimensions[letter].hidden, f"{name}: column {letter} ({h!r}) is hidden")
         w = ws.column_dimensions[letter].width
         check(w is not None and len(h) + 1 <= w <= 71, f"{name}: column {letter} ({h!r}) width {w}")
+
+
+def col_px(ws, j):
+    """Printed width in px of column j (from 1): a width of w units (digits of Calibri 11 pt, the
+    workbook's default font) is 7 w + 5 px, and the file stores (7 w + 5) / 7, the padding
+    included; 0 when hidden; a column without a width has Excel's default, 64 px."""
+    letter = openpyxl.utils.get_column_letter(j)
+    if letter not in ws.column_dimensions:   # openpyxl would make one of its own default width
+        return 64
+    d = ws.column_dimensions[letter]
+    return 0 if d.hidden else round(7 * d.width) if d.width is not None else 64
+
+
+def sheet_px(ws):
+    """The printed width of a sheet in px: its columns, and the charts beside them (a chart's right
+    edge: the left of its anchor's last column plus the offset, 9525 EMU a pixel, ECMA-376 Part 1,
+    20.1.2.1)."""
+    px = sum(col_px(ws, j) for j in range(1, ws.max_column + 1))
+    for ch in ws._charts:
+        to = getattr(ch.anchor, "to", None)
+        if to is not None:
+            px = max(px, sum(col_px(ws, j) for j in range(1, to.col + 1)) + to.colOff / 9525)
+    return px
+
+
+# Print rule of src/export/workbook.c: A4 less 0.5 in side margins at 96 dpi is 698 px wide
+# portrait and 1027 px landscape; a sheet prints one page wide unless that would shrink it below
+# 60 % (common practice, no source: 11 pt text below 6.6 pt is hard to read on paper), and then at
+# 60 % over pages across, its leading text columns repeated.
+PORTRAIT_PX = (210 / 25.4 - 1.0) * 96
+LANDSCAPE_PX = (297 / 25.4 - 1.0) * 96
+MIN_SCALE = 0.60
+
+
+def print_rule_problems(ws, title_rows):
+    """What is wrong with a sheet's print set-up (a list of messages)."""
+    bad = []
+    ps = ws.page_setup
+    name = ws.title
+    if ps.paperSize not in (9, "9"):   # A4: paperSize 9, ECMA-376 Part 1, 18.3.1.63
+        bad.append(f"{name}: paper size {ps.paperSize!r}, want 9 (A4)")
+    if ws.print_title_rows != title_rows:
+        bad.append(f"{name}: rows repeated on each page {ws.print_title_rows!r}, want {title_rows}")
+    px = sheet_px(ws)
+    want_o = "landscape" if px > PORTRAIT_PX + 2 else "portrait"
+    if ps.orientation != want_o and abs(px - PORTRAIT_PX) > 2:
+        bad.append(f"{name}: {ps.orientation} for {px:.0f} px, want {want_o}")
+    fit = ws.sheet_properties.pageSetUpPr is not None and bool(ws.sheet_properties.pageSetUpPr.fitToPage)
+    if LANDSCAPE_PX / px >= MIN_SCALE + 0.005:
+        # openpyxl leaves out fitToWidth when it is the default, 1.
+        if not fit or ps.fitToWidth not in (None, 1, "1") or ps.fitToHeight not in (0, "0"):
+            bad.append(f"{name}: {px:.0f} px, want fit to 1 page wide x any tall, found fit={fit} "
+                       f"{ps.fitToWidth} x {ps.fitToHeight}")
+    elif LANDSCAPE_PX / px <= MIN_SCALE - 0.005:
+        if fit or ps.scale not in (60, "60"):
+            bad.append(f"{name}: {px:.0f} px ({LANDSCAPE_PX / px:.0%} to fit), want a scale of 60 % without "
+                       f"fitting, found fit={fit}, scale {ps.scale}")
+        if not (ws.print_title_cols or "").startswith("$A:$"):
+            bad.append(f"{name}: printed over pages across without repeated key columns ({ws.print_title_cols!r})")
+    return bad
+
+
+def check_print(ws, top, bottom):
+    """Print set-up of every sheet (print_rule_problems): A4, the heading rows (and legend row)
+    repeated on every page, one page wide in the orientation its width asks for."""
+    for msg in print_rule_problems(ws, f"${top}:${bottom}"):
+        check(False, msg)
+
+
+def check_summary_wrap(ws, first, data, item):
+    """A summary's item, value and note wrap; a long text value with no note spreads over the note
+    column (merged), and a wrapped row is taller than one line."""
+    merged = {str(m) for m in ws.merged_cells.ranges}
+    for i, crow in enumerate(data):
+        r = first + i
+        if crow[item + 1] == "" and crow[item + 2] == "":
+            continue   # a heading
+        for j in (item, item + 1, item + 2):
+            c = ws.cell(row=r, column=j + 1)
+            if isinstance(c, openpyxl.cell.cell.MergedCell):
+                continue   # the covered part of a merged value: openpyxl keeps no style for it
+            check(c.alignment.wrap_text, f"Summary!{c.coordinate}: not wrapped")
+        value, note = crow[item + 1], crow[item + 2]
+        long_text = len(value) > 100 and not note
+        rng = f"{openpyxl.utils.get_column_letter(item + 2)}{r}:{openpyxl.utils.get_column_letter(item + 3)}{r}"
+        check((rng in merged) == long_text, f"Summary!{rng}: merged {rng in merged}, a long text with no note "
+                                            f"{long_text}")
+        if long_text:
+            h = ws.row_dimensions[r].height
+            check(h is not None and h >= 30, f"Summary row {r}: height {h} for {len(value)} characters wrapped")
 
 
 def check_no_text_numbers(wb, label):

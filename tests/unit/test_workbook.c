@@ -181,6 +181,13 @@ static tf_table *summary_table(tf_error *err)
     ck_assert_int_eq(tf_table_add_item_number(t, "First year", 2001, TF_COL_YEAR, NULL, err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_number(t, "Years surveyed", 18, TF_COL_INTEGER, "of 20 in the span", err), TF_OK);
     ck_assert_int_eq(tf_table_add_heading(t, "Trend", err), TF_OK);
+    /* A long text with no note: spread over the value and note columns, wrapped. */
+    ck_assert_int_eq(tf_table_add_item_text(t, "In brief",
+                                            "The counts point to a decline of about 2.6 % a year; the chance of "
+                                            "falling below 20 animals within 25 years is about 7 %, and below 10 "
+                                            "animals less than 0.1 %. Read these with the cautions below.",
+                                            NULL, err),
+                     TF_OK);
     ck_assert_int_eq(tf_table_add_item_text(t, "Best model", "Ricker, Poisson", NULL, err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_number(t, "Growth rate r", 0.2871234, TF_COL_NUMBER, "per year, posterior median",
                                               err),
@@ -189,6 +196,8 @@ static tf_table *summary_table(tf_error *err)
     ck_assert_int_eq(tf_table_add_item_number(t, "Probability of decline", 0.9312, TF_COL_PERCENT,
                                               "posterior probability that abundance in 2020 is below 2001's", err),
                      TF_OK);
+    /* A percentage with a sign (a change) and shares near 0 and 1. */
+    ck_assert_int_eq(tf_table_add_item_number(t, "Annual change", -0.0256, TF_COL_PERCENT, "per year", err), TF_OK);
     ck_assert_int_eq(tf_table_add_heading(t, "Risk", err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_number(t, "Quasi-extinction by 2045", 0.0731, TF_COL_PROBABILITY,
                                               "probability of falling below 20 animals within 25 years; read it "
@@ -196,6 +205,8 @@ static tf_table *summary_table(tf_error *err)
                                               "the comparison sheet",
                                               err),
                      TF_OK);
+    ck_assert_int_eq(tf_table_add_item_number(t, "Below 10 animals by 2045", 0.0004, TF_COL_PERCENT, NULL, err), TF_OK);
+    ck_assert_int_eq(tf_table_add_item_number(t, "Above 5 animals in 2045", 0.9996, TF_COL_PERCENT, NULL, err), TF_OK);
     ck_assert_int_eq(tf_table_add_item_number(t, "Max R-hat", 1.0312, TF_COL_NUMBER, "above 1.01: chains disagree", err),
                      TF_OK);
     ck_assert_int_eq(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err), TF_OK);

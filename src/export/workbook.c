@@ -31,7 +31,7 @@
  * note spreads over the note column too (the sentence in brief, the cautions), which keeps the
  * page short enough to print on two pages. */
 #define WIDTH_SUMMARY_MIN 12.0
-#define WIDTH_SUMMARY_ITEM 36.0
+#define WIDTH_SUMMARY_ITEM 48.0
 #define WIDTH_SUMMARY_VALUE 36.0
 #define WIDTH_SUMMARY_NOTE_MIN 20.0
 #define WIDTH_SUMMARY_PAGE 95.0   /* item + value + note: 7 * 95 + 3 * 5 = 680 px < 698 px */
@@ -904,9 +904,23 @@ static tf_status write_summary(tf_workbook *wb, tf_sheet *s, const tf_table *t, 
      * its values up to its cap; the note column takes what the page has left, or less when the
      * notes are short. Longer text wraps. */
     double label = fmax(1.1 * (double)text_len(tf_table_label(t, 1)), 1.1 * widest_label(t)) + 2;
-    width[1] = clamp(label, WIDTH_SUMMARY_MIN, WIDTH_SUMMARY_ITEM);
-    double val = fmax(1.1 * (double)text_len(tf_table_label(t, 2)), widest_cell(wb, t, 2, nf)) + 2;
+    /* The value column fits the values beside a note: a long text with no note spans the note
+     * column too (below), so it needs no width of its own. */
+    double widest_value = 0;
+    for (size_t i = 0, n = tf_table_n_rows(t); i < n; i++) {
+        const char *text = tf_table_text(t, i, 2);
+        double v = tf_table_number(t, i, 2);
+        if (tf_table_is_heading(t, i) || (text && tf_table_is_empty(t, i, 3)))
+            continue;
+        double len = text ? (double)text_len(text) : isnan(v) ? 0 : (double)number_len(wb, v, cell_format(t, i, 2, nf));
+        widest_value = fmax(widest_value, len);
+    }
+    double val = fmax(1.1 * (double)text_len(tf_table_label(t, 2)), widest_value) + 2;
     width[2] = clamp(val, WIDTH_SUMMARY_MIN, WIDTH_SUMMARY_VALUE);
+    /* The item column takes what the value column and the narrowest note column leave of the
+     * portrait page, up to its cap. */
+    width[1] = clamp(label, WIDTH_SUMMARY_MIN,
+                     fmax(WIDTH_SUMMARY_MIN, fmin(WIDTH_SUMMARY_ITEM, WIDTH_SUMMARY_PAGE - width[2] - WIDTH_SUMMARY_NOTE_MIN)));
     double note = fmax(1.1 * (double)text_len(tf_table_label(t, 3)), widest_cell(wb, t, 3, nf)) + 2;
     width[3] = clamp(note, WIDTH_SUMMARY_MIN, fmax(WIDTH_SUMMARY_NOTE_MIN, WIDTH_SUMMARY_PAGE - width[1] - width[2]));
     width[0] = 0;   /* hidden: it takes no room from the notes */

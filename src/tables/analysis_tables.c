@@ -106,16 +106,6 @@ static size_t n_risk_years(const tf_projection *pr)
     return n;
 }
 
-static tf_status add_cautions(tf_table *t, tf_error *err)
-{
-    for (size_t i = 0; i < tf_project_n_cautions(); i++) {
-        tf_status st = tf_table_add_note(t, TF_NOTE_CAUTION, tf_project_caution(i), err);
-        if (st != TF_OK)
-            return st;
-    }
-    return TF_OK;
-}
-
 /* ---- per population: abundance, projection, models, fits ---- */
 
 /* Counts and the model-averaged abundance per year, with its chart. */
@@ -341,15 +331,14 @@ static tf_status draws_item(const tf_analysis *a, size_t pi, const tf_analysis_t
         if (tf_analysis_pop_model(p, i)->fit)
             n_rows += tf_fit_n_draws(tf_analysis_pop_model(p, i)->fit);
     const char *place = prov->csv_place ? prov->csv_place : "the CSV files written with this workbook";
+    /* One text and no note: it spans the note column. */
     if (prov->workbook_draws && n_rows <= TF_REPORT_SHEET_ROWS)
-        snprintf(text, sizeof text, "on the sheet '%s', and as %s in %s", name, file, place);
+        snprintf(text, sizeof text, "every kept draw of every model: on the sheet '%s', and as %s in %s", name, file,
+                 place);
     else
-        snprintf(text, sizeof text, "CSV only: %s in %s", file, place);
-    return tf_table_add_item_text(t, "Raw posterior draws", text,
-                                  prov->workbook_draws ? "every kept draw of every model"
-                                                       : "every kept draw of every model; kept out of the workbook to "
-                                                         "keep it light (--workbook-draws puts them in)",
-                                  err);
+        snprintf(text, sizeof text, "every kept draw of every model, as %s in %s (kept out of the workbook: "
+                 "--workbook-draws puts them in)", file, place);
+    return tf_table_add_item_text(t, "Raw posterior draws", text, NULL, err);
 }
 
 /* A Monte Carlo standard error for reading: "< 0.001" below what three decimals show, else with
@@ -386,7 +375,7 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
 
     const tf_analysis_year *last = tf_analysis_pop_year(p, n - 1);
     snprintf(text, sizeof text, "Abundance in %d (%s)", y1, unit);
-    snprintf(note, sizeof note, "posterior median, %s, averaged over the models", unit);
+    snprintf(note, sizeof note, "posterior median, averaged over the models");
     TRY(tf_table_add_item_number(t, text, last->median, TF_COL_NUMBER, note, err));
     TRY(tf_table_add_item_number(t, "  lower 95 %", last->q025, TF_COL_NUMBER, "2.5 % posterior quantile", err));
     TRY(tf_table_add_item_number(t, "  upper 95 %", last->q975, TF_COL_NUMBER, "97.5 % posterior quantile", err));
@@ -402,8 +391,8 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
             snprintf(text, sizeof text, "Trend over %d-%d", tr->first_year, tr->last_year);
         else
             snprintf(text, sizeof text, "Recent trend, %d-%d", tr->first_year, tr->last_year);
-        snprintf(note, sizeof note, "yearly change, posterior median; from the slope of the log-abundance over %s",
-                 k ? "the last years, each year counting" : "every survey year, not only the first and last");
+        snprintf(note, sizeof note, "yearly change, posterior median; a line through %s",
+                 k ? "the last years" : "every year, not the two ends");
         TRY(tf_table_add_item_number(t, text, tr->median, TF_COL_PERCENT, note, err));
         TRY(tf_table_add_item_number(t, "  lower 95 %", tr->q025, TF_COL_PERCENT, NULL, err));
         TRY(tf_table_add_item_number(t, "  upper 95 %", tr->q975, TF_COL_PERCENT, NULL, err));
@@ -417,11 +406,9 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     TRY(tf_table_add_item_number(t, "  its probability", tf_analysis_pop_growth_probability(p, g), TF_COL_PERCENT,
                                  "summed over the counting-error models it was paired with", err));
     if (tf_analysis_growth_levels_off(tf_analysis_pop_growth(p, g))) {
-        snprintf(text, sizeof text, "The %s model is density dependent: its projection levels off near the "
-                 "abundance it takes as the carrying capacity, so a past decline does not go on in it.",
-                 tf_analysis_pop_growth(p, g)->label);
-        TRY(tf_table_add_item_text(t, "  what it implies", text,
-                                   "look at the exponential model's projection too (the models sheet)", err));
+        snprintf(text, sizeof text, "%s growth slows near a carrying capacity: its projection levels off there, "
+                 "and a past decline does not go on in it", tf_analysis_pop_growth(p, g)->label);
+        TRY(tf_table_add_item_text(t, "  what it implies", text, NULL, err));
     }
     const tf_analysis_model *best = tf_analysis_pop_model(p, tf_analysis_pop_best(p));
     model_label(best, text, sizeof text);
@@ -433,26 +420,31 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     size_t nry = n_risk_years(pr);
     char se[32];
     if (tf_projection_n_thresholds(pr) > 0)
-        TRY(tf_table_add_heading(t, "Quasi-extinction: a fall below a threshold at any time within the years", err));
+        TRY(tf_table_add_heading(t, "Chance of quasi-extinction: falling below a threshold at any time within the "
+                                    "years", err));
     for (size_t k = 0; k < tf_projection_n_thresholds(pr); k++) {
         tf_threshold th = tf_projection_threshold(pr, k);
-        char words[96];
-        tf_wording_threshold(&th, words, sizeof words);
+        /* Short labels under the block's heading, so that each fits the item column in two lines. */
+        char words[96], pct[32];
+        if (th.relative)
+            snprintf(words, sizeof words, "%s %% of current", tf_wording_percent(100 * th.value, pct, sizeof pct));
+        else
+            snprintf(words, sizeof words, "%.15g animals", th.value);
         for (size_t y = 0; y < nry; y++) {
             size_t yr = tf_analysis_risk_years[y];
-            snprintf(text, sizeof text, "Chance of falling below %s at any time within %zu years", words, yr);
+            snprintf(text, sizeof text, "Below %s at any time within %zu years", words, yr);
             snprintf(note, sizeof note, "by %d; Monte Carlo s.e. %s", y1 + (int)yr,
                      mcse_text(tf_projection_risk_se(pr, k, yr), se, sizeof se));
             TRY(tf_table_add_item_number(t, text, tf_projection_risk(pr, k, yr), TF_COL_PERCENT, note, err));
         }
     }
     if (tf_projection_n_windows(pr) > 0 && tf_projection_n_declines(pr) > 0)
-        TRY(tf_table_add_heading(t, "Declines: the abundance in one year against today's", err));
+        TRY(tf_table_add_heading(t, "Chance of a decline: the abundance in the year named against today's", err));
     for (size_t w = 0; w < tf_projection_n_windows(pr); w++)
         for (size_t d = 0; d < tf_projection_n_declines(pr); d++) {
             char pct[32];
             size_t yr = tf_projection_window(pr, w);
-            snprintf(text, sizeof text, "Chance of being %s %% or more below the current abundance in year %zu",
+            snprintf(text, sizeof text, "At least %s %% below current in year %zu",
                      tf_wording_percent(100 * tf_projection_decline(pr, d), pct, sizeof pct), yr);
             snprintf(note, sizeof note, "in %d; Monte Carlo s.e. %s", y1 + (int)yr,
                      mcse_text(tf_projection_decline_se(pr, w, d), se, sizeof se));
@@ -491,14 +483,14 @@ static tf_status provenance_items(const tf_analysis *a, const tf_analysis_tables
     char text[1024];
     TRY(tf_table_add_heading(t, "How this was made", err));
     TRY(tf_table_add_item_text(t, "Survey file", prov->input_name, NULL, err));
-    TRY(tf_table_add_item_text(t, "SHA-256 of the file", prov->sha256, "identifies the exact file that was read", err));
+    TRY(tf_table_add_item_text(t, "SHA-256 of the file", prov->sha256, NULL, err));
     TRY(tf_table_add_item_text(t, "Program", "tallyfit " TF_VERSION, NULL, err));
     TRY(tf_table_add_item_text(t, "Run on", prov->date, NULL, err));
     if (o->estimates)
         TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
                                    "so only counting-error models of continuous amounts (log-normal) were fitted",
                                    err));
-    static const char seed_note[] = "the same seed and settings give the same numbers, whatever the number of threads";
+    static const char seed_note[] = "the same seed and settings give the same numbers";
     /* A number when a double holds it exactly (below 2^53), else its digits as text. */
     if (o->seed <= (UINT64_C(1) << 53)) {
         TRY(tf_table_add_item_number(t, "Random seed", (double)o->seed, TF_COL_INTEGER, seed_note, err));
@@ -526,22 +518,22 @@ static tf_status provenance_items(const tf_analysis *a, const tf_analysis_tables
                  o->fit.n_chains, o->fit.max_iter, o->fit.n_warmup, o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
     else
         snprintf(text, sizeof text,
-                 "PMMH, %zu chains after %zu warm-up iterations, run until R-hat <= %.2f and bulk and tail ESS >= %.0f "
-                 "(%zu to %zu iterations), at most %zu draws kept per chain; %s, %s proposal",
+                 "PMMH, %zu chains, %zu warm-up, until R-hat <= %.2f and ESS >= %.0f (%zu to %zu iterations), "
+                 "at most %zu draws kept per chain; %s, %s proposal",
                  o->fit.n_chains, o->fit.n_warmup, TF_FIT_RHAT_MAX, o->fit.min_ess, o->fit.min_iter, o->fit.max_iter,
                  o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
-    TRY(tf_table_add_item_text(t, "Sampler", text, "see each diagnostics sheet", err));
+    TRY(tf_table_add_item_text(t, "Sampler", text, NULL, err));
     const tf_projection *pr = tf_analysis_pop_projection(p0);
     snprintf(text, sizeof text, "%zu simulated futures over %zu years, models weighted by their posterior probabilities",
              tf_projection_n_runs(pr), tf_projection_horizon(pr));
     TRY(tf_table_add_item_text(t, "Projection", text, NULL, err));
     if (o->evidence.target_se > 0)
         snprintf(text, sizeof text,
-                 "importance sampling squared, draws per importance density until the standard error of log p(y) "
-                 "is at most %.2f (at most %zu)", o->evidence.target_se, o->evidence.n_draws);
+                 "importance sampling squared, until the s.e. of log p(y) is at most %.2f (at most %zu draws)",
+                 o->evidence.target_se, o->evidence.n_draws);
     else
         snprintf(text, sizeof text, "importance sampling squared, %zu draws per importance density", o->evidence.n_draws);
-    TRY(tf_table_add_item_text(t, "Marginal likelihoods", text, "see each models sheet", err));
+    TRY(tf_table_add_item_text(t, "Marginal likelihoods", text, NULL, err));
     return TF_OK;
 fail:
     return st;
@@ -551,18 +543,13 @@ fail:
 static tf_status glossary_items(tf_table *t, tf_error *err)
 {
     static const char *const words[][2] = {
-        {"Posterior median", "the middle of what the counts and the model leave possible: as likely above as below"},
-        {"95 % interval", "the range that holds the true value with 95 % probability under the model"},
-        {"Trend", "the yearly change of the estimated abundance, from a straight line through the log of every "
-                  "year's estimate; the recent trend uses the last years only"},
-        {"Growth model", "how the population is assumed to change from year to year: exponential (no limit), "
-                         "Ricker, Gompertz or theta-logistic (growth slows near a carrying capacity)"},
-        {"Counting error", "how the counts scatter around the true abundance (Poisson, negative binomial, "
-                           "log-normal)"},
-        {"Model probability", "how strongly the counts support a model against the others compared"},
-        {"Quasi-extinction", "falling below a threshold set for management, at any time within the years named"},
-        {"Monte Carlo s.e.", "the part of a figure's uncertainty that comes from simulating a limited number of "
-                             "futures; more runs make it smaller"},
+        {"Posterior median", "as likely above as below, given the model"},
+        {"95 % interval", "holds the true value with 95 % probability"},
+        {"Trend", "yearly change along a line through the years"},
+        {"Growth model", "how numbers change; all but exponential level off"},
+        {"Model probability", "how strongly the counts support a model"},
+        {"Quasi-extinction", "falling below a threshold at any time"},
+        {"Monte Carlo s.e.", "error from simulating a limited number of futures"},
     };
     tf_status st = tf_table_add_heading(t, "Words used on this page", err);
     for (size_t i = 0; st == TF_OK && i < sizeof words / sizeof words[0]; i++)
@@ -604,16 +591,17 @@ static tf_status summary_sheet(const tf_analysis *a, const tf_analysis_tables_pr
         return tf_error_status(err);
     TRY(tf_table_add_notef(t, TF_NOTE_INFO, err, "Population trend and risk from the survey %s (%s).", prov->title,
                            prov->input_name));
-    TRY(add_cautions(t, err));
-    for (size_t i = 0; i < tf_analysis_n_populations(a); i++)
-        TRY(population_items(a, i, prov, t, err));
-    TRY(tf_table_set_summary_population(t, NULL, err));
+    /* The cautions first, once: the reader meets them before any figure (the notes above the
+     * table would say them a second time). */
     TRY(tf_table_add_heading(t, "Cautions", err));
     for (size_t i = 0; i < tf_project_n_cautions(); i++) {
         char label[32];
         snprintf(label, sizeof label, "Caution %zu", i + 1);
         TRY(tf_table_add_item_text(t, label, tf_project_caution(i), NULL, err));
     }
+    for (size_t i = 0; i < tf_analysis_n_populations(a); i++)
+        TRY(population_items(a, i, prov, t, err));
+    TRY(tf_table_set_summary_population(t, NULL, err));
     TRY(glossary_items(t, err));
     TRY(outlier_items(a, t, err));
     for (size_t i = 0; prov->left_out_from && i < tf_survey_n_rejected(prov->left_out_from); i++) {

@@ -415,8 +415,7 @@ def check_summary(base, items):
     n_risk = 0
     for label, value in items.items():
         # "at any time within": the quasi-extinction risk, set apart from the declines below.
-        m = re.fullmatch(r"Chance of falling below (\d+(?:\.\d+)?) % of the current abundance at any time within "
-                         r"(\d+) years", label)
+        m = re.fullmatch(r"Below (\d+(?:\.\d+)?) % of current at any time within (\d+) years", label)
         if not m:
             continue
         n_risk += 1
@@ -430,7 +429,7 @@ def check_summary(base, items):
     n_dec = 0
     for label, value in items.items():
         # "in year N": a decline measured in one year.
-        m = re.fullmatch(r"Chance of being (\d+) % or more below the current abundance in year (\d+)", label)
+        m = re.fullmatch(r"At least (\d+) % below current in year (\d+)", label)
         if not m:
             continue
         n_dec += 1
@@ -459,7 +458,7 @@ def check_summary(base, items):
     check(len(k) == 1, "populations.csv has no threshold 0.2 fraction_of_current")
     if k:
         check(num(ar[f"risk_{k[0]}_20y"]) ==
-              num(items["Chance of falling below 20 % of the current abundance at any time within 20 years"]),
+              num(items["Below 20 % of current at any time within 20 years"]),
               "populations risk")
 
     # Model averaging, recomputed from the raw draws: log of the last-year abundance, weighted by

@@ -255,8 +255,10 @@ def check_cells(ws, label, as_shown, figures, n_pop):
         return
     cells = [ws.cell(row=r, column=3) for r in range(h + 1, ws.max_row + 1)]
     numbers = [c for c in cells if is_number(c.value)]
-    check(len(figures) == len(PERCENT_COLUMNS) * n_pop, f"{label}: {len(figures)} change figures in change.csv, "
-                                                         f"want {len(PERCENT_COLUMNS)} for each of {n_pop} populations")
+    # Two trends per population (period whole and recent), each with its bounds.
+    want = 2 * len(PERCENT_COLUMNS)
+    check(len(figures) == want * n_pop, f"{label}: {len(figures)} change figures in change.csv, "
+                                        f"want {want} for each of {n_pop} populations")
     for pop, col, v in figures:
         match = [c for c in numbers if math.isclose(c.value, v, rel_tol=1e-15, abs_tol=0)]
         check(match, f"{label}: the change {col} of {pop}, {v}, is not on the first page")

@@ -336,8 +336,8 @@ static tf_status draws_item(const tf_analysis *a, size_t pi, const tf_analysis_t
         snprintf(text, sizeof text, "every kept draw of every model: on the sheet '%s', and as %s in %s", name, file,
                  place);
     else
-        snprintf(text, sizeof text, "every kept draw of every model, as %s in %s (kept out of the workbook: "
-                 "--workbook-draws puts them in)", file, place);
+        snprintf(text, sizeof text, "CSV only: %s in %s, every kept draw of every model (kept out of the "
+                 "workbook: --workbook-draws puts them in)", file, place);
     return tf_table_add_item_text(t, "Raw posterior draws", text, NULL, err);
 }
 

@@ -564,14 +564,15 @@ def main():
                 if sheet == "Diagnostics" and first:
                     check_warnings(wb[sheet], rows, first)
         check_no_text_numbers(wb)
-        # Cautions are the first notes of the first page, highlighted, each across the whole width
-        # (A to D, so that they show although column A is hidden).
-        ws = wb["Summary"]
-        merged = {str(m) for m in ws.merged_cells.ranges}
-        a2 = ws["A2"]
-        check(isinstance(a2.value, str) and "model-based" in a2.value and a2.font.b and a2.fill.fill_type,
-              f"Summary!A2 is not a highlighted caution: {a2.value!r}")
-        check("A2:D2" in merged, f"Summary!A2 (the first caution) is not merged across A2:D2: {sorted(merged)}")
+        # The cautions come first on the first page, once: the first heading, then every caution,
+        # before any population's figures.
+        rows_s = tables["Summary"]
+        heads = [i for i, r in enumerate(rows_s) if r[1] and not r[2] and not r[3]]
+        check(heads and rows_s[heads[0]][1] == "Cautions", f"the first page's first heading is not Cautions")
+        if heads:
+            after = [r[1] for r in rows_s[heads[0] + 1:heads[0] + 4]]
+            check(after == ["Caution 1", "Caution 2", "Caution 3"], f"the cautions do not come first: {after}")
+            check("model-based" in rows_s[heads[0] + 1][2], "the first caution is not the model-based one")
         items = summary_items(tables["Summary"])
         with open(SURVEY, "rb") as f:
             digest = hashlib.sha256(f.read()).hexdigest()

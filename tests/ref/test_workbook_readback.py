@@ -272,11 +272,19 @@ def check_summary_wrap(ws, first, data, item):
                 continue   # the covered part of a merged value: openpyxl keeps no style for it
             check(c.alignment.wrap_text, f"Summary!{c.coordinate}: not wrapped")
         value, note = crow[item + 1], crow[item + 2]
-        long_text = len(value) > 100 and not note
+        # Long: more than its column holds on one line (workbook.c, text_lines). Texts within a fifth
+        # of the width either way are left alone: the writer breaks at spaces.
+        width = ws.column_dimensions[openpyxl.utils.get_column_letter(item + 2)].width
+        textual = value != "" and not re.fullmatch(r"-?[0-9.eE+-]+", value)
+        long_text = textual and not note and len(value) > 1.2 * width
+        short = not textual or note or len(value) < 0.8 * width
         rng = f"{openpyxl.utils.get_column_letter(item + 2)}{r}:{openpyxl.utils.get_column_letter(item + 3)}{r}"
-        check((rng in merged) == long_text, f"Summary!{rng}: merged {rng in merged}, a long text with no note "
-                                            f"{long_text}")
-        if long_text:
+        if long_text or short:
+            check((rng in merged) == long_text, f"Summary!{rng}: merged {rng in merged}, a long text with no note "
+                                                f"{long_text} (column width {width})")
+        # A text longer than the value and note columns together wraps onto more than one line.
+        both = width + ws.column_dimensions[openpyxl.utils.get_column_letter(item + 3)].width
+        if long_text and len(value) > 1.2 * both:
             h = ws.row_dimensions[r].height
             check(h is not None and h >= 30, f"Summary row {r}: height {h} for {len(value)} characters wrapped")
 

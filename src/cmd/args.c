@@ -898,30 +898,50 @@ void tf_args_survey_name(const char *path, char *out, size_t size)
         snprintf(out, size, "survey");
 }
 
-void tf_args_population_folder(const tf_survey *sv, const char *label, char *out, size_t size)
+tf_status tf_args_folders_new(const tf_survey *sv, tf_args_folders *f, tf_error *err)
 {
-    size_t n = sv ? tf_survey_n_series(sv) : 0, at = n;
-    const char **labels = n ? calloc(n, sizeof *labels) : NULL;
-    char **names = n ? calloc(n, sizeof *names) : NULL;
-    for (size_t i = 0; labels && i < n; i++) {
-        labels[i] = tf_series_label(tf_survey_series(sv, i));
-        if (at == n && !strcmp(labels[i], label))
-            at = i;
+    memset(f, 0, sizeof *f);
+    size_t n = sv ? tf_survey_n_series(sv) : 0;
+    if (!n)
+        return TF_OK;
+    f->labels = calloc(n, sizeof *f->labels);
+    f->names = calloc(n, sizeof *f->names);
+    for (size_t i = 0; f->labels && i < n; i++)
+        f->labels[i] = tf_series_label(tf_survey_series(sv, i));
+    if (!f->labels || !f->names || !tf_path_folder_names(f->labels, n, f->names)) {
+        free(f->labels);
+        free(f->names);
+        memset(f, 0, sizeof *f);
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory naming the output folders");
     }
+    f->n = n;
+    return TF_OK;
+}
+
+void tf_args_folders_free(tf_args_folders *f)
+{
+    for (size_t i = 0; f->names && i < f->n; i++)
+        free(f->names[i]);
+    free(f->names);
+    free(f->labels);
+    memset(f, 0, sizeof *f);
+}
+
+void tf_args_folder_of(const tf_args_folders *f, const char *label, char *out, size_t size)
+{
+    for (size_t i = 0; i < f->n; i++)
+        if (!strcmp(f->labels[i], label)) {
+            snprintf(out, size, "%s", f->names[i]);
+            return;
+        }
     /* A label the survey does not hold: the rule applied to that label alone; out of memory:
      * the label made safe. */
     char *alone = NULL;
-    if (at < n && labels && names && tf_path_folder_names(labels, n, names))
-        snprintf(out, size, "%s", names[at]);
-    else if (tf_path_folder_names(&label, 1, &alone))
+    if (tf_path_folder_names(&label, 1, &alone))
         snprintf(out, size, "%s", alone);
     else
         tf_path_safe_name(label, out, size);
     free(alone);
-    for (size_t i = 0; names && i < n; i++)
-        free(names[i]);
-    free(names);
-    free(labels);
 }
 
 tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const char *base, const char *label,

@@ -268,15 +268,29 @@ tf_status tf_args_read_survey_with(const char *path, const tf_survey_options *o,
  * folder and workbook take. "stdin" for "-", "survey" when nothing is left. */
 void tf_args_survey_name(const char *path, char *out, size_t size);
 
-/* The folder name of the population labelled label in survey sv (may be NULL): the name
- * tf_path_folder_names gives it among the survey's populations, the one rule of every command and
- * of the analysis and the batch. Writes at most size bytes; the label made safe when sv holds no
- * such population. */
-void tf_args_population_folder(const tf_survey *sv, const char *label, char *out, size_t size);
+/* The folder names of a survey's populations, as tf_path_folder_names gives them among all of
+ * them (the one rule of every command, the analysis and the batch), made once per command: the
+ * rule makes each name unique against the earlier ones, so a population's name takes the whole
+ * list. */
+typedef struct {
+    size_t n;
+    const char **labels;   /* borrowed from the survey */
+    char **names;
+} tf_args_folders;
+
+/* The names of sv's populations (sv may be NULL: none). TF_ERR_NOMEM on failure (f then holds
+ * nothing to free). Free with tf_args_folders_free. */
+tf_status tf_args_folders_new(const tf_survey *sv, tf_args_folders *f, tf_error *err);
+void tf_args_folders_free(tf_args_folders *f);
+
+/* The folder name of the population labelled label: its name among the survey's, or the rule
+ * applied to that label alone when the survey holds no such population. Writes at most size
+ * bytes. */
+void tf_args_folder_of(const tf_args_folders *f, const char *label, char *out, size_t size);
 
 /* The output folder of one population, as fit, compare and forecast choose it: out_dir, or
  * output/<base> when out_dir is NULL (base: the survey's name, tf_args_survey_name), with
- * /<label made safe> (tf_path_safe_name; pass the tf_args_population_folder name) below it when
+ * /<label made safe> (tf_path_safe_name; pass the tf_args_folder_of name) below it when
  * several. A folder too long for dir (size bytes) is refused,
  * not cut (a cut name would be another folder): TF_ERR_USAGE. */
 tf_status tf_args_output_dir(char *dir, size_t size, const char *out_dir, const char *base, const char *label,

@@ -551,13 +551,15 @@ static int analyze(int argc, char **argv, int rank, int size)
     if (tf_survey_n_in_file(sv) > 1) {
         n_folders = tf_analysis_n_populations(a);
         folders = calloc(n_folders, sizeof *folders);
-        int ok = folders != NULL;
+        tf_args_folders all = {0};
+        int ok = folders != NULL && tf_args_folders_new(sv, &all, NULL) == TF_OK;
         for (size_t i = 0; ok && i < n_folders; i++) {
             char folder[300];
-            tf_args_population_folder(sv, tf_series_label(tf_analysis_pop_series(tf_analysis_population(a, i))), folder,
-                                      sizeof folder);
+            tf_args_folder_of(&all, tf_series_label(tf_analysis_pop_series(tf_analysis_population(a, i))), folder,
+                              sizeof folder);
             ok = (folders[i] = strdup(folder)) != NULL;
         }
+        tf_args_folders_free(&all);
         if (!ok) {
             tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
             goto out;

@@ -292,6 +292,7 @@ int tf_cmd_compare(int argc, char **argv)
     int status = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
     tf_comparison **comps = NULL;
+    tf_args_folders folders = {0};
     char (*written)[4600] = NULL;   /* the file written per population */
     size_t n_jobs = 0;
     tf_signals saved;
@@ -328,6 +329,8 @@ int tf_cmd_compare(int argc, char **argv)
     }
     char base[256];
     tf_args_survey_name(path, base, sizeof base);
+    if (tf_args_folders_new(sv, &folders, &err) != TF_OK)
+        goto out;
     /* As in every command: a survey of several populations gives each its folder, also when
      * only one is chosen. */
     int several = tf_survey_n_in_file(sv) > 1;
@@ -335,7 +338,7 @@ int tf_cmd_compare(int argc, char **argv)
     for (size_t i = 0; i < n_jobs; i++) {
         const tf_series *s = only ? only : tf_survey_series(sv, i);
         char dir[4096], folder[300];
-        tf_args_population_folder(sv, tf_series_label(s), folder, sizeof folder);
+        tf_args_folder_of(&folders, tf_series_label(s), folder, sizeof folder);
         if (tf_args_output_dir(dir, sizeof dir, out_dir, base, folder, several, &err) != TF_OK) {
             status = TF_EXIT_USAGE;
             goto out;
@@ -371,7 +374,7 @@ int tf_cmd_compare(int argc, char **argv)
     for (size_t i = 0; i < n_jobs && wst == TF_OK; i++) {
         const tf_series *s = tf_comparison_series(comps[i]);
         char dir[4096], folder[300];
-        tf_args_population_folder(sv, tf_series_label(s), folder, sizeof folder);
+        tf_args_folder_of(&folders, tf_series_label(s), folder, sizeof folder);
         if ((wst = tf_args_output_dir(dir, sizeof dir, out_dir, base, folder, several, &err)) != TF_OK)
             break;
         snprintf(written[i], sizeof written[i], "%s", dir);
@@ -418,6 +421,7 @@ out:
         tf_comparison_free(comps[i]);
     free(comps);
     free(written);
+    tf_args_folders_free(&folders);
     tf_survey_free(sv);
     return status;
 }

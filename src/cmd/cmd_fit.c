@@ -325,6 +325,7 @@ int tf_cmd_fit(int argc, char **argv)
     int status = TF_EXIT_FAIL;
     tf_survey *sv = NULL;
     job *jobs = NULL;
+    tf_args_folders folders = {0};
     size_t n_jobs = 0;
     tf_signals saved;
     const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
@@ -348,6 +349,8 @@ int tf_cmd_fit(int argc, char **argv)
     }
     char base[256];
     tf_args_survey_name(path, base, sizeof base);
+    if (tf_args_folders_new(sv, &folders, &err) != TF_OK)
+        goto out;
 
     /* Set every population up before the first long run, so that a bad count in the last
      * population is reported at once. */
@@ -370,7 +373,7 @@ int tf_cmd_fit(int argc, char **argv)
             goto out;
         }
         char folder[300];
-        tf_args_population_folder(sv, label, folder, sizeof folder);
+        tf_args_folder_of(&folders, label, folder, sizeof folder);
         if (tf_args_output_dir(j->dir, sizeof j->dir, out_dir, base, folder, tf_survey_n_in_file(sv) > 1, &err) !=
             TF_OK) {
             status = TF_EXIT_USAGE;
@@ -423,6 +426,7 @@ out:
     for (size_t i = 0; i < n_jobs && jobs; i++)
         job_clear(&jobs[i]);
     free(jobs);
+    tf_args_folders_free(&folders);
     tf_survey_free(sv);
     return status;
 }

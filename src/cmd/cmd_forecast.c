@@ -171,14 +171,14 @@ static void jobs_free(job *jobs, size_t n_jobs)
  * land together: -o DIR or by default output/<survey>/, with /<population> below it when the file
  * holds several populations (even if one is chosen); output/forecast without a survey. A name
  * too long for the buffer is refused, not cut: a cut name would be another folder. */
-static tf_status job_dir(const options *o, const tf_survey *sv, const char *label, char *dir, size_t size,
-                         tf_error *err)
+static tf_status job_dir(const options *o, const tf_survey *sv, const tf_args_folders *folders, const char *label,
+                         char *dir, size_t size, tf_error *err)
 {
     char base[256] = "forecast";
     if (sv)
         tf_args_survey_name(o->survey_path, base, sizeof base);
     char folder[300];
-    tf_args_population_folder(sv, label, folder, sizeof folder);
+    tf_args_folder_of(folders, label, folder, sizeof folder);
     if (tf_args_output_dir(dir, size, o->out_dir, base, folder, sv && tf_survey_n_in_file(sv) > 1, NULL) != TF_OK)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "choose a shorter -o DIR",
                             "the output folder name is longer than %zu bytes", size - 1);
@@ -513,14 +513,17 @@ static void model_progress(void *ctx, const tf_analysis_event *e)
 static tf_status check_before(const options *o, const tf_forecast_options *fo, const tf_survey *sv,
                               const tf_series *only, job *jobs, size_t n_jobs, tf_error *err)
 {
-    tf_status st;
-    for (size_t i = 0; i < n_jobs; i++) {
+    tf_args_folders folders;
+    tf_status st = tf_args_folders_new(sv, &folders, err);
+    for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
         const tf_series *s = sv ? (only ? only : tf_survey_series(sv, i)) : NULL;
         const char *label = s ? tf_series_label(s) : "";
-        if ((st = job_dir(o, sv, label, jobs[i].dir, sizeof jobs[i].dir, err)) != TF_OK ||
-            (st = tf_args_probe_output_dir(jobs[i].dir, o->survey_path, err)) != TF_OK)
-            return st;
+        if ((st = job_dir(o, sv, &folders, label, jobs[i].dir, sizeof jobs[i].dir, err)) == TF_OK)
+            st = tf_args_probe_output_dir(jobs[i].dir, o->survey_path, err);
     }
+    tf_args_folders_free(&folders);
+    if (st != TF_OK)
+        return st;
     if (fo->source == TF_FORECAST_MODEL) {
         for (size_t i = 0; i < n_jobs; i++) {
             tf_model *m = NULL;

@@ -342,12 +342,17 @@ START_TEST(operand_draws_and_folders)
     tf_error_init(&err);
     ck_assert_int_eq(tf_args_read_survey(TF_TEST_DATA("good/multi-pop.csv"), &sv, &err), TF_OK);
     char folder[64];
-    tf_args_population_folder(sv, "east", folder, sizeof folder);
+    tf_args_folders fs, none;
+    ck_assert_int_eq(tf_args_folders_new(sv, &fs, &err), TF_OK);
+    tf_args_folder_of(&fs, "east", folder, sizeof folder);
     ck_assert_str_eq(folder, "east");
-    tf_args_population_folder(sv, "no such/one", folder, sizeof folder);
+    tf_args_folder_of(&fs, "no such/one", folder, sizeof folder);
     ck_assert_str_eq(folder, "no_such_one");
-    tf_args_population_folder(NULL, "summary.csv", folder, sizeof folder);
+    tf_args_folders_free(&fs);
+    ck_assert_int_eq(tf_args_folders_new(NULL, &none, &err), TF_OK);
+    tf_args_folder_of(&none, "summary.csv", folder, sizeof folder);
     ck_assert_str_eq(folder, "summary.csv_");
+    tf_args_folders_free(&none);
     tf_survey_free(sv);
 }
 END_TEST

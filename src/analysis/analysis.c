@@ -132,10 +132,25 @@ static void report(progress_relay *r, tf_analysis_stage stage, double seconds)
 /* Quantile levels of the year and trend summaries, in the order q025, q25, median, q75, q975. */
 static const double levels[] = {0.025, 0.25, 0.5, 0.75, 0.975};
 
-/* The model-averaged trend over years first..first + n - 1 into out: each draw's least-squares
- * slope (tf_stats_slope) weighted by prob_m / n_draws_m; pts has room for every draw. */
-static void average_trend(const tf_analysis_pop *p, tf_average_point *pts, size_t first, size_t n,
-                          tf_analysis_trend *out)
+/* What one draw's log-abundance path gives over years first..first + n - 1. */
+typedef double draw_value(const double *path, size_t first, size_t n);
+
+static double log_abundance(const double *path, size_t first, size_t n)
+{
+    (void)n;
+    return path[first];
+}
+
+/* The least-squares change per year (tf_stats_slope), as a proportion. */
+static double change_per_year(const double *path, size_t first, size_t n)
+{
+    return expm1(tf_stats_slope(path + first, n, 1));
+}
+
+/* value of every draw of every model with a probability, weighted by prob_m / n_draws_m, into
+ * pts (room for every such draw); returns how many. */
+static size_t weigh_draws(const tf_analysis_pop *p, draw_value *value, size_t first, size_t n,
+                          tf_average_point *pts)
 {
     size_t ny = tf_series_n_years(p->s), k = 0;
     for (size_t i = 0; i < p->n_models; i++) {
@@ -146,8 +161,17 @@ static void average_trend(const tf_analysis_pop *p, tf_average_point *pts, size_
         const double *paths = tf_fit_paths(m->fit);
         double w = m->probability / (double)nd;
         for (size_t d = 0; d < nd; d++)
-            pts[k++] = (tf_average_point){expm1(tf_stats_slope(paths + d * ny + first, n, 1)), w};
+            pts[k++] = (tf_average_point){value(paths + d * ny, first, n), w};
     }
+    return k;
+}
+
+/* The model-averaged trend over years first..first + n - 1 into out; pts has room for every
+ * draw. */
+static void average_trend(const tf_analysis_pop *p, tf_average_point *pts, size_t first, size_t n,
+                          tf_analysis_trend *out)
+{
+    size_t k = weigh_draws(p, change_per_year, first, n, pts);
     out->first_year = tf_series_first_year(p->s) + (int)first;
     out->last_year = out->first_year + (int)n - 1;
     tf_average_moments(pts, k, &out->mean, &out->p_decline);
@@ -174,17 +198,7 @@ static tf_status average(tf_analysis_pop *p, size_t recent_years, tf_error *err)
     }
     const double *y = tf_series_counts(p->s), *e = tf_series_effort(p->s);
     for (size_t t = 0; t < ny; t++) {
-        size_t k = 0;
-        for (size_t i = 0; i < p->n_models; i++) {
-            const tf_analysis_model *m = &p->models[i];
-            if (!(m->probability > 0))
-                continue;
-            size_t nd = tf_fit_n_draws(m->fit);
-            const double *paths = tf_fit_paths(m->fit);
-            double w = m->probability / (double)nd;
-            for (size_t d = 0; d < nd; d++)
-                pts[k++] = (tf_average_point){paths[d * ny + t], w};
-        }
+        size_t k = weigh_draws(p, log_abundance, t, 1, pts);
         /* Quantiles of x, then exp: the same order as the fit's own year summaries. */
         double q[N_OF(levels)];
         tf_average_quantiles(pts, k, levels, N_OF(levels), q);

@@ -156,8 +156,51 @@ tf_status tf_model_initial_from_series(tf_model *m, const tf_series *s, tf_error
     return TF_OK;
 }
 
+void tf_model_take(double take, double *x, size_t n)
+{
+    if (take == 0)
+        return;
+    for (size_t i = 0; i < n; i++) {
+        double left = exp(x[i]) - take;
+        x[i] = left > 0 ? fmax(log(left), TF_MODEL_LOG_EXTINCT) : TF_MODEL_LOG_EXTINCT;
+    }
+}
+
+void tf_model_drift_alive(const tf_growth_type *g, const double *p, const double *x, double *out, size_t n)
+{
+    /* The drift may write in place, so the extinct ones are found first; a block at a time keeps
+     * the marks on the stack. */
+    enum { BLOCK = 256 };
+    for (size_t start = 0; start < n; start += BLOCK) {
+        size_t len = n - start < BLOCK ? n - start : BLOCK;
+        unsigned char gone[BLOCK];
+        int any = 0;
+        for (size_t i = 0; i < len; i++)
+            any |= gone[i] = x[start + i] <= TF_MODEL_EXTINCT_BELOW;
+        g->drift(p, x + start, out + start, len);
+        if (any)
+            for (size_t i = 0; i < len; i++)
+                if (gone[i])
+                    out[start + i] = TF_MODEL_LOG_EXTINCT;
+    }
+}
+
 tf_status tf_model_simulate(const tf_model *m, const double *theta, double x1, const double *effort,
                             size_t n_years, tf_rng *rng, double *x, double *y, tf_error *err)
+{
+    return tf_model_simulate_harvest(m, theta, x1, effort, NULL, n_years, rng, x, y, NULL, err);
+}
+
+/* Animals removed from a population of `animals` by h: whole animals, at most those there are. */
+static double harvest_of(const tf_model_harvest *h, double animals)
+{
+    double want = h->share > 0 ? h->share * animals : h->count;
+    return fmin(round(want), floor(animals));
+}
+
+tf_status tf_model_simulate_harvest(const tf_model *m, const double *theta, double x1, const double *effort,
+                                    const tf_model_harvest *h, size_t n_years, tf_rng *rng, double *x, double *y,
+                                    double *removed, tf_error *err)
 {
     const double *p_growth = theta, sigma = theta[m->growth->n_params];
     const double *p_obs = theta + m->growth->n_params + 1;
@@ -178,7 +221,17 @@ tf_status tf_model_simulate(const tf_model *m, const double *theta, double x1, c
                                 "use a count model such as poisson or negbin, which can count zero",
                                 "the simulated count in year %zu is zero, which the %s model cannot produce",
                                 t + 1, m->obs->name);
-        if (t + 1 < n_years) {
+        double took = 0.0;
+        if (h && xt > -INFINITY) {
+            double q = h->counted_fraction > 0 ? h->counted_fraction : 1.0;
+            double animals = exp(xt) / q;
+            took = harvest_of(h, animals);
+            if (took > 0)
+                xt = animals - took > 0 ? log(q * (animals - took)) : -INFINITY;
+        }
+        if (removed)
+            removed[t] = took;
+        if (t + 1 < n_years && xt > -INFINITY) {
             double next;
             m->growth->drift(p_growth, &xt, &next, 1);
             xt = next + sigma * tf_rng_normal(rng);

@@ -122,6 +122,26 @@ tf_status tf_model_initial_from_series(tf_model *m, const tf_series *s, tf_error
 void tf_model_list_growth(char *buf, size_t size);
 void tf_model_list_obs(char *buf, size_t size);
 
+/* Removals and releases (a take in count units, negative for a release) act between a year's count
+ * and the growth step: x' = ln(max(e^x - take, 0)), then x_next = drift(x') + sigma eps. A state
+ * taken to zero is extinct: it is held at TF_MODEL_LOG_EXTINCT (e^-50 = 2e-22 count units, zero
+ * for every purpose, yet a finite number that every counting-error kernel and drift takes without
+ * a NaN), and any state at or below TF_MODEL_EXTINCT_BELOW (e^-40) stays extinct through the
+ * drift, so that growth cannot bring back a population that is gone (the Gompertz map, linear in
+ * x, would otherwise turn a very negative x into a large one when its feedback overshoots). Only
+ * a release brings an extinct state back. The particle filter, the simulator and the projection
+ * share these two steps. */
+#define TF_MODEL_LOG_EXTINCT (-50.0)
+#define TF_MODEL_EXTINCT_BELOW (-40.0)
+
+/* x[i] <- ln(max(e^x[i] - take, 0)) for i < n, TF_MODEL_LOG_EXTINCT where nothing is left.
+ * take == 0 leaves x untouched. */
+void tf_model_take(double take, double *x, size_t n);
+
+/* out[i] = drift(x[i]) as g->drift computes it, except TF_MODEL_LOG_EXTINCT where
+ * x[i] <= TF_MODEL_EXTINCT_BELOW. out may equal x. */
+void tf_model_drift_alive(const tf_growth_type *g, const double *p, const double *x, double *out, size_t n);
+
 /* Simulates n_years of the joined model from x[0] = x1: x[t+1] = drift(x[t]) + sigma eps_t and
  * y[t] drawn by the observation model with mean effort[t] * exp(x[t]) (effort NULL = all 1).
  * theta must pass tf_model_check_params. Fills the caller's arrays x and y (n_years each) and
@@ -129,5 +149,23 @@ void tf_model_list_obs(char *buf, size_t size);
  * zero (needs_positive), falls to zero; x and y are then filled up to the failing year only. */
 tf_status tf_model_simulate(const tf_model *m, const double *theta, double x1, const double *effort,
                             size_t n_years, tf_rng *rng, double *x, double *y, tf_error *err);
+
+/* A harvest for tf_model_simulate_harvest: after each year's count, remove a fixed number of
+ * animals (count > 0) or a share of those present (share in (0, 1)); at most the animals there
+ * are. counted_fraction in (0, 1] turns animals into count units (tf_series_counted_fraction). */
+typedef struct {
+    double count;
+    double share;
+    double counted_fraction;
+} tf_model_harvest;
+
+/* tf_model_simulate with a harvest h (NULL = none: the same draws as tf_model_simulate). The
+ * animals removed after year t's count, rounded to whole animals, go to removed[t] (n_years; the
+ * last year's removal is drawn too, as a survey would record it). A population removed to zero is
+ * extinct (x = -INFINITY, counts drawn with mean 0) for the years left; under a model that cannot
+ * count zero that is TF_ERR_NUMERIC, as in tf_model_simulate. */
+tf_status tf_model_simulate_harvest(const tf_model *m, const double *theta, double x1, const double *effort,
+                                    const tf_model_harvest *h, size_t n_years, tf_rng *rng, double *x, double *y,
+                                    double *removed, tf_error *err);
 
 #endif

@@ -18,6 +18,9 @@ struct tf_series {
     size_t n_surveyed;
     size_t n_zero;
     size_t first_fractional;
+    double *removed;          /* n_years, or NULL: no removals or releases */
+    double *added;
+    double counted_fraction;
 };
 
 tf_series *tf_series_new(const char *label, int first_year, size_t n_years, const double *counts,
@@ -55,6 +58,7 @@ tf_series *tf_series_new(const char *label, int first_year, size_t n_years, cons
     s->first_year = first_year;
     s->n_years = n_years;
     s->first_fractional = n_years;
+    s->counted_fraction = 1.0;
     for (size_t i = 0; i < n_years; i++) {
         double y = counts[i];
         s->counts[i] = y;
@@ -83,6 +87,8 @@ void tf_series_free(tf_series *s)
     free(s->counts);
     free(s->effort);
     free(s->lines);
+    free(s->removed);
+    free(s->added);
     free(s);
 }
 
@@ -95,6 +101,68 @@ long tf_series_source_line(const tf_series *s, size_t i) { return i < s->n_years
 size_t tf_series_n_surveyed(const tf_series *s) { return s->n_surveyed; }
 size_t tf_series_n_zero(const tf_series *s) { return s->n_zero; }
 size_t tf_series_first_fractional(const tf_series *s) { return s->first_fractional; }
+
+static tf_status check_actions(const tf_series *s, const double *v, const char *what, tf_error *err)
+{
+    for (size_t i = 0; v && i < s->n_years; i++)
+        if (!isnan(v[i]) && !(isfinite(v[i]) && v[i] >= 0))
+            return tf_error_add(err, TF_ERR_RANGE, NULL, s->lines[i], 0,
+                                "removals and releases are numbers of animals >= 0 (write releases as 'added')",
+                                "%s %g in year %d is not a number >= 0", what, v[i], s->first_year + (int)i);
+    return TF_OK;
+}
+
+tf_status tf_series_set_actions(tf_series *s, const double *removed, const double *added, tf_error *err)
+{
+    tf_status st;
+    if ((st = check_actions(s, removed, "removed", err)) || (st = check_actions(s, added, "added", err)))
+        return st;
+    int any = 0;
+    for (size_t i = 0; i < s->n_years; i++)
+        any |= (removed && removed[i] > 0) || (added && added[i] > 0);
+    double *r = NULL, *a = NULL;
+    if (any) {
+        r = calloc(s->n_years, sizeof *r);
+        a = calloc(s->n_years, sizeof *a);
+        if (!r || !a) {
+            free(r);
+            free(a);
+            return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory storing removals");
+        }
+        for (size_t i = 0; i < s->n_years; i++) {
+            r[i] = removed && removed[i] > 0 ? removed[i] : 0.0;
+            a[i] = added && added[i] > 0 ? added[i] : 0.0;
+        }
+    }
+    free(s->removed);
+    free(s->added);
+    s->removed = r;
+    s->added = a;
+    return TF_OK;
+}
+
+int tf_series_has_actions(const tf_series *s) { return s->removed != NULL; }
+double tf_series_removed(const tf_series *s, size_t i) { return s->removed && i < s->n_years ? s->removed[i] : 0.0; }
+double tf_series_added(const tf_series *s, size_t i) { return s->added && i < s->n_years ? s->added[i] : 0.0; }
+
+tf_status tf_series_set_counted_fraction(tf_series *s, double q, tf_error *err)
+{
+    if (!(q > 0 && q <= 1))
+        return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0,
+                            "give the share of the animals present that a count at effort 1 includes, e.g. 0.8",
+                            "counted fraction %g is not in (0, 1]", q);
+    s->counted_fraction = q;
+    return TF_OK;
+}
+
+double tf_series_counted_fraction(const tf_series *s) { return s->counted_fraction; }
+
+double tf_series_take(const tf_series *s, size_t i)
+{
+    if (!s->removed || i >= s->n_years)
+        return 0.0;
+    return s->counted_fraction * (s->removed[i] - s->added[i]);
+}
 
 size_t tf_series_outliers(const tf_series *s, tf_series_outlier *out, size_t max)
 {

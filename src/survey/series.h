@@ -30,6 +30,29 @@ size_t tf_series_n_zero(const tf_series *s);
 /* Index of the first surveyed count that is not a whole number, or n_years when all are. */
 size_t tf_series_first_fractional(const tf_series *s);
 
+/* Animals taken out (hunt, cull, capture) and put in (release, translocation) after each year's
+ * count: the growth step from year i to i + 1 acts on the number left (tf_series_take). Copies
+ * n_years values of each (NULL = none; NAN = none that year); each must be finite and >= 0, else
+ * TF_ERR_RANGE naming the year and its input line, and s is unchanged. */
+tf_status tf_series_set_actions(tf_series *s, const double *removed, const double *added, tf_error *err);
+/* Whether any year has a removal or a release. */
+int tf_series_has_actions(const tf_series *s);
+/* Animals removed (added) after the count of year i; 0 when none or i >= n_years. */
+double tf_series_removed(const tf_series *s, size_t i);
+double tf_series_added(const tf_series *s, size_t i);
+
+/* The share of the animals present that a count at effort 1 includes, in (0, 1]: the link between
+ * animals removed and the abundance in count units. 1 (the default) means the counts are
+ * censuses up to counting error. Set by the commands from --counted-fraction; values outside
+ * (0, 1] are TF_ERR_RANGE and leave s unchanged. */
+tf_status tf_series_set_counted_fraction(tf_series *s, double q, tf_error *err);
+double tf_series_counted_fraction(const tf_series *s);
+
+/* The net take after the count of year i in count units at effort 1, what the growth step
+ * subtracts from the latent abundance exp(x): q (removed - added). 0 for a year without
+ * removals or releases (and for i >= n_years). */
+double tf_series_take(const tf_series *s, size_t i);
+
 /* Counts far from their neighbours, flagged for a look (never dropped). A surveyed year is flagged
  * when its log(count / effort + 0.5) lies more than log(TF_SERIES_OUTLIER_FACTOR) from the median
  * of the same value over its neighbours: up to TF_SERIES_OUTLIER_WINDOW surveyed years on each

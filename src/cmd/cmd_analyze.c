@@ -310,7 +310,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_WINDOW, OPT_POP, OPT_MODEL, OPT_OBS, OPT_RUNS, OPT_BATCH, OPT_FRESH,
-           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES };
+           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -319,6 +319,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         TF_ARGS_SAMPLER_LONGOPTS,
@@ -376,6 +377,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
+        case OPT_COUNTED: tf_input_set_counted_fraction(&in, optarg, &err); break;
         case OPT_MODEL:
             tf_args_model_names("--model", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
                                 &opt.n_growth, &all, 1, &err);
@@ -468,7 +470,8 @@ static int analyze(int argc, char **argv, int rank, int size)
     }
     if (!in.n_labels) {
         tf_survey_options so = {.batch = 1, .max_rows = BATCH_MAX_ROWS, .estimates = in.estimates};
-        if ((st = tf_survey_read_with(path, &so, &sv, &err)) != TF_OK) {
+        if ((st = tf_survey_read_with(path, &so, &sv, &err)) != TF_OK ||
+            (st = tf_input_prepare(&in, sv, path, errs, PROG, &err)) != TF_OK) {
             status = TF_EXIT_INPUT;
             goto out;
         }

@@ -652,7 +652,7 @@ out:
 /* ---- the command line ---------------------------------------------------------------------------- */
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_PARAMETER,
-       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES };
+       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -671,6 +671,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"population", required_argument, NULL, OPT_POPULATION},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
         {"output", required_argument, NULL, 'o'},
@@ -701,6 +702,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         case OPT_POPULATION: tf_input_set_population(&o->in, optarg, err); break;
         case OPT_SKIP: o->in.skip_unusable = 1; break;
         case OPT_ESTIMATES: o->in.estimates = 1; break;
+        case OPT_COUNTED: tf_input_set_counted_fraction(&o->in, optarg, err); break;
         case 'o': o->out_dir = optarg; break;
         case 'q': o->quiet = 1; break;
         case 'h': help(stdout); return 1;

@@ -420,6 +420,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     opt.weight_names = wnames;
     opt.weights = wvals;
     opt.estimates = in.estimates;
+    opt.counted_fraction = tf_input_counted_fraction(&in);
     opt.population = tf_input_single(&in);
     if (in.n_labels && batch && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "drop --population to run the batch, or --batch for one population",

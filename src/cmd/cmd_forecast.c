@@ -108,6 +108,8 @@ static void help(FILE *out)
             "  --skip-unusable         leave out, with a warning, every population that cannot be fitted\n"
             "  --estimates             the counts are estimates that need not be whole numbers: only\n"
             "                          counting-error models of continuous amounts (lognormal) are fitted\n"
+            "  --counted-fraction Q    the share of the animals present that a count at effort 1 includes,\n"
+            "                          in (0, 1] (default 1); links removed/added animals to the counts\n"
             "  --start N               current abundance. With --parameter: by default the last surveyed\n"
             "                          count / effort. With a posterior, a what-if: every draw starts from N\n"
             "                          instead of its latent abundance, keeping the uncertainty about the\n"

@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "model/model_internal.h"
+#include "model/vector_math.h"
 
 struct tf_model {
     const tf_growth_type *growth;
@@ -160,10 +161,13 @@ void tf_model_take(double take, double *x, size_t n)
 {
     if (take == 0)
         return;
+    /* One branch-free loop, so that exp and log go to the vector maths (vector_math.h). What is
+     * left within rounding of nothing (e^ln 10 - 10 = 2e-15) is nothing. */
     for (size_t i = 0; i < n; i++) {
-        /* What is left within rounding of nothing (e^ln 10 - 10 = 2e-15) is nothing. */
         double here = exp(x[i]), left = here - take;
-        x[i] = left > 1e-12 * here ? fmax(log(left), TF_MODEL_LOG_EXTINCT) : TF_MODEL_LOG_EXTINCT;
+        double lg = log(left > 1e-12 * here ? left : 1.0);
+        lg = lg < TF_MODEL_LOG_EXTINCT ? TF_MODEL_LOG_EXTINCT : lg;
+        x[i] = left > 1e-12 * here ? lg : TF_MODEL_LOG_EXTINCT;
     }
 }
 

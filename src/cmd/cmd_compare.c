@@ -50,6 +50,7 @@ static void help(FILE *out)
             "  --model M,...      growth models to compare (default: all of %s)\n"
             "  --obs O,...        counting-error models (default: those of %s that suit the counts)\n"
             TF_INPUT_HELP
+            TF_INPUT_EFFORT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n",
             growth, obs);
@@ -198,13 +199,14 @@ static tf_status comparison_tables(const tf_comparison *c, const char *populatio
 
 int tf_cmd_compare(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES, OPT_EFFORT_NAME };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"effort-name", required_argument, NULL, OPT_EFFORT_NAME},
         {"output", required_argument, NULL, 'o'},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
@@ -240,6 +242,7 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
+        case OPT_EFFORT_NAME: tf_input_set_effort_name(&in, optarg, &err); break;
         case 'o': out_dir = optarg; break;
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;

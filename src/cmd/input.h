@@ -22,9 +22,16 @@
     "                     of continuous amounts (lognormal) then apply. Without it a\n"                 \
     "                     count that is not a whole number is an error\n"
 
+/* Help lines of --effort-name, for the commands whose tables give abundances in a unit. */
+#define TF_INPUT_EFFORT_HELP                                                                                   \
+    "  --effort-name TEXT the unit of the effort column in a few words (\"trap-night\"): where\n"          \
+    "                     effort varies, abundances read \"count units per TEXT\" instead of\n"             \
+    "                     \"count units per unit effort\" (at most 32 characters, no comma)\n"
+
 /* A small value type on the caller's stack; zero it before use. */
 typedef struct {
     int estimates;          /* --estimates */
+    const char *effort_name; /* --effort-name, checked; borrowed from argv; NULL = not named */
     int skip_unusable;      /* --skip-unusable */
     size_t n_labels;        /* --population, split: labels[0 .. n_labels) point into buf */
     const char *labels[TF_INPUT_MAX_LABELS];
@@ -34,6 +41,10 @@ typedef struct {
 /* Splits a --population list into in (blanks around labels allowed, a label given twice is kept
  * once). TF_ERR_USAGE for an empty label or too many. A repeated option replaces the list. */
 tf_status tf_input_set_population(tf_input *in, const char *text, tf_error *err);
+
+/* Sets --effort-name after checking it (tf_series_check_effort_name: TF_ERR_USAGE). text is
+ * borrowed and must outlive in. */
+tf_status tf_input_set_effort_name(tf_input *in, const char *text, tf_error *err);
 
 /* The one population chosen, or NULL when none or several were. */
 const char *tf_input_single(const tf_input *in);

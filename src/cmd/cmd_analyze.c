@@ -73,6 +73,7 @@ static void help(FILE *out, const tf_analysis_options *d)
             "  --decline-window Y also report declines over Y whole years (e.g. three generations,\n"
             "                     rounded); declines over 10 years are always reported\n"
             TF_INPUT_HELP
+            TF_INPUT_EFFORT_HELP
             "  --model M,...      growth models to compare (default exponential,ricker,gompertz; 'all'\n"
             "                     for every one of %s)\n"
             "  --obs O,...        counting-error models (default poisson,negbin for whole counts,\n"
@@ -122,9 +123,9 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
     snprintf(med, sizeof med, fmt, last->median);
     snprintf(lo, sizeof lo, fmt, last->q025);
     snprintf(hi, sizeof hi, fmt, last->q975);
-    int per_effort = tf_tables_per_effort(s);
+    char per[TF_TABLES_UNIT_SIZE];
     fprintf(out, "  abundance in %d: about %s %s (95 %% interval %s to %s)\n", last->year, med,
-            per_effort ? "per unit of effort" : "animals", lo, hi);
+            tf_tables_per_effort(s) ? tf_tables_per_what(s, per, sizeof per) : "animals", lo, hi);
     fprintf(out, "  best-supported growth model: %s (probability %.2f)\n", tf_analysis_pop_growth(p, g)->label,
             tf_analysis_pop_growth_probability(p, g));
     tf_analysis_tables_sentences(a, i, text, sizeof text);
@@ -226,6 +227,12 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 {
     char extra[4096];
     model_file_lines(opt, opt->priors_ctx, extra, sizeof extra);
+    /* The effort's name changes words, not numbers, but a resumed batch must not mix units in its
+     * combined table; written only when given, as the model-file lines are. */
+    const char *effort_name = tf_survey_n_series(sv) ? tf_series_effort_name(tf_survey_series(sv, 0)) : "";
+    size_t used = strlen(extra);
+    if (effort_name[0] && used < sizeof extra)
+        snprintf(extra + used, sizeof extra - used, "effort-name %s\n", effort_name);
     tf_batch_options bo = {.analysis = *opt, .survey_path = path, .title = name, .root = root, .workbook = xlsx,
                            .workbook_limit = workbook_limit, .workbook_draws = workbook_draws,
                            .extra_settings = extra, .fresh = fresh};
@@ -310,7 +317,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_WINDOW, OPT_POP, OPT_MODEL, OPT_OBS, OPT_RUNS, OPT_BATCH, OPT_FRESH,
-           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
+           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES, OPT_EFFORT_NAME, OPT_COUNTED };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -320,6 +327,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"counted-fraction", required_argument, NULL, OPT_COUNTED},
+        {"effort-name", required_argument, NULL, OPT_EFFORT_NAME},
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         TF_ARGS_SAMPLER_LONGOPTS,
@@ -378,6 +386,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
         case OPT_COUNTED: tf_input_set_counted_fraction(&in, optarg, &err); break;
+        case OPT_EFFORT_NAME: tf_input_set_effort_name(&in, optarg, &err); break;
         case OPT_MODEL:
             tf_args_model_names("--model", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
                                 &opt.n_growth, &all, 1, &err);
@@ -470,7 +479,8 @@ static int analyze(int argc, char **argv, int rank, int size)
         goto out;
     }
     if (!in.n_labels) {
-        tf_survey_options so = {.batch = 1, .max_rows = BATCH_MAX_ROWS, .estimates = in.estimates};
+        tf_survey_options so = {.batch = 1, .max_rows = BATCH_MAX_ROWS, .estimates = in.estimates,
+                                .effort_name = in.effort_name};
         if ((st = tf_survey_read_with(path, &so, &sv, &err)) != TF_OK ||
             (st = tf_input_prepare(&in, sv, path, errs, PROG, &err)) != TF_OK) {
             status = TF_EXIT_INPUT;

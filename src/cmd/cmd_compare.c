@@ -50,6 +50,7 @@ static void help(FILE *out)
             "  --model M,...      growth models to compare (default: all of %s)\n"
             "  --obs O,...        counting-error models (default: those of %s that suit the counts)\n"
             TF_INPUT_HELP
+            TF_INPUT_EFFORT_HELP
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n",
             growth, obs);
@@ -198,7 +199,7 @@ static tf_status comparison_tables(const tf_comparison *c, const char *populatio
 
 int tf_cmd_compare(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES, OPT_EFFORT_NAME, OPT_COUNTED };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -206,6 +207,7 @@ int tf_cmd_compare(int argc, char **argv)
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"counted-fraction", required_argument, NULL, OPT_COUNTED},
+        {"effort-name", required_argument, NULL, OPT_EFFORT_NAME},
         {"output", required_argument, NULL, 'o'},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
@@ -242,6 +244,7 @@ int tf_cmd_compare(int argc, char **argv)
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
         case OPT_COUNTED: tf_input_set_counted_fraction(&in, optarg, &err); break;
+        case OPT_EFFORT_NAME: tf_input_set_effort_name(&in, optarg, &err); break;
         case 'o': out_dir = optarg; break;
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;

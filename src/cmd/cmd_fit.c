@@ -47,12 +47,15 @@ static void help(FILE *out)
             "  diagnostics.csv  the sampler's health: worst R-hat, smallest ESS, acceptance, checks\n"
             "  chains.csv       per chain: acceptance, particles, the spread of the log-likelihood\n"
             "  draws.csv        every kept draw: chain, draw, log-likelihood, the parameters\n"
+            "  paths.csv        with --paths: the latent abundance of every year of every kept draw\n"
             "and prints a short summary.\n\n"
             "options:\n"
             "  --model M          growth model: %s\n"
             "  --obs O            counting error: %s (default poisson;\n"
             "                     lognormal with --estimates)\n"
             TF_INPUT_HELP
+            TF_INPUT_EFFORT_HELP
+            "  --paths            also write paths.csv (one row per kept draw and year: large)\n"
             "  -o, --output DIR   where to write (default output/<survey name>/, with one\n"
             "                     sub-directory per population when the file has several)\n",
             growth, obs);
@@ -159,12 +162,12 @@ static void job_clear(job *j)
     memset(j, 0, sizeof *j);
 }
 
-#define N_TABLES 6
+#define N_TABLES 7   /* the six fit tables, and paths with --paths */
 
 /* Writes the tables of every population as one group (fileset.h): either every file
  * is replaced or none is, and directories this call made are taken away again on failure. The
  * tables are the fit tables every command writes (tables/fit_tables.h), one file each. */
-static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
+static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_path, int paths, tf_error *err)
 {
     tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_TABLES, err);
     tf_status st = g ? TF_OK : TF_ERR_NOMEM;
@@ -182,9 +185,12 @@ static tf_status write_all(const job *jobs, size_t n_jobs, const char *survey_pa
             (st = tf_tables_diagnostics(&c, &m, 1, &tables[3], err)) == TF_OK &&
             (st = tf_tables_chains(&c, &m, 1, &tables[4], err)) == TF_OK)
             st = tf_tables_draws(&c, &m, 1, &tables[5], err);
+        if (st == TF_OK && paths)
+            st = tf_tables_paths(&c, &m, 1, &tables[6], err);
+        size_t n_tables = paths ? N_TABLES : N_TABLES - 1;
         if (st == TF_OK)
             st = tf_fileset_mkdir(g, j->dir, err);
-        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
+        for (size_t k = 0; k < n_tables && st == TF_OK; k++) {
             char path[4600];
             int n = snprintf(path, sizeof path, "%s/%s.csv", j->dir, tf_table_name(tables[k]));
             if (n < 0 || (size_t)n >= sizeof path) {
@@ -225,8 +231,9 @@ static void print_summary(const job *j, FILE *out)
     const tf_fit_year_summary *last = tf_fit_year(f, tf_fit_n_years(f) - 1);
     /* The unit of the tables (tf_tables_unit): per unit of effort only where the effort differs
      * between years. */
+    char unit[TF_TABLES_UNIT_SIZE];
     fprintf(out, "  abundance in %d: median %.4g (95%% interval %.4g to %.4g) %s\n", last->year, last->median,
-            last->q025, last->q975, tf_tables_unit(j->series));
+            last->q025, last->q975, tf_tables_unit(j->series, unit, sizeof unit));
     const tf_fit_trend_summary *tr = tf_fit_trend(f);
     if (!isnan(tr->median))
         fprintf(out, "  average change %d-%d: %+.2f%% per year (95%% interval %+.2f%% to %+.2f%%), "
@@ -261,7 +268,7 @@ static void print_warnings(const job *j)
 
 int tf_cmd_fit(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES, OPT_EFFORT_NAME, OPT_PATHS, OPT_COUNTED };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -269,6 +276,8 @@ int tf_cmd_fit(int argc, char **argv)
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"counted-fraction", required_argument, NULL, OPT_COUNTED},
+        {"effort-name", required_argument, NULL, OPT_EFFORT_NAME},
+        {"paths", no_argument, NULL, OPT_PATHS},
         {"output", required_argument, NULL, 'o'},
         TF_ARGS_SAMPLER_LONGOPTS,
         {"quiet", no_argument, NULL, 'q'},
@@ -280,7 +289,7 @@ int tf_cmd_fit(int argc, char **argv)
     const char *growth = NULL, *obs = NULL, *population = NULL, *out_dir = NULL;
     tf_pmmh_options opt = tf_pmmh_default_options();
     opt.n_threads = tf_args_default_threads(TF_ARGS_MAX_THREADS);
-    int quiet = 0;
+    int quiet = 0, paths = 0;
     tf_args_sampler sampler;
     tf_args_sampler_init(&sampler);
     tf_input in = {0};
@@ -296,6 +305,8 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
         case OPT_COUNTED: tf_input_set_counted_fraction(&in, optarg, &err); break;
+        case OPT_EFFORT_NAME: tf_input_set_effort_name(&in, optarg, &err); break;
+        case OPT_PATHS: paths = 1; break;
         case 'o': out_dir = optarg; break;
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
@@ -406,7 +417,7 @@ int tf_cmd_fit(int argc, char **argv)
      * a late Ctrl-C cannot stop the group half-way through its renames. */
     sigset_t old_mask;
     tf_signals_hold(&old_mask);
-    tf_status wst = write_all(jobs, n_jobs, path, &err);
+    tf_status wst = write_all(jobs, n_jobs, path, paths, &err);
     tf_signals_release(&old_mask);
     if (wst != TF_OK) {
         status = tf_args_exit_code(wst);

@@ -110,6 +110,8 @@ static void help(FILE *out)
             "                          counting-error models of continuous amounts (lognormal) are fitted\n"
             "  --counted-fraction Q    the share of the animals present that a count at effort 1 includes,\n"
             "                          in (0, 1] (default 1); links removed/added animals to the counts\n"
+            "  --effort-name TEXT      the unit of the effort column (\"trap-night\"): abundances read\n"
+            "                          \"count units per TEXT\" where effort varies (at most 32 characters)\n"
             "  --start N               current abundance. With --parameter: by default the last surveyed\n"
             "                          count / effort. With a posterior, a what-if: every draw starts from N\n"
             "                          instead of its latent abundance, keeping the uncertainty about the\n"
@@ -289,7 +291,12 @@ static void print_source(const tf_forecast *f, const tf_forecast_pop *p)
         printf("\n  start N = %g%s\n", p->start, p->year0 == TF_PROJECTION_NO_YEAR ? "" : " in the last survey year");
         return;
     }
-    const char *unit = tf_tables_per_effort(p->series) ? " per unit of effort" : "";
+    char per[TF_TABLES_UNIT_SIZE + 1] = "";
+    if (tf_tables_per_effort(p->series)) {
+        per[0] = ' ';
+        tf_tables_per_what(p->series, per + 1, sizeof per - 1);
+    }
+    const char *unit = per;
     size_t ny = tf_series_n_years(p->series);
     if (fo->source == TF_FORECAST_MODEL) {
         const tf_fit *fit = p->fit;
@@ -654,7 +661,7 @@ out:
 /* ---- the command line ---------------------------------------------------------------------------- */
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_PARAMETER,
-       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
+       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES, OPT_EFFORT_NAME, OPT_COUNTED };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -674,6 +681,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"counted-fraction", required_argument, NULL, OPT_COUNTED},
+        {"effort-name", required_argument, NULL, OPT_EFFORT_NAME},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
         {"output", required_argument, NULL, 'o'},
@@ -705,6 +713,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         case OPT_SKIP: o->in.skip_unusable = 1; break;
         case OPT_ESTIMATES: o->in.estimates = 1; break;
         case OPT_COUNTED: tf_input_set_counted_fraction(&o->in, optarg, err); break;
+        case OPT_EFFORT_NAME: tf_input_set_effort_name(&o->in, optarg, err); break;
         case 'o': o->out_dir = optarg; break;
         case 'q': o->quiet = 1; break;
         case 'h': help(stdout); return 1;

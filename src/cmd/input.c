@@ -26,6 +26,14 @@ tf_status tf_input_set_population(tf_input *in, const char *text, tf_error *err)
     return TF_OK;
 }
 
+tf_status tf_input_set_effort_name(tf_input *in, const char *text, tf_error *err)
+{
+    tf_status st = tf_series_check_effort_name(text, err);
+    if (st == TF_OK)
+        in->effort_name = text;
+    return st;
+}
+
 const char *tf_input_single(const tf_input *in) { return in->n_labels == 1 ? in->labels[0] : NULL; }
 
 static int chosen(const tf_input *in, const char *label)
@@ -69,7 +77,7 @@ static tf_status read_chosen(const tf_input *in, const char *path, FILE *warn, c
                              tf_error *err)
 {
     *out = NULL;
-    tf_survey_options so = {.estimates = in->estimates};
+    tf_survey_options so = {.estimates = in->estimates, .effort_name = in->effort_name};
     if (!in->n_labels && !in->skip_unusable)
         return tf_args_read_survey_with(path, &so, out, err);
     so.batch = 1;

@@ -25,9 +25,16 @@
     "                     includes, in (0, 1] (default 1: counts are censuses up to counting\n"            \
     "                     error); links the survey's removed/added animals to the counts\n"
 
+/* Help lines of --effort-name, for the commands whose tables give abundances in a unit. */
+#define TF_INPUT_EFFORT_HELP                                                                                   \
+    "  --effort-name TEXT the unit of the effort column in a few words (\"trap-night\"): where\n"          \
+    "                     effort varies, abundances read \"count units per TEXT\" instead of\n"             \
+    "                     \"count units per unit effort\" (at most 32 characters, no comma)\n"
+
 /* A small value type on the caller's stack; zero it before use. */
 typedef struct {
     int estimates;          /* --estimates */
+    const char *effort_name; /* --effort-name, checked; borrowed from argv; NULL = not named */
     int skip_unusable;      /* --skip-unusable */
     double counted_fraction; /* --counted-fraction; 0 = not given (1) */
     size_t n_labels;        /* --population, split: labels[0 .. n_labels) point into buf */
@@ -49,6 +56,10 @@ double tf_input_counted_fraction(const tf_input *in);
  * counted only when low, narrow enough to catch removals typed in other units or with extra
  * digits. */
 #define TF_INPUT_REMOVAL_FACTOR 10.0
+
+/* Sets --effort-name after checking it (tf_series_check_effort_name: TF_ERR_USAGE). text is
+ * borrowed and must outlive in. */
+tf_status tf_input_set_effort_name(tf_input *in, const char *text, tf_error *err);
 
 /* The one population chosen, or NULL when none or several were. */
 const char *tf_input_single(const tf_input *in);

@@ -41,8 +41,11 @@
 #define MAX_ROW_HEIGHT 409.0      /* Excel's largest row height in points */
 #define HEADING_HEIGHT 24.0       /* a summary heading row: 12 pt type with room above */
 /* Charts: libxlsxwriter's default 480 x 288 px chart, scaled; CHART_ROWS default rows of
- * 20 px hold one chart with a gap, for stacking automatically placed charts. */
-#define CHART_X_SCALE 1.5
+ * 20 px hold one chart with a gap, for stacking automatically placed charts. Charts placed
+ * automatically go below their sheet's table, one under the other, so that a chart never widens
+ * the printed page: 480 x 1.4 = 672 px fits the 698 px of a portrait A4 page (PRINT_PORTRAIT_PX)
+ * from the sheet's first visible column. */
+#define CHART_X_SCALE 1.4
 #define CHART_Y_SCALE 1.4
 #define CHART_ROWS 22
 #define CHART_PX (480.0 * CHART_X_SCALE)
@@ -696,7 +699,7 @@ static tf_status write_notes(tf_workbook *wb, tf_sheet *s, const tf_table *t, co
         lxw_error rc = last > 0 ? worksheet_merge_range(s->ws, *row, 0, *row, (lxw_col_t)last, text, f)
                                 : worksheet_write_string(s->ws, *row, 0, text, f);
         if (rc == LXW_NO_ERROR)
-            rc = worksheet_set_row(s->ws, *row, row_height(wrapped_lines(text_len(text), total)), NULL);
+            rc = worksheet_set_row(s->ws, *row, row_height(text_lines(text, total, flags & F_CAUTION)), NULL);
         if (rc != LXW_NO_ERROR)
             return lxw_fail(wb, rc, "note", err);
     }
@@ -965,9 +968,11 @@ static tf_status write_summary(tf_workbook *wb, tf_sheet *s, const tf_table *t, 
         }
         for (size_t j = 1; j < 4 && !tf_table_is_heading(t, i); j++) {
             const char *text = tf_table_text(t, i, j);
-            /* A number fits: its column is at least as wide as the widest one. */
+            /* A number fits: its column is at least as wide as the widest one. Labels and
+             * flagged cells are bold (F_LABEL, F_WARN), so a tenth wider. */
             if (text)
-                lines = fmax(lines, text_lines(text, spread && j == 2 ? width[2] + width[3] : width[j], j == 1));
+                lines = fmax(lines, text_lines(text, spread && j == 2 ? width[2] + width[3] : width[j],
+                                               j == 1 || tf_table_warning(t, i, j)));
         }
         double h = tf_table_is_heading(t, i) ? HEADING_HEIGHT : row_height(lines);
         if (h > LINE_HEIGHT) {
@@ -1103,8 +1108,14 @@ tf_status tf_workbook_add_chart(tf_workbook *wb, const tf_chart_spec *spec, tf_e
         if (!parse_anchor(spec->anchor, &at_row, &at_col))
             return bad_spec(wb, err, "the anchor is not a cell name such as H3");
     } else {
-        at_col = (lxw_col_t)(p->n_cols + 1);
-        at_row = p->top_row + (lxw_row_t)(p->n_auto_charts * CHART_ROWS);
+        /* Below the table, after one blank row, from its first visible column (a chart anchored
+         * in a hidden column would be drawn squeezed). */
+        at_col = 0;
+        while (at_col < p->n_cols && !(p->widths[at_col] > 0))
+            at_col++;
+        if (at_col == p->n_cols)
+            at_col = 0;
+        at_row = p->first_data_row + (lxw_row_t)p->n_rows + 1 + (lxw_row_t)(p->n_auto_charts * CHART_ROWS);
     }
 
     lxw_chart *ch = workbook_add_chart(wb->lxw, spec->kind == TF_CHART_XY ? LXW_CHART_SCATTER_STRAIGHT : LXW_CHART_COLUMN);

@@ -120,14 +120,14 @@ typedef struct {
      * n_rows must then be given. 0 = every series plots the same rows. */
     size_t series_stride;
     const tf_sheet *place;  /* sheet the chart is drawn on; NULL = the data sheet */
-    const char *anchor;     /* top-left cell such as "H3"; NULL = right of the table, below earlier charts */
+    const char *anchor;     /* top-left cell such as "H3"; NULL = below the table and earlier charts */
 } tf_chart_spec;
 
 /* Adds a native chart whose series refer to the data sheet's cells (so a reader who edits a value
  * sees the chart follow). When the x column is a year or integer column, the x axis of an XY
  * chart spans exactly the plotted rows' range, without decimals; a y axis takes the first
  * series' percent or probability format, and starts at 0 when every series is one. Automatic
- * placement puts the chart right of the table, each further chart below the previous one.
+ * placement puts the chart below the table, each further chart below the previous one.
  * Fails with TF_ERR_INVALID for a column or row out of range, no series, a sheet of another
  * workbook or a bad anchor, leaving the workbook as it was; with TF_ERR_IO or TF_ERR_NOMEM from
  * libxlsxwriter (the workbook then cannot be written). Copies all strings. */

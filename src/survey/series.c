@@ -1,15 +1,18 @@
 /* One population's annual counts. */
 #include "survey/series.h"
 
+#include <ctype.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "util/stats.h"
+#include "util/utf8.h"
 
 struct tf_series {
     char *label;
+    char *effort_name;  /* NULL = not named */
     int first_year;
     size_t n_years;
     double *counts;
@@ -84,6 +87,7 @@ void tf_series_free(tf_series *s)
     if (!s)
         return;
     free(s->label);
+    free(s->effort_name);
     free(s->counts);
     free(s->effort);
     free(s->lines);
@@ -93,6 +97,46 @@ void tf_series_free(tf_series *s)
 }
 
 const char *tf_series_label(const tf_series *s) { return s->label; }
+
+tf_status tf_series_check_effort_name(const char *name, tf_error *err)
+{
+    static const char hint[] = "name the unit of effort in a few plain words, e.g. --effort-name trap-night";
+    size_t len = strlen(name), n_chars = 0;
+    if (!len)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "the effort's name is empty");
+    if (tf_utf8_bad_at(name, len) != len)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "the effort's name is not valid UTF-8 text");
+    if (isspace((unsigned char)name[0]) || isspace((unsigned char)name[len - 1]))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "the effort's name '%s' starts or ends with a blank",
+                            name);
+    for (size_t i = 0; i < len; i++) {
+        unsigned char c = (unsigned char)name[i];
+        /* C0 controls (newline, tab...) and DEL would break a cell or a CSV line; a comma would
+         * read as a separator in the unit column and in the command's own lists. */
+        if (c < 0x20 || c == 0x7f)
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint,
+                                "the effort's name holds a control character (a newline or tab?)");
+        if (c == ',')
+            return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "the effort's name '%s' holds a comma", name);
+        n_chars += (c & 0xc0) != 0x80;
+    }
+    if (n_chars > TF_SERIES_EFFORT_NAME_MAX)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, hint, "the effort's name has %zu characters; at most %d",
+                            n_chars, TF_SERIES_EFFORT_NAME_MAX);
+    return TF_OK;
+}
+
+tf_status tf_series_set_effort_name(tf_series *s, const char *name, tf_error *err)
+{
+    char *copy = NULL;
+    if (name && name[0] && !(copy = strdup(name)))
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory naming the effort");
+    free(s->effort_name);
+    s->effort_name = copy;
+    return TF_OK;
+}
+
+const char *tf_series_effort_name(const tf_series *s) { return s->effort_name ? s->effort_name : ""; }
 int tf_series_first_year(const tf_series *s) { return s->first_year; }
 size_t tf_series_n_years(const tf_series *s) { return s->n_years; }
 const double *tf_series_counts(const tf_series *s) { return s->counts; }

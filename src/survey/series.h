@@ -20,6 +20,22 @@ tf_series *tf_series_new(const char *label, int first_year, size_t n_years, cons
 void tf_series_free(tf_series *s);
 
 const char *tf_series_label(const tf_series *s);       /* never NULL; "" = unnamed */
+
+/* Longest name of the survey's unit of effort, in characters (UTF-8 code points). */
+#define TF_SERIES_EFFORT_NAME_MAX 32
+
+/* TF_OK when name can name the unit of effort ("trap-night", "hour of watching"): 1 to
+ * TF_SERIES_EFFORT_NAME_MAX characters of valid UTF-8, no control character, no comma (it is
+ * read inside tables and headers) and no blank at either end. Otherwise TF_ERR_USAGE with what
+ * is wrong and a hint. */
+tf_status tf_series_check_effort_name(const char *name, tf_error *err);
+
+/* Names the unit of effort of s (checked with tf_series_check_effort_name first; NULL or ""
+ * clears it). Copies name. TF_ERR_NOMEM leaves the old name. */
+tf_status tf_series_set_effort_name(tf_series *s, const char *name, tf_error *err);
+
+/* The unit of effort's name, "" when the survey did not name it; never NULL. */
+const char *tf_series_effort_name(const tf_series *s);
 int tf_series_first_year(const tf_series *s);
 size_t tf_series_n_years(const tf_series *s);          /* span, first to last year listed */
 const double *tf_series_counts(const tf_series *s);    /* n_years; NAN = not surveyed */

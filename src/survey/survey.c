@@ -1122,8 +1122,15 @@ finish:
         free(r.faults[k].items);
     free(r.faults);
     if (!r.n_reported) {
-        if (*out)
+        if (*out) {
             (*out)->estimates = o->estimates;
+            for (size_t k = 0; k < (*out)->n_series; k++)
+                if (tf_series_set_effort_name((*out)->series[k], o->effort_name, err) != TF_OK) {
+                    tf_survey_free(*out);
+                    *out = NULL;
+                    return TF_ERR_NOMEM;
+                }
+        }
         return TF_OK;
     }
     tf_survey_free(*out);

@@ -60,6 +60,10 @@ typedef struct {
     /* Read as tf_survey_read_batch: a population with a problem of its own is set aside. */
     int batch;
     size_t max_rows;    /* with batch: replaces TF_SURVEY_MAX_ROWS (0 = keep it) */
+    /* The name of the unit of effort ("trap-night"), given to every series
+     * (tf_series_set_effort_name); NULL or "" = not named. Checked by the caller with
+     * tf_series_check_effort_name. */
+    const char *effort_name;
 } tf_survey_options;
 
 /* tf_survey_read / tf_survey_parse under the options o. */

@@ -136,16 +136,18 @@ static tf_status abundance_sheet(const tf_analysis *a, size_t pi, const tf_analy
     if ((st = add_table(a, pi, prov, r, t, "abundance", "counts and estimated abundance per year", 0, &idx, err)) !=
         TF_OK)
         return st;
+    char points[TF_TABLES_UNIT_SIZE + 8], per[TF_TABLES_UNIT_SIZE];
+    snprintf(points, sizeof points, "Count %s", tf_tables_per_what(s, per, sizeof per));
     tf_chart_series se[] = {
-        {c_points, per_effort ? "Count per effort" : "Count", TF_SERIES_POINTS},
+        {c_points, per_effort ? points : "Count", TF_SERIES_POINTS},
         {c_med, "Estimate", TF_SERIES_LINE},
         {c_lo, "95 % interval", TF_SERIES_BAND},
         {c_hi, "95 % interval (upper)", TF_SERIES_BAND},
     };
-    char title[160];
+    char title[160], axis[TF_TABLES_UNIT_SIZE];
     snprintf(title, sizeof title, "Counts and estimated abundance: %s", pop_title(prov, p));
     tf_report_chart ch = {.kind = TF_CHART_XY, .title = title, .x_title = "Year",
-                          .y_title = per_effort ? "Count units per unit effort" : "Animals", .data = idx,
+                          .y_title = tf_tables_unit_title(s, axis, sizeof axis), .data = idx,
                           .x_column = c_year, .series = se, .n_series = 4, .place = TF_REPORT_SAME_SHEET};
     return tf_report_add_chart(r, &ch, err);
 }
@@ -157,7 +159,10 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
     const tf_analysis_pop *p = tf_analysis_population(a, pi);
     const tf_series *s = tf_analysis_pop_series(p);
     const tf_projection *pr = tf_analysis_pop_projection(p);
-    tf_projection_place place = {.population = pop_title(prov, p), .model = "average", .unit = tf_tables_unit(s),
+    char unit[TF_TABLES_UNIT_SIZE], per[TF_TABLES_UNIT_SIZE];
+    tf_tables_per_what(s, per, sizeof per);
+    tf_projection_place place = {.population = pop_title(prov, p), .model = "average",
+                                 .unit = tf_tables_unit(s, unit, sizeof unit),
                                  .year0 = tf_series_first_year(s) + (int)tf_series_n_years(s) - 1};
     tf_table *t[TF_PROJECTION_N_TABLES];
     tf_status st = tf_projection_tables_build(pr, &place, t, err);
@@ -175,10 +180,10 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
                                    "the models in proportion to their posterior probabilities.",
                                    err);
         if (st == TF_OK && tf_tables_per_effort(s))
-            st = tf_table_add_note(t[i], TF_NOTE_INFO,
-                                   "Effort is not 1 in every survey year, so abundances and thresholds in animals "
-                                   "are per unit of effort.",
-                                   err);
+            st = tf_table_add_notef(t[i], TF_NOTE_INFO, err,
+                                    "Effort is not 1 in every survey year, so abundances and thresholds in animals "
+                                    "are %s.",
+                                    per);
         /* The report owns the table from here on, also when adding fails. */
         tf_table *mine = t[i];
         t[i] = NULL;
@@ -201,7 +206,8 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
     };
     char title[160];
     snprintf(title, sizeof title, "Projected abundance: %s", pop_title(prov, p));
-    const char *animals = tf_tables_per_effort(s) ? "Count units per unit effort" : "Animals";
+    char animals[TF_TABLES_UNIT_SIZE];
+    tf_tables_unit_title(s, animals, sizeof animals);
     tf_report_chart ch = {.kind = TF_CHART_XY, .title = title, .x_title = "Year", .y_title = animals,
                           .data = idx[TF_PROJECTION_TABLE_BANDS], .x_column = c_year, .series = se, .n_series = 3,
                           .place = TF_REPORT_SAME_SHEET};
@@ -362,7 +368,8 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     size_t n = tf_series_n_years(s);
     int y0 = tf_series_first_year(s), y1 = y0 + (int)n - 1;
     char text[1024], note[256];
-    const char *unit = tf_tables_unit(s);
+    char unit[TF_TABLES_UNIT_SIZE];
+    tf_tables_unit(s, unit, sizeof unit);
 
     TRY(tf_table_set_summary_population(t, pop_title(prov, p), err));
     snprintf(text, sizeof text, "Population: %s", pop_title(prov, p));

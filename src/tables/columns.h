@@ -138,6 +138,8 @@ void tf_columns_parameter_name(const char *param, char *buf, size_t size);
 /* What a unit column holds. */
 #define TF_UNIT_ANIMALS "animals"
 #define TF_UNIT_PER_EFFORT "count units per unit effort"
+/* ... and its opening when the survey names its unit of effort: "count units per trap-night". */
+#define TF_UNIT_PER_NAMED "count units per "
 /* What a threshold_kind column holds. */
 #define TF_THRESHOLD_ANIMALS "animals"
 #define TF_THRESHOLD_FRACTION "fraction_of_current"

@@ -34,9 +34,32 @@ const char *tf_tables_population(const tf_series *s, const char *fallback)
     return l[0] ? l : fallback;
 }
 
-const char *tf_tables_unit(const tf_series *s)
+const char *tf_tables_unit(const tf_series *s, char *buf, size_t size)
 {
-    return tf_tables_per_effort(s) ? TF_UNIT_PER_EFFORT : TF_UNIT_ANIMALS;
+    const char *name = tf_series_effort_name(s);
+    if (!tf_tables_per_effort(s))
+        snprintf(buf, size, "%s", TF_UNIT_ANIMALS);
+    else if (!name[0])
+        snprintf(buf, size, "%s", TF_UNIT_PER_EFFORT);
+    else
+        snprintf(buf, size, "%s%s", TF_UNIT_PER_NAMED, name);
+    return buf;
+}
+
+const char *tf_tables_unit_title(const tf_series *s, char *buf, size_t size)
+{
+    tf_tables_unit(s, buf, size);
+    /* Both fixed openings start with an ASCII lower-case letter. */
+    if (buf[0] >= 'a' && buf[0] <= 'z')
+        buf[0] = (char)(buf[0] - 'a' + 'A');
+    return buf;
+}
+
+const char *tf_tables_per_what(const tf_series *s, char *buf, size_t size)
+{
+    const char *name = tf_series_effort_name(s);
+    snprintf(buf, size, "per %s", name[0] ? name : "unit of effort");
+    return buf;
 }
 
 /* A new table with `population` and, when with_model, `model` as its first columns. */
@@ -86,15 +109,18 @@ tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, con
         return tf_error_status(err);
     const tf_series *s = c->series;
     int per_effort = tf_tables_per_effort(s);
-    const char *unit = tf_tables_unit(s);
-    char legend[200];
+    char unit[TF_TABLES_UNIT_SIZE], per[TF_TABLES_UNIT_SIZE];
+    tf_tables_unit(s, unit, sizeof unit);
+    tf_tables_per_what(s, per, sizeof per);
+    char legend[320];
     size_t c_year, c_count, c_effort, c_rate, c_unit, c_med, c_q25, c_q75, c_lo, c_hi;
     TRY(tf_columns_add(t, TF_C_YEAR, NULL, &c_year, err));
     /* Whole counts shown as whole numbers; estimates (--estimates) as they are. */
     int whole = tf_series_first_fractional(s) == tf_series_n_years(s);
     TRY(tf_columns_add_as(t, TF_C_COUNT, NULL, whole ? TF_COL_INTEGER : TF_COL_NUMBER, &c_count, err));
     TRY(tf_columns_add(t, TF_C_EFFORT, NULL, &c_effort, err));
-    TRY(tf_columns_add(t, TF_C_COUNT_PER_EFFORT, NULL, &c_rate, err));
+    snprintf(legend, sizeof legend, "count divided by effort (%s)", unit);
+    TRY(tf_columns_add(t, TF_C_COUNT_PER_EFFORT, per_effort ? legend : NULL, &c_rate, err));
     TRY(tf_columns_add(t, TF_C_UNIT, NULL, &c_unit, err));
     snprintf(legend, sizeof legend, "estimated true abundance, posterior median (%s)", unit);
     TRY(tf_columns_add(t, TF_C_MEDIAN, legend, &c_med, err));
@@ -115,10 +141,10 @@ tf_status tf_tables_abundance(const tf_tables_context *c, const char *model, con
         TRY(tf_table_set_text(t, row, c_unit, unit, err));
     }
     if (per_effort)
-        TRY(tf_table_add_note(t, TF_NOTE_INFO,
-                              "Effort is not 1 in every year, so the estimate is the abundance per unit of effort: "
-                              "the expected count is effort times the estimate.",
-                              err));
+        TRY(tf_table_add_notef(t, TF_NOTE_INFO, err,
+                               "Effort is not 1 in every year, so the estimate is the abundance %s: the expected "
+                               "count is effort times the estimate.",
+                               per));
     if (tf_series_n_surveyed(s) < tf_series_n_years(s))
         TRY(tf_table_add_notef(t, TF_NOTE_INFO, err,
                                "%zu of the %zu years were not surveyed; the model fills them in, with wider intervals.",
@@ -339,6 +365,51 @@ tf_status tf_tables_draws(const tf_tables_context *c, const tf_tables_model *mod
             }
     }
     TRY(tf_table_add_note(t, TF_NOTE_INFO, "Every kept posterior draw of every model, chain by chain.", err));
+fail:
+    return finish(t, st, out);
+}
+
+/* ---- latent paths per draw and year ---- */
+
+tf_status tf_tables_paths(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
+                          tf_error *err)
+{
+    tf_status st = TF_OK;
+    tf_table *t = start("paths", 1, err);
+    if (!t)
+        return tf_error_status(err);
+    char unit[TF_TABLES_UNIT_SIZE], legend[320];
+    tf_tables_unit(c->series, unit, sizeof unit);
+    snprintf(legend, sizeof legend, "latent abundance of the year held with the draw (%s)", unit);
+    size_t c_chain, c_draw, c_year, c_unit, c_abundance;
+    TRY(tf_columns_add(t, TF_C_CHAIN, NULL, &c_chain, err));
+    TRY(tf_columns_add(t, TF_C_DRAW, NULL, &c_draw, err));
+    TRY(tf_columns_add(t, TF_C_YEAR, NULL, &c_year, err));
+    TRY(tf_columns_add(t, TF_C_UNIT, NULL, &c_unit, err));
+    TRY(tf_columns_add(t, TF_C_ABUNDANCE, legend, &c_abundance, err));
+    int y0 = tf_series_first_year(c->series);
+    for (size_t i = 0; i < n; i++) {
+        const tf_fit *f = models[i].fit;
+        if (!f)
+            continue;
+        size_t ny = tf_fit_n_years(f);
+        for (size_t ch = 0; ch < tf_fit_n_chains(f); ch++)
+            for (size_t it = 0; it < tf_fit_n_iter(f); it++) {
+                const double *x = tf_fit_path(f, ch, it);
+                for (size_t y = 0; y < ny; y++) {
+                    size_t row;
+                    TRY(begin_row(t, c, models[i].name, &row, err));
+                    tf_table_set_number(t, row, c_chain, (double)(ch + 1));
+                    tf_table_set_number(t, row, c_draw, (double)(it + 1));
+                    tf_table_set_number(t, row, c_year, (double)(y0 + (int)y));
+                    TRY(tf_table_set_text(t, row, c_unit, unit, err));
+                    tf_table_set_number(t, row, c_abundance, exp(x[y]));
+                }
+            }
+    }
+    TRY(tf_table_add_note(t, TF_NOTE_INFO,
+                          "The latent abundance of every year held with every kept posterior draw, chain by chain.",
+                          err));
 fail:
     return finish(t, st, out);
 }

@@ -37,9 +37,18 @@ typedef struct {
  * survey has no population column. */
 const char *tf_tables_population(const tf_series *s, const char *fallback);
 
-/* The unit of the abundances of s: TF_UNIT_PER_EFFORT when a surveyed year's effort is not 1,
- * else TF_UNIT_ANIMALS. */
-const char *tf_tables_unit(const tf_series *s);
+/* Room for any unit text below: the longest effort name (TF_SERIES_EFFORT_NAME_MAX characters,
+ * up to 4 bytes each) and the words around it. */
+#define TF_TABLES_UNIT_SIZE 192
+
+/* The unit of the abundances of s, written into buf (size bytes) and returned: TF_UNIT_ANIMALS
+ * when every surveyed year's effort is 1; else TF_UNIT_PER_EFFORT, or "count units per NAME"
+ * when the survey names its unit of effort (tf_series_effort_name). */
+const char *tf_tables_unit(const tf_series *s, char *buf, size_t size);
+/* The same with a capital first letter, for chart axes: "Animals", "Count units per NAME". */
+const char *tf_tables_unit_title(const tf_series *s, char *buf, size_t size);
+/* What a figure per effort is per, for sentences: "per unit of effort", or "per NAME". */
+const char *tf_tables_per_what(const tf_series *s, char *buf, size_t size);
 /* Whether a surveyed year's effort is not 1: abundances are then per unit of effort. */
 int tf_tables_per_effort(const tf_series *s);
 
@@ -63,6 +72,12 @@ tf_status tf_tables_parameters(const tf_tables_context *c, const tf_tables_model
 /* A column for every parameter of every model the program knows, so that the same table of
  * every population and command has one header; blank where a model lacks the parameter. */
 tf_status tf_tables_draws(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
+                          tf_error *err);
+/* The latent abundance of every year held with every kept draw (exp of the path the particle
+ * filter drew with it), one row per draw and year: the posterior paths from which the abundance
+ * and the trends are summarised, for readers who compute their own summaries. Only the fitted
+ * models of models[0 .. n). */
+tf_status tf_tables_paths(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
                           tf_error *err);
 tf_status tf_tables_diagnostics(const tf_tables_context *c, const tf_tables_model *models, size_t n, tf_table **out,
                                 tf_error *err);

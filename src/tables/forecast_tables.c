@@ -158,11 +158,14 @@ tf_status tf_forecast_tables_build(const tf_forecast *f, const tf_forecast_pop *
 {
     out[TF_FORECAST_TABLE_SUMMARY] = NULL;
     tf_forecast_source from = tf_forecast_options_of(f)->source;
+    char unit[TF_TABLES_UNIT_SIZE] = TF_UNIT_ANIMALS;
+    if (p->series)
+        tf_tables_unit(p->series, unit, sizeof unit);
     tf_projection_place place = {.population = population,
                                  .model = from == TF_FORECAST_AVERAGE ? "average"
                                           : from == TF_FORECAST_FIXED ? "fixed"
                                                                       : tf_model_name(p->model),
-                                 .unit = p->series ? tf_tables_unit(p->series) : TF_UNIT_ANIMALS,
+                                 .unit = unit,
                                  .year0 = p->year0};
     tf_status st = tf_projection_tables_build(p->projection, &place, out, err);
     /* Each projection table carries this forecast's own cautions as notes, for readers of the

@@ -147,7 +147,8 @@ tf_status tf_populations_table_add(tf_table *t, const tf_project_options *p, con
     tf_table_set_number(t, row, C_FIRST, tf_series_first_year(s));
     tf_table_set_number(t, row, C_LAST, tf_series_first_year(s) + (double)ny - 1);
     tf_table_set_number(t, row, C_SURVEYED, (double)tf_series_n_surveyed(s));
-    if ((st = tf_table_set_text(t, row, C_UNIT, tf_tables_unit(s), err)))
+    char unit[TF_TABLES_UNIT_SIZE];
+    if ((st = tf_table_set_text(t, row, C_UNIT, tf_tables_unit(s, unit, sizeof unit), err)))
         return st;
     size_t c = C_RISK0, nry = n_risk_years(p);
     for (size_t k = 0; k < p->n_thresholds; k++, c += 2 + nry) {

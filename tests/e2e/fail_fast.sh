@@ -98,6 +98,17 @@ expect "likelihood --population short" 3 "population 'short' has 1 surveyed year
 expect "check --population north" 2 "no population named 'north'" "$T" check "$tmp/three.csv" --population north
 expect "forecast --estimates --obs poisson" 2 "--obs poisson is a model of whole counts" \
   "$T" forecast "$S" --model ricker --obs poisson --estimates "${LONG[@]}" -o "$tmp/o-pop"
+# A bad name for the effort (--effort-name: short, printable, no comma) is refused by every
+# command that takes it.
+expect "fit --effort-name with a comma" 2 "holds a comma" \
+  "$T" fit "$S" --model ricker --effort-name "trap,night" "${LONG[@]}" -o "$tmp/o-eff1"
+expect "compare --effort-name too long" 2 "at most 32" \
+  "$T" compare "$S" --effort-name "$(printf 'x%.0s' $(seq 33))" "${LONG[@]}" -o "$tmp/o-eff2"
+expect "forecast --effort-name with a newline" 2 "control character" \
+  "$T" forecast "$S" --model ricker --effort-name "$(printf 'trap\nnight')" "${LONG[@]}" -o "$tmp/o-eff3"
+expect "analyze --effort-name empty" 2 "the effort's name is empty" \
+  "$T" analyze "$S" --effort-name "" "${LONG[@]}" -o "$tmp/o-eff4"
+for d in o-eff1 o-eff2 o-eff3 o-eff4; do [ -e "$tmp/$d" ] && fail "$d: an output folder was made"; done
 expect "analyze, a bad threshold" 2 "threshold 'abc' is not a number" "$T" analyze "$S" --threshold 50,abc "${LONG[@]}" -o "$tmp/o-pop"
 # The last population suits no candidate (a zero under log-normal counting error): refused before
 # the first population is fitted.

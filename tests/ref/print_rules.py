@@ -63,3 +63,81 @@ def print_rule_problems(ws, title_rows):
         if not (ws.print_title_cols or "").startswith("$A:$"):
             bad.append(f"{name}: printed over pages across without repeated key columns ({ws.print_title_cols!r})")
     return bad
+
+
+def chart_problems(ws):
+    """What is wrong with where a sheet's charts stand (a list of messages): each chart must start
+    below the sheet's last row that holds a cell (the table and its notes), so that it never
+    stands beside the table and widens the printed page, and must end within the width of a
+    portrait page. Anchors are zero-based rows and columns (ECMA-376 Part 1, 20.5.2.33, the
+    from/to markers of a two-cell anchor); openpyxl's max_row is one-based, so a chart whose top
+    row index is >= max_row starts on a row below the last one used."""
+    bad = []
+    for k, ch in enumerate(ws._charts):
+        frm = getattr(ch.anchor, "_from", None)
+        to = getattr(ch.anchor, "to", None)
+        if frm is None or to is None:
+            bad.append(f"{ws.title}: chart {k + 1} has no two-cell anchor ({type(ch.anchor).__name__})")
+            continue
+        if frm.row < ws.max_row:
+            bad.append(f"{ws.title}: chart {k + 1} starts on row {frm.row + 1}, beside or above the last row "
+                       f"of the table ({ws.max_row})")
+        right = sum(col_px(ws, j) for j in range(1, to.col + 1)) + to.colOff / 9525
+        if right > PORTRAIT_PX + 2:
+            bad.append(f"{ws.title}: chart {k + 1} ends {right:.0f} px from the left edge, wider than a portrait "
+                       f"page ({PORTRAIT_PX:.0f} px)")
+    return bad
+
+
+# Wrapped text on paper (common practice, no source; an approximation): a letter of running
+# English text in Calibri 11 pt (or Carlito, its metric twin) is about 6 px wide at 96 dpi on
+# average (the digits are 7 px), bold about a tenth wider; a cell loses about 3 px of padding on
+# each side; a wrapped line of 11 pt type needs about 1.22 em, 13.4 pt, of row height
+# (LibreOffice and Excel both use the font's own line spacing, about 1.22 em for Calibri). A
+# line breaks at spaces; a word longer than a line is cut across lines.
+LETTER_PX = 6.0
+BOLD_FACTOR = 1.1
+CELL_PADDING_PX = 6.0
+LINE_PT = 13.4
+
+
+def wrapped_lines(text, px, bold=False):
+    """Lines text needs in a wrapped cell px pixels wide, by the rule above."""
+    per = max(1, int((px - CELL_PADDING_PX) / (LETTER_PX * (BOLD_FACTOR if bold else 1.0))))
+    lines = 0
+    for para in str(text).split("\n"):
+        lines += 1
+        at = 0
+        for word in para.split():
+            w = len(word)
+            if at and at + 1 + w > per:
+                lines += 1
+                at = 0
+            if w > per:
+                lines += (w - 1) // per
+                w = w - (w - 1) // per * per
+            at += (1 if at else 0) + w
+    return lines
+
+
+def wrapped_row_problems(ws, first_row=1):
+    """Rows from first_row whose wrapped text would be cut on paper (a list of messages): for each
+    cell that wraps and holds text, the lines it needs in its width (a merged range's whole width)
+    by wrapped_lines, against its row's height (15 pt, the default, when the row has none)."""
+    spans = {}
+    for m in ws.merged_cells.ranges:
+        spans[(m.min_row, m.min_col)] = sum(col_px(ws, j) for j in range(m.min_col, m.max_col + 1))
+    bad = []
+    for row in ws.iter_rows(min_row=first_row):
+        for c in row:
+            if not isinstance(c.value, str) or not c.alignment or not c.alignment.wrap_text:
+                continue
+            px = spans.get((c.row, c.column), col_px(ws, c.column))
+            if px == 0:
+                continue   # a hidden column
+            lines = wrapped_lines(c.value, px, bool(c.font and c.font.b))
+            h = ws.row_dimensions[c.row].height or 15.0
+            if h + 0.01 < lines * LINE_PT:
+                bad.append(f"{ws.title}!{c.coordinate}: {len(c.value)} characters need {lines} lines "
+                           f"({lines * LINE_PT:.1f} pt) in {px:.0f} px, the row is {h:.1f} pt: {c.value[:50]!r}")
+    return bad

@@ -15,6 +15,8 @@ Checks:
   needs 17 comes back rounded to 16), text equals text, blanks are blank, and no cell anywhere
   holds a number stored as text;
 - sampler diagnostics beyond their thresholds are coloured and the others are not;
+- native charts below their sheet's table, within a portrait page's width (print_rules.chart_problems),
+  and every wrapped row tall enough for its text (print_rules.wrapped_row_problems);
 - native charts: one per abundance, projection, risk (one series per threshold) and models sheet,
   referring to existing sheets, each series to the columns it is about (by the CSV name of the
   column it points at: year against count, median, lower_95 and upper_95...);
@@ -43,6 +45,7 @@ import numpy as np
 import openpyxl
 
 import output_tables
+from print_rules import chart_problems, wrapped_row_problems
 
 T = os.environ.get("TALLYFIT", os.path.abspath("tallyfit"))
 SURVEY = "surveys/heron-colony.csv"
@@ -585,6 +588,10 @@ def main():
               f"first page on the draws: {where!r}")
         n_th = len({(r[2], r[3]) for r in tables["Risk"][1:]})
         check_charts(xlsx, wb.sheetnames, n_th, layout)
+        # Every chart below its table and within a portrait page; every wrapped row tall enough.
+        for ws in wb.worksheets:
+            for msg in chart_problems(ws) + wrapped_row_problems(ws):
+                check(False, msg)
         check_summary(base, items)
         check_compare_command(base, tmp)
         check_libreoffice(xlsx)

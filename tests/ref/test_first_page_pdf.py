@@ -5,7 +5,10 @@ and on the three-herds survey (three populations), then:
 1. reads the print set-up back with openpyxl (Debian's python3-openpyxl, an independent reader of
    the Office Open XML format) for every sheet: A4, fit to one page wide and any number of pages
    tall, the heading rows repeated on every page, portrait where the columns fit a portrait page
-   at full size (the first page always), landscape otherwise;
+   at full size (the first page always), landscape otherwise; every chart below its sheet's table
+   and within a portrait page's width (print_rules.chart_problems); every wrapped row tall enough
+   for its text by the letter-width rule of print_rules.wrapped_row_problems (an approximation,
+   common practice, no source: LibreOffice does not fit rows to their text when it prints);
 2. saves a copy of the workbook with the first sheet only (openpyxl keeps its print set-up),
    converts it to PDF with LibreOffice (`soffice --headless --convert-to pdf`, a private profile
    per run), and reads the PDF with a small parser here: the number of pages, their size (A4
@@ -33,7 +36,8 @@ import zlib
 
 import openpyxl
 
-from print_rules import LANDSCAPE_PX, MIN_SCALE, PORTRAIT_PX, print_rule_problems, sheet_px
+from print_rules import (LANDSCAPE_PX, MIN_SCALE, PORTRAIT_PX, chart_problems, print_rule_problems, sheet_px,
+                         wrapped_row_problems)
 
 T = os.environ.get("TALLYFIT", os.path.abspath("tallyfit"))
 SURVEYS = [("surveys/heron-colony.csv", 1), ("surveys/three-herds.csv", 3)]
@@ -92,6 +96,10 @@ def check_print_setup(wb, label):
             continue
         # The summary has one heading row; a table its heading row and its legend row.
         for msg in print_rule_problems(ws, f"${h}:${h}" if summary else f"${h}:${h + 1}"):
+            check(False, f"{label}:{msg}")
+        # Charts stand below their table, within a portrait page's width; every wrapped row
+        # (sentences, glossary, cautions, headings and legends) is tall enough for its text.
+        for msg in chart_problems(ws) + wrapped_row_problems(ws):
             check(False, f"{label}:{msg}")
         if summary:
             ps = ws.page_setup

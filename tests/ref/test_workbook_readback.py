@@ -20,7 +20,7 @@ import zipfile
 
 import openpyxl
 
-from print_rules import print_rule_problems
+from print_rules import chart_problems, print_rule_problems, wrapped_row_problems
 
 BUILD = os.environ.get("BUILD", "build")
 DIR = os.path.join(BUILD, "tests", "out", "workbook")
@@ -198,7 +198,7 @@ def check_sheet(wb, name, csv_name, legends):
 def check_print(ws, top, bottom):
     """Print set-up of every sheet (print_rule_problems): A4, the heading rows (and legend row)
     repeated on every page, one page wide in the orientation its width asks for."""
-    for msg in print_rule_problems(ws, f"${top}:${bottom}"):
+    for msg in print_rule_problems(ws, f"${top}:${bottom}") + chart_problems(ws) + wrapped_row_problems(ws):
         check(False, msg)
 
 

@@ -10,6 +10,7 @@
 #include "model/model.h"
 #include "sampler/fit.h"
 #include "survey/series.h"
+#include "survey/survey.h"
 #include "tables/columns.h"
 #include "tables/fit_tables.h"
 
@@ -180,6 +181,95 @@ START_TEST(diagnostics_say_what_to_look_at)
 }
 END_TEST
 
+/* The unit text: animals where every effort is 1, "count units per unit effort" where it is not,
+ * and the effort's own name in place of "unit effort" when the survey names it (--effort-name). */
+START_TEST(unit_names_the_effort)
+{
+    fixture x;
+    setup(&x);
+    tf_error err;
+    tf_error_init(&err);
+    char buf[TF_TABLES_UNIT_SIZE];
+    ck_assert_str_eq(tf_tables_unit(x.series, buf, sizeof buf), TF_UNIT_PER_EFFORT);
+    ck_assert_str_eq(tf_tables_unit_title(x.series, buf, sizeof buf), "Count units per unit effort");
+    ck_assert_str_eq(tf_tables_per_what(x.series, buf, sizeof buf), "per unit of effort");
+
+    ck_assert_int_eq(tf_series_set_effort_name(x.series, "trap-night", &err), TF_OK);
+    ck_assert_str_eq(tf_series_effort_name(x.series), "trap-night");
+    ck_assert_str_eq(tf_tables_unit(x.series, buf, sizeof buf), "count units per trap-night");
+    ck_assert_str_eq(tf_tables_unit_title(x.series, buf, sizeof buf), "Count units per trap-night");
+    ck_assert_str_eq(tf_tables_per_what(x.series, buf, sizeof buf), "per trap-night");
+    /* Every row of the abundance table, and its legend, carry the name. */
+    tf_tables_context c = {.population = "north", .series = x.series, .omit_seconds = 1};
+    tf_tables_model m = {.name = "ricker+poisson", .fit = x.fit, .probability = NAN, .pareto_k = NAN};
+    tf_table *t = NULL;
+    ck_assert_int_eq(tf_tables_abundance_fit(&c, &m, &t, &err), TF_OK);
+    for (size_t i = 0; i < tf_table_n_rows(t); i++)
+        ck_assert_str_eq(tf_table_text(t, i, 6), "count units per trap-night");
+    ck_assert_ptr_nonnull(strstr(tf_table_legend(t, 7), "count units per trap-night"));
+    tf_table_free(t);
+    /* Clearing the name brings back today's wording. */
+    ck_assert_int_eq(tf_series_set_effort_name(x.series, "", &err), TF_OK);
+    ck_assert_str_eq(tf_tables_unit(x.series, buf, sizeof buf), TF_UNIT_PER_EFFORT);
+    teardown(&x);
+
+    /* A name does not turn animals into counts per effort: with every effort 1 the unit stays. */
+    double y[3] = {5, 6, 7};
+    tf_series *s = tf_series_new("south", 2001, 3, y, NULL, NULL, &err);
+    ck_assert_ptr_nonnull(s);
+    ck_assert_int_eq(tf_series_set_effort_name(s, "trap-night", &err), TF_OK);
+    ck_assert_str_eq(tf_tables_unit(s, buf, sizeof buf), TF_UNIT_ANIMALS);
+    ck_assert_str_eq(tf_tables_unit_title(s, buf, sizeof buf), "Animals");
+    tf_series_free(s);
+    ck_assert_uint_eq(err.n_items, 0);
+}
+END_TEST
+
+/* The checks of --effort-name: short, printable, no comma, no blank at the ends; the length
+ * counted in characters, not bytes. */
+START_TEST(effort_name_is_checked)
+{
+    tf_error err;
+    tf_error_init(&err);
+    static const char *const good[] = {"trap-night", "hour of watching", "km walked", "n\xc3\xa4" "chte",
+                                       "12345678901234567890123456789012"};
+    for (size_t i = 0; i < sizeof good / sizeof good[0]; i++)
+        ck_assert_int_eq(tf_series_check_effort_name(good[i], &err), TF_OK);
+    ck_assert_uint_eq(err.n_items, 0);
+    char wide[2 * 33 + 1] = "";
+    for (size_t i = 0; i < 32; i++)
+        strcat(wide, "\xc3\xa9");   /* 32 characters of 2 bytes each: within the limit */
+    ck_assert_int_eq(tf_series_check_effort_name(wide, &err), TF_OK);
+    strcat(wide, "\xc3\xa9");
+    static const char *const bad[] = {"", " trap", "trap ", "trap,night", "trap\nnight", "trap\tnight",
+                                      "\xff", "123456789012345678901234567890123"};
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        tf_error_init(&err);
+        ck_assert_int_eq(tf_series_check_effort_name(bad[i], &err), TF_ERR_USAGE);
+        ck_assert_uint_eq(err.n_items, 1);
+        ck_assert(err.items[0].hint[0] != '\0');
+    }
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_series_check_effort_name(wide, &err), TF_ERR_USAGE);
+
+    /* The survey reader gives the name to every population it reads. */
+    static const char csv[] = "population,year,count,effort\n"
+                              "a,2001,3,1\na,2002,4,2\na,2003,5,1\na,2004,6,1\na,2005,5,1\na,2006,4,1\n"
+                              "b,2001,7,1\nb,2002,8,1\nb,2003,9,2\nb,2004,6,1\nb,2005,5,1\nb,2006,4,1\n";
+    tf_survey_options so = {.effort_name = "trap-night"};
+    tf_survey *sv = NULL;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse_with("mem.csv", csv, sizeof csv - 1, &so, &sv, &err), TF_OK);
+    ck_assert_uint_eq(tf_survey_n_series(sv), 2);
+    for (size_t i = 0; i < 2; i++)
+        ck_assert_str_eq(tf_series_effort_name(tf_survey_series(sv, i)), "trap-night");
+    tf_survey_free(sv);
+    ck_assert_int_eq(tf_survey_parse("mem.csv", csv, sizeof csv - 1, &sv, &err), TF_OK);
+    ck_assert_str_eq(tf_series_effort_name(tf_survey_series(sv, 0)), "");
+    tf_survey_free(sv);
+}
+END_TEST
+
 static Suite *make_suite(void)
 {
     Suite *s = suite_create("fit_tables");
@@ -187,6 +277,8 @@ static Suite *make_suite(void)
     tcase_add_test(tc, headers_follow_the_vocabulary);
     tcase_add_test(tc, draws_have_one_header_for_every_model);
     tcase_add_test(tc, diagnostics_say_what_to_look_at);
+    tcase_add_test(tc, unit_names_the_effort);
+    tcase_add_test(tc, effort_name_is_checked);
     suite_add_tcase(s, tc);
     return s;
 }

@@ -15,6 +15,7 @@
 #include "analysis/provenance.h"
 #include "batch/batch.h"
 #include "batch/batch_mpi.h"
+#include "cmd/alternatives.h"
 #include "cmd/args.h"
 #include "cmd/input.h"
 #include "cmd/cmd.h"
@@ -90,6 +91,9 @@ static void help(FILE *out, const tf_analysis_options *d)
     tf_args_quiet_help(out, 21);
     fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
     tf_args_sampler_help(out, &d->fit, &d->evidence, 21);
+    fputs("\nPrior sensitivity (marginal likelihoods depend on how wide the priors are; the\n"
+          "prior-sensitivity table and a line on the first page):\n", out);
+    tf_alternatives_help(out, 21);
     fprintf(out,
             "  (--threads: with MPI, 1 per process by default; a batch analyses T populations at a time)\n\n"
             "Batch mode (--batch, more than %d populations, or several MPI processes): the populations\n"
@@ -323,6 +327,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"obs", required_argument, NULL, OPT_OBS},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
+        TF_ALTERNATIVES_LONGOPTS,
         {"runs", required_argument, NULL, OPT_RUNS},
         {"batch", no_argument, NULL, OPT_BATCH},
         {"fresh", no_argument, NULL, OPT_FRESH},
@@ -351,6 +356,8 @@ static int analyze(int argc, char **argv, int rank, int size)
     char growth_buf[1024], obs_buf[1024];
     tf_args_sampler sampler;
     tf_args_sampler_init(&sampler);
+    tf_alternatives alts;
+    tf_alternatives_init(&alts);
     int quiet = 0;
     tf_input in = {0};
 
@@ -395,7 +402,7 @@ static int analyze(int argc, char **argv, int rank, int size)
                 help(stdout, &opt);
             return TF_EXIT_OK;
         default:
-            if (!tf_args_sampler_option(c, optarg, &sampler, &err))
+            if (!tf_args_sampler_option(c, optarg, &sampler, &err) && !tf_alternatives_option(c, optarg, &alts, &err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
             break;
         }
@@ -427,6 +434,17 @@ static int analyze(int argc, char **argv, int rank, int size)
             tf_error_print(&err, PROG, errs);
         return TF_EXIT_USAGE;
     }
+    /* The folders of alternative priors are read before anything long. */
+    tf_status ast = tf_alternatives_check(&alts, &err);
+    if (ast != TF_OK) {
+        if (errs)
+            tf_error_print(&err, PROG, errs);
+        return tf_args_exit_code(ast);
+    }
+    opt.prior_sensitivity = alts.sensitivity;
+    opt.prior_refit = alts.refit;
+    opt.prior_alternatives = alts.alt;
+    opt.n_prior_alternatives = alts.n;
     tf_setup_user user;
     tf_args_sampler_user(&sampler, &user);
     opt.priors = tf_setup_user_priors;

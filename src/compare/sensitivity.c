@@ -17,6 +17,7 @@ struct tf_sensitivity {
     char (*notes)[160];            /* n_rows x n_models */
     tf_prior_set **priors;         /* n_rows x n_models; NULL = the fitted priors */
     size_t *best;                  /* n_rows */
+    unsigned char *is_scale;       /* n_rows */
 };
 
 void tf_sensitivity_free(tf_sensitivity *s)
@@ -31,6 +32,7 @@ void tf_sensitivity_free(tf_sensitivity *s)
     free(s->cells);
     free(s->notes);
     free(s->best);
+    free(s->is_scale);
     free(s);
 }
 
@@ -266,14 +268,18 @@ tf_status tf_sensitivity_run(const tf_comparison *c, const tf_sensitivity_altern
     s->notes = calloc(nc, sizeof *s->notes);
     s->priors = calloc(nc, sizeof *s->priors);
     s->best = calloc(s->n_rows, sizeof *s->best);
+    s->is_scale = calloc(s->n_rows, 1);
     tf_status st = TF_OK;
-    if (!s->labels || !s->cells || !s->notes || !s->priors || !s->best) {
+    if (!s->labels || !s->cells || !s->notes || !s->priors || !s->best || !s->is_scale) {
         st = tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
         goto fail;
     }
     snprintf(s->labels[0], sizeof s->labels[0], "fitted");
-    for (size_t a = 0; a < n_alt; a++)
+    s->is_scale[0] = 1;
+    for (size_t a = 0; a < n_alt; a++) {
         snprintf(s->labels[a + 1], sizeof s->labels[0], "%s", alt[a].label);
+        s->is_scale[a + 1] = !alt[a].priors;
+    }
     for (size_t row = 0; row < s->n_rows; row++)
         for (size_t i = 0; i < s->n_models; i++) {
             tf_sens_cell *cell = &s->cells[row * s->n_models + i];
@@ -325,6 +331,7 @@ fail:
 size_t tf_sensitivity_n_rows(const tf_sensitivity *s) { return s->n_rows; }
 size_t tf_sensitivity_n_models(const tf_sensitivity *s) { return s->n_models; }
 const char *tf_sensitivity_label(const tf_sensitivity *s, size_t row) { return s->labels[row]; }
+int tf_sensitivity_is_scale(const tf_sensitivity *s, size_t row) { return s->is_scale[row]; }
 const char *tf_sensitivity_model_name(const tf_sensitivity *s, size_t model)
 {
     return tf_comparison_name(s->c, model);

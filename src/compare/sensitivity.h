@@ -93,6 +93,8 @@ void tf_sensitivity_free(tf_sensitivity *s);   /* accepts NULL */
 size_t tf_sensitivity_n_rows(const tf_sensitivity *s);
 size_t tf_sensitivity_n_models(const tf_sensitivity *s);
 const char *tf_sensitivity_label(const tf_sensitivity *s, size_t row);   /* "fitted" for row 0 */
+/* Whether row is a change of scale (or row 0), as against a user's set of priors. */
+int tf_sensitivity_is_scale(const tf_sensitivity *s, size_t row);
 const char *tf_sensitivity_model_name(const tf_sensitivity *s, size_t model);   /* the comparison's */
 const tf_sens_cell *tf_sensitivity_cell(const tf_sensitivity *s, size_t row, size_t model);
 /* Why a cell failed or is unreliable ("" when nothing to say). */

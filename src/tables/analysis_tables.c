@@ -432,6 +432,16 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     model_label(best, text, sizeof text);
     TRY(tf_table_add_item_text(t, "Best-supported model", text, NULL, err));
     TRY(tf_table_add_item_number(t, "  its probability", best->probability, TF_COL_PERCENT, NULL, err));
+    /* Marginal likelihoods depend on the priors' width (compare/sensitivity.h): how far the
+     * verdict moves with them, and a caution when the best model changes. */
+    char caution[512];
+    tf_wording_prior_sensitivity(p, text, sizeof text, caution, sizeof caution);
+    if (text[0])
+        TRY(tf_table_add_item_text(t, "  under other priors", text, "see the prior-sensitivity sheet", err));
+    if (caution[0]) {
+        TRY(tf_table_add_item_text(t, "  caution", caution, NULL, err));
+        TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
+    }
 
     /* Two questions that read alike: a fall below a threshold at any time up to a year, and a
      * decline measured in one year. Each block has its heading and each label says which. */

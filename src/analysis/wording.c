@@ -134,13 +134,12 @@ void tf_wording_prior_sensitivity(const tf_analysis_pop *p, char *buf, size_t si
         char th[96], c[32], d[32];
         tf_threshold t0 = tf_projection_threshold(pr, 0);
         tf_wording_threshold(&t0, th, sizeof th);
-        snprintf(risk, sizeof risk, "; the chance of falling below %s within %zu years from %s %% to %s %%", th,
-                 tf_analysis_risk_years[y], tf_wording_percent(100 * rlo, c, sizeof c),
-                 tf_wording_percent(100 * rhi, d, sizeof d));
+        snprintf(risk, sizeof risk, "; the %zu-year risk (below %s) from %s %% to %s %%", tf_analysis_risk_years[y], th,
+                 tf_wording_percent(100 * rlo, c, sizeof c), tf_wording_percent(100 * rhi, d, sizeof d));
     }
-    snprintf(buf, size, "With each prior half or twice as wide%s, the best model's probability ranges from %s %% to "
-             "%s %%%s.",
-             n_folders ? " and with the priors of the folders given" : "", tf_wording_percent(100 * lo, a, sizeof a),
+    snprintf(buf, size, "With priors half or twice as wide%s, the best model's probability ranges from %s %% to "
+             "%s %%%s (prior-sensitivity sheet).",
+             n_folders ? " and those of the folders given" : "", tf_wording_percent(100 * lo, a, sizeof a),
              tf_wording_percent(100 * hi, b, sizeof b), risk);
     if (!changes || !caution || !caution_size)
         return;

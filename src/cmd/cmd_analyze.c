@@ -15,6 +15,7 @@
 #include "analysis/provenance.h"
 #include "batch/batch.h"
 #include "batch/batch_mpi.h"
+#include "analysis/wording.h"
 #include "cmd/alternatives.h"
 #include "cmd/args.h"
 #include "cmd/input.h"
@@ -150,6 +151,10 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
     }
     if (!tf_populations_all_converged(p))
         fprintf(out, "  caution: some fits did not pass the convergence checks; see the diagnostics sheet\n");
+    char range[512], caution[512];
+    tf_wording_prior_sensitivity(p, range, sizeof range, caution, sizeof caution);
+    if (caution[0])
+        fprintf(out, "  caution: %s\n", caution);
 }
 
 /* ---- batch mode ---- */
@@ -200,6 +205,25 @@ static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *
     for (size_t i = 0; i < o->n_weights && used < size; i++) {
         int w = snprintf(buf + used, size - used, "model-weights %s=%.17g\n", o->weight_names[i], o->weights[i]);
         used += w > 0 ? (size_t)w : 0;
+    }
+    /* The prior sensitivity changes the tables written: recorded when it differs from the default,
+     * each folder of priors by the hashes of its files (an edited file changes the numbers). */
+    if ((!o->prior_sensitivity || o->prior_refit) && used < size) {
+        int w = snprintf(buf + used, size - used, "prior-sensitivity %s%s\n", o->prior_sensitivity ? "on" : "off",
+                         o->prior_refit ? " refit" : "");
+        used += w > 0 ? (size_t)w : 0;
+    }
+    for (size_t i = 0; i < o->n_prior_alternatives && used < size; i++) {
+        const char *dir = o->prior_alternatives[i].ctx;
+        for (size_t k = 0; k < n && used < size; k++) {
+            char path[4200], hex[TF_PROVENANCE_HASH_BUF];
+            snprintf(path, sizeof path, "%s/%s.ini", dir, names[k]);
+            if (tf_provenance_hash_file(path, hex, NULL) != TF_OK)
+                continue;
+            int w = snprintf(buf + used, size - used, "prior-alternative %s %s.ini %s\n",
+                             o->prior_alternatives[i].label, names[k], hex);
+            used += w > 0 ? (size_t)w : 0;
+        }
     }
 }
 

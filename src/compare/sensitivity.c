@@ -291,6 +291,9 @@ tf_status tf_sensitivity_run(const tf_comparison *c, const tf_sensitivity_altern
             }
             const tf_evidence *ev = tf_comparison_evidence(c, i);
             cell->state = ev->reliable ? TF_SENS_REWEIGHTED : TF_SENS_UNRELIABLE;
+            if (!ev->reliable)
+                snprintf(s->notes[row * s->n_models + i], sizeof s->notes[0],
+                         "the comparison's own estimate is flagged (see its models table)");
             cell->log_ml = ev->main.log_ml;
             cell->log_ml_se = ev->main.se;
             cell->pareto_k = ev->main.pareto_k;

@@ -437,7 +437,7 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     char caution[512];
     tf_wording_prior_sensitivity(p, text, sizeof text, caution, sizeof caution);
     if (text[0])
-        TRY(tf_table_add_item_text(t, "  under other priors", text, "see the prior-sensitivity sheet", err));
+        TRY(tf_table_add_item_text(t, "  under other priors", text, NULL, err));
     if (caution[0]) {
         TRY(tf_table_add_item_text(t, "  caution", caution, NULL, err));
         TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));

@@ -91,7 +91,10 @@ tf_status tf_sensitivity_table(const tf_sensitivity *s, const tf_analysis_sens_r
                 tf_table_set_number(t, row, c_dk, risks[r].draws_k[i]);
             const char *note = tf_sensitivity_note(s, r, i);
             if (r > 0 && !cell->changed)
-                note = "these priors leave the model's priors as they were";
+                note = cell->state == TF_SENS_UNRELIABLE
+                           ? "these priors leave the model's priors as they were; the comparison's own estimate is "
+                             "flagged (see its models table)"
+                           : "these priors leave the model's priors as they were";
             TRY(tf_table_set_text(t, row, c_note, note, err));
             if (cell->state == TF_SENS_UNRELIABLE || cell->state == TF_SENS_FAILED)
                 TRY(tf_table_set_warning(t, row, c_k, err));

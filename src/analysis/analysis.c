@@ -311,28 +311,42 @@ static tf_status sensitivity_risks(tf_analysis_pop *p, const tf_analysis_options
         if (!m->fit || !(prob > 0))
             continue;
         size_t nd = tf_fit_n_draws(m->fit), np = tf_fit_n_params(m->fit);
-        /* One block: the draws, the starts, the log weights and the resampled indices. */
-        double *block = malloc(nd * (np + 3) * sizeof(double));
-        if (!(mem[n_in] = block)) {
+        /* One block for what the projection borrows (the resampled draws and their starts); the
+         * weights, the fit's starts and the resampled indices are freed below. */
+        double *block = malloc(nd * (np + 1) * sizeof(double));
+        double *lw = malloc(nd * sizeof *lw), *x_last = malloc(nd * sizeof *x_last);
+        size_t *idx = malloc(nd * sizeof *idx);
+        mem[n_in] = block;
+        if (!block || !lw || !x_last || !idx) {
+            free(lw);
+            free(x_last);
+            free(idx);
             st = tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for the prior sensitivity");
             goto done;
         }
-        double *draws = block, *starts = block + nd * np, *lw = starts + nd, *x_all = lw + nd;
-        size_t *idx = (size_t *)(void *)x_all;   /* a size_t fits in a double's room */
+        double *draws = block, *starts = block + nd * np;
         const double *all = tf_fit_draws(m->fit);
-        double *x_last = malloc(nd * sizeof *x_last);
-        if (!x_last) {
-            st = tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for the prior sensitivity");
-            goto done;
-        }
         tf_fit_year_draws(m->fit, ny - 1, x_last);
         int changed = tf_sensitivity_cell(p->sens, row, i)->changed;
         for (size_t d = 0; d < nd; d++)
             lw[d] = changed ? tf_sensitivity_log_ratio(p->sens, row, i, all + d * np) : 0.0;
+        double top = -INFINITY;
+        for (size_t d = 0; changed && d < nd; d++)
+            top = fmax(top, lw[d]);
+        if (changed && !(top > -INFINITY && top < INFINITY)) {
+            /* The new prior rules out every draw (or only the old one is 0 there): nothing to
+             * reweight, so the row's risks stand on the old draws and are flagged. */
+            out->reliable = 0;
+            changed = 0;
+            for (size_t d = 0; d < nd; d++)
+                idx[d] = d;
+        }
         if (changed) {
             size_t n_tail;
             if ((st = tf_pareto_k(lw, nd, &out->draws_k[i], &n_tail, err)) != TF_OK) {
+                free(lw);
                 free(x_last);
+                free(idx);
                 goto done;
             }
             out->reliable &= out->draws_k[i] <= TF_PARETO_K_MAX;
@@ -345,7 +359,9 @@ static tf_status sensitivity_risks(tf_analysis_pop *p, const tf_analysis_options
             memcpy(draws + d * np, all + idx[d] * np, np * sizeof *draws);
             starts[d] = x_last[idx[d]];
         }
+        free(lw);
         free(x_last);
+        free(idx);
         in[n_in++] = (tf_project_input){
             .growth = m->growth,
             .sigma_index = tf_model_sigma_index(tf_fit_model(m->fit)),

@@ -203,6 +203,30 @@ static tf_status comparison_tables(const tf_comparison *c, const tf_sensitivity 
     return st;
 }
 
+/* One line on how far the best model's probability moves under the other priors, and which
+ * set of priors first makes another model the best. */
+static void print_sensitivity(const tf_sensitivity *s, FILE *out)
+{
+    double lo, hi;
+    int changes;
+    if (!s)
+        return;
+    tf_sensitivity_range(s, &lo, &hi, &changes);
+    if (!isfinite(lo))
+        return;
+    fprintf(out, "  under other priors (%zu sets): the best model's probability ranges from %.2f to %.2f\n",
+            tf_sensitivity_n_rows(s) - 1, lo, hi);
+    size_t b0 = tf_sensitivity_best(s, 0);
+    for (size_t r = 1; changes && r < tf_sensitivity_n_rows(s); r++) {
+        size_t b = tf_sensitivity_best(s, r);
+        if (b != b0 && b < tf_sensitivity_n_models(s)) {
+            fprintf(out, "  caution: under %s the best model is %s: the verdict rests partly on the priors\n",
+                    tf_sensitivity_label(s, r), tf_sensitivity_model_name(s, b));
+            break;
+        }
+    }
+}
+
 int tf_cmd_compare(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES };
@@ -439,6 +463,7 @@ int tf_cmd_compare(int argc, char **argv)
             print_table(comps[i], stdout);
             printf("  files: %s/ (models, change, parameters, diagnostics, chains, draws%s .csv)\n", written[i],
                    sens[i] ? ", " TF_SENSITIVITY_TABLE_NAME : "");
+            print_sensitivity(sens[i], stdout);
         }
         print_warnings(comps[i]);
     }

@@ -8,6 +8,7 @@
 #include <time.h>
 
 #include "analysis/average.h"
+#include "compare/pareto.h"
 #include "util/stats.h"
 
 const size_t tf_analysis_risk_years[TF_ANALYSIS_N_RISK_YEARS] = {10, 20, 50};
@@ -43,6 +44,8 @@ struct tf_analysis_pop {
     tf_analysis_year *years;
     tf_analysis_trend trend, trend_recent;
     tf_projection *proj;
+    tf_sensitivity *sens;
+    tf_analysis_sens_row *sens_rows;
     double seconds;
 };
 
@@ -63,6 +66,7 @@ tf_status tf_analysis_options_init(tf_analysis_options *o, tf_error *err)
     tf_project_options_init(&o->project);
     o->seed = 1;
     o->n_threads = 1;
+    o->prior_sensitivity = 1;
     return tf_project_parse_thresholds(DEFAULT_THRESHOLDS, o->project.thresholds, TF_PROJECT_MAX_THRESHOLDS,
                                        &o->project.n_thresholds, err);
 }
@@ -75,6 +79,8 @@ void tf_analysis_free(tf_analysis *a)
         tf_analysis_pop *p = &a->pops[i];
         tf_comparison_free(p->cmp);
         tf_projection_free(p->proj);
+        tf_sensitivity_free(p->sens);
+        free(p->sens_rows);
         free(p->models);
         free(p->years);
     }
@@ -263,6 +269,154 @@ done:
     return st;
 }
 
+/* ---- the prior sensitivity ---- */
+
+/* Systematic resampling (Kitagawa 1996, J. Comput. Graph. Stat. 5:1) of n draws with log weights
+ * lw into idx[0..n), with the fixed offset 1/2: no random numbers, so a row's projection differs
+ * from another's by its weights alone. */
+static void resample(const double *lw, size_t n, size_t *idx)
+{
+    double top = -INFINITY, sum = 0;
+    for (size_t d = 0; d < n; d++)
+        top = fmax(top, lw[d]);
+    for (size_t d = 0; d < n; d++)
+        sum += exp(lw[d] - top);
+    double step = sum / (double)n, u = 0.5 * step, acc = 0;
+    size_t d = 0;
+    for (size_t k = 0; k < n; k++) {
+        double target = u + (double)k * step;
+        while (d + 1 < n && acc + exp(lw[d] - top) < target)
+            acc += exp(lw[d++] - top);
+        idx[k] = d;
+    }
+}
+
+/* The risks of row row of the sensitivity into out. */
+static tf_status sensitivity_risks(tf_analysis_pop *p, const tf_analysis_options *o, size_t row,
+                                   const volatile sig_atomic_t *stop, tf_analysis_sens_row *out, tf_error *err)
+{
+    size_t ny = tf_series_n_years(p->s), n_in = 0;
+    tf_project_input in[TF_ANALYSIS_MAX_MODELS];
+    double *mem[TF_ANALYSIS_MAX_MODELS] = {0};
+    tf_status st = TF_OK;
+    out->reliable = 1;
+    for (size_t i = 0; i < TF_ANALYSIS_MAX_MODELS; i++)
+        out->draws_k[i] = NAN;
+    for (size_t k = 0; k < TF_PROJECT_MAX_THRESHOLDS; k++)
+        for (size_t y = 0; y < TF_ANALYSIS_N_RISK_YEARS; y++)
+            out->risk[k][y] = NAN;
+    for (size_t i = 0; i < p->n_models && n_in < TF_PROJECT_MAX_INPUTS; i++) {
+        const tf_analysis_model *m = &p->models[i];
+        double prob = tf_sensitivity_cell(p->sens, row, i)->prob;
+        if (!m->fit || !(prob > 0))
+            continue;
+        size_t nd = tf_fit_n_draws(m->fit), np = tf_fit_n_params(m->fit);
+        /* One block for what the projection borrows (the resampled draws and their starts); the
+         * weights, the fit's starts and the resampled indices are freed below. */
+        double *block = malloc(nd * (np + 1) * sizeof(double));
+        double *lw = malloc(nd * sizeof *lw), *x_last = malloc(nd * sizeof *x_last);
+        size_t *idx = malloc(nd * sizeof *idx);
+        mem[n_in] = block;
+        if (!block || !lw || !x_last || !idx) {
+            free(lw);
+            free(x_last);
+            free(idx);
+            st = tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for the prior sensitivity");
+            goto done;
+        }
+        double *draws = block, *starts = block + nd * np;
+        const double *all = tf_fit_draws(m->fit);
+        tf_fit_year_draws(m->fit, ny - 1, x_last);
+        int changed = tf_sensitivity_cell(p->sens, row, i)->changed;
+        for (size_t d = 0; d < nd; d++)
+            lw[d] = changed ? tf_sensitivity_log_ratio(p->sens, row, i, all + d * np) : 0.0;
+        double top = -INFINITY;
+        for (size_t d = 0; changed && d < nd; d++)
+            top = fmax(top, lw[d]);
+        if (changed && !(top > -INFINITY && top < INFINITY)) {
+            /* The new prior rules out every draw (or only the old one is 0 there): nothing to
+             * reweight, so the row's risks stand on the old draws and are flagged. */
+            out->reliable = 0;
+            changed = 0;
+            for (size_t d = 0; d < nd; d++)
+                idx[d] = d;
+        }
+        if (changed) {
+            size_t n_tail;
+            if ((st = tf_pareto_k(lw, nd, &out->draws_k[i], &n_tail, err)) != TF_OK) {
+                free(lw);
+                free(x_last);
+                free(idx);
+                goto done;
+            }
+            out->reliable &= out->draws_k[i] <= TF_PARETO_K_MAX;
+            resample(lw, nd, idx);
+        } else {
+            for (size_t d = 0; d < nd; d++)
+                idx[d] = d;
+        }
+        for (size_t d = 0; d < nd; d++) {
+            memcpy(draws + d * np, all + idx[d] * np, np * sizeof *draws);
+            starts[d] = x_last[idx[d]];
+        }
+        free(lw);
+        free(x_last);
+        free(idx);
+        in[n_in++] = (tf_project_input){
+            .growth = m->growth,
+            .sigma_index = tf_model_sigma_index(tf_fit_model(m->fit)),
+            .n_params = np,
+            .n_draws = nd,
+            .draws = draws,
+            .x_last = starts,
+            .weight = prob,
+        };
+    }
+    if (n_in) {
+        tf_project_options po = o->project;
+        po.stop = stop;
+        tf_rng rng;
+        tf_project_stream(&rng, o->seed, tf_series_label(p->s));
+        tf_projection *pr = NULL;
+        if ((st = tf_project_run(in, n_in, &po, &rng, &pr, err)) != TF_OK)
+            goto done;
+        for (size_t k = 0; k < tf_projection_n_thresholds(pr) && k < TF_PROJECT_MAX_THRESHOLDS; k++)
+            for (size_t y = 0; y < TF_ANALYSIS_N_RISK_YEARS; y++)
+                if (tf_analysis_risk_years[y] <= tf_projection_horizon(pr))
+                    out->risk[k][y] = tf_projection_risk(pr, k, tf_analysis_risk_years[y]);
+        tf_projection_free(pr);
+    }
+done:
+    for (size_t i = 0; i < TF_ANALYSIS_MAX_MODELS; i++)
+        free(mem[i]);
+    return st;
+}
+
+static tf_status sensitivity(tf_analysis_pop *p, const tf_analysis_options *o, const volatile sig_atomic_t *stop,
+                             tf_error *err)
+{
+    tf_sensitivity_alternative alt[TF_SENSITIVITY_MAX_ALTERNATIVES];
+    size_t n_user = o->n_prior_alternatives;
+    if (n_user > TF_ANALYSIS_MAX_USER_ALTERNATIVES)
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "at most %d prior alternatives",
+                            TF_ANALYSIS_MAX_USER_ALTERNATIVES);
+    size_t n = tf_sensitivity_standard(p->cmp, alt, TF_SENSITIVITY_MAX_ALTERNATIVES - n_user);
+    for (size_t a = 0; a < n_user; a++)
+        alt[n++] = o->prior_alternatives[a];
+    tf_sensitivity_options so = {o->prior_refit, o->evidence};
+    so.evidence.seed = o->seed;
+    so.evidence.n_threads = o->n_threads;
+    tf_status st = tf_sensitivity_run(p->cmp, alt, n, &so, stop, &p->sens, err);
+    if (st != TF_OK)
+        return st;
+    size_t rows = tf_sensitivity_n_rows(p->sens);
+    if (!(p->sens_rows = calloc(rows, sizeof *p->sens_rows)))
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
+    for (size_t r = 0; r < rows && st == TF_OK; r++)
+        st = sensitivity_risks(p, o, r, stop, &p->sens_rows[r], err);
+    return st;
+}
+
 static void obs_names(const tf_analysis_options *o, const tf_series *s, const char *const **names, size_t *n_out);
 
 size_t tf_analysis_candidate_obs(const tf_analysis_options *o, const tf_series *s, const char **names, size_t max)
@@ -383,6 +537,8 @@ static tf_status run_population(tf_analysis_pop *p, const tf_analysis_options *o
     report(relay, TF_ANALYSIS_PROJECTING, seconds_since(&t0));
     if ((st = project(p, o, stop, err)) != TF_OK)
         return st;
+    if (o->prior_sensitivity && (st = sensitivity(p, o, stop, err)) != TF_OK)
+        return st;
     p->seconds = seconds_since(&t0);
     report(relay, TF_ANALYSIS_DONE, p->seconds);
     return TF_OK;
@@ -464,3 +620,8 @@ int tf_analysis_growth_levels_off(const tf_growth_type *g)
 const tf_analysis_trend *tf_analysis_pop_trend_recent(const tf_analysis_pop *p) { return &p->trend_recent; }
 const tf_projection *tf_analysis_pop_projection(const tf_analysis_pop *p) { return p->proj; }
 double tf_analysis_pop_seconds(const tf_analysis_pop *p) { return p->seconds; }
+const tf_sensitivity *tf_analysis_pop_sensitivity(const tf_analysis_pop *p) { return p->sens; }
+const tf_analysis_sens_row *tf_analysis_pop_sens_row(const tf_analysis_pop *p, size_t row)
+{
+    return p->sens_rows && row < tf_sensitivity_n_rows(p->sens) ? &p->sens_rows[row] : NULL;
+}

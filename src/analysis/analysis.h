@@ -10,6 +10,7 @@
 #include <stdint.h>
 
 #include "compare/compare.h"
+#include "compare/sensitivity.h"
 #include "model/model.h"
 #include "project/project.h"
 #include "sampler/fit.h"
@@ -57,7 +58,19 @@ typedef struct {
     const char *const *weight_names;
     const double *weights;
     size_t n_weights;
+    /* Prior sensitivity (compare/sensitivity.h): on by default, since reweighting costs no new
+     * likelihood estimate. The standard alternatives, then the user's (borrowed, at most
+     * TF_ANALYSIS_MAX_USER_ALTERNATIVES); refit: estimate the evidence again where the
+     * reweighted draws do not cover an alternative (off by default: it costs as much as a new
+     * importance-sampling run each time). */
+    int prior_sensitivity;
+    int prior_refit;
+    const tf_sensitivity_alternative *prior_alternatives;
+    size_t n_prior_alternatives;
 } tf_analysis_options;
+
+/* The most prior alternatives a user may give. */
+#define TF_ANALYSIS_MAX_USER_ALTERNATIVES 16
 
 /* The defaults analyze uses (the reasons are in analysis.c): the exponential, Ricker and
  * Gompertz growth models, Poisson and negative binomial counting error for whole counts
@@ -167,6 +180,23 @@ int tf_analysis_growth_levels_off(const tf_growth_type *g);
 const tf_analysis_trend *tf_analysis_pop_trend_recent(const tf_analysis_pop *p);
 /* The model-averaged projection from the last survey year. */
 const tf_projection *tf_analysis_pop_projection(const tf_analysis_pop *p);
+/* One row of the prior sensitivity (row 0: as fitted): the model-averaged risks of falling below
+ * threshold k within tf_analysis_risk_years[y] years under the row's priors, from the projection
+ * of each model's posterior draws reweighted by p'(theta) / p(theta) (resampled systematically,
+ * Kitagawa 1996) with the row's model probabilities and the projection's own random numbers, so
+ * that rows differ by the priors only; and the Pareto k of each model's reweighting (NaN where
+ * the row leaves the model's priors as they are). */
+typedef struct {
+    double risk[TF_PROJECT_MAX_THRESHOLDS][TF_ANALYSIS_N_RISK_YEARS];   /* NAN beyond the horizon */
+    double draws_k[TF_ANALYSIS_MAX_MODELS];
+    int reliable;   /* no model's reweighting has a Pareto k above TF_PARETO_K_MAX */
+} tf_analysis_sens_row;
+
+/* The prior sensitivity of p's comparison; NULL when it was not asked for. */
+const tf_sensitivity *tf_analysis_pop_sensitivity(const tf_analysis_pop *p);
+/* Row row (< tf_sensitivity_n_rows) of the risks under the alternatives. */
+const tf_analysis_sens_row *tf_analysis_pop_sens_row(const tf_analysis_pop *p, size_t row);
+
 /* Seconds the population took. */
 double tf_analysis_pop_seconds(const tf_analysis_pop *p);
 

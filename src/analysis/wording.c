@@ -96,3 +96,62 @@ void tf_wording_risk(const tf_threshold *t, size_t years, double p, char *buf, s
     snprintf(buf, size, "Averaging the models by their support, the chance of falling below %s at any time within %zu years is %s.", th,
              years, tf_wording_chance(p, ch, sizeof ch));
 }
+
+void tf_wording_prior_sensitivity(const tf_analysis_pop *p, char *buf, size_t size, char *caution,
+                                  size_t caution_size)
+{
+    const tf_sensitivity *sens = tf_analysis_pop_sensitivity(p);
+    if (size)
+        buf[0] = '\0';
+    if (caution && caution_size)
+        caution[0] = '\0';
+    if (!sens)
+        return;
+    double lo, hi;
+    int changes;
+    tf_sensitivity_range(sens, &lo, &hi, &changes);
+    if (!isfinite(lo))
+        return;
+    size_t rows = tf_sensitivity_n_rows(sens), n_folders = 0;
+    for (size_t r = 1; r < rows; r++)
+        n_folders += !tf_sensitivity_is_scale(sens, r);
+    /* The 20-year window where the projection reaches it, else the longest it reaches. */
+    const tf_projection *pr = tf_analysis_pop_projection(p);
+    size_t y = 0;
+    while (y + 1 < TF_ANALYSIS_N_RISK_YEARS && tf_analysis_risk_years[y + 1] <= 20 &&
+           tf_analysis_risk_years[y + 1] <= tf_projection_horizon(pr))
+        y++;
+    double rlo = INFINITY, rhi = -INFINITY;
+    for (size_t r = 0; r < rows && tf_projection_n_thresholds(pr) > 0; r++) {
+        const tf_analysis_sens_row *row = tf_analysis_pop_sens_row(p, r);
+        if (row && isfinite(row->risk[0][y])) {
+            rlo = fmin(rlo, row->risk[0][y]);
+            rhi = fmax(rhi, row->risk[0][y]);
+        }
+    }
+    char a[32], b[32], risk[256] = "";
+    if (isfinite(rlo)) {
+        char th[96], c[32], d[32];
+        tf_threshold t0 = tf_projection_threshold(pr, 0);
+        tf_wording_threshold(&t0, th, sizeof th);
+        snprintf(risk, sizeof risk, "; the %zu-year risk (below %s) from %s %% to %s %%", tf_analysis_risk_years[y], th,
+                 tf_wording_percent(100 * rlo, c, sizeof c), tf_wording_percent(100 * rhi, d, sizeof d));
+    }
+    snprintf(buf, size, "With priors half or twice as wide%s, the best model's probability ranges from %s %% to "
+             "%s %%%s (prior-sensitivity sheet).",
+             n_folders ? " and those of the folders given" : "", tf_wording_percent(100 * lo, a, sizeof a),
+             tf_wording_percent(100 * hi, b, sizeof b), risk);
+    if (!changes || !caution || !caution_size)
+        return;
+    size_t b0 = tf_sensitivity_best(sens, 0);
+    for (size_t r = 1; r < rows; r++) {
+        size_t br = tf_sensitivity_best(sens, r);
+        if (br == b0 || br >= tf_sensitivity_n_models(sens))
+            continue;
+        snprintf(caution, caution_size,
+                 "Under other priors (%s) another model is the best supported (%s): which model fits best rests "
+                 "partly on the priors, not only on the counts. Read the model probabilities with care.",
+                 tf_sensitivity_label(sens, r), tf_sensitivity_model_name(sens, br));
+        return;
+    }
+}

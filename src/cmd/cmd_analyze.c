@@ -15,6 +15,8 @@
 #include "analysis/provenance.h"
 #include "batch/batch.h"
 #include "batch/batch_mpi.h"
+#include "analysis/wording.h"
+#include "cmd/alternatives.h"
 #include "cmd/args.h"
 #include "cmd/input.h"
 #include "cmd/cmd.h"
@@ -91,6 +93,9 @@ static void help(FILE *out, const tf_analysis_options *d)
     tf_args_quiet_help(out, 21);
     fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
     tf_args_sampler_help(out, &d->fit, &d->evidence, 21);
+    fputs("\nPrior sensitivity (marginal likelihoods depend on how wide the priors are; the\n"
+          "prior-sensitivity table and a line on the first page):\n", out);
+    tf_alternatives_help(out, 21);
     fprintf(out,
             "  (--threads: with MPI, 1 per process by default; a batch analyses T populations at a time)\n\n"
             "Batch mode (--batch, more than %d populations, or several MPI processes): the populations\n"
@@ -147,6 +152,10 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
     }
     if (!tf_populations_all_converged(p))
         fprintf(out, "  caution: some fits did not pass the convergence checks; see the diagnostics sheet\n");
+    char range[512], caution[512];
+    tf_wording_prior_sensitivity(p, range, sizeof range, caution, sizeof caution);
+    if (caution[0])
+        fprintf(out, "  caution: %s\n", caution);
 }
 
 /* ---- batch mode ---- */
@@ -197,6 +206,25 @@ static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *
     for (size_t i = 0; i < o->n_weights && used < size; i++) {
         int w = snprintf(buf + used, size - used, "model-weights %s=%.17g\n", o->weight_names[i], o->weights[i]);
         used += w > 0 ? (size_t)w : 0;
+    }
+    /* The prior sensitivity changes the tables written: recorded when it differs from the default,
+     * each folder of priors by the hashes of its files (an edited file changes the numbers). */
+    if ((!o->prior_sensitivity || o->prior_refit) && used < size) {
+        int w = snprintf(buf + used, size - used, "prior-sensitivity %s%s\n", o->prior_sensitivity ? "on" : "off",
+                         o->prior_refit ? " refit" : "");
+        used += w > 0 ? (size_t)w : 0;
+    }
+    for (size_t i = 0; i < o->n_prior_alternatives && used < size; i++) {
+        const char *dir = o->prior_alternatives[i].ctx;
+        for (size_t k = 0; k < n && used < size; k++) {
+            char path[4200], hex[TF_PROVENANCE_HASH_BUF];
+            snprintf(path, sizeof path, "%s/%s.ini", dir, names[k]);
+            if (tf_provenance_hash_file(path, hex, NULL) != TF_OK)
+                continue;
+            int w = snprintf(buf + used, size - used, "prior-alternative %s %s.ini %s\n",
+                             o->prior_alternatives[i].label, names[k], hex);
+            used += w > 0 ? (size_t)w : 0;
+        }
     }
 }
 
@@ -332,6 +360,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"obs", required_argument, NULL, OPT_OBS},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
+        TF_ALTERNATIVES_LONGOPTS,
         {"runs", required_argument, NULL, OPT_RUNS},
         {"batch", no_argument, NULL, OPT_BATCH},
         {"fresh", no_argument, NULL, OPT_FRESH},
@@ -360,6 +389,8 @@ static int analyze(int argc, char **argv, int rank, int size)
     char growth_buf[1024], obs_buf[1024];
     tf_args_sampler sampler;
     tf_args_sampler_init(&sampler);
+    tf_alternatives alts;
+    tf_alternatives_init(&alts);
     int quiet = 0;
     tf_input in = {0};
 
@@ -406,7 +437,7 @@ static int analyze(int argc, char **argv, int rank, int size)
                 help(stdout, &opt);
             return TF_EXIT_OK;
         default:
-            if (!tf_args_sampler_option(c, optarg, &sampler, &err))
+            if (!tf_args_sampler_option(c, optarg, &sampler, &err) && !tf_alternatives_option(c, optarg, &alts, &err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
             break;
         }
@@ -439,6 +470,17 @@ static int analyze(int argc, char **argv, int rank, int size)
             tf_error_print(&err, PROG, errs);
         return TF_EXIT_USAGE;
     }
+    /* The folders of alternative priors are read before anything long. */
+    tf_status ast = tf_alternatives_check(&alts, &err);
+    if (ast != TF_OK) {
+        if (errs)
+            tf_error_print(&err, PROG, errs);
+        return tf_args_exit_code(ast);
+    }
+    opt.prior_sensitivity = alts.sensitivity;
+    opt.prior_refit = alts.refit;
+    opt.prior_alternatives = alts.alt;
+    opt.n_prior_alternatives = alts.n;
     tf_setup_user user;
     tf_args_sampler_user(&sampler, &user);
     opt.priors = tf_setup_user_priors;

@@ -8,6 +8,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "cmd/alternatives.h"
 #include "cmd/args.h"
 #include "cmd/input.h"
 #include "cmd/cmd.h"
@@ -21,6 +22,7 @@
 #include "survey/survey.h"
 #include "tables/fit_tables.h"
 #include "tables/models_table.h"
+#include "tables/sensitivity_table.h"
 #include "util/error.h"
 
 #define CMD "compare"
@@ -41,7 +43,8 @@ static void help(FILE *out)
             "importance sampling squared, and ranks them by Bayes factor and posterior probability.\n"
             "Writes models.csv (one row per candidate, excluded ones with the reason), the fit tables\n"
             "of every fitted candidate (change, parameters, diagnostics, chains and draws .csv, the\n"
-            "model a column of each) and prints the table.\n\n"
+            "model a column of each), prior-sensitivity.csv (the marginal likelihoods and model\n"
+            "probabilities again under wider and narrower priors) and prints the table.\n\n"
             "Marginal likelihoods compare only on one scale. For whole counts every count model is\n"
             "compared, and log-normal counting error enters as lognormal-int (the log-normal rounded to\n"
             "whole counts); the continuous log-normal density is listed as excluded. Counts that are not\n"
@@ -57,6 +60,8 @@ static void help(FILE *out)
     tf_args_quiet_help(out, 21);
     fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
     tf_args_sampler_help(out, &d, &e, 21);
+    fputs("\nPrior sensitivity (marginal likelihoods depend on how wide the priors are):\n", out);
+    tf_alternatives_help(out, 21);
     fputs(TF_CMD_HELP_END, out);
 }
 
@@ -156,11 +161,12 @@ static void print_warnings(const tf_comparison *c)
     }
 }
 
-#define N_TABLES 6
+#define N_TABLES 7
 
 /* The comparison's tables: the models table and the fit tables of every command. On failure
  * every entry is NULL. */
-static tf_status comparison_tables(const tf_comparison *c, const char *population, tf_table *out[N_TABLES],
+static tf_status comparison_tables(const tf_comparison *c, const tf_sensitivity *sens, const char *population,
+                                   tf_table *out[N_TABLES],
                                    tf_error *err)
 {
     size_t n = tf_comparison_n_models(c);
@@ -185,8 +191,9 @@ static tf_status comparison_tables(const tf_comparison *c, const char *populatio
     if (st == TF_OK && (st = tf_tables_change_of(&ctx, m, n, NULL, &out[1], err)) == TF_OK &&
         (st = tf_tables_parameters(&ctx, m, n, &out[2], err)) == TF_OK &&
         (st = tf_tables_diagnostics(&ctx, m, n, &out[3], err)) == TF_OK &&
-        (st = tf_tables_chains(&ctx, m, n, &out[4], err)) == TF_OK)
-        st = tf_tables_draws(&ctx, m, n, &out[5], err);
+        (st = tf_tables_chains(&ctx, m, n, &out[4], err)) == TF_OK &&
+        (st = tf_tables_draws(&ctx, m, n, &out[5], err)) == TF_OK && sens)
+        st = tf_sensitivity_table(sens, NULL, NULL, population, &out[6], err);
     if (st != TF_OK)
         for (size_t k = 0; k < N_TABLES; k++) {
             tf_table_free(out[k]);
@@ -195,6 +202,30 @@ static tf_status comparison_tables(const tf_comparison *c, const char *populatio
     free(order);
     free(m);
     return st;
+}
+
+/* One line on how far the best model's probability moves under the other priors, and which
+ * set of priors first makes another model the best. */
+static void print_sensitivity(const tf_sensitivity *s, FILE *out)
+{
+    double lo, hi;
+    int changes;
+    if (!s)
+        return;
+    tf_sensitivity_range(s, &lo, &hi, &changes);
+    if (!isfinite(lo))
+        return;
+    fprintf(out, "  under other priors (%zu sets): the best model's probability ranges from %.2f to %.2f\n",
+            tf_sensitivity_n_rows(s) - 1, lo, hi);
+    size_t b0 = tf_sensitivity_best(s, 0);
+    for (size_t r = 1; changes && r < tf_sensitivity_n_rows(s); r++) {
+        size_t b = tf_sensitivity_best(s, r);
+        if (b != b0 && b < tf_sensitivity_n_models(s)) {
+            fprintf(out, "  caution: under %s the best model is %s: the verdict rests partly on the priors\n",
+                    tf_sensitivity_label(s, r), tf_sensitivity_model_name(s, b));
+            break;
+        }
+    }
 }
 
 int tf_cmd_compare(int argc, char **argv)
@@ -211,6 +242,7 @@ int tf_cmd_compare(int argc, char **argv)
         {"output", required_argument, NULL, 'o'},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
+        TF_ALTERNATIVES_LONGOPTS,
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
@@ -226,6 +258,8 @@ int tf_cmd_compare(int argc, char **argv)
     int quiet = 0;
     tf_args_sampler sampler;
     tf_args_sampler_init(&sampler);
+    tf_alternatives alts;
+    tf_alternatives_init(&alts);
     tf_input in = {0};
 
     opterr = 0;
@@ -249,7 +283,7 @@ int tf_cmd_compare(int argc, char **argv)
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;
         default:
-            if (!tf_args_sampler_option(c, optarg, &sampler, &err))
+            if (!tf_args_sampler_option(c, optarg, &sampler, &err) && !tf_alternatives_option(c, optarg, &alts, &err))
                 tf_args_getopt_error(CMD, c, optopt, argv[optind - 1], &err);
             break;
         }
@@ -300,9 +334,16 @@ int tf_cmd_compare(int argc, char **argv)
     tf_args_folders folders = {0};
     char (*written)[4600] = NULL;   /* the file written per population */
     size_t n_jobs = 0;
+    tf_sensitivity **sens = NULL;
     tf_signals saved;
     const volatile sig_atomic_t *interrupted = tf_signals_catch(&saved);
 
+    /* The folders of alternative priors are read before the survey and any fit. */
+    tf_status ast = tf_alternatives_check(&alts, &err);
+    if (ast != TF_OK) {
+        status = tf_args_exit_code(ast);
+        goto out;
+    }
     tf_status rst = tf_input_read(&in, path, stderr, PROG, &sv, &err);
     if (rst != TF_OK) {
         status = rst == TF_ERR_USAGE ? TF_EXIT_USAGE : TF_EXIT_INPUT;
@@ -318,8 +359,9 @@ int tf_cmd_compare(int argc, char **argv)
     }
     n_jobs = only ? 1 : n_series;
     comps = calloc(n_jobs, sizeof *comps);
+    sens = calloc(n_jobs, sizeof *sens);
     written = calloc(n_jobs, sizeof *written);
-    if (!comps || !written) {
+    if (!comps || !sens || !written) {
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory");
         goto out;
     }
@@ -366,6 +408,18 @@ int tf_cmd_compare(int argc, char **argv)
             status = tf_args_exit_code(st);
             goto out;
         }
+        if (alts.sensitivity) {
+            tf_sensitivity_alternative alt[TF_SENSITIVITY_MAX_ALTERNATIVES];
+            size_t n_alt = tf_sensitivity_standard(comps[i], alt, TF_SENSITIVITY_MAX_ALTERNATIVES - alts.n);
+            for (size_t a = 0; a < alts.n; a++)
+                alt[n_alt++] = alts.alt[a];
+            tf_sensitivity_options so = {alts.refit, opt.evidence};
+            so.evidence.n_threads = opt.n_threads;
+            if ((st = tf_sensitivity_run(comps[i], alt, n_alt, &so, interrupted, &sens[i], &err)) != TF_OK) {
+                status = tf_args_exit_code(st);
+                goto out;
+            }
+        }
     }
 
     /* Signals wait until the files are written, and the files of every population are one
@@ -384,10 +438,10 @@ int tf_cmd_compare(int argc, char **argv)
             break;
         snprintf(written[i], sizeof written[i], "%s", dir);
         tf_table *tables[N_TABLES] = {0};
-        wst = comparison_tables(comps[i], tf_tables_population(s, base), tables, &err);
+        wst = comparison_tables(comps[i], sens[i], tf_tables_population(s, base), tables, &err);
         if (wst == TF_OK)
             wst = tf_fileset_mkdir(g, dir, &err);
-        for (size_t k = 0; k < N_TABLES && wst == TF_OK; k++) {
+        for (size_t k = 0; k < N_TABLES && wst == TF_OK && tables[k]; k++) {
             char file[4600];
             int n = snprintf(file, sizeof file, "%s/%s.csv", dir, tf_table_name(tables[k]));
             if (n < 0 || (size_t)n >= sizeof file) {
@@ -412,7 +466,9 @@ int tf_cmd_compare(int argc, char **argv)
     for (size_t i = 0; i < n_jobs; i++) {
         if (!quiet) {
             print_table(comps[i], stdout);
-            printf("  files: %s/ (models, change, parameters, diagnostics, chains, draws .csv)\n", written[i]);
+            printf("  files: %s/ (models, change, parameters, diagnostics, chains, draws%s .csv)\n", written[i],
+                   sens[i] ? ", " TF_SENSITIVITY_TABLE_NAME : "");
+            print_sensitivity(sens[i], stdout);
         }
         print_warnings(comps[i]);
     }
@@ -422,6 +478,9 @@ int tf_cmd_compare(int argc, char **argv)
 out:
     tf_signals_restore(&saved);
     tf_messages_outcome(PROG, status, &err, stderr);
+    for (size_t i = 0; i < n_jobs && sens; i++)
+        tf_sensitivity_free(sens[i]);
+    free(sens);
     for (size_t i = 0; i < n_jobs && comps; i++)
         tf_comparison_free(comps[i]);
     free(comps);

@@ -24,6 +24,7 @@ typedef struct {
     tf_posterior *post;
     tf_fit *fit;
     tf_evidence ev;
+    tf_evidence_draws *kept;  /* the evidence's importance draws, for other priors */
     tf_candidate_figures fig;
     double weight;           /* unnormalised prior weight */
     int interrupted;
@@ -54,6 +55,7 @@ void tf_comparison_free(tf_comparison *c)
     for (size_t i = 0; i < c->n; i++) {
         entry *e = &c->e[i];
         tf_fit_free(e->fit);
+        tf_evidence_draws_free(e->kept);
         tf_posterior_free(e->post);
         tf_prior_set_free(e->priors);
         tf_model_free(e->m);
@@ -326,7 +328,11 @@ static void run_one(run_job *j, size_t i)
     tf_evidence_options eo = j->opt->evidence;
     eo.n_threads = j->per_model_threads;
     tf_error_init(&err);
-    st = tf_evidence_estimate_fit(e->post, j->c->s, e->fit, &eo, j->stop, &e->ev, &err);
+    /* The draws are kept so that the prior sensitivity (sensitivity.h) costs no new likelihood
+     * estimates; out of memory for them leaves the estimate whole and the sensitivity without
+     * this candidate. */
+    e->kept = tf_evidence_draws_new();
+    st = tf_evidence_estimate_fit_kept(e->post, j->c->s, e->fit, &eo, j->stop, &e->ev, e->kept, &err);
     if (st == TF_ERR_INTERRUPTED) {
         e->interrupted = 1;
         return;
@@ -550,6 +556,13 @@ const tf_posterior *tf_comparison_posterior(const tf_comparison *c, size_t i)
 const tf_fit *tf_comparison_fit(const tf_comparison *c, size_t i)
 {
     return c->e[i].state == TF_CANDIDATE_FITTED ? c->e[i].fit : NULL;
+}
+
+const tf_evidence_draws *tf_comparison_evidence_draws(const tf_comparison *c, size_t i)
+{
+    return i < c->n && c->e[i].state == TF_CANDIDATE_FITTED && c->e[i].kept && tf_evidence_draws_n(c->e[i].kept) > 0
+               ? c->e[i].kept
+               : NULL;
 }
 
 const tf_evidence *tf_comparison_evidence(const tf_comparison *c, size_t i)

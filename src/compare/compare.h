@@ -125,6 +125,9 @@ const tf_posterior *tf_comparison_posterior(const tf_comparison *c, size_t i);
 const tf_fit *tf_comparison_fit(const tf_comparison *c, size_t i);
 const tf_evidence *tf_comparison_evidence(const tf_comparison *c, size_t i);
 const tf_candidate_figures *tf_comparison_figures(const tf_comparison *c, size_t i);
+/* The importance draws behind the evidence estimate (tf_evidence_reweight); NULL unless fitted
+ * and kept. */
+const tf_evidence_draws *tf_comparison_evidence_draws(const tf_comparison *c, size_t i);
 
 /* ---- the arithmetic, exposed for tests and for other callers ---- */
 

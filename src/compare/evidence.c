@@ -98,6 +98,9 @@ typedef struct {
     size_t n;
     double *z;        /* n x dim */
     double *lw;       /* n */
+    /* When not NULL (the main stage of a run that keeps its draws), per draw: theta (n x dim),
+     * the log likelihood estimate (NaN when not made), log q and the log prior of z. */
+    double *keep_theta, *keep_ll, *keep_lq, *keep_lp;
     uint64_t seed;
     uint64_t keys[MAX_KEYS + 2];
     size_t n_keys;    /* including the stage; the block index is appended */
@@ -128,13 +131,20 @@ static void run_block(stage_job *j, void *worker, size_t b)
         tf_tmix_draw(j->q, &rng, z);
         double lq = tf_tmix_log_density(j->q, z);
         double lp = j->t->log_prior(j->t->ctx, z, theta);
-        double lw = -INFINITY;
+        double lw = -INFINITY, ll = NAN;
         if (lp > -INFINITY && lq > -INFINITY) {
-            double ll = j->t->log_lik(worker, theta, &rng);
+            ll = j->t->log_lik(worker, theta, &rng);
             if (ll > -INFINITY && ll < INFINITY)
                 lw = lp + ll - lq;
         }
         j->lw[k] = isnan(lw) ? -INFINITY : lw;
+        if (j->keep_theta) {
+            memcpy(j->keep_theta + k * d, theta, d * sizeof *theta);
+            /* A non-finite or NaN estimate carries weight 0 here, and so under any prior. */
+            j->keep_ll[k] = isnan(ll) ? NAN : (ll > -INFINITY && ll < INFINITY) ? ll : -INFINITY;
+            j->keep_lq[k] = lq;
+            j->keep_lp[k] = lp;
+        }
     }
 }
 
@@ -319,6 +329,86 @@ static int add_to_pool(const double *z, const double *lw, size_t n, size_t d, do
     return 1;
 }
 
+/* ---- the kept draws ---- */
+
+struct tf_evidence_draws {
+    size_t n, dim, cap;
+    double *theta, *ll, *lq, *lp;
+};
+
+tf_evidence_draws *tf_evidence_draws_new(void) { return calloc(1, sizeof(tf_evidence_draws)); }
+
+void tf_evidence_draws_free(tf_evidence_draws *k)
+{
+    if (!k)
+        return;
+    free(k->theta);
+    free(k->ll);
+    free(k->lq);
+    free(k->lp);
+    free(k);
+}
+
+/* Room for n draws of dim values; what was kept before is dropped. 0 when out of memory. */
+static int draws_reserve(tf_evidence_draws *k, size_t n, size_t dim)
+{
+    k->n = 0;
+    k->dim = dim;
+    if (n <= k->cap && k->theta)
+        return 1;
+    free(k->theta);
+    free(k->ll);
+    free(k->lq);
+    free(k->lp);
+    k->theta = malloc(n * dim * sizeof *k->theta);
+    k->ll = malloc(n * sizeof *k->ll);
+    k->lq = malloc(n * sizeof *k->lq);
+    k->lp = malloc(n * sizeof *k->lp);
+    k->cap = k->theta && k->ll && k->lq && k->lp ? n : 0;
+    return k->cap > 0;
+}
+
+size_t tf_evidence_draws_n(const tf_evidence_draws *k) { return k->n; }
+size_t tf_evidence_draws_dim(const tf_evidence_draws *k) { return k->dim; }
+const double *tf_evidence_draws_theta(const tf_evidence_draws *k, size_t i) { return k->theta + i * k->dim; }
+double tf_evidence_draws_log_lik(const tf_evidence_draws *k, size_t i) { return k->ll[i]; }
+double tf_evidence_draws_log_q(const tf_evidence_draws *k, size_t i) { return k->lq[i]; }
+double tf_evidence_draws_log_prior(const tf_evidence_draws *k, size_t i) { return k->lp[i]; }
+
+tf_status tf_evidence_reweight(const tf_evidence_draws *k, tf_evidence_log_ratio_fn log_ratio, void *ctx,
+                               tf_evidence_estimate *out, size_t *n_uncovered, tf_error *err)
+{
+    memset(out, 0, sizeof *out);
+    out->log_ml = out->se = out->pareto_k = out->ess = NAN;
+    if (n_uncovered)
+        *n_uncovered = 0;
+    if (!k || k->n < 2)
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "no importance draws were kept to reweight");
+    double *lw = malloc(k->n * sizeof *lw);
+    if (!lw)
+        return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for %zu weights", k->n);
+    size_t unc = 0;
+    for (size_t i = 0; i < k->n; i++) {
+        double r = log_ratio(ctx, k->theta + i * k->dim);
+        if (!(r > -INFINITY) || isnan(r)) {
+            lw[i] = -INFINITY;
+        } else if (isnan(k->ll[i]) || !(k->lp[i] > -INFINITY) || r == INFINITY) {
+            /* The old prior is 0 here, so no likelihood was estimated: the new weight is not
+             * known. */
+            unc++;
+            lw[i] = -INFINITY;
+        } else {
+            double w = k->lp[i] + r + k->ll[i] - k->lq[i];
+            lw[i] = isnan(w) ? -INFINITY : w;
+        }
+    }
+    if (n_uncovered)
+        *n_uncovered = unc;
+    tf_status st = summarise(lw, k->n, out, err);
+    free(lw);
+    return st;
+}
+
 tf_status tf_evidence_run(const tf_evidence_target *t, const double *z_draws, size_t n_z,
                           const tf_evidence_options *opt, const uint64_t *keys, size_t n_keys,
                           const volatile sig_atomic_t *stop, tf_evidence *out, tf_error *err)
@@ -443,8 +533,22 @@ tf_status tf_evidence_run(const tf_evidence_target *t, const double *z_draws, si
         }
     }
     job.keys[n_keys] = STAGE_MAIN;
+    if (t->keep) {
+        if (!draws_reserve(t->keep, opt->n_draws, d)) {
+            st = tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory to keep %zu importance draws",
+                              opt->n_draws);
+            goto done;
+        }
+        job.keep_theta = t->keep->theta;
+        job.keep_ll = t->keep->ll;
+        job.keep_lq = t->keep->lq;
+        job.keep_lp = t->keep->lp;
+    }
     if ((st = run_sized_stage(&job, workers, n_threads, opt, &out->main, err)) != TF_OK)
         goto done;
+    if (t->keep)
+        t->keep->n = out->main.n_draws;
+    job.keep_theta = job.keep_ll = job.keep_lq = job.keep_lp = NULL;
 
     /* The check density: the mixture fitted to the PMMH draws alone, never adapted, with
      * heavier tails (check_nu) and wider scales, and a defensive part centred on the draws'
@@ -608,6 +712,13 @@ tf_status tf_evidence_estimate_fit(const tf_posterior *post, const tf_series *s,
                                    const tf_evidence_options *opt, const volatile sig_atomic_t *stop,
                                    tf_evidence *out, tf_error *err)
 {
+    return tf_evidence_estimate_fit_kept(post, s, fit, opt, stop, out, NULL, err);
+}
+
+tf_status tf_evidence_estimate_fit_kept(const tf_posterior *post, const tf_series *s, const tf_fit *fit,
+                                        const tf_evidence_options *opt, const volatile sig_atomic_t *stop,
+                                        tf_evidence *out, tf_evidence_draws *keep, tf_error *err)
+{
     const tf_model *m = tf_posterior_model(post);
     if (tf_fit_model(fit) != m || tf_fit_series(fit) != s)
         return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "the fit is not of this model and series");
@@ -670,7 +781,7 @@ tf_status tf_evidence_estimate_fit(const tf_posterior *post, const tf_series *s,
         ctx.n_particles = tr.n_particles;
         sd = tr.sd;
     }
-    tf_evidence_target t = {d, &ctx, pf_log_prior, pf_worker_new, pf_worker_free, pf_log_lik};
+    tf_evidence_target t = {d, &ctx, pf_log_prior, pf_worker_new, pf_worker_free, pf_log_lik, keep};
     st = tf_evidence_run(&t, zd, n_z, opt, keys, 3, stop, out, err);
     free(zd);
     if (st == TF_OK) {

@@ -92,6 +92,11 @@ typedef struct {
     size_t n_components;          /* t components fitted (besides the defensive one) */
 } tf_evidence;
 
+/* The importance draws of the main density, kept so that the estimate can be redone under
+ * another prior without a single new likelihood estimate (tf_evidence_reweight). Opaque; made
+ * empty by tf_evidence_draws_new and filled by a run that is handed it. */
+typedef struct tf_evidence_draws tf_evidence_draws;
+
 /* What is integrated: p(y) = integral of exp(log_lik(theta(z)) + log_prior(z)) dz. log_prior
  * writes theta(z) and returns the log prior density of z with the Jacobian (as
  * tf_posterior_log_prior_z; -inf outside the support). log_lik returns the log of an
@@ -106,6 +111,9 @@ typedef struct {
     void *(*worker_new)(void *ctx);
     void (*worker_free)(void *worker);
     double (*log_lik)(void *worker, const double *theta, tf_rng *rng);
+    /* When not NULL, the run stores here every draw of the main density: theta, the log
+     * likelihood estimate, log q(z) and the log prior of z (replacing what it held). */
+    tf_evidence_draws *keep;
 } tf_evidence_target;
 
 /* Estimates the evidence of target t from n_z draws z_draws (n_z x dim, row-major) of its
@@ -129,5 +137,47 @@ tf_status tf_evidence_run(const tf_evidence_target *t, const double *z_draws, si
 tf_status tf_evidence_estimate_fit(const tf_posterior *post, const tf_series *s, const tf_fit *fit,
                                    const tf_evidence_options *opt, const volatile sig_atomic_t *stop,
                                    tf_evidence *out, tf_error *err);
+/* The same, keeping the main density's draws in keep (may be NULL) as tf_evidence_target's keep. */
+tf_status tf_evidence_estimate_fit_kept(const tf_posterior *post, const tf_series *s, const tf_fit *fit,
+                                        const tf_evidence_options *opt, const volatile sig_atomic_t *stop,
+                                        tf_evidence *out, tf_evidence_draws *keep, tf_error *err);
+
+/* ---- the same draws under another prior ----
+ *
+ * The estimate is the mean of w = p_hat(y | theta) p(theta) / q(theta) over draws from q. Under
+ * another prior p' of the same parameters the very same draws give
+ *     w' = w p'(theta) / p(theta),
+ * an unbiased estimate of p'(y) as long as q covers the new posterior (importance sampling is
+ * exact for any target that q covers: Robert & Casella 2004, Monte Carlo Statistical Methods,
+ * section 3.3). Whether it does is what the Pareto k of the new weights says; draws that lay
+ * outside the old prior's support carry no likelihood estimate, so a new prior that gives them
+ * mass cannot be judged from these draws (counted as uncovered). */
+
+/* NULL when out of memory. tf_evidence_draws_free accepts NULL. */
+tf_evidence_draws *tf_evidence_draws_new(void);
+void tf_evidence_draws_free(tf_evidence_draws *k);
+size_t tf_evidence_draws_n(const tf_evidence_draws *k);
+size_t tf_evidence_draws_dim(const tf_evidence_draws *k);
+/* Draw i: theta (dim values, natural scale), the log likelihood estimate (-INFINITY for an
+ * estimate of 0; NaN when none was made because the old prior is 0 there), log q(z) and the log
+ * prior of z with the Jacobian. */
+const double *tf_evidence_draws_theta(const tf_evidence_draws *k, size_t i);
+double tf_evidence_draws_log_lik(const tf_evidence_draws *k, size_t i);
+double tf_evidence_draws_log_q(const tf_evidence_draws *k, size_t i);
+double tf_evidence_draws_log_prior(const tf_evidence_draws *k, size_t i);
+
+/* log p'(theta) - log p(theta) for the new prior p' and the old p, on the natural scale (the
+ * Jacobian of z is the same for both and cancels): -INFINITY where p' is 0, +INFINITY where p is
+ * 0 and p' is not. */
+typedef double (*tf_evidence_log_ratio_fn)(void *ctx, const double *theta);
+
+/* The estimate of the draws kept in k under the prior that log_ratio describes, into *out
+ * (log_ml, se, pareto_k, ess as for the original; n_zero counts weights of 0), and in
+ * *n_uncovered (may be NULL) the draws that the new prior gives mass but that carry no
+ * likelihood estimate: with any, the estimate misses part of p'(y) and must not be trusted.
+ * Errors: TF_ERR_INVALID when k holds no draws; TF_ERR_NUMERIC when every new weight is 0;
+ * TF_ERR_NOMEM. */
+tf_status tf_evidence_reweight(const tf_evidence_draws *k, tf_evidence_log_ratio_fn log_ratio, void *ctx,
+                               tf_evidence_estimate *out, size_t *n_uncovered, tf_error *err);
 
 #endif

@@ -291,6 +291,39 @@ double tf_prior_quantile(const tf_prior *p, double prob)
 
 double tf_prior_draw(const tf_prior *p, tf_rng *rng) { return tf_prior_quantile(p, tf_rng_uniform(rng)); }
 
+tf_status tf_prior_rescale(const tf_prior *p, double factor, tf_prior *out, tf_error *err)
+{
+    if (!(factor > 0 && factor < INFINITY))
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "a prior's scale factor must be positive, got %g",
+                            factor);
+    if (!kind_ok(p->kind))
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "unknown prior distribution (%d)", (int)p->kind);
+    double par[TF_PRIOR_MAX_PAR];
+    memcpy(par, p->par, sizeof par);
+    switch (p->kind) {
+    case TF_PRIOR_NORMAL:
+    case TF_PRIOR_LOGNORMAL:
+    case TF_PRIOR_STUDENT_T:
+        par[1] *= factor;
+        break;
+    case TF_PRIOR_HALFNORMAL:
+        par[0] *= factor;
+        break;
+    case TF_PRIOR_GAMMA:
+        par[1] /= factor;
+        break;
+    case TF_PRIOR_UNIFORM: {
+        double mid = 0.5 * (par[0] + par[1]), half = 0.5 * (par[1] - par[0]) * factor;
+        par[0] = mid - half;
+        par[1] = mid + half;
+        break;
+    }
+    default:
+        break;
+    }
+    return tf_prior_init(out, p->kind, par, p->trunc_lo, p->trunc_hi, err);
+}
+
 /* Appends with snprintf semantics: *len counts what the full text needs. */
 static void put(char *buf, size_t size, size_t *len, const char *fmt, double v)
 {
@@ -406,6 +439,16 @@ tf_status tf_prior_set_new(size_t n_params, const char *const *names, const doub
 fail:
     tf_prior_set_free(s);
     return tf_error_add(err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for a prior set");
+}
+
+tf_status tf_prior_set_copy(const tf_prior_set *s, tf_prior_set **out, tf_error *err)
+{
+    tf_status st = tf_prior_set_new(s->n_params, (const char *const *)s->names, s->lower, s->upper, out, err);
+    if (st != TF_OK)
+        return st;
+    memcpy((*out)->priors, s->priors, s->n_params * sizeof *s->priors);
+    memcpy((*out)->assigned, s->assigned, s->n_params);
+    return TF_OK;
 }
 
 size_t tf_prior_set_n_params(const tf_prior_set *s) { return s->n_params; }

@@ -71,6 +71,17 @@ double tf_prior_quantile(const tf_prior *p, double prob);
  * truncation), using one uniform from rng. */
 double tf_prior_draw(const tf_prior *p, tf_rng *rng);
 
+/* The prior p with its scale multiplied by factor (> 0, finite), into *out: the spread changes,
+ * the centre and the truncation bounds stay. The scale of each family:
+ *   normal: sd;  lognormal: sdlog (the spread of log x about the median e^meanlog);
+ *   halfnormal: sd;  student_t: scale;  gamma: the scale 1 / rate (rate / factor, shape kept,
+ *   so the whole law is stretched: x -> factor x);  uniform: the half-width about the midpoint.
+ * Twice the scale is about half the density over the bulk of a location-scale family, which is
+ * what moves a marginal likelihood (Kass & Raftery 1995, JASA 90:773, section 5). Errors as
+ * tf_prior_init (a stretched law whose truncation keeps no probability), TF_ERR_INVALID for a
+ * bad factor. */
+tf_status tf_prior_rescale(const tf_prior *p, double factor, tf_prior *out, tf_error *err);
+
 /* Writes e.g. "lognormal(meanlog=6.2, sdlog=1.5) truncated to [1, inf)" into buf (always
  * NUL-terminated when size > 0); the truncation part appears only when it cuts the family's
  * support. Returns the length the full text needs, as snprintf does. */
@@ -88,6 +99,8 @@ typedef struct tf_prior_set tf_prior_set;
 tf_status tf_prior_set_new(size_t n_params, const char *const *names, const double *lower,
                            const double *upper, tf_prior_set **out, tf_error *err);
 void tf_prior_set_free(tf_prior_set *s);
+/* A copy of s (names, supports, priors). Errors: TF_ERR_NOMEM; on failure *out is NULL. */
+tf_status tf_prior_set_copy(const tf_prior_set *s, tf_prior_set **out, tf_error *err);
 
 size_t tf_prior_set_n_params(const tf_prior_set *s);
 const char *tf_prior_set_name(const tf_prior_set *s, size_t i);

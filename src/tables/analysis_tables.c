@@ -14,6 +14,7 @@
 #include "export/csv_out.h"
 #include "project/cautions.h"
 #include "tables/columns.h"
+#include "tables/sensitivity_table.h"
 #include "tables/fit_tables.h"
 #include "tables/models_table.h"
 #include "tables/populations_table.h"
@@ -265,6 +266,23 @@ static tf_status models_sheet(const tf_analysis *a, size_t pi, const tf_analysis
     return tf_report_add_chart(r, &ch, err);
 }
 
+/* The prior sensitivity, when it was made (tables/sensitivity_table.h). */
+static tf_status sensitivity_sheet(const tf_analysis *a, size_t pi, const tf_analysis_tables_provenance *prov,
+                                   tf_report *r, tf_error *err)
+{
+    const tf_analysis_pop *p = tf_analysis_population(a, pi);
+    const tf_sensitivity *sens = tf_analysis_pop_sensitivity(p);
+    if (!sens)
+        return TF_OK;
+    tf_table *t;
+    tf_status st = tf_sensitivity_table(sens, tf_analysis_pop_sens_row(p, 0), tf_analysis_pop_projection(p),
+                                        pop_title(prov, p), &t, err);
+    if (st != TF_OK)
+        return st;
+    return add_table(a, pi, prov, r, t, TF_SENSITIVITY_TABLE_NAME,
+                     "model probabilities and risks under wider and narrower priors", 0, NULL, err);
+}
+
 /* change, parameters, diagnostics, chains and draws: the fit tables of every command. */
 static tf_status fit_sheets(const tf_analysis *a, size_t pi, const tf_analysis_tables_provenance *prov,
                             const tf_tables_context *c, tf_report *r, tf_error *err)
@@ -421,6 +439,16 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     model_label(best, text, sizeof text);
     TRY(tf_table_add_item_text(t, "Best-supported model", text, NULL, err));
     TRY(tf_table_add_item_number(t, "  its probability", best->probability, TF_COL_PERCENT, NULL, err));
+    /* Marginal likelihoods depend on the priors' width (compare/sensitivity.h): how far the
+     * verdict moves with them, and a caution when the best model changes. */
+    char caution[512];
+    tf_wording_prior_sensitivity(p, text, sizeof text, caution, sizeof caution);
+    if (text[0])
+        TRY(tf_table_add_item_text(t, "  under other priors", text, NULL, err));
+    if (caution[0]) {
+        TRY(tf_table_add_item_text(t, "  caution", caution, NULL, err));
+        TRY(tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err));
+    }
 
     /* Two questions that read alike: a fall below a threshold at any time up to a year, and a
      * decline measured in one year. Each block has its heading and each label says which. */
@@ -688,7 +716,8 @@ tf_status tf_analysis_tables_build(const tf_analysis *a, const tf_analysis_table
         tf_tables_context c = {.population = pop_title(prov, p), .series = tf_analysis_pop_series(p),
                                .omit_seconds = prov->omit_seconds};
         if ((st = abundance_sheet(a, i, prov, &c, r, err)) != TF_OK || (st = projection_sheets(a, i, prov, r, err)) != TF_OK ||
-            (st = models_sheet(a, i, prov, r, err)) != TF_OK || (st = fit_sheets(a, i, prov, &c, r, err)) != TF_OK)
+            (st = models_sheet(a, i, prov, r, err)) != TF_OK || (st = sensitivity_sheet(a, i, prov, r, err)) != TF_OK ||
+            (st = fit_sheets(a, i, prov, &c, r, err)) != TF_OK)
             break;
     }
     return st;

@@ -154,6 +154,21 @@ static const tf_column vocabulary[N] = {
     [TF_C_SHEET] = {"sheet", "Sheet", "the sheet of the workbook showing the same table (blank: CSV only)",
                     TF_COL_TEXT},
     [TF_C_ABOUT] = {"about", "About", "what the table holds", TF_COL_TEXT},
+    [TF_C_ALTERNATIVE] = {"alternative", "Priors",
+                          "the priors of the row: fitted (the model files used), a parameter's prior scale times 0.5 or "
+                          "2 (K x2), every scale at once (all x2), or a folder of model files given with "
+                          "--prior-alternative",
+                          TF_COL_TEXT},
+    [TF_C_LOG_ML] = {"log_ml", "Log ML", "log marginal likelihood ln p(counts | model)", TF_COL_NUMBER},
+    [TF_C_LOG_ML_MCSE] = {"log_ml_mcse", "Log ML MCSE", "Monte Carlo standard error of log_ml (delta method)",
+                          TF_COL_NUMBER},
+    [TF_C_MODEL_PROB_MCSE] = {"model_prob_mcse", "Model probability MCSE",
+                              "Monte Carlo standard error of model_prob (delta method)", TF_COL_NUMBER},
+    [TF_C_DRAWS_PARETO_K] = {"draws_pareto_k", "Draws Pareto k",
+                             "Pareto k of the posterior draws reweighted to the row's priors, behind its risks (above "
+                             "0.7: unreliable; blank where the priors are unchanged)",
+                             TF_COL_NUMBER},
+    [TF_C_NOTE] = {"note", "Note", "a caution about the row", TF_COL_TEXT},
 };
 
 const tf_column *tf_column_of(tf_column_id id)

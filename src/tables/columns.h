@@ -97,6 +97,12 @@ typedef enum {
     TF_C_FILE,
     TF_C_SHEET,
     TF_C_ABOUT,
+    TF_C_ALTERNATIVE,
+    TF_C_LOG_ML,
+    TF_C_LOG_ML_MCSE,
+    TF_C_MODEL_PROB_MCSE,
+    TF_C_DRAWS_PARETO_K,
+    TF_C_NOTE,
     TF_C_COUNT_OF_COLUMNS
 } tf_column_id;
 

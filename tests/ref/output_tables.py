@@ -7,7 +7,8 @@ file of that name, in that order. The list is read from the document itself, so 
 drift apart unnoticed. Two rows of that list describe columns that depend on the run: the
 parameter columns of `draws` (the names given in back-quotes, in that order) and the per-threshold
 and per-decline groups of `populations` ("per threshold k: threshold_k, ..."), which repeat with
-k = 1, 2, ... (at least once).
+k = 1, 2, ... (at least once; any number of times, none included, when the group names in
+parentheses where it may be missing: "per threshold k (none in compare): ...").
 """
 import csv
 import os
@@ -41,9 +42,9 @@ def _columns(cell):
     """A docs/tables.md column list as items: ('col', name) or ('repeat', [names with the letter], letter)."""
     items = []
     for seg in _split_top(cell, ";"):
-        m = re.fullmatch(r"per [a-z ]+ ([a-z]): (.*)", seg)
+        m = re.fullmatch(r"per [a-z ]+ ([a-z])( \([^)]*\))?: (.*)", seg)
         if m:
-            items.append(("repeat", [c.strip() for c in _split_top(m.group(2), ",")], m.group(1)))
+            items.append(("repeat", [c.strip() for c in _split_top(m.group(3), ",")], m.group(1), bool(m.group(2))))
             continue
         for tok in _split_top(seg, ","):
             if tok.startswith("one column per parameter"):
@@ -66,7 +67,7 @@ def documented():
             text = f.read()
         part = text.split("## The tables", 1)[1].split("\n## ", 1)[0]
         for line in part.splitlines():
-            m = re.match(r"\|\s*`([a-z]+)`(?: \([a-z ]+\))?\s*\|[^|]*\|(.*)\|\s*$", line)
+            m = re.match(r"\|\s*`([a-z][a-z-]*)`(?: \([a-z ]+\))?\s*\|[^|]*\|(.*)\|\s*$", line)
             if m:
                 _DOC_CACHE[m.group(1)] = _columns(m.group(2))
     return _DOC_CACHE
@@ -89,7 +90,7 @@ def header_problem(header, table):
                 return f"column {i + 1} is {header[i] if i < len(header) else 'missing'}, docs/tables.md has {item[1]}"
             i += 1
         else:
-            _, names, letter = item
+            _, names, letter, optional = item
             k = 0
             while True:
                 want = [re.sub(rf"(?<![a-z]){letter}(?![a-z])", str(k + 1), n) for n in names]
@@ -97,7 +98,7 @@ def header_problem(header, table):
                     break
                 i += len(want)
                 k += 1
-            if k == 0:
+            if k == 0 and not optional:
                 return (f"columns from {i + 1} are {header[i:i + len(names)]}, docs/tables.md has {names} "
                         f"({letter} = 1, 2...)")
     if i != len(header):

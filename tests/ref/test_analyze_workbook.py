@@ -56,8 +56,8 @@ EPOCH = "1700000000"   # SOURCE_DATE_EPOCH: 2023-11-14 22:13:20 UTC
 WARN_FILL = "F9D3C2"   # COLOUR_WARN_FILL in src/export/workbook.c
 # The raw draws are CSV only by default (draws.csv, named in contents.csv with no sheet), so that
 # the workbook stays quick to open; --workbook-draws puts them back (tests/e2e/analyze.sh).
-SHEETS = ["Summary", "Populations", "Abundance", "Projection", "Risk", "Declines", "Models", "Change",
-          "Parameters", "Diagnostics", "Chains"]
+SHEETS = ["Summary", "Populations", "Abundance", "Projection", "Risk", "Declines", "Models", "Prior-sensitivity",
+          "Change", "Parameters", "Diagnostics", "Chains"]
 # Number formats the writer promises for each column kind (kinds in src/export/table.h, formats in
 # src/export/workbook.c: a year or a whole number "0", a probability "0.000", a fraction shown as a
 # percentage PERCENT), by CSV column name.
@@ -76,6 +76,7 @@ FORMATS = {
     "Risk": {"years_ahead": "0", "year": "0", "probability": "0.000"},
     "Declines": {"window_years": "0", "decline": SHARE, "probability": "0.000"},
     "Models": {"model_prob": "0.000", "particles": "0"},
+    "Prior-sensitivity": {"model_prob": "0.000", "risk_1_10y": "0.000"},
     "Diagnostics": {"acceptance": SHARE, "chains": "0"},
     "Populations": {"first_year": "0", "change": PERCENT, "change_lower_95": PERCENT, "p_decline": "0.000"},
 }

@@ -17,6 +17,7 @@
 
 #define LN_2PI 1.8378770664093453
 #define LN_PI 1.1447298858494002
+#define LN_2 0.69314718055994531
 
 /* Prior z ~ N(0, S0^2 I) in D dimensions; "likelihood" N(a; z, V) with V diagonal, times a
  * noise factor exp(sd eps - sd^2 / 2), eps standard normal, whose mean is 1. The evidence is
@@ -116,7 +117,7 @@ static gauss_ctx standard_ctx(void)
 
 static tf_evidence_target target_of(gauss_ctx *c)
 {
-    tf_evidence_target t = {D, c, g_log_prior, g_worker_new, g_worker_free, g_log_lik};
+    tf_evidence_target t = {D, c, g_log_prior, g_worker_new, g_worker_free, g_log_lik, NULL};
     return t;
 }
 
@@ -272,6 +273,145 @@ START_TEST(heavy_tailed_weights_are_flagged)
 }
 END_TEST
 
+/* The prior of the reweighting tests: z_i ~ N(0, (scale_i s0)^2) against the fitted N(0, s0^2). */
+typedef struct {
+    double s0;
+    double scale[D];
+} rescale_ctx;
+
+static double rescaled_log_ratio(void *ctx, const double *theta)
+{
+    const rescale_ctx *r = ctx;
+    double l = 0;
+    for (int i = 0; i < D; i++) {
+        double s1 = r->scale[i] * r->s0;
+        l += -log(s1) - 0.5 * theta[i] * theta[i] / (s1 * s1) + log(r->s0) + 0.5 * theta[i] * theta[i] / (r->s0 * r->s0);
+    }
+    return l;
+}
+
+static double zero_log_ratio(void *ctx, const double *theta)
+{
+    (void)ctx;
+    (void)theta;
+    return 0.0;
+}
+
+static double uncovered_log_ratio(void *ctx, const double *theta)
+{
+    (void)ctx;
+    return theta[0] > 0 ? INFINITY : 0.0;
+}
+
+/* The draws of one run under another prior against the closed form under that prior: the
+ * evidence N(a; 0, (2 S0)^2 I + V) when every prior sd is doubled (Bishop 2006, eq. 2.115), and
+ * N(a; 0, (S0/2)^2 I + V) halved. As for the run itself: each z-score within 4 and their sum of
+ * squares over R = 8 seeds below the 99.9 % point of chi-square(8). The same draws under the same
+ * prior give the run's own estimate bit for bit. */
+START_TEST(reweighted_estimates_agree_with_exact_evidence)
+{
+    gauss_ctx c = standard_ctx();
+    tf_evidence_target t = target_of(&c);
+    tf_evidence_draws *kd = tf_evidence_draws_new();
+    ck_assert_ptr_nonnull(kd);
+    t.keep = kd;
+    enum { NZ = 2000, R = 8 };
+    static double z[NZ * D];
+    static const double factors[] = {2.0, 0.5};
+    for (size_t f = 0; f < 2; f++) {
+        gauss_ctx alt = c;
+        alt.s0 = c.s0 * factors[f];
+        const double exact = exact_log_evidence(&alt);
+        rescale_ctx rc = {c.s0, {factors[f], factors[f], factors[f]}};
+        double chi = 0;
+        for (int r = 0; r < R; r++) {
+            posterior_draws(&c, NZ, 1.0, 0.0, 300 + (uint64_t)r, z);
+            tf_evidence_options o = tf_evidence_default_options();
+            o.seed = 3000 + (uint64_t)r;
+            uint64_t keys[1] = {6};
+            tf_evidence e;
+            ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 1, NULL, &e, NULL), TF_OK);
+            ck_assert_uint_eq(tf_evidence_draws_n(kd), e.main.n_draws);
+            ck_assert_uint_eq(tf_evidence_draws_dim(kd), D);
+            tf_evidence_estimate same, w;
+            size_t unc = 99;
+            ck_assert_int_eq(tf_evidence_reweight(kd, zero_log_ratio, NULL, &same, &unc, NULL), TF_OK);
+            ck_assert(same.log_ml == e.main.log_ml && same.se == e.main.se && unc == 0);
+            ck_assert_int_eq(tf_evidence_reweight(kd, rescaled_log_ratio, &rc, &w, &unc, NULL), TF_OK);
+            double zs = (w.log_ml - exact) / w.se;
+            ck_assert_msg(fabs(zs) < 4, "factor %g seed %d: %g (se %g, k %g), exact %g", factors[f], r, w.log_ml, w.se,
+                          w.pareto_k, exact);
+            chi += zs * zs;
+        }
+        double limit = gsl_cdf_chisq_Qinv(1e-3, R);
+        ck_assert_msg(chi < limit, "factor %g: chi-square %g over %d seeds (limit %g)", factors[f], chi, R, limit);
+    }
+    tf_evidence_draws_free(kd);
+}
+END_TEST
+
+/* Lindley (1957, Biometrika 44:187) and Kass & Raftery (1995, JASA 90:773, section 5): when the
+ * data dominate, doubling the prior sd of one parameter halves the prior density where the
+ * likelihood lives, so log p(y) falls by ln 2. Here S0 = 20 against likelihood sds of at most
+ * 0.8: the closed form gives a fall of ln 2 - 0.5 ln((4 S0^2 + v) / (S0^2 + v) / 4) - ..., which
+ * differs from ln 2 by under 0.001 (computed below, not assumed). Tolerance: that gap plus 4
+ * standard errors of the two estimates (summed, since they come from the same draws and are
+ * positively correlated: the sum bounds the se of the difference). */
+START_TEST(doubling_one_prior_scale_lowers_log_evidence_by_ln2)
+{
+    gauss_ctx c = standard_ctx();
+    c.s0 = 20.0;
+    tf_evidence_target t = target_of(&c);
+    tf_evidence_draws *kd = tf_evidence_draws_new();
+    ck_assert_ptr_nonnull(kd);
+    t.keep = kd;
+    enum { NZ = 2000 };
+    static double z[NZ * D];
+    posterior_draws(&c, NZ, 1.0, 0.0, 41, z);
+    tf_evidence_options o = tf_evidence_default_options();
+    uint64_t keys[1] = {7};
+    tf_evidence e;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 1, NULL, &e, NULL), TF_OK);
+    rescale_ctx rc = {c.s0, {2.0, 1.0, 1.0}};
+    tf_evidence_estimate w;
+    ck_assert_int_eq(tf_evidence_reweight(kd, rescaled_log_ratio, &rc, &w, NULL, NULL), TF_OK);
+    double v = c.v[0], a = c.a[0], s2 = c.s0 * c.s0;
+    double exact_drop = 0.5 * log((4 * s2 + v) / (s2 + v)) + 0.5 * a * a * (1 / (4 * s2 + v) - 1 / (s2 + v));
+    ck_assert_msg(fabs(exact_drop - LN_2) < 1e-3, "closed-form drop %g", exact_drop);
+    double drop = e.main.log_ml - w.log_ml, tol = fabs(exact_drop - LN_2) + 4 * (e.main.se + w.se);
+    ck_assert_msg(fabs(drop - LN_2) < tol, "drop %g, ln 2 %g, tolerance %g", drop, LN_2, tol);
+    ck_assert(w.pareto_k < TF_PARETO_K_MAX);
+    tf_evidence_draws_free(kd);
+}
+END_TEST
+
+/* Draws outside the old prior's support carry no likelihood, so a prior that gives them mass
+ * is reported as not covered; nothing kept is refused. */
+START_TEST(reweighting_reports_what_it_cannot_see)
+{
+    gauss_ctx c = standard_ctx();
+    tf_evidence_target t = target_of(&c);
+    tf_evidence_draws *kd = tf_evidence_draws_new();
+    tf_evidence_estimate w;
+    tf_error err;
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_evidence_reweight(kd, zero_log_ratio, NULL, &w, NULL, &err), TF_ERR_INVALID);
+    t.keep = kd;
+    enum { NZ = 500 };
+    static double z[NZ * D];
+    posterior_draws(&c, NZ, 1.0, 0.0, 12, z);
+    tf_evidence_options o = tf_evidence_default_options();
+    uint64_t keys[1] = {8};
+    tf_evidence e;
+    ck_assert_int_eq(tf_evidence_run(&t, z, NZ, &o, keys, 1, NULL, &e, NULL), TF_OK);
+    size_t unc = 0;
+    ck_assert_int_eq(tf_evidence_reweight(kd, uncovered_log_ratio, NULL, &w, &unc, NULL), TF_OK);
+    ck_assert_uint_gt(unc, 0);
+    ck_assert_uint_lt(unc, tf_evidence_draws_n(kd));
+    tf_evidence_draws_free(kd);
+}
+END_TEST
+
 START_TEST(errors_are_reported)
 {
     gauss_ctx c = standard_ctx();
@@ -327,6 +467,9 @@ static Suite *make_suite(void)
     tcase_add_test(tc, heavy_tailed_weights_are_flagged);
     tcase_add_test(tc, draws_are_sized_by_the_standard_error);
     tcase_add_test(tc, errors_are_reported);
+    tcase_add_test(tc, reweighted_estimates_agree_with_exact_evidence);
+    tcase_add_test(tc, doubling_one_prior_scale_lowers_log_evidence_by_ln2);
+    tcase_add_test(tc, reweighting_reports_what_it_cannot_see);
     suite_add_tcase(s, tc);
     return s;
 }

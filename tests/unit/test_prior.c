@@ -378,6 +378,50 @@ START_TEST(prior_set_sums_and_checks)
 }
 END_TEST
 
+/* A rescaled prior is the law of c + f (X - c) for the family's centre c (the mean, location or
+ * midpoint; 0 for the half-normal and gamma; on the log scale, the median, for the log-normal):
+ * a scale family's definition (common practice, no source), checked through the quantiles at
+ * several levels, to 1e-9 relative. Truncation bounds stay; bad factors are refused. */
+START_TEST(rescaled_priors_stretch_about_their_centre)
+{
+    static const struct {
+        tf_prior_kind kind;
+        double par[3], centre;
+        int log_scale;
+    } cases[] = {
+        {TF_PRIOR_NORMAL, {0.3, 0.5, 0}, 0.3, 0},   {TF_PRIOR_LOGNORMAL, {2.3, 1.5, 0}, 2.3, 1},
+        {TF_PRIOR_HALFNORMAL, {0.5, 0, 0}, 0.0, 0}, {TF_PRIOR_GAMMA, {2.0, 3.0, 0}, 0.0, 0},
+        {TF_PRIOR_UNIFORM, {1.0, 4.0, 0}, 2.5, 0},  {TF_PRIOR_STUDENT_T, {-1.0, 0.7, 4}, -1.0, 0},
+    };
+    static const double levels[] = {0.05, 0.3, 0.5, 0.8, 0.97};
+    for (size_t c = 0; c < sizeof cases / sizeof cases[0]; c++)
+        for (double f = 0.5; f <= 2.0; f *= 4) {
+            tf_prior p, q;
+            ck_assert_int_eq(tf_prior_init(&p, cases[c].kind, cases[c].par, -INFINITY, INFINITY, NULL), TF_OK);
+            ck_assert_int_eq(tf_prior_rescale(&p, f, &q, NULL), TF_OK);
+            ck_assert_int_eq(q.kind, p.kind);
+            for (size_t l = 0; l < 5; l++) {
+                double x = tf_prior_quantile(&p, levels[l]), y = tf_prior_quantile(&q, levels[l]);
+                if (cases[c].log_scale) {
+                    x = log(x);
+                    y = log(y);
+                }
+                double want = cases[c].centre + f * (x - cases[c].centre);
+                ck_assert_msg(fabs(y - want) <= 1e-9 * (1 + fabs(want)), "%s f %g level %g: %g, want %g",
+                              tf_prior_kind_name(p.kind), f, levels[l], y, want);
+            }
+        }
+    /* Truncation stays where it was. */
+    tf_prior p, q;
+    double par[2] = {1, 0};
+    ck_assert_int_eq(tf_prior_init(&p, TF_PRIOR_HALFNORMAL, par, -INFINITY, 5, NULL), TF_OK);
+    ck_assert_int_eq(tf_prior_rescale(&p, 2, &q, NULL), TF_OK);
+    ck_assert(q.upper == 5 && q.par[0] == 2);
+    ck_assert_int_eq(tf_prior_rescale(&p, 0, &q, NULL), TF_ERR_INVALID);
+    ck_assert_int_eq(tf_prior_rescale(&p, INFINITY, &q, NULL), TF_ERR_INVALID);
+}
+END_TEST
+
 START_TEST(prior_set_refuses_bad_names)
 {
     tf_error err;
@@ -413,6 +457,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, bad_priors_are_refused);
     tcase_add_test(tc, prior_set_sums_and_checks);
     tcase_add_test(tc, prior_set_refuses_bad_names);
+    tcase_add_test(tc, rescaled_priors_stretch_about_their_centre);
     suite_add_tcase(s, tc);
     return s;
 }

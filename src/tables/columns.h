@@ -97,6 +97,11 @@ typedef enum {
     TF_C_FILE,
     TF_C_SHEET,
     TF_C_ABOUT,
+    TF_C_SCENARIO,
+    TF_C_DIFFERENCE,
+    TF_C_DIFFERENCE_MCSE,
+    TF_C_SAFE_REMOVAL,
+    TF_C_SAFE_REMOVAL_MCSE,
     TF_C_COUNT_OF_COLUMNS
 } tf_column_id;
 

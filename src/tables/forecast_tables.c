@@ -13,6 +13,7 @@
 #include "sampler/fit.h"
 #include "tables/columns.h"
 #include "tables/fit_tables.h"
+#include "tables/scenario_tables.h"
 
 static const char not_converged[] =
     "Some chains behind this projection did not pass the convergence checks (R-hat above 1.01 or an "
@@ -139,6 +140,7 @@ static tf_status summary_table(const tf_forecast *f, const tf_forecast_pop *p, c
                                          "years ahead: the first year with a risk of 0.5 or more", err));
         }
     }
+    TRY(tf_scenario_tables_summary(t, p->scenarios, p->safe, p->status_quo, p->status_quo_years, err));
     TRY(tf_table_add_heading(t, "Cautions", err));
     const char *cautions[TF_FORECAST_MAX_CAUTIONS];
     size_t nc = tf_forecast_tables_cautions(f, p, cautions);

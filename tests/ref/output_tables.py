@@ -66,7 +66,7 @@ def documented():
             text = f.read()
         part = text.split("## The tables", 1)[1].split("\n## ", 1)[0]
         for line in part.splitlines():
-            m = re.match(r"\|\s*`([a-z]+)`(?: \([a-z ]+\))?\s*\|[^|]*\|(.*)\|\s*$", line)
+            m = re.match(r"\|\s*`([a-z][a-z-]*)`(?: \([a-z ]+\))?\s*\|[^|]*\|(.*)\|\s*$", line)
             if m:
                 _DOC_CACHE[m.group(1)] = _columns(m.group(2))
     return _DOC_CACHE

@@ -510,7 +510,7 @@ tf_status tf_analysis_check_management(const tf_survey *sv, const tf_series *onl
         if (g && (st = tf_scenario_check_model(o->scenarios, o->n_scenarios, g, err)) != TF_OK)
             return st;
     }
-    size_t n = only ? 1 : tf_survey_n_series(sv);
+    size_t n = only ? 1 : sv ? tf_survey_n_series(sv) : 0;
     for (size_t i = 0; i < n; i++) {
         const tf_series *s = only ? only : tf_survey_series(sv, i);
         int year0 = tf_series_first_year(s) + (int)tf_series_n_years(s) - 1;

@@ -181,7 +181,7 @@ const tf_safe_removal *tf_analysis_pop_safe_removal(const tf_analysis_pop *p);
  * years it averages (0 when the survey records no removals). */
 double tf_analysis_pop_status_quo(const tf_analysis_pop *p, size_t *n_years);
 /* The checks of o's scenarios and safe removal against the candidates and the populations to
- * analyse (only, or every one of sv): labels, a capacity on a candidate without one, from=
+ * analyse (only, or every one of sv; neither: no population is checked): labels, a capacity on a candidate without one, from=
  * years, a threshold for the safe removal. TF_ERR_USAGE naming the problem. tf_analysis_run
  * makes them before the first fit. */
 tf_status tf_analysis_check_management(const tf_survey *sv, const tf_series *only, const tf_analysis_options *o,

@@ -4,6 +4,7 @@
 #include <math.h>
 #include <stdio.h>
 
+#include "analysis/analysis.h"
 #include "project/cautions.h"
 #include "tables/columns.h"
 
@@ -273,6 +274,59 @@ tf_status tf_scenario_tables_summary(tf_table *t, const tf_scenario_set *s, cons
                                           err);
         if (st == TF_OK)
             st = tf_table_add_item_text(t, "Safe removal caution", tf_scenario_tables_safe_caution, NULL, err);
+    }
+    return st;
+}
+
+tf_status tf_scenario_tables_first_page(tf_table *t, const tf_scenario_set *s, const tf_safe_removal *safe,
+                                        double status_quo_animals, size_t status_quo_years, int year0,
+                                        tf_error *err)
+{
+    if (!s && !safe)
+        return TF_OK;
+    char text[600], note[400], th[48];
+    tf_status st = TF_OK;
+    const tf_projection *sq = tf_scenario_set_status_quo(s);
+    if (sq && tf_projection_n_thresholds(sq) > 0) {
+        tf_threshold k0 = tf_projection_threshold(sq, 0);
+        tf_project_threshold_label(&k0, th, sizeof th);
+        snprintf(text, sizeof text,
+                 "Management scenarios: chance of falling to the threshold %s%s at any time within the years", th,
+                 k0.relative ? " of current" : "");
+        st = tf_table_add_heading(t, text, err);
+        if (st == TF_OK)
+            st = tf_table_add_item_text(t, "Status quo",
+                                        tf_scenario_tables_status_quo(status_quo_animals, status_quo_years, text,
+                                                                      sizeof text),
+                                        "the usual projection above; each scenario uses the same simulated futures",
+                                        err);
+        for (size_t i = 0; st == TF_OK && i < tf_scenario_set_n(s); i++) {
+            const tf_scenario *sc = tf_scenario_set_scenario(s, i);
+            const tf_projection *p = tf_scenario_set_projection(s, i);
+            st = tf_table_add_item_text(t, sc->label, tf_scenario_describe(sc, text, sizeof text), NULL, err);
+            for (size_t y = 0; st == TF_OK && y < TF_ANALYSIS_N_RISK_YEARS; y++) {
+                size_t yr = tf_analysis_risk_years[y];
+                if (yr > tf_projection_horizon(p))
+                    break;
+                double d, se;
+                if ((st = tf_scenario_set_risk_difference(s, i, 0, yr, &d, &se, err)) != TF_OK)
+                    break;
+                snprintf(text, sizeof text, "  within %zu years", yr);
+                snprintf(note, sizeof note, "by %d; status quo %.1f %%, difference %+.1f points (paired Monte Carlo "
+                         "s.e. %.2g)", year0 + (int)yr, 100 * tf_projection_risk(sq, 0, yr), 100 * d, 100 * se);
+                st = tf_table_add_item_number(t, text, tf_projection_risk(p, 0, yr), TF_COL_PERCENT, note, err);
+            }
+        }
+    }
+    if (st == TF_OK && safe) {
+        st = tf_table_add_heading(t, "Largest safe removal", err);
+        if (st == TF_OK)
+            st = tf_table_add_item_text(t, "Largest safe removal", tf_scenario_tables_safe_value(safe, text, sizeof text),
+                                        tf_scenario_tables_safe_note(safe, note, sizeof note), err);
+        if (st == TF_OK && safe->exceeded_at_zero)
+            st = tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err);
+        if (st == TF_OK)
+            st = tf_table_add_item_text(t, "  caution", tf_scenario_tables_safe_caution, NULL, err);
     }
     return st;
 }

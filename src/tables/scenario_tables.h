@@ -53,6 +53,15 @@ char *tf_scenario_tables_safe_note(const tf_safe_removal *r, char *buf, size_t s
 tf_status tf_scenario_tables_summary(tf_table *t, const tf_scenario_set *s, const tf_safe_removal *safe,
                                      double status_quo_animals, size_t status_quo_years, tf_error *err);
 
+/* Adds a population's management block to a first page t: the status quo, then per scenario the
+ * chance of reaching the first threshold within 10, 20 and 50 years (those within the horizon)
+ * with its difference from the status quo and the paired Monte Carlo error, then the largest
+ * safe removal with its assumptions and caution. year0 is the last survey year. Nothing when
+ * there are neither scenarios nor a safe removal. TF_ERR_NOMEM on failure. */
+tf_status tf_scenario_tables_first_page(tf_table *t, const tf_scenario_set *s, const tf_safe_removal *safe,
+                                        double status_quo_animals, size_t status_quo_years, int year0,
+                                        tf_error *err);
+
 /* The caution that goes with every largest safe removal. */
 extern const char tf_scenario_tables_safe_caution[];
 

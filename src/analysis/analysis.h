@@ -40,6 +40,9 @@ typedef struct {
     /* The counts are estimates (indices, densities), not whole counts: only counting-error models
      * of continuous amounts are candidates, whatever the values (the first page says so). */
     int estimates;
+    /* --counted-fraction: the share of the animals present that a count at effort 1 includes
+     * (0 is read as 1). Only recorded here: the series carry it into the fits. */
+    double counted_fraction;
     /* Sampler and marginal-likelihood settings of every fit; their seeds and thread counts are
      * replaced by seed and n_threads below. */
     tf_pmmh_options fit;

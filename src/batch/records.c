@@ -60,6 +60,8 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
     /* Written only when set, so that the records of earlier batches stay the same. */
     if (a->estimates)
         line(f, "estimates", "%s", "yes (continuous counting-error models only)");
+    if (a->counted_fraction > 0 && a->counted_fraction != 1)
+        line(f, "counted-fraction", "%.17g", a->counted_fraction);
     line(f, "chains", "%zu", a->fit.n_chains);
     line(f, "min-iterations", "%zu", a->fit.min_iter);
     line(f, "max-iterations", "%zu", a->fit.max_iter);

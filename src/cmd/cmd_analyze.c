@@ -324,7 +324,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_WINDOW, OPT_POP, OPT_MODEL, OPT_OBS, OPT_RUNS, OPT_BATCH, OPT_FRESH,
-           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES, OPT_SCENARIO, OPT_SAFE };
+           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES, OPT_SCENARIO, OPT_SAFE, OPT_COUNTED };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -333,6 +333,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         TF_ARGS_SAMPLER_LONGOPTS,
@@ -393,6 +394,7 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
+        case OPT_COUNTED: tf_input_set_counted_fraction(&in, optarg, &err); break;
         case OPT_MODEL:
             tf_args_model_names("--model", optarg, growth_buf, sizeof growth_buf, opt.growth, TF_ANALYSIS_MAX_NAMES,
                                 &opt.n_growth, &all, 1, &err);
@@ -447,6 +449,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     if (tf_error_status(&err) == TF_OK && opt.n_scenarios)
         tf_analysis_check_management(NULL, NULL, &opt, &err);
     opt.estimates = in.estimates;
+    opt.counted_fraction = tf_input_counted_fraction(&in);
     opt.population = tf_input_single(&in);
     if (in.n_labels && batch && tf_error_status(&err) == TF_OK)
         tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "drop --population to run the batch, or --batch for one population",
@@ -497,7 +500,8 @@ static int analyze(int argc, char **argv, int rank, int size)
     }
     if (!in.n_labels) {
         tf_survey_options so = {.batch = 1, .max_rows = BATCH_MAX_ROWS, .estimates = in.estimates};
-        if ((st = tf_survey_read_with(path, &so, &sv, &err)) != TF_OK) {
+        if ((st = tf_survey_read_with(path, &so, &sv, &err)) != TF_OK ||
+            (st = tf_input_prepare(&in, sv, path, errs, PROG, &err)) != TF_OK) {
             status = TF_EXIT_INPUT;
             goto out;
         }

@@ -141,6 +141,18 @@ static bool print_series(const tf_series *s, FILE *out)
         fprintf(out, "  effort:       the same every year (%.6g)\n", e_min);
     else
         fprintf(out, "  effort:       varies from %.6g to %.6g\n", e_min, e_max);
+    if (tf_series_has_actions(s)) {
+        double removed = 0, added = 0;
+        size_t n_removed = 0, n_added = 0;
+        for (size_t i = 0; i < n; i++) {
+            removed += tf_series_removed(s, i), n_removed += tf_series_removed(s, i) > 0;
+            added += tf_series_added(s, i), n_added += tf_series_added(s, i) > 0;
+        }
+        fprintf(out, "  removed:      %.10g animals in %zu years; added: %.10g animals in %zu years\n", removed,
+                n_removed, added, n_added);
+        fprintf(out, "  counted:      a count at effort 1 includes %.3g of the animals present (--counted-fraction)\n",
+                tf_series_counted_fraction(s));
+    }
     double pct = 100.0 * (exp(crude_slope(s)) - 1.0);
     fprintf(out, "  crude trend:  %+.1f%% per year (crude screening figure, not a model estimate)\n", pct);
     free(sorted);
@@ -149,11 +161,12 @@ static bool print_series(const tf_series *s, FILE *out)
 
 int tf_cmd_check(int argc, char **argv)
 {
-    enum { OPT_POP = 256, OPT_SKIP, OPT_ESTIMATES };
+    enum { OPT_POP = 256, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
     static const struct option options[] = {
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
@@ -177,6 +190,10 @@ int tf_cmd_check(int argc, char **argv)
             break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
+        case OPT_COUNTED:
+            if (tf_input_set_counted_fraction(&in, optarg, &err) != TF_OK)
+                return tf_messages_usage(PROG, &err);
+            break;
         case 'h':
             help(stdout);
             return TF_EXIT_OK;

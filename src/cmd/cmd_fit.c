@@ -261,13 +261,14 @@ static void print_warnings(const job *j)
 
 int tf_cmd_fit(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES };
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_POP, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         {"output", required_argument, NULL, 'o'},
         TF_ARGS_SAMPLER_LONGOPTS,
         {"quiet", no_argument, NULL, 'q'},
@@ -294,6 +295,7 @@ int tf_cmd_fit(int argc, char **argv)
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
+        case OPT_COUNTED: tf_input_set_counted_fraction(&in, optarg, &err); break;
         case 'o': out_dir = optarg; break;
         case 'q': quiet = 1; break;
         case 'h': help(stdout); return TF_EXIT_OK;

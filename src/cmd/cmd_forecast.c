@@ -114,6 +114,8 @@ static void help(FILE *out)
             "  --skip-unusable         leave out, with a warning, every population that cannot be fitted\n"
             "  --estimates             the counts are estimates that need not be whole numbers: only\n"
             "                          counting-error models of continuous amounts (lognormal) are fitted\n"
+            "  --counted-fraction Q    the share of the animals present that a count at effort 1 includes,\n"
+            "                          in (0, 1] (default 1); links removed/added animals to the counts\n"
             "  --start N               current abundance. With --parameter: by default the last surveyed\n"
             "                          count / effort. With a posterior, a what-if: every draw starts from N\n"
             "                          instead of its latent abundance, keeping the uncertainty about the\n"
@@ -732,7 +734,7 @@ out:
 /* ---- the command line ---------------------------------------------------------------------------- */
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_PARAMETER,
-       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES, OPT_SCENARIO, OPT_SAFE };
+       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES, OPT_SCENARIO, OPT_SAFE, OPT_COUNTED };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -753,6 +755,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
         {"scenario", required_argument, NULL, OPT_SCENARIO},
         {"safe-removal", required_argument, NULL, OPT_SAFE},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         TF_ARGS_SAMPLER_LONGOPTS,
         TF_ARGS_ML_LONGOPTS,
         {"output", required_argument, NULL, 'o'},
@@ -791,6 +794,7 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
                 o->n_scenarios++;
             break;
         case OPT_SAFE: tf_safe_removal_parse(optarg, &o->safe, err); break;
+        case OPT_COUNTED: tf_input_set_counted_fraction(&o->in, optarg, err); break;
         case 'o': o->out_dir = optarg; break;
         case 'q': o->quiet = 1; break;
         case 'h': help(stdout); return 1;

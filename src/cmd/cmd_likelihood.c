@@ -70,7 +70,7 @@ static void help(FILE *out)
 
 int tf_cmd_likelihood(int argc, char **argv)
 {
-    enum { OPT_MODEL = 256, OPT_OBS, OPT_PARAMETER, OPT_PRIOR, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED, OPT_SKIP, OPT_ESTIMATES,
+    enum { OPT_MODEL = 256, OPT_OBS, OPT_PARAMETER, OPT_PRIOR, OPT_POP, OPT_PARTICLES, OPT_REPEAT, OPT_SEED, OPT_SKIP, OPT_ESTIMATES, OPT_COUNTED,
            OPT_PROPOSAL };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
@@ -80,6 +80,7 @@ int tf_cmd_likelihood(int argc, char **argv)
         {"population", required_argument, NULL, OPT_POP},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         {"particles", required_argument, NULL, OPT_PARTICLES},
         {"repeat", required_argument, NULL, OPT_REPEAT},
         {"seed", required_argument, NULL, OPT_SEED},
@@ -112,6 +113,7 @@ int tf_cmd_likelihood(int argc, char **argv)
         case OPT_POP: tf_input_set_population(&in, optarg, &err); break;
         case OPT_SKIP: in.skip_unusable = 1; break;
         case OPT_ESTIMATES: in.estimates = 1; break;
+        case OPT_COUNTED: tf_input_set_counted_fraction(&in, optarg, &err); break;
         case OPT_PARTICLES: tf_args_parse_size("--particles", optarg, 1, MAX_PARTICLES, &n_particles, &err); break;
         case OPT_REPEAT: tf_args_parse_size("--repeat", optarg, 1, MAX_REPEATS, &n_repeats, &err); break;
         case OPT_SEED: tf_args_parse_seed("--seed", optarg, &seed, &err); break;

@@ -31,10 +31,12 @@ static void help(FILE *out)
     tf_model_list_obs(obs, sizeof obs);
     fprintf(out,
             "usage: tallyfit simulate --model M [--obs O] --parameter NAME=VALUE,... --years N --start N1\n"
-            "                         [--first-year Y] [--seed S] [--effort E|E1,E2,...] [--label L] [-o FILE]\n"
+            "                         [--first-year Y] [--seed S] [--effort E|E1,E2,...] [--label L]\n"
+            "                         [--removed N|P%%] [--counted-fraction Q] [-o FILE]\n"
             "       tallyfit simulate --scheme N [--seed S] [-o FILE]\n\n"
             "Draws annual counts from a state-space population model and writes them as a survey CSV\n"
-            "(columns year,count[,effort], with a first column population when --label is given).\n\n"
+            "(columns year,count[,effort][,removed], with a first column population when --label is\n"
+            "given).\n\n"
             "With --scheme N (1 to %d) it writes instead an invented monitoring scheme of N\n"
             "populations site-0001, site-0002, ... for tests and benchmarks: each drawn with its own\n"
             "growth model (exponential, Ricker or Gompertz), trend, process noise, counting error\n"
@@ -54,6 +56,12 @@ static void help(FILE *out)
             "  --effort E       survey effort, one value for every year or one per year (default 1,\n"
             "                   no effort column); the expected count is effort x abundance\n"
             "  --label L        population name written in a population column\n"
+            "  --removed N|P%%   a harvest after each year's count: N animals a year, or P %% of the\n"
+            "                   animals present (whole animals, at most those there are); the animals\n"
+            "                   taken go to a removed column, and the growth step acts on those left\n"
+            "  --counted-fraction Q\n"
+            "                   the share of the animals present that a count at effort 1 includes,\n"
+            "                   in (0, 1] (default 1); abundance in animals is abundance / Q\n"
             "  -o, --output FILE\n"
             "                   write to FILE (replaced only once complete) instead of standard output\n",
             SCHEME_MAX, SCHEME_MIN_YEARS, SCHEME_MAX_YEARS, growth, obs, TF_SURVEY_MIN_SURVEYED, TF_SURVEY_MAX_SPAN,
@@ -67,11 +75,12 @@ static void help(FILE *out)
 
 /* Writes the CSV; returns nonzero on a stream error. */
 static int write_csv(FILE *out, const char *label, long first_year, size_t n_years, const double *y,
-                     const double *effort, int with_effort, int integer)
+                     const double *effort, int with_effort, const double *removed, int integer)
 {
     if (label)
         fputs("population,", out);
-    fputs(with_effort ? "year,count,effort\n" : "year,count\n", out);
+    fputs(with_effort ? "year,count,effort" : "year,count", out);
+    fputs(removed ? ",removed\n" : "\n", out);
     for (size_t t = 0; t < n_years; t++) {
         if (label)
             fprintf(out, "%s,", label);
@@ -83,9 +92,38 @@ static int write_csv(FILE *out, const char *label, long first_year, size_t n_yea
             fprintf(out, "%.6g", y[t]);
         if (with_effort)
             fprintf(out, ",%.10g", effort[t]);
+        if (removed)
+            fprintf(out, ",%.0f", removed[t]);
         fputc('\n', out);
     }
     return ferror(out);
+}
+
+/* --removed N (animals a year, >= 0) or P% (a share of the animals present, 0 < P < 100). */
+static void parse_removed(const char *text, tf_model_harvest *h, tf_error *err)
+{
+    char buf[64];
+    size_t n = strlen(text);
+    int share = n > 0 && text[n - 1] == '%';
+    if (n == 0 || n >= sizeof buf) {
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --removed 40 or --removed 8%", "--removed: '%s' is not "
+                     "a number of animals or a percentage", text);
+        return;
+    }
+    memcpy(buf, text, n + 1);
+    if (share)
+        buf[n - 1] = '\0';
+    double v;
+    if (tf_args_parse_double("--removed", buf, &v, err) != TF_OK)
+        return;
+    if (share ? !(v > 0 && v < 100) : !(v >= 0))
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "e.g. --removed 40 or --removed 8%",
+                     share ? "--removed %s: a share must lie between 0 and 100 %%" : "--removed %s: a number of "
+                     "animals must be >= 0", text);
+    else if (share)
+        h->share = v / 100.0, h->count = 0;
+    else
+        h->count = v, h->share = 0;
 }
 
 /* Uniform on (lo, hi). */
@@ -253,7 +291,7 @@ static int label_ok(const char *s)
 int tf_cmd_simulate(int argc, char **argv)
 {
     enum { OPT_MODEL = 256, OPT_OBS, OPT_PARAMETER, OPT_YEARS, OPT_START, OPT_FIRST, OPT_SEED, OPT_EFFORT, OPT_LABEL,
-           OPT_SCHEME };
+           OPT_SCHEME, OPT_REMOVED, OPT_COUNTED };
     static const struct option longopts[] = {
         {"model", required_argument, NULL, OPT_MODEL},
         {"obs", required_argument, NULL, OPT_OBS},
@@ -265,6 +303,8 @@ int tf_cmd_simulate(int argc, char **argv)
         {"effort", required_argument, NULL, OPT_EFFORT},
         {"label", required_argument, NULL, OPT_LABEL},
         {"scheme", required_argument, NULL, OPT_SCHEME},
+        {"removed", required_argument, NULL, OPT_REMOVED},
+        {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         {"output", required_argument, NULL, 'o'},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
@@ -281,6 +321,8 @@ int tf_cmd_simulate(int argc, char **argv)
     uint64_t seed = 1;
     int have_years = 0, single = 0;
     size_t n_pop = 0;
+    tf_model_harvest harvest = {.count = 0, .share = 0, .counted_fraction = 1.0};
+    int harvested = 0;
 
     opterr = 0;
     optind = 0;
@@ -307,6 +349,19 @@ int tf_cmd_simulate(int argc, char **argv)
         case OPT_EFFORT: single = 1; effort_text = optarg; break;
         case OPT_LABEL: label = optarg; break;
         case OPT_SCHEME: tf_args_parse_size("--scheme", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
+        case OPT_REMOVED: single = harvested = 1; parse_removed(optarg, &harvest, &err); break;
+        case OPT_COUNTED: {
+            double q;
+            single = 1;
+            if (tf_args_parse_double("--counted-fraction", optarg, &q, &err) == TF_OK) {
+                if (q > 0 && q <= 1)
+                    harvest.counted_fraction = q;
+                else
+                    tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--counted-fraction %s is not in (0, 1]",
+                                 optarg);
+            }
+            break;
+        }
         case 'o': output = optarg; break;
         case 'q': break; /* nothing is printed but the survey, the warnings and the errors */
         case 'h': help(stdout); return TF_EXIT_OK;
@@ -359,7 +414,7 @@ int tf_cmd_simulate(int argc, char **argv)
 
     int status = TF_EXIT_FAIL;
     tf_model *m = NULL;
-    double *effort = NULL, *x = NULL, *y = NULL;
+    double *effort = NULL, *x = NULL, *y = NULL, *removed = NULL;
     FILE *mem = NULL;
     char *text = NULL;
     size_t text_len = 0;
@@ -371,7 +426,8 @@ int tf_cmd_simulate(int argc, char **argv)
     effort = malloc(n_years * sizeof *effort);
     x = malloc(n_years * sizeof *x);
     y = malloc(n_years * sizeof *y);
-    if (!effort || !x || !y) {
+    removed = malloc(n_years * sizeof *removed);
+    if (!effort || !x || !y || !removed) {
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory for %zu years", n_years);
         goto out;
     }
@@ -405,7 +461,8 @@ int tf_cmd_simulate(int argc, char **argv)
     tf_rng rng;
     uint64_t key = tf_rng_key(CMD);
     tf_rng_derive(&rng, seed, &key, 1);
-    if (tf_model_simulate(m, theta, log(start), effort, n_years, &rng, x, y, &err) != TF_OK)
+    if (tf_model_simulate_harvest(m, theta, log(start), effort, harvested ? &harvest : NULL, n_years, &rng, x, y,
+                                  removed, &err) != TF_OK)
         goto out;
 
     /* The file is made in memory and read back by the importer before anything is written, so
@@ -416,7 +473,7 @@ int tf_cmd_simulate(int argc, char **argv)
         tf_error_add(&err, TF_ERR_NOMEM, NULL, 0, 0, NULL, "out of memory writing the survey");
         goto out;
     }
-    int bad = write_csv(mem, label, first_year, n_years, y, effort, effort_text != NULL,
+    int bad = write_csv(mem, label, first_year, n_years, y, effort, effort_text != NULL, harvested ? removed : NULL,
                         tf_model_obs(m)->needs_integer);
     if (fclose(mem) != 0 || bad) {
         mem = NULL;
@@ -447,6 +504,7 @@ out:
     free(effort);
     free(x);
     free(y);
+    free(removed);
     tf_model_free(m);
     return status;
 }

@@ -1,6 +1,7 @@
 /* Reading the survey as the options of the command ask; see input.h. */
 #include "cmd/input.h"
 
+#include <math.h>
 #include <string.h>
 
 #include "cmd/args.h"
@@ -64,8 +65,8 @@ static void all_labels(const tf_survey *sv, char *buf, size_t size)
     }
 }
 
-tf_status tf_input_read(const tf_input *in, const char *path, FILE *warn, const char *prog, tf_survey **out,
-                        tf_error *err)
+static tf_status read_chosen(const tf_input *in, const char *path, FILE *warn, const char *prog, tf_survey **out,
+                             tf_error *err)
 {
     *out = NULL;
     tf_survey_options so = {.estimates = in->estimates};
@@ -125,6 +126,98 @@ tf_status tf_input_read(const tf_input *in, const char *path, FILE *warn, const 
     return TF_OK;
 fail:
     tf_survey_free(sv);
+    return st;
+}
+
+tf_status tf_input_set_counted_fraction(tf_input *in, const char *text, tf_error *err)
+{
+    double q;
+    tf_status st = tf_args_parse_double("--counted-fraction", text, &q, err);
+    if (st != TF_OK)
+        return st;
+    if (!(q > 0 && q <= 1))
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
+                            "the share of the animals present that a count at effort 1 includes, e.g. 0.8 "
+                            "(1 = the counts are censuses up to counting error)",
+                            "--counted-fraction %s is not in (0, 1]", text);
+    in->counted_fraction = q;
+    return TF_OK;
+}
+
+double tf_input_counted_fraction(const tf_input *in) { return in->counted_fraction > 0 ? in->counted_fraction : 1.0; }
+
+/* The removals of one population against its counts: a removal more than
+ * TF_INPUT_REMOVAL_FACTOR times the most animals any count implies is refused (a typing error, or
+ * removals in other units than animals); one larger than what that year's count implies, or one
+ * in a year without a count, is used with a warning. */
+static tf_status check_removals(const tf_series *s, double q, const char *shown, FILE *warn, const char *prog,
+                                tf_error *err)
+{
+    if (!tf_series_has_actions(s))
+        return TF_OK;
+    const double *y = tf_series_counts(s), *e = tf_series_effort(s);
+    double most = 0.0;
+    for (size_t i = 0; i < tf_series_n_years(s); i++)
+        if (!isnan(y[i]))
+            most = fmax(most, y[i] / (e[i] * q));
+    char who[160] = "";
+    if (tf_series_label(s)[0])
+        snprintf(who, sizeof who, "population '%.100s', ", tf_series_label(s));
+    for (size_t i = 0; i < tf_series_n_years(s); i++) {
+        double r = tf_series_removed(s, i);
+        int year = tf_series_first_year(s) + (int)i;
+        long line = tf_series_source_line(s, i);
+        if (r > TF_INPUT_REMOVAL_FACTOR * most) {
+            char hint[256];
+            snprintf(hint, sizeof hint,
+                     "removals are numbers of animals; the largest count implies about %.0f animals (with "
+                     "--counted-fraction %g); check the value and the counted fraction",
+                     most, q);
+            return tf_error_add(err, TF_ERR_RANGE, shown, line, 0, hint,
+                                "%syear %d: %.10g animals removed is more than %g times any abundance the counts "
+                                "imply",
+                                who, year, r, TF_INPUT_REMOVAL_FACTOR);
+        }
+        if (!warn || (r == 0 && tf_series_added(s, i) == 0))
+            continue;
+        if (isnan(y[i]))
+            fprintf(warn,
+                    "%s: warning: %s:%ld: %syear %d has removals or releases but no count: they are used in the "
+                    "growth step all the same\n",
+                    prog, shown, line, who, year);
+        else if (r > y[i] / (e[i] * q))
+            fprintf(warn,
+                    "%s: warning: %s:%ld: %syear %d: %.10g animals removed, more than the count implies were there "
+                    "(%.0f with --counted-fraction %g); a fitted path that cannot hold them is extinct\n",
+                    prog, shown, line, who, year, r, y[i] / (e[i] * q), q);
+    }
+    return TF_OK;
+}
+
+tf_status tf_input_prepare(const tf_input *in, tf_survey *sv, const char *path, FILE *warn, const char *prog,
+                           tf_error *err)
+{
+    const char *shown = strcmp(path, "-") ? path : "stdin";
+    double q = tf_input_counted_fraction(in);
+    tf_status st = tf_survey_set_counted_fraction(sv, q, err);
+    for (size_t i = 0; st == TF_OK && i < tf_survey_n_series(sv); i++) {
+        const tf_series *s = tf_survey_series(sv, i);
+        if (chosen(in, tf_series_label(s)))
+            st = check_removals(s, q, shown, warn, prog, err);
+    }
+    return st;
+}
+
+tf_status tf_input_read(const tf_input *in, const char *path, FILE *warn, const char *prog, tf_survey **out,
+                        tf_error *err)
+{
+    tf_survey *sv = NULL;
+    tf_status st = read_chosen(in, path, warn, prog, &sv, err);
+    if (st == TF_OK && (st = tf_input_prepare(in, sv, path, warn, prog, err)) != TF_OK) {
+        tf_survey_free(sv);
+        sv = NULL;
+    }
+    *out = sv;
     return st;
 }
 

@@ -20,12 +20,16 @@
     "  --estimates        the count column holds estimates (indices, densities, corrected\n"               \
     "                     counts) that need not be whole numbers: only counting-error models\n"           \
     "                     of continuous amounts (lognormal) then apply. Without it a\n"                 \
-    "                     count that is not a whole number is an error\n"
+    "                     count that is not a whole number is an error\n"                                 \
+    "  --counted-fraction Q  the share of the animals present that a count at effort 1\n"                   \
+    "                     includes, in (0, 1] (default 1: counts are censuses up to counting\n"            \
+    "                     error); links the survey's removed/added animals to the counts\n"
 
 /* A small value type on the caller's stack; zero it before use. */
 typedef struct {
     int estimates;          /* --estimates */
     int skip_unusable;      /* --skip-unusable */
+    double counted_fraction; /* --counted-fraction; 0 = not given (1) */
     size_t n_labels;        /* --population, split: labels[0 .. n_labels) point into buf */
     const char *labels[TF_INPUT_MAX_LABELS];
     char buf[1024];
@@ -34,6 +38,17 @@ typedef struct {
 /* Splits a --population list into in (blanks around labels allowed, a label given twice is kept
  * once). TF_ERR_USAGE for an empty label or too many. A repeated option replaces the list. */
 tf_status tf_input_set_population(tf_input *in, const char *text, tf_error *err);
+
+/* --counted-fraction: TF_ERR_USAGE unless a number in (0, 1]. */
+tf_status tf_input_set_counted_fraction(tf_input *in, const char *text, tf_error *err);
+/* The counted fraction in force: the one given, else 1. */
+double tf_input_counted_fraction(const tf_input *in);
+
+/* A removal more than this many times the most animals any count of the population implies
+ * (count / (effort q)) is refused as implausible: a choice of ours, wide enough for a population
+ * counted only when low, narrow enough to catch removals typed in other units or with extra
+ * digits. */
+#define TF_INPUT_REMOVAL_FACTOR 10.0
 
 /* The one population chosen, or NULL when none or several were. */
 const char *tf_input_single(const tf_input *in);
@@ -45,9 +60,18 @@ const char *tf_input_single(const tf_input *in);
  * --skip-unusable a warning on warn (may be NULL) naming the population, line and problem; a label
  * the file does not hold is TF_ERR_USAGE listing the labels it does. With two labels or more only
  * those populations are kept (tf_survey_keep). Leaving every population out is TF_ERR_INVALID.
- * prog prefixes the warnings. On success the caller frees *out. */
+ * prog prefixes the warnings. Every series gets the counted fraction in force; the removals of each
+ * chosen population are checked against its counts: more than TF_INPUT_REMOVAL_FACTOR times the
+ * most animals a count implies is TF_ERR_RANGE with the line; a removal or release in a year
+ * without a count, and a removal above what that year's count implies, are warnings on warn.
+ * On success the caller frees *out. */
 tf_status tf_input_read(const tf_input *in, const char *path, FILE *warn, const char *prog, tf_survey **out,
                         tf_error *err);
+
+/* What tf_input_read does after reading, for a survey read another way (a batch): sets the
+ * counted fraction of every series and checks the removals of the chosen populations. */
+tf_status tf_input_prepare(const tf_input *in, tf_survey *sv, const char *path, FILE *warn, const char *prog,
+                           tf_error *err);
 
 /* Prints a warning on out for every count of sv (of population only, when not NULL) far from its
  * neighbours (tf_series_outliers), naming the file, line, population, year and value; returns

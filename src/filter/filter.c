@@ -67,6 +67,7 @@ struct tf_filter {
     tf_proposal proposal;
     size_t n, n_years;
     const double *y;          /* borrowed counts, NAN = not surveyed */
+    const tf_series *s;       /* borrowed: the removals and releases between the years */
     double *log_effort;       /* n_years */
     double *year_c;           /* n_years * TF_OBS_MAX_CONST: the observation model's year constants */
     double year_c_key[TF_MAX_PARAMS]; /* observation parameters year_c was computed for */
@@ -102,6 +103,7 @@ tf_filter *tf_filter_alloc(const tf_model *m, const tf_series *s, size_t n_parti
     f->n = n;
     f->n_years = T;
     f->y = tf_series_counts(s);
+    f->s = s;
     f->log_effort = malloc(T * sizeof *f->log_effort);
     f->year_c = calloc(T * TF_OBS_MAX_CONST, sizeof *f->year_c);
     f->pkind = calloc(T, 1);
@@ -541,6 +543,12 @@ static double run(tf_filter *f, const double *theta, tf_rng *rng, const double *
         if (t == 0) {
             for (size_t i = 0; i < n; i++)
                 mv[i] = x1_mean;
+        } else if (tf_series_has_actions(f->s)) {
+            /* Removals and releases after year t - 1's count act on the number there, before it
+             * grows (model.h); the same step with every take 0 is the plain drift below. */
+            memcpy(mv, x, n * sizeof *mv);
+            tf_model_take(tf_series_take(f->s, t - 1), mv, n);
+            tf_model_drift_alive(g, p_growth, mv, mv, n);
         } else {
             g->drift(p_growth, x, mv, n);
         }

@@ -161,8 +161,9 @@ void tf_model_take(double take, double *x, size_t n)
     if (take == 0)
         return;
     for (size_t i = 0; i < n; i++) {
-        double left = exp(x[i]) - take;
-        x[i] = left > 0 ? fmax(log(left), TF_MODEL_LOG_EXTINCT) : TF_MODEL_LOG_EXTINCT;
+        /* What is left within rounding of nothing (e^ln 10 - 10 = 2e-15) is nothing. */
+        double here = exp(x[i]), left = here - take;
+        x[i] = left > 1e-12 * here ? fmax(log(left), TF_MODEL_LOG_EXTINCT) : TF_MODEL_LOG_EXTINCT;
     }
 }
 

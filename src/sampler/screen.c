@@ -9,6 +9,7 @@ struct tf_screen {
     const double *y;          /* n_years; NAN = not surveyed */
     double *log_effort;       /* n_years */
     size_t n_years;
+    const tf_series *s;       /* borrowed: removals and releases between the years */
 };
 
 static const double LOG_2PI = 1.8378770664093453;
@@ -21,6 +22,7 @@ tf_screen *tf_screen_alloc(const tf_model *m, const tf_series *s)
     sc->m = m;
     sc->n_years = tf_series_n_years(s);
     sc->y = tf_series_counts(s);
+    sc->s = s;
     sc->log_effort = malloc(sc->n_years * sizeof *sc->log_effort);
     if (!sc->log_effort) {
         free(sc);
@@ -81,9 +83,15 @@ double tf_screen_loglik(tf_screen *sc, const double *theta)
         if (t + 1 == sc->n_years)
             break;
         /* Prediction: x' = drift(x) + sigma eps, linearised at the mean (first-order extended
-         * Kalman filter). */
+         * Kalman filter); a removal or release acts first, x -> ln(e^x - take), so the
+         * linearisation is of the two steps together. */
         double h = DERIV_REL * fmax(1.0, fabs(mean)), xs[3] = {mean - h, mean, mean + h}, fx[3];
-        g->drift(p_growth, xs, fx, 3);
+        if (tf_series_has_actions(sc->s)) {
+            tf_model_take(tf_series_take(sc->s, t), xs, 3);
+            tf_model_drift_alive(g, p_growth, xs, fx, 3);
+        } else {
+            g->drift(p_growth, xs, fx, 3);
+        }
         double a = (fx[2] - fx[0]) / (2.0 * h);
         mean = fx[1];
         var = a * a * var + sigma * sigma;

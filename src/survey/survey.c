@@ -27,8 +27,8 @@ struct tf_survey {
     size_t n_in_file;              /* populations in the file, set-aside and left-out ones included */
 };
 
-enum { COL_YEAR, COL_COUNT, COL_POP, COL_EFFORT, COL_NOTE, N_KNOWN };
-static const char *const known_names[N_KNOWN] = {"year", "count", "population", "effort", "note"};
+enum { COL_YEAR, COL_COUNT, COL_POP, COL_EFFORT, COL_NOTE, COL_REMOVED, COL_ADDED, N_KNOWN };
+static const char *const known_names[N_KNOWN] = {"year", "count", "population", "effort", "note", "removed", "added"};
 
 /* Smallest growth step of libcsv's field buffer (its own default is 128 bytes). */
 #define FIELD_BLOCK_MIN 4096
@@ -52,6 +52,8 @@ typedef struct {
     int year;
     double count;       /* NAN = not surveyed */
     double effort;
+    double removed;     /* animals taken out after the count (0 = none) */
+    double added;       /* animals put in after the count */
     long line;
     size_t seq;         /* order in the file */
     bool bad;           /* some value of the row was rejected (already reported) */
@@ -489,7 +491,7 @@ static void read_header(reader *r)
                 if (r->col[k] < 0)
                     report(r, TF_ERR_PARSE, r->rec_line, 0,
                            "the header must name a 'year' and a 'count' column (optional: population, "
-                           "effort, note)",
+                           "effort, removed, added, note)",
                            "the header has no '%s' column", known_names[k]);
         }
     }
@@ -516,7 +518,8 @@ static void read_data(reader *r)
                r->n_fields, r->n_cols);
         return;
     }
-    row w = {.count = NAN, .effort = 1.0, .line = line, .seq = r->n_rows, .fault = NO_FAULT};
+    row w = {.count = NAN, .effort = 1.0, .removed = 0.0, .added = 0.0, .line = line, .seq = r->n_rows,
+             .fault = NO_FAULT};
     bool labelled = true;
     hold(r);
 
@@ -604,6 +607,35 @@ static void read_data(reader *r)
             w.bad = true;
         } else {
             w.effort = e;
+        }
+    }
+
+    /* Removals and releases are read in every row, a year without a count too: the growth step
+     * needs them whether or not the population was counted that year. */
+    for (int k = COL_REMOVED; k <= COL_ADDED; k++) {
+        long acol = r->col[k];
+        const char *as = acol >= 0 ? field(r, acol) : "";
+        double a;
+        static const char hint[] = "give the animals removed (hunt, cull, capture) or added (release) after the "
+                                   "year's count as a number >= 0; leave the cell empty or write 0 for none";
+        if (is_missing(as))
+            continue;
+        if (report_number_form(r, line, acol + 1, known_names[k], as)) {
+            w.bad = true;
+        } else if (!parse_decimal(as, &a)) {
+            report(r, TF_ERR_PARSE, line, acol + 1, hint, "%s '%s' is not a number", known_names[k],
+                   show(buf, sizeof buf, as));
+            w.bad = true;
+        } else if (!(a >= 0 && a <= TF_SURVEY_MAX_COUNT)) {
+            report(r, TF_ERR_RANGE, line, acol + 1,
+                   a < 0 ? "removals and releases are both >= 0: write animals put in under 'added'" : hint,
+                   "%s %s is %s", known_names[k], show(buf, sizeof buf, as),
+                   a < 0 ? "negative" : "larger than any count this tool accepts");
+            w.bad = true;
+        } else if (k == COL_REMOVED) {
+            w.removed = a;
+        } else {
+            w.added = a;
         }
     }
 
@@ -879,7 +911,7 @@ static void check_group(reader *r, row *rows, size_t n)
 }
 
 static tf_series *build_series(const row *rows, size_t n, double *counts, double *effort, long *lines,
-                               tf_error *err)
+                               double *removed, double *added, tf_error *err)
 {
     int first = rows[0].year;
     size_t span = (size_t)(rows[n - 1].year - first) + 1;
@@ -887,14 +919,22 @@ static tf_series *build_series(const row *rows, size_t n, double *counts, double
         counts[i] = NAN;
         effort[i] = 1.0;
         lines[i] = 0;
+        removed[i] = added[i] = 0.0;
     }
     for (size_t i = 0; i < n; i++) {
         size_t k = (size_t)(rows[i].year - first);
         counts[k] = rows[i].count;
         effort[k] = rows[i].effort;
         lines[k] = rows[i].line;
+        removed[k] = rows[i].removed;
+        added[k] = rows[i].added;
     }
-    return tf_series_new(rows[0].label, first, span, counts, effort, lines, err);
+    tf_series *s = tf_series_new(rows[0].label, first, span, counts, effort, lines, err);
+    if (s && tf_series_set_actions(s, removed, added, err) != TF_OK) {
+        tf_series_free(s);
+        return NULL;
+    }
+    return s;
 }
 
 /* Groups the rows, checks each population and, when the whole file is clean, builds the survey.
@@ -903,7 +943,7 @@ static tf_survey *assemble(reader *r)
 {
     tf_survey *sv = NULL;
     group *groups = NULL;
-    double *counts = NULL, *effort = NULL;
+    double *counts = NULL, *effort = NULL, *removed = NULL, *added = NULL;
     long *lines = NULL;
     size_t n_groups = 0;
 
@@ -939,8 +979,10 @@ static tf_survey *assemble(reader *r)
     counts = malloc(TF_SURVEY_MAX_SPAN * sizeof *counts);
     effort = malloc(TF_SURVEY_MAX_SPAN * sizeof *effort);
     lines = malloc(TF_SURVEY_MAX_SPAN * sizeof *lines);
+    removed = malloc(TF_SURVEY_MAX_SPAN * sizeof *removed);
+    added = malloc(TF_SURVEY_MAX_SPAN * sizeof *added);
     sv = calloc(1, sizeof *sv);
-    if (!counts || !effort || !lines || !sv)
+    if (!counts || !effort || !lines || !removed || !added || !sv)
         goto nomem;
     sv->n_in_file = n_groups;
     sv->path = strdup(r->name);
@@ -979,7 +1021,7 @@ static tf_survey *assemble(reader *r)
             continue;
         }
         /* The rows were checked already, so only memory can fail here. */
-        sv->series[sv->n_series] = build_series(rows, groups[g].n, counts, effort, lines, NULL);
+        sv->series[sv->n_series] = build_series(rows, groups[g].n, counts, effort, lines, removed, added, NULL);
         if (!sv->series[sv->n_series])
             goto nomem;
         sv->order[sv->n_series++] = g;
@@ -994,6 +1036,8 @@ done:
     free(counts);
     free(effort);
     free(lines);
+    free(removed);
+    free(added);
     return sv;
 }
 
@@ -1162,6 +1206,16 @@ tf_status tf_survey_read_with(const char *path, const tf_survey_options *o, tf_s
 }
 
 int tf_survey_estimates(const tf_survey *sv) { return sv->estimates; }
+
+tf_status tf_survey_set_counted_fraction(tf_survey *sv, double q, tf_error *err)
+{
+    for (size_t i = 0; i < sv->n_series; i++) {
+        tf_status st = tf_series_set_counted_fraction(sv->series[i], q, err);
+        if (st != TF_OK)
+            return st;
+    }
+    return TF_OK;
+}
 
 void tf_survey_free(tf_survey *sv)
 {

@@ -100,6 +100,9 @@ size_t tf_survey_n_in_file(const tf_survey *sv);
  * file order; the others are freed. Labels not in the survey are ignored (the caller checks). */
 void tf_survey_keep(tf_survey *sv, const char *const *labels, size_t n);
 
+/* Sets the counted fraction (tf_series_set_counted_fraction) of every series. */
+tf_status tf_survey_set_counted_fraction(tf_survey *sv, double q, tf_error *err);
+
 /* Accepts NULL. */
 void tf_survey_free(tf_survey *sv);
 

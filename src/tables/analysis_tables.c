@@ -568,6 +568,27 @@ static tf_status provenance_items(const tf_analysis *a, const tf_analysis_tables
         TRY(tf_table_add_item_text(t, "Counts", "read as estimates (--estimates), not whole counts",
                                    "so only counting-error models of continuous amounts (log-normal) were fitted",
                                    err));
+    double removed = 0, added = 0;
+    for (size_t i = 0; i < tf_analysis_n_populations(a); i++) {
+        const tf_series *s = tf_analysis_pop_series(tf_analysis_population(a, i));
+        for (size_t k = 0; s && k < tf_series_n_years(s); k++)
+            removed += tf_series_removed(s, k), added += tf_series_added(s, k);
+    }
+    double q = o->counted_fraction > 0 ? o->counted_fraction : 1.0;
+    if (removed > 0 || added > 0 || q != 1) {
+        snprintf(text, sizeof text, "a count at effort 1 includes %.3g of the animals present (--counted-fraction)",
+                 q);
+        TRY(tf_table_add_item_text(t, "Counted fraction", text,
+                                   "links animals removed or released to the abundance in count units", err));
+    }
+    if (removed > 0 || added > 0) {
+        snprintf(text, sizeof text, "%.10g animals removed and %.10g added over the survey years, as the survey lists them",
+                 removed, added);
+        TRY(tf_table_add_item_text(t, "Removals and releases", text,
+                                   "each year's removals and releases act on the abundance after the count, before the "
+                                   "year's growth: the fitted growth rate is that of the population before removals",
+                                   err));
+    }
     static const char seed_note[] = "the same seed and settings give the same numbers";
     /* A number when a double holds it exactly (below 2^53), else its digits as text. */
     if (o->seed <= (UINT64_C(1) << 53)) {

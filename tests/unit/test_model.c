@@ -69,6 +69,38 @@ static const char *o_label(size_t i) { return tf_model_obs_at(i)->label; }
 static size_t o_n_params(size_t i) { return tf_model_obs_at(i)->n_params; }
 static int o_found(size_t i) { return tf_model_find_obs(o_name(i)) == tf_model_obs_at(i); }
 
+/* The take before the growth step (model.h): ln(e^x - take), extinct at zero, and a take of 0
+ * leaves the states bit for bit. */
+START_TEST(take_and_extinction)
+{
+    double x[4] = {log(100.0), log(10.0), log(5.0), log(50.0)};
+    double keep[4];
+    memcpy(keep, x, sizeof x);
+    tf_model_take(0.0, x, 4);
+    ck_assert_mem_eq(x, keep, sizeof x);
+    tf_model_take(10.0, x, 4);
+    ck_assert_double_eq_tol(x[0], log(90.0), 1e-12);
+    ck_assert_double_eq(x[1], TF_MODEL_LOG_EXTINCT); /* exactly nothing left */
+    ck_assert_double_eq(x[2], TF_MODEL_LOG_EXTINCT); /* more taken than there was */
+    ck_assert_double_eq_tol(x[3], log(40.0), 1e-12);
+    tf_model_take(-20.0, x, 4);                      /* a release brings an extinct state back */
+    ck_assert_double_eq_tol(x[1], log(20.0), 1e-9);
+
+    /* Gompertz with an overshooting feedback (r / ln K > 2) would send a very negative state far
+     * up; an extinct state stays extinct, a living one drifts as the growth row says. */
+    const tf_growth_type *g = tf_model_find_growth("gompertz");
+    double p[2] = {3.0, exp(1.0)};
+    double y[2] = {TF_MODEL_LOG_EXTINCT, 0.5}, out[2], plain;
+    g->drift(p, y + 1, &plain, 1);
+    tf_model_drift_alive(g, p, y, out, 2);
+    ck_assert_double_eq(out[0], TF_MODEL_LOG_EXTINCT);
+    ck_assert_double_eq(out[1], plain);
+    double raw;
+    g->drift(p, y, &raw, 1);
+    ck_assert(raw > 0); /* what the plain drift would have done */
+}
+END_TEST
+
 START_TEST(table_lists_every_model)
 {
     static const char *const growth[] = {"exponential", "ricker", "gompertz", "theta-logistic"};
@@ -595,6 +627,7 @@ static Suite *make_suite(void)
     tcase_add_test(tc, unsuited_counts_are_found);
     tcase_add_test(tc, draws_have_the_model_moments);
     tcase_add_test(tc, simulation_reproduces_and_scales);
+    tcase_add_test(tc, take_and_extinction);
     suite_add_tcase(s, tc);
     return s;
 }

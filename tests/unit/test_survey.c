@@ -66,6 +66,48 @@ static void expect_effort(const tf_series *s, const double *want)
         ck_assert_msg(e[i] == want[i], "year %zu: effort %g, want %g", i, e[i], want[i]);
 }
 
+/* Removals and releases: read in every row (a year without a count too), 0 where empty; a
+ * negative or non-numeric one names its line and column. */
+START_TEST(removals_and_releases)
+{
+    static const char text[] = "year,count,removed,added\n2001,100,10,\n2002,95,,5\n2003,NA,12,0\n"
+                               "2004,90,8,\n2005,92,0,\n2006,97,,\n";
+    tf_error err;
+    tf_error_init(&err);
+    tf_survey *sv = NULL;
+    ck_assert_int_eq(tf_survey_parse("mem", text, sizeof text - 1, &sv, &err), TF_OK);
+    const tf_series *s = tf_survey_series(sv, 0);
+    ck_assert(tf_series_has_actions(s));
+    ck_assert_double_eq(tf_series_removed(s, 0), 10);
+    ck_assert_double_eq(tf_series_added(s, 1), 5);
+    ck_assert_double_eq(tf_series_removed(s, 2), 12); /* no count that year, the removal is kept */
+    ck_assert_double_eq(tf_series_removed(s, 5), 0);
+    ck_assert_double_eq(tf_series_take(s, 1), -5);
+    ck_assert_int_eq(tf_survey_set_counted_fraction(sv, 0.5, &err), TF_OK);
+    ck_assert_double_eq(tf_series_take(s, 0), 5);  /* 0.5 x 10 animals, in count units */
+    ck_assert_int_eq(tf_survey_set_counted_fraction(sv, 1.5, &err), TF_ERR_RANGE);
+    ck_assert_double_eq(tf_series_counted_fraction(s), 0.5);
+    tf_survey_free(sv);
+
+    static const char zeros[] = "year,count,removed\n2001,100,0\n2002,95,\n2003,90,0\n2004,90,0\n2005,92,0\n";
+    ck_assert_int_eq(tf_survey_parse("mem", zeros, sizeof zeros - 1, &sv, &err), TF_OK);
+    ck_assert(!tf_series_has_actions(tf_survey_series(sv, 0)));
+    ck_assert_double_eq(tf_series_take(tf_survey_series(sv, 0), 0), 0);
+    tf_survey_free(sv);
+
+    static const char negative[] = "year,count,removed\n2001,100,0\n2002,95,-4\n2003,90,0\n2004,90,0\n2005,92,0\n";
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse("mem", negative, sizeof negative - 1, &sv, &err), TF_ERR_RANGE);
+    ck_assert_int_eq(err.items[0].line, 3);
+    ck_assert_int_eq(err.items[0].column, 3);
+    ck_assert_ptr_nonnull(strstr(err.items[0].hint, "'added'"));
+    static const char words[] = "year,count,added\n2001,100,0\n2002,95,some\n2003,90,0\n2004,90,0\n2005,92,0\n";
+    tf_error_init(&err);
+    ck_assert_int_eq(tf_survey_parse("mem", words, sizeof words - 1, &sv, &err), TF_ERR_PARSE);
+    ck_assert_ptr_nonnull(strstr(err.items[0].what, "added 'some' is not a number"));
+}
+END_TEST
+
 START_TEST(comma_basic)
 {
     tf_survey *sv = read_ok(GOOD("comma-basic.csv"));
@@ -861,6 +903,7 @@ static Suite *make_suite(void)
     tcase_set_timeout(hostile, 30);
     tcase_add_test(hostile, memory_input_matches_file_input);
     tcase_add_test(hostile, very_long_line);
+    tcase_add_test(hostile, removals_and_releases);
     tcase_add_test(hostile, too_many_rows);
     tcase_add_test(hostile, random_junk_never_crashes);
     suite_add_tcase(s, hostile);

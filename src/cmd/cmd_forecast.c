@@ -470,8 +470,10 @@ static void print_projection(const tf_forecast *f, const job *j)
         putchar('\n');
     }
     printf("\nTables in %s:", j->dir);
-    for (size_t i = 0; i < N_TABLES; i++) {
+    for (size_t i = 0; i < N_ALL_TABLES; i++) {
         char name[128];
+        if (!j->tables[i])
+            continue;
         tf_csv_file_name(tf_table_name(j->tables[i]), name, sizeof name);
         printf("%s %s", i ? "," : "", name);
     }

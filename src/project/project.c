@@ -36,6 +36,8 @@ struct tf_projection {
      * n_runs; NULL otherwise. */
     unsigned short *first_hit;
     double *change;
+    /* With management actions a run can die out: its bands read 0, not e^-50. */
+    int zero_extinct;
 };
 
 /* The horizon is at most TF_PROJECT_MAX_HORIZON (1000), so a year fits an unsigned short. */
@@ -379,19 +381,25 @@ static void select_kth(double *a, size_t n, size_t k_)
  * arithmetic as gsl_stats_quantile_from_sorted_data (Hyndman & Fan 1996, definition 7) but by
  * selection instead of a sort. exp is increasing, so order statistics of a give those of exp(a).
  * Reorders a. */
-static double quantile_exp(double *a, size_t n, double q)
+/* exp(x), or 0 for an extinct state (model/model.h) when zero_extinct. */
+static double abundance_of(double x, int zero_extinct)
+{
+    return zero_extinct && x <= TF_MODEL_EXTINCT_BELOW ? 0.0 : exp(x);
+}
+
+static double quantile_exp(double *a, size_t n, double q, int zero_extinct)
 {
     double delta = (double)(n - 1) * q;
     size_t lhs = (size_t)delta;
     delta -= (double)lhs;
     select_kth(a, n, lhs);
     if (lhs == n - 1)
-        return exp(a[lhs]);
+        return abundance_of(a[lhs], zero_extinct);
     /* After the selection every value above lhs is >= a[lhs]: the next order statistic is their minimum. */
     double next = a[lhs + 1];
     for (size_t i = lhs + 2; i < n; i++)
         next = a[i] < next ? a[i] : next;
-    return (1 - delta) * exp(a[lhs]) + delta * exp(next);
+    return (1 - delta) * abundance_of(a[lhs], zero_extinct) + delta * abundance_of(next, zero_extinct);
 }
 
 static void record_bands(tf_projection *p, workspace *w, size_t t)
@@ -399,7 +407,7 @@ static void record_bands(tf_projection *p, workspace *w, size_t t)
     size_t R = p->n_runs;
     memcpy(w->scratch, w->x, R * sizeof *w->scratch);
     for (int b = 0; b < TF_BAND_COUNT; b++)
-        p->bands[t * TF_BAND_COUNT + (size_t)b] = quantile_exp(w->scratch, R, band_levels[b]);
+        p->bands[t * TF_BAND_COUNT + (size_t)b] = quantile_exp(w->scratch, R, band_levels[b], p->zero_extinct);
 }
 
 static void record_thresholds(tf_projection *p, workspace *w, size_t t)
@@ -580,6 +588,7 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
     if (!w.x || !w.x0 || !w.sigma || !w.z || !w.scratch || !w.hit || !w.blocks)
         goto nomem;
     int acting = acts(opts);
+    p->zero_extinct = acting;
     if (acting && !(w.gone = malloc(R)))
         goto nomem;
     if (acting && opts->action_from > 0 && has_capacity(&opts->action) &&

@@ -316,7 +316,9 @@ char *tf_scenario_describe(const tf_scenario *sc, char *buf, size_t size)
     } while (0)
     const char *sep = "";
     if (sc->has_remove) {
-        if (sc->remove_share)
+        if (sc->remove == 0)
+            PUT("no removal");
+        else if (sc->remove_share)
             PUT("remove %.4g %% a year", 100 * sc->remove);
         else
             PUT("remove %.10g a year", sc->remove);

@@ -175,6 +175,13 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
                                    "The futures start from the abundance of the last survey year and are shared among "
                                    "the models in proportion to their posterior probabilities.",
                                    err);
+        size_t sq_years;
+        double sq = tf_analysis_pop_status_quo(p, &sq_years);
+        if (st == TF_OK && sq_years) {
+            char text[200];
+            st = tf_table_add_notef(t[i], TF_NOTE_INFO, err, "Removals go on as the status quo: %s.",
+                                    tf_scenario_tables_status_quo(sq, sq_years, text, sizeof text));
+        }
         if (st == TF_OK && tf_tables_per_effort(s))
             st = tf_table_add_note(t[i], TF_NOTE_INFO,
                                    "Effort is not 1 in every survey year, so abundances and thresholds in animals "

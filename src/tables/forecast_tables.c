@@ -174,6 +174,13 @@ tf_status tf_forecast_tables_build(const tf_forecast *f, const tf_forecast_pop *
     for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
         for (size_t i = tf_project_n_cautions(); i < nc && st == TF_OK; i++)
             st = tf_table_add_note(out[k], TF_NOTE_CAUTION, cautions[i], err);
+    /* The survey's removals go on in the projection: say how much. */
+    if (p->status_quo_years) {
+        char sq[200];
+        tf_scenario_tables_status_quo(p->status_quo, p->status_quo_years, sq, sizeof sq);
+        for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
+            st = tf_table_add_notef(out[k], TF_NOTE_INFO, err, "Removals go on as the status quo: %s.", sq);
+    }
     if (st == TF_OK)
         st = summary_table(f, p, population, survey_path, &out[TF_FORECAST_TABLE_SUMMARY], err);
     return st;

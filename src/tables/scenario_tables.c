@@ -282,11 +282,19 @@ tf_status tf_scenario_tables_first_page(tf_table *t, const tf_scenario_set *s, c
                                         double status_quo_animals, size_t status_quo_years, int year0,
                                         tf_error *err)
 {
-    if (!s && !safe)
+    if (!s && !safe && !status_quo_years)
         return TF_OK;
     char text[600], note[400], th[48];
     tf_status st = TF_OK;
     const tf_projection *sq = tf_scenario_set_status_quo(s);
+    if (!s) {
+        st = tf_table_add_heading(t, "Removals", err);
+        if (st == TF_OK)
+            st = tf_table_add_item_text(t, "Status quo",
+                                        tf_scenario_tables_status_quo(status_quo_animals, status_quo_years, text,
+                                                                      sizeof text),
+                                        "what the projection above assumes for every year ahead", err);
+    }
     if (sq && tf_projection_n_thresholds(sq) > 0) {
         tf_threshold k0 = tf_projection_threshold(sq, 0);
         tf_project_threshold_label(&k0, th, sizeof th);
@@ -319,12 +327,20 @@ tf_status tf_scenario_tables_first_page(tf_table *t, const tf_scenario_set *s, c
         }
     }
     if (st == TF_OK && safe) {
-        st = tf_table_add_heading(t, "Largest safe removal", err);
+        snprintf(text, sizeof text, "Largest safe removal: %s", tf_scenario_tables_safe_value(safe, note, sizeof note));
+        st = tf_table_add_heading(t, text, err);
         if (st == TF_OK)
-            st = tf_table_add_item_text(t, "Largest safe removal", tf_scenario_tables_safe_value(safe, text, sizeof text),
-                                        tf_scenario_tables_safe_note(safe, note, sizeof note), err);
+            st = tf_table_add_item_number(t, tf_column_name(TF_C_SAFE_REMOVAL), safe->value,
+                                          safe->ask.share ? TF_COL_PERCENT : TF_COL_NUMBER,
+                                          tf_scenario_tables_safe_note(safe, note, sizeof note), err);
         if (st == TF_OK && safe->exceeded_at_zero)
             st = tf_table_set_warning(t, tf_table_n_rows(t) - 1, TF_TABLE_WHOLE_ROW, err);
+        if (st == TF_OK)
+            st = tf_table_add_item_number(t, tf_column_name(TF_C_SAFE_REMOVAL_MCSE), safe->mcse,
+                                          safe->ask.share ? TF_COL_PERCENT : TF_COL_NUMBER,
+                                          "its Monte Carlo standard error: sd of the answers of 10 batches of runs / "
+                                          "sqrt(10)",
+                                          err);
         if (st == TF_OK)
             st = tf_table_add_item_text(t, "  caution", tf_scenario_tables_safe_caution, NULL, err);
     }

@@ -321,7 +321,7 @@ tf_status tf_scenario_tables_first_page(tf_table *t, const tf_scenario_set *s, c
                     break;
                 snprintf(text, sizeof text, "  within %zu years", yr);
                 snprintf(note, sizeof note, "by %d; status quo %.1f %%, difference %+.1f points (paired Monte Carlo "
-                         "s.e. %.2g)", year0 + (int)yr, 100 * tf_projection_risk(sq, 0, yr), 100 * d, 100 * se);
+                         "s.e. %.2g points)", year0 + (int)yr, 100 * tf_projection_risk(sq, 0, yr), 100 * d, 100 * se);
                 st = tf_table_add_item_number(t, text, tf_projection_risk(p, 0, yr), TF_COL_PERCENT, note, err);
             }
         }

@@ -46,6 +46,11 @@ struct tf_analysis_pop {
     tf_projection *proj;
     tf_sensitivity *sens;
     tf_analysis_sens_row *sens_rows;
+    tf_scenario_set *scenarios;
+    int has_safe;
+    tf_safe_removal safe;
+    double status_quo;
+    size_t status_quo_years;
     double seconds;
 };
 
@@ -81,6 +86,7 @@ void tf_analysis_free(tf_analysis *a)
         tf_projection_free(p->proj);
         tf_sensitivity_free(p->sens);
         free(p->sens_rows);
+        tf_scenario_set_free(p->scenarios);
         free(p->models);
         free(p->years);
     }
@@ -259,10 +265,22 @@ static tf_status project(tf_analysis_pop *p, const tf_analysis_options *o, const
     }
     tf_project_options po = o->project;
     po.stop = stop;
-    /* Its own stream, keyed by the population: the same futures alone or among others. */
-    tf_rng rng;
+    double q = tf_series_counted_fraction(p->s);
+    p->status_quo = tf_scenario_status_quo_animals(p->s, &p->status_quo_years);
+    po.status_quo.take = q * p->status_quo;
+    /* Its own stream, keyed by the population: the same futures alone or among others. The
+     * scenarios and the safe removal start from the same state (common random numbers). */
+    tf_rng rng, start;
     tf_project_stream(&rng, o->seed, tf_series_label(p->s));
+    start = rng;
     st = tf_project_run(in, n_in, &po, &rng, &p->proj, err);
+    int year0 = tf_series_first_year(p->s) + (int)ny - 1;
+    if (st == TF_OK && o->n_scenarios)
+        st = tf_scenario_set_run(in, n_in, &po, &start, o->scenarios, o->n_scenarios, year0, q, &p->scenarios, err);
+    if (st == TF_OK && o->safe.years > 0) {
+        st = tf_safe_removal_find(in, n_in, &po, &start, &o->safe, q, &p->safe, err);
+        p->has_safe = st == TF_OK;
+    }
 done:
     for (size_t i = 0; i < TF_ANALYSIS_MAX_MODELS; i++)
         free(starts[i]);
@@ -563,7 +581,7 @@ tf_status tf_analysis_run(const tf_survey *sv, const tf_analysis_options *option
     }
     a->opt = *options;
     a->n_pops = n;
-    tf_status st = TF_OK;
+    tf_status st = tf_analysis_check_management(sv, only, options, err);
     for (size_t i = 0; i < n && st == TF_OK; i++) {
         tf_analysis_pop *p = &a->pops[i];
         p->s = only ? only : tf_survey_series(sv, i);
@@ -624,4 +642,41 @@ const tf_sensitivity *tf_analysis_pop_sensitivity(const tf_analysis_pop *p) { re
 const tf_analysis_sens_row *tf_analysis_pop_sens_row(const tf_analysis_pop *p, size_t row)
 {
     return p->sens_rows && row < tf_sensitivity_n_rows(p->sens) ? &p->sens_rows[row] : NULL;
+}
+
+const tf_scenario_set *tf_analysis_pop_scenarios(const tf_analysis_pop *p) { return p->scenarios; }
+const tf_safe_removal *tf_analysis_pop_safe_removal(const tf_analysis_pop *p) { return p->has_safe ? &p->safe : NULL; }
+
+double tf_analysis_pop_status_quo(const tf_analysis_pop *p, size_t *n_years)
+{
+    if (n_years)
+        *n_years = p->status_quo_years;
+    return p->status_quo;
+}
+
+tf_status tf_analysis_check_management(const tf_survey *sv, const tf_series *only, const tf_analysis_options *o,
+                                       tf_error *err)
+{
+    tf_status st;
+    if (o->safe.years > 0 && o->project.n_thresholds == 0)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give a threshold with --threshold",
+                            "the largest safe removal needs a quasi-extinction threshold");
+    if (o->n_scenarios == 0)
+        return TF_OK;
+    if ((st = tf_scenario_check_list(o->scenarios, o->n_scenarios, err)) != TF_OK)
+        return st;
+    size_t n_growth = o->n_growth ? o->n_growth : tf_model_n_growth();
+    for (size_t i = 0; i < n_growth; i++) {
+        const tf_growth_type *g = o->n_growth ? tf_model_find_growth(o->growth[i]) : tf_model_growth_at(i);
+        if (g && (st = tf_scenario_check_model(o->scenarios, o->n_scenarios, g, err)) != TF_OK)
+            return st;
+    }
+    size_t n = only ? 1 : sv ? tf_survey_n_series(sv) : 0;
+    for (size_t i = 0; i < n; i++) {
+        const tf_series *s = only ? only : tf_survey_series(sv, i);
+        int year0 = tf_series_first_year(s) + (int)tf_series_n_years(s) - 1;
+        if ((st = tf_scenario_check_years(o->scenarios, o->n_scenarios, year0, o->project.horizon, err)) != TF_OK)
+            return st;
+    }
+    return TF_OK;
 }

@@ -13,6 +13,8 @@
 #include "compare/sensitivity.h"
 #include "model/model.h"
 #include "project/project.h"
+#include "project/safe_removal.h"
+#include "project/scenario.h"
 #include "sampler/fit.h"
 #include "survey/survey.h"
 #include "util/error.h"
@@ -46,8 +48,15 @@ typedef struct {
      * replaced by seed and n_threads below. */
     tf_pmmh_options fit;
     tf_evidence_options evidence;
-    /* Projection: horizon, runs, thresholds, declines (its stop is set by tf_analysis_run). */
+    /* Projection: horizon, runs, thresholds, declines (its stop is set by tf_analysis_run; its
+     * status quo by each population's recorded removals, tf_scenario_status_quo_animals). */
     tf_project_options project;
+    /* Management scenarios projected beside the status quo from the same draws with the same
+     * random numbers (borrowed; n_scenarios 0 = none), and the largest safe removal when
+     * safe.years > 0 (the first threshold is its quasi-extinction threshold). */
+    const tf_scenario *scenarios;
+    size_t n_scenarios;
+    tf_safe_removal_ask safe;
     uint64_t seed;
     size_t n_threads;       /* >= 1; the results do not depend on it */
     const char *population; /* analyse only this population; NULL = all of them */
@@ -197,6 +206,19 @@ const tf_sensitivity *tf_analysis_pop_sensitivity(const tf_analysis_pop *p);
 /* Row row (< tf_sensitivity_n_rows) of the risks under the alternatives. */
 const tf_analysis_sens_row *tf_analysis_pop_sens_row(const tf_analysis_pop *p, size_t row);
 
+/* The scenarios projected for p with common random numbers, or NULL when none were asked. */
+const tf_scenario_set *tf_analysis_pop_scenarios(const tf_analysis_pop *p);
+/* The largest safe removal, or NULL when it was not asked. */
+const tf_safe_removal *tf_analysis_pop_safe_removal(const tf_analysis_pop *p);
+/* The status quo's net removal in animals a year (tf_scenario_status_quo_animals) and the survey
+ * years it averages (0 when the survey records no removals). */
+double tf_analysis_pop_status_quo(const tf_analysis_pop *p, size_t *n_years);
+/* The checks of o's scenarios and safe removal against the candidates and the populations to
+ * analyse (only, or every one of sv; neither: no population is checked): labels, a capacity on a candidate without one, from=
+ * years, a threshold for the safe removal. TF_ERR_USAGE naming the problem. tf_analysis_run
+ * makes them before the first fit. */
+tf_status tf_analysis_check_management(const tf_survey *sv, const tf_series *only, const tf_analysis_options *o,
+                                       tf_error *err);
 /* Seconds the population took. */
 double tf_analysis_pop_seconds(const tf_analysis_pop *p);
 

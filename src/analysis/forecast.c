@@ -21,6 +21,8 @@ typedef struct {
     tf_fit *fit;
     double *x_last;              /* MODEL: each draw's latent log-abundance in the last year */
     tf_projection *own;          /* MODEL and FIXED */
+    tf_scenario_set *scenarios;  /* MODEL and FIXED */
+    tf_safe_removal safe;
     double theta[TF_MAX_PARAMS]; /* FIXED */
 } pop_state;
 
@@ -48,6 +50,7 @@ void tf_forecast_free(tf_forecast *f)
     for (size_t i = 0; f->pops && i < f->n_pops; i++) {
         pop_state *p = &f->pops[i];
         tf_projection_free(p->own);
+        tf_scenario_set_free(p->scenarios);
         free(p->x_last);
         tf_fit_free(p->fit);
         tf_posterior_free(p->post);
@@ -272,6 +275,21 @@ tf_status tf_forecast_check_options(const tf_forecast_options *o, tf_error *err)
         if (!o->run.priors)
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "no priors for the fits");
     }
+    if (o->run.n_scenarios && tf_scenario_check_list(o->run.scenarios, o->run.n_scenarios, err) == TF_OK) {
+        /* A capacity on a growth model without one is refused before any fit. */
+        size_t n_growth = o->source == TF_FORECAST_AVERAGE ? (o->run.n_growth ? o->run.n_growth : tf_model_n_growth())
+                          : o->source == TF_FORECAST_MODEL ? 1 : 0;
+        for (size_t i = 0; i < n_growth; i++) {
+            const tf_growth_type *g = o->source == TF_FORECAST_MODEL ? tf_model_find_growth(o->growth ? o->growth : "")
+                                      : o->run.n_growth ? tf_model_find_growth(o->run.growth[i])
+                                                        : tf_model_growth_at(i);
+            if (g && tf_scenario_check_model(o->run.scenarios, o->run.n_scenarios, g, err) != TF_OK)
+                break;
+        }
+    }
+    if (o->run.safe.years > 0 && o->run.project.n_thresholds == 0)
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give a threshold with --threshold",
+                     "the largest safe removal needs a quasi-extinction threshold");
     size_t n1 = err->n_items;
     if (tf_project_check_options(&o->run.project, err) != TF_OK)
         tf_error_restatus(err, n1, TF_ERR_USAGE);
@@ -337,6 +355,42 @@ static tf_status fixed_start(const tf_forecast_options *o, const tf_series *s, p
     return TF_OK;
 }
 
+/* Projects population p from in: the status quo (the survey's recorded removals continued), then
+ * the scenarios and the safe removal from the same stream state (common random numbers). */
+static tf_status project_managed(const tf_forecast_options *o, pop_state *p, const tf_project_input *in,
+                                 tf_project_options po, tf_rng *rng, tf_error *err)
+{
+    const tf_series *s = p->view.series;
+    double q = s ? tf_series_counted_fraction(s) : 1.0;
+    if (s) {
+        p->view.status_quo = tf_scenario_status_quo_animals(s, &p->view.status_quo_years);
+        po.status_quo.take = q * p->view.status_quo;
+    }
+    tf_rng start = *rng;
+    tf_status st = tf_project_run(in, 1, &po, rng, &p->own, err);
+    p->view.projection = p->own;
+    if (st == TF_OK && o->run.n_scenarios) {
+        st = tf_scenario_set_run(in, 1, &po, &start, o->run.scenarios, o->run.n_scenarios, p->view.year0, q,
+                                 &p->scenarios, err);
+        p->view.scenarios = p->scenarios;
+    }
+    if (st == TF_OK && o->run.safe.years > 0 &&
+        (st = tf_safe_removal_find(in, 1, &po, &start, &o->run.safe, q, &p->safe, err)) == TF_OK)
+        p->view.safe = &p->safe;
+    return st;
+}
+
+/* The checks of the scenarios of o against model g (NULL: none) and the start year of p. */
+static tf_status check_management(const tf_forecast_options *o, const tf_growth_type *g, int year0, tf_error *err)
+{
+    tf_status st = TF_OK;
+    if (o->run.n_scenarios && g)
+        st = tf_scenario_check_model(o->run.scenarios, o->run.n_scenarios, g, err);
+    if (st == TF_OK)
+        st = tf_scenario_check_years(o->run.scenarios, o->run.n_scenarios, year0, o->run.project.horizon, err);
+    return st;
+}
+
 static tf_status run_fixed(tf_forecast *f, const tf_survey *sv, tf_error *err)
 {
     const tf_forecast_options *o = &f->opt;
@@ -369,9 +423,10 @@ static tf_status run_fixed(tf_forecast *f, const tf_survey *sv, tf_error *err)
     tf_rng_derive(&rng, o->run.seed, keys, 2);
     tf_project_options po = o->run.project;
     po.start = 0; /* the start is the draw's own */
+    if ((st = check_management(o, tf_model_growth(p->model), p->view.year0, err)) != TF_OK)
+        return st;
     size_t n0 = err->n_items;
-    st = tf_project_run(&in, 1, &po, &rng, &p->own, err);
-    p->view.projection = p->own;
+    st = project_managed(o, p, &in, po, &rng, err);
     /* Range and validity errors of the projection come from the values given (fixed, start). */
     if (st != TF_OK && st != TF_ERR_NOMEM && st != TF_ERR_NUMERIC && st != TF_ERR_INTERRUPTED)
         st = tf_error_restatus(err, n0, TF_ERR_USAGE);
@@ -430,9 +485,7 @@ static tf_status fit_and_project(const tf_forecast_options *o, const volatile si
     po.stop = stop;
     tf_rng rng;
     tf_project_stream(&rng, o->run.seed, p->view.label);
-    st = tf_project_run(&in, 1, &po, &rng, &p->own, err);
-    p->view.projection = p->own;
-    return st;
+    return project_managed(o, p, &in, po, &rng, err);
 }
 
 static tf_status run_model(tf_forecast *f, const tf_survey *sv, const volatile sig_atomic_t *stop,
@@ -455,7 +508,8 @@ static tf_status run_model(tf_forecast *f, const tf_survey *sv, const volatile s
         const tf_series *s = only ? only : tf_survey_series(sv, i);
         p->view = (tf_forecast_pop){.series = s, .label = tf_series_label(s), .year0 = last_year(s), .start = NAN,
                                     .start_count = NAN, .start_effort = NAN};
-        if ((st = setup_model(o, p, err)) != TF_OK)
+        if ((st = setup_model(o, p, err)) != TF_OK ||
+            (st = check_management(o, tf_model_growth(p->model), p->view.year0, err)) != TF_OK)
             return st;
     }
     for (size_t i = 0; i < n; i++) {
@@ -506,7 +560,10 @@ static tf_status run_average(tf_forecast *f, const tf_survey *sv, const volatile
         }
         f->pops[i].view = (tf_forecast_pop){.series = s, .label = tf_series_label(s), .year0 = last_year(s),
                                             .start = NAN, .start_count = NAN, .start_effort = NAN, .pop = ap,
-                                            .projection = tf_analysis_pop_projection(ap), .converged = converged};
+                                            .projection = tf_analysis_pop_projection(ap), .converged = converged,
+                                            .scenarios = tf_analysis_pop_scenarios(ap),
+                                            .safe = tf_analysis_pop_safe_removal(ap)};
+        f->pops[i].view.status_quo = tf_analysis_pop_status_quo(ap, &f->pops[i].view.status_quo_years);
     }
     return TF_OK;
 }

@@ -89,6 +89,13 @@ typedef struct {
     const tf_fit *fit;             /* MODEL: the fit; else NULL */
     const tf_analysis_pop *pop;    /* AVERAGE: the comparison and the averages; else NULL */
     const tf_projection *projection;
+    /* The scenarios (run.scenarios) projected with common random numbers, NULL when none; the
+     * largest safe removal, NULL when not asked; the status quo's net removal in animals a year
+     * and the survey years it averages (0: the survey records none). */
+    const tf_scenario_set *scenarios;
+    const tf_safe_removal *safe;
+    double status_quo;
+    size_t status_quo_years;
     /* 1 when every fit the projection draws from (MODEL: the fit; AVERAGE: every candidate of
      * positive probability) passed the convergence checks (tf_fit_converged); FIXED: 1. */
     int converged;

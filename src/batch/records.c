@@ -98,6 +98,15 @@ tf_status tf_records_settings(const tf_analysis_options *a, const char *sha256, 
         fprintf(f, "%c%.17g", k ? ',' : ' ', p->declines[k]);
     fputc('\n', f);
     line(f, "decline-window", "%zu", p->decline_window);
+    /* Only when asked, so that the record of a batch without them stays as it was. */
+    for (size_t i = 0; i < a->n_scenarios; i++) {
+        const tf_scenario *sc = &a->scenarios[i];
+        line(f, "scenario", "%s: remove %d %d %.17g add %d %.17g growth %.17g capacity %.17g from %d", sc->label,
+             sc->has_remove, sc->remove_share, sc->remove, sc->has_add, sc->add, sc->growth, sc->capacity,
+             sc->from_year);
+    }
+    if (a->safe.years > 0)
+        line(f, "safe-removal", "%.17g %zu %s", a->safe.risk, a->safe.years, a->safe.share ? "share" : "count");
     line(f, "population-workbooks", "%s", workbooks ? "yes" : "no");
     /* Only with workbooks, where it changes what is written: a batch without them keeps the
      * record it had before the draws left the workbooks. */

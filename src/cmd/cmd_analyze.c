@@ -88,8 +88,22 @@ static void help(FILE *out, const tf_analysis_options *d)
             "                     populations (default %d); the CSV tables are always written\n"
             "  --workbook-draws   put the raw posterior draws in the workbook too (also the batch's\n"
             "                     workbooks per population); by default they are CSV only, since a\n"
-            "                     sheet of every draw makes the workbook slow to open\n",
-            DEFAULT_DIR, d->project.horizon, growth, obs, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT);
+            "                     sheet of every draw makes the workbook slow to open\n"
+            "  --scenario 'LABEL:key=value,...'\n"
+            "                     also project a management scenario from the same draws with the same\n"
+            "                     random numbers (repeat for more): remove=N animals a year or\n"
+            "                     remove=P%% of the population, add=N released, growth=D added to the\n"
+            "                     yearly log growth, capacity=F times the carrying capacity (models\n"
+            "                     with one; choose them with --model), from=YEAR (default the first\n"
+            "                     projected year). Sheets scenarios, scenario differences and declines;\n"
+            "                     the status quo continues the mean net removal of the last %d survey\n"
+            "                     years when the survey records removals\n"
+            "  --safe-removal RISK,YEARS[,count|share]\n"
+            "                     the largest constant yearly removal (animals, or a share) keeping the\n"
+            "                     chance of reaching the first --threshold within YEARS at or below\n"
+            "                     RISK, with its Monte Carlo error: a model-based figure, not a quota\n",
+            DEFAULT_DIR, d->project.horizon, growth, obs, TF_PROJECT_DEFAULT_RUNS, TF_BATCH_WORKBOOK_LIMIT,
+            TF_SCENARIO_STATUS_QUO_YEARS);
     tf_args_quiet_help(out, 21);
     fputs("  -h, --help         show this help\n\nSampler and marginal likelihood:\n", out);
     tf_args_sampler_help(out, &d->fit, &d->evidence, 21);
@@ -345,7 +359,7 @@ static int run_batch(const tf_survey *sv, const tf_analysis_options *opt, const 
 static int analyze(int argc, char **argv, int rank, int size)
 {
     enum { OPT_THRESHOLD = 256, OPT_YEARS, OPT_WINDOW, OPT_POP, OPT_MODEL, OPT_OBS, OPT_RUNS, OPT_BATCH, OPT_FRESH,
-           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES, OPT_EFFORT_NAME, OPT_COUNTED };
+           OPT_WB_LIMIT, OPT_WB_DRAWS, OPT_SKIP, OPT_ESTIMATES, OPT_SCENARIO, OPT_SAFE, OPT_COUNTED, OPT_EFFORT_NAME };
     static const struct option longopts[] = {
         {"output", required_argument, NULL, 'o'},
         {"threshold", required_argument, NULL, OPT_THRESHOLD},
@@ -366,6 +380,8 @@ static int analyze(int argc, char **argv, int rank, int size)
         {"fresh", no_argument, NULL, OPT_FRESH},
         {"workbook-limit", required_argument, NULL, OPT_WB_LIMIT},
         {"workbook-draws", no_argument, NULL, OPT_WB_DRAWS},
+        {"scenario", required_argument, NULL, OPT_SCENARIO},
+        {"safe-removal", required_argument, NULL, OPT_SAFE},
         {"quiet", no_argument, NULL, 'q'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
@@ -393,6 +409,7 @@ static int analyze(int argc, char **argv, int rank, int size)
     tf_alternatives_init(&alts);
     int quiet = 0;
     tf_input in = {0};
+    tf_scenario scenarios[TF_SCENARIO_MAX];
 
     opterr = 0;
     optind = 0;
@@ -431,6 +448,14 @@ static int analyze(int argc, char **argv, int rank, int size)
         case OPT_FRESH: fresh = 1; break;
         case OPT_WB_LIMIT: tf_args_parse_size("--workbook-limit", optarg, 0, SIZE_MAX, &workbook_limit, &err); break;
         case OPT_WB_DRAWS: workbook_draws = 1; break;
+        case OPT_SCENARIO:
+            if (opt.n_scenarios == TF_SCENARIO_MAX)
+                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--scenario: more than %d scenarios",
+                             TF_SCENARIO_MAX);
+            else if (tf_scenario_parse(optarg, &scenarios[opt.n_scenarios], &err) == TF_OK)
+                opt.n_scenarios++;
+            break;
+        case OPT_SAFE: tf_safe_removal_parse(optarg, &opt.safe, &err); break;
         case 'q': quiet = 1; break;
         case 'h':
             if (rank == 0)
@@ -459,6 +484,10 @@ static int analyze(int argc, char **argv, int rank, int size)
                                 wvals, &opt.n_weights, &err);
     opt.weight_names = wnames;
     opt.weights = wvals;
+    opt.scenarios = scenarios;
+    /* Labels and capacities need no survey: refused before the survey is read. */
+    if (tf_error_status(&err) == TF_OK && opt.n_scenarios)
+        tf_analysis_check_management(NULL, NULL, &opt, &err);
     opt.estimates = in.estimates;
     opt.counted_fraction = tf_input_counted_fraction(&in);
     opt.population = tf_input_single(&in);
@@ -535,6 +564,10 @@ static int analyze(int argc, char **argv, int rank, int size)
             status = tf_args_exit_code(st);
             goto out;
         }
+        if ((st = tf_analysis_check_management(sv, NULL, &opt, &err)) != TF_OK) {
+            status = tf_args_exit_code(st);
+            goto out;
+        }
         if (batch || tf_survey_n_series(sv) + tf_survey_n_rejected(sv) > BATCH_AUTO) {
             struct stat info;
             if (stat(csv_dir, &info) == 0 && !S_ISDIR(info.st_mode)) {
@@ -555,7 +588,9 @@ static int analyze(int argc, char **argv, int rank, int size)
         goto out;
     }
     if ((st = tf_setup_check_candidates(&user, opt.growth, opt.n_growth, opt.obs, opt.n_obs, tf_survey_series(sv, 0), &err)) !=
-        TF_OK) {
+            TF_OK ||
+        (st = tf_analysis_check_management(sv, opt.population ? tf_survey_find(sv, opt.population) : NULL, &opt,
+                                           &err)) != TF_OK) {
         status = tf_args_exit_code(st);
         goto out;
     }

@@ -33,6 +33,7 @@
 #include "tables/columns.h"
 #include "tables/fit_tables.h"
 #include "tables/forecast_tables.h"
+#include "tables/scenario_tables.h"
 #include "tables/projection_tables.h"
 
 #define CMD "forecast"
@@ -43,6 +44,8 @@
 #define MAX_RUNS 10000000u
 /* The three projection tables and the summary that says what was projected, with the cautions. */
 #define N_TABLES TF_FORECAST_N_TABLES
+/* With the scenario tables after them, when scenarios were asked. */
+#define N_ALL_TABLES (N_TABLES + TF_SCENARIO_N_TABLES)
 
 /* Where the futures come from. */
 typedef enum { FROM_NONE, FROM_FIXED, FROM_MODEL, FROM_AVERAGE } source;
@@ -62,6 +65,9 @@ typedef struct {
     const char *weight_names[TF_ARGS_MAX_PAIRS];   /* --model-weights, as the comparison takes them */
     double weights[TF_ARGS_MAX_PAIRS];
     source from;
+    tf_scenario scenarios[TF_SCENARIO_MAX]; /* --scenario, in order */
+    size_t n_scenarios;
+    tf_safe_removal_ask safe;                /* --safe-removal; years 0 = not asked */
 } options;
 
 static void help(FILE *out)
@@ -123,10 +129,25 @@ static void help(FILE *out)
             "                          rounded); declines over 10 years are always reported\n"
             "  --runs R                simulated futures (default %d, or the number of posterior draws\n"
             "                          when that is more)\n"
+            "Management (the status quo continues the mean net removal of the last %d survey years\n"
+            "when the survey records removals):\n"
+            "  --scenario 'LABEL:key=value,...'\n"
+            "                          also project a scenario, from the same draws with the same random\n"
+            "                          numbers; repeat for more. Keys: remove=N (animals a year) or\n"
+            "                          remove=P%% (a share a year), add=N (animals released a year),\n"
+            "                          growth=D (added to the yearly log growth), capacity=F (carrying\n"
+            "                          capacity times F; models with one), from=YEAR (default: the first\n"
+            "                          projected year). remove/add replace the status quo's removals\n"
+            "  --safe-removal RISK,YEARS[,count|share]\n"
+            "                          the largest constant yearly removal (animals, or a share) that\n"
+            "                          keeps the chance of reaching the first --threshold within YEARS at\n"
+            "                          or below RISK (e.g. 0.05,20), with its Monte Carlo error: a\n"
+            "                          model-based figure, not a quota\n"
             "  -o, --output DIR        where to write (default output/<survey name>/, or output/forecast/\n"
             "                          without a survey), with one sub-folder per population when the\n"
             "                          file has several, as fit does\n",
-            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS);
+            growth, obs, TF_PROJECT_DEFAULT_HORIZON, DEFAULT_THRESHOLDS, TF_PROJECT_DEFAULT_RUNS,
+            TF_SCENARIO_STATUS_QUO_YEARS);
     tf_args_quiet_help(out, 26);
     fputs("  -h, --help              show this help\n\n"
           "Fitting (--model, --average; --ml-se, --draws and --model-weights with --average only;\n"
@@ -137,7 +158,9 @@ static void help(FILE *out)
           "risk per threshold and year, with its Monte Carlo error), declines.csv, and summary.csv\n"
           "(what was projected: the model or the model probabilities, the posterior draws, the\n"
           "settings, and the cautions), all or none; the population and the model are columns of\n"
-          "every table.\n"
+          "every table. With --scenario also scenarios.csv (each scenario's risk curves and bands),\n"
+          "scenario-differences.csv and scenario-declines.csv (differences from the status quo with\n"
+          "their paired Monte Carlo errors).\n"
           TF_CMD_HELP_END,
           out);
 }
@@ -160,13 +183,13 @@ static tf_status priors_of_one(void *ctx, tf_model *m, const tf_series *s, tf_pr
 typedef struct {
     const tf_forecast_pop *p;
     char dir[4096];
-    tf_table *tables[N_TABLES];
+    tf_table *tables[N_ALL_TABLES]; /* the scenario tables NULL without scenarios */
 } job;
 
 static void jobs_free(job *jobs, size_t n_jobs)
 {
     for (size_t i = 0; jobs && i < n_jobs; i++)
-        for (size_t k = 0; k < N_TABLES; k++)
+        for (size_t k = 0; k < N_ALL_TABLES; k++)
             tf_table_free(jobs[i].tables[k]);
     free(jobs);
 }
@@ -207,12 +230,14 @@ static void fit_mixing(const tf_fit *f, double *rhat_max, double *ess_min)
  * until the renames are over, so that a late Ctrl-C cannot stop the group half-way. */
 static tf_status write_tables(const job *jobs, size_t n_jobs, const char *survey_path, tf_error *err)
 {
-    tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_TABLES, err);
+    tf_fileset *g = tf_fileset_new(n_jobs, n_jobs * N_ALL_TABLES, err);
     tf_status st = g ? TF_OK : TF_ERR_NOMEM;
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
         const job *j = &jobs[i];
         st = tf_fileset_mkdir(g, j->dir, err);
-        for (size_t k = 0; k < N_TABLES && st == TF_OK; k++) {
+        for (size_t k = 0; k < N_ALL_TABLES && st == TF_OK; k++) {
+            if (!j->tables[k])
+                continue;
             char name[128], path[4300];
             tf_csv_file_name(tf_table_name(j->tables[k]), name, sizeof name);
             snprintf(path, sizeof path, "%s/%s", j->dir, name);
@@ -253,6 +278,46 @@ static void print_wrapped(FILE *out, const char *first, const char *text)
         text += strspn(text, " ");
     }
     fputc('\n', out);
+}
+
+/* The scenarios against the status quo (the first threshold at 10, 20 and 50 years, or the
+ * horizon when shorter) and the largest safe removal. */
+static void print_management(const tf_forecast_pop *p)
+{
+    char text[400];
+    if (p->status_quo_years || p->scenarios)
+        printf("\nStatus quo: %s\n", tf_scenario_tables_status_quo(p->status_quo, p->status_quo_years, text,
+                                                                      sizeof text));
+    const tf_scenario_set *s = p->scenarios;
+    if (s && tf_projection_n_thresholds(tf_scenario_set_status_quo(s)) > 0) {
+        const tf_projection *sq = tf_scenario_set_status_quo(s);
+        tf_threshold th = tf_projection_threshold(sq, 0);
+        char label[48];
+        printf("Scenarios: chance of reaching the threshold %s, and the difference from the status quo\n"
+               "(paired Monte Carlo se in brackets)\n",
+               tf_project_threshold_label(&th, label, sizeof label));
+        for (size_t i = 0; i < tf_scenario_set_n(s); i++) {
+            const tf_projection *pr = tf_scenario_set_projection(s, i);
+            printf("  %-20s", tf_scenario_set_scenario(s, i)->label);
+            for (size_t k = 0; k < TF_ANALYSIS_N_RISK_YEARS; k++) {
+                size_t t = tf_analysis_risk_years[k];
+                if (t > tf_projection_horizon(pr))
+                    continue;
+                double d, se;
+                tf_error err;
+                tf_error_init(&err);
+                tf_scenario_set_risk_difference(s, i, 0, t, &d, &se, &err);
+                printf("  %zu y: %.3f (%+.3f, %.3f)", t, tf_projection_risk(pr, 0, t), d, se);
+            }
+            putchar('\n');
+        }
+    }
+    if (p->safe) {
+        char note[600];
+        printf("Largest safe removal: %s\n", tf_scenario_tables_safe_value(p->safe, text, sizeof text));
+        print_wrapped(stdout, "  ", tf_scenario_tables_safe_note(p->safe, note, sizeof note));
+        print_wrapped(stdout, "  ", tf_scenario_tables_safe_caution);
+    }
 }
 
 /* The cautions once for the whole run; the convergence caution when any population needs it. */
@@ -412,8 +477,10 @@ static void print_projection(const tf_forecast *f, const job *j)
         putchar('\n');
     }
     printf("\nTables in %s:", j->dir);
-    for (size_t i = 0; i < N_TABLES; i++) {
+    for (size_t i = 0; i < N_ALL_TABLES; i++) {
         char name[128];
+        if (!j->tables[i])
+            continue;
         tf_csv_file_name(tf_table_name(j->tables[i]), name, sizeof name);
         printf("%s %s", i ? "," : "", name);
     }
@@ -464,6 +531,9 @@ static void forecast_options(options *o, const tf_project_options *po, tf_foreca
     ro->project = *po;
     ro->seed = o->seed;
     ro->estimates = o->in.estimates;
+    ro->scenarios = o->scenarios;
+    ro->n_scenarios = o->n_scenarios;
+    ro->safe = o->safe;
     ro->population = o->population;
     fo->start = o->start;
     if (from == TF_FORECAST_FIXED) {
@@ -624,6 +694,17 @@ static int run(options *o, const tf_project_options *po)
          * has none; blank for a forecast without a survey. */
         const char *population = fp->label[0] ? fp->label : o->survey_path ? base : "";
         st = tf_forecast_tables_build(f, fp, population, o->survey_path, jobs[i].tables, &err);
+        if (st == TF_OK && fp->scenarios) {
+            tf_forecast_source from = fo.source;
+            tf_projection_place place = {.population = population,
+                                         .model = from == TF_FORECAST_AVERAGE ? "average"
+                                                  : from == TF_FORECAST_FIXED ? "fixed"
+                                                                              : tf_model_name(fp->model),
+                                         .unit = fp->series ? tf_tables_unit(fp->series) : TF_UNIT_ANIMALS,
+                                         .year0 = fp->year0};
+            st = tf_scenario_tables_build(fp->scenarios, &place, fp->status_quo, fp->status_quo_years,
+                                          jobs[i].tables + N_TABLES, &err);
+        }
     }
     if (st == TF_OK && *tf_signals_flag())
         st = tf_error_add(&err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "interrupted");
@@ -639,6 +720,7 @@ static int run(options *o, const tf_project_options *po)
                 print_fixed_notes(f, jobs[i].p);
             print_source(f, jobs[i].p);
             print_projection(f, &jobs[i]);
+            print_management(jobs[i].p);
         }
         print_warnings(f, jobs[i].p);
     }
@@ -661,7 +743,7 @@ out:
 /* ---- the command line ---------------------------------------------------------------------------- */
 
 enum { OPT_MODEL = 256, OPT_OBS, OPT_AVERAGE, OPT_YEARS, OPT_THRESHOLD, OPT_WINDOW, OPT_RUNS, OPT_PARAMETER,
-       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES, OPT_EFFORT_NAME, OPT_COUNTED };
+       OPT_START, OPT_POPULATION, OPT_SKIP, OPT_ESTIMATES, OPT_SCENARIO, OPT_SAFE, OPT_COUNTED, OPT_EFFORT_NAME };
 
 /* Fills o from the command line, collecting every problem in err. Returns 1 when --help was
  * shown (nothing else to do), else 0; the caller checks err. */
@@ -680,6 +762,8 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         {"population", required_argument, NULL, OPT_POPULATION},
         {"skip-unusable", no_argument, NULL, OPT_SKIP},
         {"estimates", no_argument, NULL, OPT_ESTIMATES},
+        {"scenario", required_argument, NULL, OPT_SCENARIO},
+        {"safe-removal", required_argument, NULL, OPT_SAFE},
         {"counted-fraction", required_argument, NULL, OPT_COUNTED},
         {"effort-name", required_argument, NULL, OPT_EFFORT_NAME},
         TF_ARGS_SAMPLER_LONGOPTS,
@@ -712,6 +796,14 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
         case OPT_POPULATION: tf_input_set_population(&o->in, optarg, err); break;
         case OPT_SKIP: o->in.skip_unusable = 1; break;
         case OPT_ESTIMATES: o->in.estimates = 1; break;
+        case OPT_SCENARIO:
+            if (o->n_scenarios == TF_SCENARIO_MAX)
+                tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--scenario: more than %d scenarios",
+                             TF_SCENARIO_MAX);
+            else if (tf_scenario_parse(optarg, &o->scenarios[o->n_scenarios], err) == TF_OK)
+                o->n_scenarios++;
+            break;
+        case OPT_SAFE: tf_safe_removal_parse(optarg, &o->safe, err); break;
         case OPT_COUNTED: tf_input_set_counted_fraction(&o->in, optarg, err); break;
         case OPT_EFFORT_NAME: tf_input_set_effort_name(&o->in, optarg, err); break;
         case 'o': o->out_dir = optarg; break;

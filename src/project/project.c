@@ -31,13 +31,24 @@ struct tf_projection {
     size_t n_declines;
     double declines[TF_PROJECT_MAX_DECLINES];
     double decline_prob[2][TF_PROJECT_MAX_DECLINES];
+    /* keep_runs: each run's first year at or below each threshold (NEVER_HIT when it never was),
+     * n_thresholds x n_runs, and its log change x - x0 at the end of each window, n_windows x
+     * n_runs; NULL otherwise. */
+    unsigned short *first_hit;
+    double *change;
+    /* With management actions a run can die out: its bands read 0, not e^-50. */
+    int zero_extinct;
 };
+
+/* The horizon is at most TF_PROJECT_MAX_HORIZON (1000), so a year fits an unsigned short. */
+#define NEVER_HIT 0xFFFFu
 
 /* A run of consecutive futures that share one parameter draw: the drift is applied to them in
  * one call. */
 typedef struct {
     const tf_growth_type *growth;
     const double *theta;
+    const double *theta_act; /* theta with the action's capacity; theta when it has none */
     size_t start, n;
 } block;
 
@@ -45,6 +56,8 @@ typedef struct {
 typedef struct {
     double *x, *x0, *sigma, *z, *scratch;
     unsigned char *hit;      /* n_thresholds x n_runs: at or below threshold k at least once */
+    unsigned char *gone;     /* with actions: the run is extinct before this year's growth */
+    double *theta_act;       /* with a capacity action: n_blocks x TF_MAX_PARAMS */
     block *blocks;
     size_t n_blocks;
 } workspace;
@@ -104,6 +117,29 @@ char *tf_project_threshold_label(const tf_threshold *t, char *buf, size_t size)
 
 /* ---- options and validation ---------------------------------------------------------------- */
 
+int tf_project_action_is_zero(const tf_project_action *a)
+{
+    return a->share == 0 && a->take == 0 && a->growth == 0 && (a->capacity == 0 || a->capacity == 1);
+}
+
+int tf_project_capacity_index(const tf_growth_type *g)
+{
+    for (size_t j = 0; j < g->n_params; j++)
+        if (!strcmp(g->param_names[j], "K"))
+            return (int)j;
+    return -1;
+}
+
+static int acts(const tf_project_options *o)
+{
+    return !tf_project_action_is_zero(&o->status_quo) || (o->action_from > 0 && !tf_project_action_is_zero(&o->action));
+}
+
+static int has_capacity(const tf_project_action *a)
+{
+    return a->capacity != 0 && a->capacity != 1;
+}
+
 void tf_project_options_init(tf_project_options *o)
 {
     memset(o, 0, sizeof *o);
@@ -152,6 +188,15 @@ tf_status tf_project_check_options(const tf_project_options *o, tf_error *err)
     if (o->decline_window > TF_PROJECT_MAX_HORIZON)
         return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, NULL, "decline window %zu is longer than %d years",
                             o->decline_window, TF_PROJECT_MAX_HORIZON);
+    const tf_project_action *sq = &o->status_quo, *a = &o->action;
+    if (!isfinite(sq->take) || sq->share != 0 || sq->growth != 0 || has_capacity(sq))
+        return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, NULL,
+                            "the status quo of a projection is a finite yearly take only");
+    if (!(a->share >= 0 && a->share < 1) || !isfinite(a->take) || !isfinite(a->growth) ||
+        !(a->capacity >= 0 && isfinite(a->capacity)))
+        return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, NULL,
+                            "projection action out of range (share %g, take %g, growth %g, capacity %g)", a->share,
+                            a->take, a->growth, a->capacity);
     if (o->start != 0 && !(o->start > 0 && log(o->start) >= TF_PROJECT_LOG_MIN && log(o->start) <= TF_PROJECT_LOG_MAX))
         return tf_error_add(err, TF_ERR_RANGE, NULL, 0, 0, "the start must be a positive abundance below 5e21",
                             "starting abundance %g is outside the projection's range", o->start);
@@ -247,6 +292,8 @@ static void workspace_free(workspace *w)
     free(w->z);
     free(w->scratch);
     free(w->hit);
+    free(w->gone);
+    free(w->theta_act);
     free(w->blocks);
 }
 
@@ -257,13 +304,16 @@ void tf_projection_free(tf_projection *p)
     free(p->input_runs);
     free(p->bands);
     free(p->risk);
+    free(p->first_hit);
+    free(p->change);
     free(p);
 }
 
 /* Lays the runs out input by input, draw by draw, and sets each run's start (x_start for all
- * when it is not NAN) and sigma. */
+ * when it is not NAN) and sigma; with w->theta_act, each block's parameters with K times
+ * capacity. */
 static void lay_out_runs(const tf_project_input *in, size_t n_inputs, const size_t *runs, double x_start,
-                         workspace *w)
+                         double capacity, workspace *w)
 {
     size_t start = 0, nb = 0;
     for (size_t i = 0; i < n_inputs; i++) {
@@ -276,7 +326,17 @@ static void lay_out_runs(const tf_project_input *in, size_t n_inputs, const size
             if (a == b)
                 continue;
             const double *theta = in[i].draws + d * in[i].n_params;
-            w->blocks[nb++] = (block){in[i].growth, theta, start + a, b - a};
+            const double *theta_act = theta;
+            if (w->theta_act) {
+                /* The action's carrying capacity: K times the factor, in a copy of the draw. */
+                double *copy = w->theta_act + nb * TF_MAX_PARAMS;
+                memcpy(copy, theta, in[i].growth->n_params * sizeof *copy);
+                int k = tf_project_capacity_index(in[i].growth);
+                if (k >= 0)
+                    copy[k] *= capacity;
+                theta_act = copy;
+            }
+            w->blocks[nb++] = (block){in[i].growth, theta, theta_act, start + a, b - a};
             for (size_t j = start + a; j < start + b; j++) {
                 w->x0[j] = isnan(x_start) ? in[i].x_last[d] : x_start;
                 w->sigma[j] = theta[in[i].sigma_index];
@@ -321,19 +381,25 @@ static void select_kth(double *a, size_t n, size_t k_)
  * arithmetic as gsl_stats_quantile_from_sorted_data (Hyndman & Fan 1996, definition 7) but by
  * selection instead of a sort. exp is increasing, so order statistics of a give those of exp(a).
  * Reorders a. */
-static double quantile_exp(double *a, size_t n, double q)
+/* exp(x), or 0 for an extinct state (model/model.h) when zero_extinct. */
+static double abundance_of(double x, int zero_extinct)
+{
+    return zero_extinct && x <= TF_MODEL_EXTINCT_BELOW ? 0.0 : exp(x);
+}
+
+static double quantile_exp(double *a, size_t n, double q, int zero_extinct)
 {
     double delta = (double)(n - 1) * q;
     size_t lhs = (size_t)delta;
     delta -= (double)lhs;
     select_kth(a, n, lhs);
     if (lhs == n - 1)
-        return exp(a[lhs]);
+        return abundance_of(a[lhs], zero_extinct);
     /* After the selection every value above lhs is >= a[lhs]: the next order statistic is their minimum. */
     double next = a[lhs + 1];
     for (size_t i = lhs + 2; i < n; i++)
         next = a[i] < next ? a[i] : next;
-    return (1 - delta) * exp(a[lhs]) + delta * exp(next);
+    return (1 - delta) * abundance_of(a[lhs], zero_extinct) + delta * abundance_of(next, zero_extinct);
 }
 
 static void record_bands(tf_projection *p, workspace *w, size_t t)
@@ -341,7 +407,7 @@ static void record_bands(tf_projection *p, workspace *w, size_t t)
     size_t R = p->n_runs;
     memcpy(w->scratch, w->x, R * sizeof *w->scratch);
     for (int b = 0; b < TF_BAND_COUNT; b++)
-        p->bands[t * TF_BAND_COUNT + (size_t)b] = quantile_exp(w->scratch, R, band_levels[b]);
+        p->bands[t * TF_BAND_COUNT + (size_t)b] = quantile_exp(w->scratch, R, band_levels[b], p->zero_extinct);
 }
 
 static void record_thresholds(tf_projection *p, workspace *w, size_t t)
@@ -352,7 +418,16 @@ static void record_thresholds(tf_projection *p, workspace *w, size_t t)
         double level = log(p->thresholds[k].value);
         size_t count = 0;
         /* Relative thresholds sit at each run's own start times the fraction. */
-        if (p->thresholds[k].relative)
+        if (p->first_hit) {
+            unsigned short *first = p->first_hit + k * R;
+            for (size_t i = 0; i < R; i++) {
+                int now = w->x[i] <= (p->thresholds[k].relative ? w->x0[i] + level : level);
+                if (now && !hit[i])
+                    first[i] = (unsigned short)t;
+                hit[i] |= now;
+                count += hit[i];
+            }
+        } else if (p->thresholds[k].relative)
             for (size_t i = 0; i < R; i++) {
                 hit[i] |= w->x[i] <= w->x0[i] + level;
                 count += hit[i];
@@ -378,6 +453,9 @@ static void record_declines(tf_projection *p, const workspace *w, size_t wi)
             count += w->x[i] - w->x0[i] <= level;
         p->decline_prob[wi][d] = (double)count / (double)R;
     }
+    if (p->change)
+        for (size_t i = 0; i < R; i++)
+            p->change[wi * R + i] = w->x[i] - w->x0[i];
 }
 
 /* One year for every run: x <- drift(x) + sigma z, kept within the log-abundance bounds. Returns
@@ -393,6 +471,38 @@ static int step_year(workspace *w, size_t R, tf_rng *rng)
     for (size_t i = 0; i < R; i++) {
         double v = w->x[i] + w->sigma[i] * w->z[i];
         bad |= isnan(v);
+        v = v > TF_PROJECT_LOG_MAX ? TF_PROJECT_LOG_MAX : v;
+        v = v < TF_PROJECT_LOG_MIN ? TF_PROJECT_LOG_MIN : v;
+        w->x[i] = v;
+    }
+    return bad;
+}
+
+/* One year for every run with management actions (tf_project_action): the share and the take,
+ * then the growth (with the action's capacity when act), holding extinct runs extinct, then the
+ * added log growth and the noise. The random numbers are those of step_year, one normal a run,
+ * so that projections with and without actions share them. Returns nonzero on a non-number. */
+static int step_year_acting(workspace *w, size_t R, tf_rng *rng, const tf_project_action *a, int act)
+{
+    tf_rng_fill_normal(rng, w->z, R);
+    if (a->share > 0) {
+        double l = log1p(-a->share);
+        for (size_t i = 0; i < R; i++)
+            w->x[i] += l;
+    }
+    tf_model_take(a->take, w->x, R);
+    for (size_t i = 0; i < R; i++)
+        w->gone[i] = w->x[i] <= TF_MODEL_EXTINCT_BELOW;
+    for (size_t b = 0; b < w->n_blocks; b++) {
+        const block *bl = &w->blocks[b];
+        tf_model_drift_alive(bl->growth, act ? bl->theta_act : bl->theta, w->x + bl->start, w->x + bl->start, bl->n);
+    }
+    int bad = 0;
+    for (size_t i = 0; i < R; i++) {
+        double v = w->x[i] + a->growth + w->sigma[i] * w->z[i];
+        bad |= isnan(v);
+        /* Noise does not bring back a run that is gone (model/model.h). */
+        v = w->gone[i] ? TF_MODEL_LOG_EXTINCT : v;
         v = v > TF_PROJECT_LOG_MAX ? TF_PROJECT_LOG_MAX : v;
         v = v < TF_PROJECT_LOG_MIN ? TF_PROJECT_LOG_MIN : v;
         w->x[i] = v;
@@ -421,6 +531,9 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
             continue;
         if ((st = check_input(&inputs[i], i, opts->start == 0, err)))
             return st;
+        if (opts->action_from > 0 && has_capacity(&opts->action) && tf_project_capacity_index(inputs[i].growth) < 0)
+            return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, "choose growth models with a carrying capacity",
+                                "the %s model has no carrying capacity to change", inputs[i].growth->name);
         total_w += wt;
         total_draws += inputs[i].n_draws;
     }
@@ -474,7 +587,23 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
     w.blocks = malloc(n_blocks * sizeof *w.blocks);
     if (!w.x || !w.x0 || !w.sigma || !w.z || !w.scratch || !w.hit || !w.blocks)
         goto nomem;
-    lay_out_runs(inputs, n_inputs, p->input_runs, opts->start > 0 ? log(opts->start) : NAN, &w);
+    int acting = acts(opts);
+    p->zero_extinct = acting;
+    if (acting && !(w.gone = malloc(R)))
+        goto nomem;
+    if (acting && opts->action_from > 0 && has_capacity(&opts->action) &&
+        !(w.theta_act = malloc(n_blocks * TF_MAX_PARAMS * sizeof *w.theta_act)))
+        goto nomem;
+    if (opts->keep_runs) {
+        p->first_hit = malloc((K * R + 1) * sizeof *p->first_hit);
+        p->change = malloc(p->n_windows * R * sizeof *p->change);
+        if (!p->first_hit || !p->change)
+            goto nomem;
+        for (size_t i = 0; i < K * R; i++)
+            p->first_hit[i] = NEVER_HIT;
+    }
+    lay_out_runs(inputs, n_inputs, p->input_runs, opts->start > 0 ? log(opts->start) : NAN, opts->action.capacity,
+                 &w);
     memcpy(w.x, w.x0, R * sizeof *w.x);
 
     record_bands(p, &w, 0);
@@ -484,7 +613,8 @@ tf_status tf_project_run(const tf_project_input *inputs, size_t n_inputs, const 
             st = tf_error_add(err, TF_ERR_INTERRUPTED, NULL, 0, 0, NULL, "projection interrupted in year %zu", t);
             goto fail;
         }
-        if (step_year(&w, R, rng)) {
+        int act = opts->action_from > 0 && t >= opts->action_from;
+        if (acting ? step_year_acting(&w, R, rng, act ? &opts->action : &opts->status_quo, act) : step_year(&w, R, rng)) {
             st = tf_error_add(err, TF_ERR_NUMERIC, NULL, 0, 0, NULL,
                               "the growth model's drift gave a non-number in projection year %zu", t);
             goto fail;
@@ -581,4 +711,73 @@ void tf_project_stream(tf_rng *rng, uint64_t seed, const char *population)
 {
     uint64_t keys[2] = {tf_rng_key("projection"), tf_rng_key(population)};
     tf_rng_derive(rng, seed, keys, 2);
+}
+
+size_t tf_projection_run_first_hit(const tf_projection *p, size_t k, size_t i)
+{
+    if (!p->first_hit || k >= p->n_thresholds || i >= p->n_runs)
+        return TF_PROJECTION_NEVER;
+    unsigned short t = p->first_hit[k * p->n_runs + i];
+    return t == NEVER_HIT ? TF_PROJECTION_NEVER : t;
+}
+
+static tf_status paired(const tf_projection *a, const tf_projection *b, tf_error *err)
+{
+    if (!a->first_hit || !b->first_hit || a->n_runs != b->n_runs || a->n_thresholds != b->n_thresholds ||
+        a->n_windows != b->n_windows || a->horizon != b->horizon)
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL,
+                            "paired differences need two projections of the same runs, kept run by run");
+    return TF_OK;
+}
+
+/* Mean and standard error of the mean of per-run differences with sum s1 and sum of squares s2
+ * over n runs, as the binomial error tf_project_se is: the variance over n, not n - 1. */
+static void mean_se(double s1, double s2, size_t n, double *mean, double *se)
+{
+    double m = s1 / (double)n, v = s2 / (double)n - m * m;
+    *mean = m;
+    *se = sqrt((v > 0 ? v : 0) / (double)n);
+}
+
+tf_status tf_projection_risk_difference(const tf_projection *a, const tf_projection *b, size_t k, size_t t,
+                                        double *diff, double *mcse, tf_error *err)
+{
+    *diff = *mcse = NAN;
+    tf_status st = paired(a, b, err);
+    if (st)
+        return st;
+    if (k >= a->n_thresholds || t > a->horizon)
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "no threshold %zu or year %zu", k + 1, t);
+    size_t R = a->n_runs;
+    const unsigned short *fa = a->first_hit + k * R, *fb = b->first_hit + k * R;
+    double s1 = 0, s2 = 0;
+    for (size_t i = 0; i < R; i++) {
+        /* NEVER_HIT is above every year, so a run never hit never counts. */
+        int d = (fa[i] <= t) - (fb[i] <= t);
+        s1 += d;
+        s2 += d * d;
+    }
+    mean_se(s1, s2, R, diff, mcse);
+    return TF_OK;
+}
+
+tf_status tf_projection_decline_difference(const tf_projection *a, const tf_projection *b, size_t w, size_t d,
+                                           double *diff, double *mcse, tf_error *err)
+{
+    *diff = *mcse = NAN;
+    tf_status st = paired(a, b, err);
+    if (st)
+        return st;
+    if (w >= a->n_windows || d >= a->n_declines || a->declines[d] != b->declines[d])
+        return tf_error_add(err, TF_ERR_INVALID, NULL, 0, 0, NULL, "no window %zu or decline %zu", w + 1, d + 1);
+    size_t R = a->n_runs;
+    double level = log1p(-a->declines[d]), s1 = 0, s2 = 0;
+    const double *ca = a->change + w * R, *cb = b->change + w * R;
+    for (size_t i = 0; i < R; i++) {
+        int x = (ca[i] <= level) - (cb[i] <= level);
+        s1 += x;
+        s2 += x * x;
+    }
+    mean_se(s1, s2, R, diff, mcse);
+    return TF_OK;
 }

@@ -74,6 +74,28 @@ typedef struct {
 tf_project_input tf_project_input_from_model(const tf_model *m, const double *draws, size_t n_draws,
                                              const double *x_last, double weight);
 
+/* What management does in each yearly step, between the count of one year and the growth into
+ * the next (the order of the fit's step, model/model.h): first a share of the animals is removed
+ * (x <- x + ln(1 - share)), then a net take in count units (tf_model_take: removed minus released
+ * animals times the counted fraction), then the growth model moves what is left, with its
+ * carrying capacity K times capacity and growth added to the year's log growth:
+ * x <- drift(x; K capacity) + growth + sigma eps. A run taken to zero stays extinct
+ * (tf_model_drift_alive) until a release brings it back. The zero action (every field 0) changes
+ * nothing; capacity 0 means 1. */
+typedef struct {
+    double share;    /* in [0, 1) */
+    double take;     /* count units a year; negative: released */
+    double growth;   /* added to the yearly log growth */
+    double capacity; /* factor on K (> 0; 0 = unchanged); only for a growth model with a K */
+} tf_project_action;
+
+/* 1 when a changes nothing. */
+int tf_project_action_is_zero(const tf_project_action *a);
+
+/* The index of the carrying capacity "K" among g's drift parameters, or -1 when it has none
+ * (the exponential model). */
+int tf_project_capacity_index(const tf_growth_type *g);
+
 typedef struct {
     size_t horizon;        /* years ahead, 1..TF_PROJECT_MAX_HORIZON */
     size_t n_runs;         /* simulated futures; 0 = max(TF_PROJECT_DEFAULT_RUNS, draws of the inputs
@@ -87,6 +109,17 @@ typedef struct {
      * questions that keep the parameter uncertainty but set the current abundance by hand
      * (x_last is then not read). 0 = each draw's own start. */
     double start;
+    /* The status quo's action in every step before action_from, and in every step when
+     * action_from is 0 (only its take may be nonzero: a survey's recorded removals continued);
+     * the action of a scenario in steps t >= action_from (t = 1 is the step from the last survey
+     * year into the next). All zero: the plain projection, bit for bit as without them. */
+    tf_project_action status_quo;
+    tf_project_action action;
+    size_t action_from;
+    /* 1: keep each run's first year at or below each threshold and its change over each decline
+     * window, for the paired differences of two projections made with the same random numbers
+     * (tf_projection_risk_difference); about (2 n_thresholds + 16) bytes a run. */
+    int keep_runs;
     /* Polled once per simulated year; when it reads nonzero the run stops with
      * TF_ERR_INTERRUPTED. NULL = never (a signal handler's flag, for Ctrl-C). */
     const volatile sig_atomic_t *stop;
@@ -171,5 +204,23 @@ size_t tf_projection_n_declines(const tf_projection *p);
 double tf_projection_decline(const tf_projection *p, size_t d);
 double tf_projection_decline_prob(const tf_projection *p, size_t w, size_t d);
 double tf_projection_decline_se(const tf_projection *p, size_t w, size_t d);
+
+/* Paired differences between two projections a and b run with keep_runs from the same inputs,
+ * options other than the actions, and the same stream state (common random numbers): the
+ * difference of the risks of threshold k by year t (a minus b), or of decline d over window w,
+ * and its Monte Carlo standard error from the per-run differences of the indicators,
+ * sqrt(var(d_i) / runs) (the paired-sample standard error of a mean; common practice, no
+ * source). With common random numbers the two indicators agree in most runs, so this is far
+ * smaller than either projection's own error. TF_ERR_INVALID when a or b kept no runs or their
+ * runs, thresholds or windows differ; *diff and *mcse are NAN then. */
+tf_status tf_projection_risk_difference(const tf_projection *a, const tf_projection *b, size_t k, size_t t,
+                                        double *diff, double *mcse, tf_error *err);
+tf_status tf_projection_decline_difference(const tf_projection *a, const tf_projection *b, size_t w, size_t d,
+                                           double *diff, double *mcse, tf_error *err);
+
+/* With keep_runs: the first year 0..horizon in which run i was at or below threshold k, or
+ * TF_PROJECTION_NEVER when it never was; TF_PROJECTION_NEVER also without kept runs. */
+#define TF_PROJECTION_NEVER ((size_t)-1)
+size_t tf_projection_run_first_hit(const tf_projection *p, size_t k, size_t i);
 
 #endif

@@ -19,6 +19,7 @@
 #include "tables/models_table.h"
 #include "tables/populations_table.h"
 #include "tables/projection_tables.h"
+#include "tables/scenario_tables.h"
 #include "util/version.h"
 
 #define TRY(call)                                                                                                      \
@@ -180,6 +181,13 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
                                    "The futures start from the abundance of the last survey year and are shared among "
                                    "the models in proportion to their posterior probabilities.",
                                    err);
+        size_t sq_years;
+        double sq = tf_analysis_pop_status_quo(p, &sq_years);
+        if (st == TF_OK && sq_years) {
+            char text[200];
+            st = tf_table_add_notef(t[i], TF_NOTE_INFO, err, "Removals go on as the status quo: %s.",
+                                    tf_scenario_tables_status_quo(sq, sq_years, text, sizeof text));
+        }
         if (st == TF_OK && tf_tables_per_effort(s))
             st = tf_table_add_notef(t[i], TF_NOTE_INFO, err,
                                     "Effort is not 1 in every survey year, so abundances and thresholds in animals "
@@ -236,6 +244,77 @@ static tf_status projection_sheets(const tf_analysis *a, size_t pi, const tf_ana
                           .n_series = n_th, .first_row = 0, .n_rows = h + 1, .series_stride = h + 1,
                           .place = TF_REPORT_SAME_SHEET};
     return tf_report_add_chart(r, &rc, err);
+}
+
+/* The scenarios' tables (tables/scenario_tables.h), each on a sheet of its own, and one chart
+ * with a quasi-extinction curve (first threshold) per scenario. The sheet names of several
+ * populations use short roles, since a label of LABEL_IN_NAME characters and the CSV stem
+ * "scenario-differences" would pass Excel's 31 characters. */
+static tf_status scenario_sheets(const tf_analysis *a, size_t pi, const tf_analysis_tables_provenance *prov,
+                                 tf_report *r, tf_error *err)
+{
+    const tf_analysis_pop *p = tf_analysis_population(a, pi);
+    const tf_scenario_set *set = tf_analysis_pop_scenarios(p);
+    if (!set)
+        return TF_OK;
+    const tf_series *s = tf_analysis_pop_series(p);
+    tf_projection_place place = {.population = pop_title(prov, p), .model = "average", .unit = tf_tables_unit(s),
+                                 .year0 = tf_series_first_year(s) + (int)tf_series_n_years(s) - 1};
+    size_t sq_years;
+    double sq = tf_analysis_pop_status_quo(p, &sq_years);
+    tf_table *t[TF_SCENARIO_N_TABLES];
+    tf_status st = tf_scenario_tables_build(set, &place, sq, sq_years, t, err);
+    if (st != TF_OK)
+        return st;
+    static const char *const csv[TF_SCENARIO_N_TABLES] = {TF_SCENARIO_CURVES_NAME, TF_SCENARIO_DIFFERENCES_NAME,
+                                                          TF_SCENARIO_DECLINES_NAME};
+    static const char *const sheet_one[TF_SCENARIO_N_TABLES] = {"Scenarios", "Scenario differences",
+                                                                "Scenario declines"};
+    static const char *const sheet_many[TF_SCENARIO_N_TABLES] = {"scenarios", "sc-diffs", "sc-declines"};
+    static const char *const about[TF_SCENARIO_N_TABLES] = {
+        "each management scenario's chance of falling below each threshold and its abundance bands",
+        "each scenario's chance of falling below each threshold minus the status quo's, with paired errors",
+        "each scenario's chance of declines and its difference from the status quo"};
+    size_t idx[TF_SCENARIO_N_TABLES];
+    for (size_t i = 0; i < TF_SCENARIO_N_TABLES; i++) {
+        tf_table *mine = t[i];
+        t[i] = NULL;
+        char name[128];
+        if (tf_analysis_n_populations(a) == 1)
+            snprintf(name, sizeof name, "%s", sheet_one[i]);
+        else
+            table_name(name, sizeof name, a, p, sheet_many[i]);
+        if ((st = tf_table_set_name(mine, name, err)) != TF_OK) {
+            tf_table_free(mine);
+            break;
+        }
+        if ((st = tf_report_add_table(r, mine, about[i], &idx[i], err)) != TF_OK ||
+            (st = tf_report_set_place(r, idx[i], pop_title(prov, p), prov->folders ? prov->folders[pi] : NULL, csv[i],
+                                      err)) != TF_OK)
+            break;
+    }
+    tf_scenario_tables_free(t);
+    const tf_projection *pr = tf_scenario_set_status_quo(set);
+    size_t n_sc = tf_scenario_set_n(set), n_th = tf_projection_n_thresholds(pr), h = tf_projection_horizon(pr);
+    if (st != TF_OK || n_th == 0 || n_sc == 0)
+        return st;
+    const tf_table *curves = tf_report_table(r, idx[TF_SCENARIO_TABLE_CURVES]);
+    size_t c_p = tf_table_find_column(curves, tf_column_name(TF_C_PROBABILITY));
+    tf_chart_series cs[TF_SCENARIO_MAX];
+    for (size_t i = 0; i < n_sc; i++)
+        cs[i] = (tf_chart_series){c_p, tf_scenario_set_scenario(set, i)->label, TF_SERIES_LINE};
+    char title[200], th[48];
+    tf_threshold k0 = tf_projection_threshold(pr, 0);
+    snprintf(title, sizeof title, "Chance of falling below %s%s by scenario: %s",
+             tf_project_threshold_label(&k0, th, sizeof th), k0.relative ? " of current" : "", pop_title(prov, p));
+    /* Rows run scenario by scenario, each with its thresholds' blocks of years 0..horizon: the
+     * first block of each scenario is its curve for the first threshold. */
+    tf_report_chart ch = {.kind = TF_CHART_XY, .title = title, .x_title = "Year", .y_title = "Probability",
+                          .data = idx[TF_SCENARIO_TABLE_CURVES],
+                          .x_column = tf_table_find_column(curves, tf_column_name(TF_C_YEAR)), .series = cs,
+                          .n_series = n_sc, .first_row = 0, .n_rows = h + 1, .series_stride = n_th * (h + 1),
+                          .place = TF_REPORT_SAME_SHEET};
+    return tf_report_add_chart(r, &ch, err);
 }
 
 static tf_status models_sheet(const tf_analysis *a, size_t pi, const tf_analysis_tables_provenance *prov, tf_report *r,
@@ -485,6 +564,12 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
                      mcse_text(tf_projection_decline_se(pr, w, d), se, sizeof se));
             TRY(tf_table_add_item_number(t, text, tf_projection_decline_prob(pr, w, d), TF_COL_PERCENT, note, err));
         }
+    {
+        size_t sq_years;
+        double sq = tf_analysis_pop_status_quo(p, &sq_years);
+        TRY(tf_scenario_tables_first_page(t, tf_analysis_pop_scenarios(p), tf_analysis_pop_safe_removal(p), sq,
+                                          sq_years, y1, err));
+    }
     int conv = tf_populations_all_converged(p);
     TRY(tf_table_add_item_text(t, "Sampler checks", conv ? "passed" : "not all passed",
                                conv ? "every fit passed the R-hat and ESS checks"
@@ -716,6 +801,7 @@ tf_status tf_analysis_tables_build(const tf_analysis *a, const tf_analysis_table
         tf_tables_context c = {.population = pop_title(prov, p), .series = tf_analysis_pop_series(p),
                                .omit_seconds = prov->omit_seconds};
         if ((st = abundance_sheet(a, i, prov, &c, r, err)) != TF_OK || (st = projection_sheets(a, i, prov, r, err)) != TF_OK ||
+            (st = scenario_sheets(a, i, prov, r, err)) != TF_OK ||
             (st = models_sheet(a, i, prov, r, err)) != TF_OK || (st = sensitivity_sheet(a, i, prov, r, err)) != TF_OK ||
             (st = fit_sheets(a, i, prov, &c, r, err)) != TF_OK)
             break;

@@ -169,6 +169,23 @@ static const tf_column vocabulary[N] = {
                              "0.7: unreliable; blank where the priors are unchanged)",
                              TF_COL_NUMBER},
     [TF_C_NOTE] = {"note", "Note", "a caution about the row", TF_COL_TEXT},
+    [TF_C_SCENARIO] = {"scenario", "Scenario", "the management scenario's label (given with --scenario)",
+                       TF_COL_TEXT},
+    [TF_C_DIFFERENCE] = {"difference", "Difference from status quo",
+                         "the scenario's probability minus the status quo's, from the same simulated futures",
+                         TF_COL_PERCENT},
+    [TF_C_DIFFERENCE_MCSE] = {"difference_mcse", "Difference MCSE",
+                              "Monte Carlo standard error of the difference, from the paired runs: sd of the "
+                              "per-run differences / sqrt(runs)",
+                              TF_COL_NUMBER},
+    [TF_C_SAFE_REMOVAL] = {"safe_removal", "Largest safe removal",
+                           "largest constant yearly removal (animals, or a share as a fraction) that keeps the risk "
+                           "of reaching the first threshold within the years asked at or below the risk asked",
+                           TF_COL_NUMBER},
+    [TF_C_SAFE_REMOVAL_MCSE] = {"safe_removal_mcse", "Safe removal MCSE",
+                                "Monte Carlo standard error of the largest safe removal (sd over 10 batches of runs / "
+                                "sqrt(10))",
+                                TF_COL_NUMBER},
 };
 
 const tf_column *tf_column_of(tf_column_id id)

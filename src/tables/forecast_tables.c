@@ -13,6 +13,7 @@
 #include "sampler/fit.h"
 #include "tables/columns.h"
 #include "tables/fit_tables.h"
+#include "tables/scenario_tables.h"
 
 static const char not_converged[] =
     "Some chains behind this projection did not pass the convergence checks (R-hat above 1.01 or an "
@@ -139,6 +140,7 @@ static tf_status summary_table(const tf_forecast *f, const tf_forecast_pop *p, c
                                          "years ahead: the first year with a risk of 0.5 or more", err));
         }
     }
+    TRY(tf_scenario_tables_summary(t, p->scenarios, p->safe, p->status_quo, p->status_quo_years, err));
     TRY(tf_table_add_heading(t, "Cautions", err));
     const char *cautions[TF_FORECAST_MAX_CAUTIONS];
     size_t nc = tf_forecast_tables_cautions(f, p, cautions);
@@ -175,6 +177,13 @@ tf_status tf_forecast_tables_build(const tf_forecast *f, const tf_forecast_pop *
     for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
         for (size_t i = tf_project_n_cautions(); i < nc && st == TF_OK; i++)
             st = tf_table_add_note(out[k], TF_NOTE_CAUTION, cautions[i], err);
+    /* The survey's removals go on in the projection: say how much. */
+    if (p->status_quo_years) {
+        char sq[200];
+        tf_scenario_tables_status_quo(p->status_quo, p->status_quo_years, sq, sizeof sq);
+        for (size_t k = 0; k < TF_PROJECTION_N_TABLES && st == TF_OK; k++)
+            st = tf_table_add_notef(out[k], TF_NOTE_INFO, err, "Removals go on as the status quo: %s.", sq);
+    }
     if (st == TF_OK)
         st = summary_table(f, p, population, survey_path, &out[TF_FORECAST_TABLE_SUMMARY], err);
     return st;

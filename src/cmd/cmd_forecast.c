@@ -687,7 +687,7 @@ static int run(options *o, const tf_project_options *po)
     for (size_t i = 0; i < n_jobs; i++)
         jobs[i].p = tf_forecast_population(f, i);
     for (size_t i = 0; i < n_jobs && st == TF_OK; i++) {
-        char base[256];
+        char base[256], unit[TF_TABLES_UNIT_SIZE];
         tf_args_survey_name(o->survey_path ? o->survey_path : "-", base, sizeof base);
         const tf_forecast_pop *fp = jobs[i].p;
         /* The population as every table names it: its label, or the survey's name when the survey
@@ -700,7 +700,7 @@ static int run(options *o, const tf_project_options *po)
                                          .model = from == TF_FORECAST_AVERAGE ? "average"
                                                   : from == TF_FORECAST_FIXED ? "fixed"
                                                                               : tf_model_name(fp->model),
-                                         .unit = fp->series ? tf_tables_unit(fp->series) : TF_UNIT_ANIMALS,
+                                         .unit = fp->series ? tf_tables_unit(fp->series, unit, sizeof unit) : TF_UNIT_ANIMALS,
                                          .year0 = fp->year0};
             st = tf_scenario_tables_build(fp->scenarios, &place, fp->status_quo, fp->status_quo_years,
                                           jobs[i].tables + N_TABLES, &err);

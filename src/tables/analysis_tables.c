@@ -258,7 +258,9 @@ static tf_status scenario_sheets(const tf_analysis *a, size_t pi, const tf_analy
     if (!set)
         return TF_OK;
     const tf_series *s = tf_analysis_pop_series(p);
-    tf_projection_place place = {.population = pop_title(prov, p), .model = "average", .unit = tf_tables_unit(s),
+    char unit[TF_TABLES_UNIT_SIZE];
+    tf_projection_place place = {.population = pop_title(prov, p), .model = "average",
+                                 .unit = tf_tables_unit(s, unit, sizeof unit),
                                  .year0 = tf_series_first_year(s) + (int)tf_series_n_years(s) - 1};
     size_t sq_years;
     double sq = tf_analysis_pop_status_quo(p, &sq_years);

@@ -134,11 +134,11 @@ void tf_wording_prior_sensitivity(const tf_analysis_pop *p, char *buf, size_t si
         char th[96], c[32], d[32];
         tf_threshold t0 = tf_projection_threshold(pr, 0);
         tf_wording_threshold(&t0, th, sizeof th);
-        snprintf(risk, sizeof risk, "; the %zu-year risk (below %s) from %s %% to %s %%", tf_analysis_risk_years[y], th,
+        snprintf(risk, sizeof risk, "; %zu-year risk (below %s) %s %% to %s %%", tf_analysis_risk_years[y], th,
                  tf_wording_percent(100 * rlo, c, sizeof c), tf_wording_percent(100 * rhi, d, sizeof d));
     }
-    snprintf(buf, size, "With priors half or twice as wide%s, the best model's probability ranges from %s %% to "
-             "%s %%%s (prior-sensitivity sheet).",
+    snprintf(buf, size, "With priors half or twice as wide%s: best model's probability %s %% to %s %%%s "
+             "(prior-sensitivity sheet).",
              n_folders ? " and those of the folders given" : "", tf_wording_percent(100 * lo, a, sizeof a),
              tf_wording_percent(100 * hi, b, sizeof b), risk);
     if (!changes || !caution || !caution_size)

@@ -32,9 +32,9 @@ void tf_wording_threshold(const tf_threshold *t, char *buf, size_t size);
  * 12 %."). */
 void tf_wording_risk(const tf_threshold *t, size_t years, double p, char *buf, size_t size);
 
-/* The sentence on the prior sensitivity of population p ("With priors half or twice as wide, the
- * best model's probability ranges from 62 % to 81 %; the 20-year risk (below 50 % of the current
- * abundance) from 1.6 % to 4.6 % (prior-sensitivity sheet)."), over every row of its sensitivity
+/* The sentence on the prior sensitivity of population p ("With priors half or twice as wide:
+ * best model's probability 62 % to 81 %; 20-year risk (below 50 % of the current abundance) 1.6 %
+ * to 4.6 % (prior-sensitivity sheet)."), over every row of its sensitivity
  * (the user's folders of priors included, and then named); "" when it was not made. When another
  * model is the best under some set of priors, caution (size > 0, may be NULL) receives a sentence
  * naming the first such set and model, else "". */

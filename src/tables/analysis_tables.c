@@ -441,8 +441,7 @@ static tf_status draws_item(const tf_analysis *a, size_t pi, const tf_analysis_t
         snprintf(text, sizeof text, "every kept draw of every model: on the sheet '%s', and as %s in %s", name, file,
                  place);
     else
-        snprintf(text, sizeof text, "CSV only: %s in %s, every kept draw of every model (kept out of the "
-                 "workbook: --workbook-draws puts them in)", file, place);
+        snprintf(text, sizeof text, "CSV only: %s in %s (--workbook-draws adds a sheet)", file, place);
     return tf_table_add_item_text(t, "Raw posterior draws", text, NULL, err);
 }
 
@@ -497,8 +496,7 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
             snprintf(text, sizeof text, "Trend over %d-%d", tr->first_year, tr->last_year);
         else
             snprintf(text, sizeof text, "Recent trend, %d-%d", tr->first_year, tr->last_year);
-        snprintf(note, sizeof note, "yearly change, posterior median; a line through %s",
-                 k ? "the last years" : "every year, not the two ends");
+        snprintf(note, sizeof note, "yearly change, median; a line through %s", k ? "the last years" : "every year");
         TRY(tf_table_add_item_number(t, text, tr->median, TF_COL_PERCENT, note, err));
         TRY(tf_table_add_item_number(t, "  lower 95 %", tr->q025, TF_COL_PERCENT, NULL, err));
         TRY(tf_table_add_item_number(t, "  upper 95 %", tr->q975, TF_COL_PERCENT, NULL, err));
@@ -657,12 +655,12 @@ static tf_status provenance_items(const tf_analysis *a, const tf_analysis_tables
         snprintf(particles, sizeof particles, "particles chosen per model");
     if (o->fit.min_iter == o->fit.max_iter)
         snprintf(text, sizeof text,
-                 "PMMH, %zu chains of %zu iterations after %zu warm-up iterations, at most %zu draws kept per chain; %s, %s proposal",
+                 "PMMH, %zu chains x %zu iterations (+%zu warm-up), at most %zu draws kept each; %s, %s proposal",
                  o->fit.n_chains, o->fit.max_iter, o->fit.n_warmup, o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
     else
         snprintf(text, sizeof text,
                  "PMMH, %zu chains, %zu warm-up, until R-hat <= %.2f and ESS >= %.0f (%zu to %zu iterations), "
-                 "at most %zu draws kept per chain; %s, %s proposal",
+                 "at most %zu draws kept each; %s, %s proposal",
                  o->fit.n_chains, o->fit.n_warmup, TF_FIT_RHAT_MAX, o->fit.min_ess, o->fit.min_iter, o->fit.max_iter,
                  o->fit.max_kept, particles, tf_filter_proposal_name(o->fit.proposal));
     TRY(tf_table_add_item_text(t, "Sampler", text, NULL, err));

@@ -65,32 +65,43 @@ static tf_table *new_table(const char *name, const column *cols, size_t n_cols, 
     if (tf_table_add_notef(t, TF_NOTE_INFO, err, "Projection of %zu simulated futures, %zu years ahead.",
                            tf_projection_n_runs(p), tf_projection_horizon(p)) != TF_OK)
         goto fail;
-    for (size_t i = 0; i < tf_project_n_cautions(); i++)
-        if (tf_table_add_note(t, TF_NOTE_CAUTION, tf_project_caution(i), err) != TF_OK)
-            goto fail;
+    if (tf_projection_tables_cautions(t, err) != TF_OK)
+        goto fail;
     return t;
 fail:
     tf_table_free(t);
     return NULL;
 }
 
-static double calendar(int year0, size_t t)
+tf_status tf_projection_tables_cautions(tf_table *t, tf_error *err)
 {
-    return year0 == TF_PROJECTION_NO_YEAR ? NAN : (double)year0 + (double)t;
+    for (size_t i = 0; i < tf_project_n_cautions(); i++) {
+        tf_status st = tf_table_add_note(t, TF_NOTE_CAUTION, tf_project_caution(i), err);
+        if (st != TF_OK)
+            return st;
+    }
+    return TF_OK;
 }
 
-/* A row with the population and model filled in and numbers in the cells after them. */
-static tf_status add_row(tf_table *tb, const tf_projection_place *pl, const double *v, size_t n, tf_error *err)
+double tf_projection_tables_year(const tf_projection_place *pl, size_t t)
 {
-    size_t row;
+    return pl->year0 == TF_PROJECTION_NO_YEAR ? NAN : (double)pl->year0 + (double)t;
+}
+
+tf_status tf_projection_tables_row(tf_table *tb, const tf_projection_place *pl, const char *label, const double *v,
+                                   size_t n, tf_error *err)
+{
+    size_t row, first = FIRST + (label != NULL);
     tf_status st = tf_table_add_row(tb, &row, err);
     if (st == TF_OK)
         st = tf_table_set_text(tb, row, 0, pl->population, err);
     if (st == TF_OK)
         st = tf_table_set_text(tb, row, 1, pl->model, err);
+    if (st == TF_OK && label)
+        st = tf_table_set_text(tb, row, FIRST, label, err);
     for (size_t k = 0; st == TF_OK && k < n; k++)
         if (!isnan(v[k]))
-            tf_table_set_number(tb, row, FIRST + k, v[k]);
+            tf_table_set_number(tb, row, first + k, v[k]);
     return st;
 }
 
@@ -99,11 +110,11 @@ static tf_status fill_bands(tf_table *tb, const tf_projection *p, const tf_proje
     double row[N_OF(band_columns)];
     for (size_t t = 0; t <= tf_projection_horizon(p); t++) {
         row[0] = (double)t;
-        row[1] = calendar(pl->year0, t);
+        row[1] = tf_projection_tables_year(pl, t);
         row[2] = NAN;
         for (size_t b = 0; b < N_OF(band_order); b++)
             row[BAND_FIRST + b] = tf_projection_band(p, t, band_order[b]);
-        tf_status st = add_row(tb, pl, row, N_OF(row), err);
+        tf_status st = tf_projection_tables_row(tb, pl, NULL, row, N_OF(row), err);
         if (st == TF_OK)
             st = tf_table_set_text(tb, tf_table_n_rows(tb) - 1, FIRST + 2, pl->unit, err);
         if (st != TF_OK)
@@ -121,10 +132,10 @@ static tf_status fill_risk(tf_table *tb, const tf_projection *p, const tf_projec
             row[0] = th.value;
             row[1] = NAN;
             row[2] = (double)t;
-            row[3] = calendar(pl->year0, t);
+            row[3] = tf_projection_tables_year(pl, t);
             row[4] = tf_projection_risk(p, k, t);
             row[5] = tf_projection_risk_se(p, k, t);
-            tf_status st = add_row(tb, pl, row, N_OF(row), err);
+            tf_status st = tf_projection_tables_row(tb, pl, NULL, row, N_OF(row), err);
             if (st == TF_OK)
                 st = tf_table_set_text(tb, tf_table_n_rows(tb) - 1, FIRST + 1,
                                        th.relative ? TF_THRESHOLD_FRACTION : TF_THRESHOLD_ANIMALS, err);
@@ -144,7 +155,7 @@ static tf_status fill_declines(tf_table *tb, const tf_projection *p, const tf_pr
             row[1] = tf_projection_decline(p, d);
             row[2] = tf_projection_decline_prob(p, w, d);
             row[3] = tf_projection_decline_se(p, w, d);
-            tf_status st = add_row(tb, pl, row, N_OF(row), err);
+            tf_status st = tf_projection_tables_row(tb, pl, NULL, row, N_OF(row), err);
             if (st != TF_OK)
                 return st;
         }

@@ -41,6 +41,17 @@ typedef struct {
 tf_status tf_projection_tables_build(const tf_projection *p, const tf_projection_place *place,
                                      tf_table *out[TF_PROJECTION_N_TABLES], tf_error *err);
 
+/* What every projection table shares, for the tables built on a projection elsewhere
+ * (tables/scenario_tables.c). The calendar year of years_ahead t (NAN when place->year0 is
+ * TF_PROJECTION_NO_YEAR). */
+double tf_projection_tables_year(const tf_projection_place *place, size_t t);
+/* Appends a row: population and model from place, then label when not NULL (a scenario's), then
+ * the numbers v[0 .. n) in the cells after them (NAN = blank). */
+tf_status tf_projection_tables_row(tf_table *t, const tf_projection_place *place, const char *label, const double *v,
+                                   size_t n, tf_error *err);
+/* Adds the projection cautions (project/cautions.h) as TF_NOTE_CAUTION notes. */
+tf_status tf_projection_tables_cautions(tf_table *t, tf_error *err);
+
 /* Frees the tables and sets the entries to NULL; accepts NULL entries. */
 void tf_projection_tables_free(tf_table *tables[TF_PROJECTION_N_TABLES]);
 

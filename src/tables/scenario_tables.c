@@ -5,7 +5,6 @@
 #include <stdio.h>
 
 #include "analysis/analysis.h"
-#include "project/cautions.h"
 #include "tables/columns.h"
 
 #define N_OF(a) (sizeof(a) / sizeof((a)[0]))
@@ -130,37 +129,12 @@ static tf_table *new_table(const char *name, const column *cols, size_t n_cols, 
                                tf_scenario_describe(tf_scenario_set_scenario(s, i), what, sizeof what)) != TF_OK)
             goto fail;
     }
-    for (size_t i = 0; i < tf_project_n_cautions(); i++)
-        if (tf_table_add_note(t, TF_NOTE_CAUTION, tf_project_caution(i), err) != TF_OK)
-            goto fail;
+    if (tf_projection_tables_cautions(t, err) != TF_OK)
+        goto fail;
     return t;
 fail:
     tf_table_free(t);
     return NULL;
-}
-
-static double calendar(int year0, size_t t)
-{
-    return year0 == TF_PROJECTION_NO_YEAR ? NAN : (double)year0 + (double)t;
-}
-
-/* A row with population, model and scenario; numbers after them (NAN = blank), texts at the
- * given cells. */
-static tf_status add_row(tf_table *tb, const tf_projection_place *pl, const char *scenario, const double *v, size_t n,
-                         tf_error *err)
-{
-    size_t row;
-    tf_status st = tf_table_add_row(tb, &row, err);
-    if (st == TF_OK)
-        st = tf_table_set_text(tb, row, 0, pl->population, err);
-    if (st == TF_OK)
-        st = tf_table_set_text(tb, row, 1, pl->model, err);
-    if (st == TF_OK)
-        st = tf_table_set_text(tb, row, FIRST, scenario, err);
-    for (size_t k = 0; st == TF_OK && k < n; k++)
-        if (!isnan(v[k]))
-            tf_table_set_number(tb, row, FIRST + 1 + k, v[k]);
-    return st;
 }
 
 static tf_status fill(tf_table *curves, tf_table *diffs, tf_table *declines, const tf_scenario_set *s,
@@ -174,23 +148,23 @@ static tf_status fill(tf_table *curves, tf_table *diffs, tf_table *declines, con
             tf_threshold th = tf_projection_threshold(p, k);
             const char *kind = th.relative ? TF_THRESHOLD_FRACTION : TF_THRESHOLD_ANIMALS;
             for (size_t t = 0; t <= tf_projection_horizon(p); t++) {
-                double row[N_OF(curve_columns) - 1] = {th.value, NAN, (double)t, calendar(pl->year0, t),
+                double row[N_OF(curve_columns) - 1] = {th.value, NAN, (double)t, tf_projection_tables_year(pl, t),
                                                        tf_projection_risk(p, k, t), tf_projection_risk_se(p, k, t),
                                                        NAN};
                 for (size_t b = 0; b < N_OF(band_order); b++)
                     row[7 + b] = tf_projection_band(p, t, band_order[b]);
                 size_t r = tf_table_n_rows(curves);
-                if ((st = add_row(curves, pl, label, row, N_OF(row), err)) != TF_OK ||
+                if ((st = tf_projection_tables_row(curves, pl, label, row, N_OF(row), err)) != TF_OK ||
                     (st = tf_table_set_text(curves, r, FIRST + 2, kind, err)) != TF_OK ||
                     (st = tf_table_set_text(curves, r, FIRST + 7, pl->unit, err)) != TF_OK)
                     return st;
                 double d, se;
                 if ((st = tf_scenario_set_risk_difference(s, i, k, t, &d, &se, err)) != TF_OK)
                     return st;
-                double drow[N_OF(difference_columns) - 1] = {th.value, NAN, (double)t, calendar(pl->year0, t),
+                double drow[N_OF(difference_columns) - 1] = {th.value, NAN, (double)t, tf_projection_tables_year(pl, t),
                                                              tf_projection_risk(p, k, t), d, se};
                 r = tf_table_n_rows(diffs);
-                if ((st = add_row(diffs, pl, label, drow, N_OF(drow), err)) != TF_OK ||
+                if ((st = tf_projection_tables_row(diffs, pl, label, drow, N_OF(drow), err)) != TF_OK ||
                     (st = tf_table_set_text(diffs, r, FIRST + 2, kind, err)) != TF_OK)
                     return st;
             }
@@ -204,7 +178,7 @@ static tf_status fill(tf_table *curves, tf_table *diffs, tf_table *declines, con
                                                          tf_projection_decline(p, dd),
                                                          tf_projection_decline_prob(p, w, dd),
                                                          tf_projection_decline_se(p, w, dd), d, se};
-                if ((st = add_row(declines, pl, label, row, N_OF(row), err)) != TF_OK)
+                if ((st = tf_projection_tables_row(declines, pl, label, row, N_OF(row), err)) != TF_OK)
                     return st;
             }
     }

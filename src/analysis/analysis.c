@@ -235,6 +235,17 @@ static tf_status average(tf_analysis_pop *p, size_t recent_years, tf_error *err)
 
 /* ---- one population ---- */
 
+/* The projection options of population s: o's, with the status quo's removals (the mean net
+ * removal of the survey's last years, tf_scenario_status_quo_animals) taken every year. */
+static tf_project_options project_options(const tf_series *s, const tf_analysis_options *o,
+                                          const volatile sig_atomic_t *stop)
+{
+    tf_project_options po = o->project;
+    po.stop = stop;
+    po.status_quo.take = tf_series_counted_fraction(s) * tf_scenario_status_quo_animals(s, NULL);
+    return po;
+}
+
 static tf_status project(tf_analysis_pop *p, const tf_analysis_options *o, const volatile sig_atomic_t *stop,
                          tf_error *err)
 {
@@ -263,11 +274,9 @@ static tf_status project(tf_analysis_pop *p, const tf_analysis_options *o, const
         };
         n_in++;
     }
-    tf_project_options po = o->project;
-    po.stop = stop;
+    tf_project_options po = project_options(p->s, o, stop);
     double q = tf_series_counted_fraction(p->s);
     p->status_quo = tf_scenario_status_quo_animals(p->s, &p->status_quo_years);
-    po.status_quo.take = q * p->status_quo;
     /* Its own stream, keyed by the population: the same futures alone or among others. The
      * scenarios and the safe removal start from the same state (common random numbers). */
     tf_rng rng, start;
@@ -391,8 +400,9 @@ static tf_status sensitivity_risks(tf_analysis_pop *p, const tf_analysis_options
         };
     }
     if (n_in) {
-        tf_project_options po = o->project;
-        po.stop = stop;
+        /* The projection of the population as the main one makes it (status quo removals
+         * included), so that the fitted row gives the headline risks. */
+        tf_project_options po = project_options(p->s, o, stop);
         tf_rng rng;
         tf_project_stream(&rng, o->seed, tf_series_label(p->s));
         tf_projection *pr = NULL;
@@ -661,6 +671,11 @@ tf_status tf_analysis_check_management(const tf_survey *sv, const tf_series *onl
     if (o->safe.years > 0 && o->project.n_thresholds == 0)
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give a threshold with --threshold",
                             "the largest safe removal needs a quasi-extinction threshold");
+    if (o->safe.years > o->project.horizon)
+        return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
+                            "ask within the projected years, or project further with --years",
+                            "--safe-removal: %zu years is beyond the %zu projected years", o->safe.years,
+                            o->project.horizon);
     if (o->n_scenarios == 0)
         return TF_OK;
     if ((st = tf_scenario_check_list(o->scenarios, o->n_scenarios, err)) != TF_OK)

@@ -290,6 +290,10 @@ tf_status tf_forecast_check_options(const tf_forecast_options *o, tf_error *err)
     if (o->run.safe.years > 0 && o->run.project.n_thresholds == 0)
         tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give a threshold with --threshold",
                      "the largest safe removal needs a quasi-extinction threshold");
+    if (o->run.safe.years > o->run.project.horizon)
+        tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "ask within the projected years, or project further with --years",
+                     "--safe-removal: %zu years is beyond the %zu projected years", o->run.safe.years,
+                     o->run.project.horizon);
     size_t n1 = err->n_items;
     if (tf_project_check_options(&o->run.project, err) != TF_OK)
         tf_error_restatus(err, n1, TF_ERR_USAGE);

@@ -455,7 +455,12 @@ static int analyze(int argc, char **argv, int rank, int size)
             else if (tf_scenario_parse(optarg, &scenarios[opt.n_scenarios], &err) == TF_OK)
                 opt.n_scenarios++;
             break;
-        case OPT_SAFE: tf_safe_removal_parse(optarg, &opt.safe, &err); break;
+        case OPT_SAFE:
+            if (opt.safe.years > 0)
+                tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, "give --safe-removal once", TF_SAFE_REMOVAL_TWICE);
+            else
+                tf_safe_removal_parse(optarg, &opt.safe, &err);
+            break;
         case 'q': quiet = 1; break;
         case 'h':
             if (rank == 0)

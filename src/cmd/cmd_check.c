@@ -150,8 +150,8 @@ static bool print_series(const tf_series *s, FILE *out)
         }
         fprintf(out, "  removed:      %.10g animals in %zu years; added: %.10g animals in %zu years\n", removed,
                 n_removed, added, n_added);
-        fprintf(out, "  counted:      a count at effort 1 includes %.3g of the animals present (--counted-fraction)\n",
-                tf_series_counted_fraction(s));
+        fprintf(out, "  counted:      a count at effort 1 includes %.3g %% of the animals present (--counted-fraction)\n",
+                100 * tf_series_counted_fraction(s));
     }
     double pct = 100.0 * (exp(crude_slope(s)) - 1.0);
     fprintf(out, "  crude trend:  %+.1f%% per year (crude screening figure, not a model estimate)\n", pct);

@@ -426,7 +426,8 @@ int tf_cmd_fit(int argc, char **argv)
     for (size_t i = 0; i < n_jobs; i++) {
         if (!quiet) {
             print_summary(&jobs[i], stdout);
-            printf("  files: %s/ (abundance, change, parameters, diagnostics, chains, draws .csv)\n", jobs[i].dir);
+            printf("  files: %s/ (abundance, change, parameters, diagnostics, chains, draws%s .csv)\n", jobs[i].dir,
+                   paths ? ", paths" : "");
         }
         print_warnings(&jobs[i]);
     }

@@ -803,7 +803,12 @@ static int parse_options(int argc, char **argv, options *o, tf_error *err)
             else if (tf_scenario_parse(optarg, &o->scenarios[o->n_scenarios], err) == TF_OK)
                 o->n_scenarios++;
             break;
-        case OPT_SAFE: tf_safe_removal_parse(optarg, &o->safe, err); break;
+        case OPT_SAFE:
+            if (o->safe.years > 0)
+                tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, "give --safe-removal once", TF_SAFE_REMOVAL_TWICE);
+            else
+                tf_safe_removal_parse(optarg, &o->safe, err);
+            break;
         case OPT_COUNTED: tf_input_set_counted_fraction(&o->in, optarg, err); break;
         case OPT_EFFORT_NAME: tf_input_set_effort_name(&o->in, optarg, err); break;
         case 'o': o->out_dir = optarg; break;

@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "cmd/args.h"
+#include "cmd/input.h"
 #include "cmd/cmd.h"
 #include "cmd/messages.h"
 #include "export/atomic.h"
@@ -350,18 +351,10 @@ int tf_cmd_simulate(int argc, char **argv)
         case OPT_LABEL: label = optarg; break;
         case OPT_SCHEME: tf_args_parse_size("--scheme", optarg, 1, SCHEME_MAX, &n_pop, &err); break;
         case OPT_REMOVED: single = harvested = 1; parse_removed(optarg, &harvest, &err); break;
-        case OPT_COUNTED: {
-            double q;
+        case OPT_COUNTED:
             single = 1;
-            if (tf_args_parse_double("--counted-fraction", optarg, &q, &err) == TF_OK) {
-                if (q > 0 && q <= 1)
-                    harvest.counted_fraction = q;
-                else
-                    tf_error_add(&err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--counted-fraction %s is not in (0, 1]",
-                                 optarg);
-            }
+            tf_input_parse_counted_fraction(optarg, &harvest.counted_fraction, &err);
             break;
-        }
         case 'o': output = optarg; break;
         case 'q': break; /* nothing is printed but the survey, the warnings and the errors */
         case 'h': help(stdout); return TF_EXIT_OK;

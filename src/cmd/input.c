@@ -137,19 +137,30 @@ fail:
     return st;
 }
 
-tf_status tf_input_set_counted_fraction(tf_input *in, const char *text, tf_error *err)
+tf_status tf_input_parse_counted_fraction(const char *text, double *out, tf_error *err)
 {
+    char buf[64];
+    size_t n = strlen(text);
+    int percent = n > 0 && n < sizeof buf && text[n - 1] == '%';
+    snprintf(buf, sizeof buf, "%.*s", percent ? (int)n - 1 : (int)n, text);
     double q;
-    tf_status st = tf_args_parse_double("--counted-fraction", text, &q, err);
+    tf_status st = tf_args_parse_double("--counted-fraction", buf, &q, err);
     if (st != TF_OK)
         return st;
+    if (percent)
+        q /= 100.0;
     if (!(q > 0 && q <= 1))
         return tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0,
-                            "the share of the animals present that a count at effort 1 includes, e.g. 0.8 "
+                            "the share of the animals present that a count at effort 1 includes, e.g. 0.8 or 80% "
                             "(1 = the counts are censuses up to counting error)",
                             "--counted-fraction %s is not in (0, 1]", text);
-    in->counted_fraction = q;
+    *out = q;
     return TF_OK;
+}
+
+tf_status tf_input_set_counted_fraction(tf_input *in, const char *text, tf_error *err)
+{
+    return tf_input_parse_counted_fraction(text, &in->counted_fraction, err);
 }
 
 double tf_input_counted_fraction(const tf_input *in) { return in->counted_fraction > 0 ? in->counted_fraction : 1.0; }

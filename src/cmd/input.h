@@ -46,7 +46,9 @@ typedef struct {
  * once). TF_ERR_USAGE for an empty label or too many. A repeated option replaces the list. */
 tf_status tf_input_set_population(tf_input *in, const char *text, tf_error *err);
 
-/* --counted-fraction: TF_ERR_USAGE unless a number in (0, 1]. */
+/* --counted-fraction Q or P%: TF_ERR_USAGE unless a share in (0, 1]. The parse alone, for a
+ * command without a survey (simulate), and the setting of in. */
+tf_status tf_input_parse_counted_fraction(const char *text, double *out, tf_error *err);
 tf_status tf_input_set_counted_fraction(tf_input *in, const char *text, tf_error *err);
 /* The counted fraction in force: the one given, else 1. */
 double tf_input_counted_fraction(const tf_input *in);

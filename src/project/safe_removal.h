@@ -30,6 +30,9 @@ typedef struct {
 /* Parses "RISK,YEARS[,count|share]": RISK a fraction in (0, 1) or a percentage ("5%"), YEARS a
  * whole number of years 1..TF_PROJECT_MAX_HORIZON, count (the default) or share. TF_ERR_PARSE or
  * TF_ERR_RANGE naming the bad part. */
+/* What a command says when --safe-removal is given twice: one largest safe removal is sought per
+ * run. */
+#define TF_SAFE_REMOVAL_TWICE "--safe-removal is given twice (one largest safe removal is sought per run)"
 tf_status tf_safe_removal_parse(const char *text, tf_safe_removal_ask *out, tf_error *err);
 
 typedef struct {

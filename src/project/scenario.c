@@ -321,15 +321,15 @@ char *tf_scenario_describe(const tf_scenario *sc, char *buf, size_t size)
         else if (sc->remove_share)
             PUT("remove %.4g %% a year", 100 * sc->remove);
         else
-            PUT("remove %.10g a year", sc->remove);
+            PUT("remove %.10g animals a year", sc->remove);
         sep = ", ";
     }
     if (sc->has_add) {
-        PUT("%srelease %.10g a year", sep, sc->add);
+        PUT("%srelease %.10g animals a year", sep, sc->add);
         sep = ", ";
     }
     if (!sc->has_remove && !sc->has_add) {
-        PUT("status quo removals");
+        PUT("removals and releases as in the status quo");
         sep = ", ";
     }
     if (sc->growth != 0) {

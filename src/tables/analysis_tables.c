@@ -417,6 +417,15 @@ void tf_analysis_tables_sentences(const tf_analysis *a, size_t population, char 
                                                                               : tf_projection_horizon(pr);
         tf_threshold th = tf_projection_threshold(pr, 0);
         tf_wording_risk(&th, years, tf_projection_risk(pr, 0, years), risk, sizeof risk);
+        /* Every projected figure rests on the status quo: say it where the headline is. */
+        size_t sq_years;
+        double sq = tf_analysis_pop_status_quo(p, &sq_years);
+        size_t used = strlen(risk);
+        if (sq_years && sq != 0 && used < sizeof risk)
+            snprintf(risk + used, sizeof risk - used,
+                     " This assumes that %s go on at about %.0f animals a year, their mean over the last %zu survey "
+                     "years.",
+                     sq > 0 ? "removals" : "releases", fabs(sq), sq_years);
     }
     snprintf(buf, size, "%s%s%s%s%s", trend, recent[0] ? " " : "", recent, risk[0] ? " " : "", risk);
 }
@@ -618,8 +627,8 @@ static tf_status provenance_items(const tf_analysis *a, const tf_analysis_tables
     }
     double q = o->counted_fraction > 0 ? o->counted_fraction : 1.0;
     if (removed > 0 || added > 0 || q != 1) {
-        snprintf(text, sizeof text, "a count at effort 1 includes %.3g of the animals present (--counted-fraction)",
-                 q);
+        snprintf(text, sizeof text, "a count at effort 1 includes %.3g %% of the animals present (--counted-fraction)",
+                 100 * q);
         TRY(tf_table_add_item_text(t, "Counted fraction", text,
                                    "links animals removed or released to the abundance in count units", err));
     }

@@ -148,6 +148,9 @@ void tf_columns_parameter_name(const char *param, char *buf, size_t size);
 
 /* What a unit column holds. */
 #define TF_UNIT_ANIMALS "animals"
+/* Counts at effort 1 that hold only a share of the animals present (--counted-fraction below 1):
+ * animals = count units / that share. */
+#define TF_UNIT_COUNT "count units"
 #define TF_UNIT_PER_EFFORT "count units per unit effort"
 /* ... and its opening when the survey names its unit of effort: "count units per trap-night". */
 #define TF_UNIT_PER_NAMED "count units per "

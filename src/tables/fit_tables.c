@@ -38,7 +38,7 @@ const char *tf_tables_unit(const tf_series *s, char *buf, size_t size)
 {
     const char *name = tf_series_effort_name(s);
     if (!tf_tables_per_effort(s))
-        snprintf(buf, size, "%s", TF_UNIT_ANIMALS);
+        snprintf(buf, size, "%s", tf_series_counted_fraction(s) == 1 ? TF_UNIT_ANIMALS : TF_UNIT_COUNT);
     else if (!name[0])
         snprintf(buf, size, "%s", TF_UNIT_PER_EFFORT);
     else

@@ -42,7 +42,8 @@ const char *tf_tables_population(const tf_series *s, const char *fallback);
 #define TF_TABLES_UNIT_SIZE 192
 
 /* The unit of the abundances of s, written into buf (size bytes) and returned: TF_UNIT_ANIMALS
- * when every surveyed year's effort is 1; else TF_UNIT_PER_EFFORT, or "count units per NAME"
+ * when every surveyed year's effort is 1 and the counted fraction is 1 (TF_UNIT_COUNT when it is
+ * below 1); else TF_UNIT_PER_EFFORT, or "count units per NAME"
  * when the survey names its unit of effort (tf_series_effort_name). */
 const char *tf_tables_unit(const tf_series *s, char *buf, size_t size);
 /* The same with a capital first letter, for chart axes: "Animals", "Count units per NAME". */

@@ -64,7 +64,7 @@ static const column decline_columns[] = {
 char *tf_scenario_tables_status_quo(double animals, size_t n_years, char *buf, size_t size)
 {
     if (n_years == 0)
-        snprintf(buf, size, "no removals or releases (the survey records none)");
+        snprintf(buf, size, "no removals or releases (none recorded)");
     else if (animals >= 0)
         snprintf(buf, size, "a net removal of %.4g animals a year, the mean of the last %zu survey years", animals,
                  n_years);

@@ -42,6 +42,8 @@ refused "from a past year (analyze)" "from=2020" analyze "$herd" --scenario 'lat
 refused "from without survey years" "from=2030" "${fixed[@]}" --scenario 'later:remove=5,from=2030'
 refused "safe removal: risk" "risk" "${fixed[@]}" --safe-removal 1.5,20
 refused "safe removal: kind" "neither count nor share" analyze "$herd" --safe-removal 0.05,20,head
+refused "safe removal given twice" "given twice" forecast "$herd" --model ricker --safe-removal 0.05,20 --safe-removal 0.1,10
+refused "safe removal past the horizon" "beyond the 50 projected years" analyze "$herd" --safe-removal 0.05,80
 
 # Scenarios on the hunted herd, from a short fit (the numbers need not be final for these checks).
 out="$tmp/herd"
@@ -126,6 +128,26 @@ found = any(all(lbl in c for lbl in ("no hunt", "cull", "habitat")) and c.count(
 if missing or not found:
     print("missing sheets", missing, "chart with a curve per scenario found:", found)
     sys.exit(1)
+EOF
+
+# The prior sensitivity's row of the fitted priors projects as the headline does, status quo
+# removals included: its model-averaged risks are the risk table's.
+/usr/bin/python3 - "$an" <<'EOF' || fail "the prior-sensitivity risks leave out the status quo (see above)"
+import csv, sys
+d = sys.argv[1]
+with open(f"{d}/risk.csv", newline="") as f:
+    rows = [r for r in csv.DictReader(f) if r["model"] == "average"]
+risk = {(r["threshold"], r["years_ahead"]): float(r["probability"]) for r in rows}
+thresholds = list(dict.fromkeys(r["threshold"] for r in rows))
+with open(f"{d}/prior-sensitivity.csv", newline="") as f:
+    row = next(r for r in csv.DictReader(f) if r["alternative"] == "fitted" and r["model"] == "average")
+bad = 0
+for k, th in enumerate(thresholds, 1):
+    for y in ("10", "20"):
+        a, b = float(row[f"risk_{k}_{y}y"]), risk[(th, y)]
+        if a != b:
+            print(f"threshold {th}, {y} years: prior-sensitivity {a} against risk.csv {b}"); bad += 1
+sys.exit(1 if bad else 0)
 EOF
 
 [ "$fails" -eq 0 ] && echo "scenarios.sh: all passed"

@@ -14,6 +14,7 @@ void tf_alternatives_init(tf_alternatives *a)
 {
     memset(a, 0, sizeof *a);
     a->sensitivity = 1;
+    a->refit = 1;
 }
 
 const char *tf_alternatives_option(int code, const char *text, tf_alternatives *a, tf_error *err)
@@ -37,7 +38,15 @@ const char *tf_alternatives_option(int code, const char *text, tf_alternatives *
         else
             tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--prior-sensitivity takes on or off, not '%s'", text);
         break;
-    case TF_ALT_OPT_REFIT: name = "--prior-refit"; a->refit = 1; break;
+    case TF_ALT_OPT_REFIT:
+        name = "--prior-refit";
+        if (!strcmp(text, "on"))
+            a->refit = 1;
+        else if (!strcmp(text, "off"))
+            a->refit = 0;
+        else
+            tf_error_add(err, TF_ERR_USAGE, NULL, 0, 0, NULL, "--prior-refit takes on or off, not '%s'", text);
+        break;
     default: return NULL;
     }
     if (!a->first)
@@ -204,10 +213,11 @@ void tf_alternatives_help(FILE *out, int width)
          "also with the priors of a folder of edited model files (as in\n"
          "TALLYFIT_MODELS; files it lacks keep the priors used); the folder's\n"
          "name labels its rows; repeatable"},
-        {"--prior-refit",
+        {"--prior-refit on|off",
          "where the reweighted draws do not cover an alternative (Pareto k\n"
-         "above 0.7), estimate that marginal likelihood again (costly);\n"
-         "without it such rows are marked unreliable"},
+         "above 0.7), estimate that marginal likelihood again under it: one\n"
+         "more importance-sampling run each (default on; off marks such rows\n"
+         "unreliable instead)"},
     };
     for (size_t i = 0; i < sizeof items / sizeof items[0]; i++) {
         const char *t = items[i].text;

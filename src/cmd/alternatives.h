@@ -1,7 +1,7 @@
 /* The prior-sensitivity options that compare and analyze share: --prior-alternative DIR
  * (repeatable: a folder of edited copies of model files, as in TALLYFIT_MODELS, whose files take
  * the place of the priors used in the fit; a file it lacks leaves those as they are; the folder's
- * name labels its rows), --prior-sensitivity on|off and --prior-refit; the checks of every folder
+ * name labels its rows), --prior-sensitivity on|off and --prior-refit on|off; the checks of every folder
  * before any fit; and the callback that builds a candidate's priors from a folder. */
 #ifndef TF_ALTERNATIVES_H
 #define TF_ALTERNATIVES_H
@@ -18,11 +18,11 @@ enum { TF_ALT_OPT_DIR = 2000, TF_ALT_OPT_SENSITIVITY, TF_ALT_OPT_REFIT };
 #define TF_ALTERNATIVES_LONGOPTS                                                                  \
     {"prior-alternative", required_argument, NULL, TF_ALT_OPT_DIR},                               \
     {"prior-sensitivity", required_argument, NULL, TF_ALT_OPT_SENSITIVITY},                       \
-    {"prior-refit", no_argument, NULL, TF_ALT_OPT_REFIT}
+    {"prior-refit", required_argument, NULL, TF_ALT_OPT_REFIT}
 
 typedef struct {
     int sensitivity;   /* 1 unless --prior-sensitivity off */
-    int refit;         /* --prior-refit */
+    int refit;         /* 1 unless --prior-refit off */
     size_t n;
     const char *dirs[TF_ANALYSIS_MAX_USER_ALTERNATIVES];   /* borrowed from argv */
     tf_sensitivity_alternative alt[TF_ANALYSIS_MAX_USER_ALTERNATIVES];   /* set by tf_alternatives_check */

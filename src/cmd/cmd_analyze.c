@@ -223,9 +223,9 @@ static void model_file_lines(const tf_analysis_options *o, const tf_setup_user *
     }
     /* The prior sensitivity changes the tables written: recorded when it differs from the default,
      * each folder of priors by the hashes of its files (an edited file changes the numbers). */
-    if ((!o->prior_sensitivity || o->prior_refit) && used < size) {
+    if ((!o->prior_sensitivity || !o->prior_refit) && used < size) {
         int w = snprintf(buf + used, size - used, "prior-sensitivity %s%s\n", o->prior_sensitivity ? "on" : "off",
-                         o->prior_refit ? " refit" : "");
+                         o->prior_refit ? "" : ", refit off");
         used += w > 0 ? (size_t)w : 0;
     }
     for (size_t i = 0; i < o->n_prior_alternatives && used < size; i++) {

@@ -107,7 +107,7 @@ for cmd in compare analyze; do
   refused "$cmd missing folder" 3 "nowhere: .*cannot open" \
     "$T" $cmd "$survey" --prior-alternative "$tmp/nowhere" -o "$tmp/never"
   refused "$cmd bad switch" 2 "on or off" "$T" $cmd "$survey" --prior-sensitivity maybe -o "$tmp/never"
-  refused "$cmd bad refit switch" 2 "--prior-refit takes on or off" "$T" $cmd "$survey" --prior-refit maybe -o "$tmp/never"
+  refused "$cmd bad refit switch" 2 "prior-refit takes on or off" "$T" $cmd "$survey" --prior-refit maybe -o "$tmp/never"
   refused "$cmd folder without sensitivity" 2 "needs the prior sensitivity" \
     "$T" $cmd "$survey" --prior-sensitivity off --prior-alternative "$tmp/wide-k" -o "$tmp/never"
 done

@@ -80,24 +80,24 @@ void tf_wording_recent(const tf_analysis_trend *whole, const tf_analysis_trend *
                  tf_wording_percent(100 * recent->median, m, sizeof m), lo, hi);
 }
 
-void tf_wording_threshold(const tf_threshold *t, char *buf, size_t size)
+void tf_wording_threshold(const tf_threshold *t, const char *unit, char *buf, size_t size)
 {
     char v[32];
     if (t->relative)
         snprintf(buf, size, "%s %% of the current abundance", tf_wording_percent(100 * t->value, v, sizeof v));
     else
-        snprintf(buf, size, "%.15g animals", t->value);
+        snprintf(buf, size, "%.15g %s", t->value, unit ? unit : "animals");
 }
 
-void tf_wording_risk(const tf_threshold *t, size_t years, double p, char *buf, size_t size)
+void tf_wording_risk(const tf_threshold *t, const char *unit, size_t years, double p, char *buf, size_t size)
 {
-    char th[96], ch[32];
-    tf_wording_threshold(t, th, sizeof th);
+    char th[256], ch[32];
+    tf_wording_threshold(t, unit, th, sizeof th);
     snprintf(buf, size, "Averaging the models by their support, the chance of falling below %s at any time within %zu years is %s.", th,
              years, tf_wording_chance(p, ch, sizeof ch));
 }
 
-void tf_wording_prior_sensitivity(const tf_analysis_pop *p, char *buf, size_t size, char *caution,
+void tf_wording_prior_sensitivity(const tf_analysis_pop *p, const char *unit, char *buf, size_t size, char *caution,
                                   size_t caution_size)
 {
     const tf_sensitivity *sens = tf_analysis_pop_sensitivity(p);
@@ -129,11 +129,11 @@ void tf_wording_prior_sensitivity(const tf_analysis_pop *p, char *buf, size_t si
             rhi = fmax(rhi, row->risk[0][y]);
         }
     }
-    char a[32], b[32], risk[256] = "";
+    char a[32], b[32], risk[512] = "";
     if (isfinite(rlo)) {
-        char th[96], c[32], d[32];
+        char th[256], c[32], d[32];
         tf_threshold t0 = tf_projection_threshold(pr, 0);
-        tf_wording_threshold(&t0, th, sizeof th);
+        tf_wording_threshold(&t0, unit, th, sizeof th);
         snprintf(risk, sizeof risk, "; %zu-year risk (below %s) %s %% to %s %%", tf_analysis_risk_years[y], th,
                  tf_wording_percent(100 * rlo, c, sizeof c), tf_wording_percent(100 * rhi, d, sizeof d));
     }

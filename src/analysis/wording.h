@@ -24,13 +24,15 @@ void tf_wording_trend(const tf_analysis_trend *t, char *buf, size_t size);
  * -0.5 % a year, 95 % interval -2 % to 1 %."); "" when its period is the whole survey. */
 void tf_wording_recent(const tf_analysis_trend *whole, const tf_analysis_trend *recent, char *buf, size_t size);
 
-/* The threshold for reading: "100 animals" or "20 % of the current abundance". */
-void tf_wording_threshold(const tf_threshold *t, char *buf, size_t size);
+/* The threshold for reading: "100 animals" or "20 % of the current abundance". unit names what
+ * abundances are in (tables/fit_tables.h, tf_tables_unit: "count units per trap-night"...); NULL
+ * is "animals". */
+void tf_wording_threshold(const tf_threshold *t, const char *unit, char *buf, size_t size);
 
 /* The sentence on the chance of falling below threshold t within years years ("Averaging the
  * models by their support, the chance of falling below 100 animals within 20 years is about
  * 12 %."). */
-void tf_wording_risk(const tf_threshold *t, size_t years, double p, char *buf, size_t size);
+void tf_wording_risk(const tf_threshold *t, const char *unit, size_t years, double p, char *buf, size_t size);
 
 /* The sentence on the prior sensitivity of population p ("With priors half or twice as wide:
  * best model's probability 62 % to 81 %; 20-year risk (below 50 % of the current abundance) 1.6 %
@@ -38,7 +40,7 @@ void tf_wording_risk(const tf_threshold *t, size_t years, double p, char *buf, s
  * (the user's folders of priors included, and then named); "" when it was not made. When another
  * model is the best under some set of priors, caution (size > 0, may be NULL) receives a sentence
  * naming the first such set and model, else "". */
-void tf_wording_prior_sensitivity(const tf_analysis_pop *p, char *buf, size_t size, char *caution,
+void tf_wording_prior_sensitivity(const tf_analysis_pop *p, const char *unit, char *buf, size_t size, char *caution,
                                   size_t caution_size);
 
 #endif

@@ -166,8 +166,9 @@ static void print_population(const tf_analysis *a, size_t i, const char *title, 
     }
     if (!tf_populations_all_converged(p))
         fprintf(out, "  caution: some fits did not pass the convergence checks; see the diagnostics sheet\n");
-    char range[512], caution[512];
-    tf_wording_prior_sensitivity(p, range, sizeof range, caution, sizeof caution);
+    char range[768], caution[512], unit[TF_TABLES_UNIT_SIZE];
+    tf_wording_prior_sensitivity(p, tf_tables_unit(tf_analysis_pop_series(p), unit, sizeof unit), range, sizeof range,
+                                 caution, sizeof caution);
     if (caution[0])
         fprintf(out, "  caution: %s\n", caution);
 }

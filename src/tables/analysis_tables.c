@@ -416,7 +416,9 @@ void tf_analysis_tables_sentences(const tf_analysis *a, size_t population, char 
         size_t years = tf_projection_horizon(pr) >= tf_analysis_risk_years[1] ? tf_analysis_risk_years[1]
                                                                               : tf_projection_horizon(pr);
         tf_threshold th = tf_projection_threshold(pr, 0);
-        tf_wording_risk(&th, years, tf_projection_risk(pr, 0, years), risk, sizeof risk);
+        char unit[TF_TABLES_UNIT_SIZE];
+        tf_wording_risk(&th, tf_tables_unit(tf_analysis_pop_series(p), unit, sizeof unit), years,
+                        tf_projection_risk(pr, 0, years), risk, sizeof risk);
         /* Every projected figure rests on the status quo: say it where the headline is. */
         size_t sq_years;
         double sq = tf_analysis_pop_status_quo(p, &sq_years);
@@ -530,7 +532,7 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     /* Marginal likelihoods depend on the priors' width (compare/sensitivity.h): how far the
      * verdict moves with them, and a caution when the best model changes. */
     char caution[512];
-    tf_wording_prior_sensitivity(p, text, sizeof text, caution, sizeof caution);
+    tf_wording_prior_sensitivity(p, unit, text, sizeof text, caution, sizeof caution);
     if (text[0])
         TRY(tf_table_add_item_text(t, "  under other priors", text, NULL, err));
     if (caution[0]) {
@@ -548,11 +550,11 @@ static tf_status population_items(const tf_analysis *a, size_t pi, const tf_anal
     for (size_t k = 0; k < tf_projection_n_thresholds(pr); k++) {
         tf_threshold th = tf_projection_threshold(pr, k);
         /* Short labels under the block's heading, so that each fits the item column in two lines. */
-        char words[96], pct[32];
+        char words[256], pct[32];
         if (th.relative)
             snprintf(words, sizeof words, "%s %% of current", tf_wording_percent(100 * th.value, pct, sizeof pct));
         else
-            snprintf(words, sizeof words, "%.15g animals", th.value);
+            snprintf(words, sizeof words, "%.15g %s", th.value, unit);
         for (size_t y = 0; y < nry; y++) {
             size_t yr = tf_analysis_risk_years[y];
             snprintf(text, sizeof text, "Below %s at any time within %zu years", words, yr);

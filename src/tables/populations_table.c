@@ -82,7 +82,8 @@ tf_table *tf_populations_table_new(const tf_project_options *p, const char *name
     size_t nry = n_risk_years(p);
     for (size_t k = 0; k < p->n_thresholds; k++) {
         char name_[64], label[96], words[96], legend[256];
-        tf_wording_threshold(&p->thresholds[k], words, sizeof words);
+        /* Across populations: a threshold is in each population's own unit (its unit column). */
+        tf_wording_threshold(&p->thresholds[k], "(in each row's unit)", words, sizeof words);
         snprintf(name_, sizeof name_, "threshold_%zu", k + 1);
         snprintf(label, sizeof label, "Threshold %zu", k + 1);
         snprintf(legend, sizeof legend, "quasi-extinction threshold %zu: %s (see threshold_%zu_kind)", k + 1, words,

@@ -55,11 +55,15 @@ START_TEST(risks)
 {
     char b[512];
     tf_threshold abs_t = {.value = 100, .relative = 0}, rel_t = {.value = 0.2, .relative = 1};
-    tf_wording_threshold(&abs_t, b, sizeof b);
+    tf_wording_threshold(&abs_t, NULL, b, sizeof b);
     ck_assert_str_eq(b, "100 animals");
-    tf_wording_threshold(&rel_t, b, sizeof b);
+    /* A threshold is in the unit of the abundances: count units where effort or the counted
+     * fraction makes them so. */
+    tf_wording_threshold(&abs_t, "count units per trap-night", b, sizeof b);
+    ck_assert_str_eq(b, "100 count units per trap-night");
+    tf_wording_threshold(&rel_t, "count units", b, sizeof b);
     ck_assert_str_eq(b, "20 % of the current abundance");
-    tf_wording_risk(&abs_t, 20, 0.12, b, sizeof b);
+    tf_wording_risk(&abs_t, NULL, 20, 0.12, b, sizeof b);
     ck_assert_str_eq(b, "Averaging the models by their support, the chance of falling below 100 animals at any time "
                         "within 20 years is about 12 %.");
 }
